@@ -1,0 +1,1 @@
+"""Sub-commands of the ``zbench`` command line, one module each, exporting ``command``."""
