@@ -47,6 +47,7 @@ class SampleResult:
     bias_v: float = 0.0
     position: int | None = None
     raw_file: str | None = None
+    corrected_s: Any = None  # (nfreq, 2, 2) calibrated S-parameters, when kept
     fit_error: str | None = None
     warnings: tuple[str, ...] = ()
 
