@@ -1,0 +1,234 @@
+"""The procedure schema: a JSON-schema document (draft 2020-12) and its validator.
+
+Every object sets ``additionalProperties: false`` so a misspelt key is an error, not a
+silently ignored setting. Physical values are written as engineers write them
+(``100 Hz``, ``4.7n``, ``6.3 V``); the schema's own keyword ``unit`` names the unit each
+value must be in, and the validator checks it with :func:`bench.units.parse_quantity`.
+Checks that relate several values (start < stop, bias below every rating) live in
+:mod:`bench.procedure.plan`, after the schema has passed.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+from typing import Any
+
+import jsonschema
+from jsonschema import Draft202012Validator
+from jsonschema.exceptions import ValidationError
+
+from bench.units import QuantityError, parse_quantity
+
+STEP_NAMES = ("calibrate", "mount_short", "measure", "fit", "export", "report")
+MODEL_NAMES = ("auto", "series-rlc", "two-branch", "ladder", "inductor", "bead")
+PART_KINDS = ("mlcc", "bulk", "inductor", "bead")
+
+
+def _quantity(unit: str | None, description: str) -> dict[str, Any]:
+    return {"type": ["number", "string"], "unit": unit, "description": description}
+
+
+def _duration(description: str) -> dict[str, Any]:
+    return {"type": ["number", "string"], "unit": "duration", "description": description}
+
+
+_INSTRUMENT = {
+    "type": "object",
+    "additionalProperties": False,
+    "properties": {
+        "resource": {"type": "string", "minLength": 1, "description": "VISA resource string"},
+        "command_map": {"type": "string", "minLength": 1, "description": "command map name or file"},
+        "timeout": _duration("I/O timeout (s)"),
+    },
+}
+
+_DC_SOURCE = {
+    "type": "object",
+    "additionalProperties": False,
+    "properties": {
+        **_INSTRUMENT["properties"],
+        "max_voltage": _quantity("V", "highest voltage the source may ever be set to"),
+        "max_current": _quantity("A", "current limit programmed into the source"),
+    },
+}
+
+_PART = {
+    "type": "object",
+    "additionalProperties": False,
+    "required": ["name", "kind"],
+    "properties": {
+        "name": {"type": "string", "pattern": "^[A-Za-z0-9][A-Za-z0-9._-]*$"},
+        "kind": {"enum": list(PART_KINDS)},
+        "nominal": _quantity(None, "F for mlcc/bulk, H for inductor, ohm for bead"),
+        "tolerance": {"type": ["number", "string"], "description": "fraction or percent"},
+        "nominal_at": _quantity("Hz", "frequency of a bead's nominal impedance"),
+        "rated_voltage": _quantity("V", "the part's rated DC voltage"),
+        "model": {"enum": list(MODEL_NAMES)},
+        "description": {"type": "string"},
+        "samples": {
+            "oneOf": [
+                {"type": "integer", "minimum": 1, "maximum": 1000},
+                {
+                    "type": "array",
+                    "minItems": 1,
+                    "uniqueItems": True,
+                    "items": {"type": "string", "pattern": "^[A-Za-z0-9][A-Za-z0-9._-]*$"},
+                },
+            ]
+        },
+        "bias": {
+            "type": "array",
+            "minItems": 1,
+            "items": _quantity("V", "DC bias point"),
+        },
+    },
+}
+
+PROCEDURE_SCHEMA: dict[str, Any] = {
+    "$schema": "https://json-schema.org/draft/2020-12/schema",
+    "title": "zbench procedure",
+    "type": "object",
+    "additionalProperties": False,
+    "required": ["name", "sweep", "parts"],
+    "properties": {
+        "name": {"type": "string", "pattern": "^[A-Za-z0-9][A-Za-z0-9._-]*$"},
+        "description": {"type": "string"},
+        "mode": {"enum": ["guided", "unattended"]},
+        "instruments": {
+            "type": "object",
+            "additionalProperties": False,
+            "properties": {
+                "analyzer": {
+                    "type": "object",
+                    "additionalProperties": False,
+                    "properties": {
+                        **_INSTRUMENT["properties"],
+                        "max_power": _quantity("dBm", "highest source power allowed"),
+                    },
+                },
+                "switch": _INSTRUMENT,
+                "dc_source": _DC_SOURCE,
+                "bench": _INSTRUMENT,
+            },
+        },
+        "sweep": {
+            "type": "object",
+            "additionalProperties": False,
+            "required": ["start", "stop", "points"],
+            "properties": {
+                "start": _quantity("Hz", "first frequency"),
+                "stop": _quantity("Hz", "last frequency"),
+                "points": {"type": "integer", "minimum": 2},
+                "spacing": {"enum": ["log", "linear"]},
+                "if_bandwidth": _quantity("Hz", "IF (resolution) bandwidth"),
+                "power": _quantity("dBm", "source power"),
+                "averages": {"type": "integer", "minimum": 1, "maximum": 100},
+            },
+        },
+        "fixture": {
+            "type": "object",
+            "additionalProperties": False,
+            "properties": {
+                "positions": {"type": "integer", "minimum": 1, "maximum": 64},
+                "use_positions": {
+                    "type": "array",
+                    "minItems": 1,
+                    "uniqueItems": True,
+                    "items": {"type": "integer"},
+                },
+                "series_resistor": _quantity("ohm", "resistor in series at each port"),
+                "isolation_transformer": {"type": "boolean"},
+                "bias_tee_rating": _quantity("V", "bias tee DC rating"),
+                "dc_block_rating": _quantity("V", "DC block rating"),
+                "z0": _quantity("ohm", "reference impedance of the ports"),
+            },
+        },
+        "calibration": {
+            "type": "object",
+            "additionalProperties": False,
+            "properties": {
+                "method": {"enum": ["through", "solt", "hybrid"]},
+                "crossover": _quantity("Hz", "hybrid: through below, SOLT above"),
+                "reuse": {
+                    "type": "object",
+                    "additionalProperties": False,
+                    "required": ["run"],
+                    "properties": {
+                        "run": {"type": "string", "minLength": 1},
+                        "max_age": _duration("oldest calibration accepted"),
+                    },
+                },
+            },
+        },
+        "analysis": {
+            "type": "object",
+            "additionalProperties": False,
+            "properties": {
+                "noise_floor": _quantity("dB", "analyser noise floor of S21"),
+                "trace_noise": _quantity("dB", "trace noise of S21"),
+                "tolerance": {"type": ["number", "string"], "description": "target accuracy"},
+                "mount": {"enum": ["measured", "fitted"]},
+            },
+        },
+        "bias": {
+            "type": "object",
+            "additionalProperties": False,
+            "properties": {
+                "ramp_step": _quantity("V", "largest voltage step of a ramp"),
+                "ramp_dwell": _duration("time at each ramp step"),
+                "settle": _duration("wait after reaching a bias point"),
+                "discharge": _duration("wait with output off before touching the part"),
+                "current_limit": _quantity("A", "current limit during biased steps"),
+            },
+        },
+        "parts": {"type": "array", "minItems": 1, "items": _PART},
+        "steps": {
+            "type": "array",
+            "minItems": 1,
+            "uniqueItems": True,
+            "items": {"enum": list(STEP_NAMES)},
+        },
+    },
+}
+
+_DURATION_UNITS = {"s": 1.0, "sec": 1.0, "ms": 1e-3, "min": 60.0, "h": 3600.0, "d": 86400.0}
+
+
+def parse_duration(value: object, *, name: str = "value") -> float:
+    """Parse a duration such as ``30``, ``"250 ms"``, ``"10 min"``, ``"8 h"`` into seconds."""
+    if isinstance(value, str):
+        text = value.strip()
+        for suffix in sorted(_DURATION_UNITS, key=len, reverse=True):
+            if text.lower().endswith(suffix) and suffix not in ("s", "ms"):
+                number = text[: -len(suffix)].strip()
+                try:
+                    return float(number) * _DURATION_UNITS[suffix]
+                except ValueError:
+                    break
+    seconds = parse_quantity(value, "s", name=name)
+    if seconds < 0:
+        raise QuantityError(f"{name}: a duration cannot be negative, got {value!r}")
+    return seconds
+
+
+def _unit_keyword(
+    validator: Any, unit: str | None, instance: Any, schema: dict[str, Any]
+) -> Iterator[ValidationError]:
+    if unit is None or not isinstance(instance, (int, float, str)) or isinstance(instance, bool):
+        return  # no unit named: the plan checks it against the part's kind
+    try:
+        if unit == "duration":
+            parse_duration(instance)
+        else:
+            parse_quantity(instance, unit)
+    except QuantityError as exc:
+        text = str(exc).removeprefix("value: ")
+        yield ValidationError(text)
+
+
+ProcedureValidator = jsonschema.validators.extend(Draft202012Validator, {"unit": _unit_keyword})
+
+
+def validator() -> Any:
+    """A validator for :data:`PROCEDURE_SCHEMA` that also checks units."""
+    return ProcedureValidator(PROCEDURE_SCHEMA)
