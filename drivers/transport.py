@@ -1,0 +1,316 @@
+"""VISA transport: the only module of zbench that touches pyvisa.
+
+:class:`VisaTransport` wraps one pyvisa message-based resource (a LAN socket, VXI-11,
+HiSLIP, USBTMC or GPIB instrument; pyvisa-py's ``@py`` backend by default). It adds what
+the instruments above need and pyvisa leaves to the caller:
+
+- one error family (:mod:`drivers.errors`) naming the resource and the operation, so a
+  caller can tell a timeout from a dropped connection and retry or resume;
+- a timeout per operation (``with transport.timeout(120): ...``);
+- definite-length binary blocks through pyvisa's own block reader (IEEE 488.2 §8.7.9),
+  never a hand-written parser;
+- a debug-level log of all traffic on the ``drivers.traffic`` logger.
+
+Instruments receive a transport; they never open one. Anything with the methods of
+:class:`Transport` will do, which is how the protocol tests inject a scripted fake.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import logging
+import select
+import socket
+from collections.abc import Iterator
+from typing import Any, Protocol
+
+import numpy as np
+import pyvisa
+from pyvisa import constants
+from pyvisa.errors import InvalidBinaryFormat, InvalidSession, VisaIOError
+
+from drivers.errors import (
+    ConnectionFailed,
+    ConnectionLost,
+    InstrumentTimeout,
+    TransportError,
+)
+
+traffic_log = logging.getLogger("drivers.traffic")
+
+# VISA status codes that mean the link itself is gone (VISA spec VPP-4.3, viRead/viWrite).
+_LINK_LOST = {
+    constants.StatusCode.error_connection_lost,
+    constants.StatusCode.error_io,
+    constants.StatusCode.error_closing_failed,
+}
+_OPEN_FAILED = {
+    constants.StatusCode.error_resource_not_found,
+    constants.StatusCode.error_resource_busy,
+    constants.StatusCode.error_invalid_resource_name,
+}
+
+
+class Transport(Protocol):
+    """What an instrument needs from its transport (duck-typed; see :class:`VisaTransport`)."""
+
+    resource_name: str
+
+    def write(self, command: str) -> None: ...
+
+    def query(self, command: str) -> str: ...
+
+    def query_binary(
+        self,
+        command: str,
+        datatype: str = "d",
+        big_endian: bool = True,
+        *,
+        terminated: bool = True,
+    ) -> np.ndarray: ...
+
+    def query_ascii_values(self, command: str, separator: str = ",") -> np.ndarray: ...
+
+    def timeout(self, seconds: float) -> contextlib.AbstractContextManager[None]: ...
+
+
+class VisaTransport:
+    """One open VISA message-based resource.
+
+    Use :meth:`open` to make one; it clears the device and checks the link is up. The
+    transport is a context manager that closes the resource on exit.
+    """
+
+    def __init__(self, resource: Any, resource_name: str):
+        self._resource = resource
+        self.resource_name = resource_name
+        self._closed = False
+
+    # -- opening and closing -------------------------------------------------------
+
+    @classmethod
+    def open(
+        cls,
+        resource_name: str,
+        *,
+        backend: str = "@py",
+        timeout_s: float = 5.0,
+        read_termination: str | None = "\n",
+        write_termination: str = "\n",
+        clear: bool = True,
+    ) -> VisaTransport:
+        """Open ``resource_name`` (e.g. ``TCPIP0::192.168.0.20::5025::SOCKET``).
+
+        ``backend`` is the VISA library (``"@py"`` for pyvisa-py, ``""`` or a path for
+        an installed vendor VISA); ``timeout_s`` (s, > 0) is the default per-operation
+        timeout. The device is cleared on open (``clear=True``) so that stale bytes from
+        an earlier session cannot be mistaken for answers; for pyvisa-py sockets this
+        also surfaces a refused connection at once rather than at the first query.
+        """
+        if not timeout_s > 0:
+            raise ValueError(f"timeout_s must be > 0 s, got {timeout_s!r}")
+        try:
+            manager = pyvisa.ResourceManager(backend)
+        except (OSError, ValueError) as exc:
+            raise ConnectionFailed(
+                resource_name,
+                f"load VISA library {backend!r}",
+                str(exc),
+                hint="install that VISA library, or use backend='@py' (pyvisa-py)",
+            ) from exc
+        try:
+            resource = manager.open_resource(
+                resource_name,
+                read_termination=read_termination,
+                write_termination=write_termination,
+                timeout=timeout_s * 1000.0,
+            )
+        except VisaIOError as exc:
+            raise ConnectionFailed(resource_name, "open", exc.description) from exc
+        except (OSError, ValueError) as exc:
+            raise ConnectionFailed(resource_name, "open", str(exc)) from exc
+        transport = cls(resource, resource_name)
+        if clear:
+            try:
+                transport.clear()
+            except TransportError:
+                transport.close()
+                raise
+        traffic_log.debug("%s opened (timeout %.3g s)", resource_name, timeout_s)
+        return transport
+
+    def close(self) -> None:
+        """Close the resource; closing twice is harmless."""
+        if self._closed:
+            return
+        self._closed = True
+        with contextlib.suppress(VisaIOError, InvalidSession, OSError):
+            self._resource.close()
+        traffic_log.debug("%s closed", self.resource_name)
+
+    def __enter__(self) -> VisaTransport:
+        return self
+
+    def __exit__(self, *exc_info: object) -> None:
+        self.close()
+
+    # -- timeouts ------------------------------------------------------------------
+
+    @property
+    def timeout_s(self) -> float:
+        """Present per-operation timeout, s."""
+        return float(self._resource.timeout) / 1000.0
+
+    @timeout_s.setter
+    def timeout_s(self, seconds: float) -> None:
+        if not seconds > 0:
+            raise ValueError(f"timeout must be > 0 s, got {seconds!r}")
+        self._resource.timeout = seconds * 1000.0
+
+    @contextlib.contextmanager
+    def timeout(self, seconds: float) -> Iterator[None]:
+        """Use ``seconds`` (> 0) as the timeout inside the block, then restore the old one."""
+        old = self.timeout_s
+        self.timeout_s = seconds
+        try:
+            yield
+        finally:
+            self._resource.timeout = old * 1000.0
+
+    # -- I/O -----------------------------------------------------------------------
+
+    def clear(self) -> None:
+        """Clear the device (VISA viClear): drops any unread answer in the link."""
+        with self._mapped("clear"):
+            self._resource.clear()
+
+    def write(self, command: str) -> None:
+        """Send one program message (the write termination is added)."""
+        traffic_log.debug("%s << %s", self.resource_name, command)
+        with self._mapped(f"write {command!r}"):
+            self._resource.write(command)
+
+    def query(self, command: str) -> str:
+        """Send ``command`` and return the answer without its termination."""
+        traffic_log.debug("%s << %s", self.resource_name, command)
+        with self._mapped(f"query {command!r}"):
+            answer = self._resource.query(command)
+        answer = answer.rstrip("\r\n")
+        traffic_log.debug("%s >> %s", self.resource_name, answer)
+        return answer
+
+    def query_binary(
+        self,
+        command: str,
+        datatype: str = "d",
+        big_endian: bool = True,
+        *,
+        terminated: bool = True,
+    ) -> np.ndarray:
+        """Send ``command`` and read an IEEE 488.2 definite-length block (§8.7.9).
+
+        ``datatype`` is a :mod:`struct` code (``"d"`` float64 for ``REAL,64``, ``"f"``
+        float32); ``big_endian`` follows ``FORMat:BORDer`` (NORMal = big-endian);
+        ``terminated`` says whether the instrument sends the read termination after the
+        block (IEEE 488.2 response messages end with one). Returns a 1-D array.
+        """
+        traffic_log.debug("%s << %s", self.resource_name, command)
+        operation = f"query {command!r} (binary block)"
+        with self._mapped(operation):
+            try:
+                values = self._resource.query_binary_values(
+                    command,
+                    datatype=datatype,
+                    is_big_endian=big_endian,
+                    container=np.array,
+                    header_fmt="ieee",
+                    expect_termination=terminated,
+                )
+            except (InvalidBinaryFormat, ValueError) as exc:
+                # A header or length that does not parse: the link now holds an unknown
+                # remainder, so clear it before the caller tries again.
+                with contextlib.suppress(VisaIOError, OSError):
+                    self._resource.clear()
+                raise TransportError(
+                    self.resource_name,
+                    operation,
+                    f"expected an IEEE 488.2 definite-length block '#<n><length><bytes>' "
+                    f"of {datatype!r} values, found a malformed answer ({exc})",
+                    hint="check the data format set on the instrument (command map "
+                    "'data' section) matches the one read, then repeat the sweep",
+                ) from exc
+        values = np.asarray(values, dtype=float)
+        traffic_log.debug("%s >> block of %d %r values", self.resource_name, values.size, datatype)
+        return values
+
+    def query_ascii_values(self, command: str, separator: str = ",") -> np.ndarray:
+        """Send ``command`` and parse a ``separator``-separated list of numbers."""
+        answer = self.query(command)
+        try:
+            return np.array(
+                [float(item) for item in answer.split(separator) if item.strip()], dtype=float
+            )
+        except ValueError as exc:
+            raise TransportError(
+                self.resource_name,
+                f"query {command!r} (ASCII values)",
+                f"expected numbers separated by {separator!r}, found {answer[:80]!r}",
+                hint="check the data format set on the instrument matches the command map",
+            ) from exc
+
+    # -- error mapping -------------------------------------------------------------
+
+    @contextlib.contextmanager
+    def _mapped(self, operation: str) -> Iterator[None]:
+        """Turn pyvisa and socket failures into :mod:`drivers.errors` types."""
+        if self._closed:
+            raise ConnectionLost(self.resource_name, operation, "the transport is closed")
+        try:
+            yield
+        except VisaIOError as exc:
+            if exc.error_code == constants.StatusCode.error_timeout:
+                # pyvisa-py reports a socket closed by the peer as a timeout on read;
+                # look at the socket so the caller gets the error it can act on.
+                if self._peer_closed():
+                    raise ConnectionLost(
+                        self.resource_name, operation, "the instrument closed the connection"
+                    ) from exc
+                raise InstrumentTimeout(
+                    self.resource_name,
+                    operation,
+                    f"no answer within {self.timeout_s:.3g} s",
+                ) from exc
+            if exc.error_code in _LINK_LOST:
+                raise ConnectionLost(self.resource_name, operation, exc.description) from exc
+            if exc.error_code in _OPEN_FAILED:
+                raise ConnectionFailed(self.resource_name, operation, exc.description) from exc
+            raise TransportError(self.resource_name, operation, exc.description) from exc
+        except InvalidSession as exc:
+            raise ConnectionLost(self.resource_name, operation, "the VISA session is gone") from exc
+        except ConnectionRefusedError as exc:
+            raise ConnectionFailed(self.resource_name, operation, "connection refused") from exc
+        except OSError as exc:
+            raise ConnectionLost(
+                self.resource_name, operation, exc.strerror or exc.__class__.__name__
+            ) from exc
+
+    def _peer_closed(self) -> bool:
+        """True when the underlying TCP socket (pyvisa-py) was closed by the instrument.
+
+        Other backends hide their socket; for them this is False and a dropped link is
+        reported by the backend itself.
+        """
+        try:
+            session = self._resource.visalib.sessions[self._resource.session]
+        except (AttributeError, KeyError, TypeError, InvalidSession):
+            return False
+        sock = getattr(session, "interface", None)
+        if not isinstance(sock, socket.socket):
+            return False
+        try:
+            readable, _, _ = select.select([sock], [], [], 0)
+            if not readable:
+                return False
+            return sock.recv(1, socket.MSG_PEEK) == b""
+        except (OSError, ValueError):
+            return True
