@@ -144,9 +144,9 @@ class Mlcc:
     v50: float | None = None
     loss_tangent: float | None = None
     skin_corner: float = 20e6
-    mode_c_ratio: float = 0.01
-    mode_l_ratio: float = 0.6
-    mode_r_ratio: float = 8.0
+    mode_c_ratio: float = 0.003
+    mode_l_ratio: float = 5.0
+    mode_r_ratio: float = 10.0
     insulation_resistance: float = 1e9
 
     def __post_init__(self) -> None:

@@ -55,7 +55,7 @@ def test_mlcc_bias_lowers_low_frequency_capacitance():
     c0 = -1 / (2 * np.pi * f * part.impedance(f, 0.0).imag)
     c4 = -1 / (2 * np.pi * f * part.impedance(f, 4.0).imag)
     assert c4[0] < 0.8 * c0[0]
-    assert c4[0] == pytest.approx(1.01 * part.capacitance_at(4.0), rel=0.01)  # + weak mode
+    assert c4[0] == pytest.approx(1.003 * part.capacitance_at(4.0), rel=0.01)  # + weak mode
 
 
 def test_simple_mlcc_is_a_series_rlc_at_resonance():
