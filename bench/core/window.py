@@ -1,0 +1,206 @@
+"""The measurable impedance window of a shunt-through set-up and per-point uncertainty.
+
+Definitions (used by every function here; DESIGN §4, REFERENCES §1):
+
+* ``Ze = z0 + series_r`` (Ω), the impedance each port presents to the part.
+* ``S21n = 2Z / (2Z + Ze)``, the through-normalised transmission of a shunt part ``Z``.
+* Additive noise ``N = 10**(noise_floor_db / 20)``: the RMS magnitude of the noise on
+  S21, in dB relative to the through measured with the same cables and resistors
+  (so it is already a level on the ``S21n`` scale). Its relative error on Z is
+  ``a = N / |S21n·(1 − S21n)|`` (from ``dZ/Z = dS21 / (S21·(1 − S21))``).
+* Multiplicative error ``ε``: the RMS sum of the trace noise
+  ``10**(trace_noise_db/20) − 1`` and the drift of the through reference
+  ``10**(through_drift_db/20) − 1`` (cable flexing, connector repeatability,
+  temperature between the through and the measurement). A relative error ``ε`` on
+  S21 gives ``m = ε / |1 − S21n|`` on Z, i.e. ``ε·(1 + 2Z/Ze)`` for a resistive part.
+* ``relative_uncertainty = sqrt(a² + m²)`` (one sigma, a fraction of |Z|; the two
+  sources are independent).
+* The window ``[z_min, z_max]`` is the range of *resistive* Z whose relative
+  uncertainty is at most ``tolerance``; the floor comes from ``N`` (S21n → 0), the
+  ceiling from ``ε`` (S21n → 1). Both scale with ``Ze/z0``. A reactive point is judged
+  by its own complex S21n in :func:`relative_uncertainty`, so it may fall slightly
+  inside or outside a bound that is stated for a resistor.
+
+Worked figures (derived, REFERENCES §1): a plain 50 Ω set-up, −100 dB floor, 0.1 dB
+multiplicative error (ε = 1.16 %) and a 10 % target give ``z_max ≈ 25·(0.1/0.0116 − 1)
+≈ 190 Ω`` and ``z_min ≈ 25·1e-5/0.1 = 2.5 mΩ``; the trade's rule of thumb quotes about
+1 mΩ to about 225 Ω at about 100 dB of dynamic range (its floor corresponds to a looser
+25 % target). 499 Ω resistors at each port scale both bounds by 549/50.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import ArrayLike, NDArray
+from scipy.optimize import brentq, minimize_scalar
+
+from bench.core.conversions import effective_port_impedance, shunt_through_s21
+from bench.errors import InputError
+
+#: Default RMS trace noise of a good analyser at a narrow IF bandwidth (dB).
+DEFAULT_TRACE_NOISE_DB = 0.01
+#: Default drift of the through reference between calibration and measurement (dB).
+DEFAULT_THROUGH_DRIFT_DB = 0.1
+
+
+def db_to_relative(db: float) -> float:
+    """A magnitude ratio in dB as a relative error: ``10**(db/20) − 1`` (0.1 dB → 1.16 %)."""
+    return float(10.0 ** (db / 20.0) - 1.0)
+
+
+@dataclass(frozen=True)
+class Window:
+    """Measurable impedance window of one set-up (all impedances in Ω).
+
+    ``z_min``/``z_max`` bound the resistive impedances measurable within
+    ``tolerance``; ``z_best`` is where the relative uncertainty is smallest and
+    ``best_uncertainty`` that uncertainty. ``noise_floor`` is the linear additive noise
+    ``N`` and ``multiplicative_error`` the combined ``ε`` of the module docstring.
+    """
+
+    z_min: float
+    z_max: float
+    z0: float
+    series_r: float
+    noise_floor_db: float
+    trace_noise_db: float
+    tolerance: float
+    through_drift_db: float = DEFAULT_THROUGH_DRIFT_DB
+    ze: float = 50.0
+    noise_floor: float = 1e-5
+    multiplicative_error: float = 0.0
+    z_best: float = float("nan")
+    best_uncertainty: float = float("nan")
+
+    @property
+    def dynamic_range_db(self) -> float:
+        """Distance from the through (0 dB) down to the noise floor, dB."""
+        return -self.noise_floor_db
+
+    @property
+    def span_decades(self) -> float:
+        """Width of the window in decades of impedance."""
+        return math.log10(self.z_max / self.z_min)
+
+    def to_dict(self) -> dict[str, float]:
+        """Plain numbers (SI units), as ``zbench window --json`` prints them."""
+        return {
+            "z_min": self.z_min,
+            "z_max": self.z_max,
+            "z0": self.z0,
+            "series_r": self.series_r,
+            "ze": self.ze,
+            "noise_floor_db": self.noise_floor_db,
+            "trace_noise_db": self.trace_noise_db,
+            "through_drift_db": self.through_drift_db,
+            "tolerance": self.tolerance,
+            "multiplicative_error": self.multiplicative_error,
+            "z_best": self.z_best,
+            "best_uncertainty": self.best_uncertainty,
+        }
+
+
+def _uncertainty(
+    z: NDArray[np.complex128], ze: float, noise: float, eps: float
+) -> NDArray[np.float64]:
+    s = shunt_through_s21(z, ze, 0.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        additive = noise / np.abs(s * (1.0 - s))
+        multiplicative = eps / np.abs(1.0 - s)
+    out = np.hypot(additive, multiplicative)
+    # Z = 0 (a perfect short) and Z = inf (nothing) carry no information at all.
+    return np.where(np.isfinite(out), out, np.inf)
+
+
+def measurable_window(
+    *,
+    z0: float = 50.0,
+    series_r: float = 0.0,
+    noise_floor_db: float = -100.0,
+    trace_noise_db: float = DEFAULT_TRACE_NOISE_DB,
+    tolerance: float = 0.1,
+    through_drift_db: float = DEFAULT_THROUGH_DRIFT_DB,
+) -> Window:
+    """The measurable window of a shunt-through set-up (definitions in the module doc).
+
+    ``z0`` > 0 Ω; ``series_r`` >= 0 Ω at each port; ``noise_floor_db`` < 0 dB relative to
+    the through (typically −80 to −130); ``trace_noise_db`` and ``through_drift_db``
+    >= 0 dB RMS; ``tolerance`` a fraction in (0, 1). Raises :class:`InputError` when a
+    value is out of range or when no impedance can be measured within the tolerance.
+    """
+    try:
+        ze = effective_port_impedance(z0, series_r)
+    except ValueError as exc:
+        raise InputError(str(exc), hint="give z0 > 0 and series_r >= 0 in ohms") from exc
+    checks = [
+        (math.isfinite(noise_floor_db) and noise_floor_db < 0, "noise_floor_db", noise_floor_db,
+         "a level below the through, e.g. -100 (dB)"),
+        (math.isfinite(trace_noise_db) and trace_noise_db >= 0, "trace_noise_db", trace_noise_db,
+         "an RMS level >= 0 dB, e.g. 0.01"),
+        (math.isfinite(through_drift_db) and through_drift_db >= 0, "through_drift_db",
+         through_drift_db, "an RMS level >= 0 dB, e.g. 0.1"),
+        (math.isfinite(tolerance) and 0 < tolerance < 1, "tolerance", tolerance,
+         "a fraction between 0 and 1, e.g. 0.1 for 10 %"),
+    ]  # fmt: skip
+    for ok, key, value, expected in checks:
+        if not ok:
+            raise InputError(f"{key} = {value!r} is out of range", hint=f"give {expected}")
+
+    noise = 10.0 ** (noise_floor_db / 20.0)
+    eps = math.hypot(db_to_relative(trace_noise_db), db_to_relative(through_drift_db))
+
+    def rel(log_x: float) -> float:
+        return float(_uncertainty(np.array([10.0**log_x + 0j]), ze, noise, eps)[0])
+
+    # The uncertainty of a resistor is convex in log Z with one minimum near the
+    # geometric middle of the window; search for it, then for each crossing.
+    lo, hi = math.log10(ze) - 16.0, math.log10(ze) + 16.0
+    best = minimize_scalar(rel, bounds=(lo, hi), method="bounded", options={"xatol": 1e-10})
+    log_best, u_best = float(best.x), float(best.fun)
+    if u_best >= tolerance:
+        raise InputError(
+            f"no impedance can be measured within tolerance {tolerance:g}: the best "
+            f"relative uncertainty of this set-up is {u_best:.3g} (at {10**log_best:.3g} ohm)",
+            hint="raise the tolerance, lower the noise floor (narrower IF bandwidth, more "
+            "power) or reduce the trace noise and through drift",
+        )
+    log_min = brentq(lambda x: rel(x) - tolerance, lo, log_best, xtol=1e-12)
+    log_max = brentq(lambda x: rel(x) - tolerance, log_best, hi, xtol=1e-12)
+    return Window(
+        z_min=10.0**log_min,
+        z_max=10.0**log_max,
+        z0=float(z0),
+        series_r=float(series_r),
+        noise_floor_db=float(noise_floor_db),
+        trace_noise_db=float(trace_noise_db),
+        tolerance=float(tolerance),
+        through_drift_db=float(through_drift_db),
+        ze=ze,
+        noise_floor=noise,
+        multiplicative_error=eps,
+        z_best=10.0**log_best,
+        best_uncertainty=u_best,
+    )
+
+
+def relative_uncertainty(z: ArrayLike, window: Window) -> NDArray[np.float64]:
+    """One-sigma relative uncertainty of each measured impedance ``z`` (Ω), a fraction.
+
+    ``sqrt(a² + m²)`` with ``a = N/|S21n(1 − S21n)|`` and ``m = ε/|1 − S21n|`` as defined
+    in the module docstring, ``S21n`` being the transmission this ``z`` gives on the
+    window's set-up. NaN impedances give NaN; 0 and infinity give infinity.
+    """
+    zz = np.asarray(z, dtype=complex)
+    out = _uncertainty(zz, window.ze, window.noise_floor, window.multiplicative_error)
+    return np.where(np.isnan(zz), np.nan, out)
+
+
+def inside_window(z: ArrayLike, window: Window) -> NDArray[np.bool_]:
+    """True where ``z`` (Ω) is measurable within the window's tolerance."""
+    u = relative_uncertainty(z, window)
+    with np.errstate(invalid="ignore"):
+        # A hair of slack so a point exactly on a bound counts as inside.
+        return np.asarray(u <= window.tolerance * (1.0 + 1e-9), dtype=bool)

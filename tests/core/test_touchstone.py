@@ -1,0 +1,144 @@
+"""Loading and writing Touchstone files, and the message of each bad input."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+import skrf
+
+from bench.core.conversions import shunt_through_s21
+from bench.errors import InputError
+from bench.touchstone import (
+    interpolate_to,
+    load_measurement,
+    write_touchstone_s,
+    write_touchstone_z,
+)
+
+F = np.logspace(2, 8, 41)
+Z = 5e-3 + 1j * 2 * np.pi * F * 0.5e-9 + 1 / (1j * 2 * np.pi * F * 10e-6)
+
+
+def _shunt_s(z: np.ndarray, z0: float = 50.0, rs: float = 0.0) -> np.ndarray:
+    s21 = shunt_through_s21(z, z0, rs)
+    s = np.empty((z.size, 2, 2), complex)
+    s[:, 0, 1] = s[:, 1, 0] = s21
+    s[:, 0, 0] = s[:, 1, 1] = s21 - 1
+    return s
+
+
+def test_z_file_round_trip(tmp_path: Path) -> None:
+    path = write_touchstone_z(tmp_path / "part.s1p", F, Z, comments=["invented part ZC10U"])
+    text = path.read_text()
+    # Published (Touchstone 1.1 spec, REFERENCES §6): option line with an integer R.
+    assert "# Hz Z RI R 50" in text
+    assert "R 50.0" not in text
+    assert "!invented part ZC10U" in text
+    m = load_measurement(path)
+    assert m.kind == "z1p" and m.s is None and m.z0 == 50.0
+    np.testing.assert_allclose(m.f, F, rtol=1e-12)
+    np.testing.assert_allclose(m.z, Z, rtol=1e-9)
+
+
+def test_z_file_is_normalised_to_r_in_version_1(tmp_path: Path) -> None:
+    # Published (Touchstone 1.1 spec example, REFERENCES §6): '# MHz Z MA R 75' with
+    # 0.99 at -4 degrees is 0.99·75 = 74.25 Ω in magnitude.
+    lines = ["# MHz Z MA R 75"] + [f"{k + 1} 0.99 -4" for k in range(12)]
+    path = tmp_path / "spec.s1p"
+    path.write_text("\n".join(lines) + "\n")
+    m = load_measurement(path)
+    assert abs(m.z[0]) == pytest.approx(74.25, rel=1e-9)
+    assert np.degrees(np.angle(m.z[0])) == pytest.approx(-4.0, abs=1e-9)
+    assert m.f[0] == pytest.approx(1e6)
+
+
+def test_s_file_round_trip_and_z_with_series_resistors(tmp_path: Path) -> None:
+    s = _shunt_s(Z, rs=499.0)
+    path = write_touchstone_s(tmp_path / "meas.s2p", F, s, comments=["a", "b"])
+    m = load_measurement(path, series_r=499.0)
+    assert m.kind == "s2p" and m.series_r == 499.0
+    np.testing.assert_allclose(m.s, s, rtol=1e-10, atol=1e-15)
+    np.testing.assert_allclose(m.z, Z, rtol=1e-8)
+    np.testing.assert_allclose(m.s21, s[:, 1, 0])
+    # scikit-rf reads our file back as the same network.
+    net = skrf.Network(str(path))
+    np.testing.assert_allclose(net.s, s, rtol=1e-10, atol=1e-15)
+
+
+def test_integer_r_is_required_for_version_1(tmp_path: Path) -> None:
+    with pytest.raises(ValueError, match="integer"):
+        write_touchstone_s(tmp_path / "x.s2p", F, _shunt_s(Z), z0=50.5)
+
+
+def _write(tmp_path: Path, name: str, text: str) -> Path:
+    path = tmp_path / name
+    path.write_text(text)
+    return path
+
+
+def _rows(n: int, cols: int, start: float = 1e3) -> list[str]:
+    return [f"{start * (k + 1):g} " + " ".join(["0.1"] * cols) for k in range(n)]
+
+
+BAD_CASES = [
+    # (file name, content or None for missing, expected message, expected fix)
+    ("missing.s2p", None, "file not found", "check the path"),
+    ("notes.txt", "hello\n", "not a readable Touchstone", "option line"),
+    ("junk.s2p", "hello world\nnot numbers\n", "not a readable Touchstone", "option line"),
+    ("three.s3p", "# Hz S RI R 50\n" + "\n".join(_rows(12, 18)) + "\n", "3 ports", "ports 1 and 2"),
+    ("refl.s1p", "# Hz S RI R 50\n" + "\n".join(_rows(12, 2)) + "\n", "holding S", "Z RI"),
+    ("y1.s2p", "# Hz Y RI R 50\n" + "\n".join(_rows(12, 8)) + "\n", "version-1 Y", "S-parameters"),
+    ("few.s2p", "# Hz S RI R 50\n" + "\n".join(_rows(5, 8)) + "\n", "5 frequency points", "more"),
+    (
+        "order.s2p",
+        "# Hz S RI R 50\n" + "\n".join(_rows(12, 8)[::-1]) + "\n",
+        "not strictly increasing",
+        "sort",
+    ),
+    (
+        "nan.s2p",
+        "# Hz S RI R 50\n" + "\n".join([*_rows(11, 8), "1e6 nan 0 0.1 0 0.1 0 0 0"]) + "\n",
+        "NaN",
+        "re-export",
+    ),
+]
+
+
+@pytest.mark.parametrize(
+    ("name", "content", "message", "fix"), BAD_CASES, ids=[c[0] for c in BAD_CASES]
+)
+def test_bad_inputs_name_the_file_and_the_fix(
+    tmp_path: Path, name: str, content: str | None, message: str, fix: str
+) -> None:
+    path = tmp_path / name if content is None else _write(tmp_path, name, content)
+    with pytest.raises(InputError) as info:
+        load_measurement(path)
+    text = str(info.value)
+    assert str(path) in text
+    assert message in text
+    assert "fix:" in text and fix in text
+    assert info.value.exit_code == 2
+
+
+def test_negative_series_resistance_is_refused(tmp_path: Path) -> None:
+    path = write_touchstone_s(tmp_path / "m.s2p", F, _shunt_s(Z))
+    with pytest.raises(InputError, match="series resistance"):
+        load_measurement(path, series_r=-1.0)
+
+
+def test_interpolate_mount_to_another_grid() -> None:
+    fs = np.linspace(1e2, 2e8, 400)
+    mount = 0.2e-3 + 1j * 2 * np.pi * fs * 150e-12
+    ft = np.logspace(2, 8, 50)
+    out = interpolate_to(ft, fs, mount)
+    # R + jωL is linear in f, so linear interpolation is exact up to rounding.
+    np.testing.assert_allclose(out, 0.2e-3 + 1j * 2 * np.pi * ft * 150e-12, rtol=1e-9)
+
+
+def test_interpolate_refuses_to_extrapolate() -> None:
+    fs = np.linspace(1e3, 1e8, 50)
+    with pytest.raises(InputError, match="will not extrapolate") as info:
+        interpolate_to(np.logspace(2, 8, 10), fs, np.ones(50, complex))
+    assert "fix:" in str(info.value)
