@@ -1,0 +1,513 @@
+"""Files a run hands over: SPICE models, Touchstone data, the summary table, lot figures.
+
+:func:`write_exports` writes, inside a run folder (every write atomic):
+
+- ``models/<label>.sub``: one SPICE subcircuit per fitted sample and bias point;
+- ``models/<part>.lib``: every subcircuit of a part plus ``<part>_typ``, the sample whose
+  main landmark is the median of the part's samples (at the part's lowest bias point);
+- ``models/<part>_bias.csv``: capacitance versus DC bias, for parts measured at several
+  bias points;
+- ``corrected/<label>.z1p``: the fixture-removed impedance as a one-port Touchstone Z
+  file, and ``corrected/<label>.s2p``: the calibrated S-parameters when they were kept;
+- ``summary.csv``: one row per sample and bias point (landmarks, fit quality, points
+  outside the window, pass/fail against the procedure's nominal value and tolerance);
+- ``lot_statistics.csv``: mean, standard deviation, minimum and maximum of each
+  landmark over the samples of a part, per bias point.
+
+The *main landmark* of a part is what its tolerance is stated on: ``c_low`` (F) for
+capacitors, ``l_low`` (H) for inductors, and for beads |Z| (Ω) at ``nominal_at_hz``,
+read from the measurement (log-log interpolation) when that frequency lies inside the
+sweep, else from the model. A sample passes when its main landmark lies within
+nominal × (1 ± tolerance); the verdict is blank when the procedure gives no nominal
+value or no tolerance. All values in the CSV files are SI (F, H, Hz, Ω, V); deviations
+and tolerances are fractions.
+
+The pure functions :func:`summary_rows`, :func:`lot_statistics`, :func:`bias_table` and
+:func:`main_landmark` compute the same tables without writing anything.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import math
+import re
+from dataclasses import dataclass
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from bench.files import atomic_write_text
+from bench.results import PartSpec, RunSummary, SampleResult
+
+CAPACITOR_KINDS = ("mlcc", "bulk")
+CAPACITOR_LANDMARKS = ("c_low", "esl", "srf", "esr_at_srf")
+INDUCTOR_LANDMARKS = ("l_low", "r_dc", "srf", "z_at_srf", "c_par")
+LANDMARK_UNITS = {
+    "c_low": "F",
+    "esl": "H",
+    "srf": "Hz",
+    "esr_at_srf": "Ω",
+    "l_low": "H",
+    "r_dc": "Ω",
+    "z_at_srf": "Ω",
+    "c_par": "F",
+    "z_at_nominal_hz": "Ω",
+}
+ALL_LANDMARKS = ("c_low", "esl", "srf", "esr_at_srf", "l_low", "r_dc", "z_at_srf", "c_par")
+
+SUMMARY_COLUMNS = (
+    "part",
+    "sample",
+    "bias_v",
+    "position",
+    "kind",
+    "model",
+    *ALL_LANDMARKS,
+    "rms_log_error",
+    "max_abs_log_error",
+    "points_used",
+    "points_outside_window",
+    "main_landmark",
+    "measured",
+    "nominal",
+    "tolerance",
+    "nominal_at_hz",
+    "deviation",
+    "result",
+    "fit_error",
+    "warnings",
+)
+
+
+# --------------------------------------------------------------------------- names
+
+
+def safe_filename(text: str) -> str:
+    """``text`` with every character outside ``A-Z a-z 0-9 . _ + -`` replaced by ``_``."""
+    cleaned = re.sub(r"[^A-Za-z0-9._+\-]", "_", text).strip(".")
+    return cleaned or "_"
+
+
+def spice_name(text: str) -> str:
+    """A subcircuit name SPICE reads as one token: ``4.5V`` becomes ``4p5V``.
+
+    Only letters, digits, ``_`` and ``-`` are kept (others become ``_``), and the name
+    starts with a letter, as every SPICE reads it.
+    """
+    name = re.sub(r"(?<=\d)\.(?=\d)", "p", text)
+    name = re.sub(r"[^A-Za-z0-9_\-]", "_", name)
+    if not name or not name[0].isalpha():
+        name = f"X{name}"
+    return name
+
+
+def sample_spice_name(sample: SampleResult) -> str:
+    """Subcircuit name of a sample: its label, made a SPICE token."""
+    return spice_name(sample.label)
+
+
+def typical_spice_name(part: str) -> str:
+    """Subcircuit name of a part's typical model: ``<part>_typ``."""
+    return spice_name(f"{part}_typ")
+
+
+# --------------------------------------------------------------------------- landmarks
+
+
+def part_kind(spec: PartSpec) -> str:
+    """``"capacitor"`` for MLCCs and bulk capacitors, else ``"inductor"``."""
+    return "capacitor" if spec.kind in CAPACITOR_KINDS else "inductor"
+
+
+def _magnitude_at(f: np.ndarray, z: np.ndarray, at_hz: float) -> float | None:
+    """|Z| at ``at_hz`` by log-log interpolation; None outside the sweep."""
+    f = np.asarray(f, dtype=float)
+    mag = np.abs(np.asarray(z, dtype=complex))
+    good = (f > 0) & (mag > 0) & np.isfinite(mag)
+    if good.sum() < 2 or not (f[good][0] <= at_hz <= f[good][-1]):
+        return None
+    return float(np.exp(np.interp(math.log(at_hz), np.log(f[good]), np.log(mag[good]))))
+
+
+def main_landmark(spec: PartSpec, sample: SampleResult) -> tuple[str, float | None]:
+    """Name and value (SI) of the landmark the part's tolerance is stated on.
+
+    ``c_low`` for capacitors and ``l_low`` for inductors (from the fit's landmarks);
+    for a bead with ``nominal_at_hz``, ``z_at_nominal_hz``: |Z| there, from the
+    measurement when the frequency is inside the sweep, else from the model; for a
+    bead without it, ``z_at_srf``. The value is None when it cannot be had (no fit).
+    """
+    landmarks = dict(sample.fit.landmarks) if sample.fit is not None else {}
+    if spec.kind in CAPACITOR_KINDS:
+        return "c_low", _finite(landmarks.get("c_low"))
+    if spec.kind == "bead":
+        if spec.nominal_at_hz:
+            value = _magnitude_at(sample.data.f, sample.data.z, spec.nominal_at_hz)
+            if value is None and sample.fit is not None:
+                zm = sample.fit.impedance(np.array([spec.nominal_at_hz], dtype=float))
+                value = float(np.abs(zm[0]))
+            return "z_at_nominal_hz", _finite(value)
+        return "z_at_srf", _finite(landmarks.get("z_at_srf"))
+    return "l_low", _finite(landmarks.get("l_low"))
+
+
+def _finite(value: Any) -> float | None:
+    if value is None:
+        return None
+    value = float(value)
+    return value if math.isfinite(value) else None
+
+
+def verdict(spec: PartSpec, value: float | None) -> tuple[float | None, str]:
+    """(deviation from nominal as a fraction, ``"pass"``/``"fail"``/``""``).
+
+    Pass when ``|value/nominal − 1| ≤ tolerance``. Blank verdict when the procedure
+    gives no nominal value or no tolerance, or the value could not be had.
+    """
+    if value is None or not spec.nominal:
+        return None, ""
+    deviation = value / spec.nominal - 1.0
+    if spec.tolerance is None:
+        return deviation, ""
+    # A hair of slack so a value printed exactly at the limit is not failed by rounding.
+    return deviation, "pass" if abs(deviation) <= spec.tolerance * (1 + 1e-12) else "fail"
+
+
+# --------------------------------------------------------------------------- tables
+
+
+def summary_rows(summary: RunSummary) -> list[dict[str, Any]]:
+    """One row per sample and bias point, keyed by :data:`SUMMARY_COLUMNS` (SI values)."""
+    rows = []
+    for sample in summary.samples:
+        spec = summary.part(sample.part)
+        fit = sample.fit
+        landmarks = dict(fit.landmarks) if fit is not None else {}
+        name, value = main_landmark(spec, sample)
+        deviation, result = verdict(spec, value)
+        quality = fit.quality if fit is not None else None
+        outside = (
+            quality.points_outside_window
+            if quality is not None
+            else int(np.count_nonzero(~np.asarray(sample.data.inside_window, dtype=bool)))
+        )
+        warnings = list(sample.warnings) + (list(fit.warnings) if fit is not None else [])
+        row: dict[str, Any] = {
+            "part": sample.part,
+            "sample": sample.sample,
+            "bias_v": sample.bias_v,
+            "position": sample.position,
+            "kind": spec.kind,
+            "model": fit.model if fit is not None else None,
+            **{key: _finite(landmarks.get(key)) for key in ALL_LANDMARKS},
+            "rms_log_error": quality.rms_log_error if quality is not None else None,
+            "max_abs_log_error": quality.max_abs_log_error if quality is not None else None,
+            "points_used": quality.points_used if quality is not None else None,
+            "points_outside_window": outside,
+            "main_landmark": name,
+            "measured": value,
+            "nominal": spec.nominal,
+            "tolerance": spec.tolerance,
+            "nominal_at_hz": spec.nominal_at_hz if spec.kind == "bead" else None,
+            "deviation": deviation,
+            "result": result,
+            "fit_error": sample.fit_error,
+            "warnings": "; ".join(dict.fromkeys(warnings)),
+        }
+        rows.append(row)
+    return rows
+
+
+@dataclass(frozen=True)
+class LandmarkStats:
+    """Lot statistics of one landmark (SI units). ``std`` uses n − 1 (NaN for n < 2)."""
+
+    n: int
+    mean: float
+    std: float
+    min: float
+    max: float
+
+
+def _stats(values: list[float]) -> LandmarkStats:
+    array = np.asarray(values, dtype=float)
+    std = float(np.std(array, ddof=1)) if array.size >= 2 else math.nan
+    return LandmarkStats(
+        n=int(array.size),
+        mean=float(np.mean(array)),
+        std=std,
+        min=float(np.min(array)),
+        max=float(np.max(array)),
+    )
+
+
+def lot_statistics(summary: RunSummary) -> dict[str, dict[float, dict[str, LandmarkStats]]]:
+    """Per part and bias point, statistics of each landmark over the fitted samples.
+
+    Returns ``{part: {bias_v: {landmark: LandmarkStats}}}``. Landmarks are those of
+    the fits, plus ``z_at_nominal_hz`` for beads with a nominal frequency. Samples
+    without a fit, and non-finite values, are left out of the statistics.
+    """
+    values: dict[str, dict[float, dict[str, list[float]]]] = {}
+    for sample in summary.samples:
+        spec = summary.part(sample.part)
+        if sample.fit is None:
+            continue
+        bucket = values.setdefault(sample.part, {}).setdefault(float(sample.bias_v), {})
+        for key, value in sample.fit.landmarks.items():
+            finite = _finite(value)
+            if finite is not None:
+                bucket.setdefault(key, []).append(finite)
+        if spec.kind == "bead" and spec.nominal_at_hz:
+            name, main = main_landmark(spec, sample)
+            if main is not None:
+                bucket.setdefault(name, []).append(main)
+    return {
+        part: {
+            bias: {key: _stats(vals) for key, vals in sorted(landmarks.items())}
+            for bias, landmarks in sorted(by_bias.items())
+        }
+        for part, by_bias in values.items()
+    }
+
+
+@dataclass(frozen=True)
+class BiasPoint:
+    """Capacitance of one sample at one DC bias (V, F); ``change`` is the fraction
+    relative to the same sample at its lowest measured bias."""
+
+    sample: str
+    bias_v: float
+    c_low: float
+    change: float
+
+
+def bias_table(summary: RunSummary) -> dict[str, tuple[BiasPoint, ...]]:
+    """Capacitance versus DC bias for every capacitor part measured at several bias points.
+
+    Returns ``{part: (BiasPoint, ...)}`` sorted by sample, then bias; parts with a single
+    bias point are left out. Samples without a fitted ``c_low`` are skipped.
+    """
+    by_part: dict[str, dict[str, dict[float, float]]] = {}
+    for sample in summary.samples:
+        spec = summary.part(sample.part)
+        if spec.kind not in CAPACITOR_KINDS or sample.fit is None:
+            continue
+        c_low = _finite(sample.fit.landmarks.get("c_low"))
+        if c_low is None:
+            continue
+        by_part.setdefault(sample.part, {}).setdefault(sample.sample, {})[float(sample.bias_v)] = (
+            c_low
+        )
+    table: dict[str, tuple[BiasPoint, ...]] = {}
+    for part, samples in by_part.items():
+        biases = {bias for points in samples.values() for bias in points}
+        if len(biases) < 2:
+            continue
+        points = []
+        for sample_name in sorted(samples):
+            curve = samples[sample_name]
+            reference = curve[min(curve)]
+            for bias in sorted(curve):
+                points.append(
+                    BiasPoint(sample_name, bias, curve[bias], curve[bias] / reference - 1.0)
+                )
+        table[part] = tuple(points)
+    return table
+
+
+def typical_sample(summary: RunSummary, part: str) -> SampleResult | None:
+    """The sample of ``part`` whose main landmark is the median of the lot.
+
+    Only fitted samples at the part's lowest bias point take part. With an even count
+    the lower of the two middle samples is taken (a real sample, not an average);
+    ties keep the order of the run. None when no sample of the part has a value.
+    """
+    spec = summary.part(part)
+    candidates = [s for s in summary.samples if s.part == part and s.fit is not None]
+    if not candidates:
+        return None
+    lowest = min(s.bias_v for s in candidates)
+    valued = []
+    for sample in candidates:
+        if sample.bias_v != lowest:
+            continue
+        _, value = main_landmark(spec, sample)
+        if value is not None:
+            valued.append((value, sample))
+    if not valued:
+        return None
+    valued.sort(key=lambda item: item[0])
+    return valued[(len(valued) - 1) // 2][1]
+
+
+# --------------------------------------------------------------------------- writing
+
+
+def _cell(value: Any) -> str:
+    if value is None:
+        return ""
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, float):
+        return "" if not math.isfinite(value) else f"{value:.6g}"
+    return str(value)
+
+
+def _csv_text(columns: tuple[str, ...] | list[str], rows: list[dict[str, Any]]) -> str:
+    buffer = io.StringIO()
+    writer = csv.writer(buffer, lineterminator="\n")
+    writer.writerow(columns)
+    for row in rows:
+        writer.writerow([_cell(row.get(column)) for column in columns])
+    return buffer.getvalue()
+
+
+def summary_csv_text(summary: RunSummary) -> str:
+    """Text of ``summary.csv``."""
+    return _csv_text(SUMMARY_COLUMNS, summary_rows(summary))
+
+
+def lot_statistics_csv_text(summary: RunSummary) -> str:
+    """Text of ``lot_statistics.csv``: part, bias_v, landmark, unit, n, mean, std, min, max."""
+    rows = []
+    for part, by_bias in lot_statistics(summary).items():
+        for bias, landmarks in by_bias.items():
+            for key, stats in landmarks.items():
+                rows.append(
+                    {
+                        "part": part,
+                        "bias_v": bias,
+                        "landmark": key,
+                        "unit": LANDMARK_UNITS.get(key, ""),
+                        "n": stats.n,
+                        "mean": stats.mean,
+                        "std": stats.std,
+                        "min": stats.min,
+                        "max": stats.max,
+                    }
+                )
+    columns = ("part", "bias_v", "landmark", "unit", "n", "mean", "std", "min", "max")
+    return _csv_text(columns, rows)
+
+
+def bias_csv_text(points: tuple[BiasPoint, ...]) -> str:
+    """Text of ``<part>_bias.csv``: sample, bias_v (V), c_low (F), change (fraction)."""
+    rows = [
+        {"sample": p.sample, "bias_v": p.bias_v, "c_low": p.c_low, "change": p.change}
+        for p in points
+    ]
+    return _csv_text(("sample", "bias_v", "c_low", "change"), rows)
+
+
+def run_date(summary: RunSummary) -> str:
+    """Date of the run for provenance: ``setup['started']`` or ``setup['date']``, else now (UTC)."""
+    for key in ("started", "date"):
+        value = summary.setup.get(key)
+        if value:
+            return str(value)
+    return datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+
+
+def provenance(
+    summary: RunSummary, sample: SampleResult, *, date: str | None = None
+) -> dict[str, str]:
+    """Provenance comments of a sample's subcircuit."""
+    return {
+        "run": summary.run_id,
+        "procedure": summary.procedure_name,
+        "part": sample.part,
+        "sample": sample.sample,
+        "bias": f"{sample.bias_v:g} V",
+        "raw file": sample.raw_file or "(not recorded)",
+        "software": f"zbench {summary.software_version}".strip(),
+        "date": date or run_date(summary),
+    }
+
+
+def _write_touchstone(run_dir: Path, sample: SampleResult) -> list[Path]:
+    from bench.touchstone import write_touchstone_s, write_touchstone_z
+
+    stem = safe_filename(sample.label)
+    comments = [
+        f"zbench: {sample.part} sample {sample.sample}, bias {sample.bias_v:g} V",
+        "fixture-removed impedance (ohm)",
+    ]
+    paths = [
+        Path(
+            write_touchstone_z(
+                run_dir / "corrected" / f"{stem}.z1p", sample.data.f, sample.data.z, comments
+            )
+        )
+    ]
+    if sample.corrected_s is not None:
+        comments[1] = "calibrated S-parameters"
+        s = np.asarray(sample.corrected_s, dtype=complex)
+        paths.append(
+            Path(
+                write_touchstone_s(
+                    run_dir / "corrected" / f"{stem}.s2p", sample.data.f, s, comments=comments
+                )
+            )
+        )
+    return paths
+
+
+def write_exports(run_dir: Path, summary: RunSummary) -> dict[str, list[Path]]:
+    """Write every export of a run into ``run_dir`` (see the module notes).
+
+    Returns the paths written by category: ``spice`` (per-sample ``.sub``), ``library``
+    (per-part ``.lib``), ``touchstone``, ``summary``, ``lot``, ``bias``. Samples whose fit
+    failed get Touchstone files and a summary row, but no subcircuit.
+    """
+    from bench.core.spice import library_text, subckt_text
+
+    run_dir = Path(run_dir)
+    written: dict[str, list[Path]] = {
+        key: [] for key in ("spice", "library", "touchstone", "summary", "lot", "bias")
+    }
+    date = run_date(summary)
+    texts: dict[str, list[str]] = {}
+    for sample in summary.samples:
+        written["touchstone"].extend(_write_touchstone(run_dir, sample))
+        if sample.fit is None:
+            continue
+        text = subckt_text(
+            sample.fit, sample_spice_name(sample), provenance=provenance(summary, sample, date=date)
+        )
+        path = run_dir / "models" / f"{safe_filename(sample.label)}.sub"
+        atomic_write_text(path, text)
+        written["spice"].append(path)
+        texts.setdefault(sample.part, []).append(text)
+    for spec in summary.parts:
+        subckts = texts.get(spec.name)
+        if not subckts:
+            continue
+        typical = typical_sample(summary, spec.name)
+        if typical is not None:
+            origin = provenance(summary, typical, date=date)
+            origin["typical of"] = (
+                f"median sample by {main_landmark(spec, typical)[0]}: {typical.label}"
+            )
+            subckts = [
+                *subckts,
+                subckt_text(typical.fit, typical_spice_name(spec.name), provenance=origin),
+            ]
+        title = f"{spec.name}: {spec.description or spec.kind}, run {summary.run_id}"
+        path = run_dir / "models" / f"{safe_filename(spec.name)}.lib"
+        atomic_write_text(path, library_text(subckts, title=title))
+        written["library"].append(path)
+    for part, points in bias_table(summary).items():
+        path = run_dir / "models" / f"{safe_filename(part)}_bias.csv"
+        atomic_write_text(path, bias_csv_text(points))
+        written["bias"].append(path)
+    path = run_dir / "summary.csv"
+    atomic_write_text(path, summary_csv_text(summary))
+    written["summary"].append(path)
+    path = run_dir / "lot_statistics.csv"
+    atomic_write_text(path, lot_statistics_csv_text(summary))
+    written["lot"].append(path)
+    return written

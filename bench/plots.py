@@ -1,0 +1,368 @@
+"""Figures of a measurement and its fit, readable in print.
+
+Every function builds a :class:`matplotlib.figure.Figure` directly (no pyplot, no global
+state, Agg rendering) and returns it; :func:`save_png` writes one atomically and
+:func:`png_bytes` renders one in memory for embedding in the report.
+
+The style is our own and neutral: dark, print-safe colours, and every series also has
+its own line style or marker so the figures read the same in grey-scale. Frequencies
+are in Hz and impedances in Ω, labelled with SI prefixes (``10 kHz``, ``1 mΩ``).
+
+Inputs are duck-typed on the contracts of :mod:`bench.core`: ``data`` is an
+``ImpedanceData`` (``f``, ``z``, ``rel_uncertainty``, ``inside_window``, ``window``
+with ``z_min``/``z_max`` in Ω) and ``fit`` a ``FitResult`` (``model``, ``landmarks``,
+``quality``, ``impedance(f)``).
+"""
+
+from __future__ import annotations
+
+import io
+import math
+import os
+from collections.abc import Iterable, Mapping, Sequence
+from typing import Any
+
+import matplotlib
+import numpy as np
+from matplotlib.axes import Axes
+from matplotlib.figure import Figure
+from matplotlib.ticker import EngFormatter, LogLocator, NullFormatter
+
+from bench.files import atomic_write_bytes
+from bench.units import format_si
+
+# Print-safe colours (dark enough on white, distinct in grey-scale together with the
+# line styles and markers below). Our own choice, not a library theme.
+COLOURS = ("#1b1b1b", "#2f5d8a", "#a0522d", "#3d7a3d", "#6a3d7a", "#7a6a1f", "#555555")
+LINESTYLES = ("-", "--", "-.", ":", (0, (5, 1, 1, 1, 1, 1)), (0, (1, 1)), (0, (8, 2)))
+MARKERS = ("o", "s", "^", "D", "v", "P", "X")
+
+MEASURED_COLOUR = "#1b1b1b"
+MODEL_COLOUR = "#b03a2e"
+OUTSIDE_COLOUR = "#b03a2e"
+WINDOW_FACE = "#9bb7d4"
+
+STYLE: dict[str, Any] = {
+    "font.size": 9.0,
+    "axes.titlesize": 10.0,
+    "axes.labelsize": 9.0,
+    "legend.fontsize": 8.0,
+    "xtick.labelsize": 8.0,
+    "ytick.labelsize": 8.0,
+    "axes.grid": True,
+    "axes.grid.which": "both",
+    "grid.color": "#c8c8c8",
+    "grid.linewidth": 0.5,
+    "axes.edgecolor": "#333333",
+    "axes.linewidth": 0.8,
+    "lines.linewidth": 1.3,
+    "legend.frameon": True,
+    "legend.framealpha": 0.9,
+    "legend.edgecolor": "#999999",
+}
+
+DPI = 110
+
+
+def series_style(index: int) -> dict[str, Any]:
+    """Colour, line style and marker of the ``index``-th series of an overlay."""
+    return {
+        "color": COLOURS[index % len(COLOURS)],
+        "linestyle": LINESTYLES[index % len(LINESTYLES)],
+        "marker": MARKERS[index % len(MARKERS)],
+    }
+
+
+def _new_figure(rows: int, *, height: float, width: float = 7.0) -> tuple[Figure, list[Axes]]:
+    with matplotlib.rc_context(STYLE):
+        fig = Figure(figsize=(width, height), layout="constrained")
+        axes = fig.subplots(rows, 1, sharex=True, squeeze=False)[:, 0]
+    return fig, list(axes)
+
+
+def _log_axes(ax: Axes, *, x_unit: str = "Hz", y_unit: str | None = "Ω") -> None:
+    ax.set_xscale("log")
+    ax.xaxis.set_major_formatter(EngFormatter(unit=x_unit, sep=" "))
+    ax.xaxis.set_minor_formatter(NullFormatter())
+    if y_unit is not None:
+        ax.set_yscale("log")
+        ax.yaxis.set_major_formatter(EngFormatter(unit=y_unit, sep=" "))
+        ax.yaxis.set_minor_formatter(NullFormatter())
+    ax.grid(True, which="major", color="#b4b4b4", linewidth=0.6)
+    ax.grid(True, which="minor", color="#e2e2e2", linewidth=0.4)
+
+
+def _label_short_log_range(ax: Axes, unit: str) -> None:
+    """Label 2 and 5 between decades when the y range spans less than two decades.
+
+    With only decade labels a narrow range (an ESR that barely changes) would show no
+    number at all.
+    """
+    lo, hi = ax.get_ylim()
+    if lo <= 0 or hi <= 0 or math.log10(hi / lo) >= 2.0:
+        return
+    ax.yaxis.set_minor_locator(LogLocator(base=10.0, subs=(2.0, 5.0)))
+    ax.yaxis.set_minor_formatter(EngFormatter(unit=unit, sep=" "))
+
+
+def _positive(values: np.ndarray) -> np.ndarray:
+    """Values with the non-positive ones masked (a log axis cannot show them)."""
+    out = np.asarray(values, dtype=float).copy()
+    out[~(out > 0)] = np.nan
+    return out
+
+
+def _window_bounds(data: Any) -> tuple[np.ndarray, np.ndarray] | None:
+    window = getattr(data, "window", None)
+    if window is None:
+        return None
+    z_min = getattr(window, "z_min", None)
+    z_max = getattr(window, "z_max", None)
+    if z_min is None or z_max is None:
+        return None
+    f = np.asarray(data.f, dtype=float)
+    lo = np.broadcast_to(np.asarray(z_min, dtype=float), f.shape)
+    hi = np.broadcast_to(np.asarray(z_max, dtype=float), f.shape)
+    return lo, hi
+
+
+def _outside_mask(data: Any) -> np.ndarray:
+    inside = getattr(data, "inside_window", None)
+    if inside is None:
+        return np.zeros(np.shape(data.f), dtype=bool)
+    return ~np.asarray(inside, dtype=bool)
+
+
+def _landmark_lines(ax: Axes, fit: Any) -> None:
+    """A thin vertical line at the resonance, the landmark an engineer looks for first."""
+    srf = (getattr(fit, "landmarks", None) or {}).get("srf")
+    if srf is None or not math.isfinite(srf) or srf <= 0:
+        return
+    ax.axvline(srf, color="#666666", linewidth=0.8, linestyle=(0, (2, 2)), zorder=1)
+    ax.annotate(
+        f"SRF {format_si(srf, 'Hz', 4)}",
+        xy=(srf, 1.0),
+        xycoords=("data", "axes fraction"),
+        xytext=(3, -3),
+        textcoords="offset points",
+        ha="left",
+        va="top",
+        fontsize=7.5,
+        color="#444444",
+    )
+
+
+def impedance_figure(data: Any, fit: Any = None, *, title: str = "") -> Figure:
+    """|Z| and ESR (Re Z) versus frequency, log-log, with the model and the window.
+
+    The measurable window (``data.window.z_min`` … ``z_max``, Ω) is shaded on the |Z|
+    panel; points outside it are marked with crosses on both panels. Non-positive
+    Re Z (noise around a near-lossless point) cannot be shown on a log axis and is left
+    out of the ESR panel.
+    """
+    f = np.asarray(data.f, dtype=float)
+    z = np.asarray(data.z, dtype=complex)
+    outside = _outside_mask(data)
+    fig, (ax_mag, ax_esr) = _new_figure(2, height=5.6)
+    with matplotlib.rc_context(STYLE):
+        bounds = _window_bounds(data)
+        if bounds is not None:
+            lo, hi = bounds
+            ax_mag.fill_between(
+                f, lo, hi, color=WINDOW_FACE, alpha=0.22, linewidth=0, label="measurable window"
+            )
+            ax_mag.plot(f, lo, color="#5a7fa6", linewidth=0.7, linestyle=":")
+            ax_mag.plot(f, hi, color="#5a7fa6", linewidth=0.7, linestyle=":")
+        ax_mag.plot(f, _positive(np.abs(z)), color=MEASURED_COLOUR, label="measured")
+        ax_esr.plot(f, _positive(z.real), color=MEASURED_COLOUR, label="measured Re Z")
+        if fit is not None:
+            zm = np.asarray(fit.impedance(f), dtype=complex)
+            label = f"model ({fit.model})"
+            ax_mag.plot(f, np.abs(zm), color=MODEL_COLOUR, linestyle="--", label=label)
+            ax_esr.plot(f, _positive(zm.real), color=MODEL_COLOUR, linestyle="--", label=label)
+            _landmark_lines(ax_mag, fit)
+            _landmark_lines(ax_esr, fit)
+        if outside.any():
+            marker = {
+                "linestyle": "none",
+                "marker": "x",
+                "markersize": 4,
+                "color": OUTSIDE_COLOUR,
+                "markeredgewidth": 0.9,
+            }
+            count = int(outside.sum())
+            ax_mag.plot(
+                f[outside],
+                _positive(np.abs(z[outside])),
+                label=f"outside window ({count})",
+                **marker,
+            )
+            ax_esr.plot(f[outside], _positive(z.real[outside]), **marker)
+        _log_axes(ax_mag)
+        _log_axes(ax_esr)
+        _label_short_log_range(ax_mag, "Ω")
+        _label_short_log_range(ax_esr, "Ω")
+        ax_mag.set_ylabel("|Z|")
+        ax_esr.set_ylabel("ESR = Re Z")
+        ax_esr.set_xlabel("frequency")
+        ax_mag.legend(loc="best")
+        ax_esr.legend(loc="best")
+        if title:
+            ax_mag.set_title(title)
+    return fig
+
+
+def residuals_figure(data: Any, fit: Any, *, title: str = "") -> Figure:
+    """Complex-log error of the model against the measurement, versus frequency.
+
+    ln Z_model − ln Z_measured is split into its real part (magnitude error, shown as
+    a percentage: 100·Re) and its imaginary part (phase error, degrees). The measured
+    per-point uncertainty (one sigma, ``data.rel_uncertainty``) is shaded as a band
+    so a reader sees where the model sits within what the bench can resolve.
+    """
+    f = np.asarray(data.f, dtype=float)
+    z = np.asarray(data.z, dtype=complex)
+    zm = np.asarray(fit.impedance(f), dtype=complex)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        delta = np.log(zm) - np.log(z)
+    mag_pct = 100.0 * delta.real
+    # Wrap the phase difference into (−180°, 180°] so a branch cut never shows as a jump.
+    phase_deg = np.degrees(np.angle(np.exp(1j * delta.imag)))
+    outside = _outside_mask(data)
+    fig, (ax_mag, ax_ph) = _new_figure(2, height=4.2)
+    with matplotlib.rc_context(STYLE):
+        rel = getattr(data, "rel_uncertainty", None)
+        if rel is not None:
+            band = 100.0 * np.clip(np.asarray(rel, dtype=float), 0, 10.0)
+            ax_mag.fill_between(
+                f, -band, band, color=WINDOW_FACE, alpha=0.3, linewidth=0, label="±1σ measurement"
+            )
+            band_deg = np.degrees(np.clip(np.asarray(rel, dtype=float), 0, math.pi))
+            ax_ph.fill_between(
+                f, -band_deg, band_deg, color=WINDOW_FACE, alpha=0.3, linewidth=0, label="±1σ"
+            )
+        inside = ~outside
+        ax_mag.plot(
+            f, np.where(inside, mag_pct, np.nan), color=MEASURED_COLOUR, label="model − measured"
+        )
+        ax_ph.plot(
+            f, np.where(inside, phase_deg, np.nan), color=MEASURED_COLOUR, label="model − measured"
+        )
+        if outside.any():
+            marker = {
+                "linestyle": "none",
+                "marker": "x",
+                "markersize": 3.5,
+                "color": OUTSIDE_COLOUR,
+            }
+            ax_mag.plot(f[outside], mag_pct[outside], label="outside window", **marker)
+            ax_ph.plot(f[outside], phase_deg[outside], **marker)
+        for ax in (ax_mag, ax_ph):
+            _log_axes(ax, y_unit=None)
+            ax.axhline(0.0, color="#666666", linewidth=0.7)
+        # Keep the scale on the points that count: outside points may be far off.
+        _limit_to(ax_mag, mag_pct[inside])
+        _limit_to(ax_ph, phase_deg[inside])
+        ax_mag.set_ylabel("magnitude error (%)")
+        ax_ph.set_ylabel("phase error (°)")
+        ax_ph.set_xlabel("frequency")
+        ax_mag.legend(loc="best")
+        quality = getattr(fit, "quality", None)
+        rms = getattr(quality, "rms_log_error", None)
+        heading = title or "fit residuals"
+        if rms is not None:
+            heading = f"{heading}   (RMS complex-log error {rms:.3g})"
+        ax_mag.set_title(heading)
+    return fig
+
+
+def _limit_to(ax: Axes, values: np.ndarray) -> None:
+    finite = values[np.isfinite(values)]
+    if finite.size == 0:
+        return
+    span = float(np.max(np.abs(finite)))
+    span = max(span * 1.15, 1e-3)
+    current = ax.get_ylim()
+    ax.set_ylim(max(current[0], -span), min(current[1], span))
+
+
+def bias_figure(
+    part: str,
+    curves: Mapping[str, tuple[Sequence[float], Sequence[float]]],
+    *,
+    nominal: float | None = None,
+) -> Figure:
+    """Capacitance versus DC bias for the samples of one part.
+
+    ``curves`` maps a sample name to ``(bias_v, c_farad)``. The upper panel shows the
+    capacitance (F, SI prefixes), the lower the change from the sample's lowest bias
+    point in percent. ``nominal`` (F), when given, is drawn as a reference line.
+    """
+    fig, (ax_c, ax_pct) = _new_figure(2, height=4.6, width=6.0)
+    with matplotlib.rc_context(STYLE):
+        for index, (sample, (bias, cap)) in enumerate(curves.items()):
+            bias_a = np.asarray(bias, dtype=float)
+            cap_a = np.asarray(cap, dtype=float)
+            order = np.argsort(bias_a)
+            bias_a, cap_a = bias_a[order], cap_a[order]
+            style = series_style(index)
+            ax_c.plot(bias_a, cap_a, label=sample, markersize=4.5, **style)
+            if cap_a.size and cap_a[0] > 0:
+                ax_pct.plot(bias_a, 100.0 * (cap_a / cap_a[0] - 1.0), markersize=4.5, **style)
+        if nominal:
+            ax_c.axhline(nominal, color="#666666", linewidth=0.8, linestyle=":", label="nominal")
+        ax_c.yaxis.set_major_formatter(EngFormatter(unit="F", sep=" "))
+        ax_pct.xaxis.set_major_formatter(EngFormatter(unit="V", sep=" "))
+        ax_pct.axhline(0.0, color="#666666", linewidth=0.7)
+        ax_c.set_ylabel("capacitance (c_low)")
+        ax_pct.set_ylabel("change from lowest bias (%)")
+        ax_pct.set_xlabel("DC bias")
+        ax_c.set_title(f"{part}: capacitance versus DC bias")
+        ax_c.legend(loc="best")
+    return fig
+
+
+def lot_figure(part: str, samples: Iterable[Any], *, with_models: bool = False) -> Figure:
+    """|Z| and ESR of every sample of a part overlaid (``samples``: ``SampleResult``).
+
+    Each sample has its own colour, line style and marker (markers every few points so
+    the curves stay readable). With ``with_models`` the fitted models are drawn thin.
+    """
+    fig, (ax_mag, ax_esr) = _new_figure(2, height=5.6)
+    with matplotlib.rc_context(STYLE):
+        for index, sample in enumerate(samples):
+            f = np.asarray(sample.data.f, dtype=float)
+            z = np.asarray(sample.data.z, dtype=complex)
+            style = series_style(index)
+            every = max(1, f.size // 12)
+            label = sample.sample + (f" @ {sample.bias_v:g} V" if sample.bias_v else "")
+            kwargs = {"markevery": (index % every, every), "markersize": 4, **style}
+            ax_mag.plot(f, _positive(np.abs(z)), label=label, **kwargs)
+            ax_esr.plot(f, _positive(z.real), label=label, **kwargs)
+            if with_models and sample.fit is not None:
+                zm = np.asarray(sample.fit.impedance(f), dtype=complex)
+                ax_mag.plot(f, np.abs(zm), color=style["color"], linewidth=0.6, linestyle="-")
+        _log_axes(ax_mag)
+        _log_axes(ax_esr)
+        _label_short_log_range(ax_mag, "Ω")
+        _label_short_log_range(ax_esr, "Ω")
+        ax_mag.set_ylabel("|Z|")
+        ax_esr.set_ylabel("ESR = Re Z")
+        ax_esr.set_xlabel("frequency")
+        ax_mag.set_title(f"{part}: all samples")
+        ax_mag.legend(loc="best", ncol=2)
+    return fig
+
+
+def png_bytes(fig: Figure, *, dpi: int = DPI) -> bytes:
+    """Render ``fig`` to PNG bytes with the Agg renderer."""
+    buffer = io.BytesIO()
+    fig.savefig(buffer, format="png", dpi=dpi, facecolor="white")
+    return buffer.getvalue()
+
+
+def save_png(fig: Figure, path: str | os.PathLike[str], *, dpi: int = DPI) -> bytes:
+    """Write ``fig`` to ``path`` as PNG atomically; returns the bytes written."""
+    data = png_bytes(fig, dpi=dpi)
+    atomic_write_bytes(path, data)
+    return data

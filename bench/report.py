@@ -1,0 +1,534 @@
+"""The run report: one self-contained, printable ``report.html``.
+
+:func:`write_report` writes ``report.html`` into the run folder with every figure
+embedded as a base64 PNG (the same figures are also saved under ``plots/``), so the
+file can be mailed or archived on its own. Contents, in order: the results at a glance,
+the set-up and calibration, the ground-loop check, the measurable window and the points
+outside it, then per part its lot (overlay, statistics, capacitance versus bias) and per
+sample the |Z|/ESR figure with the model and window, the residuals, landmarks and
+elements with their uncertainties, the verdict against tolerance, and the SPICE text.
+
+Every piece of text that comes from a procedure, a file or an instrument is escaped.
+"""
+
+from __future__ import annotations
+
+import base64
+import html
+import math
+from collections.abc import Iterable, Mapping
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from bench import exports, plots
+from bench.files import atomic_write_text
+from bench.results import PartSpec, RunSummary, SampleResult
+from bench.units import format_si
+
+CSS = """
+:root { --ink: #1b1b1b; --muted: #5a5a5a; --rule: #c9c9c9; --band: #f3f4f6; }
+* { box-sizing: border-box; }
+body { font-family: "DejaVu Sans", "Helvetica Neue", Arial, sans-serif; color: var(--ink);
+       max-width: 62rem; margin: 1.5rem auto; padding: 0 1.2rem; line-height: 1.4;
+       font-size: 10.5pt; }
+h1 { font-size: 1.55rem; margin: 0 0 .2rem; }
+h2 { font-size: 1.2rem; border-bottom: 2px solid var(--ink); padding-bottom: .15rem;
+     margin-top: 2.2rem; }
+h3 { font-size: 1.05rem; margin: 1.6rem 0 .4rem; border-bottom: 1px solid var(--rule); }
+h4 { font-size: .95rem; margin: 1rem 0 .3rem; }
+p.meta { color: var(--muted); margin: 0 0 1rem; }
+table { border-collapse: collapse; margin: .4rem 0 .9rem; font-size: .9rem; }
+th, td { border: 1px solid var(--rule); padding: .18rem .5rem; text-align: left;
+         vertical-align: top; }
+th { background: var(--band); font-weight: 600; }
+td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
+table.kv th { width: 14rem; }
+.verdict-pass { font-weight: 700; }
+.verdict-fail { font-weight: 700; text-decoration: underline; }
+.verdict-pass::before { content: "\\2713\\00a0"; }
+.verdict-fail::before { content: "\\2717\\00a0"; }
+figure { margin: .6rem 0 1rem; page-break-inside: avoid; break-inside: avoid; }
+figure img { max-width: 100%; border: 1px solid var(--rule); }
+figcaption { color: var(--muted); font-size: .85rem; }
+pre { background: var(--band); border: 1px solid var(--rule); padding: .5rem .7rem;
+      font-size: .78rem; overflow-x: auto; white-space: pre; }
+div.pair { display: flex; gap: 2rem; flex-wrap: wrap; }
+ul.warnings { margin: .3rem 0 .8rem; padding-left: 1.2rem; }
+ul.warnings li { margin: .1rem 0; }
+.note { color: var(--muted); font-size: .88rem; }
+section.sample { page-break-inside: auto; }
+@media print {
+  body { max-width: none; margin: 0; font-size: 9.5pt; }
+  h2 { page-break-before: auto; page-break-after: avoid; }
+  h3, h4 { page-break-after: avoid; }
+  pre { white-space: pre-wrap; }
+  a { color: inherit; text-decoration: none; }
+}
+"""
+
+_UNIT_SUFFIXES = {
+    "_hz": "Hz",
+    "_ohm": "Ω",
+    "_ohms": "Ω",
+    "_v": "V",
+    "_a": "A",
+    "_f": "F",
+    "_h": "H",
+    "_db": "dB",
+    "_dbm": "dBm",
+    "_s": "s",
+}
+
+
+def esc(value: Any) -> str:
+    """HTML-escaped text of ``value`` (quotes included)."""
+    return html.escape(str(value), quote=True)
+
+
+def _duration(seconds: float) -> str:
+    seconds = float(seconds)
+    if seconds < 120:
+        return f"{seconds:.0f} s"
+    minutes = seconds / 60
+    if minutes < 120:
+        return f"{minutes:.0f} min"
+    hours = minutes / 60
+    if hours < 48:
+        return f"{hours:.1f} h"
+    return f"{hours / 24:.1f} days"
+
+
+def _value_text(key: str, value: Any) -> str:
+    """Readable text of a set-up value; a key suffix such as ``_hz`` or ``_ohm`` sets the unit."""
+    if value is None:
+        return "—"
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    lower = key.lower()
+    if isinstance(value, (int, float)):
+        if "age" in lower and lower.endswith("_s"):
+            return _duration(value)
+        for suffix, unit in _UNIT_SUFFIXES.items():
+            if lower.endswith(suffix):
+                if unit in ("dB", "dBm"):
+                    return f"{value:g} {unit}"
+                return format_si(float(value), unit)
+        return f"{value:.6g}" if isinstance(value, float) else str(value)
+    if isinstance(value, (list, tuple)):
+        return ", ".join(_value_text(key, item) for item in value)
+    return str(value)
+
+
+def _label(key: str) -> str:
+    text = str(key)
+    for suffix in _UNIT_SUFFIXES:
+        if text.lower().endswith(suffix) and len(text) > len(suffix):
+            text = text[: -len(suffix)]
+            break
+    return text.replace("_", " ")
+
+
+def _kv_table(mapping: Mapping[str, Any]) -> str:
+    """A key/value table; nested mappings become nested tables."""
+    if not mapping:
+        return '<p class="note">Not recorded.</p>'
+    rows = []
+    for key, value in mapping.items():
+        is_table = isinstance(value, Mapping)
+        cell = _kv_table(value) if is_table else esc(_value_text(str(key), value))
+        rows.append(f"<tr><th>{esc(_label(key))}</th><td>{cell}</td></tr>")
+    return '<table class="kv">' + "".join(rows) + "</table>"
+
+
+def _table(
+    headers: Iterable[str], rows: Iterable[Iterable[str]], numeric: set[int] | None = None
+) -> str:
+    numeric = numeric or set()
+    head = "".join(f"<th>{esc(h)}</th>" for h in headers)
+    body = []
+    for row in rows:
+        cells = []
+        for index, cell in enumerate(row):
+            cls = ' class="num"' if index in numeric else ""
+            cells.append(f"<td{cls}>{cell}</td>")
+        body.append("<tr>" + "".join(cells) + "</tr>")
+    return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
+
+
+def _si(value: float | None, unit: str, digits: int = 4) -> str:
+    if value is None or not math.isfinite(value):
+        return "—"
+    return esc(format_si(value, unit, digits))
+
+
+def _verdict_html(result: str) -> str:
+    if not result:
+        return '<span class="note">no tolerance given</span>'
+    return f'<span class="verdict-{esc(result)}">{esc(result.upper())}</span>'
+
+
+def _percent(value: float | None) -> str:
+    if value is None or not math.isfinite(value):
+        return "—"
+    return f"{100 * value:+.2f} %"
+
+
+class _Figures:
+    """Saves each figure under ``plots/`` and returns its embedded ``<figure>``."""
+
+    def __init__(self, run_dir: Path):
+        self.folder = run_dir / "plots"
+        self.paths: list[Path] = []
+
+    def embed(self, fig: Any, name: str, caption: str) -> str:
+        path = self.folder / f"{exports.safe_filename(name)}.png"
+        data = plots.save_png(fig, path)
+        self.paths.append(path)
+        encoded = base64.b64encode(data).decode("ascii")
+        return (
+            f'<figure><img alt="{esc(caption)}" src="data:image/png;base64,{encoded}">'
+            f"<figcaption>{esc(caption)}</figcaption></figure>"
+        )
+
+
+def _outside_ranges(f: np.ndarray, outside: np.ndarray) -> list[tuple[float, float, int]]:
+    """Contiguous frequency ranges of points outside the window: (f_first, f_last, count)."""
+    ranges = []
+    start = None
+    for index, flag in enumerate(outside):
+        if flag and start is None:
+            start = index
+        if (not flag or index == len(outside) - 1) and start is not None:
+            end = index if flag else index - 1
+            ranges.append((float(f[start]), float(f[end]), end - start + 1))
+            start = None
+    return ranges
+
+
+def _window_section(summary: RunSummary) -> str:
+    rows = []
+    for sample in summary.samples:
+        data = sample.data
+        window = getattr(data, "window", None)
+        z_min = getattr(window, "z_min", None)
+        z_max = getattr(window, "z_max", None)
+        outside = ~np.asarray(data.inside_window, dtype=bool)
+        ranges = _outside_ranges(np.asarray(data.f, dtype=float), outside)
+        where = "; ".join(
+            f"{format_si(lo, 'Hz', 3)} – {format_si(hi, 'Hz', 3)} ({n})" for lo, hi, n in ranges
+        )
+        rows.append(
+            [
+                esc(sample.label),
+                _si(_scalar(z_min), "Ω", 3),
+                _si(_scalar(z_max), "Ω", 3),
+                str(int(outside.sum())),
+                str(int(outside.size)),
+                esc(where) if where else "none",
+            ]
+        )
+    return (
+        "<h2>Measurable window</h2>"
+        '<p class="note">The impedance range the set-up resolves to its tolerance, from the '
+        "noise floor (low end) and S21 approaching 1 (high end). Points outside it are "
+        "weighted down or dropped in the fit and marked in the figures.</p>"
+        + _table(
+            ["sample", "lowest |Z|", "highest |Z|", "points outside", "points", "where (count)"],
+            rows,
+            numeric={1, 2, 3, 4},
+        )
+    )
+
+
+def _scalar(value: Any) -> float | None:
+    """A window limit as one number (the tightest value when it varies with frequency)."""
+    if value is None:
+        return None
+    array = np.asarray(value, dtype=float)
+    return float(array) if array.ndim == 0 else None
+
+
+def _glance_section(summary: RunSummary) -> str:
+    rows = []
+    for row in exports.summary_rows(summary):
+        unit = exports.LANDMARK_UNITS.get(row["main_landmark"], "")
+        rows.append(
+            [
+                esc(row["part"]),
+                esc(row["sample"]),
+                esc(f"{row['bias_v']:g} V"),
+                esc(row["model"] or "no fit"),
+                esc(row["main_landmark"]),
+                _si(row["measured"], unit),
+                _si(row["nominal"], unit),
+                _percent(row["deviation"]),
+                _verdict_html(row["result"]),
+                "—" if row["rms_log_error"] is None else f"{row['rms_log_error']:.3g}",
+                str(row["points_outside_window"]),
+            ]
+        )
+    return "<h2>Results at a glance</h2>" + _table(
+        [
+            "part",
+            "sample",
+            "bias",
+            "model",
+            "main landmark",
+            "measured",
+            "nominal",
+            "deviation",
+            "verdict",
+            "RMS log error",
+            "outside window",
+        ],
+        rows,
+        numeric={5, 6, 7, 9, 10},
+    )
+
+
+def _landmark_table(sample: SampleResult) -> str:
+    fit = sample.fit
+    sigma = dict(getattr(fit, "uncertainties", {}) or {})
+    rows = []
+    for key, value in fit.landmarks.items():
+        unit = exports.LANDMARK_UNITS.get(key, "")
+        rows.append([esc(key), _si(value, unit), _si(sigma.get(key), unit, 2)])
+    landmarks = _table(["landmark", "value", "±1σ"], rows, numeric={1, 2})
+    rows = []
+    for key, value in fit.elements.items():
+        unit = _element_unit(key)
+        error = sigma.get(key)
+        relative = (
+            f"{100 * error / value:.2g} %"
+            if error is not None and value and math.isfinite(error)
+            else "—"
+        )
+        rows.append([esc(key), _si(value, unit), _si(error, unit, 2), esc(relative)])
+    elements = _table(["element", "value", "±1σ", "±1σ (relative)"], rows, numeric={1, 2, 3})
+    return (
+        '<div class="pair">'
+        f"<div><h4>Landmarks</h4>{landmarks}</div>"
+        f"<div><h4>Model elements</h4>{elements}</div></div>"
+    )
+
+
+def _element_unit(name: str) -> str:
+    head = name.lstrip("_")[:1].upper()
+    return {"R": "Ω", "L": "H", "C": "F"}.get(head, "")
+
+
+def _quality_text(fit: Any) -> str:
+    q = fit.quality
+    return (
+        f"RMS complex-log error {q.rms_log_error:.3g}, largest {q.max_abs_log_error:.3g}, "
+        f"{q.points_used} points used, {q.points_outside_window} outside the window"
+    )
+
+
+def _warnings_list(items: Iterable[str]) -> str:
+    items = list(dict.fromkeys(items))
+    if not items:
+        return ""
+    return '<ul class="warnings">' + "".join(f"<li>{esc(w)}</li>" for w in items) + "</ul>"
+
+
+def _sample_section(
+    summary: RunSummary, spec: PartSpec, sample: SampleResult, figs: _Figures
+) -> str:
+    from bench.core.spice import subckt_text
+
+    heading = f"{sample.part} / {sample.sample}" + (
+        f" at {sample.bias_v:g} V" if sample.bias_v else ""
+    )
+    parts = [f'<section class="sample"><h4>{esc(heading)}</h4>']
+    name, value = exports.main_landmark(spec, sample)
+    deviation, result = exports.verdict(spec, value)
+    unit = exports.LANDMARK_UNITS.get(name, "")
+    facts = {
+        "position": sample.position,
+        "raw file": sample.raw_file or "(not recorded)",
+        "model": sample.fit.model if sample.fit is not None else "no fit",
+    }
+    parts.append(_kv_table(facts))
+    if spec.nominal:
+        tol = f" ± {100 * spec.tolerance:g} %" if spec.tolerance is not None else ""
+        parts.append(
+            f"<p>{esc(name)} = {_si(value, unit)} against {_si(spec.nominal, unit)}{esc(tol)}: "
+            f"deviation {_percent(deviation)}, {_verdict_html(result)}</p>"
+        )
+    parts.append(
+        figs.embed(
+            plots.impedance_figure(sample.data, sample.fit, title=heading),
+            f"{sample.label}_impedance",
+            f"{heading}: |Z| and ESR versus frequency; shaded band: measurable window; "
+            "crosses: points outside it; dashed: fitted model.",
+        )
+    )
+    if sample.fit is None:
+        parts.append(
+            f"<p><strong>No model:</strong> {esc(sample.fit_error or 'the fit failed')}</p>"
+        )
+        parts.append(_warnings_list(sample.warnings))
+        parts.append("</section>")
+        return "".join(parts)
+    parts.append(
+        figs.embed(
+            plots.residuals_figure(sample.data, sample.fit, title=heading),
+            f"{sample.label}_residuals",
+            f"{heading}: model minus measurement (complex log) with the ±1σ measurement band.",
+        )
+    )
+    parts.append(f"<p>Fit quality: {esc(_quality_text(sample.fit))}.</p>")
+    parts.append(_landmark_table(sample))
+    parts.append(_warnings_list([*sample.warnings, *sample.fit.warnings]))
+    spice = subckt_text(
+        sample.fit,
+        exports.sample_spice_name(sample),
+        provenance=exports.provenance(summary, sample),
+    )
+    parts.append(f"<h4>SPICE subcircuit</h4><pre>{esc(spice)}</pre></section>")
+    return "".join(parts)
+
+
+def _lot_html(summary: RunSummary, spec: PartSpec, figs: _Figures) -> str:
+    samples = [s for s in summary.samples if s.part == spec.name]
+    out = []
+    lowest = min(s.bias_v for s in samples)
+    overlay = [s for s in samples if s.bias_v == lowest]
+    if len(overlay) > 1:
+        out.append(
+            figs.embed(
+                plots.lot_figure(spec.name, overlay),
+                f"{spec.name}_lot",
+                f"{spec.name}: every sample at {lowest:g} V overlaid.",
+            )
+        )
+    stats = exports.lot_statistics(summary).get(spec.name, {})
+    for bias, landmarks in stats.items():
+        rows = []
+        for key, s in landmarks.items():
+            unit = exports.LANDMARK_UNITS.get(key, "")
+            spread = f"{100 * s.std / s.mean:.2g} %" if s.n >= 2 and s.mean else "—"
+            rows.append(
+                [
+                    esc(key),
+                    str(s.n),
+                    _si(s.mean, unit),
+                    _si(s.std, unit, 3),
+                    esc(spread),
+                    _si(s.min, unit),
+                    _si(s.max, unit),
+                ]
+            )
+        out.append(f"<h4>Lot statistics at {esc(f'{bias:g}')} V</h4>")
+        out.append(
+            _table(
+                ["landmark", "n", "mean", "std (n−1)", "std/mean", "min", "max"],
+                rows,
+                numeric={1, 2, 3, 4, 5, 6},
+            )
+        )
+    points = exports.bias_table(summary).get(spec.name)
+    if points:
+        curves: dict[str, tuple[list[float], list[float]]] = {}
+        for p in points:
+            bias_list, cap_list = curves.setdefault(p.sample, ([], []))
+            bias_list.append(p.bias_v)
+            cap_list.append(p.c_low)
+        out.append("<h4>Capacitance versus DC bias</h4>")
+        out.append(
+            figs.embed(
+                plots.bias_figure(spec.name, curves, nominal=spec.nominal),
+                f"{spec.name}_bias",
+                f"{spec.name}: c_low versus DC bias, and its change from the lowest bias.",
+            )
+        )
+        out.append(
+            _table(
+                ["sample", "bias", "c_low", "change"],
+                [
+                    [esc(p.sample), esc(f"{p.bias_v:g} V"), _si(p.c_low, "F"), _percent(p.change)]
+                    for p in points
+                ],
+                numeric={1, 2, 3},
+            )
+        )
+    return "".join(out)
+
+
+def _part_section(summary: RunSummary, spec: PartSpec, figs: _Figures) -> str:
+    samples = [s for s in summary.samples if s.part == spec.name]
+    facts: dict[str, Any] = {"kind": spec.kind, "description": spec.description or "—"}
+    unit = "Ω" if spec.kind == "bead" else ("F" if spec.kind in exports.CAPACITOR_KINDS else "H")
+    if spec.nominal:
+        facts["nominal"] = format_si(spec.nominal, unit)
+        if spec.kind == "bead" and spec.nominal_at_hz:
+            facts["nominal"] += f" at {format_si(spec.nominal_at_hz, 'Hz')}"
+    facts["tolerance"] = f"± {100 * spec.tolerance:g} %" if spec.tolerance is not None else "—"
+    if spec.rated_voltage:
+        facts["rated voltage"] = format_si(spec.rated_voltage, "V")
+    facts["model requested"] = spec.model
+    facts["samples measured"] = str(len(samples))
+    typical = exports.typical_sample(summary, spec.name) if samples else None
+    if typical is not None:
+        facts["typical model"] = f"{exports.typical_spice_name(spec.name)} = {typical.label}"
+    body = [
+        f'<h2 id="{esc(exports.safe_filename(spec.name))}">Part {esc(spec.name)}</h2>',
+        _kv_table(facts),
+    ]
+    if not samples:
+        body.append('<p class="note">No sample of this part was measured.</p>')
+        return "".join(body)
+    body.append(_lot_html(summary, spec, figs))
+    body.append("<h3>Samples</h3>")
+    body.extend(_sample_section(summary, spec, sample, figs) for sample in samples)
+    return "".join(body)
+
+
+def report_html(summary: RunSummary, run_dir: Path) -> tuple[str, list[Path]]:
+    """HTML text of the report and the PNG files saved under ``run_dir/plots``."""
+    figs = _Figures(Path(run_dir))
+    date = exports.run_date(summary)
+    title = f"zbench report: {summary.procedure_name}"
+    toc = " · ".join(
+        f'<a href="#{esc(exports.safe_filename(spec.name))}">{esc(spec.name)}</a>'
+        for spec in summary.parts
+    )
+    body = [
+        f"<h1>{esc(title)}</h1>",
+        f'<p class="meta">Run {esc(summary.run_id)} · {esc(date)} · '
+        f"zbench {esc(summary.software_version or '?')} · parts: {toc}</p>",
+        _warnings_list(summary.warnings),
+        _glance_section(summary),
+        "<h2>Set-up</h2>",
+        _kv_table(summary.setup),
+        "<h2>Calibration</h2>",
+        _kv_table(summary.calibration),
+        "<h2>Ground-loop check</h2>",
+        '<p class="note">Mount short at low frequency: current returning through the cable '
+        "shields adds their resistance in series with the part.</p>",
+        _kv_table(summary.ground_loop),
+        _window_section(summary),
+    ]
+    body.extend(_part_section(summary, spec, figs) for spec in summary.parts)
+    body.append(
+        '<p class="note">Values in SI units. Uncertainties are one standard deviation from '
+        "the fit's Jacobian and the per-point measurement uncertainty. Verdicts compare the "
+        "main landmark with the procedure's nominal value and tolerance.</p>"
+    )
+    text = (
+        '<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8">'
+        f"<title>{esc(title)}</title><style>{CSS}</style></head><body>\n"
+        + "\n".join(part for part in body if part)
+        + "\n</body></html>\n"
+    )
+    return text, figs.paths
+
+
+def write_report(run_dir: Path, summary: RunSummary) -> Path:
+    """Write ``report.html`` (and its figures under ``plots/``) into ``run_dir``."""
+    run_dir = Path(run_dir)
+    text, _ = report_html(summary, run_dir)
+    return atomic_write_text(run_dir / "report.html", text)
