@@ -1,0 +1,159 @@
+"""Software calibration: random smooth error boxes, embed ideal standards and a DUT with
+scikit-rf, correct, and compare (the method of scikit-rf's own calibration tests)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import skrf
+
+from bench.core.calibration import (
+    CalibrationSettings,
+    RawStandards,
+    calibrate,
+    check_calibration_settings,
+    ideal_standards,
+    settings_differences,
+    solt,
+    through_response,
+)
+from bench.core.conversions import shunt_through_s21, shunt_through_z
+from bench.errors import InputError
+
+F = np.logspace(2, 8.3, 121)
+
+
+def _net(s: np.ndarray) -> skrf.Network:
+    return skrf.Network(frequency=skrf.Frequency.from_f(F, unit="Hz"), s=s, z0=50.0)
+
+
+def _smooth(rng: np.random.Generator, scale: float) -> np.ndarray:
+    # A low-order complex polynomial in log-frequency: smooth like a real cable's terms.
+    x = (np.log10(F) - 2) / 6.3
+    coeffs = scale * (rng.normal(size=3) + 1j * rng.normal(size=3))
+    return coeffs[0] + coeffs[1] * x + coeffs[2] * x**2
+
+
+def _error_box(rng: np.random.Generator, *, mismatch: float = 0.1) -> skrf.Network:
+    delay = rng.uniform(2e-9, 6e-9)
+    tracking = (0.8 + 0.1 * rng.uniform()) * np.exp(-2j * np.pi * F * delay)
+    s = np.empty((F.size, 2, 2), complex)
+    s[:, 0, 0] = _smooth(rng, mismatch)
+    s[:, 1, 1] = _smooth(rng, mismatch)
+    s[:, 0, 1] = s[:, 1, 0] = tracking * (1 + _smooth(rng, 0.02))
+    return _net(s)
+
+
+def _shunt_dut(z: np.ndarray) -> np.ndarray:
+    s21 = shunt_through_s21(z, 50.0)
+    s = np.empty((F.size, 2, 2), complex)
+    s[:, 0, 1] = s[:, 1, 0] = s21
+    s[:, 0, 0] = s[:, 1, 1] = s21 - 1
+    return s
+
+
+def _bench(seed: int, mismatch: float = 0.1):
+    rng = np.random.default_rng(seed)
+    x, y = _error_box(rng, mismatch=mismatch), _error_box(rng, mismatch=mismatch).flipped()
+    ideal = ideal_standards(F)
+
+    def measure(s: np.ndarray) -> np.ndarray:
+        return (x ** _net(s) ** y).s
+
+    standards = RawStandards(F, **{name: measure(ideal[name]) for name in ideal})
+    w = 2 * np.pi * F
+    z = 3e-3 + 1j * w * 0.6e-9 + 1 / (1j * w * 22e-6)
+    dut = _shunt_dut(z)
+    return standards, measure(dut), dut, z, measure
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+def test_solt_recovers_the_dut(seed: int) -> None:
+    standards, raw, dut, z, _ = _bench(seed)
+    corrected = solt(F, raw, standards)
+    # Published method (scikit-rf calibration tests; REFERENCES §8 measured ~1e-15).
+    np.testing.assert_allclose(corrected, dut, atol=1e-9)
+    np.testing.assert_allclose(shunt_through_z(corrected[:, 1, 0]), z, rtol=1e-6)
+
+
+def test_solt_with_non_ideal_open_model() -> None:
+    rng = np.random.default_rng(5)
+    x, y = _error_box(rng), _error_box(rng).flipped()
+    ideal = ideal_standards(F)
+    # An open with 20 fF of fringing capacitance on both ports.
+    gamma = skrf.network.z2s((1 / (1j * 2 * np.pi * F * 20e-15)).reshape(-1, 1, 1), 50.0)[:, 0, 0]
+    ideal["open"] = np.zeros((F.size, 2, 2), complex)
+    ideal["open"][:, 0, 0] = ideal["open"][:, 1, 1] = gamma
+    standards = RawStandards(F, **{n: (x ** _net(ideal[n]) ** y).s for n in ideal})
+    dut = _shunt_dut(np.full(F.size, 0.7 + 0.2j))
+    raw = (x ** _net(dut) ** y).s
+    np.testing.assert_allclose(
+        solt(F, raw, standards, ideals={"open": ideal["open"]}), dut, atol=1e-9
+    )
+    # Taking the open as ideal leaves an error: the model matters.
+    assert np.max(np.abs(solt(F, raw, standards) - dut)) > 1e-6
+
+
+def test_through_response_removes_tracking_only() -> None:
+    # Matched error boxes: only tracking, which the through response removes exactly.
+    standards, raw, dut, _, _ = _bench(7, mismatch=0.0)
+    corrected = through_response(raw, standards.thru)
+    np.testing.assert_allclose(corrected[:, 1, 0], dut[:, 1, 0], rtol=1e-9)
+    # With mismatch (REFERENCES §8: Normalization removes tracking only), an error
+    # remains in S21 that SOLT removes.
+    standards, raw, dut, _, _ = _bench(7, mismatch=0.1)
+    s21 = through_response(raw, standards.thru)[:, 1, 0]
+    assert np.max(np.abs(s21 - dut[:, 1, 0])) > 1e-3
+    np.testing.assert_allclose(
+        calibrate(F, raw, standards, "solt")[:, 1, 0], dut[:, 1, 0], atol=1e-9
+    )
+    # S11 and S22 are left raw.
+    np.testing.assert_array_equal(through_response(raw, standards.thru)[:, 0, 0], raw[:, 0, 0])
+
+
+def test_through_method_matches_scikit_rf_normalisation_of_s21() -> None:
+    standards, raw, _, _, _ = _bench(9)
+    # scikit-rf's element-wise network division is the textbook response calibration.
+    expected = (_net(raw) / _net(standards.thru)).s[:, 1, 0]
+    np.testing.assert_allclose(calibrate(F, raw, standards, "through")[:, 1, 0], expected)
+
+
+def test_hybrid_switches_at_the_crossover() -> None:
+    standards, raw, _, _, _ = _bench(4)
+    out = calibrate(F, raw, standards, "hybrid", crossover_hz=1e5)
+    low = F < 1e5
+    np.testing.assert_allclose(out[low], through_response(raw, standards.thru)[low])
+    np.testing.assert_allclose(out[~low], solt(F, raw, standards)[~low])
+
+
+def test_missing_standards_and_bad_method() -> None:
+    standards, raw, _, _, _ = _bench(1)
+    only_thru = RawStandards(F, thru=standards.thru)
+    with pytest.raises(InputError, match="short, open, load"):
+        calibrate(F, raw, only_thru, "solt")
+    with pytest.raises(InputError, match="unknown calibration method"):
+        calibrate(F, raw, standards, "trl")
+    with pytest.raises(ValueError, match="shape"):
+        RawStandards(F, thru=np.ones((3, 2, 2)))
+
+
+def _settings(**kw) -> CalibrationSettings:
+    base = {"f": np.logspace(2, 8, 201), "if_bandwidth_hz": 100.0, "power_dbm": 0.0}
+    base.update(kw)
+    return CalibrationSettings(**base)
+
+
+def test_settings_check_says_what_differs() -> None:
+    stored = _settings()
+    assert settings_differences(stored, _settings()) == ()
+    check_calibration_settings(stored, CalibrationSettings.from_dict(stored.to_dict()))
+    planned = _settings(f=np.logspace(2, 8, 401), if_bandwidth_hz=1000.0, series_r=499.0)
+    diffs = settings_differences(stored, planned)
+    assert len(diffs) == 3
+    assert any("frequency grid" in d and "201 points" in d and "401 points" in d for d in diffs)
+    assert any("IF bandwidth" in d and "100 Hz" in d and "1000 Hz" in d for d in diffs)
+    assert any("series resistors" in d and "499" in d for d in diffs)
+    with pytest.raises(InputError, match="does not match") as info:
+        check_calibration_settings(stored, planned, source="runs/cal-1/manifest.json")
+    assert "runs/cal-1/manifest.json" in str(info.value)
+    assert "calibrate again" in str(info.value)
