@@ -33,7 +33,9 @@ def describe_plan(plan: Plan) -> str:
         f"series resistors {format_si(fx.series_r, 'ohm')}; isolation transformer "
         f"{'fitted' if fx.isolation_transformer else 'not fitted'}",
     ]
-    text = cal.method + (f" (crossover {format_si(cal.crossover_hz, 'Hz')})" if cal.crossover_hz else "")
+    text = cal.method + (
+        f" (crossover {format_si(cal.crossover_hz, 'Hz')})" if cal.crossover_hz else ""
+    )
     if cal.reuse_run:
         text += f"; reuse {cal.reuse_run} if younger than {_duration(cal.max_age_s)}"
     lines.append(f"  calibrate  {text}")
@@ -47,7 +49,9 @@ def describe_plan(plan: Plan) -> str:
             if spec.tolerance:
                 nominal += f" ±{spec.tolerance * 100:g} %"
         bias = ", ".join(f"{v:g}" for v in part.bias) + " V"
-        extra = f", limit {plan.bias_limit(part):g} V" if plan.biased and part.bias != (0.0,) else ""
+        extra = (
+            f", limit {plan.bias_limit(part):g} V" if plan.biased and part.bias != (0.0,) else ""
+        )
         lines.append(
             f"    {spec.name:<14} {spec.kind:<8} {nominal:<14} model {spec.model:<10} "
             f"samples {', '.join(part.samples)}; bias {bias}{extra}"
@@ -59,7 +63,9 @@ def describe_plan(plan: Plan) -> str:
     counts: dict[str, int] = {}
     for step in plan.steps:
         counts[step.kind] = counts.get(step.kind, 0) + 1
-    lines.append("  steps      " + ", ".join(f"{k} ×{n}" if n > 1 else k for k, n in counts.items()))
+    lines.append(
+        "  steps      " + ", ".join(f"{k} ×{n}" if n > 1 else k for k, n in counts.items())
+    )
     sweeps = sum(counts.get(k, 0) for k in ("calibrate", "mount_short", "measure"))
     lines.append(f"  sweeps     {sweeps * s.averages}")
     lines.append(f"  estimated  {_duration(plan.estimated_seconds())}")

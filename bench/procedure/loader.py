@@ -230,7 +230,7 @@ def load_document(path: str | Path) -> SourceDocument:
     return doc
 
 
-class ProcedureErrors(ProcedureError):
+class ProcedureErrors(ProcedureError):  # noqa: N818 (a list of ProcedureError)
     """Several procedure errors at once; the message lists all of them."""
 
     def __init__(self, errors: list[ProcedureError]):

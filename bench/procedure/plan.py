@@ -17,7 +17,7 @@ from bench.errors import ProcedureError
 from bench.procedure.loader import ProcedureErrors, SourceDocument, load_document
 from bench.procedure.schema import STEP_NAMES, parse_duration
 from bench.results import PartSpec
-from bench.units import QuantityError, parse_quantity
+from bench.units import QuantityError, format_si, parse_quantity
 
 NOMINAL_UNIT = {"mlcc": "F", "bulk": "F", "inductor": "H", "bead": "ohm"}
 DEFAULT_MODEL = {"mlcc": "auto", "bulk": "auto", "inductor": "auto", "bead": "auto"}
@@ -54,7 +54,7 @@ class Sweep:
     averages: int = 1
 
     def sweep_seconds(self) -> float:
-        """Rough sweep time (s): about 1.2/IFBW per point plus set-up (common practice, no source)."""
+        """Rough sweep time (s): 1.2/IFBW per point plus set-up (common practice, no source)."""
         return self.points * 1.2 / self.if_bandwidth + 0.05
 
 
@@ -188,7 +188,9 @@ class Plan:
                 if step.kind == "calibrate" or self.mode == "guided":
                     total += handling
                 if step.bias_v:
-                    ramp = math.ceil(abs(step.bias_v) / self.bias.ramp_step) * self.bias.ramp_dwell_s
+                    ramp = (
+                        math.ceil(abs(step.bias_v) / self.bias.ramp_step) * self.bias.ramp_dwell_s
+                    )
                     total += 2 * ramp + self.bias.settle_s + self.bias.discharge_s
             elif step.kind == "fit":
                 total += 0.3 * sum(len(p.samples) * len(p.bias) for p in self.parts)
@@ -204,9 +206,8 @@ _MISSING = object()
 def _lookup(data: Any, path: tuple[Any, ...]) -> Any:
     node = data
     for part in path:
-        if isinstance(node, dict) and part in node:
-            node = node[part]
-        elif isinstance(node, list) and isinstance(part, int) and part < len(node):
+        in_dict = isinstance(node, dict) and part in node
+        if in_dict or (isinstance(node, list) and isinstance(part, int) and part < len(node)):
             node = node[part]
         else:
             return _MISSING
@@ -222,7 +223,9 @@ def _number(doc: SourceDocument, path: tuple[Any, ...], unit: str | None, defaul
             return parse_duration(node)
         return parse_quantity(node, unit)
     except QuantityError as exc:
-        raise doc.error(path, str(exc).removeprefix("value: "), hint="write a number with its unit")
+        raise doc.error(
+            path, str(exc).removeprefix("value: "), hint="write a number with its unit"
+        ) from None
 
 
 def _fraction(doc: SourceDocument, path: tuple[Any, ...], default: float | None) -> float | None:
@@ -238,33 +241,27 @@ def _fraction(doc: SourceDocument, path: tuple[Any, ...], default: float | None)
         ) from None
     if not 0.0 < value < 1.0:
         raise doc.error(
-            path, f"must lie between 0 and 1 (0 and 100 %), found {node!r}", hint="write 0.1 or '10 %'"
+            path,
+            f"must lie between 0 and 1 (0 and 100 %), found {node!r}",
+            hint="write 0.1 or '10 %'",
         )
     return value
 
 
 def analyzer_limits(command_map: str) -> dict[str, Any]:
-    """Limits the analyser's command map states (points, frequency, power), or generic ones."""
+    """Limits the analyser's command map states (points, frequency, power, IF bandwidth)."""
     limits = dict(DEFAULT_LIMITS)
     try:
         from drivers.command_map import load_command_map
 
-        cmap = load_command_map(command_map)
+        stated = load_command_map(command_map).limits
     except Exception:  # the map is checked again, with its own message, when the run opens it
         return limits
-    stated = getattr(cmap, "limits", None)
-    if isinstance(stated, dict):
-        source = stated
-    elif stated is not None:
-        source = {k: getattr(stated, k) for k in dir(stated) if not k.startswith("_")}
-    else:
-        source = {}
-    for key in ("max_points", "min_hz", "max_hz"):
-        if source.get(key) is not None:
-            limits[key] = source[key]
-    low, high = source.get("min_power_dbm"), source.get("max_power_dbm")
-    if low is not None and high is not None:
-        limits["power"] = (float(low), float(high))
+    limits["max_points"] = int(stated.points.max)
+    limits["min_hz"] = stated.frequency_hz.min
+    limits["max_hz"] = stated.frequency_hz.max
+    limits["power"] = (stated.power_dbm.min, stated.power_dbm.max)
+    limits["ifbw"] = (stated.ifbw_hz.min, stated.ifbw_hz.max)
     return limits
 
 
@@ -315,7 +312,8 @@ def build_plan(doc: SourceDocument) -> Plan:
         errors.append(
             doc.error(
                 ("sweep", "stop"),
-                f"stop ({sweep.stop:g} Hz) must be above start ({sweep.start:g} Hz)",
+                f"stop ({format_si(sweep.stop, 'Hz')}) must be above "
+                f"start ({format_si(sweep.start, 'Hz')})",
                 hint="swap the two values or raise stop",
             )
         )
@@ -323,7 +321,8 @@ def build_plan(doc: SourceDocument) -> Plan:
         errors.append(
             doc.error(
                 ("sweep", "start"),
-                f"{sweep.start:g} Hz is below the analyser's lowest frequency {limits['min_hz']:g} Hz",
+                f"{format_si(sweep.start, 'Hz')} is below the analyser's lowest frequency "
+                f"{format_si(limits['min_hz'], 'Hz')}",
                 hint="raise start",
             )
         )
@@ -331,7 +330,8 @@ def build_plan(doc: SourceDocument) -> Plan:
         errors.append(
             doc.error(
                 ("sweep", "stop"),
-                f"{sweep.stop:g} Hz is above the analyser's highest frequency {limits['max_hz']:g} Hz",
+                f"{format_si(sweep.stop, 'Hz')} is above the analyser's highest frequency "
+                f"{format_si(limits['max_hz'], 'Hz')}",
                 hint="lower stop",
             )
         )
@@ -354,8 +354,16 @@ def build_plan(doc: SourceDocument) -> Plan:
                 hint="choose a source power inside the analyser's and the procedure's limits",
             )
         )
-    if sweep.if_bandwidth <= 0:
-        errors.append(doc.error(("sweep", "if_bandwidth"), "must be above 0 Hz", hint="e.g. 1 kHz"))
+    ifbw_low, ifbw_high = limits.get("ifbw", (1e-3, 1e9))
+    if not ifbw_low <= sweep.if_bandwidth <= ifbw_high:
+        errors.append(
+            doc.error(
+                ("sweep", "if_bandwidth"),
+                f"{format_si(sweep.if_bandwidth, 'Hz')} is outside the analyser's "
+                f"{format_si(ifbw_low, 'Hz')} … {format_si(ifbw_high, 'Hz')}",
+                hint="choose an IF bandwidth the analyser offers",
+            )
+        )
 
     f = data.get("fixture", {})
     positions = int(f.get("positions", 1))
@@ -371,7 +379,9 @@ def build_plan(doc: SourceDocument) -> Plan:
             )
     series_r = attempt(_number, doc, ("fixture", "series_resistor"), "ohm", 0.0) or 0.0
     if series_r < 0:
-        errors.append(doc.error(("fixture", "series_resistor"), "cannot be negative", hint="0 or more"))
+        errors.append(
+            doc.error(("fixture", "series_resistor"), "cannot be negative", hint="0 or more")
+        )
     z0 = attempt(_number, doc, ("fixture", "z0"), "ohm", 50.0) or 50.0
     fixture = Fixture(
         positions=positions,
@@ -432,12 +442,16 @@ def build_plan(doc: SourceDocument) -> Plan:
         kind = p["kind"]
         if p["name"] in names:
             errors.append(
-                doc.error(("parts", i, "name"), f"part {p['name']!r} is listed twice", hint="merge them")
+                doc.error(
+                    ("parts", i, "name"), f"part {p['name']!r} is listed twice", hint="merge them"
+                )
             )
         names.add(p["name"])
         nominal = attempt(_number, doc, ("parts", i, "nominal"), NOMINAL_UNIT[kind], None)
         if nominal is not None and nominal <= 0:
-            errors.append(doc.error(("parts", i, "nominal"), "must be above 0", hint="give the value"))
+            errors.append(
+                doc.error(("parts", i, "nominal"), "must be above 0", hint="give the value")
+            )
         nominal_at = attempt(_number, doc, ("parts", i, "nominal_at"), "Hz", None)
         if kind == "bead" and nominal is not None and nominal_at is None:
             errors.append(

@@ -37,7 +37,11 @@ _INSTRUMENT = {
     "additionalProperties": False,
     "properties": {
         "resource": {"type": "string", "minLength": 1, "description": "VISA resource string"},
-        "command_map": {"type": "string", "minLength": 1, "description": "command map name or file"},
+        "command_map": {
+            "type": "string",
+            "minLength": 1,
+            "description": "command map name or file",
+        },
         "timeout": _duration("I/O timeout (s)"),
     },
 }

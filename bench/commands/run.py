@@ -1,0 +1,185 @@
+"""``zbench run PROCEDURE [--sim [SCENARIO]] [--out DIR] [--resume RUNDIR] [--yes]`` (DESIGN §3).
+
+Guided by default (the procedure's mode), unattended with ``--yes``, a dry run against the
+simulated bench with ``--sim``. The same runner does all three; only the operator and the
+instruments' resources differ.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import dataclasses
+from collections.abc import Iterator
+from pathlib import Path
+from typing import Any
+
+import click
+
+from bench.errors import InputError
+from bench.procedure.plan import Plan, load_plan, plan_from_text
+from bench.runstore import RunStore
+
+SIM_TIME_SCALE = 1.0
+
+
+@contextlib.contextmanager
+def simulated_bench(scenario: str, *, time_scale: float, seed: int | None = None) -> Iterator[Any]:
+    """Start the simulated bench in this process on loopback ports; stop it afterwards."""
+    from simulated_instruments.server import start_bench
+
+    bench = start_bench(scenario, time_scale=time_scale, seed=seed)
+    try:
+        yield bench
+    finally:
+        bench.stop()
+
+
+def with_resources(plan: Plan, resources: dict[str, str]) -> Plan:
+    """``plan`` with the instruments' VISA resources replaced (e.g. by the simulator's)."""
+    instruments = {
+        role: dataclasses.replace(inst, resource=resources.get(role, inst.resource))
+        for role, inst in plan.instruments.items()
+    }
+    return dataclasses.replace(plan, instruments=instruments)
+
+
+def new_store(plan: Plan, procedure_path: Path, out: Path) -> RunStore:
+    return RunStore.create(
+        out,
+        plan_name=plan.name,
+        resolved=plan.resolved,
+        procedure_text=procedure_path.read_text(encoding="utf-8"),
+        step_ids=[(s.id, s.kind) for s in plan.steps],
+    )
+
+
+def resumed(run_dir: Path) -> tuple[RunStore, Plan]:
+    """Reopen a run folder and rebuild its plan from the procedure stored in it."""
+    store = RunStore.open(run_dir)
+    source = store.manifest["procedure"].get("source", "procedure.yaml")
+    plan = plan_from_text(store.procedure_text(), source)
+    stored = [e["id"] for e in store.manifest["steps"]]
+    if stored != [s.id for s in plan.steps]:
+        raise InputError(
+            "the run's steps do not match its stored procedure",
+            path=str(run_dir / "manifest.json"),
+            hint="the run folder was edited by hand; start a new run",
+        )
+    return store, plan
+
+
+def execute(
+    plan: Plan,
+    store: RunStore,
+    *,
+    sim: str | None,
+    assume_yes: bool,
+    time_scale: float = SIM_TIME_SCALE,
+    seed: int | None = None,
+    console: Any = None,
+    quiet: bool = False,
+) -> Any:
+    """Run (or resume) ``plan`` into ``store``; returns the runner when it finished."""
+    from bench.procedure.display import PlainDisplay, RichDisplay
+    from bench.procedure.instruments import open_instruments
+    from bench.procedure.operators import ConsoleOperator, ScriptedOperator
+    from bench.procedure.runner import Runner
+
+    display = PlainDisplay(click.echo) if quiet else RichDisplay(console)
+    guided = plan.mode == "guided" and not assume_yes
+    say = display.message
+    with contextlib.ExitStack() as stack:
+        if sim is not None:
+            bench = stack.enter_context(simulated_bench(sim, time_scale=time_scale, seed=seed))
+            plan = with_resources(plan, bench.resources)
+        instruments = stack.enter_context(open_instruments(plan, scripted=sim is not None))
+        person = ConsoleOperator(guided=guided, ask=_ask, say=say)
+        if sim is not None:
+            operator: Any = ScriptedOperator(
+                instruments.bench,
+                guided=guided,
+                decide=person.after_sweep if guided else None,
+                say=say,
+            )
+        else:
+            operator = person
+        runner = Runner(plan, store, instruments, operator, display, assume_yes=assume_yes)
+        runner.run()
+        return runner
+
+
+def _ask(prompt: str) -> str:
+    return click.prompt(prompt, default="", show_default=False, prompt_suffix="")
+
+
+def finished_text(store: RunStore) -> str:
+    report = store.manifest.get("report")
+    lines = [f"run folder: {store.root}"]
+    if report:
+        lines.append(f"report: {store.root / report}")
+    return "\n".join(lines)
+
+
+@click.command("run")
+@click.argument("procedure", required=False, type=click.Path(path_type=Path))
+@click.option(
+    "--sim",
+    "sim",
+    is_flag=False,
+    flag_value="demo",
+    default=None,
+    metavar="[SCENARIO]",
+    help="Run against the simulated bench (scenario 'demo' if none is named).",
+)
+@click.option(
+    "--out",
+    type=click.Path(path_type=Path),
+    default=Path("runs"),
+    show_default=True,
+    help="Folder in which the run folder is made.",
+)
+@click.option(
+    "--resume",
+    type=click.Path(path_type=Path),
+    default=None,
+    help="Continue a stopped run from its first incomplete step.",
+)
+@click.option(
+    "--yes",
+    "assume_yes",
+    is_flag=True,
+    help="Unattended: prompt only for what a switch cannot do; accept the cautions.",
+)
+@click.option(
+    "--time-scale",
+    type=float,
+    default=SIM_TIME_SCALE,
+    hidden=True,
+    help="With --sim: compress the simulated instruments' time by this factor.",
+)
+@click.option("--quiet", is_flag=True, help="Plain lines instead of live progress.")
+def command(
+    procedure: Path | None,
+    sim: str | None,
+    out: Path,
+    resume: Path | None,
+    assume_yes: bool,
+    time_scale: float,
+    quiet: bool,
+) -> None:
+    """Run PROCEDURE on the instruments it names, or against the simulator with --sim."""
+    if resume is not None:
+        if procedure is not None:
+            raise InputError(
+                "give either a procedure or --resume RUNDIR, not both",
+                hint="a resumed run uses the procedure stored in its folder",
+            )
+        store, plan = resumed(resume)
+    elif procedure is None:
+        raise InputError("no procedure given", hint="zbench run PROCEDURE.yaml [--sim]")
+    else:
+        plan = load_plan(procedure)
+        store = new_store(plan, procedure, out)
+    click.echo(f"run folder: {store.root}")
+    execute(plan, store, sim=sim, assume_yes=assume_yes, time_scale=time_scale, quiet=quiet)
+    click.echo(finished_text(store))

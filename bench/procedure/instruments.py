@@ -1,0 +1,88 @@
+"""Open the instruments a plan names, each on its own VISA transport, and close them all."""
+
+from __future__ import annotations
+
+import contextlib
+from collections.abc import Iterator
+from dataclasses import dataclass, field
+from typing import Any
+
+from bench.errors import InputError
+from bench.procedure.plan import Plan
+
+
+@dataclass
+class BenchInstruments:
+    """The opened instruments of a run; ``switch``, ``dc_transport``, ``bench`` may be None."""
+
+    analyzer: Any
+    switch: Any = None
+    dc_transport: Any = None
+    bench: Any = None
+    transports: list[Any] = field(default_factory=list)
+
+    def snapshot(self) -> dict[str, Any]:
+        """Identities and settings for the manifest (best effort per instrument)."""
+        info: dict[str, Any] = {"analyzer": self.analyzer.snapshot()}
+        for role, inst in (("switch", self.switch), ("bench", self.bench)):
+            if inst is not None:
+                try:
+                    info[role] = {"identity": inst.identify(), "resource": inst.resource_name}
+                except Exception as exc:  # an identity is provenance, not a reason to stop
+                    info[role] = {"error": str(exc)}
+        if self.dc_transport is not None:
+            info["dc_source"] = {"resource": self.dc_transport.resource_name}
+        return info
+
+
+def needed_roles(plan: Plan, *, scripted: bool) -> list[str]:
+    """The instruments a plan needs: the analyser, a switch for a multi-position fixture
+    (more than one position used), a DC source for biased parts, and the bench-control
+    port when a scripted operator does the hands."""
+    roles = ["analyzer"]
+    if len(plan.fixture.use_positions) > 1:
+        roles.append("switch")
+    if plan.biased:
+        roles.append("dc_source")
+    if scripted:
+        roles.append("bench")
+    return roles
+
+
+@contextlib.contextmanager
+def open_instruments(plan: Plan, *, scripted: bool) -> Iterator[BenchInstruments]:
+    """Open every needed instrument of ``plan``; close them all on the way out."""
+    from drivers.analyzer import NetworkAnalyzer
+    from drivers.bench_control import BenchControl
+    from drivers.switch import FixtureSwitch
+    from drivers.transport import VisaTransport
+
+    roles = needed_roles(plan, scripted=scripted)
+    for role in roles:
+        if not plan.instruments[role].resource:
+            raise InputError(
+                f"instruments.{role}.resource is not given",
+                path=plan.source,
+                hint=f"add the VISA resource of the {role.replace('_', ' ')} to the procedure, "
+                "or run against the simulated bench with --sim",
+            )
+    transports: list[Any] = []
+    try:
+
+        def link(role: str) -> Any:
+            inst = plan.instruments[role]
+            transport = VisaTransport.open(inst.resource, timeout_s=inst.timeout_s)
+            transports.append(transport)
+            return transport
+
+        analyzer = NetworkAnalyzer(link("analyzer"), plan.instruments["analyzer"].command_map)
+        switch = None
+        if "switch" in roles:
+            switch = FixtureSwitch(link("switch"), plan.fixture.positions)
+        dc = link("dc_source") if "dc_source" in roles else None
+        bench = BenchControl(link("bench")) if "bench" in roles else None
+        yield BenchInstruments(analyzer, switch, dc, bench, transports)
+    finally:
+        for transport in reversed(transports):
+            with contextlib.suppress(Exception):
+                transport.close()

@@ -1,0 +1,230 @@
+"""The operator: whoever does what the instruments cannot (connect a standard, place a part).
+
+One interface, two implementations, one runner code path:
+
+- :class:`ConsoleOperator`: a person at the bench, prompted in plain words. In a guided
+  session they also decide after each sweep (repeat it, skip the part, or stop).
+- :class:`ScriptedOperator`: the hands of the simulated bench, through its bench-control
+  port (:class:`drivers.bench_control.BenchControl`); decisions come from a script.
+
+Answers after a sweep are one of :data:`DECISIONS`.
+"""
+
+from __future__ import annotations
+
+from abc import ABC, abstractmethod
+from collections.abc import Callable, Iterable, Iterator, Sequence
+from typing import Any
+
+from bench.procedure.plan import Placement
+
+CONTINUE, REPEAT, SKIP, STOP = "continue", "repeat", "skip", "stop"
+DECISIONS = (CONTINUE, REPEAT, SKIP, STOP)
+
+STANDARD_WORDS = {
+    "short": "the SHORT standard on both cable ends",
+    "open": "the OPEN standard on both cable ends",
+    "load": "the LOAD (50 ohm) standard on both cable ends",
+    "through": "the two cable ends joined with the THROUGH adapter",
+}
+
+
+class OperatorStop(Exception):  # noqa: N818 (a request, not a failure)
+    """The operator chose to stop; the run stays resumable."""
+
+
+class Operator(ABC):
+    """What the runner asks of the hands at the bench. Every call returns when it is done."""
+
+    #: Whether the runner asks :meth:`after_sweep` (guided sessions only).
+    guided: bool = False
+
+    @abstractmethod
+    def fit_resistors(self, ohms: float) -> None:
+        """Fit series resistors of ``ohms`` at both ports (0 removes them)."""
+
+    @abstractmethod
+    def fit_transformer(self, on: bool) -> None:
+        """Fit (or remove) the common-mode isolation transformer on port 2."""
+
+    @abstractmethod
+    def connect_standard(self, standard: str) -> None:
+        """Connect ``short``/``open``/``load`` on both cable ends, or the ``through``."""
+
+    @abstractmethod
+    def connect_fixture(self) -> None:
+        """Connect the cables to the fixture."""
+
+    @abstractmethod
+    def strap_mounts(self, positions: Sequence[int]) -> None:
+        """Fit the shorting strap in each of ``positions``."""
+
+    @abstractmethod
+    def load_parts(self, placements: Sequence[Placement]) -> None:
+        """Place each sample in its position (removing any strap there)."""
+
+    @abstractmethod
+    def caution(self, text: str) -> None:
+        """Show a caution; return when it is acknowledged, raise :class:`OperatorStop` if not."""
+
+    def after_sweep(self, label: str, result: str) -> str:
+        """Guided sessions: continue, repeat the last sweep, skip this item, or stop."""
+        return CONTINUE
+
+    def advise(self, text: str) -> None:  # noqa: B027 (optional hook)
+        """Tell the operator something that needs no answer."""
+
+
+class ScriptedOperator(Operator):
+    """The simulated bench's hands, through its bench-control instrument.
+
+    ``decisions`` answers :meth:`after_sweep` in turn (then ``continue``); a callable
+    ``decide(label, result)`` may be given instead, e.g. to ask a person at a console.
+    """
+
+    def __init__(
+        self,
+        bench: Any,
+        *,
+        guided: bool = False,
+        decisions: Iterable[str] = (),
+        decide: Callable[[str, str], str] | None = None,
+        say: Callable[[str], None] | None = None,
+    ):
+        self.bench = bench
+        self.guided = guided
+        self._decisions: Iterator[str] = iter(decisions)
+        self._decide = decide
+        self._say = say or (lambda text: None)
+        self.actions: list[str] = []
+
+    def _did(self, text: str) -> None:
+        self.actions.append(text)
+        self._say(text)
+
+    def fit_resistors(self, ohms: float) -> None:
+        self.bench.resistors(ohms)
+        self._did(f"series resistors {ohms:g} ohm")
+
+    def fit_transformer(self, on: bool) -> None:
+        self.bench.transformer(on)
+        self._did(f"isolation transformer {'fitted' if on else 'removed'}")
+
+    def connect_standard(self, standard: str) -> None:
+        if standard == "through":
+            self.bench.connect_through()
+        else:
+            self.bench.connect_standard(standard)
+        self._did(f"cables: {standard}")
+
+    def connect_fixture(self) -> None:
+        self.bench.connect_fixture()
+        self._did("cables: fixture")
+
+    def strap_mounts(self, positions: Sequence[int]) -> None:
+        for pos in positions:
+            self.bench.place(pos, "short")
+        self._did(f"short straps in positions {', '.join(map(str, positions))}")
+
+    def load_parts(self, placements: Sequence[Placement]) -> None:
+        for p in placements:
+            self.bench.place(p.position, f"{p.part}/{p.sample}")
+        self._did("placed " + ", ".join(f"{p.part}/{p.sample}@{p.position}" for p in placements))
+
+    def caution(self, text: str) -> None:
+        self._say(text)
+
+    def after_sweep(self, label: str, result: str) -> str:
+        if self._decide is not None:
+            return self._decide(label, result)
+        return next(self._decisions, CONTINUE)
+
+    def advise(self, text: str) -> None:
+        self._say(text)
+
+
+class ConsoleOperator(Operator):
+    """A person at the bench, prompted on a console.
+
+    ``ask(prompt) -> str`` reads one answer (default: :func:`input`); ``say(text)``
+    shows text. In a guided session every physical action and every sweep result waits
+    for the person; unattended (``guided=False``), only the physical actions do.
+    """
+
+    def __init__(
+        self,
+        *,
+        guided: bool = True,
+        ask: Callable[[str], str] | None = None,
+        say: Callable[[str], None] | None = None,
+    ):
+        self.guided = guided
+        self._ask = ask or input
+        self._say = say or print
+
+    def _action(self, text: str) -> None:
+        self._say(text)
+        answer = self._ask("  press Enter when done, or type 'stop': ").strip().lower()
+        if answer in ("stop", "q", "quit"):
+            raise OperatorStop("stopped by the operator")
+
+    def fit_resistors(self, ohms: float) -> None:
+        if ohms:
+            self._action(f"Fit the {ohms:g} ohm series resistors at both ports.")
+        else:
+            self._action("Make sure no series resistors are fitted at the ports.")
+
+    def fit_transformer(self, on: bool) -> None:
+        if on:
+            self._action("Fit the common-mode isolation transformer on port 2.")
+        else:
+            self._action(
+                "Remove the isolation transformer from port 2 (connect the cable directly)."
+            )
+
+    def connect_standard(self, standard: str) -> None:
+        self._action(f"Connect {STANDARD_WORDS[standard]}.")
+
+    def connect_fixture(self) -> None:
+        self._action("Connect both cables to the fixture.")
+
+    def strap_mounts(self, positions: Sequence[int]) -> None:
+        where = ", ".join(map(str, positions))
+        many = len(positions) > 1
+        self._action(
+            f"Fit the shorting strap{'s' if many else ''} in mount "
+            f"position{'s' if many else ''} {where}."
+        )
+
+    def load_parts(self, placements: Sequence[Placement]) -> None:
+        lines = [f"  position {p.position}: {p.part} sample {p.sample}" for p in placements]
+        self._action("Remove the straps and place:\n" + "\n".join(lines))
+
+    def caution(self, text: str) -> None:
+        self._say(text)
+        answer = self._ask("  type 'yes' to apply DC bias, anything else stops: ").strip().lower()
+        if answer not in ("yes", "y"):
+            raise OperatorStop("DC bias not acknowledged")
+
+    def after_sweep(self, label: str, result: str) -> str:
+        self._say(f"{label}: {result}")
+        while True:
+            answer = (
+                self._ask("  [Enter] continue, (r)epeat sweep, (s)kip, (q) stop: ").strip().lower()
+            )
+            choice = {
+                "": CONTINUE,
+                "c": CONTINUE,
+                "r": REPEAT,
+                "repeat": REPEAT,
+                "s": SKIP,
+                "skip": SKIP,
+                "q": STOP,
+                "stop": STOP,
+            }.get(answer)
+            if choice is not None:
+                return choice
+            self._say(f"  '{answer}' is not one of the choices")
+
+    def advise(self, text: str) -> None:
+        self._say(text)

@@ -1,0 +1,299 @@
+"""From the sweeps stored in a run folder to impedances, fits and the :class:`RunSummary`.
+
+The runner calls this at its fit step and ``zbench reprocess`` calls it on a finished
+run with other settings; both read only ``raw/`` and the manifest, never an instrument.
+All the numbers come from :mod:`bench.core`; this module only finds the files, averages
+repeated sweeps and hands arrays to the core.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+from typing import Any
+
+import numpy as np
+
+from bench import __version__
+from bench.core.conversions import shunt_through_z, through_normalise
+from bench.core.impedance import ImpedanceData, impedance_from_shunt_through
+from bench.errors import FitError, RunError
+from bench.procedure.plan import Analysis, Plan, Step
+from bench.results import RunSummary, SampleResult
+from bench.runstore import DONE, RunStore
+
+
+@dataclass(frozen=True)
+class GroundLoopResult:
+    """The ground-loop verdict on one position's mount short."""
+
+    position: int
+    detected: bool
+    valid_above_hz: float
+    message: str
+
+
+def averaged(store: RunStore, step_id: str) -> tuple[np.ndarray, np.ndarray]:
+    """Frequencies and the mean complex S (nf, 2, 2) of the sweeps stored for a step."""
+    files = store.step_files(step_id)
+    if not files:
+        raise RunError(
+            f"step {step_id} is marked done but lists no raw sweep; "
+            "run it again with zbench run --resume after marking it pending"
+        )
+    f0, s_sum = store.read_raw(files[0])
+    for name in files[1:]:
+        f, s = store.read_raw(name)
+        if f.shape != f0.shape or not np.allclose(f, f0, rtol=1e-9):
+            raise RunError(f"sweeps of step {step_id} are on different frequency grids ({name})")
+        s_sum = s_sum + s
+    return f0, s_sum / len(files)
+
+
+class Corrector:
+    """Applies the run's calibration (from its stored raw standards) to raw sweeps."""
+
+    def __init__(self, plan: Plan, standards: dict[str, tuple[np.ndarray, np.ndarray]]):
+        self.plan = plan
+        self.standards = standards
+        self.f = standards["through"][0]
+        self.warnings: list[str] = []
+        self._core = None
+        method = plan.calibration.method
+        if method != "through":
+            try:
+                from bench.core import calibration as core_calibration
+            except ImportError:
+                self.warnings.append(
+                    f"{method} calibration is not available in this build; "
+                    "used the through-response normalisation instead"
+                )
+            else:
+                self._core = core_calibration
+
+    @classmethod
+    def from_store(cls, store: RunStore, plan: Plan) -> Corrector:
+        standards = {}
+        for std in plan.calibration.standards:
+            step_id = f"calibrate/{std}"
+            if store.step_state(step_id) != DONE:
+                raise RunError(f"calibration standard {std} was not measured (step {step_id})")
+            standards[std] = averaged(store, step_id)
+        return cls(plan, standards)
+
+    def _check_grid(self, f: np.ndarray) -> None:
+        if f.shape != self.f.shape or not np.allclose(f, self.f, rtol=1e-9):
+            raise RunError(
+                "a sweep and the calibration are on different frequency grids; "
+                "calibrate again with the procedure's sweep"
+            )
+
+    def correct(self, f: np.ndarray, s_raw: np.ndarray) -> np.ndarray:
+        """Calibrated S (nf, 2, 2); with a through-only calibration only S21 is meaningful."""
+        self._check_grid(f)
+        if self._core is not None:
+            standards = self._core.RawStandards(**{k: v[1] for k, v in self.standards.items()})
+            result = self._core.calibrate(
+                f,
+                s_raw,
+                standards,
+                method=self.plan.calibration.method,
+                crossover_hz=self.plan.calibration.crossover_hz,
+            )
+            return np.asarray(getattr(result, "s", result), dtype=complex)
+        corrected = np.array(s_raw, dtype=complex, copy=True)
+        through = self.standards["through"][1]
+        corrected[:, 1, 0] = through_normalise(s_raw[:, 1, 0], through[:, 1, 0])
+        corrected[:, 0, 1] = through_normalise(s_raw[:, 0, 1], through[:, 0, 1])
+        return corrected
+
+
+def mount_short_impedance(
+    plan: Plan, corrector: Corrector, store: RunStore, position: int
+) -> tuple[np.ndarray, np.ndarray]:
+    """Frequencies and the shorted mount's impedance (Ω) at ``position``."""
+    f, s = averaged(store, f"mount_short/p{position}")
+    s21n = corrector.correct(f, s)[:, 1, 0]
+    return f, shunt_through_z(s21n, plan.fixture.z0, plan.fixture.series_r)
+
+
+def ground_loop(f: np.ndarray, z_short: np.ndarray, position: int) -> GroundLoopResult:
+    """The core's ground-loop check on one mount short."""
+    try:
+        from bench.core.ground_loop import check_ground_loop
+    except ImportError:
+        return GroundLoopResult(position, False, 0.0, "ground-loop check not available")
+    check = check_ground_loop(f, z_short)
+    return GroundLoopResult(
+        position=position,
+        detected=bool(check.detected),
+        valid_above_hz=float(check.valid_above_hz or 0.0),
+        message=str(check.message),
+    )
+
+
+def sample_impedance(
+    plan: Plan,
+    analysis: Analysis,
+    f: np.ndarray,
+    s21n: np.ndarray,
+    z_short: np.ndarray | None,
+) -> ImpedanceData:
+    """The part's impedance with the mount removed, its window and uncertainty."""
+    mount: Any = z_short
+    if z_short is not None and analysis.mount == "fitted":
+        from bench.core.fixture import fit_mount
+
+        mount = fit_mount(f, z_short)
+    return impedance_from_shunt_through(
+        f,
+        s21n,
+        z0=plan.fixture.z0,
+        series_r=plan.fixture.series_r,
+        mount_short=mount,
+        noise_floor_db=analysis.noise_floor_db,
+        trace_noise_db=analysis.trace_noise_db,
+        tolerance=analysis.tolerance,
+    )
+
+
+def fit_sample(
+    model: str, data: ImpedanceData, valid_above_hz: float = 0.0
+) -> tuple[Any, str | None]:
+    """Fit one sample; returns (FitResult or None, error text or None)."""
+    try:
+        from bench.core.fitting import fit_impedance
+    except ImportError:
+        return None, "fitting is not available in this build"
+    valid = np.asarray(data.inside_window, dtype=bool) & (data.f >= valid_above_hz)
+    try:
+        fit = fit_impedance(
+            data.f, data.z, model=model, rel_uncertainty=data.rel_uncertainty, valid=valid
+        )
+    except FitError as exc:
+        return None, str(exc)
+    return fit, None
+
+
+def build_summary(
+    store: RunStore,
+    plan: Plan,
+    *,
+    analysis: Analysis | None = None,
+    model_override: str | None = None,
+    fit: bool = True,
+) -> RunSummary:
+    """Recompute every sample of a run from its raw sweeps into a :class:`RunSummary`.
+
+    ``analysis`` and ``model_override`` replace the procedure's settings (reprocess);
+    measure steps that were skipped or never ran are left out, and said so in warnings.
+    """
+    analysis = analysis or plan.analysis
+    corrector = Corrector.from_store(store, plan)
+    warnings: list[str] = list(corrector.warnings)
+    shorts: dict[int, np.ndarray] = {}
+    loops: dict[int, GroundLoopResult] = {}
+    for step in plan.steps:
+        if step.kind != "mount_short" or step.position is None:
+            continue
+        if store.step_state(step.id) != DONE:
+            warnings.append(f"no mount short for position {step.position}; not removed")
+            continue
+        f, z_short = mount_short_impedance(plan, corrector, store, step.position)
+        shorts[step.position] = z_short
+        loops[step.position] = ground_loop(f, z_short, step.position)
+    samples: list[SampleResult] = []
+    for step in plan.steps:
+        if step.kind != "measure":
+            continue
+        state = store.step_state(step.id)
+        if state != DONE:
+            warnings.append(f"{step.id}: {state}, not in the results")
+            continue
+        samples.append(
+            _sample(store, plan, analysis, corrector, step, shorts, loops, model_override, fit)
+        )
+    loop_info = {
+        str(pos): {
+            "detected": r.detected,
+            "valid_above_hz": r.valid_above_hz,
+            "message": r.message,
+        }
+        for pos, r in loops.items()
+    }
+    for r in loops.values():
+        if r.detected:
+            warnings.append(
+                f"position {r.position}: ground loop; points below {r.valid_above_hz:g} Hz "
+                "were not used in the fits"
+            )
+    manifest = store.manifest
+    return RunSummary(
+        run_id=store.run_id,
+        procedure_name=plan.name,
+        parts=tuple(p.spec for p in plan.parts),
+        samples=tuple(samples),
+        setup={
+            "procedure": plan.source,
+            "mode": plan.mode,
+            "sweep": manifest["procedure"]["sweep"],
+            "fixture": manifest["procedure"]["fixture"],
+            "analysis": {
+                "noise_floor_db": analysis.noise_floor_db,
+                "trace_noise_db": analysis.trace_noise_db,
+                "tolerance": analysis.tolerance,
+                "mount": analysis.mount,
+            },
+            "instruments": manifest.get("instruments", {}),
+            "created": manifest.get("created"),
+        },
+        calibration=dict(manifest.get("calibration", {})),
+        ground_loop=loop_info,
+        warnings=tuple(dict.fromkeys([*manifest.get("warnings", []), *warnings])),
+        software_version=__version__,
+    )
+
+
+def _sample(
+    store: RunStore,
+    plan: Plan,
+    analysis: Analysis,
+    corrector: Corrector,
+    step: Step,
+    shorts: dict[int, np.ndarray],
+    loops: dict[int, GroundLoopResult],
+    model_override: str | None,
+    fit: bool,
+) -> SampleResult:
+    placement = step.placement
+    assert placement is not None
+    f, s_raw = averaged(store, step.id)
+    corrected = corrector.correct(f, s_raw)
+    data = sample_impedance(plan, analysis, f, corrected[:, 1, 0], shorts.get(step.position or 0))
+    loop = loops.get(step.position or 0)
+    valid_above = loop.valid_above_hz if loop is not None and loop.detected else 0.0
+    part = plan.part(placement.part)
+    model = model_override or part.spec.model
+    result, error = fit_sample(model, data, valid_above) if fit else (None, None)
+    notes: tuple[str, ...] = ()
+    if valid_above:
+        notes = (f"ground loop: points below {valid_above:g} Hz not used",)
+    if result is not None and getattr(result, "warnings", ()):
+        notes = (*notes, *result.warnings)
+    files = store.step_files(step.id)
+    return SampleResult(
+        part=placement.part,
+        sample=placement.sample,
+        data=data,
+        fit=result,
+        bias_v=step.bias_v,
+        position=placement.position,
+        raw_file=files[0] if files else None,
+        corrected_s=corrected,
+        fit_error=error,
+        warnings=notes,
+    )
+
+
+def with_analysis(plan: Plan, **changes: Any) -> Analysis:
+    """The plan's analysis settings with some replaced (None values are ignored)."""
+    return replace(plan.analysis, **{k: v for k, v in changes.items() if v is not None})

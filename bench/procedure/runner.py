@@ -1,0 +1,632 @@
+"""The runner: executes a plan step by step into a run folder.
+
+One code path for every way of working: the operator (a person at a console, or the
+simulated bench's scripted hands) does the physical actions, the instruments do the
+rest. Every raw sweep is written to the run store the moment it is read, and each step's
+state is recorded, so a run stopped by Ctrl-C, a crash or a lost connection resumes at
+its first incomplete step with every stored sweep kept.
+
+Physical state (what the cables are on, what sits in the mounts) is never trusted across
+sessions: a resumed run asks the operator again for whatever the next step needs.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import datetime as _dt
+import json
+import time
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from bench.errors import InputError, RunError, SafetyError
+from bench.files import atomic_write_bytes, atomic_write_text
+from bench.procedure.display import PlainDisplay, result_line
+from bench.procedure.operators import REPEAT, SKIP, STOP, Operator, OperatorStop
+from bench.procedure.plan import Plan, Step
+from bench.procedure.processing import (
+    Corrector,
+    build_summary,
+    ground_loop,
+    mount_short_impedance,
+    sample_impedance,
+)
+from bench.results import RunSummary
+from bench.runstore import DONE, FAILED, RUNNING, SKIPPED, RunStore, file_stem, parse_iso
+
+CAUTION = (
+    "CAUTION - DC bias. This procedure applies DC voltage to capacitors. A charged\n"
+    "capacitor stores energy and can deliver a large current when shorted. DC must reach\n"
+    "the part only through a bias tee, with DC blocks protecting the analyser ports; never\n"
+    "connect DC to an analyser port directly. zbench keeps every bias point at or below\n"
+    "the lowest of the part rating, the bias tee and DC-block ratings and the source\n"
+    "maximum, ramps the voltage, and switches the output off with a discharge wait at the\n"
+    "end, on a stop and on any error. Follow your local safety rules and the instruments'\n"
+    "manuals; they take precedence over this program."
+)
+
+GROUND_LOOP_ADVICE = (
+    "Fit a common-mode isolation transformer (or enough ferrite) on port 2, shorten the "
+    "port-1 lead, then resume the run."
+)
+
+
+def _driver_errors() -> tuple[type[BaseException], ...]:
+    from drivers.errors import DriverError
+
+    return (DriverError,)
+
+
+class Runner:
+    """Runs ``plan`` into ``store`` with ``instruments`` and ``operator``."""
+
+    def __init__(
+        self,
+        plan: Plan,
+        store: RunStore,
+        instruments: Any,
+        operator: Operator,
+        display: Any = None,
+        *,
+        assume_yes: bool = False,
+        sleep: Callable[[float], None] = time.sleep,
+    ):
+        self.plan = plan
+        self.store = store
+        self.inst = instruments
+        self.operator = operator
+        self.display = display or PlainDisplay()
+        self.assume_yes = assume_yes
+        self.sleep = sleep
+        self.summary: RunSummary | None = None
+        # What the hands have done in this session; nothing is assumed from an earlier one.
+        self._set_up = False
+        self._cables: str | None = None
+        self._strapped: set[int] = set()
+        self._batch: int | None = None
+        self._selected: int | None = None
+        self._caution_done = False
+        self._corrector: Corrector | None = None
+        self._shorts: dict[int, np.ndarray] = {}
+        self._loops: dict[int, float] = {}
+        self.sweep_seconds = 0.0  # time spent waiting for the analyser's own sweeps
+        self.sweeps_done = 0
+
+    # -- top level --------------------------------------------------------------------
+
+    def run(self) -> RunSummary | None:
+        """Execute every step not yet done; returns the summary when a fit step ran."""
+        store, plan = self.store, self.plan
+        store.begin_session("resume" if store.manifest["sessions"] else "start")
+        store.log(f"session start, plan {plan.name}, first step {store.first_incomplete()}")
+        pending = [s for s in plan.steps if store.step_state(s.id) not in (DONE, SKIPPED)]
+        sweeps = sum(1 for s in pending if s.kind in ("calibrate", "mount_short", "measure"))
+        current: Step | None = None
+        try:
+            if plan.biased and any(s.bias_v for s in pending):
+                self._caution()
+            self._prepare_instruments()
+            self._maybe_reuse_calibration()
+            self.display.start(sweeps * plan.sweep.averages, plan.estimated_seconds())
+            for step in plan.steps:
+                if store.step_state(step.id) in (DONE, SKIPPED):
+                    continue
+                current = step
+                self._execute(step)
+                current = None
+            store.set_state("complete")
+            store.log("run complete")
+            return self.summary
+        except OperatorStop as exc:
+            self._stopped(current, f"stopped by the operator: {exc}")
+            raise RunError(self._resume_text(f"stopped: {exc}")) from None
+        except KeyboardInterrupt:
+            self._stopped(current, "interrupted (Ctrl-C)")
+            raise RunError(self._resume_text("interrupted")) from None
+        except RunError as exc:
+            self._stopped(current, str(exc))
+            raise RunError(self._resume_text(str(exc))) from None
+        except _driver_errors() as exc:
+            self._stopped(current, f"instrument: {exc}")
+            raise RunError(self._resume_text(f"instrument: {exc}")) from None
+        except SafetyError as exc:
+            self._stopped(current, f"safety: {exc}")
+            raise RunError(self._resume_text(f"safety: {exc}")) from None
+        finally:
+            self._bias_off()
+            self.display.stop()
+
+    def _resume_text(self, reason: str) -> str:
+        return (
+            f"{reason}\n  the run is kept in {self.store.root}; every stored sweep is safe.\n"
+            f"  continue it with: zbench run --resume {self.store.root}"
+        )
+
+    def _stopped(self, step: Step | None, message: str) -> None:
+        with contextlib.suppress(Exception):
+            if step is not None and self.store.step_state(step.id) == RUNNING:
+                self.store.mark(step.id, FAILED, message=message)
+            self.store.set_state("stopped", message)
+            self.store.log(f"stopped at {step.id if step else '-'}: {message}")
+
+    # -- set-up -----------------------------------------------------------------------
+
+    def _caution(self) -> None:
+        if self._caution_done:
+            return
+        with self.display.pause():
+            if self.assume_yes:
+                self.display.message(CAUTION)
+            else:
+                self.operator.caution(CAUTION)
+        self._caution_done = True
+        self.store.log("DC-bias caution shown and acknowledged")
+
+    def _prepare_instruments(self) -> None:
+        from drivers.analyzer import SweepPlan
+
+        s = self.plan.sweep
+        analyzer = self.inst.analyzer
+        wanted = SweepPlan(
+            start_hz=s.start,
+            stop_hz=s.stop,
+            points=s.points,
+            spacing=s.spacing,
+            ifbw_hz=s.if_bandwidth,
+            power_dbm=s.power,
+        )
+        analyzer.configure(wanted)
+        # zbench corrects in software from the stored raw standards.
+        analyzer.set_correction(False)
+        self._ensure_bias_off_at_start()
+        snapshot = self.inst.snapshot()
+        sessions = self.store.manifest.get("instrument_sessions", [])
+        sessions.append({"time": _dt.datetime.now(_dt.timezone.utc).isoformat(), **snapshot})
+        self.store.manifest["instrument_sessions"] = sessions
+        self.store.update("instruments", snapshot)
+
+    def _ensure_bias_off_at_start(self) -> None:
+        if self.inst.dc_transport is None:
+            return
+        source = self._dc_source(self._largest_limit())
+        if source.output_is_on():
+            source.shut_down(
+                self.plan.bias.ramp_step, self.plan.bias.ramp_dwell_s, self.plan.bias.discharge_s
+            )
+        source.output_off()
+
+    def _largest_limit(self) -> float:
+        limits = [self.plan.bias_limit(p) for p in self.plan.parts if p.bias != (0.0,)]
+        return max([v for v in limits if v > 0] or [1.0])
+
+    def _dc_source(self, limit: float) -> Any:
+        from drivers.dc_source import DcSource
+
+        inst = self.plan.instruments["dc_source"]
+        max_current = min(
+            v for v in (inst.max_current, self.plan.bias.current_limit) if v is not None
+        )
+        return DcSource(
+            self.inst.dc_transport, max_voltage=limit, max_current=max_current, sleep=self.sleep
+        )
+
+    def _bias_off(self) -> None:
+        """Output off, whatever happened (best effort: the link may be gone)."""
+        if self.inst is None or self.inst.dc_transport is None:
+            return
+        with contextlib.suppress(Exception):
+            self._dc_source(self._largest_limit()).output_off()
+
+    def _setup(self) -> None:
+        if self._set_up:
+            return
+        with self.display.pause():
+            self.operator.fit_resistors(self.plan.fixture.series_r)
+            self.operator.fit_transformer(self.plan.fixture.isolation_transformer)
+        self._set_up = True
+
+    def _cables_to(self, target: str) -> None:
+        self._setup()
+        if self._cables == target:
+            return
+        with self.display.pause():
+            if target == "fixture":
+                self.operator.connect_fixture()
+            else:
+                self.operator.connect_standard(target)
+        self._cables = target
+        self.store.log(f"cables: {target}")
+
+    def _select(self, position: int) -> None:
+        if self.inst.switch is not None and self._selected != position:
+            self.inst.switch.select(position)
+        self._selected = position
+
+    # -- calibration reuse -------------------------------------------------------------
+
+    def _maybe_reuse_calibration(self) -> None:
+        cal = self.plan.calibration
+        cal_steps = [s for s in self.plan.steps if s.kind == "calibrate"]
+        if not cal.reuse_run or not cal_steps:
+            return
+        if all(self.store.step_state(s.id) == DONE for s in cal_steps):
+            return
+        reason = self._reuse_problem()
+        if reason is not None:
+            self.display.message(f"calibration not reused: {reason}; calibrating anew")
+            self.store.log(f"calibration not reused: {reason}")
+            return
+        old = RunStore.open(self._reuse_path())
+        for step in cal_steps:
+            self.store.mark(step.id, RUNNING)
+            for relative in old.step_files(step.id):
+                target = self.store.root / relative
+                atomic_write_bytes(target, (old.root / relative).read_bytes())
+                self.store._step(step.id)["files"].append(relative)
+            self.store.mark(step.id, DONE, reused_from=str(old.root))
+        self.store.update(
+            "calibration",
+            {**old.manifest.get("calibration", {}), "reused_from": str(old.root)},
+        )
+        self.display.message(f"calibration reused from {old.root}")
+        self.store.log(f"calibration reused from {old.root}")
+
+    def _reuse_path(self) -> Path:
+        given = Path(self.plan.calibration.reuse_run or "")
+        if not given.is_absolute() and not given.exists():
+            beside = Path(self.plan.source).parent / given
+            if beside.exists():
+                return beside
+        return given
+
+    def _reuse_problem(self) -> str | None:
+        """Why the named calibration cannot be reused, or None when it can."""
+        path = self._reuse_path()
+        try:
+            old = RunStore.open(path)
+        except InputError as exc:
+            return str(exc).splitlines()[0]
+        problems = calibration_mismatch(old.manifest["procedure"], self.plan.resolved)
+        if problems:
+            return "; ".join(problems)
+        times = []
+        for step in self.plan.steps:
+            if step.kind != "calibrate":
+                continue
+            try:
+                info = old.step_info(step.id)
+            except KeyError:
+                return f"{path} has no {step.id} step"
+            if info["state"] != DONE or "finished" not in info:
+                return f"{path}: {step.id} was not completed"
+            times.append(parse_iso(info["finished"]))
+        age = (_dt.datetime.now(_dt.timezone.utc) - min(times)).total_seconds()
+        if age > self.plan.calibration.max_age_s:
+            allowed = self.plan.calibration.max_age_s / 3600
+            return f"it is {age / 3600:.1f} h old, more than the {allowed:g} h allowed"
+        return None
+
+    # -- steps ------------------------------------------------------------------------
+
+    def _execute(self, step: Step) -> None:
+        store = self.store
+        store.mark(step.id, RUNNING)
+        store.log(f"step {step.id} started")
+        if step.kind == "calibrate":
+            self._calibrate(step)
+        elif step.kind == "mount_short":
+            self._mount_short(step)
+        elif step.kind == "measure":
+            self._measure(step)
+        elif step.kind == "fit":
+            self._fit(step)
+        elif step.kind == "export":
+            self._export(step)
+        elif step.kind == "report":
+            self._report(step)
+        if store.step_state(step.id) == RUNNING:
+            store.mark(step.id, DONE)
+        store.log(f"step {step.id} {store.step_state(step.id)}")
+
+    def _parameters(self) -> tuple[str, ...]:
+        # A through-response calibration uses S21 only; SOLT corrects with all four.
+        if self.plan.calibration.method == "through":
+            return ("S11", "S21")
+        return ("S11", "S21", "S12", "S22")
+
+    def _sweeps(self, step: Step, label: str) -> None:
+        """Take the step's sweeps (the procedure's average count), writing each at once.
+
+        Sweeps already stored for this step (an interrupted earlier session) are kept and
+        not taken again.
+        """
+        n = self.plan.sweep.averages
+        base = file_stem(step.id)
+        have = set(self.store.step_files(step.id))
+        for k in range(1, n + 1):
+            name = base if n == 1 else f"{base}_a{k}"
+            relative = str(self.store.raw_path(name).relative_to(self.store.root))
+            if relative in have and self.store.raw_path(name).exists():
+                self.display.advance()
+                continue
+            self.display.step(f"{label} sweep {k}/{n}" if n > 1 else label)
+            t0 = time.perf_counter()
+            data = self.inst.analyzer.sweep(self._parameters())
+            self.sweep_seconds += time.perf_counter() - t0
+            self.sweeps_done += 1
+            self.store.write_raw(
+                step.id,
+                name,
+                data.f,
+                data.s,
+                z0=self.plan.fixture.z0,
+                comments=(f"raw, analyser correction off, sweep {k} of {n}",),
+            )
+            self.display.advance()
+
+    def _decide(self, step: Step, label: str, result: str) -> str:
+        """Guided sessions: ask what next; handles repeat here, returns skip/continue."""
+        while self.operator.guided:
+            with self.display.pause():
+                choice = self.operator.after_sweep(label, result)
+            if choice == STOP:
+                raise OperatorStop("stopped by the operator")
+            if choice == SKIP:
+                self.store.mark(step.id, SKIPPED, message="skipped by the operator")
+                return SKIP
+            if choice != REPEAT:
+                return choice
+            for relative in self.store.step_files(step.id):
+                self.store.reject_raw(step.id, Path(relative).stem)
+            self.store.log(f"{step.id}: sweep repeated at the operator's request")
+            return REPEAT
+        return "continue"
+
+    def _calibrate(self, step: Step) -> None:
+        assert step.standard is not None
+        while True:
+            self._cables_to(step.standard)
+            self._sweeps(step, f"calibration: {step.standard}")
+            _, s = self._last_average(step)
+            s21 = s[:, 1, 0]
+            result = f"|S21| {20 * np.log10(np.median(np.abs(s21)) + 1e-300):.2f} dB (median)"
+            if self._decide(step, f"calibration {step.standard}", result) != REPEAT:
+                break
+        if step.standard == self.plan.calibration.standards[-1]:
+            self.store.update(
+                "calibration",
+                {
+                    "method": self.plan.calibration.method,
+                    "crossover_hz": self.plan.calibration.crossover_hz,
+                    "standards": {
+                        std: self.store.step_files(f"calibrate/{std}")
+                        for std in self.plan.calibration.standards
+                    },
+                    "time": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+                },
+            )
+
+    def _last_average(self, step: Step) -> tuple[np.ndarray, np.ndarray]:
+        from bench.procedure.processing import averaged
+
+        return averaged(self.store, step.id)
+
+    def _correction(self) -> Corrector:
+        if self._corrector is None:
+            self._corrector = Corrector.from_store(self.store, self.plan)
+        return self._corrector
+
+    def _mount_short(self, step: Step) -> None:
+        assert step.position is not None
+        pos = step.position
+        while True:
+            self._cables_to("fixture")
+            if pos not in self._strapped:
+                todo = [
+                    s.position
+                    for s in self.plan.steps
+                    if s.kind == "mount_short"
+                    and s.position is not None
+                    and self.store.step_state(s.id) not in (DONE, SKIPPED)
+                ]
+                with self.display.pause():
+                    self.operator.strap_mounts(todo)
+                self._strapped.update(todo)
+                self._batch = None
+            self._select(pos)
+            self._sweeps(step, f"mount short, position {pos}")
+            f, z_short = mount_short_impedance(self.plan, self._correction(), self.store, pos)
+            loop = ground_loop(f, z_short, pos)
+            result = f"|Z| {np.median(np.abs(z_short)) * 1e3:.3g} mOhm (median)"
+            if loop.detected:
+                result += f"; ground loop below {loop.valid_above_hz:g} Hz"
+            choice = self._decide(step, f"mount short {pos}", result)
+            if choice == REPEAT:
+                continue
+            break
+        loops = dict(self.store.manifest.get("ground_loop", {}))
+        loops[str(pos)] = {
+            "detected": loop.detected,
+            "valid_above_hz": loop.valid_above_hz,
+            "message": loop.message,
+        }
+        self.store.update("ground_loop", loops)
+        if loop.detected and self.operator.guided:
+            # The sweep is kept (moved aside), and the step runs again on resume.
+            for relative in self.store.step_files(step.id):
+                self.store.reject_raw(step.id, Path(relative).stem)
+            raise RunError(
+                f"ground loop on the mount short at position {pos}: {loop.message}. "
+                + GROUND_LOOP_ADVICE
+            )
+        if loop.detected:
+            note = (
+                f"position {pos}: ground loop, points below {loop.valid_above_hz:g} Hz "
+                "marked invalid"
+            )
+            warnings = list(self.store.manifest.get("warnings", []))
+            if note not in warnings:
+                warnings.append(note)
+            self.store.update("warnings", warnings)
+            self.display.message(note)
+            self._loops[pos] = loop.valid_above_hz
+        self._shorts[pos] = z_short
+
+    def _measure(self, step: Step) -> None:
+        placement = step.placement
+        assert placement is not None
+        part = self.plan.part(placement.part)
+        label = f"{placement.part}/{placement.sample}" + (
+            f" at {step.bias_v:g} V" if step.bias_v else ""
+        )
+        while True:
+            self._cables_to("fixture")
+            if self._batch != placement.batch:
+                batch = self.plan.batches[placement.batch]
+                with self.display.pause():
+                    self.operator.load_parts(batch)
+                self._batch = placement.batch
+                self._strapped.difference_update(p.position for p in batch)
+            self._select(placement.position)
+            if step.bias_v:
+                limit = self.plan.bias_limit(part)
+                if step.bias_v > limit:
+                    raise SafetyError(
+                        f"{label}: {step.bias_v:g} V is above the limit {limit:g} V; "
+                        "nothing applied"
+                    )
+                self._caution()
+                source = self._dc_source(limit)
+                b = self.plan.bias
+                with source.biased(
+                    step.bias_v,
+                    current_limit=min(b.current_limit, source.max_current),
+                    step_v=b.ramp_step,
+                    dwell_s=b.ramp_dwell_s,
+                    discharge_s=b.discharge_s,
+                ):
+                    if b.settle_s:
+                        self.sleep(b.settle_s)
+                    self._sweeps(step, f"{label}, position {placement.position}")
+            else:
+                self._sweeps(step, f"{label}, position {placement.position}")
+            result = self._live_result(step, part)
+            if not self.operator.guided:
+                self.display.result(result)
+            if self._decide(step, label, result) != REPEAT:
+                break
+
+    def _live_result(self, step: Step, part: Any) -> str:
+        """Landmarks of the sample just measured, for the live line (no fit yet)."""
+        from bench.core.landmarks import landmarks_for
+
+        placement = step.placement
+        assert placement is not None
+        label = placement.part + "/" + placement.sample
+        if step.bias_v:
+            label += f" {step.bias_v:g}V"
+        try:
+            f, s = self._last_average(step)
+            s21n = self._correction().correct(f, s)[:, 1, 0]
+            z_short = self._shorts.get(placement.position)
+            if (
+                z_short is None
+                and self.store.step_state(f"mount_short/p{placement.position}") == DONE
+            ):
+                _, z_short = mount_short_impedance(
+                    self.plan, self._correction(), self.store, placement.position
+                )
+                self._shorts[placement.position] = z_short
+            data = sample_impedance(self.plan, self.plan.analysis, f, s21n, z_short)
+            valid = np.asarray(data.inside_window) & (f >= self._loops.get(placement.position, 0.0))
+            kind = "capacitor" if part.spec.kind in ("mlcc", "bulk") else "inductor"
+            marks = landmarks_for(kind, f, data.z, valid)
+        except Exception as exc:  # the live line is information; the fit step decides
+            return f"{label}: no landmarks ({exc})"
+        return result_line(
+            label,
+            part.spec.kind,
+            marks,
+            nominal=part.spec.nominal,
+            tolerance=part.spec.tolerance,
+            outside=data.points_outside_window,
+        )
+
+    def _fit(self, step: Step) -> None:
+        self.display.step("fitting models")
+        summary = build_summary(self.store, self.plan)
+        models = self.store.root / "models"
+        for sample in summary.samples:
+            if sample.fit is not None:
+                text = json.dumps(sample.fit.to_json(), indent=2, default=_plain)
+                atomic_write_text(models / f"{file_stem(sample.label)}.fit.json", text + "\n")
+                part = self.plan.part(sample.part)
+                self.display.result(
+                    result_line(
+                        "fit " + sample.label,
+                        part.spec.kind,
+                        dict(sample.fit.landmarks),
+                        nominal=part.spec.nominal,
+                        tolerance=part.spec.tolerance,
+                    )
+                    + f"  [{sample.fit.model}, rms {sample.fit.quality.rms_log_error:.3f}]"
+                )
+            else:
+                self.display.result(f"fit {sample.label}: no model ({sample.fit_error})")
+        self.summary = summary
+
+    def _need_summary(self) -> RunSummary:
+        if self.summary is None:
+            self.summary = build_summary(self.store, self.plan)
+        return self.summary
+
+    def _export(self, step: Step) -> None:
+        self.display.step("writing exports")
+        try:
+            from bench.exports import write_exports
+        except ImportError:
+            self.store.mark(step.id, SKIPPED, message="exports are not available in this build")
+            return
+        written = write_exports(self.store.root, self._need_summary())
+        files = [
+            str(Path(p).relative_to(self.store.root)) for paths in written.values() for p in paths
+        ]
+        self.store.mark(step.id, DONE, files=files)
+
+    def _report(self, step: Step) -> None:
+        self.display.step("writing the report")
+        try:
+            from bench.report import write_report
+        except ImportError:
+            self.store.mark(step.id, SKIPPED, message="the report is not available in this build")
+            return
+        path = write_report(self.store.root, self._need_summary())
+        self.store.mark(step.id, DONE, files=[str(Path(path).relative_to(self.store.root))])
+        self.store.update("report", str(Path(path).relative_to(self.store.root)))
+
+
+def calibration_mismatch(old: dict[str, Any], new: dict[str, Any]) -> list[str]:
+    """Settings of a stored calibration that differ from the new plan's (empty: reusable)."""
+    problems = []
+    for section, keys in (
+        ("sweep", ("start", "stop", "points", "spacing", "if_bandwidth", "power")),
+        ("fixture", ("series_r", "isolation_transformer", "z0")),
+        ("calibration", ("method", "crossover_hz")),
+    ):
+        for key in keys:
+            a = old.get(section, {}).get(key)
+            b = new.get(section, {}).get(key)
+            if a != b:
+                problems.append(f"{section}.{key} was {a!r}, the plan has {b!r}")
+    return problems
+
+
+def _plain(value: Any) -> Any:
+    if isinstance(value, (np.floating, np.integer)):
+        return value.item()
+    if isinstance(value, np.ndarray):
+        return value.tolist()
+    return str(value)
