@@ -1,0 +1,428 @@
+"""Fitting equivalent circuits to a measured impedance.
+
+``fit_impedance(f, z, model=..., rel_uncertainty=..., valid=...)`` returns a frozen
+:class:`FitResult`. The method (DESIGN §4):
+
+- residuals are the real and imaginary parts of ``ln Zmodel − ln Zmeasured`` (the complex
+  log counts magnitude and phase alike over many decades of |Z|), each divided by the
+  point's relative uncertainty (with a small floor for model error, so no point
+  dominates because its noise happens to be tiny);
+- parameters are the logarithms of the element values, bounded, so every element stays
+  positive and the model passive;
+- start values come from the landmarks; each family gives a few deterministic starts
+  and the best result is kept; higher orders also start from the next lower order's fit;
+- the Jacobian is analytic: ``d ln Z/d ln p = p·(dZ/dp)/Z`` from the network tree;
+- the order of ``ladder``, ``inductor`` and ``bead``, and the family under ``auto``, is
+  chosen by the Bayesian information criterion ``m·ln(χ²/m) + k·ln(m)``;
+- element uncertainties come from the Jacobian, the covariance scaled by the residual
+  variance ``χ²/(m − k)``.
+
+Points outside the measurable window (``valid`` False) are dropped and counted. No I/O.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+from numpy.typing import NDArray
+from scipy.optimize import least_squares
+
+from bench.core.landmarks import Landmarks, classify, landmarks_for
+from bench.core.models import FAMILIES, MODEL_NAMES, ModelFamily
+from bench.core.models.network import (
+    clip_to_bounds,
+    impedance_and_jacobian,
+    network_impedance,
+    vanishing_sides,
+)
+from bench.errors import FitError, InputError
+
+DEFAULT_QUALITY_BOUND = 0.1
+# Relative model-error floor added in quadrature to each point's uncertainty: no circuit
+# of a few elements follows a real part to better than a few per cent everywhere, and
+# without it the points with the least noise (far from resonance) would outweigh the
+# resonance, where ESR is read.
+MODEL_ERROR_FLOOR = 0.02
+MIN_POINTS = 10
+SCOUT_EVALUATIONS = 12
+
+AUTO_CANDIDATES: dict[str, tuple[tuple[str, tuple[int, ...]], ...]] = {
+    "capacitor": (("series-rlc", (1,)), ("two-branch", (1,)), ("ladder", (2, 3, 4, 5))),
+    "inductor": (("inductor", (0, 1, 2)), ("bead", (1, 2))),
+}
+
+
+class ModelMismatchError(FitError):
+    """The model asked for describes another kind of part than the data shows (exit 2)."""
+
+    exit_code = 2
+
+
+@dataclass(frozen=True)
+class FitQuality:
+    """How well a model follows the measurement (DESIGN §3).
+
+    ``rms_log_error``: RMS over used points of ``|ln Zmodel − ln Zmeasured|`` (0.01 is
+    about 1 % in magnitude and 0.6° in phase); ``max_abs_log_error`` its maximum.
+    """
+
+    rms_log_error: float
+    max_abs_log_error: float
+    points_used: int
+    points_outside_window: int
+
+    def to_dict(self) -> dict[str, float | int]:
+        return {
+            "rms_log_error": self.rms_log_error,
+            "max_abs_log_error": self.max_abs_log_error,
+            "points_used": self.points_used,
+            "points_outside_window": self.points_outside_window,
+        }
+
+
+@dataclass(frozen=True)
+class Candidate:
+    """One family and order tried by the fitter, with its criterion and quality."""
+
+    model: str
+    order: int
+    bic: float
+    rms_log_error: float
+
+
+@dataclass(frozen=True)
+class FitResult:
+    """A fitted equivalent circuit.
+
+    ``elements`` and ``uncertainties`` (one sigma) in SI units (Ω, H, F); ``landmarks``
+    computed from the fitted model on the measured grid; ``f_range`` (Hz) the span of
+    the points used. ``meets_quality`` is ``rms_log_error <= quality_bound``.
+    """
+
+    model: str
+    kind: str
+    elements: dict[str, float]
+    uncertainties: dict[str, float]
+    landmarks: Landmarks
+    quality: FitQuality
+    warnings: tuple[str, ...] = ()
+    order: int = 1
+    quality_bound: float = DEFAULT_QUALITY_BOUND
+    f_range: tuple[float, float] = (math.nan, math.nan)
+    candidates: tuple[Candidate, ...] = field(default=())
+
+    @property
+    def meets_quality(self) -> bool:
+        return bool(self.quality.rms_log_error <= self.quality_bound)
+
+    @property
+    def family(self) -> ModelFamily:
+        return FAMILIES[self.model]
+
+    def impedance(self, f: Any) -> NDArray[np.complex128]:
+        """Model impedance (Ω) at ``f`` (Hz, > 0)."""
+        return self.family.impedance(np.asarray(f, dtype=float), self.elements)
+
+    def spice_lines(self) -> list[str]:
+        """SPICE element lines of the model between pins 1 and 2."""
+        return self.family.spice_lines(self.elements)
+
+    def to_json(self) -> dict[str, Any]:
+        """The object ``zbench fit --json`` prints (without ``spice``); SI units."""
+        return {
+            "model": self.model,
+            "kind": self.kind,
+            "order": self.order,
+            "elements": dict(self.elements),
+            "uncertainties": dict(self.uncertainties),
+            "landmarks": dict(self.landmarks),
+            "quality": self.quality.to_dict(),
+            "quality_bound": self.quality_bound,
+            "meets_quality": self.meets_quality,
+            "warnings": list(self.warnings),
+        }
+
+
+@dataclass(frozen=True)
+class _Trial:
+    family: ModelFamily
+    order: int
+    values: dict[str, float]
+    q: NDArray[np.float64]
+    chi2: float
+    bic: float
+    rms: float
+    at_bound: tuple[str, ...]
+
+
+def _check_inputs(f: Any, z: Any, rel_uncertainty: Any, valid: Any):
+    f = np.asarray(f, dtype=float)
+    z = np.asarray(z, dtype=complex)
+    if f.ndim != 1 or z.shape != f.shape:
+        raise InputError(
+            f"frequencies and impedances must be 1-D arrays of one length; "
+            f"got shapes {f.shape} and {z.shape}",
+            hint="pass one impedance value per frequency point",
+        )
+    if not np.all(np.isfinite(f)) or np.any(f <= 0):
+        raise InputError(
+            "frequencies must be finite and above 0 Hz",
+            hint="remove points at 0 Hz or with missing frequencies",
+        )
+    if f.size > 1 and np.any(np.diff(f) <= 0):
+        raise InputError(
+            "frequencies must increase strictly from point to point",
+            hint="sort the sweep and remove repeated frequencies",
+        )
+    sigma = np.ones(f.size) * 0.01
+    if rel_uncertainty is not None:
+        sigma = np.asarray(rel_uncertainty, dtype=float)
+        if sigma.shape != f.shape:
+            raise InputError(
+                f"rel_uncertainty must have one value per point ({f.size}), got shape {sigma.shape}"
+            )
+    inside = np.ones(f.size, dtype=bool)
+    if valid is not None:
+        inside = np.asarray(valid, dtype=bool)
+        if inside.shape != f.shape:
+            raise InputError(
+                f"valid must have one flag per point ({f.size}), got shape {inside.shape}"
+            )
+    return f, z, sigma, inside
+
+
+def _solve(residuals, jacobian, q0, lo, hi, max_nfev: int) -> tuple[float, NDArray[np.float64]]:
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        sol = least_squares(
+            residuals, q0, jac=jacobian, bounds=(lo, hi), method="trf", x_scale=1.0,
+            max_nfev=max_nfev,
+        )  # fmt: skip
+    return 2.0 * float(sol.cost), sol.x
+
+
+def _fit_order(
+    family: ModelFamily,
+    order: int,
+    f: NDArray[np.float64],
+    z: NDArray[np.complex128],
+    weight: NDArray[np.float64],
+    landmarks: Landmarks,
+    previous: Mapping[str, float] | None,
+) -> _Trial:
+    names = family.element_names(order)
+    node = family.circuit(order)
+    limits = family.bounds(order, f, landmarks)
+    lo = np.log([limits[n][0] for n in names])
+    hi = np.log([limits[n][1] for n in names])
+    m = 2 * f.size
+    k = len(names)
+
+    def residuals(q: NDArray[np.float64]) -> NDArray[np.float64]:
+        zm = network_impedance(node, f, dict(zip(names, np.exp(q), strict=True)))
+        r = np.log(zm / z) * weight
+        return np.concatenate([r.real, r.imag])
+
+    def jacobian(q: NDArray[np.float64]) -> NDArray[np.float64]:
+        zm, jac = impedance_and_jacobian(node, f, dict(zip(names, np.exp(q), strict=True)))
+        d = jac / zm * weight
+        return np.concatenate([d.real.T, d.imag.T])
+
+    # Short runs from every start, then the most promising one or two run to convergence:
+    # the restarts guard against a poor local minimum without paying for full runs.
+    trials = []
+    for start in family.starts(order, f, z, landmarks, previous):
+        q0 = np.log([clip_to_bounds(start, limits)[n] for n in names])
+        with np.errstate(all="ignore"):
+            r0 = residuals(q0)
+        if not np.all(np.isfinite(r0)):
+            continue
+        trials.append(_solve(residuals, jacobian, q0, lo, hi, SCOUT_EVALUATIONS))
+    trials = [t for t in trials if np.isfinite(t[0])]
+    if not trials:
+        raise FitError(f"model {family.name} (order {order}): no start value gave a finite model")
+    trials.sort(key=lambda t: t[0])
+    best = None
+    for _, q_scout in trials[:2]:
+        result = _solve(residuals, jacobian, q_scout, lo, hi, 60 * (k + 1))
+        if np.isfinite(result[0]) and (best is None or result[0] < best[0]):
+            best = result
+    if best is None:
+        best = trials[0]
+    chi2, q = best
+    values = dict(zip(names, (float(v) for v in np.exp(q)), strict=True))
+    zm = network_impedance(node, f, values)
+    err = np.abs(np.log(zm / z))
+    bic = m * math.log(max(chi2, 1e-300) / m) + k * math.log(m)
+    vanish = vanishing_sides(node)
+    at_bound = tuple(
+        n
+        for n, qi, a, b in zip(names, q, lo, hi, strict=True)
+        if (qi - a < 1e-3 and vanish[n] != "low") or (b - qi < 1e-3 and vanish[n] != "high")
+    )
+    return _Trial(family, order, values, q, chi2, bic, float(np.sqrt(np.mean(err**2))), at_bound)
+
+
+def _uncertainties(trial: _Trial, f, z, weight) -> dict[str, float]:
+    names = trial.family.element_names(trial.order)
+    node = trial.family.circuit(trial.order)
+    zm, jac = impedance_and_jacobian(node, f, trial.values)
+    d = jac / zm * weight
+    jm = np.concatenate([d.real.T, d.imag.T])
+    m, k = jm.shape
+    dof = max(m - k, 1)
+    with np.errstate(all="ignore"):
+        cov = np.linalg.pinv(jm.T @ jm) * (trial.chi2 / dof)
+    sigma_log = np.sqrt(np.clip(np.diag(cov), 0.0, None))
+    return {n: float(trial.values[n] * s) for n, s in zip(names, sigma_log, strict=True)}
+
+
+def _candidates(
+    model: str, kind: str, order: int | None
+) -> list[tuple[ModelFamily, tuple[int, ...]]]:
+    if model == "auto":
+        return [(FAMILIES[name], orders) for name, orders in AUTO_CANDIDATES[kind]]
+    family = FAMILIES[model]
+    if order is not None:
+        if order not in family.orders:
+            raise InputError(
+                f"model {model} has orders {', '.join(map(str, family.orders))}; got {order}",
+                hint="leave the order out to let the fit choose it",
+            )
+        return [(family, (order,))]
+    return [(family, family.orders)]
+
+
+def _resonance_warnings(
+    kind: str, f: NDArray[np.float64], inside: NDArray[np.bool_], model_marks: Landmarks,
+    data_marks: Landmarks,
+) -> list[str]:  # fmt: skip
+    srf = model_marks.get("srf")
+    what = "series resonance" if kind == "capacitor" else "parallel resonance"
+    out = []
+    if srf is None:
+        out.append(
+            f"the model's {what} lies outside the sweep "
+            f"({f[0]:.4g} to {f[-1]:.4g} Hz); srf is not given"
+        )
+        return out
+    nearest = int(np.argmin(np.abs(np.log(f / srf))))
+    if not inside[nearest] or data_marks.get("srf") is None:
+        out.append(
+            f"the {what} near {srf:.4g} Hz lies outside the measurable window; "
+            "srf and the value at resonance come from the model, not from measured points"
+        )
+    return out
+
+
+def fit_impedance(
+    f: Any,
+    z: Any,
+    *,
+    model: str = "auto",
+    rel_uncertainty: Any = None,
+    valid: Any = None,
+    quality_bound: float = DEFAULT_QUALITY_BOUND,
+    order: int | None = None,
+) -> FitResult:
+    """Fit an equivalent circuit to the impedance ``z`` (Ω, complex) at ``f`` (Hz).
+
+    ``model`` is a family name (``series-rlc``, ``two-branch``, ``ladder``, ``inductor``,
+    ``bead``) or ``auto`` (family and order by information criterion). ``rel_uncertainty``
+    is the relative uncertainty of each point (fraction, e.g. 0.01) and weights the fit;
+    ``valid`` marks points inside the measurable window (others are dropped and counted).
+    ``quality_bound`` is the largest ``rms_log_error`` that ``meets_quality`` accepts.
+    ``order`` fixes the order of a family with several.
+
+    Raises :class:`InputError` for malformed arrays or an unknown model,
+    :class:`ModelMismatchError` when the model's kind (capacitor or inductor) is not the
+    data's, and :class:`FitError` when too few usable points remain.
+    """
+    if model not in MODEL_NAMES:
+        raise InputError(f"unknown model {model!r}", hint=f"choose one of {', '.join(MODEL_NAMES)}")
+    f, z, sigma, inside = _check_inputs(f, z, rel_uncertainty, valid)
+    finite = np.isfinite(z) & (z != 0) & np.isfinite(sigma)
+    used = finite & inside
+    warnings: list[str] = []
+    n_unusable = int(np.count_nonzero(~finite))
+    if n_unusable:
+        warnings.append(f"{n_unusable} points with missing, zero or infinite values were not used")
+    n_outside = int(np.count_nonzero(finite & ~inside))
+    if n_outside:
+        warnings.append(
+            f"{n_outside} of {f.size} points lie outside the measurable window and were not used"
+        )
+    n_used = int(np.count_nonzero(used))
+    if n_used < MIN_POINTS:
+        raise FitError(
+            f"only {n_used} of {f.size} points are usable (inside the measurable window, "
+            f"finite); a fit needs at least {MIN_POINTS}. Widen the sweep, raise the "
+            "signal, or fit series resistors to move the window onto the part"
+        )
+    fu, zu = f[used], z[used]
+    kind = classify(fu, zu)
+    if model != "auto" and FAMILIES[model].kind != kind:
+        fits = [name for name, fam in FAMILIES.items() if fam.kind == kind]
+        raise ModelMismatchError(
+            f"model {model!r} describes {FAMILIES[model].kind}s, but the data is "
+            f"{'capacitive' if kind == 'capacitor' else 'inductive'} at its lowest "
+            f"frequencies, so it is a {kind}; use --model auto or one of {', '.join(fits)}"
+        )
+    weight = 1.0 / np.hypot(np.clip(sigma[used], 1e-6, None), MODEL_ERROR_FLOOR)
+    data_marks = landmarks_for(kind, fu, zu)
+
+    trials: list[_Trial] = []
+    for family, orders in _candidates(model, kind, order):
+        previous = None
+        best_bic = math.inf
+        for o in orders:
+            if 2 * n_used <= len(family.element_names(o)) + 1:
+                break
+            trial = _fit_order(family, o, fu, zu, weight, data_marks, previous)
+            trials.append(trial)
+            previous = trial.values
+            if trial.bic > best_bic + 10.0:
+                break  # the criterion has turned; higher orders will not pay
+            best_bic = min(best_bic, trial.bic)
+    if not trials:
+        raise FitError(f"too few points ({n_used}) for any order of model {model!r}")
+    best = min(trials, key=lambda t: t.bic)
+
+    zm = network_impedance(best.family.circuit(best.order), fu, best.values)
+    err = np.abs(np.log(zm / zu))
+    quality = FitQuality(
+        rms_log_error=float(np.sqrt(np.mean(err**2))),
+        max_abs_log_error=float(np.max(err)),
+        points_used=n_used,
+        points_outside_window=n_outside,
+    )
+    model_marks = landmarks_for(
+        kind, f, network_impedance(best.family.circuit(best.order), f, best.values)
+    )
+    warnings += _resonance_warnings(kind, f, used, model_marks, data_marks)
+    if best.at_bound:
+        warnings.append(
+            f"elements {', '.join(best.at_bound)} ended at the edge of their allowed range; "
+            "the data may not determine them"
+        )
+    if quality.rms_log_error > quality_bound:
+        warnings.append(
+            f"rms log error {quality.rms_log_error:.3g} exceeds the quality bound "
+            f"{quality_bound:.3g}; try another model or check the measurement"
+        )
+    return FitResult(
+        model=best.family.name,
+        kind=kind,
+        elements=dict(best.values),
+        uncertainties=_uncertainties(best, fu, zu, weight),
+        landmarks=model_marks,
+        quality=quality,
+        warnings=tuple(warnings),
+        order=best.order,
+        quality_bound=float(quality_bound),
+        f_range=(float(fu[0]), float(fu[-1])),
+        candidates=tuple(Candidate(t.family.name, t.order, float(t.bic), t.rms) for t in trials),
+    )

@@ -1,0 +1,241 @@
+"""Landmarks of a measured impedance: the figures an engineer reads off the plot.
+
+Capacitors (``capacitor_landmarks``): ``c_low`` (F), ``esl`` (H), ``srf`` (Hz, first
+series resonance) and ``esr_at_srf`` (Ω). Inductors and beads (``inductor_landmarks``):
+``l_low`` (H), ``r_dc`` (Ω), ``srf`` (Hz, first parallel resonance), ``z_at_srf`` (Ω) and
+``c_par`` (F). A landmark that the data cannot give (a resonance beyond the sweep, too
+few points in a band) is ``None``.
+
+Every figure comes from a band of points, never from one point, so noise averages out:
+- capacitance: least squares of the elastance ``-ωX`` (ESL-corrected) over the lowest
+  decade of valid capacitive points (REFERENCES §3: C = -1/(ωX) well below f0);
+- inductance: the same on ``Im(1/Y')/ω`` over the lowest decade where the reactance
+  dominates, with the parallel capacitance taken out of ``Y``;
+- resonances: the sign change of the reactance (admittance for parallel resonance) in a
+  lightly smoothed trace, then a local least-squares line of ``ω·X`` against ``ω²``
+  (exact for a series R-L-C, REFERENCES §3) over the points around it;
+- values at resonance: a quadratic in ``log f`` through the neighbouring points.
+Points outside the measurable window (``valid`` False) are ignored.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+from numpy.typing import NDArray
+
+Landmarks = dict[str, float | None]
+
+
+def _prepare(f: Any, z: Any, valid: Any) -> tuple[NDArray[np.float64], NDArray[np.complex128]]:
+    f = np.asarray(f, dtype=float)
+    z = np.asarray(z, dtype=complex)
+    if f.shape != z.shape or f.ndim != 1:
+        raise ValueError(f"f and z must be 1-D arrays of one length, got {f.shape} and {z.shape}")
+    keep = np.isfinite(f) & np.isfinite(z) & (f > 0) & (z != 0)
+    if valid is not None:
+        valid = np.asarray(valid, dtype=bool)
+        if valid.shape != f.shape:
+            raise ValueError(f"valid must have the shape of f {f.shape}, got {valid.shape}")
+        keep &= valid
+    order = np.argsort(f[keep])
+    return f[keep][order], z[keep][order]
+
+
+def _smooth(y: NDArray[np.float64], width: int) -> NDArray[np.float64]:
+    """Running median over ``width`` points (odd), edges shrunk: keeps sign changes sharp."""
+    if width <= 1 or y.size < 3:
+        return y
+    half = width // 2
+    out = np.empty_like(y)
+    for i in range(y.size):
+        out[i] = np.median(y[max(0, i - half) : i + half + 1])
+    return out
+
+
+def _points_per_decade(f: NDArray[np.float64]) -> float:
+    if f.size < 2:
+        return 1.0
+    return (f.size - 1) / max(np.log10(f[-1] / f[0]), 1e-9)
+
+
+def _crossing(
+    f: NDArray[np.float64], y: NDArray[np.float64], rising: bool
+) -> float | None:
+    """First frequency where ``y`` changes sign (− to + when ``rising``), refined.
+
+    The sign change is looked for in a running median (about 1/20 decade wide, at least
+    3 points) so that noise near the zero does not make false crossings; a crossing must
+    hold for a few points. The estimate is then refined by a straight line of ``ω·y``
+    against ``ω²`` through the points within ±15 % of it (for ``y`` = X of a series
+    R-L-C, ``ω·X = ω²L − 1/C`` exactly).
+    """
+    if f.size < 4:
+        return None
+    width = max(3, round(_points_per_decade(f) / 20) | 1)
+    s = _smooth(y, width)
+    sign = np.sign(s) if rising else -np.sign(s)
+    hold = max(2, width // 2)
+    idx = None
+    for i in range(1, f.size):
+        if sign[i - 1] < 0 and sign[i] > 0:
+            after = sign[i : i + hold]
+            before = sign[max(0, i - hold) : i]
+            if np.all(after > 0) and np.all(before < 0):
+                idx = i
+                break
+    if idx is None:
+        return None
+    # Linear interpolation of the smoothed trace in log f for a first estimate.
+    x0, x1 = np.log(f[idx - 1]), np.log(f[idx])
+    y0, y1 = s[idx - 1], s[idx]
+    guess = float(np.exp(x0 - y0 * (x1 - x0) / (y1 - y0)))
+    near = (f > guess / 1.15) & (f < guess * 1.15)
+    if np.count_nonzero(near) >= 3:
+        w = 2 * np.pi * f[near]
+        a, b = np.polyfit(w**2, w * y[near], 1)
+        if a != 0 and -b / a > 0:
+            refined = float(np.sqrt(-b / a) / (2 * np.pi))
+            if guess / 1.15 < refined < guess * 1.15:
+                return refined
+    return guess
+
+
+def _value_at(f: NDArray[np.float64], y: NDArray[np.float64], f0: float) -> float | None:
+    """``y`` at ``f0`` from a quadratic in log f through the neighbouring points."""
+    if f.size == 0:
+        return None
+    near = (f > f0 / 1.12) & (f < f0 * 1.12)
+    if np.count_nonzero(near) < 5:
+        # Sparse grid: the five nearest points.
+        order = np.argsort(np.abs(np.log(f / f0)))[:5]
+        near = np.zeros(f.size, dtype=bool)
+        near[order] = True
+    x = np.log(f[near] / f0)
+    if np.count_nonzero(near) >= 3 and np.ptp(x) > 0:
+        coeff = np.polyfit(x, y[near], 2)
+        return float(np.polyval(coeff, 0.0))
+    return float(np.mean(y[near]))
+
+
+def classify(f: Any, z: Any, valid: Any = None) -> str:
+    """``"capacitor"`` when the low-frequency reactance is capacitive, else ``"inductor"``.
+
+    Uses the sine of the phase over the lowest quarter (in log f) of the valid points, so
+    a resistive, noisy start of an inductor does not read as a capacitor.
+    """
+    f, z = _prepare(f, z, valid)
+    if f.size == 0:
+        raise ValueError("no finite, valid points to classify")
+    low = f <= f[0] * (f[-1] / f[0]) ** 0.25
+    score = float(np.sum(z[low].imag / np.abs(z[low])))
+    return "capacitor" if score < 0 else "inductor"
+
+
+def _low_decade(f: NDArray[np.float64], mask: NDArray[np.bool_]) -> NDArray[np.bool_]:
+    """The points of ``mask`` within a decade of the lowest one."""
+    if not np.any(mask):
+        return mask
+    f_first = f[mask][0]
+    return mask & (f <= 10 * f_first)
+
+
+def capacitor_landmarks(f: Any, z: Any, valid: Any = None) -> Landmarks:
+    """Landmarks of a capacitor: ``c_low`` (F), ``esl`` (H), ``srf`` (Hz), ``esr_at_srf`` (Ω).
+
+    ``f`` in Hz (any positive range), ``z`` complex Ω, ``valid`` an optional bool mask of
+    points inside the measurable window.
+    """
+    f, z = _prepare(f, z, valid)
+    out: Landmarks = {"c_low": None, "esl": None, "srf": None, "esr_at_srf": None}
+    if f.size < 4:
+        return out
+    w = 2 * np.pi * f
+    x = z.imag
+    srf = _crossing(f, x, rising=True)
+    out["srf"] = srf
+    # ESL: least squares of X/ω over the top decade above 2·SRF (capacitance corrected).
+    esl = None
+    if srf is not None:
+        high = (f > 2 * srf) & (x > 0)
+        high &= f >= f[-1] / 10 if np.any(high & (f >= f[-1] / 10)) else high
+        if np.count_nonzero(high) >= 3:
+            esl = float(np.mean(x[high] / w[high]))
+    # Capacitance: elastance -ωX over the lowest decade well below the resonance.
+    cap = (x < 0) & (f < srf / 2.5) if srf is not None else x < 0
+    band = _low_decade(f, cap)
+    if np.count_nonzero(band) < 3:
+        band = _low_decade(f, x < 0)
+    if np.count_nonzero(band) >= 3:
+        elastance = np.mean(w[band] ** 2 * (esl or 0.0) - w[band] * x[band])
+        c_low = float(1.0 / elastance) if elastance > 0 else None
+        out["c_low"] = c_low
+        if esl is not None and c_low is not None and srf is not None:
+            # Refine ESL with the low-frequency capacitance taken out.
+            high = (f > 2 * srf) & (x > 0)
+            high &= f >= f[-1] / 10 if np.any(high & (f >= f[-1] / 10)) else high
+            esl = float(np.mean((x[high] + 1.0 / (w[high] * c_low)) / w[high]))
+    out["esl"] = esl
+    if srf is not None:
+        out["esr_at_srf"] = _value_at(f, z.real, srf)
+    return out
+
+
+def inductor_landmarks(f: Any, z: Any, valid: Any = None) -> Landmarks:
+    """Landmarks of an inductor or bead: ``l_low`` (H), ``r_dc`` (Ω), ``srf`` (Hz, parallel
+    resonance), ``z_at_srf`` (Ω, magnitude) and ``c_par`` (F, from ``srf`` and ``l_low``).
+
+    ``f`` in Hz, ``z`` complex Ω, ``valid`` an optional bool mask of points inside the
+    measurable window.
+    """
+    f, z = _prepare(f, z, valid)
+    out: Landmarks = {"l_low": None, "r_dc": None, "srf": None, "z_at_srf": None, "c_par": None}
+    if f.size < 4:
+        return out
+    w = 2 * np.pi * f
+    x = z.imag
+    # Parallel resonance: the susceptance rises through zero (− to +); for L‖R‖C,
+    # ω·Im Y = ω²C − 1/L is a straight line in ω², which the refinement uses.
+    srf = _crossing(f, (1.0 / z).imag, rising=True)
+    out["srf"] = srf
+    # DC resistance: median of Re Z over the lowest third of a decade.
+    lowest = f <= f[0] * 10 ** (1 / 3)
+    if np.count_nonzero(lowest) < 3:
+        lowest = np.arange(f.size) < 3
+    r_dc = float(np.median(z.real[lowest]))
+    out["r_dc"] = r_dc if r_dc > 0 else None
+    # Inductance over the lowest decade where the reactance dominates and well below SRF.
+    inductive = (x > np.abs(z.real)) & (x > 0)
+    if srf is not None:
+        inductive &= f < srf / 3
+    band = _low_decade(f, inductive)
+    if np.count_nonzero(band) < 3:
+        band = _low_decade(f, (x > 0) & ((f < srf / 3) if srf is not None else True))
+    l_low = None
+    c_par = 0.0
+    if np.count_nonzero(band) >= 3:
+        y = 1.0 / z[band]
+        for _ in range(3):
+            # Take the parallel capacitance out of the admittance, then read L from the rest.
+            zs = 1.0 / (y - 1j * w[band] * c_par)
+            l_low = float(np.mean(zs.imag / w[band]))
+            if srf is None or l_low <= 0:
+                break
+            c_par = 1.0 / ((2 * np.pi * srf) ** 2 * l_low)
+    out["l_low"] = l_low if l_low is not None and l_low > 0 else None
+    if srf is not None:
+        peak = _value_at(f, np.log(np.abs(z)), srf)
+        out["z_at_srf"] = float(np.exp(peak)) if peak is not None else None
+        if out["l_low"] is not None:
+            out["c_par"] = 1.0 / ((2 * np.pi * srf) ** 2 * out["l_low"])
+    return out
+
+
+def landmarks_for(kind: str, f: Any, z: Any, valid: Any = None) -> Landmarks:
+    """Capacitor or inductor landmarks by ``kind`` (``"capacitor"`` or ``"inductor"``)."""
+    if kind == "capacitor":
+        return capacitor_landmarks(f, z, valid)
+    if kind == "inductor":
+        return inductor_landmarks(f, z, valid)
+    raise ValueError(f"kind must be 'capacitor' or 'inductor', got {kind!r}")

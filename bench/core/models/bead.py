@@ -1,0 +1,65 @@
+"""``bead``: a ferrite bead, ``Rdc + (L ‖ R ‖ C)``, optionally ``+ (L2 ‖ R2)``.
+
+The parallel L-R-C is the common-practice bead model (REFERENCES §3): below the peak the
+ferrite is inductive, at the peak resistive (``R``), above it the winding capacitance
+takes over. A second L-R relaxation (order 2) follows a loss that changes with
+frequency. Rdc and the inductors give the DC path.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+
+from bench.core.models.network import C, L, ModelFamily, R, landmark, parallel, series, wide_bounds
+
+
+def names(order: int) -> tuple[str, ...]:
+    out = ("Rdc", "L", "R", "C")
+    return (*out, "L2", "R2") if order == 2 else out
+
+
+def circuit(order: int = 1):
+    parts = [R("Rdc"), parallel(L("L"), R("R"), C("C"))]
+    if order == 2:
+        parts.append(parallel(L("L2"), R("R2")))
+    return series(*parts)
+
+
+def starts(order, f, z, landmarks: Mapping[str, Any], previous=None) -> list[dict[str, float]]:
+    f = np.asarray(f, dtype=float)
+    z = np.asarray(z, dtype=complex)
+    l_low = landmark(landmarks, "l_low", 1e-6)
+    r_dc = landmark(landmarks, "r_dc", float(np.min(np.abs(z.real))) or 1e-3)
+    srf = landmark(landmarks, "srf", f[-1] * 3)
+    c_par = landmark(landmarks, "c_par", 1.0 / ((2 * np.pi * srf) ** 2 * l_low))
+    z_srf = landmark(landmarks, "z_at_srf", float(np.max(np.abs(z))))
+    base = {"Rdc": r_dc, "L": l_low, "R": z_srf, "C": c_par}
+    if order == 1:
+        return [base, {**base, "R": z_srf * 1.5, "C": c_par * 0.8}]
+    out = []
+    if previous is not None:
+        out.append({**previous, "L2": 0.05 * previous["L"], "R2": 0.2 * previous["R"]})
+    for share, r_share in ((0.3, 0.3), (0.1, 0.1)):
+        out.append(
+            {**base, "L": l_low * (1 - share), "R": z_srf * (1 - r_share),
+             "L2": l_low * share, "R2": z_srf * r_share}
+        )  # fmt: skip
+    return out
+
+
+def bounds(order, f, landmarks) -> dict[str, tuple[float, float]]:
+    return wide_bounds(names(order))
+
+
+FAMILY = ModelFamily(
+    name="bead",
+    kind="inductor",
+    orders=(1, 2),
+    description="Rdc in series with L ‖ R ‖ C, optionally a second L ‖ R",
+    circuit=circuit,
+    starts=starts,
+    bounds=bounds,
+)

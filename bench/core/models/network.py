@@ -1,0 +1,284 @@
+"""Two-terminal R-L-C networks with analytic derivatives, and the model-family frame.
+
+A model family describes its circuit as a tree of series and parallel groups of
+positive R, L and C elements. From that one description come the impedance, its
+derivatives with respect to the logarithm of every element value (what the fitter needs)
+and the SPICE element lines. Positive elements make every model passive by construction.
+
+Derivatives in log space: for an element of value p, ``p·dZe/dp`` is ``+Ze`` for R and L
+and ``-Ze`` for C. In series the derivatives add; in a parallel group
+``dZ = (Z/Zi)^2 · dZi`` (from ``Z = 1/ΣYi``).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass
+from typing import Any, Union
+
+import numpy as np
+from numpy.typing import NDArray
+
+ComplexArray = NDArray[np.complex128]
+
+# A bleed resistor across a network with no DC path (every branch holds a capacitor), so
+# that ngspice finds an operating point. At 1e12 Ω it changes the impedance of a 1 pF
+# capacitor at 1 kHz (160 MΩ) by under 0.02 %, and of anything bigger by less.
+BLEED_RESISTANCE = 1e12
+
+
+@dataclass(frozen=True)
+class Element:
+    """One R, L or C element; ``name`` starts with its kind letter (``R1``, ``Lk1``, ``Cp``)."""
+
+    kind: str
+    name: str
+
+
+@dataclass(frozen=True)
+class Series:
+    parts: tuple[Node, ...]
+
+
+@dataclass(frozen=True)
+class Parallel:
+    parts: tuple[Node, ...]
+
+
+Node = Union[Element, Series, Parallel]  # noqa: UP007 - a runtime alias used in dataclasses
+
+
+def series(*parts: Node) -> Series:
+    return Series(tuple(parts))
+
+
+def parallel(*parts: Node) -> Parallel:
+    return Parallel(tuple(parts))
+
+
+def R(name: str) -> Element:
+    return Element("R", name)
+
+
+def L(name: str) -> Element:
+    return Element("L", name)
+
+
+def C(name: str) -> Element:
+    return Element("C", name)
+
+
+def element_names(node: Node) -> tuple[str, ...]:
+    """Element names in the order they appear in the tree."""
+    if isinstance(node, Element):
+        return (node.name,)
+    out: tuple[str, ...] = ()
+    for part in node.parts:
+        out += element_names(part)
+    return out
+
+
+def _evaluate(
+    node: Node, jw: ComplexArray, values: Mapping[str, float], index: Mapping[str, int], n: int
+) -> tuple[ComplexArray, ComplexArray]:
+    if isinstance(node, Element):
+        value = values[node.name]
+        if node.kind == "R":
+            z = np.full(jw.shape, value, dtype=complex)
+            dz = z
+        elif node.kind == "L":
+            z = jw * value
+            dz = z
+        else:
+            z = 1.0 / (jw * value)
+            dz = -z
+        jac = np.zeros((n, jw.size), dtype=complex)
+        jac[index[node.name]] = dz
+        return z, jac
+    results = [_evaluate(part, jw, values, index, n) for part in node.parts]
+    if isinstance(node, Series):
+        z = sum(r[0] for r in results)
+        jac = sum(r[1] for r in results)
+        return z, jac
+    y = sum(1.0 / r[0] for r in results)
+    z = 1.0 / y
+    jac = np.zeros((n, jw.size), dtype=complex)
+    for zi, ji in results:
+        jac += (z / zi) ** 2 * ji
+    return z, jac
+
+
+def impedance_and_jacobian(
+    node: Node, f: NDArray[np.float64], values: Mapping[str, float]
+) -> tuple[ComplexArray, ComplexArray]:
+    """Impedance (Ω) of ``node`` at ``f`` (Hz) and ``p·dZ/dp`` for each element.
+
+    Returns ``(z, jac)`` with ``z`` of shape ``(nf,)`` and ``jac`` of shape
+    ``(n_elements, nf)`` in the order of :func:`element_names`.
+    """
+    names = element_names(node)
+    index = {name: i for i, name in enumerate(names)}
+    jw = 2j * np.pi * np.asarray(f, dtype=float)
+    return _evaluate(node, jw, values, index, len(names))
+
+
+def network_impedance(node: Node, f: Any, values: Mapping[str, float]) -> ComplexArray:
+    """Impedance (Ω) of ``node`` at ``f`` (Hz) for element ``values`` (SI units)."""
+    jw = 2j * np.pi * np.asarray(f, dtype=float)
+    return _impedance(node, jw, values)
+
+
+def _impedance(node: Node, jw: ComplexArray, values: Mapping[str, float]) -> ComplexArray:
+    if isinstance(node, Element):
+        value = values[node.name]
+        if node.kind == "R":
+            return np.full(jw.shape, value, dtype=complex)
+        if node.kind == "L":
+            return jw * value
+        return 1.0 / (jw * value)
+    zs = [_impedance(part, jw, values) for part in node.parts]
+    if isinstance(node, Series):
+        return sum(zs)
+    return 1.0 / sum(1.0 / z for z in zs)
+
+
+def vanishing_sides(node: Node, inside: str = "series") -> dict[str, str]:
+    """For each element, the bound (``"low"`` or ``"high"``) at which it drops out.
+
+    In series an element vanishes as a short (R, L → low; C → high); in parallel as an
+    open (R, L → high; C → low). An element ending there is harmless: the data simply
+    did not need it.
+    """
+    if isinstance(node, Element):
+        short = {"R": "low", "L": "low", "C": "high"}
+        open_ = {"R": "high", "L": "high", "C": "low"}
+        return {node.name: (short if inside == "series" else open_)[node.kind]}
+    where = "series" if isinstance(node, Series) else "parallel"
+    out: dict[str, str] = {}
+    for part in node.parts:
+        out.update(vanishing_sides(part, where))
+    return out
+
+
+def has_dc_path(node: Node) -> bool:
+    """True when the network conducts at DC (some path holds no capacitor)."""
+    if isinstance(node, Element):
+        return node.kind != "C"
+    if isinstance(node, Series):
+        return all(has_dc_path(p) for p in node.parts)
+    return any(has_dc_path(p) for p in node.parts)
+
+
+def spice_lines(node: Node, values: Mapping[str, float], a: str = "1", b: str = "2") -> list[str]:
+    """SPICE element lines of ``node`` between nodes ``a`` and ``b``.
+
+    Internal nodes are named ``n1``, ``n2``, … (local to the subcircuit). A bleed
+    resistor ``Rbleed`` is added across the whole network when it has no DC path.
+    """
+    counter = [0]
+    lines: list[str] = []
+
+    def new_node() -> str:
+        counter[0] += 1
+        return f"n{counter[0]}"
+
+    def emit(n: Node, x: str, y: str) -> None:
+        if isinstance(n, Element):
+            lines.append(f"{n.name} {x} {y} {values[n.name]:.9g}")
+        elif isinstance(n, Series):
+            nodes = [x] + [new_node() for _ in n.parts[:-1]] + [y]
+            for part, u, v in zip(n.parts, nodes[:-1], nodes[1:], strict=True):
+                emit(part, u, v)
+        else:
+            for part in n.parts:
+                emit(part, x, y)
+
+    emit(node, a, b)
+    if not has_dc_path(node):
+        lines.append(f"Rbleed {a} {b} {BLEED_RESISTANCE:.6g}")
+    return lines
+
+
+# starts(order, f, z, landmarks, previous) -> start values; ``previous`` is the fitted
+# values of the next lower order of the same family, or None.
+Starts = Callable[
+    [int, NDArray[np.float64], ComplexArray, Mapping[str, Any], "Mapping[str, float] | None"],
+    list[dict[str, float]],
+]
+
+
+@dataclass(frozen=True)
+class ModelFamily:
+    """A family of equivalent circuits, possibly in several orders.
+
+    ``circuit(order)`` gives the network; ``starts(order, f, z, landmarks, previous)`` a
+    short list of deterministic start values (dicts of element values, SI) from the
+    landmarks and, when given, the fit of the next lower order;
+    ``bounds(order, f, landmarks)`` the (low, high) value of each element.
+    ``order_of(names)`` recovers the order from a set of element names.
+    """
+
+    name: str
+    kind: str
+    orders: tuple[int, ...]
+    description: str
+    circuit: Callable[[int], Node]
+    starts: Starts
+    bounds: Callable[[int, NDArray[np.float64], Mapping[str, Any]], dict[str, tuple[float, float]]]
+
+    def element_names(self, order: int | None = None) -> tuple[str, ...]:
+        return element_names(self.circuit(self.orders[0] if order is None else order))
+
+    def order_of(self, values: Mapping[str, float]) -> int:
+        """The order whose element names are exactly the keys of ``values``."""
+        keys = set(values)
+        for order in self.orders:
+            if set(self.element_names(order)) == keys:
+                return order
+        raise ValueError(
+            f"model {self.name}: elements {sorted(keys)} match no order; "
+            f"expected e.g. {list(self.element_names(self.orders[0]))}"
+        )
+
+    def impedance(self, f: Any, values: Mapping[str, float]) -> ComplexArray:
+        """Impedance (Ω) at ``f`` (Hz) of the circuit with element ``values`` (SI)."""
+        return network_impedance(self.circuit(self.order_of(values)), f, values)
+
+    def spice_lines(self, values: Mapping[str, float]) -> list[str]:
+        """SPICE element lines between pins 1 and 2 for element ``values`` (SI)."""
+        return spice_lines(self.circuit(self.order_of(values)), values)
+
+
+def clip_to_bounds(
+    values: Mapping[str, float], bounds: Mapping[str, tuple[float, float]]
+) -> dict[str, float]:
+    """Move start values strictly inside their bounds (a factor 1e-6 in log space)."""
+    out = {}
+    for name, value in values.items():
+        lo, hi = bounds[name]
+        v = float(value) if np.isfinite(value) and value > 0 else float(np.sqrt(lo * hi))
+        out[name] = float(np.clip(v, lo * (1 + 1e-6), hi * (1 - 1e-6)))
+    return out
+
+
+def landmark(landmarks: Mapping[str, Any], key: str, default: float) -> float:
+    """A landmark value, or ``default`` when it is missing or not a positive number."""
+    value = landmarks.get(key)
+    if value is None or not np.isfinite(value) or value <= 0:
+        return float(default)
+    return float(value)
+
+
+def span(f: Sequence[float]) -> tuple[float, float]:
+    f = np.asarray(f, dtype=float)
+    return float(f.min()), float(f.max())
+
+
+# Wide limits by element kind (SI): far outside any passive on a power-delivery network,
+# they only keep the optimiser in a range where the arithmetic stays finite.
+WIDE_BOUNDS = {"R": (1e-7, 1e7), "L": (1e-15, 1.0), "C": (1e-16, 10.0)}
+
+
+def wide_bounds(names: Sequence[str]) -> dict[str, tuple[float, float]]:
+    """The :data:`WIDE_BOUNDS` of each element by its kind letter."""
+    return {name: WIDE_BOUNDS[name[0]] for name in names}
