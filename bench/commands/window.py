@@ -1,0 +1,125 @@
+"""``zbench window``: the measurable impedance window of a shunt-through set-up (DESIGN §3).
+
+Values take SI prefixes as engineers write them (``--series-r 499``, ``--z0 50``,
+``--noise-floor "-110 dB"``, ``--tolerance 10%``). ``--json`` prints one JSON object
+with SI values (see :meth:`bench.core.window.Window.to_dict`).
+"""
+
+from __future__ import annotations
+
+import json
+
+import click
+
+from bench.core.window import (
+    DEFAULT_THROUGH_DRIFT_DB,
+    DEFAULT_TRACE_NOISE_DB,
+    Window,
+    measurable_window,
+)
+from bench.errors import InputError
+from bench.units import QuantityError, format_si, parse_quantity
+
+
+def _value(text: str, unit: str, option: str) -> float:
+    try:
+        return parse_quantity(text, unit, name=option)
+    except QuantityError as exc:
+        raise InputError(
+            str(exc), hint=f"give {option} as a number, e.g. {_EXAMPLES[option]}"
+        ) from exc
+
+
+def _fraction(text: str) -> float:
+    stripped = text.strip()
+    if stripped.endswith("%"):
+        return _value(stripped[:-1], "", "--tolerance") / 100.0
+    return _value(stripped, "", "--tolerance")
+
+
+_EXAMPLES = {
+    "--z0": "50",
+    "--series-r": "499 or 1k",
+    "--noise-floor": "-100 (dB relative to the through)",
+    "--trace-noise": "0.01 (dB RMS)",
+    "--through-drift": "0.1 (dB RMS)",
+    "--tolerance": "0.1 or 10%",
+}
+
+
+def describe_window(window: Window) -> str:
+    """The window as a short table for a person, with SI prefixes."""
+    w = window
+    eps = w.multiplicative_error * 100
+    rows = [
+        ("reference impedance z0", format_si(w.z0, "Ω")),
+        ("series resistor per port", f"{format_si(w.series_r, 'Ω')} (Ze = {format_si(w.ze, 'Ω')})"),
+        ("noise floor", f"{w.noise_floor_db:g} dB re through"),
+        (
+            "trace noise, through drift",
+            f"{w.trace_noise_db:g} dB, {w.through_drift_db:g} dB RMS (ε = {eps:.3g} %)",
+        ),
+        ("tolerance", f"{w.tolerance * 100:g} %"),
+        ("lowest impedance", format_si(w.z_min, "Ω")),
+        ("highest impedance", format_si(w.z_max, "Ω")),
+        ("span", f"{w.span_decades:.2f} decades"),
+        ("best point", f"{format_si(w.z_best, 'Ω')} ({w.best_uncertainty * 100:.3g} %)"),
+    ]
+    width = max(len(name) for name, _ in rows)
+    lines = ["Measurable window (shunt-through, resistive part)"]
+    lines += [f"  {name:<{width}}  {value}" for name, value in rows]
+    return "\n".join(lines)
+
+
+@click.command("window")
+@click.option("--z0", "z0", default="50", show_default=True, help="Port reference impedance (Ω).")
+@click.option(
+    "--series-r", default="0", show_default=True, help="Series resistor at each port (Ω)."
+)
+@click.option(
+    "--noise-floor",
+    default="-100",
+    show_default=True,
+    help="Noise floor in dB relative to the through.",
+)
+@click.option(
+    "--trace-noise",
+    default=str(DEFAULT_TRACE_NOISE_DB),
+    show_default=True,
+    help="RMS trace noise (dB).",
+)
+@click.option(
+    "--through-drift",
+    default=str(DEFAULT_THROUGH_DRIFT_DB),
+    show_default=True,
+    help="RMS drift of the through reference between calibration and measurement (dB).",
+)
+@click.option(
+    "--tolerance",
+    default="0.1",
+    show_default=True,
+    help="Largest relative uncertainty accepted, a fraction or a percentage (0.1 or 10%).",
+)
+@click.option("--json", "as_json", is_flag=True, help="Print one JSON object, SI units.")
+def command(
+    z0: str,
+    series_r: str,
+    noise_floor: str,
+    trace_noise: str,
+    through_drift: str,
+    tolerance: str,
+    as_json: bool,
+) -> None:
+    """Print the measurable impedance window for a set-up."""
+    window = measurable_window(
+        z0=_value(z0, "ohm", "--z0"),
+        series_r=_value(series_r, "ohm", "--series-r"),
+        noise_floor_db=_value(noise_floor, "dB", "--noise-floor"),
+        trace_noise_db=_value(trace_noise, "dB", "--trace-noise"),
+        through_drift_db=_value(through_drift, "dB", "--through-drift"),
+        tolerance=_fraction(tolerance),
+    )
+    if as_json:
+        click.echo(json.dumps(window.to_dict()))
+    else:
+        click.echo(describe_window(window))
