@@ -1,0 +1,304 @@
+"""``zbench fit FILE...``: fit equivalent circuits to stored measurements (DESIGN §3).
+
+Each FILE is a 2-port Touchstone of a calibrated shunt-through measurement (Z from S21
+with the port series resistors) or a 1-port Touchstone holding Z. With ``--json`` one
+JSON object per file is printed, one per line (JSON Lines), SI units throughout::
+
+    {"file": ..., "model": ..., "elements": {...}, "landmarks": {...},
+     "quality": {"rms_log_error": ..., "max_abs_log_error": ..., "points_used": N,
+                 "points_outside_window": N}, "spice": "path or null"}
+
+``--spice OUT``: with one FILE, OUT is the subcircuit file written (or, if OUT is an
+existing folder, ``OUT/<file stem>.sub``). With several FILEs, OUT ending in ``.lib`` is
+one library holding every subcircuit; any other OUT is a folder (created if needed)
+receiving one ``<file stem>.sub`` per FILE. Subcircuit names are the file stems made
+SPICE tokens.
+
+Several files are fitted in one process; a bad file does not stop the others. Exit
+code: 0 all fitted; 3 some fit did not meet its quality bound (its result is still
+printed and written); 2 some input was bad (message on stderr naming the file and the
+fix); 1 internal error. When several apply, 1 wins over 2, and 2 over 3.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import click
+
+from bench import api
+from bench.errors import FitError, InputError, ZbenchError
+from bench.files import atomic_write_text
+from bench.units import format_si
+
+UNITS = {
+    "c_low": "F",
+    "esl": "H",
+    "srf": "Hz",
+    "esr_at_srf": "Ω",
+    "l_low": "H",
+    "r_dc": "Ω",
+    "z_at_srf": "Ω",
+    "c_par": "F",
+}
+
+
+class InternalError(ZbenchError):
+    """An unexpected failure while fitting one of several files (exit 1)."""
+
+    exit_code = 1
+
+
+@dataclass
+class _Outcome:
+    path: str
+    result: Any = None
+    spice_text: str | None = None
+    spice_path: Path | None = None
+    error: str | None = None
+    exit_code: int = 0
+
+
+def _jsonable(value: Any) -> Any:
+    """Plain JSON values: non-finite numbers become null (JSON has no NaN)."""
+    if isinstance(value, dict):
+        return {str(k): _jsonable(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_jsonable(v) for v in value]
+    if isinstance(value, float):
+        return value if math.isfinite(value) else None
+    if hasattr(value, "item") and callable(value.item):  # numpy scalars
+        return _jsonable(value.item())
+    return value
+
+
+def _meets_quality(result: Any) -> bool:
+    return bool(getattr(result, "meets_quality", True))
+
+
+def _element_unit(name: str) -> str:
+    return {"R": "Ω", "L": "H", "C": "F"}.get(name[:1].upper(), "")
+
+
+def _summary_text(outcome: _Outcome) -> str:
+    result = outcome.result
+    q = result.quality
+    lines = [
+        f"{outcome.path}: {result.model} ({result.kind}), RMS complex-log error "
+        f"{q.rms_log_error:.3g}, largest {q.max_abs_log_error:.3g}; {q.points_used} points used, "
+        f"{q.points_outside_window} outside the window"
+    ]
+    marks = ", ".join(
+        f"{key} {format_si(float(value), UNITS.get(key, ''))}"
+        for key, value in result.landmarks.items()
+        if value is not None and math.isfinite(float(value))
+    )
+    lines.append(f"  landmarks: {marks}")
+    sigma = dict(getattr(result, "uncertainties", {}) or {})
+    elements = []
+    for key, value in result.elements.items():
+        text = f"{key} {format_si(float(value), _element_unit(key))}"
+        error = sigma.get(key)
+        if error is not None and value and math.isfinite(error):
+            text += f" ±{100 * error / value:.2g}%"
+        elements.append(text)
+    lines.append(f"  elements: {', '.join(elements)}")
+    for warning in result.warnings:
+        lines.append(f"  warning: {warning}")
+    if not _meets_quality(result):
+        lines.append("  warning: the fit does not meet its quality bound")
+    if outcome.spice_path is not None:
+        lines.append(f"  SPICE: {outcome.spice_path}")
+    return "\n".join(lines)
+
+
+def _parse_option(value: str | None, unit: str, option: str) -> float | None:
+    if value is None:
+        return None
+    return api._quantity(value, unit, option)
+
+
+def _spice_targets(files: tuple[str, ...], out: str | None) -> tuple[dict[str, Path], Path | None]:
+    """Per-file subcircuit paths, and the library path when all go in one library."""
+    if out is None:
+        return {}, None
+    target = Path(out)
+    stems = {}
+    for name in files:
+        stems.setdefault(Path(name).stem, []).append(name)
+    clashes = [names for names in stems.values() if len(names) > 1]
+    if len(files) > 1 and clashes:
+        raise InputError(
+            f"--spice {out}: several files share the stem {Path(clashes[0][0]).stem!r} "
+            f"({', '.join(clashes[0])}), so their subcircuits would share a name",
+            hint="rename the files, or fit them in separate calls",
+        )
+    if len(files) == 1:
+        path = target / f"{Path(files[0]).stem}.sub" if target.is_dir() else target
+        return {files[0]: path}, None
+    if target.suffix.lower() == ".lib":
+        return {}, target
+    if target.exists() and not target.is_dir():
+        raise InputError(
+            f"--spice {out}: is a file, but several inputs need a folder or a .lib library",
+            hint="give a folder, or a name ending in .lib for one library",
+        )
+    return {name: target / f"{Path(name).stem}.sub" for name in files}, None
+
+
+def _fit_one(
+    name: str,
+    *,
+    model: str,
+    series_r: float | None,
+    mount: Any,
+    fmin: float | None,
+    fmax: float | None,
+    spice_path: Path | None,
+    want_spice: bool,
+) -> _Outcome:
+    outcome = _Outcome(path=name)
+    result = api.fit(name, model=model, series_r=series_r, mount=mount, fmin=fmin, fmax=fmax)
+    outcome.result = result
+    if want_spice:
+        from bench.core.spice import subckt_text
+        from bench.exports import spice_name
+
+        provenance = api.default_provenance(
+            name,
+            series_r=f"{series_r or 0:g} ohm",
+            mount=str(mount) if mount is not None else "none",
+            model=result.model,
+        )
+        outcome.spice_text = subckt_text(result, spice_name(Path(name).stem), provenance=provenance)
+        if spice_path is not None:
+            atomic_write_text(spice_path, outcome.spice_text)
+            outcome.spice_path = spice_path
+    if not _meets_quality(result):
+        outcome.exit_code = 3
+    return outcome
+
+
+@click.command("fit")
+@click.argument("files", nargs=-1, required=True, metavar="FILE...")
+@click.option(
+    "--model",
+    default="auto",
+    show_default=True,
+    metavar="NAME",
+    help="series-rlc, two-branch, ladder, inductor, bead or auto (chooses family and order).",
+)
+@click.option("--series-r", metavar="OHMS", help="Resistor in series at each port (e.g. 499).")
+@click.option("--mount", metavar="FILE", help="Shorted-mount measurement to subtract.")
+@click.option("--fmin", metavar="HZ", help="Lowest frequency to fit (e.g. 1k).")
+@click.option("--fmax", metavar="HZ", help="Highest frequency to fit (e.g. 200 MHz).")
+@click.option(
+    "--spice", "spice_out", metavar="OUT", help="Write SPICE: a file, a folder or a .lib."
+)
+@click.option("--json", "as_json", is_flag=True, help="One JSON object per file (JSON Lines).")
+def command(
+    files: tuple[str, ...],
+    model: str,
+    series_r: str | None,
+    mount: str | None,
+    fmin: str | None,
+    fmax: str | None,
+    spice_out: str | None,
+    as_json: bool,
+) -> None:
+    """Fit equivalent-circuit models to stored measurements.
+
+    FILE is a 2-port Touchstone of a calibrated shunt-through measurement, or a 1-port
+    Touchstone holding Z. Values take SI prefixes (499, 2k, 100 MHz).
+    """
+    model = model.strip().lower()
+    api.check_model_name(model)
+    r = _parse_option(series_r, "ohm", "--series-r")
+    if r is not None and r < 0:
+        raise InputError(
+            f"--series-r {series_r}: a resistance cannot be negative", hint="give e.g. 0 or 499"
+        )
+    lo = _parse_option(fmin, "Hz", "--fmin")
+    hi = _parse_option(fmax, "Hz", "--fmax")
+    if lo is not None and hi is not None and lo >= hi:
+        raise InputError(
+            f"--fmin {fmin} is not below --fmax {fmax}", hint="swap or widen the limits"
+        )
+    mount_data = None
+    if mount is not None:
+        # Loaded once for all files; checked against each file's grid as it is used.
+        mount_data = api.load(mount, series_r=r or 0.0)
+    per_file, library = _spice_targets(files, spice_out)
+    outcomes: list[_Outcome] = []
+    for name in files:
+        try:
+            outcome = _fit_one(
+                name,
+                model=model,
+                series_r=r,
+                mount=mount_data,
+                fmin=lo,
+                fmax=hi,
+                spice_path=per_file.get(name),
+                want_spice=spice_out is not None,
+            )
+        except ZbenchError as exc:
+            text = str(exc)
+            if isinstance(exc, FitError):
+                text = f"{name}: no fit: {text}"
+            elif name not in text:
+                text = f"{name}: {text}"
+            outcome = _Outcome(path=name, error=text, exit_code=exc.exit_code)
+        except Exception as exc:  # one bad file must not stop an archive re-fit
+            outcome = _Outcome(
+                path=name,
+                error=f"{name}: internal error ({type(exc).__name__}: {exc})",
+                exit_code=1,
+            )
+        outcomes.append(outcome)
+        _emit(outcome, as_json=as_json)
+    if library is not None:
+        texts = [o.spice_text for o in outcomes if o.spice_text]
+        if texts:
+            from bench.core.spice import library_text
+
+            atomic_write_text(
+                library, library_text(texts, title=f"zbench fit of {len(texts)} files")
+            )
+            if not as_json:
+                click.echo(f"SPICE library: {library}")
+    _finish(outcomes, library)
+
+
+def _emit(outcome: _Outcome, *, as_json: bool) -> None:
+    if outcome.error is not None:
+        click.echo(f"zbench: {outcome.error}", err=True)
+        return
+    if as_json:
+        record = {"file": outcome.path, **outcome.result.to_json()}
+        record["spice"] = str(outcome.spice_path) if outcome.spice_path is not None else None
+        click.echo(json.dumps(_jsonable(record), allow_nan=False))
+    else:
+        click.echo(_summary_text(outcome))
+
+
+def _finish(outcomes: list[_Outcome], library: Path | None) -> None:
+    codes = [o.exit_code for o in outcomes]
+    failed = [o for o in outcomes if o.exit_code in (1, 2)]
+    if 1 in codes:
+        raise InternalError(
+            f"{codes.count(1)} of {len(outcomes)} files failed with an internal error; "
+            "please report it with the file"
+        )
+    if 2 in codes:
+        raise InputError(f"{len(failed)} of {len(outcomes)} files could not be fitted (see above)")
+    if 3 in codes:
+        below = [o.path for o in outcomes if o.exit_code == 3]
+        raise FitError(
+            f"{len(below)} of {len(outcomes)} fits did not meet their quality bound "
+            f"({', '.join(below)}); results were still written"
+        )
