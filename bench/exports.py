@@ -19,7 +19,8 @@ capacitors, ``l_low`` (H) for inductors, and for beads |Z| (Ω) at ``nominal_at_
 read from the measurement (log-log interpolation) when that frequency lies inside the
 sweep, else from the model. A sample passes when its main landmark lies within
 nominal × (1 ± tolerance); the verdict is blank when the procedure gives no nominal
-value or no tolerance. All values in the CSV files are SI (F, H, Hz, Ω, V); deviations
+value or no tolerance, and at DC bias points (a nominal value is stated without bias;
+the deviation is still given). All values in the CSV files are SI (F, H, Hz, Ω, V); deviations
 and tolerances are fractions.
 
 The pure functions :func:`summary_rows`, :func:`lot_statistics`, :func:`bias_table` and
@@ -92,16 +93,14 @@ def safe_filename(text: str) -> str:
 
 
 def spice_name(text: str) -> str:
-    """A subcircuit name SPICE reads as one token: ``4.5V`` becomes ``4p5V``.
+    """The subcircuit name SPICE gets for ``text``: ``MC-1_s1_4.5V`` → ``MC_1_s1_4p5V``.
 
-    Only letters, digits, ``_`` and ``-`` are kept (others become ``_``), and the name
-    starts with a letter, as every SPICE reads it.
+    A decimal point between digits becomes ``p`` (as SPICE users write 4p7), then the
+    core's rule applies (:func:`bench.core.spice.spice_name`: letters, digits and ``_``).
     """
-    name = re.sub(r"(?<=\d)\.(?=\d)", "p", text)
-    name = re.sub(r"[^A-Za-z0-9_\-]", "_", name)
-    if not name or not name[0].isalpha():
-        name = f"X{name}"
-    return name
+    from bench.core.spice import spice_name as core_spice_name
+
+    return core_spice_name(re.sub(r"(?<=\d)\.(?=\d)", "p", text))
 
 
 def sample_spice_name(sample: SampleResult) -> str:
@@ -161,16 +160,19 @@ def _finite(value: Any) -> float | None:
     return value if math.isfinite(value) else None
 
 
-def verdict(spec: PartSpec, value: float | None) -> tuple[float | None, str]:
+def verdict(spec: PartSpec, value: float | None, bias_v: float = 0.0) -> tuple[float | None, str]:
     """(deviation from nominal as a fraction, ``"pass"``/``"fail"``/``""``).
 
     Pass when ``|value/nominal − 1| ≤ tolerance``. Blank verdict when the procedure
-    gives no nominal value or no tolerance, or the value could not be had.
+    gives no nominal value or no tolerance, or the value could not be had. A nominal
+    value is stated without DC bias, so at a bias point (``bias_v`` ≠ 0 V) the deviation
+    is given but the verdict is left blank: a class II ceramic losing capacitance under
+    bias is not out of tolerance.
     """
     if value is None or not spec.nominal:
         return None, ""
     deviation = value / spec.nominal - 1.0
-    if spec.tolerance is None:
+    if spec.tolerance is None or bias_v:
         return deviation, ""
     # A hair of slack so a value printed exactly at the limit is not failed by rounding.
     return deviation, "pass" if abs(deviation) <= spec.tolerance * (1 + 1e-12) else "fail"
@@ -187,7 +189,7 @@ def summary_rows(summary: RunSummary) -> list[dict[str, Any]]:
         fit = sample.fit
         landmarks = dict(fit.landmarks) if fit is not None else {}
         name, value = main_landmark(spec, sample)
-        deviation, result = verdict(spec, value)
+        deviation, result = verdict(spec, value, sample.bias_v)
         quality = fit.quality if fit is not None else None
         outside = (
             quality.points_outside_window

@@ -163,9 +163,10 @@ def _si(value: float | None, unit: str, digits: int = 4) -> str:
     return esc(format_si(value, unit, digits))
 
 
-def _verdict_html(result: str) -> str:
+def _verdict_html(result: str, bias_v: float = 0.0) -> str:
     if not result:
-        return '<span class="note">no tolerance given</span>'
+        text = "not judged under bias" if bias_v else "no tolerance given"
+        return f'<span class="note">{text}</span>'
     return f'<span class="verdict-{esc(result)}">{esc(result.upper())}</span>'
 
 
@@ -264,7 +265,7 @@ def _glance_section(summary: RunSummary) -> str:
                 _si(row["measured"], unit),
                 _si(row["nominal"], unit),
                 _percent(row["deviation"]),
-                _verdict_html(row["result"]),
+                _verdict_html(row["result"], row["bias_v"]),
                 "—" if row["rms_log_error"] is None else f"{row['rms_log_error']:.3g}",
                 str(row["points_outside_window"]),
             ]
@@ -344,7 +345,7 @@ def _sample_section(
     )
     parts = [f'<section class="sample"><h4>{esc(heading)}</h4>']
     name, value = exports.main_landmark(spec, sample)
-    deviation, result = exports.verdict(spec, value)
+    deviation, result = exports.verdict(spec, value, sample.bias_v)
     unit = exports.LANDMARK_UNITS.get(name, "")
     facts = {
         "position": sample.position,
@@ -356,7 +357,7 @@ def _sample_section(
         tol = f" ± {100 * spec.tolerance:g} %" if spec.tolerance is not None else ""
         parts.append(
             f"<p>{esc(name)} = {_si(value, unit)} against {_si(spec.nominal, unit)}{esc(tol)}: "
-            f"deviation {_percent(deviation)}, {_verdict_html(result)}</p>"
+            f"deviation {_percent(deviation)}, {_verdict_html(result, sample.bias_v)}</p>"
         )
     parts.append(
         figs.embed(

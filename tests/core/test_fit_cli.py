@@ -1,0 +1,288 @@
+"""The ``zbench fit`` contract (DESIGN §3): JSON keys in SI units, JSON Lines for several
+files, SPICE output, exit codes, and a clear message without a traceback for each bad
+input the command must refuse."""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+import skrf
+
+from bench import api
+from bench.cli import main
+from bench.touchstone import write_touchstone_s, write_touchstone_z
+
+ROOT = Path(__file__).resolve().parents[2]
+EXAMPLES = ROOT / "examples"
+MLCC = EXAMPLES / "mlcc_22u.s2p"
+MOUNT = EXAMPLES / "mount_short.s2p"
+BULK = EXAMPLES / "bulk_330u.s2p"
+INDUCTOR = EXAMPLES / "inductor_2u2.s2p"
+BEAD = EXAMPLES / "bead_600r.z1p"
+
+QUALITY_KEYS = {"rms_log_error", "max_abs_log_error", "points_used", "points_outside_window"}
+
+
+def run(capsys: pytest.CaptureFixture[str], *args: object) -> tuple[int, str, str]:
+    code = main(["fit", *map(str, args)])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def json_lines(text: str) -> list[dict]:
+    return [json.loads(line) for line in text.splitlines() if line.strip()]
+
+
+def shunt_s2p(path: Path, f: np.ndarray, z: np.ndarray, series_r: float = 0.0) -> Path:
+    """A calibrated shunt-through file of impedance ``z`` (DESIGN §4 relation)."""
+    s21 = 2 * z / (2 * z + 50.0 + series_r)
+    s = np.empty((f.size, 2, 2), dtype=complex)
+    s[:, 0, 0] = s[:, 1, 1] = s21 - 1
+    s[:, 0, 1] = s[:, 1, 0] = s21
+    return write_touchstone_s(path, f, s)
+
+
+def rlc(f: np.ndarray, r: float = 5e-3, l: float = 0.5e-9, c: float = 10e-6) -> np.ndarray:  # noqa: E741
+    w = 2 * np.pi * f
+    return r + 1j * w * l + 1 / (1j * w * c)
+
+
+# ----------------------------------------------------------------------------- success
+
+
+def test_json_object_has_the_design_keys_in_si_units(capsys):
+    code, out, err = run(capsys, BULK, "--json")
+    assert code in (0, 3), err
+    (record,) = json_lines(out)
+    assert {"model", "elements", "landmarks", "quality", "spice"} <= set(record)
+    assert record["spice"] is None
+    assert set(record["quality"]) >= QUALITY_KEYS
+    assert record["model"] == "ladder"
+    # SI units: c_low in farads (330 µF invented part of examples/make_examples.py), not µF.
+    assert record["landmarks"]["c_low"] == pytest.approx(330e-6, rel=0.05)
+    assert record["landmarks"]["esl"] == pytest.approx(2.2e-9, rel=0.15)
+    assert all(isinstance(v, float) and v > 0 for v in record["elements"].values())
+    assert record["quality"]["points_used"] > 100
+
+
+def test_mount_removal_changes_the_low_impedance_landmarks(capsys):
+    code, out, err = run(capsys, MLCC, "--mount", MOUNT, "--json")
+    assert code in (0, 3), err
+    with_mount = json_lines(out)[0]
+    code, out, err = run(capsys, MLCC, "--json")
+    without = json_lines(out)[0]
+    # The example mount is 0.08 nH (invented, make_examples.py): removing it lowers ESL by it.
+    drop = without["landmarks"]["esl"] - with_mount["landmarks"]["esl"]
+    assert drop == pytest.approx(0.08e-9, rel=0.3)
+
+
+def test_several_files_give_json_lines_in_order(capsys):
+    code, out, err = run(capsys, BULK, INDUCTOR, "--series-r", "499", "--json")
+    assert code in (0, 3), err
+    records = json_lines(out)
+    assert [r["file"] for r in records] == [str(BULK), str(INDUCTOR)]
+    assert len(out.strip().splitlines()) == 2
+    assert "l_low" in records[1]["landmarks"]
+    # 2.2 µH invented inductor of make_examples.py, measured with 499 Ω resistors.
+    assert records[1]["landmarks"]["l_low"] == pytest.approx(2.2e-6, rel=0.05)
+
+
+def test_series_r_accepts_si_prefixes(capsys):
+    _, plain, _ = run(capsys, INDUCTOR, "--series-r", "499", "--json")
+    _, prefixed, _ = run(capsys, INDUCTOR, "--series-r", "0.499k", "--json")
+    assert json_lines(plain)[0]["landmarks"] == json_lines(prefixed)[0]["landmarks"]
+
+
+def test_fmin_fmax_limit_the_points_used(capsys):
+    code, out, err = run(capsys, BULK, "--fmin", "1 kHz", "--fmax", "10MHz", "--json")
+    assert code in (0, 3), err
+    f = skrf.Network(str(BULK)).f
+    expected = int(np.count_nonzero((f >= 1e3) & (f <= 1e7)))
+    quality = json_lines(out)[0]["quality"]
+    assert quality["points_used"] + quality["points_outside_window"] <= expected
+
+
+def test_readable_summary_without_json(capsys):
+    code, out, err = run(capsys, BEAD, "--series-r", "499")
+    assert code in (0, 3), err
+    assert str(BEAD) in out
+    assert "landmarks:" in out and "z_at_srf" in out and "Ω" in out
+    with pytest.raises(json.JSONDecodeError):
+        json.loads(out)
+
+
+def test_spice_for_one_file_is_that_file(capsys, tmp_path):
+    target = tmp_path / "bulk.sub"
+    code, out, err = run(capsys, BULK, "--spice", target, "--json")
+    assert code in (0, 3), err
+    assert json_lines(out)[0]["spice"] == str(target)
+    text = target.read_text()
+    assert ".subckt bulk_330u 1 2" in text.lower()
+    assert ".ends" in text.lower()
+
+
+def test_spice_for_several_files_is_a_folder_or_a_library(capsys, tmp_path):
+    folder = tmp_path / "models"
+    code, out, err = run(capsys, BULK, MLCC, "--spice", folder, "--json")
+    assert code in (0, 3), err
+    assert sorted(p.name for p in folder.iterdir()) == ["bulk_330u.sub", "mlcc_22u.sub"]
+    assert [r["spice"] for r in json_lines(out)] == [
+        str(folder / "bulk_330u.sub"),
+        str(folder / "mlcc_22u.sub"),
+    ]
+    library = tmp_path / "parts.lib"
+    code, out, err = run(capsys, BULK, MLCC, "--spice", library)
+    assert code in (0, 3), err
+    text = library.read_text().lower()
+    assert text.count(".subckt") == 2 and "bulk_330u" in text and "mlcc_22u" in text
+
+
+def test_quality_bound_not_met_exits_3_and_still_writes(capsys, tmp_path):
+    # A two-resonance impedance forced into a single series R-L-C cannot be fitted well.
+    f = np.logspace(3, 8.5, 201)
+    z = 1 / (1 / rlc(f, 2e-3, 0.5e-9, 10e-6) + 1 / rlc(f, 0.05, 0.05e-9, 0.2e-6))
+    path = shunt_s2p(tmp_path / "two_resonances.s2p", f, z)
+    target = tmp_path / "forced.sub"
+    code, out, err = run(capsys, path, "--model", "series-rlc", "--spice", target, "--json")
+    assert code == 3, err
+    assert json_lines(out)[0]["model"] == "series-rlc"
+    assert target.exists()
+    assert "quality" in err and "Traceback" not in err
+
+
+def test_internal_error_exits_1_without_traceback(capsys, monkeypatch):
+    def broken(*args, **kwargs):
+        raise RuntimeError("simulated failure inside the fitter")
+
+    monkeypatch.setattr(api, "fit", broken)
+    code, _out, err = run(capsys, BULK)
+    assert code == 1
+    assert "internal error" in err and "Traceback" not in err
+
+
+# ----------------------------------------------------------------------------- bad input
+
+
+def write_text(path: Path, text: str) -> Path:
+    path.write_text(text)
+    return path
+
+
+def s2p_lines(freqs, value="0.5 0.0") -> str:
+    row = " ".join([value] * 4)
+    return "# Hz S RI R 50\n" + "".join(f"{f:g} {row}\n" for f in freqs)
+
+
+def bad_cases(tmp_path: Path) -> dict[str, tuple[list[object], str]]:
+    f = np.logspace(3, 8, 50)
+    ok = shunt_s2p(tmp_path / "ok.s2p", f, rlc(f))
+    three = skrf.Network(frequency=skrf.Frequency.from_f(f, unit="Hz"), s=np.zeros((50, 3, 3)))
+    three.write_touchstone(str(tmp_path / "three"))
+    one_s = skrf.Network(frequency=skrf.Frequency.from_f(f, unit="Hz"), s=np.zeros((50, 1, 1)))
+    one_s.write_touchstone(str(tmp_path / "one_s"))
+    freqs = list(np.logspace(3, 8, 20))
+    freqs[7], freqs[8] = freqs[8], freqs[7]
+    nan_text = s2p_lines(np.logspace(3, 8, 20)).splitlines()
+    nan_text[5] = nan_text[5].split()[0] + " nan 0 0.5 0 0.5 0 0.5 0"
+    narrow = shunt_s2p(tmp_path / "narrow_mount.s2p", f[10:40], np.full(30, 1e-4 + 0j))
+    return {
+        "missing file": ([tmp_path / "absent.s2p"], "not found"),
+        "not touchstone": (
+            [write_text(tmp_path / "notes.s2p", "this is a lab note, not data\n")],
+            "Touchstone",
+        ),
+        "three ports": ([tmp_path / "three.s3p"], "3 ports"),
+        "one-port S": ([tmp_path / "one_s.s1p"], "must hold the part's impedance Z"),
+        "frequencies not increasing": (
+            [write_text(tmp_path / "order.s2p", s2p_lines(freqs))],
+            "not strictly increasing",
+        ),
+        "NaN values": ([write_text(tmp_path / "nan.s2p", "\n".join(nan_text) + "\n")], "NaN"),
+        "too few points": (
+            [write_text(tmp_path / "few.s2p", s2p_lines(np.logspace(3, 8, 5)))],
+            "at least",
+        ),
+        "mount on a narrower grid": ([ok, "--mount", narrow], "will not extrapolate"),
+        "model of the other family": ([ok, "--model", "bead"], "capacitive"),
+        "unknown model": ([ok, "--model", "lumped"], "two-branch"),
+        "bad SI value": ([ok, "--fmax", "200 MV"], "fmax"),
+    }
+
+
+CASES = [
+    "missing file",
+    "not touchstone",
+    "three ports",
+    "one-port S",
+    "frequencies not increasing",
+    "NaN values",
+    "too few points",
+    "mount on a narrower grid",
+    "model of the other family",
+    "unknown model",
+    "bad SI value",
+]
+
+
+@pytest.mark.parametrize("case", CASES)
+def test_bad_input_exits_2_with_a_message_naming_the_file(capsys, tmp_path, case):
+    args, expected = bad_cases(tmp_path)[case]
+    code, out, err = run(capsys, *args)
+    assert code == 2, (case, err)
+    assert expected in err, err
+    assert "Traceback" not in err
+    assert out.strip() == ""
+    if case not in ("unknown model", "bad SI value"):
+        # The message names the file at fault.
+        culprit = args[2] if case.startswith("mount") else args[0]
+        assert str(culprit) in err
+    assert "fix:" in err
+
+
+def test_mount_on_another_wider_grid_is_interpolated(capsys, tmp_path):
+    f = np.logspace(3, 8, 120)
+    mount_f = np.linspace(500.0, 2e8, 400)  # another grid that covers the measurement's
+    part = shunt_s2p(tmp_path / "part.s2p", f, rlc(f) + 0.2e-3 + 2j * np.pi * f * 0.1e-9)
+    mount = shunt_s2p(tmp_path / "mount.s2p", mount_f, 0.2e-3 + 2j * np.pi * mount_f * 0.1e-9)
+    code, out, err = run(capsys, part, "--mount", mount, "--json")
+    assert code in (0, 3), err
+    # Invented truth of this test: 0.5 nH once the 0.1 nH mount is removed.
+    assert json_lines(out)[0]["landmarks"]["esl"] == pytest.approx(0.5e-9, rel=0.05)
+
+
+def test_a_bad_file_does_not_stop_the_others(capsys, tmp_path):
+    code, out, err = run(capsys, tmp_path / "absent.s2p", BULK, "--json")
+    assert code == 2
+    assert [r["file"] for r in json_lines(out)] == [str(BULK)]
+    assert "absent.s2p" in err
+
+
+def test_console_entry_point_gives_no_traceback(tmp_path):
+    missing = tmp_path / "absent.s2p"
+    done = subprocess.run(
+        [sys.executable, "-m", "bench.cli", "fit", str(missing)],
+        capture_output=True,
+        text=True,
+        cwd=ROOT,
+        timeout=120,
+    )
+    assert done.returncode == 2
+    assert str(missing) in done.stderr and "fix:" in done.stderr
+    assert "Traceback" not in done.stderr
+
+
+def test_one_port_z_file_round_trip(capsys, tmp_path):
+    f = np.logspace(3, 8, 150)
+    path = write_touchstone_z(tmp_path / "part.z1p", f, rlc(f))
+    code, out, err = run(capsys, path, "--json")
+    assert code in (0, 3), err
+    landmarks = json_lines(out)[0]["landmarks"]
+    # Invented noiseless truth of this test: 10 µF, 0.5 nH; f0 = 1/(2π√(LC)) = 2.2508 MHz
+    # (REFERENCES §3, derived check value for 10 µF / 0.5 nH / 5 mΩ).
+    assert landmarks["c_low"] == pytest.approx(10e-6, rel=0.02)
+    assert landmarks["srf"] == pytest.approx(2.2508e6, rel=0.01)
