@@ -142,3 +142,14 @@ def test_interpolate_refuses_to_extrapolate() -> None:
     with pytest.raises(InputError, match="will not extrapolate") as info:
         interpolate_to(np.logspace(2, 8, 10), fs, np.ones(50, complex))
     assert "fix:" in str(info.value)
+
+
+def test_scikit_rf_still_misreads_version_1_y_files(tmp_path: Path) -> None:
+    # Published (Touchstone 1.1 spec): v1 Y data is normalised, so 0.5 with R 50 means
+    # 0.5/50 = 0.01 S. Measured here (REFERENCES §6): scikit-rf 2.2 multiplies by R and
+    # reads 25 S. This pins the reason load_measurement refuses v1 Y, G and H files;
+    # when it fails, scikit-rf has changed and the refusal can be revisited.
+    path = _write(tmp_path, "y.s1p", "# Hz Y RI R 50\n1 0.5 0\n2 0.5 0\n")
+    net = skrf.Network(str(path))
+    assert net.y[0, 0, 0] == pytest.approx(25.0)
+    assert net.y[0, 0, 0] != pytest.approx(0.01)
