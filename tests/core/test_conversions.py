@@ -6,6 +6,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 import skrf
+from hypothesis import given
+from hypothesis import strategies as st
 
 from bench.core.conversions import (
     reflection_s11,
@@ -143,3 +145,17 @@ def test_through_normalise_refuses_a_dead_through() -> None:
         through_normalise(np.ones(4), np.array([1, 0, 1, 1], complex))
     with pytest.raises(ValueError, match="same frequency grid"):
         through_normalise(np.ones(4), np.ones(5))
+
+
+@given(
+    log_mag=st.floats(min_value=-5, max_value=5),
+    phase=st.floats(min_value=-np.pi / 2, max_value=np.pi / 2),
+    rs=st.sampled_from([0.0, 10.0, 450.0, 499.0]),
+)
+def test_round_trips_for_any_passive_impedance(log_mag: float, phase: float, rs: float) -> None:
+    z = 10.0**log_mag * np.exp(1j * phase)
+    assert shunt_through_z(shunt_through_s21(z, 50.0, rs), 50.0, rs) == pytest.approx(z, rel=1e-7)
+    assert series_through_z(series_through_s21(z, 50.0, rs), 50.0, rs) == pytest.approx(z, rel=1e-6)
+    # A passive part never gives |S21n| > 1 in shunt-through (derived: |2Z| <= |2Z + Ze|
+    # when Re Z >= 0).
+    assert abs(shunt_through_s21(z, 50.0, rs)) <= 1.0 + 1e-12
