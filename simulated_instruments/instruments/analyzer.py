@@ -1,0 +1,282 @@
+"""The simulated two-port network analyser (SCPI nodes of DESIGN §8).
+
+Single sweeps only: ``INITiate[:IMMediate]`` takes the four S-parameters of the state
+the bench is in at that moment and the sweep then lasts ``SWEep:TIME?`` (times
+``time_scale``); ``*OPC?``, ``*WAI`` and ``TRACe?`` wait for it. A new message that
+arrives while ``*OPC?`` is waiting interrupts it (``-410``), as IEEE 488.2 §6.3.2.3 asks
+of a query whose answer is overtaken. ``TRACe?`` before any sweep is ``-230``.
+``FORMat`` is kept per client connection.
+"""
+
+from __future__ import annotations
+
+import threading
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from simulated_instruments.scpi import (
+    CommandTree,
+    Instrument,
+    ScpiError,
+    Session,
+    format_block,
+    format_number,
+    parse_boolean,
+    parse_choice,
+    parse_integer,
+    parse_numeric,
+)
+from simulated_instruments.state import BenchState, SweepPlan
+
+PARAMETERS = {"S11": (0, 0), "S21": (1, 0), "S12": (0, 1), "S22": (1, 1)}
+
+
+def one(params: list[str], name: str) -> str:
+    """The single parameter of a command (-109 if missing, -108 if more)."""
+    if not params:
+        raise ScpiError(-109, name)
+    if len(params) > 1:
+        raise ScpiError(-108, f"{name}: {params[1][:40]}")
+    return params[0]
+
+
+def none(params: list[str]) -> None:
+    if params:
+        raise ScpiError(-108, params[0][:40])
+
+
+@dataclass
+class Sweep:
+    """A finished (or running) sweep: frequencies, data (n, 2, 2), end time (monotonic)."""
+
+    f: np.ndarray
+    s: np.ndarray
+    done_at: float
+    _encoded: dict[tuple[str, str, str], bytes | str] = field(default_factory=dict)
+
+    def encoded(self, what: str, data_format: str, byte_order: str) -> bytes | str:
+        key = (what, data_format, byte_order)
+        cached = self._encoded.get(key)
+        if cached is None:
+            if what == "FREQ":
+                values = self.f
+            else:
+                i, j = PARAMETERS[what]
+                values = np.ascontiguousarray(self.s[:, i, j]).view(float)  # re, im pairs
+            cached = encode_values(values, data_format, byte_order)
+            self._encoded[key] = cached
+        return cached
+
+
+def encode_values(values: np.ndarray, data_format: str, byte_order: str) -> bytes | str:
+    """Values as ASCII (full precision, comma-separated) or a REAL,64 block."""
+    if data_format == "REAL":
+        dtype = ">f8" if byte_order == "NORMAL" else "<f8"
+        return format_block(np.ascontiguousarray(values, dtype=dtype).tobytes())
+    return ",".join(map(format_number, np.asarray(values, dtype=float).tolist()))
+
+
+class Analyzer(Instrument):
+    name = "analyzer"
+
+    def __init__(self, state: BenchState):
+        self.state = state
+        self.spec = state.scenario.analyzer
+        self.lock = threading.Lock()
+        self.last: Sweep | None = None
+        self.reset()
+        super().__init__()
+
+    def identity(self) -> str:
+        return self.spec.identity
+
+    def reset(self) -> None:
+        with self.lock:
+            self.start = max(self.spec.f_min, min(100e3, self.spec.f_max / 10))
+            self.stop = self.spec.f_max
+            self.points = min(max(201, self.spec.points_min), self.spec.points_max)
+            self.spacing = "LINEAR"
+            self.if_bandwidth = min(max(1e3, self.spec.ifbw_min), self.spec.ifbw_max)
+            self.power = min(max(0.0, self.spec.power_min), self.spec.power_max)
+            self.corrected = False
+
+    # --- sweep plan --------------------------------------------------------------------
+    def frequencies(self) -> np.ndarray:
+        if self.spacing == "LOGARITHMIC":
+            return np.geomspace(self.start, self.stop, self.points)
+        return np.linspace(self.start, self.stop, self.points)
+
+    def sweep_time(self) -> float:
+        """Modelled sweep time (s): overhead + 2 directions × points × (per-point time +
+        IF settling of ``settle_cycles`` periods of the IF bandwidth)."""
+        s = self.spec
+        return s.sweep_overhead + 2 * self.points * (
+            s.sweep_per_point + s.settle_cycles / self.if_bandwidth
+        )
+
+    def trigger(self) -> None:
+        with self.lock:
+            if not self.start < self.stop:
+                raise ScpiError(-221, f"start {self.start:g} Hz not below stop {self.stop:g} Hz")
+            f = self.frequencies()
+            plan = SweepPlan(f, self.power, self.if_bandwidth, self.corrected)
+            duration = self.state.real_seconds(self.sweep_time())
+        s = self.state.sweep(plan)
+        self.last = Sweep(f, s, time.monotonic() + duration)
+
+    def wait_idle(self, session: Session) -> None:
+        sweep = self.last
+        if sweep is None:
+            return
+        while True:
+            left = sweep.done_at - time.monotonic()
+            if left <= 0:
+                return
+            if session.input_pending():
+                raise ScpiError(-410, "new message while waiting for the sweep")
+            time.sleep(min(left, 0.005))
+
+    # --- nodes --------------------------------------------------------------------------
+    def build(self, tree: CommandTree) -> None:
+        spec = self.spec
+
+        def numeric_setting(pattern: str, attr: str, unit: str | None, lo, hi, default):
+            def set_(s: Session, p: list[str]) -> None:
+                value = parse_numeric(
+                    one(p, pattern), unit, minimum=lo, maximum=hi, default=default, name=attr
+                )
+                with self.lock:
+                    setattr(self, attr, value)
+                    # Keep start ≤ stop as analysers do: moving one past the other drags it.
+                    if attr == "start" and self.stop < value:
+                        self.stop = value
+                    if attr == "stop" and self.start > value:
+                        self.start = value
+
+            def query(s: Session, p: list[str]) -> str:
+                none(p)
+                return format_number(getattr(self, attr))
+
+            tree.add(pattern, set=set_, query=query)
+
+        numeric_setting(
+            "[SENSe:]FREQuency:STARt", "start", "HZ", spec.f_min, spec.f_max, spec.f_min
+        )
+        numeric_setting("[SENSe:]FREQuency:STOP", "stop", "HZ", spec.f_min, spec.f_max, spec.f_max)
+        numeric_setting(
+            "[SENSe:]BANDwidth[:RESolution]",
+            "if_bandwidth",
+            "HZ",
+            spec.ifbw_min,
+            spec.ifbw_max,
+            1e3,
+        )
+        numeric_setting(
+            "SOURce:POWer[:LEVel][:IMMediate][:AMPLitude]",
+            "power",
+            "DBM",
+            spec.power_min,
+            spec.power_max,
+            0.0,
+        )
+
+        def set_points(s: Session, p: list[str]) -> None:
+            n = parse_integer(
+                one(p, "points"), minimum=spec.points_min, maximum=spec.points_max, name="points"
+            )
+            with self.lock:
+                self.points = n
+
+        tree.add(
+            "[SENSe:]SWEep:POINts",
+            set=set_points,
+            query=lambda s, p: (none(p), str(self.points))[1],
+        )
+
+        def set_spacing(s: Session, p: list[str]) -> None:
+            value = parse_choice(one(p, "spacing"), ("LINear", "LOGarithmic"), name="spacing")
+            with self.lock:
+                self.spacing = value
+
+        tree.add(
+            "[SENSe:]SWEep:SPACing",
+            set=set_spacing,
+            query=lambda s, p: (none(p), self.spacing[:3])[1],
+        )
+        tree.add(
+            "[SENSe:]SWEep:TIME",
+            query=lambda s, p: (none(p), format_number(self.sweep_time()))[1],
+        )
+
+        def set_correction(s: Session, p: list[str]) -> None:
+            self.corrected = parse_boolean(one(p, "correction"), name="correction")
+
+        tree.add(
+            "[SENSe:]CORRection[:STATe]",
+            set=set_correction,
+            query=lambda s, p: (none(p), "1" if self.corrected else "0")[1],
+        )
+
+        def initiate(s: Session, p: list[str]) -> None:
+            none(p)
+            self.trigger()
+
+        tree.add("INITiate[:IMMediate]", set=initiate)
+
+        def set_format(s: Session, p: list[str]) -> None:
+            if not p:
+                raise ScpiError(-109, "format")
+            kind = parse_choice(p[0], ("ASCii", "REAL"), name="format")
+            if kind == "REAL":
+                if len(p) > 2:
+                    raise ScpiError(-108, p[2][:40])
+                if len(p) == 2 and parse_integer(p[1], name="length") != 64:
+                    raise ScpiError(-224, "only REAL,64 is supported")
+                s.data_format = "REAL"
+            else:
+                if len(p) > 2:
+                    raise ScpiError(-108, p[2][:40])
+                s.data_format = "ASCII"
+
+        tree.add(
+            "FORMat[:DATA]",
+            set=set_format,
+            query=lambda s, p: (none(p), "REAL,64" if s.data_format == "REAL" else "ASC,0")[1],
+        )
+
+        def set_border(s: Session, p: list[str]) -> None:
+            s.byte_order = parse_choice(one(p, "byte order"), ("NORMal", "SWAPped"))
+
+        tree.add(
+            "FORMat:BORDer",
+            set=set_border,
+            query=lambda s, p: (none(p), s.byte_order[:4])[1],
+        )
+
+        def frequency_data(s: Session, p: list[str]) -> bytes | str:
+            none(p)
+            with self.lock:
+                f = self.frequencies()
+            return encode_values(f, s.data_format, s.byte_order)
+
+        tree.add("[SENSe:]FREQuency:DATA", query=frequency_data)
+
+        def trace(s: Session, p: list[str]) -> bytes | str:
+            name = one(p, "parameter").strip().strip("\"'").upper()
+            if name not in PARAMETERS:
+                raise ScpiError(-224, f"parameter {name[:20]!r}: use S11, S21, S12 or S22")
+            if self.last is None:
+                raise ScpiError(-230, "no sweep since power-on; send INITiate first")
+            self.wait_idle(s)
+            return self.last.encoded(name, s.data_format, s.byte_order)
+
+        tree.add("TRACe[:DATA]", query=trace)
+
+        def abort(s: Session, p: list[str]) -> None:
+            none(p)
+            if self.last is not None:
+                self.last.done_at = min(self.last.done_at, time.monotonic())
+
+        tree.add("ABORt", set=abort)

@@ -1,0 +1,223 @@
+"""The bench-control port: the hands of a scripted operator, and fault injection.
+
+Nodes (DEVELOPERS.md, bench-control table; FAULt nodes in the simulator's README):
+
+- ``OPERator:CABLes STANdard,SHORt|OPEN|LOAD``, ``THRough``, ``FIXTure``; ``OPERator:CABLes?``
+  answers ``STAN,SHOR``, ``STAN,OPEN``, ``STAN,LOAD``, ``THR`` or ``FIXT``;
+- ``OPERator:PLACe <pos>,SHORt|EMPTy|"<part>/<sample>"``; ``OPERator:PLACe? <pos>``
+  answers ``SHOR``, ``EMPT`` or the quoted part;
+- ``OPERator:TRANsformer ON|OFF`` (query 1/0), ``OPERator:RESistors <ohms>`` (query);
+- ``OPERator:POSitions?`` (number of positions), ``OPERator:PARTs?`` (quoted,
+  comma-separated ``part/sample`` names);
+- ``FAULt:DELay``, ``FAULt:DROP``, ``FAULt:BLOCk``, ``FAULt:ERRor``, ``FAULt:MISSing``,
+  ``FAULt:CLEar``, ``FAULt:LIST?``.
+"""
+
+from __future__ import annotations
+
+from simulated_instruments.instruments.analyzer import none, one
+from simulated_instruments.scpi import (
+    CommandTree,
+    Instrument,
+    ScpiError,
+    Session,
+    format_number,
+    parse_boolean,
+    parse_choice,
+    parse_integer,
+    parse_numeric,
+    parse_string,
+)
+from simulated_instruments.state import EMPTY, SHORT, BenchState
+
+_INSTRUMENT_WORDS = {
+    "ANALYZER": "analyzer",
+    "SWITCH": "switch",
+    "DCSOURCE": "dc_source",
+    "BENCH": "bench",
+}
+_CABLE_ANSWERS = {
+    "SHORT": "STAN,SHOR",
+    "OPEN": "STAN,OPEN",
+    "LOAD": "STAN,LOAD",
+    "THROUGH": "THR",
+    "FIXTURE": "FIXT",
+}
+
+
+def parse_instrument(text: str) -> str:
+    """``ANALyzer``, ``SWITch``, ``DCSource`` or ``BENCh`` (``dc_source`` also read)."""
+    word = text.strip().strip("\"'").upper().replace("_", "")
+    if word in ("DCSOURCE", "DCS", "DCSOUR"):
+        return "dc_source"
+    long = parse_choice(word, ("ANALyzer", "SWITch", "DCSource", "BENCh"), name="instrument")
+    return _INSTRUMENT_WORDS[long]
+
+
+class BenchControl(Instrument):
+    name = "bench"
+
+    def __init__(self, state: BenchState):
+        self.state = state
+        super().__init__()
+
+    def identity(self) -> str:
+        return self.state.scenario.bench_identity
+
+    def reset(self) -> None:
+        """``*RST`` leaves the bench as it is: hands do not undo themselves."""
+
+    def position(self, text: str) -> int:
+        n = self.state.scenario.positions
+        return parse_integer(text, minimum=1, maximum=n, name="position")
+
+    def build(self, tree: CommandTree) -> None:
+        st = self.state
+
+        def set_cables(s: Session, p: list[str]) -> None:
+            if not p:
+                raise ScpiError(-109, "cables")
+            what = parse_choice(p[0], ("STANdard", "THRough", "FIXTure"), name="cables")
+            if what == "STANDARD":
+                if len(p) != 2:
+                    raise ScpiError(-109 if len(p) < 2 else -108, "STANdard,SHORt|OPEN|LOAD")
+                st.set_cables(parse_choice(p[1], ("SHORt", "OPEN", "LOAD"), name="standard"))
+            else:
+                if len(p) > 1:
+                    raise ScpiError(-108, p[1][:40])
+                st.set_cables(what)
+
+        tree.add(
+            "OPERator:CABLes",
+            set=set_cables,
+            query=lambda s, p: (none(p), _CABLE_ANSWERS[st.cables])[1],
+        )
+
+        def place(s: Session, p: list[str]) -> None:
+            if len(p) != 2:
+                raise ScpiError(-109 if len(p) < 2 else -108, "PLACe <pos>,<item>")
+            pos = self.position(p[0])
+            text = p[1].strip()
+            if text[:1] in "\"'":
+                item = parse_string(text, name="part")
+            else:
+                word = text.upper()
+                if word in ("SHOR", "SHORT"):
+                    item = SHORT
+                elif word in ("EMPT", "EMPTY"):
+                    item = EMPTY
+                else:
+                    item = text
+            if item not in (SHORT, EMPTY) and item not in st.scenario.parts:
+                raise ScpiError(
+                    -224,
+                    f"no part {item[:40]!r} in scenario {st.scenario.name}; see OPERator:PARTs?",
+                )
+            st.place(pos, item)
+
+        def placed(s: Session, p: list[str]) -> str:
+            item = st.placements[self.position(one(p, "position"))]
+            if item == SHORT:
+                return "SHOR"
+            if item == EMPTY:
+                return "EMPT"
+            return f'"{item}"'
+
+        tree.add("OPERator:PLACe", set=place, query=placed)
+
+        def set_transformer(s: Session, p: list[str]) -> None:
+            with st.lock:
+                st.transformer = parse_boolean(one(p, "transformer"), name="transformer")
+
+        tree.add(
+            "OPERator:TRANsformer",
+            set=set_transformer,
+            query=lambda s, p: (none(p), "1" if st.transformer else "0")[1],
+        )
+
+        def set_resistors(s: Session, p: list[str]) -> None:
+            value = parse_numeric(
+                one(p, "resistance"),
+                "OHM",
+                minimum=0.0,
+                maximum=st.scenario.max_series_resistance,
+                default=0.0,
+                name="resistance",
+            )
+            with st.lock:
+                st.resistors = value
+
+        tree.add(
+            "OPERator:RESistors",
+            set=set_resistors,
+            query=lambda s, p: (none(p), format_number(st.resistors))[1],
+        )
+        tree.add(
+            "OPERator:POSitions",
+            query=lambda s, p: (none(p), str(st.scenario.positions))[1],
+        )
+        tree.add(
+            "OPERator:PARTs",
+            query=lambda s, p: (none(p), '"' + ",".join(st.scenario.parts) + '"')[1],
+        )
+
+        # --- faults ----------------------------------------------------------------------
+        faults = st.faults
+
+        def fault_delay(s: Session, p: list[str]) -> None:
+            if len(p) not in (2, 3):
+                raise ScpiError(-109 if len(p) < 2 else -108, "DELay <instr>,<s>[,<count>]")
+            inst = parse_instrument(p[0])
+            seconds = parse_numeric(p[1], "S", minimum=0.0, maximum=3600.0, name="delay")
+            count = (
+                parse_integer(p[2], minimum=0, maximum=10**6, name="count") if len(p) == 3 else 1
+            )
+            faults.set_delay(inst, seconds, count)
+
+        def fault_drop(s: Session, p: list[str]) -> None:
+            if len(p) != 2:
+                raise ScpiError(-109 if len(p) < 2 else -108, "DROP <instr>,<queries>")
+            faults.set_drop(
+                parse_instrument(p[0]), parse_integer(p[1], minimum=0, maximum=10**6, name="after")
+            )
+
+        def fault_block(s: Session, p: list[str]) -> None:
+            if len(p) not in (1, 2):
+                raise ScpiError(-109 if not p else -108, "BLOCk <instr>[,<count>]")
+            count = (
+                parse_integer(p[1], minimum=0, maximum=10**6, name="count") if len(p) == 2 else 1
+            )
+            faults.set_corrupt_blocks(parse_instrument(p[0]), count)
+
+        def fault_error(s: Session, p: list[str]) -> None:
+            if len(p) not in (2, 3):
+                raise ScpiError(-109 if len(p) < 2 else -108, 'ERRor <instr>,<code>[,"<text>"]')
+            inst = parse_instrument(p[0])
+            code = parse_integer(p[1], minimum=-999, maximum=32767, name="code")
+            text = parse_string(p[2], name="text") if len(p) == 3 else "injected fault"
+            st.push_error(inst, code, text)
+
+        def fault_missing(s: Session, p: list[str]) -> None:
+            if len(p) not in (1, 2):
+                raise ScpiError(-109 if not p else -108, "MISSing <pos>[,ON|OFF]")
+            missing = parse_boolean(p[1], name="missing") if len(p) == 2 else True
+            st.set_missing(self.position(p[0]), missing)
+
+        def fault_missing_query(s: Session, p: list[str]) -> str:
+            return "1" if faults.is_missing(self.position(one(p, "position"))) else "0"
+
+        def fault_clear(s: Session, p: list[str]) -> None:
+            none(p)
+            faults.clear()
+            st.refresh_load()
+
+        tree.add("FAULt:DELay", set=fault_delay)
+        tree.add("FAULt:DROP", set=fault_drop)
+        tree.add("FAULt:BLOCk", set=fault_block)
+        tree.add("FAULt:ERRor", set=fault_error)
+        tree.add("FAULt:MISSing", set=fault_missing, query=fault_missing_query)
+        tree.add("FAULt:CLEar", set=fault_clear)
+        tree.add(
+            "FAULt:LIST",
+            query=lambda s, p: (none(p), '"' + faults.describe() + '"')[1],
+        )

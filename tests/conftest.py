@@ -1,0 +1,42 @@
+"""Shared fixtures: the simulated bench on free loopback ports, with compressed time.
+
+``sim_bench`` is a running demo bench (seed 1, ``time_scale`` 0.001) stopped after the
+test; ``sim_bench_factory(scenario=..., **kwargs)`` starts others (each stopped after the
+test). Both give a :class:`simulated_instruments.server.RunningBench`: use its
+``resources`` (VISA strings per instrument) with pyvisa-py.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Iterator
+from typing import Any
+
+import pytest
+
+from simulated_instruments.server import RunningBench, start_bench
+
+SIM_TIME_SCALE = 0.001
+SIM_SEED = 1
+
+
+@pytest.fixture
+def sim_bench_factory() -> Iterator[Callable[..., RunningBench]]:
+    """Factory ``(scenario="demo", *, time_scale=0.001, seed=1, ports=None) -> RunningBench``."""
+    benches: list[RunningBench] = []
+
+    def start(scenario: Any = "demo", **kwargs: Any) -> RunningBench:
+        kwargs.setdefault("time_scale", SIM_TIME_SCALE)
+        kwargs.setdefault("seed", SIM_SEED)
+        bench = start_bench(scenario, **kwargs)
+        benches.append(bench)
+        return bench
+
+    yield start
+    for bench in benches:
+        bench.stop()
+
+
+@pytest.fixture
+def sim_bench(sim_bench_factory: Callable[..., RunningBench]) -> RunningBench:
+    """The demo bench, running on OS-chosen loopback ports for one test."""
+    return sim_bench_factory("demo")
