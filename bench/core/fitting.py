@@ -199,7 +199,7 @@ def _solve(residuals, jacobian, q0, lo, hi, max_nfev: int) -> tuple[float, NDArr
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
         sol = least_squares(
             residuals, q0, jac=jacobian, bounds=(lo, hi), method="trf", x_scale=1.0,
-            max_nfev=max_nfev,
+            max_nfev=max_nfev, ftol=1e-7, xtol=1e-7, gtol=1e-7,
         )  # fmt: skip
     return 2.0 * float(sol.cost), sol.x
 
@@ -231,7 +231,7 @@ def _fit_order(
         d = jac / zm * weight
         return np.concatenate([d.real.T, d.imag.T])
 
-    # Short runs from every start, then the most promising one or two run to convergence:
+    # Short runs from every start, then the most promising one runs to convergence:
     # the restarts guard against a poor local minimum without paying for full runs.
     trials = []
     for start in family.starts(order, f, z, landmarks, previous):
@@ -245,12 +245,8 @@ def _fit_order(
     if not trials:
         raise FitError(f"model {family.name} (order {order}): no start value gave a finite model")
     trials.sort(key=lambda t: t[0])
-    best = None
-    for _, q_scout in trials[:2]:
-        result = _solve(residuals, jacobian, q_scout, lo, hi, 60 * (k + 1))
-        if np.isfinite(result[0]) and (best is None or result[0] < best[0]):
-            best = result
-    if best is None:
+    best = _solve(residuals, jacobian, trials[0][1], lo, hi, 25 * (k + 1))
+    if not np.isfinite(best[0]) or best[0] > trials[0][0]:
         best = trials[0]
     chi2, q = best
     values = dict(zip(names, (float(v) for v in np.exp(q)), strict=True))
@@ -384,7 +380,7 @@ def fit_impedance(
             trial = _fit_order(family, o, fu, zu, weight, data_marks, previous)
             trials.append(trial)
             previous = trial.values
-            if trial.bic > best_bic + 10.0:
+            if trial.bic > best_bic:
                 break  # the criterion has turned; higher orders will not pay
             best_bic = min(best_bic, trial.bic)
     if not trials:

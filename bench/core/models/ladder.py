@@ -69,7 +69,8 @@ def starts(order, f, z, landmarks: Mapping[str, Any], previous=None) -> list[dic
         values[f"C{order}"] = c_last / 8
         out.append(values)
     norm = sum(1.0 / k**2 for k in range(1, order + 1))
-    for shift in (1.0, 0.25, 4.0):
+    # From scratch: three spreads of the time constants, or one when a lower order exists.
+    for shift in (1.0,) if out else (1.0, 0.25, 4.0):
         tau1 = shift / (2 * np.pi * f_half)
         values = {"R": r_high, "L": esl, "C": c}
         for k in range(1, order + 1):

@@ -79,32 +79,37 @@ def element_names(node: Node) -> tuple[str, ...]:
 
 
 def _evaluate(
-    node: Node, jw: ComplexArray, values: Mapping[str, float], index: Mapping[str, int], n: int
-) -> tuple[ComplexArray, ComplexArray]:
+    node: Node, jw: ComplexArray, values: Mapping[str, float]
+) -> tuple[ComplexArray, dict[str, ComplexArray]]:
+    """Impedance of ``node`` and ``p·dZ/dp`` of each element below it (by name)."""
     if isinstance(node, Element):
         value = values[node.name]
         if node.kind == "R":
             z = np.full(jw.shape, value, dtype=complex)
-            dz = z
-        elif node.kind == "L":
+            return z, {node.name: z}
+        if node.kind == "L":
             z = jw * value
-            dz = z
-        else:
-            z = 1.0 / (jw * value)
-            dz = -z
-        jac = np.zeros((n, jw.size), dtype=complex)
-        jac[index[node.name]] = dz
-        return z, jac
-    results = [_evaluate(part, jw, values, index, n) for part in node.parts]
+            return z, {node.name: z}
+        z = 1.0 / (jw * value)
+        return z, {node.name: -z}
+    results = [_evaluate(part, jw, values) for part in node.parts]
     if isinstance(node, Series):
-        z = sum(r[0] for r in results)
-        jac = sum(r[1] for r in results)
+        z = results[0][0].copy()
+        for zi, _ in results[1:]:
+            z += zi
+        jac: dict[str, ComplexArray] = {}
+        for _, ji in results:
+            jac.update(ji)
         return z, jac
-    y = sum(1.0 / r[0] for r in results)
+    y = 1.0 / results[0][0]
+    for zi, _ in results[1:]:
+        y += 1.0 / zi
     z = 1.0 / y
-    jac = np.zeros((n, jw.size), dtype=complex)
+    jac = {}
     for zi, ji in results:
-        jac += (z / zi) ** 2 * ji
+        factor = (z / zi) ** 2
+        for name, d in ji.items():
+            jac[name] = factor * d
     return z, jac
 
 
@@ -117,9 +122,9 @@ def impedance_and_jacobian(
     ``(n_elements, nf)`` in the order of :func:`element_names`.
     """
     names = element_names(node)
-    index = {name: i for i, name in enumerate(names)}
     jw = 2j * np.pi * np.asarray(f, dtype=float)
-    return _evaluate(node, jw, values, index, len(names))
+    z, parts = _evaluate(node, jw, values)
+    return z, np.array([parts[name] for name in names])
 
 
 def network_impedance(node: Node, f: Any, values: Mapping[str, float]) -> ComplexArray:
