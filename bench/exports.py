@@ -57,6 +57,8 @@ LANDMARK_UNITS = {
     "c_par": "F",
     "z_at_nominal_hz": "Ω",
 }
+#: Units as written in the CSV files (ASCII, so every spreadsheet reads them).
+CSV_UNITS = {key: unit.replace("Ω", "ohm") for key, unit in LANDMARK_UNITS.items()}
 ALL_LANDMARKS = ("c_low", "esl", "srf", "esr_at_srf", "l_low", "r_dc", "z_at_srf", "c_par")
 
 SUMMARY_COLUMNS = (
@@ -355,7 +357,7 @@ def _cell(value: Any) -> str:
     if isinstance(value, bool):
         return "yes" if value else "no"
     if isinstance(value, float):
-        return "" if not math.isfinite(value) else f"{value:.6g}"
+        return "" if not math.isfinite(value) else f"{value:.9g}"
     return str(value)
 
 
@@ -384,7 +386,7 @@ def lot_statistics_csv_text(summary: RunSummary) -> str:
                         "part": part,
                         "bias_v": bias,
                         "landmark": key,
-                        "unit": LANDMARK_UNITS.get(key, ""),
+                        "unit": CSV_UNITS.get(key, ""),
                         "n": stats.n,
                         "mean": stats.mean,
                         "std": stats.std,

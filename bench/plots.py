@@ -260,9 +260,13 @@ def residuals_figure(data: Any, fit: Any, *, title: str = "") -> Figure:
         for ax in (ax_mag, ax_ph):
             _log_axes(ax, y_unit=None)
             ax.axhline(0.0, color="#666666", linewidth=0.7)
-        # Keep the scale on the points that count: outside points may be far off.
-        _limit_to(ax_mag, mag_pct[inside])
-        _limit_to(ax_ph, phase_deg[inside])
+        # Keep the scale on the points that count (outside points may be far off), wide
+        # enough that the typical uncertainty band shows its edges.
+        typical = None
+        if rel is not None and np.any(inside):
+            typical = float(np.nanmedian(np.asarray(rel, dtype=float)[inside]))
+        _limit_to(ax_mag, mag_pct[inside], None if typical is None else 100.0 * typical)
+        _limit_to(ax_ph, phase_deg[inside], None if typical is None else math.degrees(typical))
         ax_mag.set_ylabel("magnitude error (%)")
         ax_ph.set_ylabel("phase error (°)")
         ax_ph.set_xlabel("frequency")
@@ -276,11 +280,13 @@ def residuals_figure(data: Any, fit: Any, *, title: str = "") -> Figure:
     return fig
 
 
-def _limit_to(ax: Axes, values: np.ndarray) -> None:
+def _limit_to(ax: Axes, values: np.ndarray, band: float | None = None) -> None:
     finite = values[np.isfinite(values)]
     if finite.size == 0:
         return
     span = float(np.max(np.abs(finite)))
+    if band is not None and math.isfinite(band):
+        span = max(span, band)
     span = max(span * 1.15, 1e-3)
     current = ax.get_ylim()
     ax.set_ylim(max(current[0], -span), min(current[1], span))

@@ -292,10 +292,11 @@ def _glance_section(summary: RunSummary) -> str:
 def _landmark_table(sample: SampleResult) -> str:
     fit = sample.fit
     sigma = dict(getattr(fit, "uncertainties", {}) or {})
+    sigma_marks = {**sigma, **dict(getattr(fit, "landmark_uncertainties", {}) or {})}
     rows = []
     for key, value in fit.landmarks.items():
         unit = exports.LANDMARK_UNITS.get(key, "")
-        rows.append([esc(key), _si(value, unit), _si(sigma.get(key), unit, 2)])
+        rows.append([esc(key), _si(value, unit), _si(sigma_marks.get(key), unit, 3)])
     landmarks = _table(["landmark", "value", "±1σ"], rows, numeric={1, 2})
     rows = []
     for key, value in fit.elements.items():
@@ -306,7 +307,7 @@ def _landmark_table(sample: SampleResult) -> str:
             if error is not None and value and math.isfinite(error)
             else "—"
         )
-        rows.append([esc(key), _si(value, unit), _si(error, unit, 2), esc(relative)])
+        rows.append([esc(key), _si(value, unit), _si(error, unit, 3), esc(relative)])
     elements = _table(["element", "value", "±1σ", "±1σ (relative)"], rows, numeric={1, 2, 3})
     return (
         '<div class="pair">'
@@ -395,7 +396,7 @@ def _sample_section(
 
 def _lot_html(summary: RunSummary, spec: PartSpec, figs: _Figures) -> str:
     samples = [s for s in summary.samples if s.part == spec.name]
-    out = []
+    out = ["<h3>Lot</h3>"]
     lowest = min(s.bias_v for s in samples)
     overlay = [s for s in samples if s.bias_v == lowest]
     if len(overlay) > 1:
