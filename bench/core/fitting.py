@@ -198,9 +198,17 @@ def _check_inputs(f: Any, z: Any, rel_uncertainty: Any, valid: Any):
 def _solve(residuals, jacobian, q0, lo, hi, max_nfev: int) -> tuple[float, NDArray[np.float64]]:
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
         sol = least_squares(
-            residuals, q0, jac=jacobian, bounds=(lo, hi), method="trf", x_scale=1.0,
-            max_nfev=max_nfev, ftol=1e-7, xtol=1e-7, gtol=1e-7,
-        )  # fmt: skip
+            residuals,
+            q0,
+            jac=jacobian,
+            bounds=(lo, hi),
+            method="trf",
+            x_scale=1.0,
+            max_nfev=max_nfev,
+            ftol=1e-7,
+            xtol=1e-7,
+            gtol=1e-7,
+        )
     return 2.0 * float(sol.cost), sol.x
 
 
@@ -293,9 +301,12 @@ def _candidates(
 
 
 def _resonance_warnings(
-    kind: str, f: NDArray[np.float64], inside: NDArray[np.bool_], model_marks: Landmarks,
+    kind: str,
+    f: NDArray[np.float64],
+    inside: NDArray[np.bool_],
+    model_marks: Landmarks,
     data_marks: Landmarks,
-) -> list[str]:  # fmt: skip
+) -> list[str]:
     srf = model_marks.get("srf")
     what = "series resonance" if kind == "capacitor" else "parallel resonance"
     out = []

@@ -60,9 +60,7 @@ def _points_per_decade(f: NDArray[np.float64]) -> float:
     return (f.size - 1) / max(np.log10(f[-1] / f[0]), 1e-9)
 
 
-def _crossing(
-    f: NDArray[np.float64], y: NDArray[np.float64], rising: bool
-) -> float | None:
+def _crossing(f: NDArray[np.float64], y: NDArray[np.float64], rising: bool) -> float | None:
     """First frequency where ``y`` changes sign (− to + when ``rising``), refined.
 
     The sign change is looked for in a running median (about 1/20 decade wide, at least

@@ -63,14 +63,24 @@ def check_landmarks(result: FitResult, part, f=F, keys=None) -> None:
 # Invented parts, each richer than the model fitted to it.
 MLCC = Mlcc(name="MC10U", capacitance=10e-6, esl=0.45e-9, esr=4e-3, dielectric="X5R")
 MLCC_SIMPLE = Mlcc(
-    name="MC2U2", capacitance=2.2e-6, esl=0.6e-9, esr=8e-3, dielectric="X7R", loss_tangent=0.01,
-    mode_c_ratio=0.0, skin_corner=50e6,
-)  # fmt: skip
+    name="MC2U2",
+    capacitance=2.2e-6,
+    esl=0.6e-9,
+    esr=8e-3,
+    dielectric="X7R",
+    loss_tangent=0.01,
+    mode_c_ratio=0.0,
+    skin_corner=50e6,
+)
 BULK = BulkCapacitor(name="PB330", capacitance=330e-6, line_resistance=30e-3, esr=8e-3)
 INDUCTOR = PowerInductor(
-    name="PL1U", inductance=1e-6, r_dc=8e-3, skin_corner=300e3, core_loss_resistance=150.0,
+    name="PL1U",
+    inductance=1e-6,
+    r_dc=8e-3,
+    skin_corner=300e3,
+    core_loss_resistance=150.0,
     winding_capacitance=10e-12,
-)  # fmt: skip
+)
 BEAD = FerriteBead(name="FB600", inductance2=0.4e-6, resistance2=120.0)
 
 
@@ -90,8 +100,9 @@ def test_recovery_of_landmarks_under_noise(part, model, seed, series_r):
     data = measure(part, seed, series_r=series_r)
     # Precondition: the whole response lies in the window, so every point is used.
     assert data.points_outside_window == 0
-    result = fit_impedance(data.f, data.z, model=model, rel_uncertainty=data.rel_uncertainty,
-                           valid=data.inside_window)  # fmt: skip
+    result = fit_impedance(
+        data.f, data.z, model=model, rel_uncertainty=data.rel_uncertainty, valid=data.inside_window
+    )
     assert result.model == model
     assert result.kind == part.kind
     assert result.meets_quality, result.quality
@@ -125,8 +136,9 @@ def test_ladder_follows_distributed_line_better_than_series_rlc():
 )
 def test_auto_chooses_kind_and_family(part, kind, models):
     data = measure(part, 21, series_r=450.0 if kind == "inductor" else 0.0)
-    result = fit_impedance(data.f, data.z, rel_uncertainty=data.rel_uncertainty,
-                           valid=data.inside_window)  # fmt: skip
+    result = fit_impedance(
+        data.f, data.z, rel_uncertainty=data.rel_uncertainty, valid=data.inside_window
+    )
     assert result.kind == kind
     assert result.model in models
     assert result.meets_quality
@@ -142,8 +154,13 @@ def test_peak_above_window_is_counted_and_warned():
     data = measure(part, 31)
     assert data.points_outside_window > 0
     assert np.all(data.inside_window[data.f < 1e6])
-    result = fit_impedance(data.f, data.z, model="inductor", rel_uncertainty=data.rel_uncertainty,
-                           valid=data.inside_window)  # fmt: skip
+    result = fit_impedance(
+        data.f,
+        data.z,
+        model="inductor",
+        rel_uncertainty=data.rel_uncertainty,
+        valid=data.inside_window,
+    )
     assert result.quality.points_outside_window == data.points_outside_window
     assert result.quality.points_used == F.size - data.points_outside_window
     assert any("outside the measurable window" in w for w in result.warnings)
@@ -165,8 +182,9 @@ def test_outside_points_do_not_disturb_the_fit():
     z = data.z.copy()
     z[-20:] *= 5.0  # garbage where the window is declared closed
     valid[-20:] = False
-    result = fit_impedance(data.f, z, model="two-branch", rel_uncertainty=data.rel_uncertainty,
-                           valid=valid)  # fmt: skip
+    result = fit_impedance(
+        data.f, z, model="two-branch", rel_uncertainty=data.rel_uncertainty, valid=valid
+    )
     assert result.quality.points_outside_window == 20
     check_landmarks(result, MLCC, keys=("c_low", "srf", "esr_at_srf"))
 
@@ -180,8 +198,11 @@ def test_json_object_is_plain_and_finite():
     assert back["model"] == result.model
     assert set(back["elements"]) == set(result.elements)
     assert set(back["quality"]) >= {
-        "rms_log_error", "max_abs_log_error", "points_used", "points_outside_window"
-    }  # fmt: skip
+        "rms_log_error",
+        "max_abs_log_error",
+        "points_used",
+        "points_outside_window",
+    }
     assert set(back["landmarks"]) == {"l_low", "r_dc", "srf", "z_at_srf", "c_par"}
     assert back["meets_quality"] is True
 

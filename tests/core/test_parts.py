@@ -61,9 +61,14 @@ def test_mlcc_bias_lowers_low_frequency_capacitance():
 def test_simple_mlcc_is_a_series_rlc_at_resonance():
     # REFERENCES §3 [derived]: f0 = 1/(2π√(LC)); 10 µF / 0.5 nH -> 2.2508 MHz.
     part = Mlcc(
-        capacitance=10e-6, esl=0.5e-9, esr=5e-3, mode_c_ratio=0.0, loss_tangent=0.0,
-        skin_corner=1e12, dielectric="C0G",
-    )  # fmt: skip
+        capacitance=10e-6,
+        esl=0.5e-9,
+        esr=5e-3,
+        mode_c_ratio=0.0,
+        loss_tangent=0.0,
+        skin_corner=1e12,
+        dielectric="C0G",
+    )
     f = np.array([2.2508e6])
     z = part.impedance(f)
     assert abs(z[0].imag) < 1e-3 * 5e-3 * 10
@@ -126,9 +131,16 @@ def test_bead_matches_published_extraction_without_extra_loss():
 
 def test_part_from_dict_reads_si_strings():
     part = part_from_dict(
-        {"type": "mlcc", "name": "MC22", "capacitance": "22u", "esl": "0.4 nH", "esr": "3m",
-         "rated_voltage": "6.3 V", "dielectric": "X5R"}
-    )  # fmt: skip
+        {
+            "type": "mlcc",
+            "name": "MC22",
+            "capacitance": "22u",
+            "esl": "0.4 nH",
+            "esr": "3m",
+            "rated_voltage": "6.3 V",
+            "dielectric": "X5R",
+        }
+    )
     assert isinstance(part, Mlcc)
     assert part.capacitance == pytest.approx(22e-6)
     assert part.esl == pytest.approx(0.4e-9)

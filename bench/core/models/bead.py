@@ -44,9 +44,14 @@ def starts(order, f, z, landmarks: Mapping[str, Any], previous=None) -> list[dic
         out.append({**previous, "L2": 0.05 * previous["L"], "R2": 0.2 * previous["R"]})
     for share, r_share in ((0.3, 0.3), (0.1, 0.1)):
         out.append(
-            {**base, "L": l_low * (1 - share), "R": z_srf * (1 - r_share),
-             "L2": l_low * share, "R2": z_srf * r_share}
-        )  # fmt: skip
+            {
+                **base,
+                "L": l_low * (1 - share),
+                "R": z_srf * (1 - r_share),
+                "L2": l_low * share,
+                "R2": z_srf * r_share,
+            }
+        )
     return out
 
 
