@@ -127,8 +127,8 @@ class DcSource(ScpiInstrument):
             raise SafetyLimitError(f"ramp step must be > 0 V, got {step_v!r}; nothing was sent")
         if not (math.isfinite(dwell_s) and dwell_s >= 0):
             raise SafetyLimitError(f"ramp dwell must be ≥ 0 s, got {dwell_s!r}; nothing was sent")
-        # A setpoint left above the limit by someone else: the first step comes down to
-        # the limit, so nothing above it is ever sent.
+        # A setpoint left above the limit by someone else: plan the ramp from the limit,
+        # so every level sent is at or below it (the first step is a descent anyway).
         start = min(self.setpoint(), self.max_voltage)
         low, high = min(start, volts), max(start, volts)
         steps = max(1, math.ceil(abs(volts - start) / step_v - 1e-9))
