@@ -38,7 +38,7 @@ DONE, PENDING, RUNNING, FAILED, SKIPPED = "done", "pending", "running", "failed"
 
 def now_iso() -> str:
     """The current UTC time, ISO 8601 with seconds."""
-    return _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds")
+    return _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="milliseconds")
 
 
 def parse_iso(text: str) -> _dt.datetime:

@@ -14,7 +14,8 @@ from typing import Any
 import numpy as np
 
 from bench import __version__
-from bench.core.conversions import shunt_through_z, through_normalise
+from bench.core.calibration import RawStandards, calibrate
+from bench.core.conversions import shunt_through_z
 from bench.core.impedance import ImpedanceData, impedance_from_shunt_through
 from bench.errors import FitError, RunError
 from bench.procedure.plan import Analysis, Plan, Step
@@ -57,18 +58,6 @@ class Corrector:
         self.standards = standards
         self.f = standards["through"][0]
         self.warnings: list[str] = []
-        self._core = None
-        method = plan.calibration.method
-        if method != "through":
-            try:
-                from bench.core import calibration as core_calibration
-            except ImportError:
-                self.warnings.append(
-                    f"{method} calibration is not available in this build; "
-                    "used the through-response normalisation instead"
-                )
-            else:
-                self._core = core_calibration
 
     @classmethod
     def from_store(cls, store: RunStore, plan: Plan) -> Corrector:
@@ -90,21 +79,12 @@ class Corrector:
     def correct(self, f: np.ndarray, s_raw: np.ndarray) -> np.ndarray:
         """Calibrated S (nf, 2, 2); with a through-only calibration only S21 is meaningful."""
         self._check_grid(f)
-        if self._core is not None:
-            standards = self._core.RawStandards(**{k: v[1] for k, v in self.standards.items()})
-            result = self._core.calibrate(
-                f,
-                s_raw,
-                standards,
-                method=self.plan.calibration.method,
-                crossover_hz=self.plan.calibration.crossover_hz,
-            )
-            return np.asarray(getattr(result, "s", result), dtype=complex)
-        corrected = np.array(s_raw, dtype=complex, copy=True)
-        through = self.standards["through"][1]
-        corrected[:, 1, 0] = through_normalise(s_raw[:, 1, 0], through[:, 1, 0])
-        corrected[:, 0, 1] = through_normalise(s_raw[:, 0, 1], through[:, 0, 1])
-        return corrected
+        raw = {("thru" if k == "through" else k): v[1] for k, v in self.standards.items()}
+        standards = RawStandards(f=self.f, **raw)
+        kwargs: dict[str, Any] = {"z0": self.plan.fixture.z0}
+        if self.plan.calibration.crossover_hz is not None:
+            kwargs["crossover_hz"] = self.plan.calibration.crossover_hz
+        return calibrate(f, s_raw, standards, self.plan.calibration.method, **kwargs)
 
 
 def mount_short_impedance(
@@ -118,10 +98,8 @@ def mount_short_impedance(
 
 def ground_loop(f: np.ndarray, z_short: np.ndarray, position: int) -> GroundLoopResult:
     """The core's ground-loop check on one mount short."""
-    try:
-        from bench.core.ground_loop import check_ground_loop
-    except ImportError:
-        return GroundLoopResult(position, False, 0.0, "ground-loop check not available")
+    from bench.core.ground_loop import check_ground_loop
+
     check = check_ground_loop(f, z_short)
     return GroundLoopResult(
         position=position,

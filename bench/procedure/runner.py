@@ -214,11 +214,29 @@ class Runner:
         )
 
     def _bias_off(self) -> None:
-        """Output off, whatever happened (best effort: the link may be gone)."""
+        """Output off, whatever happened: on the open link, else on a fresh connection."""
         if self.inst is None or self.inst.dc_transport is None:
             return
-        with contextlib.suppress(Exception):
+        try:
             self._dc_source(self._largest_limit()).output_off()
+            return
+        except Exception as exc:  # the link may be gone: try a new one below
+            self.store.log(f"output off on the open link failed ({exc}); reconnecting")
+        from drivers.dc_source import DcSource
+        from drivers.transport import VisaTransport
+
+        inst = self.plan.instruments["dc_source"]
+        try:
+            with VisaTransport.open(inst.resource, timeout_s=inst.timeout_s) as link:
+                DcSource(link, max_voltage=self._largest_limit(), max_current=1.0).output_off()
+            self.store.log("DC output switched off on a new connection")
+        except Exception as exc:
+            message = (
+                f"could not confirm the DC source output is off ({exc}); switch it off by hand "
+                "and let the part discharge before touching it"
+            )
+            self.store.log(message)
+            self.display.message("WARNING: " + message)
 
     def _setup(self) -> None:
         if self._set_up:
@@ -332,9 +350,8 @@ class Runner:
         store.log(f"step {step.id} {store.step_state(step.id)}")
 
     def _parameters(self) -> tuple[str, ...]:
-        # A through-response calibration uses S21 only; SOLT corrects with all four.
-        if self.plan.calibration.method == "through":
-            return ("S11", "S21")
+        # All four: SOLT corrects with all of them, the through response uses S21 and S12,
+        # and a reprocess with another method needs them stored.
         return ("S11", "S21", "S12", "S22")
 
     def _sweeps(self, step: Step, label: str) -> None:
@@ -454,7 +471,7 @@ class Runner:
             "message": loop.message,
         }
         self.store.update("ground_loop", loops)
-        if loop.detected and self.operator.guided:
+        if loop.detected and self.operator.guided and not self.plan.fixture.isolation_transformer:
             # The sweep is kept (moved aside), and the step runs again on resume.
             for relative in self.store.step_files(step.id):
                 self.store.reject_raw(step.id, Path(relative).stem)
