@@ -9,14 +9,15 @@ matrices, which numpy does for every frequency at once.
 
 Noise model (documented for the measurable window, REFERENCES §1):
 - an additive complex Gaussian floor on every raw S-parameter, with RMS magnitude
-  ``10^(floor_db/20)·sqrt(IFBW/1 kHz)·10^(−(P − 0 dBm)/20)``: receiver noise power grows
-  with the IF bandwidth and is fixed in absolute terms, so relative to the incident wave
-  it falls as the source power rises;
-- a multiplicative trace noise ``S·(1 + ε)``, ε complex Gaussian with RMS magnitude
-  ``(10^(trace_db/20) − 1)·sqrt(IFBW/1 kHz)``, independent of power (it comes from the
+  ``10^(floor_db/20)·sqrt(IFBW/1 kHz)·10^(−(P − 0 dBm)/20)`` times the raw through
+  level: receiver noise power grows with the IF bandwidth and is fixed in absolute
+  terms, so relative to the incident wave it falls as the source power rises;
+- a multiplicative trace noise ``S·(1 + ε)``, ε complex Gaussian whose real and
+  imaginary parts each have RMS ``(10^(trace_db/20) − 1)·sqrt(IFBW/1 kHz)``, so the RMS
+  of ``20·log10|S|`` is ``trace_db`` at 1 kHz; independent of power (it comes from the
   source and LO, not from the receiver floor).
-At the demo defaults (−100 dB, 0.01 dB, 1 kHz, 0 dBm) the floor is −100 dB relative to a
-unit through and the trace noise 0.01 dB RMS.
+At the demo defaults (−100 dB, 0.01 dB, 1 kHz, 0 dBm) the floor is −100 dB relative to
+the through and the trace noise 0.01 dB RMS.
 """
 
 from __future__ import annotations
@@ -116,12 +117,13 @@ def flip_s(s: np.ndarray) -> np.ndarray:
 
 @dataclass(frozen=True)
 class ErrorBoxTerms:
-    """Seeded coefficients of one port's error box (an analyser port, its test cable).
+    """Seeded coefficients of one port's error box (an analyser port and its test cable).
 
-    Directivity and source match are complex smooth functions of frequency: a constant
-    plus a term growing with ``f/f_ref``, each rotating with its own small delay, so they
-    ripple slowly as real couplers and connectors do. Tracking carries the cable's delay
-    ``cable_delay`` (s, one way) and a loss growing as sqrt(f) (skin effect of the cable).
+    Directivity and source match are complex smooth functions of frequency: a small
+    low-frequency term plus one growing as sqrt(f/f_ref), each rotating with its own
+    small delay, so they ripple slowly as real couplers and connectors do and are best
+    at low frequency. Tracking carries the cable's delay ``cable_delay`` (s, one way) and
+    a loss growing as sqrt(f) (skin effect of the cable).
     """
 
     directivity: complex
@@ -136,6 +138,11 @@ class ErrorBoxTerms:
     reverse_ratio: complex
 
 
+# How much better the directivity and source match are at low frequency than the
+# scenario's figure (which holds at f_ref): invented, of the order seen on bridges.
+LOW_FREQUENCY_MARGIN_DB = 15.0
+
+
 def draw_error_box_terms(
     rng: np.random.Generator,
     *,
@@ -144,18 +151,18 @@ def draw_error_box_terms(
     cable_loss_db_at_1ghz: float,
     cable_delay: float,
 ) -> ErrorBoxTerms:
-    """Draw one port's error-box coefficients around the given magnitudes."""
+    """Draw one port's error-box coefficients around the given magnitudes (dB at 1 GHz)."""
 
     def phasor(mag_db: float) -> complex:
         mag = 10 ** ((mag_db + rng.normal(0, 1.0)) / 20)
         return complex(mag * np.exp(1j * rng.uniform(-np.pi, np.pi)))
 
     return ErrorBoxTerms(
-        directivity=phasor(directivity_db),
-        directivity_slope=phasor(directivity_db + 3),
+        directivity=phasor(directivity_db - LOW_FREQUENCY_MARGIN_DB),
+        directivity_slope=phasor(directivity_db),
         directivity_delay=float(rng.uniform(0.1e-9, 0.4e-9)),
-        source_match=phasor(source_match_db),
-        source_match_slope=phasor(source_match_db + 2),
+        source_match=phasor(source_match_db - LOW_FREQUENCY_MARGIN_DB),
+        source_match_slope=phasor(source_match_db),
         source_match_delay=float(rng.uniform(0.2e-9, 0.8e-9)),
         tracking_gain=complex(
             10 ** (rng.normal(-1.0, 0.3) / 20) * np.exp(1j * rng.uniform(-np.pi, np.pi))
@@ -172,7 +179,7 @@ def error_box(f: np.ndarray, terms: ErrorBoxTerms, f_ref: float = 1e9) -> np.nda
     S11 is the directivity, S22 the source match, S21·S12 the reflection tracking; the
     transmission terms carry the cable delay and loss. ``f`` in Hz.
     """
-    x = f / f_ref
+    x = np.sqrt(f / f_ref)
     w = 2 * np.pi * f
     e00 = (terms.directivity + terms.directivity_slope * x) * np.exp(
         -1j * w * terms.directivity_delay
@@ -180,7 +187,7 @@ def error_box(f: np.ndarray, terms: ErrorBoxTerms, f_ref: float = 1e9) -> np.nda
     e11 = (terms.source_match + terms.source_match_slope * x) * np.exp(
         -1j * w * terms.source_match_delay
     )
-    loss = 10 ** (-terms.tracking_slope_db * np.sqrt(x) / 20)
+    loss = 10 ** (-terms.tracking_slope_db * x / 20)
     forward = np.sqrt(terms.tracking_gain) * loss * np.exp(-1j * w * terms.cable_delay)
     s = np.empty((len(f), 2, 2), dtype=complex)
     s[:, 0, 0] = e00
@@ -306,17 +313,25 @@ def noise_levels(
     """
     bw = np.sqrt(if_bandwidth / REFERENCE_IFBW)
     floor = 10 ** (floor_db / 20) * bw * 10 ** (-(power_dbm - REFERENCE_POWER_DBM) / 20)
-    trace = (10 ** (trace_noise_db / 20) - 1) * bw
+    # Complex RMS √2 × the per-component RMS, which sets the dB spread.
+    trace = np.sqrt(2) * (10 ** (trace_noise_db / 20) - 1) * bw
     return float(floor), float(trace)
 
 
 def add_noise(
-    s: np.ndarray, rng: np.random.Generator, floor_rms: float, trace_rms: float
+    s: np.ndarray,
+    rng: np.random.Generator,
+    floor_rms: float | np.ndarray,
+    trace_rms: float,
 ) -> np.ndarray:
-    """``s·(1 + ε) + n`` with complex Gaussian ε (RMS ``trace_rms``) and n (``floor_rms``)."""
+    """``s·(1 + ε) + n`` with complex Gaussian ε (complex RMS ``trace_rms``) and n
+    (complex RMS ``floor_rms``, a number or one value per frequency)."""
+    floor = np.asarray(floor_rms, dtype=float)
+    if floor.ndim == 1:
+        floor = floor[:, None, None]
 
-    def complex_gaussian(rms: float) -> np.ndarray:
-        sigma = rms / np.sqrt(2)
-        return rng.normal(0, sigma, s.shape) + 1j * rng.normal(0, sigma, s.shape)
+    def complex_gaussian(rms: float | np.ndarray) -> np.ndarray:
+        sigma = np.asarray(rms) / np.sqrt(2)
+        return sigma * (rng.standard_normal(s.shape) + 1j * rng.standard_normal(s.shape))
 
-    return s * (1 + complex_gaussian(trace_rms)) + complex_gaussian(floor_rms)
+    return s * (1 + complex_gaussian(trace_rms)) + complex_gaussian(floor)

@@ -302,4 +302,8 @@ class BenchState:
         )
         with self.lock:
             s = self.raw_s(plan.f, plan.corrected)
+            if not plan.corrected:
+                # The floor is specified relative to the raw through level.
+                s1, s2, _, _ = self.error_boxes(plan.f)
+                floor = floor * np.abs(s1[:, 1, 0] * s2[:, 0, 1])
             return physics.add_noise(s, self.noise_rng, floor, trace)
