@@ -1,0 +1,159 @@
+"""The run report: one self-contained HTML file with every part, embedded PNG figures
+(also saved under plots/), escaped text, SPICE text, lot statistics and the bias table."""
+
+from __future__ import annotations
+
+import base64
+import html.parser
+import importlib.util
+import io
+import re
+import sys
+from pathlib import Path
+
+import pytest
+from PIL import Image
+
+from bench import exports, report
+
+PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948), file signature
+
+
+def _data_module():
+    key = "zbench_tests_run_summary_data"
+    if key not in sys.modules:
+        path = Path(__file__).with_name("run_summary_data.py")
+        spec = importlib.util.spec_from_file_location(key, path)
+        module = importlib.util.module_from_spec(spec)
+        sys.modules[key] = module
+        spec.loader.exec_module(module)
+    return sys.modules[key]
+
+
+DATA = _data_module()
+
+
+@pytest.fixture(scope="module")
+def summary():
+    return DATA.summary()
+
+
+@pytest.fixture(scope="module")
+def written(summary, tmp_path_factory):
+    folder = tmp_path_factory.mktemp("report")
+    path = report.write_report(folder, summary)
+    return folder, path, path.read_text(encoding="utf-8")
+
+
+class _TagCounter(html.parser.HTMLParser):
+    VOID = frozenset({"meta", "img", "br", "hr", "link", "input"})
+
+    def __init__(self):
+        super().__init__()
+        self.stack: list[str] = []
+        self.errors: list[str] = []
+
+    def handle_starttag(self, tag, attrs):
+        if tag not in self.VOID:
+            self.stack.append(tag)
+
+    def handle_endtag(self, tag):
+        if not self.stack or self.stack[-1] != tag:
+            self.errors.append(f"</{tag}> closes {self.stack[-1:] or 'nothing'}")
+        else:
+            self.stack.pop()
+
+
+def test_report_is_one_balanced_html_file(written):
+    folder, path, text = written
+    assert path == folder / "report.html"
+    assert text.startswith("<!DOCTYPE html>")
+    parser = _TagCounter()
+    parser.feed(text)
+    assert parser.errors == [] and parser.stack == []
+    # Self-contained: no external stylesheet, script or image.
+    assert "<script" not in text and "<link" not in text
+    assert not re.search(r'src="(?!data:image/png;base64,)', text)
+
+
+def test_every_part_and_sample_is_reported(summary, written):
+    _, _, text = written
+    for spec in summary.parts:
+        assert f"Part {spec.name}</h2>" in text
+    for sample in summary.samples:
+        heading = f"{sample.part} / {sample.sample}"
+        if sample.bias_v:
+            heading += f" at {sample.bias_v:g} V"
+        assert f"<h4>{heading}</h4>" in text
+
+
+def test_embedded_images_decode_as_png_and_match_plots_folder(written):
+    folder, _, text = written
+    images = re.findall(r'src="data:image/png;base64,([A-Za-z0-9+/=]+)"', text)
+    saved = sorted((folder / "plots").glob("*.png"))
+    assert len(images) == len(saved) > 0
+    saved_bytes = {p.read_bytes() for p in saved}
+    for encoded in images:
+        data = base64.b64decode(encoded, validate=True)
+        assert data.startswith(PNG_SIGNATURE)
+        with Image.open(io.BytesIO(data)) as image:
+            image.verify()
+        assert data in saved_bytes
+
+
+def test_figures_per_sample_and_per_part(summary, written):
+    folder, _, _ = written
+    names = {p.stem for p in (folder / "plots").glob("*.png")}
+    for sample in summary.samples:
+        assert f"{exports.safe_filename(sample.label)}_impedance" in names
+        assert (f"{exports.safe_filename(sample.label)}_residuals" in names) == (
+            sample.fit is not None
+        )
+    assert {"ZX-C10U_lot", "ZX-C10U_bias", "ZX-L2U2_lot", "ZX-F600_lot"} <= names
+    assert "ZX-P330U_lot" not in names  # one sample only: nothing to overlay
+
+
+def test_text_from_the_run_is_escaped(written):
+    _, _, text = written
+    assert "<X5R>" not in text and "&lt;X5R&gt;" in text
+    assert "alert(1)</script>" not in text
+    assert "&lt;open circuit&gt;" in text  # the failed fit's message
+    assert "outputs test &lt;run&gt; &amp; co" in text
+    assert "ZBENCH,SIM-VNA&lt;1&gt;,0001,1.0" in text
+
+
+def test_setup_calibration_window_and_ground_loop(written):
+    _, _, text = written
+    for heading in ("Set-up", "Calibration", "Ground-loop check", "Measurable window"):
+        assert f"<h2>{heading}</h2>" in text
+    assert "100 Hz" in text and "200 MHz" in text  # sweep, SI prefixes
+    assert "90 min" in text  # calibration age of 5400 s
+    assert "650 µΩ" in text  # ground-loop DC error
+    # The inductor's resonance rises above the 50 Ω window: its points outside are listed.
+    window = text.split("<h2>Measurable window</h2>", 1)[1].split("</table>", 1)[0]
+    row = re.search(r"<tr><td>ZX-L2U2_s1</td>(.*?)</tr>", window).group(1)
+    assert "MHz" in row and ">0<" not in row
+
+
+def test_landmarks_verdicts_spice_lot_and_bias(summary, written):
+    _, _, text = written
+    assert "FAIL" in text and "PASS" in text and "not judged under bias" in text
+    assert text.count("<h4>SPICE subcircuit</h4>") == sum(
+        s.fit is not None for s in summary.samples
+    )
+    for sample in summary.samples:
+        if sample.fit is not None:
+            assert f".subckt {exports.sample_spice_name(sample)} 1 2" in text
+    assert "<h4>Lot statistics at 0 V</h4>" in text and "<h4>Lot statistics at 3 V</h4>" in text
+    assert "<h4>Capacitance versus DC bias</h4>" in text
+    assert "ZX_C10U_typ" in text
+    for key in ("c_low", "esl", "srf", "esr_at_srf", "l_low", "r_dc", "z_at_srf", "c_par"):
+        assert f"<td>{key}</td>" in text
+
+
+def test_value_formatting_by_key_suffix():
+    assert report._value_text("stop_hz", 200e6) == "200 MHz"
+    assert report._value_text("series_r_ohm", 499.0) == "499 Ω"
+    assert report._value_text("calibration_age_s", 90000) == "25.0 h"
+    assert report._value_text("power_dbm", -10) == "-10 dBm"
+    assert report._value_text("transformer", True) == "yes"
