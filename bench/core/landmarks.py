@@ -14,7 +14,9 @@ Every figure comes from a band of points, never from one point, so noise average
 - resonances: the sign change of the reactance (admittance for parallel resonance) in a
   lightly smoothed trace, then a local least-squares line of ``ω·X`` against ``ω²``
   (exact for a series R-L-C, REFERENCES §3) over the points around it;
-- values at resonance: a quadratic in ``log f`` through the neighbouring points.
+- values at resonance: a quadratic in ``log f`` through the neighbouring points, of
+  Re Z at a series resonance and of Re(1/Z) at a parallel one (both vary slowly there);
+- a sign change across a gap in the valid points is no resonance: it was not measured.
 Points outside the measurable window (``valid`` False) are ignored.
 """
 
@@ -84,6 +86,11 @@ def _crossing(f: NDArray[np.float64], y: NDArray[np.float64], rising: bool) -> f
                 idx = i
                 break
     if idx is None:
+        return None
+    steps = np.diff(np.log(f))
+    if steps[idx - 1] > 3 * np.median(steps):
+        # The sign changes across a gap in the points (a stretch outside the window):
+        # the resonance itself was not measured.
         return None
     # Linear interpolation of the smoothed trace in log f for a first estimate.
     x0, x1 = np.log(f[idx - 1]), np.log(f[idx])
@@ -223,8 +230,10 @@ def inductor_landmarks(f: Any, z: Any, valid: Any = None) -> Landmarks:
             c_par = 1.0 / ((2 * np.pi * srf) ** 2 * l_low)
     out["l_low"] = l_low if l_low is not None and l_low > 0 else None
     if srf is not None:
-        peak = _value_at(f, np.log(np.abs(z)), srf)
-        out["z_at_srf"] = float(np.exp(peak)) if peak is not None else None
+        # At the parallel resonance |Z| = 1/G; the conductance G = Re(1/Z) varies slowly
+        # there, unlike |Z| at a sharp peak, so it is the one interpolated.
+        conductance = _value_at(f, (1.0 / z).real, srf)
+        out["z_at_srf"] = float(1.0 / conductance) if conductance and conductance > 0 else None
         if out["l_low"] is not None:
             out["c_par"] = 1.0 / ((2 * np.pi * srf) ** 2 * out["l_low"])
     return out
