@@ -1,0 +1,117 @@
+"""Exported subcircuits simulated in ngspice reproduce the fitted model's impedance.
+
+ngspice (an independent circuit simulator) runs an AC analysis with a 1 A AC current
+source driving pin 1 of the subcircuit, pin 2 grounded, so V(1) is Z; ``wrdata`` writes
+frequency, Re and Im. The operating point must solve first, so a floating node (a model
+with no DC path and no bleed) would fail the run.
+"""
+
+from __future__ import annotations
+
+import re
+import shutil
+import subprocess
+
+import numpy as np
+import pytest
+
+from bench.core.fitting import fit_impedance
+from bench.core.spice import library_text, spice_name, subckt_text
+from simulated_instruments.parts import BulkCapacitor, FerriteBead, Mlcc, PowerInductor
+
+NGSPICE = shutil.which("ngspice")
+needs_ngspice = pytest.mark.skipif(
+    NGSPICE is None,
+    reason="ngspice is not installed (Debian package 'ngspice'; .ci/run installs it)",
+)
+
+F = np.logspace(3, np.log10(200e6), 201)
+PARTS = {
+    "series-rlc": Mlcc(name="MC1U", capacitance=1e-6, mode_c_ratio=0.0, dielectric="C0G"),
+    "two-branch": Mlcc(name="MC10U"),
+    "ladder": BulkCapacitor(name="PB330"),
+    "inductor": PowerInductor(name="PL2U2"),
+    "bead": FerriteBead(name="FB600", inductance2=0.4e-6, resistance2=120.0),
+}
+
+
+def run_ngspice(tmp_path, library: str, name: str) -> np.ndarray:
+    (tmp_path / "models.lib").write_text(library)
+    deck = f"""* impedance of {name} by a 1 A AC current source into pin 1
+.include models.lib
+I1 0 1 DC 0 AC 1
+X1 1 0 {name}
+.ac dec 20 1k 200meg
+.control
+run
+wrdata z.txt v(1)
+quit
+.endc
+.end
+"""
+    (tmp_path / "deck.cir").write_text(deck)
+    proc = subprocess.run(
+        [NGSPICE, "-b", "deck.cir"], cwd=tmp_path, capture_output=True, text=True, timeout=60
+    )
+    log = proc.stdout + proc.stderr
+    assert proc.returncode == 0, log
+    assert not re.search(r"singular matrix|error", log, flags=re.IGNORECASE), log
+    return np.loadtxt(tmp_path / "z.txt")
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+@pytest.mark.parametrize("model", sorted(PARTS))
+def test_exported_subcircuit_matches_model_in_ngspice(tmp_path, model):
+    part = PARTS[model]
+    result = fit_impedance(F, part.impedance(F), model=model)
+    name = f"{part.name}-s1"
+    text = subckt_text(result, name, provenance={"source": "invented part, simulated"})
+    data = run_ngspice(tmp_path, library_text([text], title="zbench test"), spice_name(name))
+    f, z_spice = data[:, 0], data[:, 1] + 1j * data[:, 2]
+    z_model = result.impedance(f)
+    assert f.size > 100
+    np.testing.assert_allclose(np.abs(z_spice), np.abs(z_model), rtol=1e-3)
+    np.testing.assert_allclose(np.angle(z_spice), np.angle(z_model), atol=1e-3)
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+def test_library_of_several_parts_runs(tmp_path):
+    texts = []
+    for model in ("two-branch", "bead"):
+        part = PARTS[model]
+        result = fit_impedance(F, part.impedance(F), model=model)
+        texts.append(subckt_text(result, part.name, provenance={"sample": "s1"}))
+    library = library_text(texts, title="two parts")
+    data = run_ngspice(tmp_path, library, "FB600")
+    assert np.all(np.isfinite(data))
+
+
+def test_subckt_text_carries_landmarks_quality_and_provenance():
+    result = fit_impedance(F, PARTS["two-branch"].impedance(F), model="two-branch")
+    text = subckt_text(
+        result, "MC10U s1 @ 3.3V", provenance={"file": "raw/MC10U_s1.s2p", "note": "two\nlines"}
+    )
+    lines = text.splitlines()
+    assert ".subckt MC10U_s1___3_3V 1 2" in lines
+    assert lines[-1] == ".ends MC10U_s1___3_3V"
+    comments = [line for line in lines if line.startswith("*")]
+    body = [line for line in lines if not line.startswith("*")]
+    assert all(line.startswith(("*", ".", "R", "L", "C")) for line in lines)
+    assert any("srf" in c and "c_low" in c for c in comments)
+    assert any("rms_log_error" in c for c in comments)
+    assert any("raw/MC10U_s1.s2p" in c for c in comments)
+    assert any("two lines" in c for c in comments)  # newlines in values stay in one comment
+    assert sum(1 for line in body if line.split()[0] in result.elements) == len(result.elements)
+
+
+def test_names_are_sanitised_and_duplicates_refused():
+    assert spice_name("10u-0805") == "P_10u_0805"
+    assert spice_name("MC22/s2") == "MC22_s2"
+    with pytest.raises(ValueError, match="non-empty"):
+        spice_name("  ")
+    result = fit_impedance(F, PARTS["bead"].impedance(F), model="bead")
+    a = subckt_text(result, "FB", provenance={})
+    with pytest.raises(ValueError, match="several subcircuits named fb"):
+        library_text([a, a], title="dupes")
