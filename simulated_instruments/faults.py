@@ -133,9 +133,14 @@ class FaultState:
 
 
 def corrupt_block_header(data: bytes) -> bytes:
-    """Break the definite-length header of the first block in ``data``: its digit
-    count becomes a letter, as a garbled byte on the line would leave it."""
+    """Break the definite-length header of the first block in ``data``: the last digit
+    of its length becomes ``X``, as a garbled byte on the line would leave it. A reader
+    cannot tell where the block ends; the bytes after it stay in the connection."""
     index = data.find(b"#")
-    if index < 0 or index + 1 >= len(data):
+    if index < 0 or index + 2 >= len(data) or not data[index + 1 : index + 2].isdigit():
         return data
-    return data[: index + 1] + b"Z" + data[index + 2 :]
+    digits = int(data[index + 1 : index + 2])
+    if digits == 0:
+        return data
+    last = index + 1 + digits
+    return data[:last] + b"X" + data[last + 1 :]
