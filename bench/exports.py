@@ -408,8 +408,8 @@ def bias_csv_text(points: tuple[BiasPoint, ...]) -> str:
 
 
 def run_date(summary: RunSummary) -> str:
-    """Date of the run for provenance: ``setup['started']`` or ``setup['date']``, else now (UTC)."""
-    for key in ("started", "date"):
+    """Date of the run for provenance: ``setup`` key started, created or date, else now (UTC)."""
+    for key in ("started", "created", "date"):
         value = summary.setup.get(key)
         if value:
             return str(value)

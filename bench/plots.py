@@ -161,6 +161,34 @@ def _landmark_lines(ax: Axes, fit: Any) -> None:
     )
 
 
+def _unused_spans(ax: Axes, f: np.ndarray, fit: Any, *, label: bool) -> None:
+    """Hatch the ends of the sweep that the fit left out (``fit.f_range``, Hz).
+
+    A run may drop points for reasons beyond the window (a ground loop below a corner,
+    ``--fmin``/``--fmax``); the reader should see which measured points the model answers to.
+    """
+    f_range = getattr(fit, "f_range", None)
+    if f_range is None or f.size < 2:
+        return
+    lo, hi = (float(v) for v in f_range)
+    spans = []
+    if math.isfinite(lo) and lo > f[0] * (1 + 1e-9):
+        spans.append((f[0], lo))
+    if math.isfinite(hi) and hi < f[-1] * (1 - 1e-9):
+        spans.append((hi, f[-1]))
+    for index, (start, stop) in enumerate(spans):
+        ax.axvspan(
+            start,
+            stop,
+            facecolor="none",
+            edgecolor="#b0b0b0",
+            hatch="///",
+            linewidth=0,
+            zorder=0.5,
+            label="not used by the fit" if label and index == 0 else None,
+        )
+
+
 def impedance_figure(data: Any, fit: Any = None, *, title: str = "") -> Figure:
     """|Z| and ESR (Re Z) versus frequency, log-log, with the model and the window.
 
@@ -191,6 +219,8 @@ def impedance_figure(data: Any, fit: Any = None, *, title: str = "") -> Figure:
             ax_esr.plot(f, _positive(zm.real), color=MODEL_COLOUR, linestyle="--", label=label)
             _landmark_lines(ax_mag, fit)
             _landmark_lines(ax_esr, fit)
+            _unused_spans(ax_mag, f, fit, label=True)
+            _unused_spans(ax_esr, f, fit, label=False)
         if outside.any():
             marker = {
                 "linestyle": "none",
@@ -269,6 +299,8 @@ def residuals_figure(data: Any, fit: Any, *, title: str = "") -> Figure:
         for ax in (ax_mag, ax_ph):
             _log_axes(ax, y_unit=None)
             ax.axhline(0.0, color="#666666", linewidth=0.7)
+        _unused_spans(ax_mag, f, fit, label=True)
+        _unused_spans(ax_ph, f, fit, label=False)
         # Keep the scale on the points that count (outside points may be far off), wide
         # enough that the typical uncertainty band shows its edges.
         typical = None

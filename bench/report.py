@@ -17,6 +17,7 @@ import base64
 import html
 import math
 from collections.abc import Iterable, Mapping
+from datetime import datetime, timezone
 from pathlib import Path
 from typing import Any
 
@@ -81,6 +82,24 @@ _UNIT_SUFFIXES = {
     "_s": "s",
 }
 
+# Units of set-up keys that carry none in their name (procedure and manifest spellings).
+_KEY_UNITS = {
+    "start": "Hz",
+    "stop": "Hz",
+    "if_bandwidth": "Hz",
+    "ifbw": "Hz",
+    "crossover": "Hz",
+    "power": "dBm",
+    "series_r": "Ω",
+    "z0": "Ω",
+    "bias_tee_rating": "V",
+    "dc_block_rating": "V",
+    "rated_voltage": "V",
+    "settle": "s",
+    "sweep_time": "s",
+}
+_FRACTION_KEYS = ("tolerance",)
+
 
 def esc(value: Any) -> str:
     """HTML-escaped text of ``value`` (quotes included)."""
@@ -106,15 +125,20 @@ def _value_text(key: str, value: Any) -> str:
         return "—"
     if isinstance(value, bool):
         return "yes" if value else "no"
-    lower = key.lower()
+    lower = key.lower().replace(" ", "_")
     if isinstance(value, (int, float)):
         if "age" in lower and lower.endswith("_s"):
             return _duration(value)
-        for suffix, unit in _UNIT_SUFFIXES.items():
-            if lower.endswith(suffix):
-                if unit in ("dB", "dBm"):
-                    return f"{value:g} {unit}"
-                return format_si(float(value), unit)
+        if lower in _FRACTION_KEYS:
+            return f"{100 * value:g} %"
+        unit = _KEY_UNITS.get(lower)
+        for suffix, suffix_unit in _UNIT_SUFFIXES.items():
+            if unit is None and lower.endswith(suffix):
+                unit = suffix_unit
+        if unit in ("dB", "dBm"):
+            return f"{value:g} {unit}"
+        if unit is not None:
+            return format_si(float(value), unit)
         return f"{value:.6g}" if isinstance(value, float) else str(value)
     if isinstance(value, (list, tuple)):
         return ", ".join(_value_text(key, item) for item in value)
@@ -140,6 +164,23 @@ def _kv_table(mapping: Mapping[str, Any]) -> str:
         cell = _kv_table(value) if is_table else esc(_value_text(str(key), value))
         rows.append(f"<tr><th>{esc(_label(key))}</th><td>{cell}</td></tr>")
     return '<table class="kv">' + "".join(rows) + "</table>"
+
+
+def _records_table(mapping: Mapping[str, Any], first: str) -> str | None:
+    """A mapping of like mappings (one per position, say) as one table; None otherwise."""
+    if not mapping or not all(isinstance(v, Mapping) for v in mapping.values()):
+        return None
+    columns: list[str] = []
+    for record in mapping.values():
+        columns.extend(key for key in record if key not in columns)
+    rows = []
+    for name, record in mapping.items():
+        cells = [esc(name)]
+        for column in columns:
+            value = record.get(column)
+            cells.append("—" if value is None else esc(_value_text(column, value)))
+        rows.append(cells)
+    return _table([first, *(_label(c) for c in columns)], rows)
 
 
 def _table(
@@ -220,25 +261,36 @@ def _window_section(summary: RunSummary) -> str:
         where = "; ".join(
             f"{format_si(lo, 'Hz', 3)} – {format_si(hi, 'Hz', 3)} ({n})" for lo, hi, n in ranges
         )
+        left_out = "—" if sample.fit is None else str(sample.fit.quality.points_outside_window)
         rows.append(
             [
                 esc(sample.label),
                 _si(_scalar(z_min), "Ω", 3),
                 _si(_scalar(z_max), "Ω", 3),
-                str(int(outside.sum())),
                 str(int(outside.size)),
+                str(int(outside.sum())),
                 esc(where) if where else "none",
+                left_out,
             ]
         )
     return (
         "<h2>Measurable window</h2>"
         '<p class="note">The impedance range the set-up resolves to its tolerance, from the '
         "noise floor (low end) and S21 approaching 1 (high end). Points outside it are "
-        "weighted down or dropped in the fit and marked in the figures.</p>"
+        "dropped from the fit and marked with crosses in the figures. The fit may leave out "
+        "more (points below a ground-loop corner, say): those ends of the sweep are hatched.</p>"
         + _table(
-            ["sample", "lowest |Z|", "highest |Z|", "points outside", "points", "where (count)"],
+            [
+                "sample",
+                "lowest |Z|",
+                "highest |Z|",
+                "points",
+                "outside window",
+                "where (count)",
+                "left out of the fit",
+            ],
             rows,
-            numeric={1, 2, 3, 4},
+            numeric={1, 2, 3, 4, 6},
         )
     )
 
@@ -489,6 +541,29 @@ def _part_section(summary: RunSummary, spec: PartSpec, figs: _Figures) -> str:
     return "".join(body)
 
 
+def _when(value: Any) -> datetime | None:
+    if not isinstance(value, str):
+        return None
+    try:
+        moment = datetime.fromisoformat(value.strip().replace("Z", "+00:00"))
+    except ValueError:
+        return None
+    return moment if moment.tzinfo else moment.replace(tzinfo=timezone.utc)
+
+
+def _calibration_facts(summary: RunSummary) -> dict[str, Any]:
+    """The calibration record, with its age when the run starts (if both times are known)."""
+    facts = dict(summary.calibration)
+    made = _when(facts.get("time") or facts.get("created"))
+    started = _when(summary.setup.get("started") or summary.setup.get("created"))
+    if made is not None and started is not None and "age_s" not in facts:
+        age = (started - made).total_seconds()
+        facts["age"] = (
+            f"{_duration(age)} at the start of the run" if age > 0 else "made during this run"
+        )
+    return facts
+
+
 def report_html(summary: RunSummary, run_dir: Path) -> tuple[str, list[Path]]:
     """HTML text of the report and the PNG files saved under ``run_dir/plots``."""
     figs = _Figures(Path(run_dir))
@@ -507,11 +582,11 @@ def report_html(summary: RunSummary, run_dir: Path) -> tuple[str, list[Path]]:
         "<h2>Set-up</h2>",
         _kv_table(summary.setup),
         "<h2>Calibration</h2>",
-        _kv_table(summary.calibration),
+        _kv_table(_calibration_facts(summary)),
         "<h2>Ground-loop check</h2>",
         '<p class="note">Mount short at low frequency: current returning through the cable '
         "shields adds their resistance in series with the part.</p>",
-        _kv_table(summary.ground_loop),
+        _records_table(summary.ground_loop, "position") or _kv_table(summary.ground_loop),
         _window_section(summary),
     ]
     body.extend(_part_section(summary, spec, figs) for spec in summary.parts)
