@@ -36,11 +36,11 @@ class BenchInstruments:
 
 
 def needed_roles(plan: Plan, *, scripted: bool) -> list[str]:
-    """The instruments a plan needs: the analyser, a switch for a multi-position fixture
-    (more than one position used), a DC source for biased parts, and the bench-control
-    port when a scripted operator does the hands."""
+    """The instruments a plan needs: the analyser, the fixture switch (a fixture of more
+    than one position, or whenever a switch resource is named), a DC source for biased
+    parts, and the bench-control port when a scripted operator does the hands."""
     roles = ["analyzer"]
-    if len(plan.fixture.use_positions) > 1:
+    if plan.fixture.positions > 1 or plan.instruments["switch"].resource:
         roles.append("switch")
     if plan.biased:
         roles.append("dc_source")

@@ -24,8 +24,10 @@ SMALL = """\
 name: small
 mode: unattended
 instruments:
-  analyzer: {max_power: 0 dBm, timeout: 5 s}
-  dc_source: {max_voltage: 20 V, max_current: 20 mA}
+  analyzer: {max_power: 0 dBm, timeout: 2 s}
+  dc_source: {max_voltage: 20 V, max_current: 20 mA, timeout: 1 s}
+  switch: {timeout: 1 s}
+  bench: {timeout: 1 s}
 sweep: {start: 100 Hz, stop: 100 MHz, points: 101, if_bandwidth: 1 kHz, power: 0 dBm}
 fixture:
   positions: 8

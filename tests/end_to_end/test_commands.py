@@ -1,0 +1,127 @@
+"""The run, demo, reprocess and report commands, as a user calls them."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+from click.testing import CliRunner
+
+from bench.cli import cli, main
+from bench.errors import RunError
+from bench.procedure.operators import ScriptedOperator
+
+GUIDED = """\
+name: guided-test
+mode: guided
+instruments:
+  analyzer: {max_power: 0 dBm, timeout: 2 s}
+sweep: {start: 100 Hz, stop: 100 MHz, points: 101, if_bandwidth: 1 kHz}
+fixture: {positions: 1, isolation_transformer: true}
+calibration: {method: through}
+parts:
+  - {name: MC22-6V3, kind: mlcc, nominal: 22u, tolerance: 20 %, rated_voltage: 6.3 V, samples: 1}
+steps: [calibrate, mount_short, measure, fit]
+"""
+
+
+def _manifest(root: Path) -> dict:
+    return json.loads((root / "manifest.json").read_text())
+
+
+def _run_folder(output: str) -> Path:
+    line = next(x for x in output.splitlines() if x.startswith("run folder: "))
+    return Path(line.removeprefix("run folder: "))
+
+
+def test_guided_run_on_the_simulator_answered_on_stdin(tmp_path, kit):
+    path = kit.write_procedure(tmp_path, GUIDED)
+    args = ["run", str(path), "--sim", "bench_single", "--out", str(tmp_path / "runs")]
+    args += ["--quiet", "--time-scale", str(kit.TIME_SCALE)]
+    # After each sweep: through ok, mount short ok, part: repeat once, then ok.
+    result = CliRunner().invoke(cli, args, input="\n\nr\n\n")
+    assert result.exit_code == 0, result.output + repr(result.exception)
+    root = _run_folder(result.output)
+    manifest = _manifest(root)
+    assert manifest["state"] == "complete"
+    assert "(r)epeat" in result.output
+    assert "MC22-6V3/s1" in result.output and "C " in result.output
+    rejected = [p.name for p in (root / "raw" / "rejected").glob("*.s2p")]
+    assert rejected == ["MC22-6V3_s1_0V.1.s2p"]
+    assert (root / "models" / "MC22-6V3_s1.fit.json").is_file()
+
+
+def test_guided_stop_on_stdin_leaves_a_resumable_run(tmp_path, kit):
+    path = kit.write_procedure(tmp_path, GUIDED)
+    args = ["run", str(path), "--sim", "bench_single", "--out", str(tmp_path / "runs")]
+    args += ["--quiet", "--time-scale", str(kit.TIME_SCALE)]
+    result = CliRunner().invoke(cli, args, input="\nq\n")
+    assert isinstance(result.exception, RunError)
+    assert "zbench run --resume" in str(result.exception)
+    root = _run_folder(result.output)
+    assert _manifest(root)["state"] == "stopped"
+
+
+class _CutAfterPlacing(ScriptedOperator):
+    def load_parts(self, placements):
+        super().load_parts(placements)
+        self.bench.write_checked("FAULt:DROP analyzer,3")
+
+
+def test_resume_reprocess_and_report_commands(tmp_path, sim, kit):
+    plan, store = kit.start_run(tmp_path, kit.SMALL)
+    with pytest.raises(RunError):
+        kit.run_on(sim, plan, store, operator=_CutAfterPlacing)
+    kept = kit.raw_files(store)
+    sim.stop()
+
+    # Resume on a new simulated bench, unattended.
+    code = main(
+        ["run", "--resume", str(store.root), "--sim", "--yes", "--quiet", "--time-scale", "0.01"]
+    )
+    assert code == 0
+    manifest = _manifest(store.root)
+    assert manifest["state"] == "complete"
+    after = kit.raw_files(store)
+    assert all(after[k] == v for k, v in kept.items())
+
+    result = CliRunner().invoke(cli, ["reprocess", str(store.root), "--model", "series-rlc"])
+    assert result.exit_code == 0, result.output + repr(result.exception)
+    assert "3 sample(s), 3 fitted" in result.output
+    fit = json.loads((store.root / "models" / "MC22-6V3_s1.fit.json").read_text())
+    assert fit["model"] == "series-rlc"
+    assert _manifest(store.root)["reprocess"]["model"] == "series-rlc"
+
+    result = CliRunner().invoke(cli, ["report", str(store.root)])
+    assert result.exit_code == 0, result.output + repr(result.exception)
+    report = store.root / "report.html"
+    assert report.is_file() and "MC22-6V3" in report.read_text(encoding="utf-8")
+
+
+def test_run_needs_resources_without_sim(tmp_path, kit):
+    path = kit.write_procedure(tmp_path, GUIDED)
+    assert main(["run", str(path), "--out", str(tmp_path / "runs"), "--quiet"]) == 2
+
+
+def test_resume_of_a_folder_that_is_not_a_run(tmp_path):
+    assert main(["run", "--resume", str(tmp_path)]) == 2
+    assert main(["report", str(tmp_path)]) == 2
+
+
+@pytest.mark.slow
+def test_demo_command_writes_the_report(tmp_path):
+    out = tmp_path / "runs"
+    result = CliRunner().invoke(cli, ["demo", "--out", str(out), "--quiet"])
+    assert result.exit_code == 0, result.output + repr(result.exception)
+    root = _run_folder(result.output)
+    assert f"report: {root / 'report.html'}" in result.output
+    manifest = _manifest(root)
+    assert manifest["state"] == "complete"
+    assert manifest["calibration"]["method"] == "hybrid"
+    # 4 standards + 8 mount shorts + 11 samples, three of them at 3 bias points.
+    assert len(list((root / "raw").glob("*.s2p"))) == 4 + 8 + 11 + 6
+    for name in ("summary.csv", "report.html", "log", "procedure.yaml"):
+        assert (root / name).is_file(), name
+    assert list((root / "models").glob("*.lib"))
+    assert (root / "models" / "MC4U7-10V_bias.csv").is_file()
