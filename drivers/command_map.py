@@ -109,12 +109,17 @@ class CommandMap:
 
 
 def format_number(value: Any) -> str:
-    """A number as an instrument reads it: integers plain, floats in 12 significant digits."""
+    """A number as sent to an instrument, exactly: integers plain, other floats in the
+    shortest form that reads back to the same float (never rounded, so a value at a
+    limit is never sent as one just above it)."""
     if isinstance(value, bool):
         raise TypeError("a boolean is not a number for a SCPI setting")
     if isinstance(value, int):
         return str(value)
-    return format(float(value), ".12g")
+    number = float(value)
+    if number.is_integer() and abs(number) < 1e15:
+        return str(int(number))
+    return repr(number)
 
 
 def mnemonic_matches(answer: str, mnemonic: str) -> bool:

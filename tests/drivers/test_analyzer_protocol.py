@@ -66,9 +66,8 @@ def test_configure_moves_stop_first_when_new_start_is_above_present_stop(expecte
 
 def test_plan_outside_limits_sends_nothing(expected_protocol):
     too_wide = SweepPlan(1.0, 5e9, 20001, "log", 2e6, 20.0)
-    with expected_protocol([]) as link:
-        with pytest.raises(PlanError) as info:
-            NetworkAnalyzer(link).configure(too_wide)
+    with expected_protocol([]) as link, pytest.raises(PlanError) as info:
+        NetworkAnalyzer(link).configure(too_wide)
     assert link.sent == []
     message = str(info.value)
     for key in ("start_hz", "stop_hz", "points", "ifbw_hz", "power_dbm", "default.yaml"):
@@ -112,9 +111,8 @@ def test_instrument_error_surfaces_code_text_and_command(expected_protocol):
         ("SYSTem:ERRor:NEXT?", '-221,"Settings conflict"'),
         OK,
     ]
-    with expected_protocol(script) as link:
-        with pytest.raises(InstrumentError) as info:
-            NetworkAnalyzer(link).configure(PLAN)
+    with expected_protocol(script) as link, pytest.raises(InstrumentError) as info:
+        NetworkAnalyzer(link).configure(PLAN)
     error = info.value
     assert (error.code, error.text, error.command) == (
         -222,
@@ -180,15 +178,16 @@ def test_sweep_reads_all_four_by_default(expected_protocol):
 def test_sweep_with_cut_block_is_a_transport_error(expected_protocol):
     f = np.array([1e3, 2e3, 3e3])
     script = sweep_script(f, {"S21": np.zeros(5)})
-    with expected_protocol(script) as link:
-        with pytest.raises(TransportError, match="expected 6 values"):
-            NetworkAnalyzer(link).sweep(("S21",))
+    with (
+        expected_protocol(script) as link,
+        pytest.raises(TransportError, match="expected 6 values"),
+    ):
+        NetworkAnalyzer(link).sweep(("S21",))
 
 
 def test_sweep_of_unknown_parameter_sends_nothing(expected_protocol):
-    with expected_protocol([]) as link:
-        with pytest.raises(PlanError, match="S33"):
-            NetworkAnalyzer(link).sweep(("S33",))
+    with expected_protocol([]) as link, pytest.raises(PlanError, match="S33"):
+        NetworkAnalyzer(link).sweep(("S33",))
 
 
 def test_sweep_error_after_trigger_surfaces(expected_protocol):
@@ -199,9 +198,8 @@ def test_sweep_error_after_trigger_surfaces(expected_protocol):
         ("SYSTem:ERRor:NEXT?", '-213,"Init ignored"'),
         OK,
     ]
-    with expected_protocol(script) as link:
-        with pytest.raises(InstrumentError) as info:
-            NetworkAnalyzer(link).sweep(("S21",))
+    with expected_protocol(script) as link, pytest.raises(InstrumentError) as info:
+        NetworkAnalyzer(link).sweep(("S21",))
     assert info.value.code == -213 and info.value.command == "INITiate:IMMediate"
 
 
@@ -235,9 +233,11 @@ def test_correction_and_snapshot(expected_protocol):
 
 
 def test_unknown_readback_is_a_clear_error(expected_protocol):
-    with expected_protocol([("SENSe:CORRection:STATe?", "MAYBE")]) as link:
-        with pytest.raises(DriverError, match="neither on nor off"):
-            NetworkAnalyzer(link).correction()
+    with (
+        expected_protocol([("SENSe:CORRection:STATe?", "MAYBE")]) as link,
+        pytest.raises(DriverError, match="neither on nor off"),
+    ):
+        NetworkAnalyzer(link).correction()
 
 
 def test_another_dialect_is_a_map_not_code(expected_protocol):

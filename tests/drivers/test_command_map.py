@@ -115,5 +115,7 @@ def test_format_number():
     assert format_number(100e6) == "100000000"
     assert format_number(4.7e-9) == "4.7e-09"
     assert format_number(-12.5) == "-12.5"
+    # exact: a value at a limit must not be rounded to one above it
+    assert float(format_number(1.0955163172973315)) == 1.0955163172973315
     with pytest.raises(TypeError):
         format_number(True)

@@ -156,7 +156,7 @@ calls = st.one_of(
 )
 
 
-class BodyFailure(Exception):
+class BodyError(Exception):
     pass
 
 
@@ -177,7 +177,7 @@ def run_call(source: DcSource, call) -> None:
             source.measure_voltage()
             source.measure_current()
         elif name == "raise":
-            raise BodyFailure
+            raise BodyError
     except SafetyLimitError:
         pass
 
@@ -198,13 +198,13 @@ def test_property_limit_never_exceeded_and_output_off_at_the_end(
     fake = FakeDcInstrument(voltage=start_voltage)
     source = DcSource(fake, max_voltage=limit, max_current=0.2, sleep=lambda s: None)
     for call in before:
-        with contextlib.suppress(BodyFailure):
+        with contextlib.suppress(BodyError):
             run_call(source, call)
     try:
         with source.biased(bias, step_v=limit / 3, dwell_s=0.0, discharge_s=0.0):
             for call in body:
                 run_call(source, call)
-    except (SafetyLimitError, BodyFailure):
+    except (SafetyLimitError, BodyError):
         pass
     assert all(0.0 <= v <= limit for v in fake.voltages_sent), fake.voltages_sent
     if 0.0 <= bias <= limit:  # a valid bias: the block ran and must have cleaned up

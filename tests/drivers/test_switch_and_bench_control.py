@@ -31,15 +31,13 @@ def test_select_that_does_not_close_is_an_error(expected_protocol):
         OK,
         ("ROUTe:CLOSe? (@1)", "0"),
     ]
-    with expected_protocol(script) as link:
-        with pytest.raises(DriverError, match="did not close"):
-            FixtureSwitch(link, 2).select(1)
+    with expected_protocol(script) as link, pytest.raises(DriverError, match="did not close"):
+        FixtureSwitch(link, 2).select(1)
 
 
 def test_select_outside_positions_sends_nothing(expected_protocol):
-    with expected_protocol([]) as link:
-        with pytest.raises(PlanError, match=r"\[1, 2, 3, 4\]"):
-            FixtureSwitch(link, 4).select(5)
+    with expected_protocol([]) as link, pytest.raises(PlanError, match=r"\[1, 2, 3, 4\]"):
+        FixtureSwitch(link, 4).select(5)
 
 
 def test_selected(expected_protocol):
@@ -50,16 +48,14 @@ def test_selected(expected_protocol):
     with expected_protocol(none) as link:
         assert FixtureSwitch(link, [5, 7]).selected() is None
     two = [("ROUTe:CLOSe? (@1)", "1"), ("ROUTe:CLOSe? (@2)", "1")]
-    with expected_protocol(two) as link:
-        with pytest.raises(DriverError, match="together"):
-            FixtureSwitch(link, 2).selected()
+    with expected_protocol(two) as link, pytest.raises(DriverError, match="together"):
+        FixtureSwitch(link, 2).selected()
 
 
 def test_open_all_error_surfaces(expected_protocol):
     script = [("ROUTe:OPEN:ALL", None), ("SYSTem:ERRor:NEXT?", '-240,"Hardware error"'), OK]
-    with expected_protocol(script) as link:
-        with pytest.raises(InstrumentError) as info:
-            FixtureSwitch(link, 2).open_all()
+    with expected_protocol(script) as link, pytest.raises(InstrumentError) as info:
+        FixtureSwitch(link, 2).open_all()
     assert info.value.code == -240 and info.value.text == "Hardware error"
 
 
@@ -106,9 +102,8 @@ def test_bench_control_commands(expected_protocol):
     ],
 )
 def test_bench_control_refuses_bad_requests_without_sending(expected_protocol, call, args):
-    with expected_protocol([]) as link:
-        with pytest.raises(PlanError):
-            getattr(BenchControl(link), call)(*args)
+    with expected_protocol([]) as link, pytest.raises(PlanError):
+        getattr(BenchControl(link), call)(*args)
 
 
 def test_unknown_part_error_from_the_bench_surfaces(expected_protocol):
@@ -117,6 +112,8 @@ def test_unknown_part_error_from_the_bench_surfaces(expected_protocol):
         ("SYSTem:ERRor:NEXT?", '-224,"Illegal parameter value"'),
         OK,
     ]
-    with expected_protocol(script) as link:
-        with pytest.raises(InstrumentError, match="Illegal parameter value"):
-            BenchControl(link).place(1, "NOPE/s1")
+    with (
+        expected_protocol(script) as link,
+        pytest.raises(InstrumentError, match="Illegal parameter value"),
+    ):
+        BenchControl(link).place(1, "NOPE/s1")
