@@ -243,3 +243,28 @@ def test_faults_from_the_scenario(sim_bench_factory, open_instrument):
     assert vna.query("SYST:ERR?") == '-240,"Hardware error;lamp"'
     hands = open_instrument(bench, "bench")
     assert hands.query("FAULt:MISSing? 2") == "1"
+
+
+def test_new_message_interrupts_a_waiting_opc_query(sim_bench_factory):
+    # 1601 points at 10 Hz IFBW: a 384 s sweep, 3.8 s at this time scale; the client
+    # does not wait for *OPC? and sends another query (IEEE 488.2 §6.3.2.3: -410).
+    bench = sim_bench_factory("demo", time_scale=0.01)
+    sock = raw_client(bench, "analyzer")
+    sock.sendall(b"SWE:POIN 1601;:BAND 10;:INIT;*OPC?\n")
+    # The interrupted *OPC? gives no "1": the first answer is the *IDN? one.
+    assert ask(sock, b"*IDN?").startswith(b"zbench,")
+    sock.sendall(b"ABOR\n")
+    assert [e[:4] for e in errors(sock)] == [b"-410"]
+    sock.close()
+
+
+def test_stopped_bench_closes_its_ports(sim_bench_factory):
+    bench = sim_bench_factory("demo")
+    sock = raw_client(bench, "switch")
+    assert ask(sock, b"*IDN?").startswith(b"zbench,")
+    bench.stop()
+    assert sock.recv(10) == b""  # the open connection is closed
+    sock.close()
+    with pytest.raises(OSError):
+        socket.create_connection(("127.0.0.1", bench.ports["switch"]), timeout=1).close()
+    bench.stop()  # idempotent
