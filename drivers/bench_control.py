@@ -4,7 +4,8 @@ The simulated bench has no hands, so what an engineer does at the bench (put a
 calibration standard on the cables, place a part in a mount, fit the isolation
 transformer) is a SCPI command on its ``bench`` instrument. To the drivers it is just
 another instrument on a socket. The nodes are those of the bench-control table in
-DEVELOPERS.md; fault injection (``FAULt:...``) is documented with the simulator.
+DEVELOPERS.md; the fault-injection nodes (``FAULt:...``) are those documented in
+``simulated_instruments/README.md``.
 """
 
 from __future__ import annotations
@@ -16,6 +17,13 @@ from drivers.errors import PlanError
 from drivers.scpi import ScpiInstrument
 
 STANDARDS = {"short": "SHORt", "open": "OPEN", "load": "LOAD"}
+# Instrument names of the fault nodes, by the resource keys of the simulated bench.
+FAULT_TARGETS = {
+    "analyzer": "ANALyzer",
+    "switch": "SWITch",
+    "dc_source": "DCSource",
+    "bench": "BENCh",
+}
 
 
 class BenchControl(ScpiInstrument):
@@ -85,3 +93,67 @@ class BenchControl(ScpiInstrument):
         if ohms < 0:
             raise PlanError(f"series resistance must be ≥ 0 Ω, got {ohms!r}")
         self.write_checked(f"OPERator:RESistors {format_number(ohms)}")
+
+    def transformer_fitted(self) -> bool:
+        """Whether the isolation transformer is fitted."""
+        return self.transport.query("OPERator:TRANsformer?").strip() in ("1", "+1", "ON")
+
+    def resistance(self) -> float:
+        """Series resistance fitted at each port, Ω (0 without resistors)."""
+        return self.query_float("OPERator:RESistors?")
+
+    def positions(self) -> int:
+        """Number of fixture positions."""
+        return round(self.query_float("OPERator:POSitions?"))
+
+    def parts(self) -> list[str]:
+        """Every ``<part>/<sample>`` the bench has to place."""
+        answer = self.transport.query("OPERator:PARTs?").strip().strip('"')
+        return [item for item in answer.split(",") if item]
+
+    # -- fault injection (simulated bench only) ------------------------------------------
+
+    def fault_delay(self, instrument: str, seconds: float, count: int = 1) -> None:
+        """Delay the next ``count`` answers of ``instrument`` by ``seconds`` of real time
+        (``count`` 0: every answer until :meth:`clear_faults`)."""
+        target = _fault_target(instrument)
+        self.write_checked(f"FAULt:DELay {target},{format_number(seconds)},{int(count)}")
+
+    def fault_drop(self, instrument: str, after: int = 0) -> None:
+        """Close the connection of ``instrument`` instead of answering, after ``after``
+        more answered queries (once)."""
+        self.write_checked(f"FAULt:DROP {_fault_target(instrument)},{int(after)}")
+
+    def fault_corrupt_block(self, instrument: str = "analyzer", count: int = 1) -> None:
+        """Break the length digits of the next ``count`` binary blocks."""
+        self.write_checked(f"FAULt:BLOCk {_fault_target(instrument)},{int(count)}")
+
+    def fault_error(self, instrument: str, code: int, text: str | None = None) -> None:
+        """Push an entry into the error queue of ``instrument``'s sessions."""
+        argument = f"{_fault_target(instrument)},{int(code)}"
+        if text is not None:
+            if '"' in text:
+                raise PlanError(f"fault error text must not contain quotes, got {text!r}")
+            argument += f',"{text}"'
+        self.write_checked(f"FAULt:ERRor {argument}")
+
+    def fault_missing(self, position: int, missing: bool = True) -> None:
+        """Make the part in ``position`` not really be there (the mount reads empty)."""
+        self.write_checked(f"FAULt:MISSing {int(position)},{'ON' if missing else 'OFF'}")
+
+    def clear_faults(self) -> None:
+        """Clear every injected fault."""
+        self.write_checked("FAULt:CLEar")
+
+    def faults(self) -> str:
+        """A one-line description of the active faults."""
+        return self.transport.query("FAULt:LIST?").strip().strip('"')
+
+
+def _fault_target(instrument: str) -> str:
+    try:
+        return FAULT_TARGETS[instrument.lower()]
+    except KeyError:
+        raise PlanError(
+            f"unknown instrument {instrument!r} for a fault; use one of {sorted(FAULT_TARGETS)}"
+        ) from None

@@ -3,7 +3,7 @@
 Commands (SCPI-99 ROUTe subsystem, the forms of the design notes §8):
 ``ROUTe:OPEN:ALL``, ``ROUTe:CLOSe (@<n>)``, ``ROUTe:CLOSe? (@<n>)`` (answers 1 or 0).
 Selection is break-before-make: every path is opened before the new one is closed, so
-two parts are never on the line together.
+two parts are never on the line together; ``*OPC?`` then waits for the relay to settle.
 """
 
 from __future__ import annotations
@@ -23,6 +23,7 @@ class SwitchCommands:
     open_all: str = "ROUTe:OPEN:ALL"
     close: str = "ROUTe:CLOSe (@{position})"
     close_query: str = "ROUTe:CLOSe? (@{position})"
+    settled: str = "*OPC?"
     error_query: str = "SYSTem:ERRor:NEXT?"
 
 
@@ -35,9 +36,11 @@ class FixtureSwitch(ScpiInstrument):
         positions: int | Iterable[int],
         *,
         commands: SwitchCommands | None = None,
+        settle_timeout_s: float = 10.0,
     ):
         self.commands = commands or SwitchCommands()
         super().__init__(transport, error_query=self.commands.error_query)
+        self.settle_timeout_s = settle_timeout_s
         if isinstance(positions, int):
             if positions < 1:
                 raise ValueError(f"a switch needs at least one position, got {positions}")
@@ -59,7 +62,13 @@ class FixtureSwitch(ScpiInstrument):
                 f"this switch has positions {list(self.positions)}. Nothing was sent."
             )
         self.open_all()
-        self.write_checked(self.commands.close.format(position=position))
+        command = self.commands.close.format(position=position)
+        self.transport.write(command)
+        # *OPC? answers once the relay has settled (IEEE 488.2 §10.18), so the sweep
+        # that follows never sees contact bounce.
+        with self.transport.timeout(max(self.settle_timeout_s, 0.1)):
+            self.transport.query(self.commands.settled)
+        self.check_errors(command)
         if not self.is_closed(position):
             raise DriverError(
                 f"{self.resource_name}: position {position} did not close "

@@ -65,7 +65,7 @@ def test_configure_moves_stop_first_when_new_start_is_above_present_stop(expecte
 
 
 def test_plan_outside_limits_sends_nothing(expected_protocol):
-    too_wide = SweepPlan(1.0, 5e9, 20001, "log", 2e6, 20.0)
+    too_wide = SweepPlan(0.5, 5e9, 30001, "log", 2e6, 20.0)
     with expected_protocol([]) as link, pytest.raises(PlanError) as info:
         NetworkAnalyzer(link).configure(too_wide)
     assert link.sent == []

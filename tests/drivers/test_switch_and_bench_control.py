@@ -16,11 +16,13 @@ def test_select_is_break_before_make_and_read_back(expected_protocol):
         ("ROUTe:OPEN:ALL", None),
         OK,
         ("ROUTe:CLOSe (@3)", None),
+        ("*OPC?", "1"),
         OK,
         ("ROUTe:CLOSe? (@3)", "1"),
     ]
     with expected_protocol(script) as link:
-        assert FixtureSwitch(link, 4).select(3) == 3
+        assert FixtureSwitch(link, 4, settle_timeout_s=2.5).select(3) == 3
+    assert link.timeouts[link.sent.index("*OPC?")] == 2.5  # waits for the relay to settle
 
 
 def test_select_that_does_not_close_is_an_error(expected_protocol):
@@ -28,6 +30,7 @@ def test_select_that_does_not_close_is_an_error(expected_protocol):
         ("ROUTe:OPEN:ALL", None),
         OK,
         ("ROUTe:CLOSe (@1)", None),
+        ("*OPC?", "1"),
         OK,
         ("ROUTe:CLOSe? (@1)", "0"),
     ]
