@@ -13,7 +13,8 @@
   and the best result is kept; higher orders also start from the next lower order's fit;
 - the Jacobian is analytic: ``d ln Z/d ln p = p·(dZ/dp)/Z`` from the network tree;
 - the order of ``ladder``, ``inductor`` and ``bead``, and the family under ``auto``, is
-  chosen by the Bayesian information criterion ``m·ln(χ²/m) + k·ln(m)``;
+  chosen by the Bayesian information criterion ``χ² + k·ln(m)`` (χ² weighted by the
+  point uncertainties, m residuals, k elements);
 - element uncertainties come from the Jacobian, the covariance scaled by the residual
   variance ``χ²/(m − k)``.
 
@@ -49,6 +50,7 @@ DEFAULT_QUALITY_BOUND = 0.1
 MODEL_ERROR_FLOOR = 0.02
 MIN_POINTS = 10
 SCOUT_EVALUATIONS = 12
+BIC_MARGIN = 6.0
 
 AUTO_CANDIDATES: dict[str, tuple[tuple[str, tuple[int, ...]], ...]] = {
     "capacitor": (("series-rlc", (1,)), ("two-branch", (1,)), ("ladder", (2, 3, 4, 5))),
@@ -260,7 +262,9 @@ def _fit_order(
     values = dict(zip(names, (float(v) for v in np.exp(q)), strict=True))
     zm = network_impedance(node, f, values)
     err = np.abs(np.log(zm / z))
-    bic = m * math.log(max(chi2, 1e-300) / m) + k * math.log(m)
+    # Known-variance form: the weights are the points' uncertainties (with the model-error
+    # floor), so χ² is on an absolute scale and each element must lower it by ln(m).
+    bic = chi2 + k * math.log(m)
     vanish = vanishing_sides(node)
     at_bound = tuple(
         n
@@ -268,6 +272,22 @@ def _fit_order(
         if (qi - a < 1e-3 and vanish[n] != "low") or (b - qi < 1e-3 and vanish[n] != "high")
     )
     return _Trial(family, order, values, q, chi2, bic, float(np.sqrt(np.mean(err**2))), at_bound)
+
+
+def _select(trials: list[_Trial]) -> _Trial:
+    """The trial with the lowest BIC, except that more elements must earn their place.
+
+    A candidate with more elements replaces a simpler one only when it lowers the BIC by
+    more than :data:`BIC_MARGIN` ("strong" evidence on the usual BIC scale, common
+    practice, no source); otherwise near-equal fits would pick redundant elements.
+    """
+    ordered = sorted(trials, key=lambda t: (t.q.size, t.bic))
+    best = ordered[0]
+    for trial in ordered[1:]:
+        margin = 0.0 if trial.q.size == best.q.size else BIC_MARGIN
+        if trial.bic < best.bic - margin:
+            best = trial
+    return best
 
 
 def _uncertainties(trial: _Trial, f, z, weight) -> dict[str, float]:
@@ -396,7 +416,7 @@ def fit_impedance(
             best_bic = min(best_bic, trial.bic)
     if not trials:
         raise FitError(f"too few points ({n_used}) for any order of model {model!r}")
-    best = min(trials, key=lambda t: t.bic)
+    best = _select(trials)
 
     zm = network_impedance(best.family.circuit(best.order), fu, best.values)
     err = np.abs(np.log(zm / zu))

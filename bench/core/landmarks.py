@@ -62,7 +62,7 @@ def _points_per_decade(f: NDArray[np.float64]) -> float:
     return (f.size - 1) / max(np.log10(f[-1] / f[0]), 1e-9)
 
 
-def _crossing(f: NDArray[np.float64], y: NDArray[np.float64], rising: bool) -> float | None:
+def first_crossing(f: NDArray[np.float64], y: NDArray[np.float64], rising: bool) -> float | None:
     """First frequency where ``y`` changes sign (− to + when ``rising``), refined.
 
     The sign change is looked for in a running median (about 1/20 decade wide, at least
@@ -158,7 +158,7 @@ def capacitor_landmarks(f: Any, z: Any, valid: Any = None) -> Landmarks:
         return out
     w = 2 * np.pi * f
     x = z.imag
-    srf = _crossing(f, x, rising=True)
+    srf = first_crossing(f, x, rising=True)
     out["srf"] = srf
     # ESL: least squares of X/ω over the top decade above 2·SRF (capacitance corrected).
     esl = None
@@ -202,7 +202,7 @@ def inductor_landmarks(f: Any, z: Any, valid: Any = None) -> Landmarks:
     x = z.imag
     # Parallel resonance: the susceptance rises through zero (− to +); for L‖R‖C,
     # ω·Im Y = ω²C − 1/L is a straight line in ω², which the refinement uses.
-    srf = _crossing(f, (1.0 / z).imag, rising=True)
+    srf = first_crossing(f, (1.0 / z).imag, rising=True)
     out["srf"] = srf
     # DC resistance: median of Re Z over the lowest third of a decade.
     lowest = f <= f[0] * 10 ** (1 / 3)

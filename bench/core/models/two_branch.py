@@ -28,9 +28,11 @@ def starts(order, f, z, landmarks: Mapping[str, Any], previous=None) -> list[dic
     esl = landmark(landmarks, "esl", 1.0 / ((2 * np.pi * srf) ** 2 * c))
     esr = landmark(landmarks, "esr_at_srf", float(np.min(np.abs(z))))
     out = []
-    # The second resonance somewhere between the first and the top of the sweep.
+    feature = _mode_start(f, z, srf, c, esr)
+    if feature is not None:
+        out.append(feature)
     top = max(f[-1], 4 * srf)
-    for ratio, l_ratio in ((0.3, 5.0), (0.08, 5.0), (0.5, 2.0), (0.02, 10.0)):
+    for ratio, l_ratio in ((0.3, 5.0), (0.08, 5.0), (0.6, 2.0), (0.02, 10.0)):
         f2 = srf * (top / srf) ** ratio * 1.5
         l2 = esl * l_ratio
         l1 = esl * l_ratio / (l_ratio - 1.0)  # so that L1 ‖ L2 = ESL
@@ -39,6 +41,40 @@ def starts(order, f, z, landmarks: Mapping[str, Any], previous=None) -> list[dic
             {"R1": esr, "L1": l1, "C1": max(c - c2, 0.5 * c), "R2": esr * 5, "L2": l2, "C2": c2}
         )
     return out
+
+
+def _mode_start(f, z, srf: float, c: float, esr: float) -> dict[str, float] | None:
+    """Start values from the second mode seen in the data, when there is one.
+
+    Above the first resonance the apparent inductance X/ω rises to a peak at the
+    anti-resonance ``fa`` and dips at the second branch's own resonance ``f2``. With
+    branch 1 inductive and branch 2 a series L2-C2 [derived]: ``fa² = 1/(C2(L1+L2))`` and
+    ``f2² = 1/(L2·C2)``, so ``L2/L1 = r/(1 − r)`` with ``r = (fa/f2)²``.
+    """
+    w = 2 * np.pi * f
+    apparent = z.imag / w
+    above = np.flatnonzero(f > 1.5 * srf)
+    if above.size < 6:
+        return None
+    ia = above[np.argmax(apparent[above])]
+    typical = np.median(apparent[above])
+    if typical <= 0 or apparent[ia] < 1.3 * typical:
+        return None
+    below = above[f[above] < f[ia] / 1.3]
+    l1 = float(np.median(apparent[below])) if below.size >= 2 else float(typical)
+    if l1 <= 0:
+        return None
+    after = above[f[above] > f[ia]]
+    fa = float(f[ia])
+    l2 = 3.0 * l1
+    if after.size >= 2:
+        i2 = after[np.argmin(apparent[after])]
+        if apparent[i2] < apparent[ia] / 1.3:
+            ratio = (fa / float(f[i2])) ** 2
+            if 0.05 < ratio < 0.95:
+                l2 = l1 * ratio / (1 - ratio)
+    c2 = 1.0 / ((2 * np.pi * fa) ** 2 * (l1 + l2))
+    return {"R1": esr, "L1": l1, "C1": max(c - c2, 0.5 * c), "R2": esr * 3, "L2": l2, "C2": c2}
 
 
 def bounds(order, f, landmarks) -> dict[str, tuple[float, float]]:
