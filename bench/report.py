@@ -341,15 +341,40 @@ def _glance_section(summary: RunSummary) -> str:
     )
 
 
+def _measured_landmarks(sample: SampleResult) -> dict[str, float | None]:
+    """Landmarks read straight from the points inside the window (empty if they cannot be)."""
+    from bench.core.landmarks import landmarks_for
+
+    try:
+        return dict(
+            landmarks_for(sample.fit.kind, sample.data.f, sample.data.z, sample.data.inside_window)
+        )
+    except ValueError:
+        return {}
+
+
 def _landmark_table(sample: SampleResult) -> str:
     fit = sample.fit
     sigma = dict(getattr(fit, "uncertainties", {}) or {})
     sigma_marks = {**sigma, **dict(getattr(fit, "landmark_uncertainties", {}) or {})}
+    measured = _measured_landmarks(sample)
+    # A ±1σ column only when the fit states landmark uncertainties.
+    with_sigma = any(sigma_marks.get(key) is not None for key in fit.landmarks)
     rows = []
     for key, value in fit.landmarks.items():
         unit = exports.LANDMARK_UNITS.get(key, "")
-        rows.append([esc(key), _si(value, unit), _si(sigma_marks.get(key), unit, 3)])
-    landmarks = _table(["landmark", "value", "±1σ"], rows, numeric={1, 2})
+        direct = measured.get(key)
+        difference = (
+            _percent(value / direct - 1.0)
+            if value is not None and direct and math.isfinite(direct)
+            else "—"
+        )
+        row = [esc(key), _si(value, unit)]
+        if with_sigma:
+            row.append(_si(sigma_marks.get(key), unit, 3))
+        rows.append([*row, _si(direct, unit), difference])
+    headers = ["landmark", "model", *(["±1σ"] if with_sigma else []), "read from the data"]
+    landmarks = _table([*headers, "model vs data"], rows, numeric=set(range(1, len(headers) + 1)))
     rows = []
     for key, value in fit.elements.items():
         unit = _element_unit(key)
