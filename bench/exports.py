@@ -440,15 +440,18 @@ def _write_touchstone(run_dir: Path, sample: SampleResult) -> list[Path]:
         f"zbench: {sample.part} sample {sample.sample}, bias {sample.bias_v:g} V",
         "fixture-removed impedance (ohm)",
     ]
-    paths = [
-        Path(
-            write_touchstone_z(
-                run_dir / "corrected" / f"{stem}.z1p", sample.data.f, sample.data.z, comments
-            )
-        )
-    ]
+    f = np.asarray(sample.data.f, dtype=float)
+    z = np.asarray(sample.data.z, dtype=complex)
+    finite = np.isfinite(z)
+    if not finite.all():
+        # Touchstone has no "missing" value: keep the finite points and say so.
+        comments.append(f"{int((~finite).sum())} points with a non-finite impedance left out")
+    z_path = run_dir / "corrected" / f"{stem}.z1p"
+    paths = (
+        [Path(write_touchstone_z(z_path, f[finite], z[finite], comments))] if finite.any() else []
+    )
     if sample.corrected_s is not None:
-        comments[1] = "calibrated S-parameters"
+        comments = [comments[0], "calibrated S-parameters"]
         s = np.asarray(sample.corrected_s, dtype=complex)
         paths.append(
             Path(

@@ -197,7 +197,10 @@ def _fit_one(
 @click.option("--fmin", metavar="HZ", help="Lowest frequency to fit (e.g. 1k).")
 @click.option("--fmax", metavar="HZ", help="Highest frequency to fit (e.g. 200 MHz).")
 @click.option(
-    "--spice", "spice_out", metavar="OUT", help="Write SPICE: a file, a folder or a .lib."
+    "--spice",
+    "spice_out",
+    metavar="OUT",
+    help="Write SPICE subcircuits: a file for one FILE; a folder, or a .lib library, for several.",
 )
 @click.option("--json", "as_json", is_flag=True, help="One JSON object per file (JSON Lines).")
 def command(

@@ -5,6 +5,7 @@ statistics and the capacitance-versus-bias table."""
 from __future__ import annotations
 
 import csv
+import dataclasses
 import importlib.util
 import re
 import shutil
@@ -143,6 +144,20 @@ def test_touchstone_z_round_trips_and_s_only_when_kept(summary, run_dir):
     kept = next(s for s in summary.samples if s.corrected_s is not None)
     s2p = load_measurement(folder / "corrected" / f"{exports.safe_filename(kept.label)}.s2p")
     np.testing.assert_allclose(s2p.s, kept.corrected_s, rtol=1e-9, atol=1e-15)
+
+
+def test_non_finite_points_are_left_out_of_the_z_file(summary, tmp_path):
+    sample = next(s for s in summary.samples if s.fit is None)
+    z = sample.data.z.copy()
+    z[[3, 7]] = np.inf
+    broken = dataclasses.replace(sample, data=dataclasses.replace(sample.data, z=z))
+    run = dataclasses.replace(summary, samples=(broken,))
+    written = exports.write_exports(tmp_path, run)
+    (z1p,) = written["touchstone"]
+    assert "2 points with a non-finite impedance left out" in z1p.read_text()
+    loaded = load_measurement(z1p)
+    assert loaded.f.size == sample.data.f.size - 2
+    assert written["spice"] == [] and written["library"] == []
 
 
 def test_summary_csv_columns_and_pass_fail(summary, run_dir):
