@@ -262,6 +262,8 @@ def command(
                 error=f"{name}: internal error ({type(exc).__name__}: {exc})",
                 exit_code=1,
             )
+        if library is not None and outcome.spice_text:
+            outcome.spice_path = library  # written once every file is fitted
         outcomes.append(outcome)
         _emit(outcome, as_json=as_json)
     if library is not None:

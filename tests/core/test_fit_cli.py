@@ -136,8 +136,9 @@ def test_spice_for_several_files_is_a_folder_or_a_library(capsys, tmp_path):
         str(folder / "mlcc_22u.sub"),
     ]
     library = tmp_path / "parts.lib"
-    code, out, err = run(capsys, BULK, MLCC, "--spice", library)
+    code, out, err = run(capsys, BULK, MLCC, "--spice", library, "--json")
     assert code in (0, 3), err
+    assert [r["spice"] for r in json_lines(out)] == [str(library)] * 2
     text = library.read_text().lower()
     assert text.count(".subckt") == 2 and "bulk_330u" in text and "mlcc_22u" in text
 
