@@ -32,19 +32,9 @@ import click
 
 from bench import api
 from bench.errors import FitError, InputError, ZbenchError
+from bench.exports import LANDMARK_UNITS
 from bench.files import atomic_write_text
 from bench.units import format_si
-
-UNITS = {
-    "c_low": "F",
-    "esl": "H",
-    "srf": "Hz",
-    "esr_at_srf": "Ω",
-    "l_low": "H",
-    "r_dc": "Ω",
-    "z_at_srf": "Ω",
-    "c_par": "F",
-}
 
 
 class InternalError(ZbenchError):
@@ -93,7 +83,7 @@ def _summary_text(outcome: _Outcome) -> str:
         f"{q.points_outside_window} outside the window"
     ]
     marks = ", ".join(
-        f"{key} {format_si(float(value), UNITS.get(key, ''))}"
+        f"{key} {format_si(float(value), LANDMARK_UNITS.get(key, ''))}"
         for key, value in result.landmarks.items()
         if value is not None and math.isfinite(float(value))
     )
