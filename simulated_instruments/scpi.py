@@ -584,6 +584,11 @@ class CommandTree:
 # --- per-client session ----------------------------------------------------------------
 
 
+def no_input_pending() -> bool:
+    """The ``input_pending`` of a session with no connection behind it."""
+    return False
+
+
 @dataclass(eq=False)
 class Session:
     """What belongs to one client connection of one instrument."""
@@ -598,7 +603,8 @@ class Session:
     # encoding another client receives.
     data_format: str = "ASCII"
     byte_order: str = "NORMAL"
-    input_pending: Callable[[], bool] = field(default=lambda: False)
+    # Set by the server: True when the client has sent more input (for -410).
+    input_pending: Callable[[], bool] = no_input_pending
 
     def push_error(self, code: int, detail: str = "") -> None:
         """Queue an error and set its event status bit (IEEE 488.2 §11.5.1)."""

@@ -23,7 +23,7 @@ from typing import Any
 from simulated_instruments.faults import corrupt_block_header
 from simulated_instruments.instruments import Analyzer, BenchControl, DcSource, Switch
 from simulated_instruments.scenario import Scenario, load_scenario
-from simulated_instruments.scpi import Instrument, Session
+from simulated_instruments.scpi import Instrument, Session, no_input_pending
 from simulated_instruments.state import BenchState
 
 HOST = "127.0.0.1"
@@ -184,6 +184,8 @@ class _InstrumentServer:
     def forget(self, conn: _Connection) -> None:
         with self.lock:
             self.connections.discard(conn)
+        self.state.unregister_session(self.instrument.name, conn.session)
+        conn.session.input_pending = no_input_pending  # break the reference cycle
 
     def stop(self) -> None:
         self.stopping.set()

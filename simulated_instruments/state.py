@@ -138,6 +138,9 @@ class BenchState:
         for code, text in self.faults.take_pending_errors(instrument):
             session.push_error(code, text)
 
+    def unregister_session(self, instrument: str, session: Session) -> None:
+        self.sessions[instrument].discard(session)
+
     def set_cables(self, state: str) -> None:
         with self.lock:
             self.cables = state

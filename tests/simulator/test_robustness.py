@@ -150,10 +150,17 @@ def test_several_clients_at_once_get_their_own_answers(sim_bench):
 # --- faults ----------------------------------------------------------------------------
 
 
+def inject(hands, command: str) -> None:
+    """Send a FAULt command and wait until the bench has taken it (a write alone does
+    not order it before another connection's next query)."""
+    hands.write(command)
+    assert hands.query("SYST:ERR?") == '0,"No error"'
+
+
 def test_fault_delay_pushes_a_client_past_its_timeout(sim_bench, open_instrument):
     hands = open_instrument(sim_bench, "bench")
     vna = open_instrument(sim_bench, "analyzer", timeout_ms=300)
-    hands.write("FAULt:DELay ANALyzer,0.8,1")
+    inject(hands, "FAULt:DELay ANALyzer,0.8,1")
     assert "delay analyzer" in hands.query("FAULt:LIST?")
     with pytest.raises(pyvisa.errors.VisaIOError) as info:
         vna.query("*IDN?")
@@ -166,7 +173,7 @@ def test_fault_delay_pushes_a_client_past_its_timeout(sim_bench, open_instrument
 
 def test_fault_drop_closes_the_connection_after_n_queries(sim_bench, open_instrument):
     hands = open_instrument(sim_bench, "bench")
-    hands.write("FAULt:DROP ANAL,2")
+    inject(hands, "FAULt:DROP ANAL,2")
     sock = raw_client(sim_bench, "analyzer")
     assert ask(sock, b"*IDN?").startswith(b"zbench")
     assert ask(sock, b"SWE:POIN?") == b"201"
@@ -183,7 +190,7 @@ def test_fault_corrupt_block_header(sim_bench, open_instrument):
     vna = open_instrument(sim_bench, "analyzer", timeout_ms=1000)
     vna.write("FORM REAL,64;:INIT")
     assert vna.query("*OPC?") == "1"
-    hands.write("FAULt:BLOCk ANALyzer,1")
+    inject(hands, "FAULt:BLOCk ANALyzer,1")
     with pytest.raises((ValueError, pyvisa.errors.VisaIOError)):
         vna.query_binary_values("TRAC? S21", datatype="d", container=np.array)
     vna.clear()
@@ -196,10 +203,10 @@ def test_fault_corrupt_block_header(sim_bench, open_instrument):
 def test_fault_error_reaches_open_sessions_and_the_next_one(sim_bench, open_instrument):
     hands = open_instrument(sim_bench, "bench")
     dc = open_instrument(sim_bench, "dc_source")
-    hands.write('FAULt:ERRor DCSource,-240,"overtemperature"')
+    inject(hands, 'FAULt:ERRor DCSource,-240,"overtemperature"')
     assert dc.query("SYST:ERR?") == '-240,"Hardware error;overtemperature"'
     assert dc.query("SYST:ERR?") == '0,"No error"'
-    hands.write("FAULt:ERRor SWITch,-310")  # nobody connected to the switch yet
+    inject(hands, "FAULt:ERRor SWITch,-310")  # nobody connected to the switch yet
     sw = open_instrument(sim_bench, "switch")
     assert sw.query("SYST:ERR?").startswith("-310,")
     hands.write("SYST:ERR?")
