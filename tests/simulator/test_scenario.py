@@ -1,0 +1,109 @@
+"""Scenarios: strict loading, seeded samples, reproducible benches."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import yaml
+
+from bench.errors import InputError
+from simulated_instruments.scenario import SCENARIO_DIR, load_scenario
+
+
+def demo_data() -> dict:
+    return yaml.safe_load((SCENARIO_DIR / "demo.yaml").read_text(encoding="utf-8"))
+
+
+def test_demo_scenario_has_the_promised_parts_and_limits():
+    sc = load_scenario("demo")
+    assert sc.positions == 8
+    expected = {
+        "MC22-6V3": 3,
+        "MC4U7-10V": 3,
+        "MC100N-16V": 3,
+        "PB330-6V3": 2,
+        "PL470N": 2,
+        "FB120": 2,
+    }
+    for name, count in expected.items():
+        assert [f"{name}/s{k}" for k in range(1, count + 1)] == [
+            key for key in sc.parts if key.startswith(name + "/")
+        ]
+    a = sc.analyzer
+    assert (a.f_min, a.f_max, a.points_max, a.power_min, a.power_max) == (
+        10.0,
+        500e6,
+        20001,
+        -30.0,
+        10.0,
+    )
+    assert (a.ifbw_min, a.ifbw_max, sc.dc_max_voltage, sc.dc_max_current) == (1, 100e3, 20, 0.1)
+    # Mounts differ from position to position.
+    assert len({m.inductance for m in sc.mounts}) == 8
+    assert load_scenario("bench_single").positions == 1
+
+
+def test_samples_are_seeded_and_spread_realistically():
+    a, b, c = (
+        load_scenario("demo", seed=3),
+        load_scenario("demo", seed=3),
+        load_scenario("demo", seed=4),
+    )
+    assert a.parts == b.parts
+    assert a.parts["MC22-6V3/s1"] != c.parts["MC22-6V3/s1"]
+    caps = np.array([a.parts[f"MC22-6V3/s{k}"].capacitance for k in (1, 2, 3)])
+    assert len(set(caps)) == 3
+    # Lot spread of a few per cent around the 22 µF nominal (default one-sigma 3 %).
+    assert np.all(np.abs(caps / 22e-6 - 1) < 0.15)
+
+
+@pytest.mark.parametrize(
+    ("change", "words"),
+    [
+        (lambda d: d.update(colour="blue"), ["colour"]),
+        (lambda d: d["analyzer"].update(points_max=5), ["analyzer", "points_max"]),
+        (lambda d: d["fixture"]["mounts"].pop(), ["7 entries", "8 positions"]),
+        (lambda d: d["parts"]["FB120"]["circuit"].update(type="resistor"), ["FB120", "type"]),
+        (lambda d: d["parts"]["FB120"]["circuit"].update(inductance="fast"), ["FB120"]),
+        (lambda d: d["initial"].update(placements={"3": "NOPE/s1"}), ["NOPE/s1"]),
+    ],
+)
+def test_bad_scenarios_are_clear_input_errors(change, words):
+    data = demo_data()
+    change(data)
+    with pytest.raises(InputError) as info:
+        load_scenario(data)
+    for word in words:
+        assert word in str(info.value)
+
+
+def test_unknown_scenario_name_lists_the_known_ones():
+    with pytest.raises(InputError) as info:
+        load_scenario("no-such-bench")
+    assert "demo" in str(info.value) and "bench_single" in str(info.value)
+
+
+def test_same_seed_same_bench(sim_bench_factory, bench_client):
+    """Two benches with one seed give the same raw data, sweep for sweep."""
+    results = []
+    for _ in range(2):
+        client = bench_client(sim_bench_factory("demo", seed=11))
+        client.configure(1e3, 1e8, 101)
+        client.do('OPER:PLAC 6,"MC100N-16V/s2"')
+        client.select(6)
+        results.append(client.sweep()[1])
+    np.testing.assert_array_equal(results[0], results[1])
+
+
+def test_correction_on_returns_data_at_the_cable_ends(sim_bench, bench_client):
+    client = bench_client(sim_bench)
+    client.configure(1e3, 1e8, 101, ifbw=10)
+    client.do('OPER:PLAC 6,"MC100N-16V/s2"')
+    client.select(6)
+    client.vna.write("SENS:CORR ON")
+    f, s = client.sweep()
+    truth = sim_bench.state.true_s(f)
+    # Only noise is left: at 10 Hz IFBW a −120 dB floor and 0.001 dB trace noise
+    # (ε about 1.6e-4 RMS), so a few times 1e-4 at the worst of 404 values.
+    assert np.max(np.abs(s - truth)) < 1e-3
+    assert np.sqrt(np.mean(np.abs(s - truth) ** 2)) < 2e-4
