@@ -374,6 +374,12 @@ def load_scenario(
     dc = data.get("dc_source", {})
     sr = data.get("series_resistors", {})
     initial = dict(data.get("initial", {}))
+    initial["resistors"] = _q(initial, "resistors", "ohm", 0.0, "initial")
+    if "closed" in initial and not 1 <= initial["closed"] <= positions:
+        raise InputError(
+            f"initial.closed: no position {initial['closed']} on a {positions}-position fixture",
+            path=where,
+        )
     for pos, item in initial.get("placements", {}).items():
         if not 1 <= int(pos) <= positions:
             raise InputError(f"initial.placements: no position {pos}", path=where)
