@@ -32,9 +32,10 @@ def command(scenario: str, port: int, seed: int | None, time_scale: float) -> No
     try:
         bench = start_bench(scenario, ports=port, seed=seed, time_scale=time_scale)
     except OSError as exc:
+        where = f"ports {port} to {port + 3}" if port else "OS-chosen ports"
         raise click.ClickException(
-            f"cannot listen on 127.0.0.1 port {port}: {exc.strerror or exc}; "
-            "choose another --port or 0 for OS-chosen ports"
+            f"cannot listen on 127.0.0.1 {where}: {exc.strerror or exc}; "
+            "choose another --port, or 0 for OS-chosen ports"
         ) from exc
     stop = threading.Event()
     try:
