@@ -275,3 +275,33 @@ def test_stopped_bench_closes_its_ports(sim_bench_factory):
     with pytest.raises(OSError):
         socket.create_connection(("127.0.0.1", bench.ports["switch"]), timeout=1).close()
     bench.stop()  # idempotent
+
+
+def test_fuzz_random_bytes_over_the_socket(sim_bench):
+    """Random bytes down a real connection: the server answers the next *IDN? on it and
+    on a fresh connection, every time."""
+    from hypothesis import given, settings
+    from hypothesis import strategies as st
+
+    watcher = raw_client(sim_bench, "analyzer")
+
+    @settings(max_examples=60, deadline=None)
+    @given(st.binary(max_size=300), st.booleans())
+    def one_case(data: bytes, hang_up: bool) -> None:
+        sock = raw_client(sim_bench, "analyzer")
+        sock.sendall(data)
+        if hang_up:
+            sock.close()
+        else:
+            sock.sendall(b"\n*IDN?\n")
+            lines = b""
+            while b"zbench," not in lines:
+                chunk = sock.recv(65536)
+                assert chunk, "connection closed"
+                lines += chunk
+            sock.close()
+        assert ask(watcher, b"*IDN?").startswith(b"zbench,")
+
+    one_case()
+    assert errors(watcher) == []
+    watcher.close()
