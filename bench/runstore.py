@@ -178,7 +178,10 @@ class RunStore:
         elif state == DONE:
             entry.pop("message", None)
         entry.update(info)
-        self.save()
+        # "running" need not reach the disk at once: a crash before the next save leaves
+        # the step "pending", which resumes the same way; sweeps are listed as written.
+        if state != RUNNING:
+            self.save()
 
     def first_incomplete(self) -> str | None:
         """Id of the first step that is not done or skipped, or None when all are."""
@@ -219,8 +222,13 @@ class RunStore:
         *,
         z0: float = 50.0,
         comments: tuple[str, ...] = (),
+        save: bool = True,
     ) -> Path:
-        """Write one raw sweep ``raw/<name>.s2p`` at once and list it under ``step_id``."""
+        """Write one raw sweep ``raw/<name>.s2p`` at once and list it under ``step_id``.
+
+        With ``save=False`` the manifest is saved by the caller's next :meth:`mark`; a
+        sweep written but not yet listed is found again by :meth:`adopt_raw` on resume.
+        """
         from bench.touchstone import write_touchstone_s
 
         path = self.raw_path(name)
@@ -233,8 +241,25 @@ class RunStore:
         relative = str(path.relative_to(self.root))
         if relative not in entry["files"]:
             entry["files"].append(relative)
-        self.save()
+        if save:
+            self.save()
         return path
+
+    def adopt_raw(self, step_id: str, name: str) -> bool:
+        """List ``raw/<name>.s2p`` under ``step_id`` if it is on disk; True if it is.
+
+        Raw files are written atomically, so one that exists is complete, even if a crash
+        came before the manifest listed it.
+        """
+        path = self.raw_path(name)
+        if not path.is_file():
+            return False
+        entry = self._step(step_id)
+        relative = str(path.relative_to(self.root))
+        if relative not in entry["files"]:
+            entry["files"].append(relative)
+            self.save()
+        return True
 
     def reject_raw(self, step_id: str, name: str) -> Path | None:
         """Move a sweep the operator chose to repeat into ``raw/rejected/`` (never delete)."""

@@ -14,7 +14,7 @@ from typing import Any
 import numpy as np
 
 from bench import __version__
-from bench.core.calibration import RawStandards, calibrate
+from bench.core.calibration import RawStandards, calibrate, through_response
 from bench.core.conversions import shunt_through_z
 from bench.core.impedance import ImpedanceData, impedance_from_shunt_through
 from bench.errors import FitError, RunError
@@ -86,13 +86,20 @@ class Corrector:
             kwargs["crossover_hz"] = self.plan.calibration.crossover_hz
         return calibrate(f, s_raw, standards, self.plan.calibration.method, **kwargs)
 
+    def quick(self, f: np.ndarray, s_raw: np.ndarray) -> np.ndarray:
+        """Through-response correction only: a fast first look (live results), not the
+        run's calibration, which :meth:`correct` applies."""
+        self._check_grid(f)
+        return through_response(s_raw, self.standards["through"][1])
+
 
 def mount_short_impedance(
-    plan: Plan, corrector: Corrector, store: RunStore, position: int
+    plan: Plan, corrector: Corrector, store: RunStore, position: int, *, quick: bool = False
 ) -> tuple[np.ndarray, np.ndarray]:
-    """Frequencies and the shorted mount's impedance (Ω) at ``position``."""
+    """Frequencies and the shorted mount's impedance (Ω) at ``position``
+    (``quick``: through-response correction only, see :meth:`Corrector.quick`)."""
     f, s = averaged(store, f"mount_short/p{position}")
-    s21n = corrector.correct(f, s)[:, 1, 0]
+    s21n = (corrector.quick if quick else corrector.correct)(f, s)[:, 1, 0]
     return f, shunt_through_z(s21n, plan.fixture.z0, plan.fixture.series_r)
 
 

@@ -90,9 +90,14 @@ class Runner:
         self._selected: int | None = None
         self._caution_done = False
         self._corrector: Corrector | None = None
-        self._shorts: dict[int, np.ndarray] = {}
+        self._quick_shorts: dict[int, np.ndarray] = {}
+        self._last: tuple[np.ndarray, np.ndarray] | None = None
         self._loops: dict[int, float] = {}
-        self.sweep_seconds = 0.0  # time spent waiting for the analyser's own sweeps
+        # Time spent inside the analyser driver's sweep (instrument time and transfer), s,
+        # in total and per step: benchmarks subtract it to find the tool's own overhead.
+        self.sweep_seconds = 0.0
+        self.step_sweep_seconds: dict[str, float] = {}
+        self.step_seconds: dict[str, float] = {}
         self.sweeps_done = 0
 
     # -- top level --------------------------------------------------------------------
@@ -330,6 +335,13 @@ class Runner:
     # -- steps ------------------------------------------------------------------------
 
     def _execute(self, step: Step) -> None:
+        started = time.perf_counter()
+        try:
+            self._execute_step(step)
+        finally:
+            self.step_seconds[step.id] = time.perf_counter() - started
+
+    def _execute_step(self, step: Step) -> None:
         store = self.store
         store.mark(step.id, RUNNING)
         store.log(f"step {step.id} started")
@@ -362,18 +374,23 @@ class Runner:
         """
         n = self.plan.sweep.averages
         base = file_stem(step.id)
-        have = set(self.store.step_files(step.id))
+        sweeps: list[tuple[np.ndarray, np.ndarray]] = []
         for k in range(1, n + 1):
             name = base if n == 1 else f"{base}_a{k}"
-            relative = str(self.store.raw_path(name).relative_to(self.store.root))
-            if relative in have and self.store.raw_path(name).exists():
+            if self.store.adopt_raw(step.id, name):
+                sweeps.append(
+                    self.store.read_raw(str(self.store.raw_path(name).relative_to(self.store.root)))
+                )
                 self.display.advance()
                 continue
             self.display.step(f"{label} sweep {k}/{n}" if n > 1 else label)
             t0 = time.perf_counter()
             data = self.inst.analyzer.sweep(self._parameters())
-            self.sweep_seconds += time.perf_counter() - t0
+            spent = time.perf_counter() - t0
+            self.sweep_seconds += spent
+            self.step_sweep_seconds[step.id] = self.step_sweep_seconds.get(step.id, 0.0) + spent
             self.sweeps_done += 1
+            # Listed in the manifest at the step's next mark; adopt_raw finds it otherwise.
             self.store.write_raw(
                 step.id,
                 name,
@@ -381,8 +398,12 @@ class Runner:
                 data.s,
                 z0=self.plan.fixture.z0,
                 comments=(f"raw, analyser correction off, sweep {k} of {n}",),
+                save=False,
             )
+            sweeps.append((np.asarray(data.f, dtype=float), np.asarray(data.s, dtype=complex)))
             self.display.advance()
+        f = sweeps[0][0]
+        self._last = (f, sum(s for _, s in sweeps) / len(sweeps))
 
     def _decide(self, step: Step, label: str, result: str) -> str:
         """Guided sessions: ask what next; handles repeat here, returns skip/continue."""
@@ -427,9 +448,9 @@ class Runner:
             )
 
     def _last_average(self, step: Step) -> tuple[np.ndarray, np.ndarray]:
-        from bench.procedure.processing import averaged
-
-        return averaged(self.store, step.id)
+        """The mean of the sweeps just taken for ``step`` (kept in memory by _sweeps)."""
+        assert self._last is not None
+        return self._last
 
     def _correction(self) -> Corrector:
         if self._corrector is None:
@@ -490,7 +511,6 @@ class Runner:
             self.store.update("warnings", warnings)
             self.display.message(note)
             self._loops[pos] = loop.valid_above_hz
-        self._shorts[pos] = z_short
 
     def _measure(self, step: Step) -> None:
         placement = step.placement
@@ -547,16 +567,18 @@ class Runner:
             label += f" {step.bias_v:g}V"
         try:
             f, s = self._last_average(step)
-            s21n = self._correction().correct(f, s)[:, 1, 0]
-            z_short = self._shorts.get(placement.position)
+            # A quick through-response correction: the live line is a first look; the
+            # fit step applies the run's full calibration.
+            s21n = self._correction().quick(f, s)[:, 1, 0]
+            z_short = self._quick_shorts.get(placement.position)
             if (
                 z_short is None
                 and self.store.step_state(f"mount_short/p{placement.position}") == DONE
             ):
                 _, z_short = mount_short_impedance(
-                    self.plan, self._correction(), self.store, placement.position
+                    self.plan, self._correction(), self.store, placement.position, quick=True
                 )
-                self._shorts[placement.position] = z_short
+                self._quick_shorts[placement.position] = z_short
             data = sample_impedance(self.plan, self.plan.analysis, f, s21n, z_short)
             valid = np.asarray(data.inside_window) & (f >= self._loops.get(placement.position, 0.0))
             kind = "capacitor" if part.spec.kind in ("mlcc", "bulk") else "inductor"
