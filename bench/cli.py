@@ -73,7 +73,7 @@ def main(argv: list[str] | None = None) -> int:
     """Entry point of the console script; returns the process exit code."""
     driver_errors = _driver_error_types()
     try:
-        cli.main(args=argv, prog_name="zbench", standalone_mode=False)
+        result = cli.main(args=argv, prog_name="zbench", standalone_mode=False)
     except click.exceptions.Exit as exc:
         return int(exc.exit_code)
     except click.ClickException as exc:
@@ -91,7 +91,8 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         click.echo("zbench: interrupted.", err=True)
         return 130
-    return 0
+    # With standalone_mode off, click returns a command's ctx.exit(code) as the result.
+    return result if isinstance(result, int) else 0
 
 
 if __name__ == "__main__":  # pragma: no cover

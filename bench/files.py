@@ -3,8 +3,16 @@
 from __future__ import annotations
 
 import os
+import stat
 import tempfile
 from pathlib import Path
+
+
+def _default_mode() -> int:
+    """Permissions an ordinary ``open()`` would give a new file under the current umask."""
+    umask = os.umask(0)
+    os.umask(umask)
+    return (stat.S_IRUSR | stat.S_IWUSR | stat.S_IRGRP | stat.S_IWGRP | stat.S_IROTH | stat.S_IWOTH) & ~umask
 
 
 def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> Path:
@@ -13,6 +21,8 @@ def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> Path:
     target.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
     try:
+        # mkstemp makes the file owner-only; run files are meant to be shared like any other.
+        os.fchmod(fd, _default_mode())
         with os.fdopen(fd, "wb") as handle:
             handle.write(data)
             handle.flush()
