@@ -229,6 +229,7 @@ class RunningBench:
         if self._stopped:
             return
         self._stopped = True
+        self.state.stopping.set()
         for server in self._servers.values():
             server.stop()
 

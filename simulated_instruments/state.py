@@ -55,6 +55,8 @@ class BenchState:
         self.scenario = scenario
         self.time_scale = float(time_scale)
         self.lock = threading.RLock()
+        # Set when the bench stops, so no thread waits on a sweep that will never be read.
+        self.stopping = threading.Event()
         self._t0 = time.monotonic()
         seed = scenario.seed
         self.noise_rng = np.random.default_rng([seed, 1])

@@ -134,6 +134,8 @@ class Analyzer(Instrument):
             left = sweep.done_at - time.monotonic()
             if left <= 0:
                 return
+            if self.state.stopping.is_set():
+                raise ScpiError(-200, "the bench is stopping; the sweep will not finish")
             if session.input_pending():
                 raise ScpiError(-410, "new message while waiting for the sweep")
             time.sleep(min(left, 0.005))

@@ -305,3 +305,16 @@ def test_fuzz_random_bytes_over_the_socket(sim_bench):
     one_case()
     assert errors(watcher) == []
     watcher.close()
+
+
+def test_stop_does_not_wait_for_a_long_sweep(sim_bench_factory):
+    bench = sim_bench_factory("demo", time_scale=1.0)
+    sock = raw_client(bench, "analyzer")
+    # 20001 points at 1 Hz IFBW: hours of sweep; the client then waits on *OPC?.
+    assert ask(sock, b"SWE:POIN 20001;:BAND 1;:INIT;:SWE:POIN?") == b"20001"
+    sock.sendall(b"*OPC?\n")
+    bench.stop()
+    assert sock.recv(10) == b""  # closed, no "1"
+    sock.close()
+    threads = [t for srv in bench._servers.values() for t in [srv.thread, *srv.threads]]
+    assert threads and not any(t.is_alive() for t in threads)
