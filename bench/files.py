@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import os
-import stat
 import tempfile
 from pathlib import Path
 
@@ -12,7 +11,8 @@ def _default_mode() -> int:
     """Permissions an ordinary ``open()`` would give a new file under the current umask."""
     umask = os.umask(0)
     os.umask(umask)
-    return (stat.S_IRUSR | stat.S_IWUSR | stat.S_IRGRP | stat.S_IWGRP | stat.S_IROTH | stat.S_IWOTH) & ~umask
+    read_write_all = 0o666  # rw for owner, group and others, before the umask
+    return read_write_all & ~umask
 
 
 def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> Path:

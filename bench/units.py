@@ -93,15 +93,15 @@ def parse_quantity(value: object, unit: str | None = None, *, name: str = "value
             )
         rest = (match.group("rest") or "").replace(" ", "")
         multiplier, unit_text = _split_prefix_unit(rest, unit)
-        if unit_text:
-            if not _is_unit(unit_text, unit):
-                raise QuantityError(
-                    f"{name}: unit {unit_text!r} in {value!r} is not {unit or 'a known unit'}; "
-                    f"write the value in {unit or 'plain numbers'}"
-                )
+        if unit_text and not _is_unit(unit_text, unit):
+            raise QuantityError(
+                f"{name}: unit {unit_text!r} in {value!r} is not {unit or 'a known unit'}; "
+                f"write the value in {unit or 'plain numbers'}"
+            )
         # Scale through the decimal exponent so "4.7n" is exactly 4.7e-9.
         exponent = round(math.log10(multiplier))
-        number = float(f"{match.group('num')}e{exponent}") if exponent else float(match.group("num"))
+        digits = match.group("num")
+        number = float(f"{digits}e{exponent}") if exponent else float(digits)
     else:
         raise QuantityError(f"{name}: expected a number{_unit_hint(unit)}, got {value!r}")
     if not math.isfinite(number):
