@@ -140,6 +140,11 @@ class Runner:
         except SafetyError as exc:
             self._stopped(current, f"safety: {exc}")
             raise RunError(self._resume_text(f"safety: {exc}")) from None
+        except Exception as exc:
+            # A fault of zbench itself: record it so the run stays resumable, then let
+            # the command line report it as an internal error.
+            self._stopped(current, f"internal error: {exc!r}")
+            raise
         finally:
             self._bias_off()
             self.display.stop()

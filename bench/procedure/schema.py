@@ -122,7 +122,7 @@ PROCEDURE_SCHEMA: dict[str, Any] = {
             "properties": {
                 "start": _quantity("Hz", "first frequency"),
                 "stop": _quantity("Hz", "last frequency"),
-                "points": {"type": "integer", "minimum": 2},
+                "points": {"type": "integer", "minimum": 10},
                 "spacing": {"enum": ["log", "linear"]},
                 "if_bandwidth": _quantity("Hz", "IF (resolution) bandwidth"),
                 "power": _quantity("dBm", "source power"),

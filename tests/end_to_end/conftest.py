@@ -57,6 +57,7 @@ def sim() -> Iterator[Any]:
 
 def write_procedure(tmp_path: Path, text: str, name: str = "proc.yaml") -> Path:
     path = tmp_path / name
+    path.parent.mkdir(parents=True, exist_ok=True)
     path.write_text(textwrap.dedent(text), encoding="utf-8")
     return path
 
