@@ -136,6 +136,8 @@ class ErrorBoxTerms:
     tracking_slope_db: float
     cable_delay: float
     reverse_ratio: complex
+    switch_term: complex = 0j
+    switch_term_slope: complex = 0j
 
 
 # How much better the directivity and source match are at low frequency than the
@@ -170,6 +172,8 @@ def draw_error_box_terms(
         tracking_slope_db=float(cable_loss_db_at_1ghz * rng.uniform(0.9, 1.1)),
         cable_delay=float(cable_delay * rng.uniform(0.97, 1.03)),
         reverse_ratio=complex(rng.uniform(0.95, 1.05) * np.exp(1j * rng.uniform(-0.05, 0.05))),
+        switch_term=phasor(source_match_db - 8 - LOW_FREQUENCY_MARGIN_DB),
+        switch_term_slope=phasor(source_match_db - 8),
     )
 
 
@@ -195,6 +199,28 @@ def error_box(f: np.ndarray, terms: ErrorBoxTerms, f_ref: float = 1e9) -> np.nda
     s[:, 1, 0] = forward
     s[:, 0, 1] = forward * terms.reverse_ratio
     return s
+
+
+def switch_term(f: np.ndarray, terms: ErrorBoxTerms, f_ref: float = 1e9) -> np.ndarray:
+    """Reflection of a port's receiver termination when the other port drives (the
+    "switch term" of a three-receiver analyser): small, growing as sqrt(f)."""
+    return terms.switch_term + terms.switch_term_slope * np.sqrt(f / f_ref)
+
+
+def apply_switch_terms(t: np.ndarray, gamma_f: np.ndarray, gamma_r: np.ndarray) -> np.ndarray:
+    """Raw S-parameters as the receivers ratio them, from the S ``t`` (n, 2, 2) seen at
+    the analyser's ports, when port 2 is terminated in ``gamma_f`` during the forward
+    sweep and port 1 in ``gamma_r`` during the reverse one. This is what turns the
+    eight error terms of two error boxes into the twelve of SOLT."""
+    t11, t12, t21, t22 = t[:, 0, 0], t[:, 0, 1], t[:, 1, 0], t[:, 1, 1]
+    out = np.empty_like(t)
+    den_f = 1 - t22 * gamma_f
+    den_r = 1 - t11 * gamma_r
+    out[:, 0, 0] = t11 + t12 * t21 * gamma_f / den_f
+    out[:, 1, 0] = t21 / den_f
+    out[:, 1, 1] = t22 + t21 * t12 * gamma_r / den_r
+    out[:, 0, 1] = t12 / den_r
+    return out
 
 
 # --- calibration standards, resistors, cables, mounts ---------------------------------

@@ -289,7 +289,12 @@ class BenchState:
             kind, value = self._path(f)
         s1, s2, a1, a2f = self.error_boxes(f)
         if kind == "abcd":
-            return physics.abcd_to_s(physics.cascade(a1, value, a2f))  # type: ignore[arg-type]
+            t = physics.abcd_to_s(physics.cascade(a1, value, a2f))  # type: ignore[arg-type]
+            return physics.apply_switch_terms(
+                t,
+                physics.switch_term(f, self.box_terms[1]),
+                physics.switch_term(f, self.box_terms[0]),
+            )
         g1, g2 = value  # type: ignore[misc]
         out = np.zeros((len(f), 2, 2), dtype=complex)
         out[:, 0, 0] = physics.terminate(s1, g1)

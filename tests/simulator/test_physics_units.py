@@ -126,3 +126,17 @@ def test_dc_bias_loads():
     v, i = bias.measure(1.0)
     assert (v, i) == pytest.approx((0.5, 0.05))  # limited: 50 mA × 10 Ω
     assert bias.load_voltage(1.0) == pytest.approx(0.4)
+
+
+def test_switch_terms():
+    rng = np.random.default_rng(2)
+    t = 0.3 * (rng.normal(size=(20, 2, 2)) + 1j * rng.normal(size=(20, 2, 2)))
+    zero = np.zeros(20, dtype=complex)
+    np.testing.assert_array_equal(physics.apply_switch_terms(t, zero, zero), t)
+    # Forward sweep with port 2 terminated in Γ: b2/a1 = T21/(1 − T22·Γ) (signal-flow
+    # algebra of a terminated two-port, derived).
+    g = np.full(20, 0.05 + 0.02j)
+    out = physics.apply_switch_terms(t, g, zero)
+    np.testing.assert_allclose(out[:, 1, 0], t[:, 1, 0] / (1 - t[:, 1, 1] * g))
+    np.testing.assert_allclose(out[:, 0, 0], physics.terminate(t, g))
+    np.testing.assert_array_equal(out[:, 1, 1], t[:, 1, 1])
