@@ -38,6 +38,8 @@ class Operator(ABC):
 
     #: Whether the runner asks :meth:`after_sweep` (guided sessions only).
     guided: bool = False
+    #: Whether a person answers at the console (the live display pauses for prompts).
+    interactive: bool = False
 
     @abstractmethod
     def fit_resistors(self, ohms: float) -> None:
@@ -95,6 +97,7 @@ class ScriptedOperator(Operator):
         self.guided = guided
         self._decisions: Iterator[str] = iter(decisions)
         self._decide = decide
+        self.interactive = decide is not None
         self._say = say or (lambda text: None)
         self.actions: list[str] = []
 
@@ -159,6 +162,7 @@ class ConsoleOperator(Operator):
         say: Callable[[str], None] | None = None,
     ):
         self.guided = guided
+        self.interactive = True
         self._ask = ask or input
         self._say = say or print
 
@@ -207,7 +211,7 @@ class ConsoleOperator(Operator):
             raise OperatorStop("DC bias not acknowledged")
 
     def after_sweep(self, label: str, result: str) -> str:
-        self._say(f"{label}: {result}")
+        self._say(result if result.startswith(label) else f"{label}: {result}")
         while True:
             answer = (
                 self._ask("  [Enter] continue, (r)epeat sweep, (s)kip, (q) stop: ").strip().lower()

@@ -21,6 +21,7 @@ from bench.errors import FitError, RunError
 from bench.procedure.plan import Analysis, Plan, Step
 from bench.results import RunSummary, SampleResult
 from bench.runstore import DONE, RunStore
+from bench.units import format_si
 
 
 @dataclass(frozen=True)
@@ -208,8 +209,8 @@ def build_summary(
     for r in loops.values():
         if r.detected:
             warnings.append(
-                f"position {r.position}: ground loop; points below {r.valid_above_hz:g} Hz "
-                "were not used in the fits"
+                f"position {r.position}: ground loop; points below "
+                f"{format_si(r.valid_above_hz, 'Hz')} were not used in the fits"
             )
     manifest = store.manifest
     return RunSummary(
@@ -261,7 +262,7 @@ def _sample(
     result, error = fit_sample(model, data, valid_above) if fit else (None, None)
     notes: tuple[str, ...] = ()
     if valid_above:
-        notes = (f"ground loop: points below {valid_above:g} Hz not used",)
+        notes = (f"ground loop: points below {format_si(valid_above, 'Hz')} not used",)
     if result is not None and getattr(result, "warnings", ()):
         notes = (*notes, *result.warnings)
     files = store.step_files(step.id)

@@ -36,16 +36,18 @@ from bench.procedure.processing import (
 )
 from bench.results import RunSummary
 from bench.runstore import DONE, FAILED, RUNNING, SKIPPED, RunStore, file_stem, parse_iso
+from bench.units import format_si
 
 CAUTION = (
-    "CAUTION - DC bias. This procedure applies DC voltage to capacitors. A charged\n"
-    "capacitor stores energy and can deliver a large current when shorted. DC must reach\n"
-    "the part only through a bias tee, with DC blocks protecting the analyser ports; never\n"
-    "connect DC to an analyser port directly. zbench keeps every bias point at or below\n"
-    "the lowest of the part rating, the bias tee and DC-block ratings and the source\n"
-    "maximum, ramps the voltage, and switches the output off with a discharge wait at the\n"
-    "end, on a stop and on any error. Follow your local safety rules and the instruments'\n"
-    "manuals; they take precedence over this program."
+    "CAUTION - DC bias. This procedure applies DC voltage to capacitors.\n"
+    "A charged capacitor stores energy and can deliver a large current when\n"
+    "shorted. DC must reach the part only through a bias tee, with DC blocks\n"
+    "protecting the analyser ports; never connect DC to an analyser port directly.\n"
+    "zbench keeps every bias point at or below the lowest of the part rating, the\n"
+    "bias-tee and DC-block ratings and the source maximum, ramps the voltage, and\n"
+    "switches the output off with a discharge wait at the end, on a stop and on\n"
+    "any error. Follow your local safety rules and the instruments' manuals;\n"
+    "they take precedence over this program."
 )
 
 GROUND_LOOP_ADVICE = (
@@ -149,6 +151,12 @@ class Runner:
             self._bias_off()
             self.display.stop()
 
+    def _pause(self) -> Any:
+        """Free the console while a person is asked something (not for scripted hands)."""
+        if getattr(self.operator, "interactive", False):
+            return self.display.pause()
+        return contextlib.nullcontext()
+
     def _resume_text(self, reason: str) -> str:
         return (
             f"{reason}\n  the run is kept in {self.store.root}; every stored sweep is safe.\n"
@@ -167,7 +175,7 @@ class Runner:
     def _caution(self) -> None:
         if self._caution_done:
             return
-        with self.display.pause():
+        with self._pause():
             if self.assume_yes:
                 self.display.message(CAUTION)
             else:
@@ -251,7 +259,7 @@ class Runner:
     def _setup(self) -> None:
         if self._set_up:
             return
-        with self.display.pause():
+        with self._pause():
             self.operator.fit_resistors(self.plan.fixture.series_r)
             self.operator.fit_transformer(self.plan.fixture.isolation_transformer)
         self._set_up = True
@@ -260,7 +268,7 @@ class Runner:
         self._setup()
         if self._cables == target:
             return
-        with self.display.pause():
+        with self._pause():
             if target == "fixture":
                 self.operator.connect_fixture()
             else:
@@ -413,7 +421,7 @@ class Runner:
     def _decide(self, step: Step, label: str, result: str) -> str:
         """Guided sessions: ask what next; handles repeat here, returns skip/continue."""
         while self.operator.guided:
-            with self.display.pause():
+            with self._pause():
                 choice = self.operator.after_sweep(label, result)
             if choice == STOP:
                 raise OperatorStop("stopped by the operator")
@@ -475,7 +483,7 @@ class Runner:
                     and s.position is not None
                     and self.store.step_state(s.id) not in (DONE, SKIPPED)
                 ]
-                with self.display.pause():
+                with self._pause():
                     self.operator.strap_mounts(todo)
                 self._strapped.update(todo)
                 self._batch = None
@@ -485,7 +493,7 @@ class Runner:
             loop = ground_loop(f, z_short, pos)
             result = f"|Z| {np.median(np.abs(z_short)) * 1e3:.3g} mOhm (median)"
             if loop.detected:
-                result += f"; ground loop below {loop.valid_above_hz:g} Hz"
+                result += f"; ground loop below {format_si(loop.valid_above_hz, 'Hz')}"
             choice = self._decide(step, f"mount short {pos}", result)
             if choice == REPEAT:
                 continue
@@ -507,7 +515,7 @@ class Runner:
             )
         if loop.detected:
             note = (
-                f"position {pos}: ground loop, points below {loop.valid_above_hz:g} Hz "
+                f"position {pos}: ground loop, points below {format_si(loop.valid_above_hz, 'Hz')} "
                 "marked invalid"
             )
             warnings = list(self.store.manifest.get("warnings", []))
@@ -528,7 +536,7 @@ class Runner:
             self._cables_to("fixture")
             if self._batch != placement.batch:
                 batch = self.plan.batches[placement.batch]
-                with self.display.pause():
+                with self._pause():
                     self.operator.load_parts(batch)
                 self._batch = placement.batch
                 self._strapped.difference_update(p.position for p in batch)
@@ -541,6 +549,7 @@ class Runner:
                         "nothing applied"
                     )
                 self._caution()
+                self.display.step(f"{label}: ramping and settling")
                 source = self._dc_source(limit)
                 b = self.plan.bias
                 with source.biased(
