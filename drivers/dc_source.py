@@ -41,6 +41,9 @@ class DcSourceCommands:
     error_query: str = "SYSTem:ERRor:NEXT?"
 
 
+MAX_RAMP_STEPS = 10_000  # a ramp longer than this is a mistake in the step, not a plan
+
+
 class DcSource(ScpiInstrument):
     """A DC voltage source limited to ``0 … max_voltage`` (V) and ``max_current`` (A).
 
@@ -98,6 +101,20 @@ class DcSource(ScpiInstrument):
             )
         return float(amps)
 
+    def check_ramp(self, step_v: float, dwell_s: float) -> None:
+        """Raise unless 0 < step_v (V) with at most MAX_RAMP_STEPS steps over the whole
+        range, and 0 ≤ dwell_s (s) finite."""
+        if not (_is_number(step_v) and step_v > 0):
+            raise SafetyLimitError(f"ramp step must be > 0 V, got {step_v!r}; nothing was sent")
+        if self.max_voltage / step_v > MAX_RAMP_STEPS:
+            raise SafetyLimitError(
+                f"{self.resource_name}: ramp steps of {step_v:g} V would need up to "
+                f"{self.max_voltage / step_v:.3g} steps (at most {MAX_RAMP_STEPS}); "
+                "use a larger step. Nothing was sent"
+            )
+        if not (_is_number(dwell_s) and dwell_s >= 0):
+            raise SafetyLimitError(f"ramp dwell must be ≥ 0 s, got {dwell_s!r}; nothing was sent")
+
     # -- settings ------------------------------------------------------------------
 
     def set_current_limit(self, amps: float) -> None:
@@ -123,10 +140,7 @@ class DcSource(ScpiInstrument):
         """Move the voltage to ``volts`` in steps of at most ``step_v`` (V, > 0), waiting
         ``dwell_s`` (s, ≥ 0) after each; the target is checked before anything is sent."""
         volts = self.check_voltage(volts)
-        if not (math.isfinite(step_v) and step_v > 0):
-            raise SafetyLimitError(f"ramp step must be > 0 V, got {step_v!r}; nothing was sent")
-        if not (math.isfinite(dwell_s) and dwell_s >= 0):
-            raise SafetyLimitError(f"ramp dwell must be ≥ 0 s, got {dwell_s!r}; nothing was sent")
+        self.check_ramp(step_v, dwell_s)
         # A setpoint left above the limit by someone else: plan the ramp from the limit,
         # so every level sent is at or below it (the first step is a descent anyway).
         start = min(self.setpoint(), self.max_voltage)
@@ -206,6 +220,7 @@ class DcSource(ScpiInstrument):
         to 0, the output switched off, and ``discharge_s`` waited.
         """
         volts = self.check_voltage(volts)
+        self.check_ramp(step_v, dwell_s)
         amps = self.check_current(self.max_current if current_limit is None else current_limit)
         self.set_current_limit(amps)
         try:

@@ -40,6 +40,5 @@ with (
     z = (Z0 / 2) * s21n / (1 - s21n)
     for f_hz in (1e3, 1e5, 1e6, 1e7):
         k = np.argmin(abs(data.f - f_hz))
-        print(
-            f"{data.f[k]:>12.4g} Hz   |Z| = {abs(z[k]):.4g} Ω   phase = {np.angle(z[k], deg=True):+.1f}°"
-        )
+        phase = np.angle(z[k], deg=True)
+        print(f"{data.f[k]:>10.4g} Hz   |Z| = {abs(z[k]):.4g} Ω   phase {phase:+.1f}°")

@@ -101,6 +101,14 @@ def test_request_beyond_limit_sends_nothing(expected_protocol):
             source.set_current_limit(0.051)
         with pytest.raises(SafetyLimitError):
             source.ramp_to(1.0, step_v=0.0)
+        for tiny in (1e-300, 1e-4):  # would take (nearly) for ever
+            with pytest.raises(SafetyLimitError, match="larger step"):
+                source.ramp_to(6.0, step_v=tiny)
+            with (
+                pytest.raises(SafetyLimitError, match="larger step"),
+                source.biased(1.0, step_v=tiny),
+            ):
+                pass
     assert link.sent == []
 
 
