@@ -120,3 +120,39 @@ def test_unknown_part_error_from_the_bench_surfaces(expected_protocol):
         pytest.raises(InstrumentError, match="Illegal parameter value"),
     ):
         BenchControl(link).place(1, "NOPE/s1")
+
+
+def test_bench_queries_and_fault_helpers(expected_protocol):
+    script = [
+        ("OPERator:TRANsformer?", "1"),
+        ("OPERator:RESistors?", "499"),
+        ("OPERator:POSitions?", "8"),
+        ("OPERator:PARTs?", '"MC22-6V3/s1,FB120/s2"'),
+        ("FAULt:DELay ANALyzer,2.5,1", None), OK,
+        ("FAULt:DROP SWITch,3", None), OK,
+        ("FAULt:BLOCk ANALyzer,2", None), OK,
+        ("FAULt:ERRor DCSource,-240,\"overtemperature\"", None), OK,
+        ("FAULt:ERRor ANALyzer,-350", None), OK,
+        ("FAULt:MISSing 4,ON", None), OK,
+        ("FAULt:LIST?", '"delay analyzer 2.5 s x1"'),
+        ("FAULt:CLEar", None), OK,
+    ]  # fmt: skip
+    with expected_protocol(script) as link:
+        hands = BenchControl(link)
+        assert hands.transformer_fitted() is True
+        assert hands.resistance() == 499.0
+        assert hands.positions() == 8
+        assert hands.parts() == ["MC22-6V3/s1", "FB120/s2"]
+        hands.fault_delay("analyzer", 2.5)
+        hands.fault_drop("switch", 3)
+        hands.fault_corrupt_block("analyzer", 2)
+        hands.fault_error("dc_source", -240, "overtemperature")
+        hands.fault_error("analyzer", -350)
+        hands.fault_missing(4)
+        assert hands.faults() == "delay analyzer 2.5 s x1"
+        hands.clear_faults()
+
+
+def test_fault_on_unknown_instrument_sends_nothing(expected_protocol):
+    with expected_protocol([]) as link, pytest.raises(PlanError, match="oscilloscope"):
+        BenchControl(link).fault_delay("oscilloscope", 1.0)

@@ -8,6 +8,7 @@ import struct
 
 import numpy as np
 import pytest
+from pyvisa import constants
 
 from drivers.errors import (
     ConnectionFailed,
@@ -140,6 +141,15 @@ def test_use_after_close_is_connection_lost(loopback_server):
     link.close()  # twice is harmless
     with pytest.raises(ConnectionLost, match="closed"):
         link.query("*IDN?")
+
+
+def test_messages_leave_at_once(loopback_server):
+    # TCP_NODELAY, VISA's default for VI_ATTR_TCPIP_NODELAY: without it each query
+    # after a write waits for the peer's delayed ACK
+    server = echo_server(loopback_server)
+    with VisaTransport.open(server.resource, timeout_s=1.0) as link:
+        state = link.resource.get_visa_attribute(constants.VI_ATTR_TCPIP_NODELAY)
+        assert state == constants.VisaBoolean.true
 
 
 def test_bad_timeout_is_refused(loopback_server):
