@@ -6,6 +6,7 @@ from pathlib import Path
 
 import click
 
+from bench.errors import InputError
 from bench.procedure.plan import Plan, load_plan
 from bench.units import format_si
 
@@ -73,9 +74,19 @@ def describe_plan(plan: Plan) -> str:
 
 
 @click.command("check")
-@click.argument("procedure", type=click.Path(path_type=Path))
-def command(procedure: Path) -> None:
+@click.argument("procedure", required=False, type=click.Path(path_type=Path))
+@click.option("--schema", "show_schema", is_flag=True, help="Print the procedure JSON schema.")
+def command(procedure: Path | None, show_schema: bool) -> None:
     """Validate PROCEDURE and print its plan; exit 2 with file:line:key messages on errors."""
+    if show_schema:
+        import json
+
+        from bench.procedure.schema import PROCEDURE_SCHEMA
+
+        click.echo(json.dumps(PROCEDURE_SCHEMA, indent=2, ensure_ascii=False))
+        return
+    if procedure is None:
+        raise InputError("no procedure given", hint="zbench check PROCEDURE.yaml")
     plan = load_plan(procedure)
     click.echo(describe_plan(plan))
     click.echo("procedure is valid")

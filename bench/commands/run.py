@@ -108,6 +108,20 @@ def execute(
         return runner
 
 
+def _is_procedure(text: str) -> bool:
+    """Whether ``text`` names a procedure file (it has a ``sweep:``), not a scenario."""
+    path = Path(text)
+    if path.suffix not in (".yaml", ".yml") or not path.is_file():
+        return False
+    import yaml
+
+    try:
+        data = yaml.safe_load(path.read_text(encoding="utf-8"))
+    except (yaml.YAMLError, UnicodeDecodeError):
+        return False
+    return isinstance(data, dict) and "sweep" in data and "parts" in data
+
+
 def _ask(prompt: str) -> str:
     return click.prompt(prompt, default="", show_default=False, prompt_suffix="")
 
@@ -168,6 +182,9 @@ def command(
     quiet: bool,
 ) -> None:
     """Run PROCEDURE on the instruments it names, or against the simulator with --sim."""
+    if procedure is None and resume is None and sim is not None and _is_procedure(sim):
+        # "zbench run --sim demo.yaml": click gave the procedure to --sim as its scenario.
+        procedure, sim = Path(sim), "demo"
     if resume is not None:
         if procedure is not None:
             raise InputError(

@@ -165,8 +165,17 @@ class ConsoleOperator(Operator):
         self.interactive = True
         self._ask = ask or input
         self._say = say or print
+        self._pending: list[str] = []
+
+    def _later(self, text: str) -> None:
+        # Set-up actions are asked together with the next action, so an unattended run
+        # asks for them once, up front.
+        self._pending.append(text)
 
     def _action(self, text: str) -> None:
+        if self._pending:
+            text = "\n".join(["Before the run:", *(f"  - {t}" for t in self._pending), text])
+            self._pending = []
         self._say(text)
         answer = self._ask("  press Enter when done, or type 'stop': ").strip().lower()
         if answer in ("stop", "q", "quit"):
@@ -174,17 +183,15 @@ class ConsoleOperator(Operator):
 
     def fit_resistors(self, ohms: float) -> None:
         if ohms:
-            self._action(f"Fit the {ohms:g} ohm series resistors at both ports.")
+            self._later(f"fit the {ohms:g} ohm series resistors at both ports")
         else:
-            self._action("Make sure no series resistors are fitted at the ports.")
+            self._later("make sure no series resistors are fitted at the ports")
 
     def fit_transformer(self, on: bool) -> None:
         if on:
-            self._action("Fit the common-mode isolation transformer on port 2.")
+            self._later("fit the common-mode isolation transformer on port 2")
         else:
-            self._action(
-                "Remove the isolation transformer from port 2 (connect the cable directly)."
-            )
+            self._later("remove the isolation transformer from port 2 (cable connected directly)")
 
     def connect_standard(self, standard: str) -> None:
         self._action(f"Connect {STANDARD_WORDS[standard]}.")

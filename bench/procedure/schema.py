@@ -5,7 +5,33 @@ silently ignored setting. Physical values are written as engineers write them
 (``100 Hz``, ``4.7n``, ``6.3 V``); the schema's own keyword ``unit`` names the unit each
 value must be in, and the validator checks it with :func:`bench.units.parse_quantity`.
 Checks that relate several values (start < stop, bias below every rating) live in
-:mod:`bench.procedure.plan`, after the schema has passed.
+:mod:`bench.procedure.plan`, after the schema has passed. ``zbench check --schema``
+prints the schema.
+
+The keys, in brief (``procedures/*.yaml`` are worked examples):
+
+- ``name`` (required), ``description``, ``mode``: ``guided`` (default) or ``unattended``.
+- ``instruments``: ``analyzer``, ``switch``, ``dc_source``, ``bench`` (the simulated
+  bench's hands), each with ``resource`` (VISA), ``command_map`` (analyser; ``default``),
+  ``timeout``; ``analyzer.max_power`` (dBm, default 10 dBm); ``dc_source.max_voltage``
+  and ``max_current`` (the source's own hard limits).
+- ``sweep`` (required): ``start``, ``stop`` (Hz), ``points`` (≥ 10, ≤ the command
+  map's limit), ``spacing`` ``log``/``linear``, ``if_bandwidth`` (Hz), ``power`` (dBm),
+  ``averages`` (sweeps averaged per measurement, each stored).
+- ``fixture``: ``positions`` (count), ``use_positions`` (subset), ``series_resistor``
+  (Ω at each port), ``isolation_transformer`` (bool), ``bias_tee_rating`` and
+  ``dc_block_rating`` (V), ``z0`` (Ω).
+- ``calibration``: ``method`` ``through``/``solt``/``hybrid``, ``crossover`` (Hz, hybrid),
+  ``reuse: {run: RUNDIR, max_age: 8 h}``.
+- ``analysis``: ``noise_floor``, ``trace_noise`` (dB), ``tolerance`` (accuracy target of
+  the window), ``mount`` ``measured``/``fitted``.
+- ``bias``: ``ramp_step`` (V), ``ramp_dwell``, ``settle``, ``discharge`` (durations),
+  ``current_limit`` (A).
+- ``parts`` (required): ``name``, ``kind`` (``mlcc``, ``bulk``, ``inductor``, ``bead``),
+  ``nominal`` (F, H, or Ω for a bead at ``nominal_at`` Hz), ``tolerance`` (``10 %``),
+  ``rated_voltage`` (V), ``model`` (a family or ``auto``), ``samples`` (a count or
+  names), ``bias`` (list of V, capacitors only).
+- ``steps``: a subset, in order, of calibrate, mount_short, measure, fit, export, report.
 """
 
 from __future__ import annotations

@@ -110,8 +110,12 @@ def test_console_operator_reads_answers():
     answers = iter(["", "x", "r", "s", "q", "yes", "no", "stop"])
     said: list[str] = []
     person = ConsoleOperator(guided=True, ask=lambda prompt: next(answers), say=said.append)
+    person.fit_resistors(0)
+    person.fit_transformer(True)
+    assert not said, "set-up actions wait for the next prompt"
     person.connect_standard("through")  # Enter: done
-    assert "THROUGH" in said[-1]
+    assert "THROUGH" in said[-1] and "isolation transformer" in said[-1]
+    assert said[-1].startswith("Before the run:")
     assert person.after_sweep("A/s1", "ok") == "repeat"  # 'x' is refused, then 'r'
     assert any("not one of the choices" in s for s in said)
     assert person.after_sweep("A/s1", "ok") == "skip"
