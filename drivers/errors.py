@@ -38,8 +38,8 @@ class InstrumentTimeout(TransportError):  # noqa: N818 (name fixed by the driver
     """The instrument did not answer within the timeout of the operation."""
 
     hint = (
-        "the instrument may be busy or hung: raise the timeout for slow operations, "
-        "or clear the instrument and retry"
+        "the instrument may be busy or hung: raise the timeout for slow operations; "
+        "before retrying, reopen the transport (a late answer would be read as the next one)"
     )
 
 

@@ -81,10 +81,11 @@ class VisaTransport:
     transport is a context manager that closes the resource on exit.
     """
 
-    def __init__(self, resource: Any, resource_name: str):
+    def __init__(self, resource: Any, resource_name: str, **open_options: Any):
         self._resource = resource
         self.resource_name = resource_name
         self._closed = False
+        self._open_options = open_options
 
     # -- opening and closing -------------------------------------------------------
 
@@ -129,7 +130,14 @@ class VisaTransport:
             raise ConnectionFailed(resource_name, "open", exc.description) from exc
         except (OSError, ValueError) as exc:
             raise ConnectionFailed(resource_name, "open", str(exc)) from exc
-        transport = cls(resource, resource_name)
+        transport = cls(
+            resource,
+            resource_name,
+            backend=backend,
+            timeout_s=timeout_s,
+            read_termination=read_termination,
+            write_termination=write_termination,
+        )
         transport._disable_nagle()
         if clear:
             try:
@@ -148,6 +156,24 @@ class VisaTransport:
         with contextlib.suppress(VisaIOError, InvalidSession, OSError):
             self._resource.close()
         traffic_log.debug("%s closed", self.resource_name)
+
+    def reopen(self) -> None:
+        """Close the connection and open it again with the same options.
+
+        Use it after :class:`~drivers.errors.InstrumentTimeout` or
+        :class:`~drivers.errors.ConnectionLost`: an answer that arrives after its timeout
+        would otherwise be read as the answer to the next query. A new connection may
+        start from the instrument's per-connection defaults (e.g. its data format), so
+        configure the instrument again afterwards.
+        """
+        if not self._open_options:
+            raise ConnectionLost(
+                self.resource_name, "reopen", "this transport was not made by open()"
+            )
+        self.close()
+        fresh = type(self).open(self.resource_name, **self._open_options)
+        self._resource = fresh._resource
+        self._closed = False
 
     def __enter__(self) -> VisaTransport:
         return self

@@ -141,13 +141,17 @@ def test_injected_error_surfaces_on_next_configuring_write(links):
     assert info.value.code == -240 and "Hardware error" in info.value.text
 
 
-def test_delayed_answer_is_a_timeout(links):
+def test_delayed_answer_is_a_timeout_and_reopen_resynchronises(links):
     hands = BenchControl(links["bench"])
-    hands.fault_delay("analyzer", 1.0)
     link = links["analyzer"]
+    vna = NetworkAnalyzer(link)
+    identity = vna.identify()
+    hands.fault_delay("analyzer", 1.0)
     with link.timeout(0.3), pytest.raises(InstrumentTimeout) as info:
-        link.query("*IDN?")
-    assert "*IDN?" in str(info.value)
+        link.query("SENSe:SWEep:POINts?")
+    assert "SENSe:SWEep:POINts?" in str(info.value)
+    link.reopen()
+    assert vna.identify() == identity  # not the late answer of the old connection
 
 
 def test_dropped_connection_is_connection_lost(links, sim_bench):

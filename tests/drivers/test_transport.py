@@ -5,6 +5,7 @@ from __future__ import annotations
 import logging
 import socket
 import struct
+import time
 
 import numpy as np
 import pytest
@@ -112,6 +113,23 @@ def test_timeout_names_resource_and_operation_and_is_restored(loopback_server):
         assert link.timeout_s == pytest.approx(3.0)
         # the instrument is still there: after a timeout the next exchange works
         assert link.query("*IDN?").startswith("Invented Instruments")
+
+
+def test_reopen_after_timeout_discards_the_late_answer(loopback_server):
+    def late(line: bytes):
+        if line == b"SLOW?":
+            time.sleep(0.4)
+            return b"late answer\n"
+        return None
+
+    server = echo_server(loopback_server, late)
+    with VisaTransport.open(server.resource, timeout_s=2.0) as link:
+        with link.timeout(0.1), pytest.raises(InstrumentTimeout):
+            link.query("SLOW?")
+        # without the reopen, this query would read "late answer"
+        link.reopen()
+        assert link.query("*IDN?").startswith("Invented Instruments")
+        assert link.timeout_s == pytest.approx(2.0)
 
 
 def test_connection_closed_by_instrument_is_connection_lost(loopback_server):
