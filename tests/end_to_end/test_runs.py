@@ -156,3 +156,39 @@ def test_reprocess_with_other_settings_uses_only_stored_data(tmp_path, sim, kit)
     base = build_summary(store2, plan2, fit=False).samples[0]
     assert first.data.points_outside_window >= base.data.points_outside_window
     assert np.all(np.isfinite(first.data.z))
+
+
+RESISTORS = """\
+name: resistors
+mode: unattended
+instruments:
+  analyzer: {max_power: 0 dBm, timeout: 2 s}
+sweep: {start: 10 kHz, stop: 100 MHz, points: 101, if_bandwidth: 1 kHz}
+fixture: {positions: 8, series_resistor: 499 ohm, isolation_transformer: true}
+calibration: {method: through}
+analysis: {mount: fitted}
+parts:
+  - {name: PL470N, kind: inductor, nominal: 470n, tolerance: 20 %, samples: 1}
+  - {name: FB120, kind: bead, nominal: 120 ohm, nominal_at: 100 MHz, samples: 1}
+steps: [calibrate, mount_short, measure]
+"""
+
+
+def test_series_resistors_raise_the_window_and_keep_the_impedance(tmp_path, sim, kit):
+    plan, store = kit.start_run(tmp_path, RESISTORS)
+    kit.run_on(sim, plan, store)
+    summary = build_summary(store, plan, fit=False)
+    window = summary.samples[0].data.window
+    # Window floor and ceiling scale by (Z0 + Rs)/Z0 = 549/50 (REFERENCES §1, derived):
+    # about 1 mΩ … 225 Ω at 50 Ω becomes about 11 mΩ … 2.5 kΩ (common practice).
+    assert 1.5e3 < window.z_max < 4e3
+    inductor = next(s for s in summary.samples if s.part == "PL470N")
+    f = inductor.data.f
+    i = int(np.argmin(abs(f - 10e6)))
+    # |Z| of 470 nH at 10 MHz: 2π · 10e6 · 470e-9 = 29.5 Ω (derived); the invented part's
+    # true circuit adds winding resistance and parallel capacitance, so allow 15 %.
+    assert abs(inductor.data.z[i]) == pytest.approx(2 * np.pi * f[i] * 470e-9, rel=0.15)
+    bead = next(s for s in summary.samples if s.part == "FB120")
+    j = int(np.argmin(abs(bead.data.f - 100e6)))
+    # The bead is invented as 120 Ω at 100 MHz with a ±25 % spread of samples.
+    assert abs(bead.data.z[j]) == pytest.approx(120.0, rel=0.3)
