@@ -123,7 +123,7 @@ def format_number(value: Any) -> str:
 
 
 def mnemonic_matches(answer: str, mnemonic: str) -> bool:
-    """True when ``answer`` is the short or long form of ``mnemonic`` (SCPI-99 6.2.1).
+    """True when ``answer`` is the short or long form of ``mnemonic`` (SCPI-99 rule).
 
     The short form is the upper-case part of the mnemonic (``LIN`` of ``LINear``);
     matching is case-insensitive and ignores surrounding quotes and blanks.

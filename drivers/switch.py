@@ -64,7 +64,7 @@ class FixtureSwitch(ScpiInstrument):
         self.open_all()
         command = self.commands.close.format(position=position)
         self.transport.write(command)
-        # *OPC? answers once the relay has settled (IEEE 488.2 §10.18), so the sweep
+        # *OPC? answers once the relay has settled (IEEE 488.2 *OPC?), so the sweep
         # that follows never sees contact bounce.
         with self.transport.timeout(max(self.settle_timeout_s, 0.1)):
             self.transport.query(self.commands.settled)

@@ -102,7 +102,7 @@ def test_unreadable_file(tmp_path):
 
 
 def test_mnemonic_matching_short_and_long_forms():
-    # SCPI-99 vol. 1 §6.2.1: short form is the upper-case part [published, from memory]
+    # SCPI-99 vol. 1 §6.2.1: the short form is the upper-case part [from memory]
     assert mnemonic_matches("LIN", "LINear")
     assert mnemonic_matches("linear", "LINear")
     assert mnemonic_matches(' "LOG" ', "LOGarithmic")
