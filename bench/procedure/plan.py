@@ -525,7 +525,13 @@ def _check_steps(doc: SourceDocument, steps: tuple[str, ...], errors: list[Proce
                     hint=f"keep the order {', '.join(STEP_NAMES)}",
                 )
             )
-    needs = {"fit": "measure", "export": "fit", "report": "fit"}
+    needs = {
+        "mount_short": "calibrate",
+        "measure": "calibrate",
+        "fit": "measure",
+        "export": "fit",
+        "report": "fit",
+    }
     for i, name in enumerate(steps):
         if name in needs and needs[name] not in steps:
             errors.append(

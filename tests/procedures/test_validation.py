@@ -158,6 +158,13 @@ BAD = [
         "needs a 'measure'",
     ),
     (
+        "measure without calibrate",
+        GOOD + "steps: [measure, fit]\n",
+        19,
+        "steps[0]",
+        "needs a 'calibrate'",
+    ),
+    (
         "hybrid without crossover",
         GOOD + "calibration: {method: hybrid}\n",
         19,
