@@ -123,7 +123,12 @@ def _is_procedure(text: str) -> bool:
 
 
 def _ask(prompt: str) -> str:
-    return click.prompt(prompt, default="", show_default=False, prompt_suffix="")
+    from bench.procedure.operators import OperatorStop
+
+    try:
+        return click.prompt(prompt, default="", show_default=False, prompt_suffix="")
+    except click.exceptions.Abort:  # Ctrl-C or end of input at a prompt
+        raise OperatorStop("stopped at a prompt") from None
 
 
 def finished_text(store: RunStore) -> str:
