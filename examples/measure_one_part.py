@@ -17,7 +17,7 @@ Z0 = 50.0
 plan = SweepPlan(start_hz=100.0, stop_hz=100e6, points=201, spacing="log", ifbw_hz=100.0)
 
 with (
-    start_bench("demo", time_scale=0.01) as sim,
+    start_bench("demo", time_scale=0.01, seed=1) as sim,
     VisaTransport.open(sim.resources["analyzer"]) as vna_link,
     VisaTransport.open(sim.resources["switch"]) as switch_link,
     VisaTransport.open(sim.resources["bench"]) as bench_link,
