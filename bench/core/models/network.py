@@ -107,7 +107,8 @@ def _evaluate(
     z = 1.0 / y
     jac = {}
     for zi, ji in results:
-        factor = (z / zi) ** 2
+        ratio = z / zi
+        factor = ratio * ratio  # not ratio**2: numpy's complex power is far slower
         for name, d in ji.items():
             jac[name] = factor * d
     return z, jac

@@ -28,9 +28,9 @@ def starts(order, f, z, landmarks: Mapping[str, Any], previous=None) -> list[dic
     esl = landmark(landmarks, "esl", 1.0 / ((2 * np.pi * srf) ** 2 * c))
     esr = landmark(landmarks, "esr_at_srf", float(np.min(np.abs(z))))
     out = []
-    feature = _mode_start(f, z, srf, c, esr)
-    if feature is not None:
-        out.append(feature)
+    for feature in (_mode_start(f, z, srf, c, esr), _step_start(f, z, srf, c, esr)):
+        if feature is not None:
+            out.append(feature)
     top = max(f[-1], 4 * srf)
     for ratio, l_ratio in ((0.3, 5.0), (0.08, 5.0), (0.6, 2.0), (0.02, 10.0)):
         f2 = srf * (top / srf) ** ratio * 1.5
@@ -75,6 +75,41 @@ def _mode_start(f, z, srf: float, c: float, esr: float) -> dict[str, float] | No
                 l2 = l1 * ratio / (1 - ratio)
     c2 = 1.0 / ((2 * np.pi * fa) ** 2 * (l1 + l2))
     return {"R1": esr, "L1": l1, "C1": max(c - c2, 0.5 * c), "R2": esr * 3, "L2": l2, "C2": c2}
+
+
+def _step_start(f, z, srf: float, c: float, esr: float) -> dict[str, float] | None:
+    """Start values from a step in the inductance above the first resonance.
+
+    A damped second mode shows no sharp peak, only the inductance falling from L1 (just
+    above the first resonance, with 1/(ω²C) taken out) to L1 ‖ L2 at the top of the
+    sweep; the second branch resonates where the inductance dips lowest, or else where
+    it passes half-way.
+    """
+    w = 2 * np.pi * f
+    inductance = (z.imag + 1.0 / (w * c)) / w
+    above = np.flatnonzero(f > 2 * srf)
+    if above.size < 8:
+        return None
+    low_band = above[f[above] < 3 * srf]
+    if low_band.size < 2:
+        low_band = above[:3]
+    top_band = above[f[above] > f[-1] / 5]
+    if low_band.size < 2 or top_band.size < 2:
+        return None
+    l1 = float(np.median(inductance[low_band]))
+    l_high = float(np.median(inductance[top_band]))
+    if not (l1 > 1.15 * l_high > 0):
+        return None
+    l2 = l1 * l_high / (l1 - l_high)
+    i_dip = above[np.argmin(inductance[above])]
+    if inductance[i_dip] < 0.9 * l_high:
+        f2 = float(f[i_dip])
+    else:
+        mid = above[inductance[above] < 0.5 * (l1 + l_high)]
+        f2 = float(f[mid[0]]) if mid.size else float(np.sqrt(srf * f[-1]))
+    c2 = 1.0 / ((2 * np.pi * f2) ** 2 * l2)
+    r2 = float(np.sqrt(l2 / c2)) / 3.0  # a damped mode: quality factor about 3
+    return {"R1": esr, "L1": l1, "C1": max(c - c2, 0.5 * c), "R2": r2, "L2": l2, "C2": c2}
 
 
 def bounds(order, f, landmarks) -> dict[str, tuple[float, float]]:
