@@ -104,8 +104,11 @@ class FitResult:
     """A fitted equivalent circuit.
 
     ``elements`` and ``uncertainties`` (one sigma) in SI units (Ω, H, F); ``landmarks``
-    computed from the fitted model on the measured grid; ``f_range`` (Hz) the span of
-    the points used. ``meets_quality`` is ``rms_log_error <= quality_bound``.
+    computed from the fitted model on the measured grid, ``landmark_uncertainties``
+    their one-sigma uncertainties propagated from the elements (None where a landmark
+    is undefined); ``f_range`` (Hz) the span of the points used; ``candidates`` every
+    family and order tried, with its criterion. ``meets_quality`` is
+    ``rms_log_error <= quality_bound``.
     """
 
     model: str
@@ -119,6 +122,7 @@ class FitResult:
     quality_bound: float = DEFAULT_QUALITY_BOUND
     f_range: tuple[float, float] = (math.nan, math.nan)
     candidates: tuple[Candidate, ...] = field(default=())
+    landmark_uncertainties: dict[str, float | None] = field(default_factory=dict)
 
     @property
     def meets_quality(self) -> bool:
@@ -144,6 +148,7 @@ class FitResult:
             "order": self.order,
             "elements": dict(self.elements),
             "uncertainties": dict(self.uncertainties),
+            "landmark_uncertainties": dict(self.landmark_uncertainties),
             "landmarks": dict(self.landmarks),
             "quality": self.quality.to_dict(),
             "quality_bound": self.quality_bound,
@@ -339,18 +344,45 @@ def _select(trials: list[_Trial]) -> _Trial:
     return best
 
 
-def _uncertainties(trial: _Trial, f, z, weight) -> dict[str, float]:
-    names = trial.family.element_names(trial.order)
-    node = trial.family.circuit(trial.order)
-    zm, jac = impedance_and_jacobian(node, f, trial.values)
+def _covariance(trial: _Trial, f, z, weight) -> NDArray[np.float64]:
+    """Covariance of the log element values, from the Jacobian at the solution, scaled by
+    the residual variance χ²/(m − k)."""
+    zm, jac = impedance_and_jacobian(trial.family.circuit(trial.order), f, trial.values)
     d = jac / zm * weight
     jm = np.concatenate([d.real.T, d.imag.T])
     m, k = jm.shape
-    dof = max(m - k, 1)
     with np.errstate(all="ignore"):
-        cov = np.linalg.pinv(jm.T @ jm) * (trial.chi2 / dof)
+        return np.linalg.pinv(jm.T @ jm) * (trial.chi2 / max(m - k, 1))
+
+
+def _uncertainties(trial: _Trial, cov: NDArray[np.float64]) -> dict[str, float]:
+    names = trial.family.element_names(trial.order)
     sigma_log = np.sqrt(np.clip(np.diag(cov), 0.0, None))
     return {n: float(trial.values[n] * s) for n, s in zip(names, sigma_log, strict=True)}
+
+
+def _landmark_uncertainties(
+    trial: _Trial, cov: NDArray[np.float64], kind: str, f, marks: Landmarks
+) -> dict[str, float | None]:
+    """One-sigma uncertainty of each model landmark, propagated from the element
+    covariance through the landmark's derivatives (finite differences in log values)."""
+    names = trial.family.element_names(trial.order)
+    node = trial.family.circuit(trial.order)
+    step = 1e-4
+    grads = []
+    for name in names:
+        values = dict(trial.values)
+        values[name] *= math.exp(step)
+        moved = landmarks_for(kind, f, network_impedance(node, f, values))
+        grads.append(moved)
+    out: dict[str, float | None] = {}
+    for key, value in marks.items():
+        if value is None or any(g.get(key) is None for g in grads):
+            out[key] = None
+            continue
+        g = np.array([(moved[key] - value) / step for moved in grads])
+        out[key] = float(np.sqrt(max(float(g @ cov @ g), 0.0)))
+    return out
 
 
 def _candidates(
@@ -492,11 +524,13 @@ def fit_impedance(
             f"rms log error {quality.rms_log_error:.3g} exceeds the quality bound "
             f"{quality_bound:.3g}; try another model or check the measurement"
         )
+    cov = _covariance(best, fu, zu, weight)
     return FitResult(
         model=best.family.name,
         kind=kind,
         elements=dict(best.values),
-        uncertainties=_uncertainties(best, fu, zu, weight),
+        uncertainties=_uncertainties(best, cov),
+        landmark_uncertainties=_landmark_uncertainties(best, cov, kind, f, model_marks),
         landmarks=model_marks,
         quality=quality,
         warnings=tuple(warnings),

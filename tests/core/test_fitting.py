@@ -266,6 +266,18 @@ def test_fit_is_deterministic():
     assert a.model == b.model
 
 
+def test_landmark_uncertainties_are_small_positive_and_follow_the_noise():
+    quiet = measure(MLCC, 121, noise_floor_db=-130.0)
+    noisy = measure(MLCC, 121, noise_floor_db=-100.0)
+    a = fit_impedance(quiet.f, quiet.z, model="two-branch", rel_uncertainty=quiet.rel_uncertainty)
+    b = fit_impedance(noisy.f, noisy.z, model="two-branch", rel_uncertainty=noisy.rel_uncertainty)
+    for result in (a, b):
+        assert set(result.landmark_uncertainties) == set(result.landmarks)
+        for key, sigma in result.landmark_uncertainties.items():
+            assert sigma is not None and 0 < sigma < 0.05 * result.landmarks[key], key
+    assert b.landmark_uncertainties["esr_at_srf"] > a.landmark_uncertainties["esr_at_srf"]
+
+
 def test_uncertainties_shrink_with_less_noise():
     quiet = measure(MLCC_SIMPLE, 111, noise_floor_db=-130.0)
     noisy = measure(MLCC_SIMPLE, 111, noise_floor_db=-100.0)
