@@ -235,10 +235,10 @@ def _objective(node, names, f, z, weight):
 def _solve(residuals, jacobian, q0, lo, hi, max_nfev: int) -> tuple[float, NDArray[np.float64]]:
     """Levenberg-Marquardt (MINPACK) in log parameters, kept inside the bounds.
 
-    MINPACK's loop runs in compiled code, far cheaper per step than the bounded
-    trust-region method for these small problems. The bounds hold by evaluating the
-    model at the clipped parameters: outside them the residuals stop changing, so the
-    step is pushed back and the result is clipped at the end.
+    MINPACK's loop runs in compiled code, cheaper per step than the bounded
+    trust-region method for these small problems (about twice as fast here). The bounds
+    hold by evaluating the model at the clipped parameters: outside them the residuals
+    stop changing, so the step is pushed back, and the result is clipped at the end.
     """
 
     def fun(q):
@@ -261,9 +261,8 @@ def _solve(residuals, jacobian, q0, lo, hi, max_nfev: int) -> tuple[float, NDArr
             xtol=1e-7,
             gtol=1e-7,
         )
-    sol.x = np.clip(sol.x, lo, hi)
-    sol.cost = 0.5 * float(np.sum(residuals(sol.x) ** 2))
-    return 2.0 * float(sol.cost), sol.x
+    q = np.clip(sol.x, lo, hi)
+    return float(np.sum(residuals(q) ** 2)), q
 
 
 def _fit_order(
@@ -302,16 +301,16 @@ def _fit_order(
     if not scouts:
         raise FitError(f"model {family.name} (order {order}): no start value gave a finite model")
     scouts.sort(key=lambda t: t[0])
-    chosen = scouts[:1] + [t for t in scouts[1:2] if t[0] > 1.01 * scouts[0][0]]
-    best = None
-    for _, q_scout in chosen:
-        result = _solve(*fine, q_scout, lo, hi, 20 * (k + 1)) if step > 1 else (None, q_scout)
-        if result[0] is None:
-            result = (2.0 * 0.5 * float(np.sum(fine[0](q_scout) ** 2)), q_scout)
-        if np.isfinite(result[0]) and (best is None or result[0] < best[0]):
-            best = result
-    if best is None:
-        raise FitError(f"model {family.name} (order {order}): the fit did not converge")
+    if step == 1:
+        best = scouts[0]  # the scouts ran on the full grid already
+    else:
+        # The runner-up too, unless it sits in the same valley (costs within 1 %).
+        chosen = scouts[:1] + [t for t in scouts[1:2] if t[0] > 1.01 * scouts[0][0]]
+        refined = [_solve(*fine, q_scout, lo, hi, 20 * (k + 1)) for _, q_scout in chosen]
+        refined = [r for r in refined if np.isfinite(r[0])]
+        if not refined:
+            raise FitError(f"model {family.name} (order {order}): the fit did not converge")
+        best = min(refined, key=lambda r: r[0])
     chi2, q = best
     values = dict(zip(names, (float(v) for v in np.exp(q)), strict=True))
     zm = network_impedance(node, f, values)
