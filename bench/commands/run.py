@@ -99,6 +99,7 @@ def execute(
                 instruments.bench,
                 guided=guided,
                 decide=person.after_sweep if guided else None,
+                acknowledge=person.caution if guided else None,
                 say=say,
             )
         else:

@@ -91,13 +91,15 @@ class ScriptedOperator(Operator):
         guided: bool = False,
         decisions: Iterable[str] = (),
         decide: Callable[[str, str], str] | None = None,
+        acknowledge: Callable[[str], None] | None = None,
         say: Callable[[str], None] | None = None,
     ):
         self.bench = bench
         self.guided = guided
         self._decisions: Iterator[str] = iter(decisions)
         self._decide = decide
-        self.interactive = decide is not None
+        self._acknowledge = acknowledge
+        self.interactive = decide is not None or acknowledge is not None
         self._say = say or (lambda text: None)
         self.actions: list[str] = []
 
@@ -135,7 +137,10 @@ class ScriptedOperator(Operator):
         self._did("placed " + ", ".join(f"{p.part}/{p.sample}@{p.position}" for p in placements))
 
     def caution(self, text: str) -> None:
-        self._say(text)
+        if self._acknowledge is not None:
+            self._acknowledge(text)  # a person watching the dry run acknowledges it
+        else:
+            self._say(text)
 
     def after_sweep(self, label: str, result: str) -> str:
         if self._decide is not None:
