@@ -125,3 +125,11 @@ def test_demo_command_writes_the_report(tmp_path):
         assert (root / name).is_file(), name
     assert list((root / "models").glob("*.lib"))
     assert (root / "models" / "MC4U7-10V_bias.csv").is_file()
+
+
+def test_bad_procedure_stops_before_anything_is_touched(tmp_path, kit):
+    path = kit.write_procedure(tmp_path, GUIDED.replace("points: 101", "points: 101, pionts: 3"))
+    out = tmp_path / "runs"
+    # No simulator is started and no run folder is made: validation comes first.
+    assert main(["run", str(path), "--sim", "--out", str(out), "--quiet"]) == 2
+    assert not out.exists()
