@@ -322,7 +322,7 @@ def _fit_order(
     at_bound = tuple(
         n
         for n, qi, a, b in zip(names, q, lo, hi, strict=True)
-        if (qi - a < 1e-3 and vanish[n] != "low") or (b - qi < 1e-3 and vanish[n] != "high")
+        if (qi - a < 1e-3 and "low" not in vanish[n]) or (b - qi < 1e-3 and "high" not in vanish[n])
     )
     return _Trial(family, order, values, q, chi2, bic, float(np.sqrt(np.mean(err**2))), at_bound)
 

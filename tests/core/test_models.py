@@ -179,13 +179,16 @@ def test_spice_lines_and_dc_path(name, values, formula):
 
 
 def test_vanishing_sides():
-    node = FAMILIES["bead"].circuit(2)
-    sides = vanishing_sides(node)
-    assert sides["Rdc"] == "low"  # series resistor vanishes as a short
-    assert sides["R"] == "high"  # parallel resistor vanishes as an open
-    assert sides["C"] == "low"  # parallel capacitor vanishes as an open
-    node = FAMILIES["series-rlc"].circuit(1)
-    assert vanishing_sides(node)["C"] == "high"  # series capacitor vanishes as a short
+    sides = vanishing_sides(FAMILIES["bead"].circuit(2))
+    assert sides["Rdc"] == {"low"}  # a series resistor drops out as a short
+    assert sides["R"] == {"high", "low"}  # in a group in series: as an open or a short
+    assert sides["C"] == {"low", "high"}
+    assert vanishing_sides(FAMILIES["series-rlc"].circuit(1))["C"] == {"high"}
+    # Across the whole inductor, a shorting Cp or Rp would short the part: not harmless.
+    sides = vanishing_sides(FAMILIES["inductor"].circuit(1))
+    assert sides["Cp"] == {"low"}
+    assert sides["Rp"] == {"high"}
+    assert sides["Rs1"] == {"high", "low"}  # the R-L section sits in series in the winding
 
 
 @pytest.mark.parametrize("name", sorted(FAMILIES))

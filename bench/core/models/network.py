@@ -148,21 +148,31 @@ def _impedance(node: Node, jw: ComplexArray, values: Mapping[str, float]) -> Com
     return 1.0 / sum(1.0 / z for z in zs)
 
 
-def vanishing_sides(node: Node, inside: str = "series") -> dict[str, str]:
-    """For each element, the bound (``"low"`` or ``"high"``) at which it drops out.
+_SHORT = {"R": "low", "L": "low", "C": "high"}
+_OPEN = {"R": "high", "L": "high", "C": "low"}
 
-    In series an element vanishes as a short (R, L → low; C → high); in parallel as an
-    open (R, L → high; C → low). An element ending there is harmless: the data simply
-    did not need it.
+
+def vanishing_sides(node: Node, context: tuple[str, ...] = ("pins",)) -> dict[str, set[str]]:
+    """For each element, the bounds (``"low"``, ``"high"``) at which it harmlessly drops out.
+
+    In series an element drops out as a short (R, L low; C high); in a parallel group as
+    an open (R, L high; C low), and also as a short when that group itself sits in series
+    (the group then just vanishes). An element ending at such a bound was not needed by
+    the data; any other bound means the model is strained.
     """
     if isinstance(node, Element):
-        short = {"R": "low", "L": "low", "C": "high"}
-        open_ = {"R": "high", "L": "high", "C": "low"}
-        return {node.name: (short if inside == "series" else open_)[node.kind]}
+        sides = set()
+        if context[-1] in ("series", "pins"):
+            sides.add(_SHORT[node.kind])
+        else:
+            sides.add(_OPEN[node.kind])
+            if len(context) >= 2 and context[-2] == "series":
+                sides.add(_SHORT[node.kind])
+        return {node.name: sides}
     where = "series" if isinstance(node, Series) else "parallel"
-    out: dict[str, str] = {}
+    out: dict[str, set[str]] = {}
     for part in node.parts:
-        out.update(vanishing_sides(part, where))
+        out.update(vanishing_sides(part, (*context, where)))
     return out
 
 
