@@ -18,7 +18,11 @@ from bench.core.landmarks import landmarks_for
 from bench.core.models import FAMILIES
 
 SETTINGS = settings(
-    max_examples=5, deadline=None, derandomize=True, suppress_health_check=[HealthCheck.too_slow]
+    max_examples=5,
+    deadline=None,
+    derandomize=True,
+    database=None,
+    suppress_health_check=[HealthCheck.too_slow],
 )
 
 

@@ -284,3 +284,17 @@ def test_uncertainties_shrink_with_less_noise():
     a = fit_impedance(quiet.f, quiet.z, model="series-rlc", rel_uncertainty=quiet.rel_uncertainty)
     b = fit_impedance(noisy.f, noisy.z, model="series-rlc", rel_uncertainty=noisy.rel_uncertainty)
     assert a.uncertainties["R"] / a.elements["R"] < b.uncertainties["R"] / b.elements["R"]
+
+
+def test_resonance_beyond_the_sweep_still_fits_and_says_so():
+    f = np.logspace(2, 5, 151)  # a 22 µF part resonates near 2 MHz, far above 100 kHz
+    part = Mlcc(name="MC22U", capacitance=22e-6, esl=0.45e-9, esr=3e-3)
+    data = measure(part, 131, f=f)
+    result = fit_impedance(data.f, data.z, rel_uncertainty=data.rel_uncertainty)
+    assert result.kind == "capacitor"
+    assert result.meets_quality
+    assert result.landmarks["srf"] is None
+    assert result.landmarks["c_low"] == pytest.approx(
+        landmarks_for("capacitor", f, part.impedance(f))["c_low"], rel=TOLERANCE["c_low"]
+    )
+    assert any("outside the sweep" in w for w in result.warnings)
