@@ -15,7 +15,8 @@ import subprocess
 import numpy as np
 import pytest
 
-from bench.core.fitting import fit_impedance
+from bench.core.fitting import FitQuality, FitResult, fit_impedance
+from bench.core.models import FAMILIES
 from bench.core.spice import library_text, spice_name, subckt_text
 from simulated_instruments.parts import BulkCapacitor, FerriteBead, Mlcc, PowerInductor
 
@@ -115,3 +116,60 @@ def test_names_are_sanitised_and_duplicates_refused():
     a = subckt_text(result, "FB", provenance={})
     with pytest.raises(ValueError, match="several subcircuits named fb"):
         library_text([a, a], title="dupes")
+
+
+@needs_ngspice
+@pytest.mark.ngspice
+@pytest.mark.parametrize(
+    ("model", "values"),
+    [
+        (
+            "ladder",
+            {
+                "R": 8e-3,
+                "L": 2e-9,
+                "C": 300e-6,
+                "R1": 6e-3,
+                "C1": 150e-6,
+                "R2": 1.5e-3,
+                "C2": 150e-6,
+                "R3": 0.7e-3,
+                "C3": 150e-6,
+                "R4": 0.4e-3,
+                "C4": 150e-6,
+                "R5": 0.25e-3,
+                "C5": 150e-6,
+            },
+        ),
+        (
+            "inductor",
+            {
+                "Rdc": 10e-3,
+                "L": 1e-6,
+                "Rs1": 0.5,
+                "Ls1": 20e-9,
+                "Rs2": 5.0,
+                "Ls2": 5e-9,
+                "Rp": 2e3,
+                "Cp": 5e-12,
+            },
+        ),
+    ],
+    ids=["ladder-5", "inductor-2"],
+)
+def test_highest_orders_simulate_in_ngspice(tmp_path, model, values):
+    # Built directly (not fitted) so that every section of the highest order is present.
+    result = FitResult(
+        model=model,
+        kind=FAMILIES[model].kind,
+        elements=values,
+        uncertainties={},
+        landmarks={},
+        quality=FitQuality(0.0, 0.0, 0, 0),
+        order=FAMILIES[model].order_of(values),
+        f_range=(1e3, 200e6),
+    )
+    text = subckt_text(result, f"{model}_max", provenance={})
+    data = run_ngspice(tmp_path, library_text([text], title="orders"), f"{model}_max")
+    f, z_spice = data[:, 0], data[:, 1] + 1j * data[:, 2]
+    np.testing.assert_allclose(z_spice, FAMILIES[model].impedance(f, values), rtol=1e-3)
