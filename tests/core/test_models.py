@@ -145,6 +145,11 @@ def test_element_names_are_spice_ready_and_unique(name):
         assert family.order_of(dict.fromkeys(names, 1.0)) == order
 
 
+def test_impedance_refuses_zero_frequency():
+    with pytest.raises(ValueError, match="above 0 Hz"):
+        FAMILIES["series-rlc"].impedance(np.array([0.0, 1e3]), {"R": 1.0, "L": 1e-9, "C": 1e-6})
+
+
 def test_order_of_rejects_foreign_elements():
     with pytest.raises(ValueError, match="match no order"):
         FAMILIES["ladder"].order_of({"R": 1.0, "L": 1.0})

@@ -257,7 +257,14 @@ class ModelFamily:
         )
 
     def impedance(self, f: Any, values: Mapping[str, float]) -> ComplexArray:
-        """Impedance (Ω) at ``f`` (Hz) of the circuit with element ``values`` (SI)."""
+        """Impedance (Ω) at ``f`` (Hz, finite and > 0) of the circuit with element ``values``
+        (SI)."""
+        f = np.asarray(f, dtype=float)
+        if np.any(~np.isfinite(f)) or np.any(f <= 0):
+            raise ValueError(
+                f"model {self.name}: frequencies must be finite and above 0 Hz "
+                "(a capacitor's impedance is infinite at DC)"
+            )
         return network_impedance(self.circuit(self.order_of(values)), f, values)
 
     def spice_lines(self, values: Mapping[str, float]) -> list[str]:
