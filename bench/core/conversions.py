@@ -126,3 +126,21 @@ def through_normalise(s21_raw: ArrayLike, s21_through: ArrayLike) -> ComplexArra
             "check the through adapter and re-measure the through"
         )
     return raw / thru
+
+
+def shunt_through_rereference(s21: ArrayLike, from_ze: ArrayLike, to_ze: ArrayLike) -> ComplexArray:
+    """The transmission of the same shunt part seen from ports of another impedance.
+
+    ``s21`` is ``2Z / (2Z + from_ze)`` for some shunt ``Z``; the result is
+    ``2Z / (2Z + to_ze)``. With ``2Z = from_ze·S/(1 − S)`` this is
+    ``from_ze·S / (from_ze·S + to_ze·(1 − S))`` [derived], which stays finite where
+    ``S → 1`` (an open). Used where a SOLT calibration has moved the reference plane
+    past the port series resistors (each port then presents ``Z0``, not ``Z0 + Rs``)
+    and the data are put back on the set-up's ``Z0 + Rs`` scale. Impedances in Ω (> 0),
+    scalars or arrays that broadcast with ``s21``.
+    """
+    s = np.asarray(s21, dtype=complex)
+    a = np.asarray(from_ze, dtype=complex)
+    b = np.asarray(to_ze, dtype=complex)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return a * s / (a * s + b * (1.0 - s))

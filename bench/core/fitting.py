@@ -425,6 +425,53 @@ def _resonance_warnings(
     return out
 
 
+def _low_frequency_warnings(
+    kind: str,
+    f: NDArray[np.float64],
+    z: NDArray[np.complex128],
+    sigma: NDArray[np.float64],
+    used: NDArray[np.bool_],
+    model_marks: Landmarks,
+) -> list[str]:
+    """Say so when the DC resistance of an inductor or bead was not measured.
+
+    ``r_dc`` is read over the lowest third of a decade of the sweep (see
+    :func:`bench.core.landmarks.inductor_landmarks`). When most of those points lie
+    outside the measurable window, or the resistance is lost in the uncertainty of the
+    (reactive) impedance there, the value is the model's extrapolation, not a
+    measurement: a 1.5 mΩ winding behind 499 Ω port resistors, for example.
+    """
+    r_dc = model_marks.get("r_dc")
+    if kind != "inductor" or r_dc is None or f.size < 2:
+        return []
+    band = f <= f[0] * 10 ** (1 / 3)
+    if np.count_nonzero(band) < 3:
+        band = np.arange(f.size) < 3
+    seen = band & used
+    note = (
+        f"r_dc ({r_dc:.3g} ohm) comes from the model, not from measured points: "
+        f"{{why}}; measure it with a set-up whose window reaches it (no series "
+        f"resistors, a narrower IF bandwidth) or with a DC ohmmeter"
+    )
+    if np.count_nonzero(seen) < max(3, np.count_nonzero(band) // 2):
+        return [
+            note.format(
+                why=f"the points below {f[band][-1]:.4g} Hz lie outside the measurable window"
+            )
+        ]
+    # Standard error of the band's median of Re Z: about 1.25·σ/√n, with σ the RMS of
+    # one component of the complex error, |Z|·u/√2.
+    spread = np.abs(z[seen]) * sigma[seen] / np.sqrt(2.0)
+    standard_error = 1.25 * float(np.median(spread)) / np.sqrt(np.count_nonzero(seen))
+    if r_dc < 3.0 * standard_error:
+        return [
+            note.format(
+                why=f"it is below three times its standard error there ({standard_error:.2g} ohm)"
+            )
+        ]
+    return []
+
+
 def fit_impedance(
     f: Any,
     z: Any,
@@ -513,6 +560,7 @@ def fit_impedance(
         kind, f, network_impedance(best.family.circuit(best.order), f, best.values)
     )
     warnings += _resonance_warnings(kind, f, used, model_marks, data_marks)
+    warnings += _low_frequency_warnings(kind, f, z, sigma, used, model_marks)
     if best.at_bound:
         warnings.append(
             f"elements {', '.join(best.at_bound)} ended at the edge of their allowed range; "

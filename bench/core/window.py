@@ -51,6 +51,20 @@ def db_to_relative(db: float) -> float:
     return float(10.0 ** (db / 20.0) - 1.0)
 
 
+def floor_on_through_db(analyser_floor_db: float, z0: float = 50.0, series_r: float = 0.0) -> float:
+    """The analyser's noise floor as a level on the through-normalised ``S21n`` scale (dB).
+
+    An analyser's floor is a fixed receiver noise, stated relative to its own reference
+    (a unit through, no resistors). Port series resistors ``series_r`` (Ω at each port)
+    lower the through that S21 is normalised to, to ``Z0/(Z0 + Rs)`` of that reference
+    (REFERENCES §1, derived), so relative to it the same noise stands
+    ``20·log10((Z0 + Rs)/Z0)`` dB higher: 20.8 dB for 499 Ω on 50 Ω, so a −100 dB
+    analyser gives −79.2 dB on the ``S21n`` scale. Without resistors the floor is unchanged.
+    """
+    ze = effective_port_impedance(z0, series_r)
+    return float(analyser_floor_db + 20.0 * math.log10(ze / z0))
+
+
 @dataclass(frozen=True)
 class Window:
     """Measurable impedance window of one set-up (all impedances in Ω).

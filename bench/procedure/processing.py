@@ -14,9 +14,15 @@ from typing import Any
 import numpy as np
 
 from bench import __version__
-from bench.core.calibration import RawStandards, calibrate, through_response
-from bench.core.conversions import shunt_through_z
+from bench.core.calibration import (
+    DEFAULT_CROSSOVER_HZ,
+    RawStandards,
+    calibrate,
+    through_response,
+)
+from bench.core.conversions import shunt_through_rereference, shunt_through_z
 from bench.core.impedance import ImpedanceData, impedance_from_shunt_through
+from bench.core.window import floor_on_through_db
 from bench.errors import FitError, RunError
 from bench.procedure.plan import Analysis, Plan, Step
 from bench.results import RunSummary, SampleResult
@@ -87,6 +93,34 @@ class Corrector:
             kwargs["crossover_hz"] = self.plan.calibration.crossover_hz
         return calibrate(f, s_raw, standards, self.plan.calibration.method, **kwargs)
 
+    def through_band(self, f: np.ndarray) -> np.ndarray:
+        """True at the points :meth:`correct` normalises to the through (the rest: SOLT)."""
+        method = self.plan.calibration.method
+        if method == "through":
+            return np.ones(f.shape, dtype=bool)
+        if method == "solt":
+            return np.zeros(f.shape, dtype=bool)
+        crossover = self.plan.calibration.crossover_hz
+        return f < (DEFAULT_CROSSOVER_HZ if crossover is None else crossover)
+
+    def setup_s21(self, f: np.ndarray, corrected: np.ndarray) -> np.ndarray:
+        """S21 of a corrected sweep on the set-up's scale ``2Z/(2Z + Z0 + Rs)``.
+
+        A through normalisation taken with the port series resistors fitted keeps them in
+        the path, so each port presents ``Ze = Z0 + Rs`` to the part. A SOLT taken with
+        them fitted moves the reference plane past them, to where the standards were, so
+        its S21 is ``2Z/(2Z + Z0)``: those points are put back on the ``Z0 + Rs`` scale,
+        which is the one the window, the uncertainty and the conversion to Z use.
+        """
+        s21 = np.array(corrected[:, 1, 0], dtype=complex)
+        series_r = self.plan.fixture.series_r
+        if series_r <= 0:
+            return s21
+        z0 = self.plan.fixture.z0
+        solt = ~self.through_band(f)
+        s21[solt] = shunt_through_rereference(s21[solt], z0, z0 + series_r)
+        return s21
+
     def quick(self, f: np.ndarray, s_raw: np.ndarray) -> np.ndarray:
         """Through-response correction only: a fast first look (live results), not the
         run's calibration, which :meth:`correct` applies."""
@@ -100,7 +134,10 @@ def mount_short_impedance(
     """Frequencies and the shorted mount's impedance (Ω) at ``position``
     (``quick``: through-response correction only, see :meth:`Corrector.quick`)."""
     f, s = averaged(store, f"mount_short/p{position}")
-    s21n = (corrector.quick if quick else corrector.correct)(f, s)[:, 1, 0]
+    if quick:
+        s21n = corrector.quick(f, s)[:, 1, 0]
+    else:
+        s21n = corrector.setup_s21(f, corrector.correct(f, s))
     return f, shunt_through_z(s21n, plan.fixture.z0, plan.fixture.series_r)
 
 
@@ -124,7 +161,13 @@ def sample_impedance(
     s21n: np.ndarray,
     z_short: np.ndarray | None,
 ) -> ImpedanceData:
-    """The part's impedance with the mount removed, its window and uncertainty."""
+    """The part's impedance with the mount removed, its window and uncertainty.
+
+    ``s21n`` is on the set-up's scale (:meth:`Corrector.setup_s21`). The procedure's
+    noise floor is the analyser's own (relative to a through without resistors); on the
+    through-normalised scale it stands higher by the through level the port series
+    resistors take away (:func:`bench.core.window.floor_on_through_db`).
+    """
     mount: Any = z_short
     if z_short is not None and analysis.mount == "fitted":
         from bench.core.fixture import fit_mount
@@ -136,10 +179,24 @@ def sample_impedance(
         z0=plan.fixture.z0,
         series_r=plan.fixture.series_r,
         mount_short=mount,
-        noise_floor_db=analysis.noise_floor_db,
+        noise_floor_db=floor_on_through_db(
+            analysis.noise_floor_db, plan.fixture.z0, plan.fixture.series_r
+        ),
         trace_noise_db=analysis.trace_noise_db,
         tolerance=analysis.tolerance,
     )
+
+
+def loop_removed_with_short(analysis: Analysis) -> bool:
+    """Whether the cable-shield ground loop's error leaves with the mount short.
+
+    The loop adds a series error ``R1R2/(R1 + R2 + jω(L1 + L2 + Lcm))`` that does not
+    depend on what is in the mount (REFERENCES §2, first-order model), so it is in the
+    shorted-mount capture as much as in the part's: subtracting the measured short point
+    by point removes it, and the points below the loop's corner stay good. A fitted
+    ``Rm + jωLm`` mount cannot follow it, so then those points are not used.
+    """
+    return analysis.mount == "measured"
 
 
 def fit_sample(
@@ -207,11 +264,25 @@ def build_summary(
         for pos, r in loops.items()
     }
     for r in loops.values():
-        if r.detected:
+        if not r.detected:
+            continue
+        if loop_removed_with_short(analysis):
+            warnings.append(
+                f"position {r.position}: ground loop below {format_si(r.valid_above_hz, 'Hz')}; "
+                "its error is in the mount short too and was removed with it"
+            )
+        else:
             warnings.append(
                 f"position {r.position}: ground loop; points below "
                 f"{format_si(r.valid_above_hz, 'Hz')} were not used in the fits"
             )
+    if plan.fixture.series_r > 0 and plan.calibration.method != "through":
+        warnings.append(
+            "SOLT with port series resistors calibrates them out: the corrected data are "
+            "put back on the Z0 + Rs scale, but the correction amplifies the trace noise "
+            "of the reflections through the resistors; a through calibration is the "
+            "quieter choice with resistors"
+        )
     manifest = store.manifest
     return RunSummary(
         run_id=store.run_id,
@@ -254,14 +325,19 @@ def _sample(
     assert placement is not None
     f, s_raw = averaged(store, step.id)
     corrected = corrector.correct(f, s_raw)
-    data = sample_impedance(plan, analysis, f, corrected[:, 1, 0], shorts.get(step.position or 0))
+    s21n = corrector.setup_s21(f, corrected)
+    data = sample_impedance(plan, analysis, f, s21n, shorts.get(step.position or 0))
     loop = loops.get(step.position or 0)
-    valid_above = loop.valid_above_hz if loop is not None and loop.detected else 0.0
+    detected = loop is not None and loop.detected
+    removed = detected and loop_removed_with_short(analysis) and step.position in shorts
+    valid_above = loop.valid_above_hz if detected and not removed else 0.0
     part = plan.part(placement.part)
     model = model_override or part.spec.model
     result, error = fit_sample(model, data, valid_above) if fit else (None, None)
     notes: tuple[str, ...] = ()
-    if valid_above:
+    if removed:
+        notes = ("ground loop: removed with the measured mount short (all points kept)",)
+    elif valid_above:
         notes = (f"ground loop: points below {format_si(valid_above, 'Hz')} not used",)
     if result is not None and getattr(result, "warnings", ()):
         notes = (*notes, *result.warnings)
