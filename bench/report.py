@@ -437,12 +437,22 @@ def _sample_section(
             f"<p>{esc(name)} = {_si(value, unit)} against {_si(spec.nominal, unit)}{esc(tol)}: "
             f"deviation {_percent(deviation)}, {_verdict_html(result, sample.bias_v)}</p>"
         )
+    caption = (
+        f"{heading}: |Z| and ESR versus frequency; shaded band: measurable window; "
+        "crosses: points outside it; dashed: fitted model"
+    )
+    if sample.fit is not None:
+        caption += (
+            "; lower panels: model minus measurement (complex log, magnitude in % and "
+            "phase in degrees) with the ±1σ measurement band"
+        )
+    if getattr(sample.fit, "f_range", None) is not None:
+        caption += "; hatched: ends of the sweep the fit left out"
     parts.append(
         figs.embed(
-            plots.impedance_figure(sample.data, sample.fit, title=heading),
+            plots.sample_figure(sample.data, sample.fit, title=heading),
             f"{sample.label}_impedance",
-            f"{heading}: |Z| and ESR versus frequency; shaded band: measurable window; "
-            "crosses: points outside it; dashed: fitted model.",
+            caption + ".",
         )
     )
     if sample.fit is None:
@@ -452,13 +462,6 @@ def _sample_section(
         parts.append(_warnings_list(sample.warnings))
         parts.append("</section>")
         return "".join(parts)
-    parts.append(
-        figs.embed(
-            plots.residuals_figure(sample.data, sample.fit, title=heading),
-            f"{sample.label}_residuals",
-            f"{heading}: model minus measurement (complex log) with the ±1σ measurement band.",
-        )
-    )
     parts.append(f"<p>Fit quality: {esc(_quality_text(sample.fit))}.</p>")
     parts.append(_landmark_table(sample))
     parts.append(_warnings_list([*sample.warnings, *sample.fit.warnings]))
