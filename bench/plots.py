@@ -348,7 +348,7 @@ def _draw_residuals(ax_mag: Axes, ax_ph: Axes, data: Any, fit: Any) -> None:
         typical = float(np.nanmedian(np.asarray(rel, dtype=float)[inside]))
     _limit_to(ax_mag, mag_pct[inside], None if typical is None else 100.0 * typical)
     _limit_to(ax_ph, phase_deg[inside], None if typical is None else math.degrees(typical))
-    ax_mag.set_ylabel("|Z| error (%)")
+    ax_mag.set_ylabel("magnitude error (%)")
     ax_ph.set_ylabel("phase error (°)")
     ax_mag.legend(loc="best")
 
