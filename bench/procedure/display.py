@@ -6,6 +6,7 @@ line per part (rich); :class:`PlainDisplay` writes plain lines to a callable (lo
 
 from __future__ import annotations
 
+import re
 from collections.abc import Callable
 from typing import Any
 
@@ -71,7 +72,9 @@ class RichDisplay(PlainDisplay):
             TextColumn("left"),
             TimeRemainingColumn(),
             console=self.console,
-            transient=False,
+            # Transient: a pause for a prompt (and the end of the run) clears the bar
+            # instead of leaving a stale copy of it above every prompt.
+            transient=True,
         )
         self._progress.start()
         self._task = self._progress.add_task("starting", total=max(total, 1))
@@ -87,10 +90,17 @@ class RichDisplay(PlainDisplay):
             self._progress.advance(self._task, n)
 
     def result(self, text: str) -> None:
-        self.console.print(text, markup=False, highlight=False)
+        self._print(text)
 
     def message(self, text: str) -> None:
-        self.console.print(text, markup=False, highlight=False)
+        self._print(text)
+
+    def _print(self, text: str) -> None:
+        # Fold long result lines between fields (not inside "3.62 µF") at the console's
+        # width; rich would otherwise break them at any space.
+        self.console.print(
+            fit_width(text, self.console.width), markup=False, highlight=False, soft_wrap=False
+        )
 
     def pause(self) -> Any:
         import contextlib
@@ -115,6 +125,20 @@ class RichDisplay(PlainDisplay):
             self._progress = None
 
 
+#: A trailing bias in a result label: ``MC4U7-10V/s1 2.5V`` (live) or
+#: ``MC4U7-10V_s1_2.5V`` (a sample label), as the runner writes them.
+_LABEL_BIAS = re.compile(r"[ _](\d+(?:\.\d+)?)V$")
+
+#: Width of the label column of result lines (longer labels push the values right).
+LABEL_WIDTH = 21
+
+
+def label_bias(label: str) -> float:
+    """The DC bias (V) a result label ends with, 0.0 when it names none."""
+    match = _LABEL_BIAS.search(label)
+    return float(match.group(1)) if match else 0.0
+
+
 def result_line(
     label: str,
     kind: str,
@@ -123,29 +147,75 @@ def result_line(
     nominal: float | None,
     tolerance: float | None,
     outside: int = 0,
+    bias_v: float | None = None,
+    reference: float | None = None,
 ) -> str:
-    """One line per measured part: C, ESL, SRF, ESR (or L, Rdc, SRF) and the verdict."""
+    """One line per measured part: C, ESL, SRF, ESR (or L, Rdc, SRF, Z@SRF) and a verdict.
+
+    At 0 V the main landmark (``c_low`` F, ``l_low`` H) is compared with ``nominal``
+    and ``tolerance`` (a fraction): ``+2.5 % vs nominal, inside ±20 %``. A nominal
+    value is stated without bias, so at a DC-bias point (``bias_v`` > 0 V; when None it
+    is read from a trailing ``2.5V`` in ``label``) there is no verdict, as in the
+    exports: the line gives the change from ``reference`` (the same sample's main
+    landmark at 0 V) when known. Fields are separated by two spaces, so
+    :func:`fit_width` can fold a long line between them.
+    """
 
     def si(key: str, unit: str) -> str:
         value = landmarks.get(key)
         return format_si(value, unit, 3) if isinstance(value, (int, float)) else "—"
 
     if kind in ("mlcc", "bulk"):
-        text = (
-            f"{label:<22} C {si('c_low', 'F'):>9}  ESL {si('esl', 'H'):>9}  "
-            f"SRF {si('srf', 'Hz'):>10}  ESR {si('esr_at_srf', 'Ω'):>9}"
-        )
+        fields = [
+            f"C {si('c_low', 'F'):>7}",
+            f"ESL {si('esl', 'H'):>7}",
+            f"SRF {si('srf', 'Hz'):>8}",
+            f"ESR {si('esr_at_srf', 'Ω'):>7}",
+        ]
         main = landmarks.get("c_low")
     else:
-        text = (
-            f"{label:<22} L {si('l_low', 'H'):>9}  Rdc {si('r_dc', 'Ω'):>9}  "
-            f"SRF {si('srf', 'Hz'):>10}  Z@SRF {si('z_at_srf', 'Ω'):>9}"
-        )
+        fields = [
+            f"L {si('l_low', 'H'):>7}",
+            f"Rdc {si('r_dc', 'Ω'):>7}",
+            f"SRF {si('srf', 'Hz'):>8}",
+            f"Z@SRF {si('z_at_srf', 'Ω'):>7}",
+        ]
         main = landmarks.get("l_low") if kind == "inductor" else None
-    if nominal and tolerance and isinstance(main, (int, float)):
+    bias = label_bias(label) if bias_v is None else float(bias_v)
+    if isinstance(main, (int, float)) and bias:
+        if reference:
+            fields.append(f"{(main / reference - 1.0) * 100:+.1f} % vs 0 V, no verdict under bias")
+        else:
+            fields.append("no verdict under bias")
+    elif nominal and tolerance and isinstance(main, (int, float)):
         deviation = main / nominal - 1.0
-        verdict = "inside" if abs(deviation) <= tolerance else "OUTSIDE"
-        text += f"  {deviation * 100:+.1f} % {verdict} ±{tolerance * 100:g} %"
+        verdict = "inside" if abs(deviation) <= tolerance * (1 + 1e-12) else "OUTSIDE"
+        fields.append(f"{deviation * 100:+.1f} % vs nominal, {verdict} ±{tolerance * 100:g} %")
     if outside:
-        text += f"  ({outside} points outside the window)"
-    return text
+        fields.append(f"({outside} point{'s' if outside != 1 else ''} outside the window)")
+    return f"{label:<{LABEL_WIDTH}}  " + "  ".join(fields)
+
+
+#: Where a result line may be folded: two or more spaces before a field that does not
+#: start with a digit or a dash (those are right-aligned values such as "C   4.5 µF").
+_FIELD_BOUNDARY = re.compile(r" {2,}(?=[^\s\d—])")
+FOLD_INDENT = 4
+
+
+def fit_width(text: str, width: int) -> str:
+    """Fold each line of ``text`` longer than ``width`` between its fields.
+
+    Fields are separated by two or more spaces (:data:`_FIELD_BOUNDARY`); continuation
+    lines are indented by :data:`FOLD_INDENT` spaces. A line with no field boundary to
+    fold at is left as it is (the console wraps it as it would any text).
+    """
+    out = []
+    for line in text.split("\n"):
+        while len(line) > width:
+            cuts = [m for m in _FIELD_BOUNDARY.finditer(line) if FOLD_INDENT < m.start() <= width]
+            if not cuts:
+                break
+            out.append(line[: cuts[-1].start()])
+            line = " " * FOLD_INDENT + line[cuts[-1].end() :]
+        out.append(line)
+    return "\n".join(out)

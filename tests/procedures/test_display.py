@@ -1,0 +1,83 @@
+"""The live result line: fits an 80-column console, no verdict under DC bias."""
+
+from __future__ import annotations
+
+import io
+
+from rich.console import Console
+
+from bench.procedure.display import RichDisplay, fit_width, label_bias, result_line
+
+MLCC = {"c_low": 3.62e-6, "esl": 323e-12, "srf": 4.17e6, "esr_at_srf": 3.98e-3}
+
+
+def test_verdict_at_zero_volts_against_nominal_and_tolerance():
+    inside = result_line("MC4U7-10V/s1", "mlcc", MLCC, nominal=3.5e-6, tolerance=0.1)
+    # (3.62 / 3.5 − 1) = +3.4 %, within ±10 % (derived: 0.12 / 3.5 = 0.0343)
+    assert "+3.4 % vs nominal, inside ±10 %" in inside
+    outside = result_line("MC4U7-10V/s1", "mlcc", MLCC, nominal=4.7e-6, tolerance=0.1)
+    # (3.62 / 4.7 − 1) = −23.0 % (derived: −1.08 / 4.7 = −0.2298)
+    assert "-23.0 % vs nominal, OUTSIDE ±10 %" in outside
+
+
+def test_no_verdict_under_bias_but_the_change_from_zero_volts():
+    # The exports give no verdict at a bias point (a nominal value is stated without
+    # bias); the live line must agree.
+    line = result_line(
+        "MC4U7-10V/s1 2.5V", "mlcc", MLCC, nominal=4.7e-6, tolerance=0.1, reference=4.49e-6
+    )
+    assert "OUTSIDE" not in line and "inside" not in line
+    # 3.62 / 4.49 − 1 = −19.4 % (derived: −0.87 / 4.49 = −0.1938)
+    assert "-19.4 % vs 0 V, no verdict under bias" in line
+    # Without the 0 V value, and with the bias read from the label (fit lines).
+    line = result_line("fit MC4U7-10V_s1_2.5V", "mlcc", MLCC, nominal=4.7e-6, tolerance=0.1)
+    assert "no verdict under bias" in line and "OUTSIDE" not in line
+    # An explicit bias_v wins over the label.
+    line = result_line("X/s1", "mlcc", MLCC, nominal=4.7e-6, tolerance=0.1, bias_v=5.0)
+    assert "no verdict under bias" in line
+
+
+def test_label_bias_reads_only_a_trailing_bias():
+    assert label_bias("MC4U7-10V/s1 2.5V") == 2.5
+    assert label_bias("MC4U7-10V_s2_10V") == 10.0
+    assert label_bias("MC4U7-10V/s1") == 0.0  # the part's rating is not a bias
+    assert label_bias("fit MC4U7-10V_s1") == 0.0
+
+
+def test_points_outside_the_window_singular_and_plural():
+    one = result_line("A/s1", "mlcc", MLCC, nominal=None, tolerance=None, outside=1)
+    many = result_line("A/s1", "mlcc", MLCC, nominal=None, tolerance=None, outside=7)
+    assert "(1 point outside the window)" in one
+    assert "(7 points outside the window)" in many
+
+
+def test_long_lines_fold_between_fields_within_80_columns():
+    line = (
+        result_line("fit MC4U7-10V_s1_2.5V", "mlcc", MLCC, nominal=4.7e-6, tolerance=0.1)
+        + "  [two-branch, rms 0.035]"
+    )
+    folded = fit_width(line, 80).split("\n")
+    assert len(folded) == 2 and all(len(row) <= 80 for row in folded)
+    # Values stay whole ("C 3.62 µF"), the verdict moves to an indented second line.
+    assert folded[0].rstrip().endswith("ESR 3.98 mΩ")
+    assert folded[1] == "    no verdict under bias  [two-branch, rms 0.035]"
+    # Right-aligned values ("C  4.5 µF") are never split from their key.
+    padded = result_line(
+        "A/s1", "mlcc", {"c_low": 4.5e-6, "srf": 28e6}, nominal=4.7e-6, tolerance=0.1
+    )
+    for width in range(30, 80):
+        for row in fit_width(padded, width).split("\n"):
+            assert not row.strip()[:1].isdigit() and not row.strip().startswith("—")
+    # Prose without field boundaries is left to the console.
+    assert fit_width("a b c " * 30, 40) == "a b c " * 30
+
+
+def test_rich_display_prints_folded_lines_at_the_console_width():
+    buffer = io.StringIO()
+    display = RichDisplay(Console(file=buffer, width=80, color_system=None))
+    display.result(
+        result_line("MC4U7-10V/s1 2.5V", "mlcc", MLCC, nominal=4.7e-6, tolerance=0.1, outside=11)
+    )
+    rows = buffer.getvalue().rstrip("\n").split("\n")
+    assert len(rows) == 2 and all(len(row) <= 80 for row in rows)
+    assert rows[1].startswith("    no verdict under bias")
