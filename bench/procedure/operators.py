@@ -24,9 +24,17 @@ DECISIONS = (CONTINUE, REPEAT, SKIP, STOP)
 STANDARD_WORDS = {
     "short": "the SHORT standard on both cable ends",
     "open": "the OPEN standard on both cable ends",
-    "load": "the LOAD (50 ohm) standard on both cable ends",
+    "load": "the LOAD (50 Ω) standard on both cable ends",
     "through": "the two cable ends joined with the THROUGH adapter",
 }
+
+
+def _positions(positions: Sequence[int], *, mount: bool = False) -> str:
+    """``strap in position 1`` / ``straps in positions 1, 2, 3`` (``mount`` adds the word)."""
+    many = len(positions) > 1
+    where = ", ".join(map(str, positions))
+    mount_word = "mount " if mount else ""
+    return f"strap{'s' if many else ''} in {mount_word}position{'s' if many else ''} {where}"
 
 
 class OperatorStop(Exception):  # noqa: N818 (a request, not a failure)
@@ -109,7 +117,7 @@ class ScriptedOperator(Operator):
 
     def fit_resistors(self, ohms: float) -> None:
         self.bench.resistors(ohms)
-        self._did(f"series resistors {ohms:g} ohm")
+        self._did(f"series resistors {ohms:g} Ω at both ports" if ohms else "no series resistors")
 
     def fit_transformer(self, on: bool) -> None:
         self.bench.transformer(on)
@@ -120,16 +128,16 @@ class ScriptedOperator(Operator):
             self.bench.connect_through()
         else:
             self.bench.connect_standard(standard)
-        self._did(f"cables: {standard}")
+        self._did(f"cables: {STANDARD_WORDS[standard]}")
 
     def connect_fixture(self) -> None:
         self.bench.connect_fixture()
-        self._did("cables: fixture")
+        self._did("cables: on the fixture")
 
     def strap_mounts(self, positions: Sequence[int]) -> None:
         for pos in positions:
             self.bench.place(pos, "short")
-        self._did(f"short straps in positions {', '.join(map(str, positions))}")
+        self._did(f"shorting {_positions(positions)}")
 
     def load_parts(self, placements: Sequence[Placement]) -> None:
         for p in placements:
@@ -188,7 +196,7 @@ class ConsoleOperator(Operator):
 
     def fit_resistors(self, ohms: float) -> None:
         if ohms:
-            self._later(f"fit the {ohms:g} ohm series resistors at both ports")
+            self._later(f"fit the {ohms:g} Ω series resistors at both ports")
         else:
             self._later("make sure no series resistors are fitted at the ports")
 
@@ -205,12 +213,7 @@ class ConsoleOperator(Operator):
         self._action("Connect both cables to the fixture.")
 
     def strap_mounts(self, positions: Sequence[int]) -> None:
-        where = ", ".join(map(str, positions))
-        many = len(positions) > 1
-        self._action(
-            f"Fit the shorting strap{'s' if many else ''} in mount "
-            f"position{'s' if many else ''} {where}."
-        )
+        self._action(f"Fit the shorting {_positions(positions, mount=True)}.")
 
     def load_parts(self, placements: Sequence[Placement]) -> None:
         lines = [f"  position {p.position}: {p.part} sample {p.sample}" for p in placements]
