@@ -1,0 +1,245 @@
+"""Accuracy of the whole flow: do the models zbench hands over match the measured parts?
+
+The shipped demo procedure and the 499 Ω series-resistor procedure run unattended
+against the simulated bench over real sockets (small sweeps, compressed time): software
+calibration from the stored standards, mount short, shunt-through conversion, fixture
+removal, window and fit. Each sample's fitted landmarks are then compared with the same
+landmarks (``bench.core.landmarks``) read off the sample's *true* circuit on the same
+frequency grid, noise-free.
+
+What each comparison is against:
+- the truth is our own invented part (``simulated_instruments.parts``, the sample drawn
+  from the scenario's lot), not a published value;
+- the method that links the two is the shunt-through relation
+  ``Z = ((Z0 + Rs)/2)·S21n/(1 − S21n)`` and the mount-short removal ``Zm − Zs``
+  (DESIGN §4, REFERENCES §1 and §4, derived); the tolerances are the recovery targets
+  of the numeric core's specification: C 2 %, ESL 5 %, SRF 3 %, ESR at SRF 15 %,
+  L 3 %, Rdc 10 %, Z at SRF 20 %;
+- fit quality: every model meets the fitter's own bound, RMS complex-log error
+  ``<= 0.1`` (about 10 % in magnitude and 6° in phase, DESIGN §3).
+
+Two known limits of the flow, asserted as such rather than hidden:
+- the flow captures no empty (open) mount, so the pads' capacitance (0.24–0.33 pF in
+  the demo fixture) stays across the part. It moves an inductor's parallel resonance by
+  about 6 %, so ``srf``, ``z_at_srf`` and ``c_par`` of inductors are compared with the
+  part as the mount presents it (part ‖ pad capacitance); the bare-part comparison is a
+  strict expected failure that will start passing when an open capture exists;
+- a landmark the set-up cannot see must be said to be unmeasured: a 1.5 mΩ winding
+  behind 499 Ω resistors lies far below the window's floor, so its ``r_dc`` must carry
+  the fitter's "comes from the model" warning instead of a number held to 10 %.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pytest
+import yaml
+
+from bench.commands.run import new_store, with_resources
+from bench.core.fitting import DEFAULT_QUALITY_BOUND
+from bench.core.landmarks import landmarks_for
+from bench.procedure.display import PlainDisplay
+from bench.procedure.instruments import open_instruments
+from bench.procedure.operators import ScriptedOperator
+from bench.procedure.plan import load_plan
+from bench.procedure.runner import Runner
+from simulated_instruments.server import start_bench
+
+PROCEDURES = Path(__file__).resolve().parents[2] / "procedures"
+# Simulated sweep, relay and charging times are compressed 1000 times; the physics is not.
+TIME_SCALE = 0.001
+SEED = 7
+
+# Recovery targets of the numeric core (relative), see the module docstring.
+TOLERANCE = {
+    "c_low": 0.02,
+    "esl": 0.05,
+    "srf": 0.03,
+    "esr_at_srf": 0.15,
+    "l_low": 0.03,
+    "r_dc": 0.10,
+    "z_at_srf": 0.20,
+    "c_par": 0.20,  # follows from srf and l_low; held to the looser of the two families
+    "z_at_nominal": 0.20,  # a bead's |Z| where it is specified, to the Z-at-SRF target
+}
+CAPACITOR_MARKS = ("c_low", "esl", "srf", "esr_at_srf")
+# Of an inductor's landmarks, those the pads' capacitance moves (see the module doc).
+RESONANCE_MARKS = ("srf", "z_at_srf", "c_par")
+
+
+def _shrunk(name: str, edit: dict[str, Any]) -> str:
+    """A shipped procedure with quicker waits and without its export and report steps."""
+    data = yaml.safe_load((PROCEDURES / name).read_text(encoding="utf-8"))
+    for key, value in edit.items():
+        data.setdefault(key, {}).update(value)
+    data["steps"] = ["calibrate", "mount_short", "measure", "fit"]
+    return yaml.safe_dump(data, sort_keys=False)
+
+
+PROCEDURE_EDITS = {
+    # The bias waits are real time on our side; the simulator compresses the charging.
+    "demo.yaml": {"bias": {"ramp_dwell": "1 ms", "settle": "5 ms", "discharge": "5 ms"}},
+    # 201 points instead of 401: still 38 per decade, enough for every landmark.
+    "series_resistors.yaml": {"sweep": {"points": 201}},
+}
+
+
+@dataclass(frozen=True)
+class Outcome:
+    """One run: its summary, and the truth the simulated bench knew."""
+
+    summary: Any
+    scenario: Any
+
+
+def _run(tmp: Path, name: str) -> Outcome:
+    path = tmp / name
+    path.write_text(_shrunk(name, PROCEDURE_EDITS[name]), encoding="utf-8")
+    plan = load_plan(path)
+    store = new_store(plan, path, tmp / "runs")
+    with start_bench("demo", time_scale=TIME_SCALE, seed=SEED) as sim:
+        plan = with_resources(plan, sim.resources)
+        with open_instruments(plan, scripted=True) as instruments:
+            hands = ScriptedOperator(instruments.bench)
+            display = PlainDisplay(lambda _: None)
+            runner = Runner(plan, store, instruments, hands, display, assume_yes=True)
+            runner.run()
+        scenario = sim.state.scenario
+    assert runner.summary is not None
+    return Outcome(runner.summary, scenario)
+
+
+_OUTCOMES: dict[str, Outcome] = {}
+
+
+@pytest.fixture(scope="module")
+def outcome(tmp_path_factory):
+    """Each procedure runs once per module; the tests read its samples."""
+
+    def get(name: str) -> Outcome:
+        if name not in _OUTCOMES:
+            _OUTCOMES[name] = _run(tmp_path_factory.mktemp(name.split(".")[0]), name)
+        return _OUTCOMES[name]
+
+    yield get
+    _OUTCOMES.clear()
+
+
+def _samples(name: str) -> list[tuple[str, str, str, float]]:
+    plan = load_plan(PROCEDURES / name)
+    out = []
+    for step in plan.steps:
+        if step.kind == "measure" and step.placement is not None:
+            p = step.placement
+            out.append((name, p.part, p.sample, step.bias_v))
+    return out
+
+
+CASES = _samples("demo.yaml") + _samples("series_resistors.yaml")
+IDS = [f"{part}/{sample}@{bias:g}V" for _, part, sample, bias in CASES]
+
+
+def _find(result: Outcome, part: str, sample: str, bias: float) -> Any:
+    for s in result.summary.samples:
+        if s.part == part and s.sample == sample and s.bias_v == pytest.approx(bias):
+            return s
+    raise AssertionError(f"{part}/{sample} at {bias} V is not in the run's results")
+
+
+def _truth(result: Outcome, sample: Any) -> tuple[np.ndarray, np.ndarray, str]:
+    """The sample's true impedance on the measured grid, the same as the mount presents
+    it (part ‖ pad capacitance), and its kind."""
+    part = result.scenario.parts[f"{sample.part}/{sample.sample}"]
+    f = sample.data.f
+    z = part.impedance(f, sample.bias_v)
+    pad = result.scenario.mounts[sample.position - 1].open_capacitance
+    mounted = 1.0 / (1.0 / z + 2j * np.pi * f * pad)
+    return z, mounted, part.kind
+
+
+def _close(fitted: float | None, true: float | None, key: str) -> None:
+    assert true is not None, f"{key}: the true circuit shows no {key} on this sweep"
+    assert fitted is not None, f"{key}: the fit gives none (true {true:.4g})"
+    error = fitted / true - 1.0
+    assert abs(error) <= TOLERANCE[key], (
+        f"{key}: fitted {fitted:.4g}, true {true:.4g} ({error:+.1%}, "
+        f"tolerance {TOLERANCE[key]:.0%})"
+    )
+
+
+@pytest.mark.parametrize(("procedure", "part", "sample", "bias"), CASES, ids=IDS)
+def test_fitted_landmarks_match_the_true_part(outcome, procedure, part, sample, bias):
+    result = outcome(procedure)
+    s = _find(result, part, sample, bias)
+    assert s.fit is not None, s.fit_error
+    fit = s.fit
+    # Fit quality: the fitter's own bound (DESIGN §3), on every sample.
+    assert fit.quality.rms_log_error <= DEFAULT_QUALITY_BOUND, fit.warnings
+    z_true, z_mounted, kind = _truth(result, s)
+    assert fit.kind == kind
+    f = s.data.f
+    true_marks = landmarks_for(kind, f, z_true)
+    if kind == "capacitor":
+        for key in CAPACITOR_MARKS:
+            _close(fit.landmarks[key], true_marks[key], key)
+        return
+    _close(fit.landmarks["l_low"], true_marks["l_low"], "l_low")
+    # Rdc: held to 10 % where the set-up's window reaches it, else it must be flagged.
+    unmeasured = [w for w in fit.warnings if w.startswith("r_dc") and "from the model" in w]
+    if true_marks["r_dc"] < s.data.window.z_min:
+        assert unmeasured, f"r_dc {true_marks['r_dc']:.3g} ohm is below the window yet unflagged"
+    else:
+        assert not unmeasured, unmeasured
+        _close(fit.landmarks["r_dc"], true_marks["r_dc"], "r_dc")
+    mounted_marks = landmarks_for(kind, f, z_mounted)
+    if mounted_marks["srf"] is None:
+        # The bead resonates above 200 MHz: no SRF in the truth, none made up by the fit.
+        assert fit.landmarks["srf"] is None
+        # Instead |Z| at the frequency the bead is specified at, to the Z-at-SRF target.
+        spec = next(p for p in result.summary.parts if p.name == part)
+        at = np.array([spec.nominal_at_hz])
+        z_true_at = abs(result.scenario.parts[f"{part}/{sample}"].impedance(at)[0])
+        _close(float(abs(fit.impedance(at)[0])), float(z_true_at), "z_at_nominal")
+        return
+    for key in RESONANCE_MARKS:
+        _close(fit.landmarks[key], mounted_marks[key], key)
+
+
+INDUCTORS = [c for c in CASES if c[1] == "PL470N"]
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="no open-mount capture in the flow: the pads' capacitance stays across the part "
+    "and lowers an inductor's SRF by about 6 %",
+)
+@pytest.mark.parametrize(
+    ("procedure", "part", "sample", "bias"),
+    INDUCTORS,
+    ids=[f"{c[1]}/{c[2]}" for c in INDUCTORS],
+)
+def test_inductor_resonance_matches_the_bare_part(outcome, procedure, part, sample, bias):
+    result = outcome(procedure)
+    s = _find(result, part, sample, bias)
+    assert s.fit is not None, s.fit_error
+    z_true, _, kind = _truth(result, s)
+    true_marks = landmarks_for(kind, s.data.f, z_true)
+    _close(s.fit.landmarks["srf"], true_marks["srf"], "srf")
+
+
+@pytest.mark.parametrize("procedure", ["demo.yaml", "series_resistors.yaml"])
+def test_impedance_inside_the_window_follows_the_true_part(outcome, procedure):
+    # The data themselves, before any fit: over the points inside the window, the
+    # median complex-log distance to the part as mounted stays within the window's own
+    # accuracy target (the procedures' 10 % tolerance).
+    result = outcome(procedure)
+    for s in result.summary.samples:
+        _, z_mounted, _ = _truth(result, s)
+        inside = np.asarray(s.data.inside_window, dtype=bool)
+        assert np.count_nonzero(inside) > len(inside) // 2
+        error = np.abs(np.log(s.data.z[inside] / z_mounted[inside]))
+        assert float(np.median(error)) < s.data.window.tolerance, (s.part, s.sample)
