@@ -20,7 +20,8 @@ read from the measurement (log-log interpolation) when that frequency lies insid
 sweep, else from the model. A sample passes when its main landmark lies within
 nominal × (1 ± tolerance); the verdict is blank when the procedure gives no nominal
 value or no tolerance, and at DC bias points (a nominal value is stated without bias;
-the deviation is still given). All values in the CSV files are SI (F, H, Hz, Ω, V); deviations
+the deviation is still given, and ``change_from_0v`` gives the change from the same
+sample at 0 V). All values in the CSV files are SI (F, H, Hz, Ω, V); deviations
 and tolerances are fractions.
 
 The pure functions :func:`summary_rows`, :func:`lot_statistics`, :func:`bias_table` and
@@ -79,6 +80,7 @@ SUMMARY_COLUMNS = (
     "tolerance",
     "nominal_at_hz",
     "deviation",
+    "change_from_0v",
     "result",
     "fit_error",
     "warnings",
@@ -183,9 +185,36 @@ def verdict(spec: PartSpec, value: float | None, bias_v: float = 0.0) -> tuple[f
 # --------------------------------------------------------------------------- tables
 
 
+def zero_bias_values(summary: RunSummary) -> dict[tuple[str, str], float]:
+    """Main landmark of each (part, sample) at 0 V, where it was measured and fitted (SI)."""
+    values = {}
+    for sample in summary.samples:
+        if sample.bias_v:
+            continue
+        _, value = main_landmark(summary.part(sample.part), sample)
+        if value is not None:
+            values[(sample.part, sample.sample)] = value
+    return values
+
+
+def change_from_zero_bias(
+    sample: SampleResult, value: float | None, references: dict[tuple[str, str], float]
+) -> float | None:
+    """Fractional change of ``value`` from the same sample at 0 V; None at 0 V or unknown."""
+    reference = references.get((sample.part, sample.sample))
+    if not sample.bias_v or value is None or not reference:
+        return None
+    return value / reference - 1.0
+
+
 def summary_rows(summary: RunSummary) -> list[dict[str, Any]]:
-    """One row per sample and bias point, keyed by :data:`SUMMARY_COLUMNS` (SI values)."""
+    """One row per sample and bias point, keyed by :data:`SUMMARY_COLUMNS` (SI values).
+
+    ``change_from_0v`` (fraction) is given at DC-bias points: the main landmark against
+    the same sample's at 0 V, the figure that replaces a verdict under bias.
+    """
     rows = []
+    references = zero_bias_values(summary)
     for sample in summary.samples:
         spec = summary.part(sample.part)
         fit = sample.fit
@@ -217,6 +246,7 @@ def summary_rows(summary: RunSummary) -> list[dict[str, Any]]:
             "tolerance": spec.tolerance,
             "nominal_at_hz": spec.nominal_at_hz if spec.kind == "bead" else None,
             "deviation": deviation,
+            "change_from_0v": change_from_zero_bias(sample, value, references),
             "result": result,
             "fit_error": sample.fit_error,
             "warnings": "; ".join(dict.fromkeys(warnings)),

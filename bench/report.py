@@ -46,6 +46,9 @@ th, td { border: 1px solid var(--rule); padding: .18rem .5rem; text-align: left;
 th { background: var(--band); font-weight: 600; }
 td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
 table.kv th { width: 14rem; }
+table.glance { font-size: .8rem; }
+table.glance td { white-space: nowrap; padding: .15rem .35rem; }
+table.glance th { vertical-align: bottom; padding: .15rem .35rem; }
 .verdict-pass { font-weight: 700; }
 .verdict-fail { font-weight: 700; text-decoration: underline; }
 .verdict-pass::before { content: "\\2713\\00a0"; }
@@ -99,6 +102,7 @@ _KEY_UNITS = {
     "sweep_time": "s",
 }
 _FRACTION_KEYS = ("tolerance",)
+_TIME_KEYS = ("started", "created", "time", "date", "finished")
 
 
 def esc(value: Any) -> str:
@@ -142,7 +146,16 @@ def _value_text(key: str, value: Any) -> str:
         return f"{value:.6g}" if isinstance(value, float) else str(value)
     if isinstance(value, (list, tuple)):
         return ", ".join(_value_text(key, item) for item in value)
+    if lower in _TIME_KEYS:
+        moment = _when(value)
+        if moment is not None:
+            return _time_text(moment)
     return str(value)
+
+
+def _time_text(moment: datetime) -> str:
+    """``2026-12-02 02:58:01 UTC``: an ISO time as a reader writes it."""
+    return moment.astimezone(timezone.utc).strftime("%Y-%m-%d %H:%M:%S UTC")
 
 
 def _label(key: str) -> str:
@@ -184,7 +197,11 @@ def _records_table(mapping: Mapping[str, Any], first: str) -> str | None:
 
 
 def _table(
-    headers: Iterable[str], rows: Iterable[Iterable[str]], numeric: set[int] | None = None
+    headers: Iterable[str],
+    rows: Iterable[Iterable[str]],
+    numeric: set[int] | None = None,
+    *,
+    css_class: str = "",
 ) -> str:
     numeric = numeric or set()
     head = "".join(f"<th>{esc(h)}</th>" for h in headers)
@@ -195,7 +212,8 @@ def _table(
             cls = ' class="num"' if index in numeric else ""
             cells.append(f"<td{cls}>{cell}</td>")
         body.append("<tr>" + "".join(cells) + "</tr>")
-    return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
+    opening = f'<table class="{esc(css_class)}">' if css_class else "<table>"
+    return f"{opening}<thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
 
 
 def _si(value: float | None, unit: str, digits: int = 4) -> str:
@@ -204,9 +222,12 @@ def _si(value: float | None, unit: str, digits: int = 4) -> str:
     return esc(format_si(value, unit, digits))
 
 
-def _verdict_html(result: str, bias_v: float = 0.0) -> str:
+def _verdict_html(result: str, bias_v: float = 0.0, *, short: bool = False) -> str:
     if not result:
-        text = "not judged under bias" if bias_v else "no tolerance given"
+        if bias_v:
+            text = "not judged" if short else "not judged under bias"
+        else:
+            text = "no tolerance" if short else "no tolerance given"
         return f'<span class="note">{text}</span>'
     return f'<span class="verdict-{esc(result)}">{esc(result.upper())}</span>'
 
@@ -259,7 +280,10 @@ def _window_section(summary: RunSummary) -> str:
         outside = ~np.asarray(data.inside_window, dtype=bool)
         ranges = _outside_ranges(np.asarray(data.f, dtype=float), outside)
         where = "; ".join(
-            f"{format_si(lo, 'Hz', 3)} – {format_si(hi, 'Hz', 3)} ({n})" for lo, hi, n in ranges
+            f"{format_si(lo, 'Hz', 3)} ({n})"
+            if n == 1
+            else f"{format_si(lo, 'Hz', 3)} – {format_si(hi, 'Hz', 3)} ({n})"
+            for lo, hi, n in ranges
         )
         left_out = "—" if sample.fit is None else str(sample.fit.quality.points_outside_window)
         rows.append(
@@ -303,10 +327,25 @@ def _scalar(value: Any) -> float | None:
     return float(array) if array.ndim == 0 else None
 
 
+def _points_text(sample: SampleResult) -> tuple[int, int, int | None]:
+    """(points in the sweep, points outside the window, points the fit used or None)."""
+    total = int(np.size(sample.data.f))
+    outside = int(np.count_nonzero(~np.asarray(sample.data.inside_window, dtype=bool)))
+    used = sample.fit.quality.points_used if sample.fit is not None else None
+    return total, outside, used
+
+
 def _glance_section(summary: RunSummary) -> str:
     rows = []
-    for row in exports.summary_rows(summary):
+    for row, sample in zip(exports.summary_rows(summary), summary.samples, strict=True):
         unit = exports.LANDMARK_UNITS.get(row["main_landmark"], "")
+        total, outside, used = _points_text(sample)
+        if row["bias_v"]:
+            # No verdict under bias: the change from the same sample at 0 V instead.
+            change = row["change_from_0v"]
+            against = "—" if change is None else f"{_percent(change)} vs 0 V"
+        else:
+            against = _percent(row["deviation"])
         rows.append(
             [
                 esc(row["part"]),
@@ -316,28 +355,38 @@ def _glance_section(summary: RunSummary) -> str:
                 esc(row["main_landmark"]),
                 _si(row["measured"], unit),
                 _si(row["nominal"], unit),
-                _percent(row["deviation"]),
-                _verdict_html(row["result"], row["bias_v"]),
+                esc(against),
+                _verdict_html(row["result"], row["bias_v"], short=True),
                 "—" if row["rms_log_error"] is None else f"{row['rms_log_error']:.3g}",
-                str(row["points_outside_window"]),
+                "—" if used is None else f"{used} of {total}",
+                str(outside),
             ]
         )
-    return "<h2>Results at a glance</h2>" + _table(
-        [
-            "part",
-            "sample",
-            "bias",
-            "model",
-            "main landmark",
-            "measured",
-            "nominal",
-            "deviation",
-            "verdict",
-            "RMS log error",
-            "outside window",
-        ],
-        rows,
-        numeric={5, 6, 7, 9, 10},
+    return (
+        "<h2>Results at a glance</h2>"
+        + _table(
+            [
+                "part",
+                "sample",
+                "bias",
+                "model",
+                "landmark",
+                "measured",
+                "nominal",
+                "deviation",
+                "verdict",
+                "RMS log error",
+                "points fitted",
+                "outside window",
+            ],
+            rows,
+            numeric={5, 6, 7, 9, 10, 11},
+            css_class="glance",
+        )
+        + '<p class="note">Deviation: the landmark against the nominal value at 0 V; at a '
+        "DC-bias point, its change from the same sample at 0 V (a nominal value is stated "
+        "without bias, so it is not judged there). Points fitted: those inside the "
+        "window and the fit's frequency range.</p>"
     )
 
 
@@ -398,12 +447,21 @@ def _element_unit(name: str) -> str:
     return {"R": "Ω", "L": "H", "C": "F"}.get(head, "")
 
 
-def _quality_text(fit: Any) -> str:
-    q = fit.quality
-    return (
-        f"RMS complex-log error {q.rms_log_error:.3g}, largest {q.max_abs_log_error:.3g}, "
-        f"{q.points_used} points used, {q.points_outside_window} outside the window"
+def _quality_text(sample: SampleResult) -> str:
+    q = sample.fit.quality
+    total, outside, used = _points_text(sample)
+    text = (
+        f"RMS complex-log error {q.rms_log_error:.3g}, largest {q.max_abs_log_error:.3g}; "
+        f"{used} of {total} points used"
     )
+    other = total - used - outside
+    if outside or other > 0:
+        reasons = [f"{outside} outside the measurable window"] if outside else []
+        if other > 0:
+            # Below a ground-loop corner, or outside a frequency range the fit was given.
+            reasons.append(f"{other} outside the fit's frequency range")
+        text += " (" + ", ".join(reasons) + ")"
+    return text
 
 
 def _warnings_list(items: Iterable[str]) -> str:
@@ -411,6 +469,11 @@ def _warnings_list(items: Iterable[str]) -> str:
     if not items:
         return ""
     return '<ul class="warnings">' + "".join(f"<li>{esc(w)}</li>" for w in items) + "</ul>"
+
+
+def _notes_section(items: Iterable[str]) -> str:
+    listed = _warnings_list(items)
+    return f"<h2>Notes from the run</h2>{listed}" if listed else ""
 
 
 def _sample_section(
@@ -431,7 +494,23 @@ def _sample_section(
         "model": sample.fit.model if sample.fit is not None else "no fit",
     }
     parts.append(_kv_table(facts))
-    if spec.nominal:
+    if sample.bias_v and value is not None:
+        reference = exports.zero_bias_values(summary).get((sample.part, sample.sample))
+        change = None if not reference else value / reference - 1.0
+        if change is not None:
+            parts.append(
+                f"<p>{esc(name)} = {_si(value, unit)} at {esc(f'{sample.bias_v:g}')} V: "
+                f"{_percent(change)} from the same sample at 0 V ({_si(reference, unit)}). "
+                '<span class="note">Not judged under bias: the nominal value is stated '
+                "at 0 V.</span></p>"
+            )
+        else:
+            parts.append(
+                f"<p>{esc(name)} = {_si(value, unit)} at {esc(f'{sample.bias_v:g}')} V "
+                '<span class="note">(no 0 V measurement to compare with; not judged under '
+                "bias)</span></p>"
+            )
+    elif spec.nominal:
         tol = f" ± {100 * spec.tolerance:g} %" if spec.tolerance is not None else ""
         parts.append(
             f"<p>{esc(name)} = {_si(value, unit)} against {_si(spec.nominal, unit)}{esc(tol)}: "
@@ -462,7 +541,7 @@ def _sample_section(
         parts.append(_warnings_list(sample.warnings))
         parts.append("</section>")
         return "".join(parts)
-    parts.append(f"<p>Fit quality: {esc(_quality_text(sample.fit))}.</p>")
+    parts.append(f"<p>Fit quality: {esc(_quality_text(sample))}.</p>")
     parts.append(_landmark_table(sample))
     parts.append(_warnings_list([*sample.warnings, *sample.fit.warnings]))
     spice = subckt_text(
@@ -596,6 +675,8 @@ def report_html(summary: RunSummary, run_dir: Path) -> tuple[str, list[Path]]:
     """HTML text of the report and the PNG files saved under ``run_dir/plots``."""
     figs = _Figures(Path(run_dir))
     date = exports.run_date(summary)
+    moment = _when(date)
+    date = _time_text(moment) if moment is not None else date
     title = f"zbench report: {summary.procedure_name}"
     toc = " · ".join(
         f'<a href="#{esc(exports.safe_filename(spec.name))}">{esc(spec.name)}</a>'
@@ -605,7 +686,7 @@ def report_html(summary: RunSummary, run_dir: Path) -> tuple[str, list[Path]]:
         f"<h1>{esc(title)}</h1>",
         f'<p class="meta">Run {esc(summary.run_id)} · {esc(date)} · '
         f"zbench {esc(summary.software_version or '?')} · parts: {toc}</p>",
-        _warnings_list(summary.warnings),
+        _notes_section(summary.warnings),
         _glance_section(summary),
         "<h2>Set-up</h2>",
         _kv_table(summary.setup),
@@ -621,7 +702,8 @@ def report_html(summary: RunSummary, run_dir: Path) -> tuple[str, list[Path]]:
     body.append(
         '<p class="note">Values in SI units. Uncertainties are one standard deviation from '
         "the fit's Jacobian and the per-point measurement uncertainty. Verdicts compare the "
-        "main landmark with the procedure's nominal value and tolerance.</p>"
+        "main landmark with the procedure's nominal value and tolerance at 0 V; at DC-bias "
+        "points the change from 0 V is given instead.</p>"
     )
     text = (
         '<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8">'

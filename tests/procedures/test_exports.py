@@ -266,3 +266,17 @@ def test_names_are_safe_for_files_and_spice():
     assert exports.safe_filename("A/B C:1") == "A_B_C_1"
     assert exports.spice_name("MC-1_s1_4.5V") == "MC_1_s1_4p5V"
     assert exports.spice_name("10u") == "P_10u"
+
+
+def test_summary_gives_the_change_from_zero_volts_at_bias_points(summary, run_dir):
+    folder, _ = run_dir
+    rows = read_csv(folder / "summary.csv")
+    zero = {(r["part"], r["sample"]): r for r in rows if float(r["bias_v"]) == 0.0}
+    biased = [r for r in rows if float(r["bias_v"]) != 0.0 and r["measured"]]
+    assert biased, "the invented lot has bias points"
+    for row in biased:
+        reference = float(zero[(row["part"], row["sample"])]["measured"])
+        expected = float(row["measured"]) / reference - 1.0
+        assert float(row["change_from_0v"]) == pytest.approx(expected, rel=1e-6, abs=1e-9)
+        assert row["result"] == ""
+    assert all(r["change_from_0v"] == "" for r in zero.values())

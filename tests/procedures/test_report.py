@@ -136,7 +136,12 @@ def test_setup_calibration_window_and_ground_loop(written):
 
 def test_landmarks_verdicts_spice_lot_and_bias(summary, written):
     _, _, text = written
-    assert "FAIL" in text and "PASS" in text and "not judged under bias" in text
+    assert "FAIL" in text and "PASS" in text
+    # Under bias: no verdict, the change from the same sample at 0 V instead (as in
+    # summary.csv's change_from_0v).
+    assert "Not judged under bias" in text and "from the same sample at 0 V" in text
+    glance = text.split("<h2>Results at a glance</h2>", 1)[1].split("</table>", 1)[0]
+    assert "vs 0 V" in glance and "not judged" in glance
     assert text.count("<h4>SPICE subcircuit</h4>") == sum(
         s.fit is not None for s in summary.samples
     )
@@ -157,3 +162,33 @@ def test_value_formatting_by_key_suffix():
     assert report._value_text("calibration_age_s", 90000) == "25.0 h"
     assert report._value_text("power_dbm", -10) == "-10 dBm"
     assert report._value_text("transformer", True) == "yes"
+
+
+def test_bias_points_give_the_change_from_zero_volts(summary, written):
+    _, _, text = written
+    biased = [s for s in summary.samples if s.bias_v and s.fit is not None]
+    assert biased
+    for sample in biased:
+        zero = next(
+            s
+            for s in summary.samples
+            if (s.part, s.sample) == (sample.part, sample.sample) and not s.bias_v
+        )
+        change = sample.fit.landmarks["c_low"] / zero.fit.landmarks["c_low"] - 1.0
+        heading = f"<h4>{sample.part} / {sample.sample} at {sample.bias_v:g} V</h4>"
+        section = text.split(heading, 1)[1].split("</section>", 1)[0]
+        assert f"{100 * change:+.2f} % from the same sample at 0 V" in section
+        assert "PASS" not in section and "FAIL" not in section
+
+
+def test_fit_quality_counts_points_used_and_why_others_were_not(summary, written):
+    _, _, text = written
+    for sample in summary.samples:
+        if sample.fit is None:
+            continue
+        total = sample.data.f.size
+        outside = int((~sample.data.inside_window).sum())
+        line = report._quality_text(sample)
+        assert f"{sample.fit.quality.points_used} of {total} points used" in line
+        assert (f"{outside} outside the measurable window" in line) == (outside > 0)
+        assert f"Fit quality: {report.esc(line)}." in text
