@@ -243,3 +243,69 @@ def test_impedance_inside_the_window_follows_the_true_part(outcome, procedure):
         assert np.count_nonzero(inside) > len(inside) // 2
         error = np.abs(np.log(s.data.z[inside] / z_mounted[inside]))
         assert float(np.median(error)) < s.data.window.tolerance, (s.part, s.sample)
+
+
+def test_solt_with_resistors_is_put_back_on_the_z0_plus_rs_scale():
+    # A SOLT taken through the port resistors moves the reference plane past them, so
+    # its S21 is 2Z/(2Z + Z0); a through normalisation taken with them fitted gives
+    # 2Z/(2Z + Z0 + Rs) (REFERENCES §1, derived). Both from scikit-rf's network algebra
+    # (a shunt Z between two series resistors, ABCD cascaded and converted with a2s).
+    from skrf.network import a2s
+
+    from bench.core.conversions import shunt_through_rereference
+
+    f = np.geomspace(1e3, 1e9, 31)
+    z = 0.05 + 2j * np.pi * f * 470e-9 + 1.0 / (1.0 / 3e3 + 2j * np.pi * f * 2e-12)
+    one, zero = np.ones_like(f, dtype=complex), np.zeros_like(f, dtype=complex)
+    shunt = np.stack([np.stack([one, zero], -1), np.stack([1.0 / z, one], -1)], -2)
+    resistor = np.stack([np.stack([one, 499.0 * one], -1), np.stack([zero, one], -1)], -2)
+    at_plane = a2s(shunt, 50.0)[:, 1, 0]
+    with_resistors = a2s(resistor @ shunt @ resistor, 50.0)[:, 1, 0]
+    through = a2s(resistor @ resistor, 50.0)[:, 1, 0]
+    expected = with_resistors / through
+    assert np.allclose(shunt_through_rereference(at_plane, 50.0, 549.0), expected, rtol=1e-12)
+
+
+HYBRID_WITH_RESISTORS = """\
+name: hybrid-resistors
+mode: unattended
+instruments:
+  analyzer: {max_power: 0 dBm, timeout: 2 s}
+sweep: {start: 10 kHz, stop: 200 MHz, points: 121, if_bandwidth: 10 Hz}
+fixture: {positions: 8, series_resistor: 499 ohm, isolation_transformer: true}
+calibration: {method: hybrid, crossover: 1 MHz}
+analysis: {noise_floor: -120 dB, mount: fitted}
+parts:
+  - {name: FB120, kind: bead, nominal: 120 ohm, nominal_at: 100 MHz, samples: 1}
+steps: [calibrate, mount_short, measure]
+"""
+
+
+def test_hybrid_calibration_with_resistors_keeps_the_impedance(tmp_path):
+    # Above the crossover SOLT has calibrated the resistors out; read with Z0 + Rs those
+    # points would come out (Z0 + Rs)/Z0 = 11 times too high. The bead's data on both
+    # sides of the crossover must follow its true circuit (as mounted).
+    from bench.procedure.processing import build_summary
+
+    path = tmp_path / "hybrid.yaml"
+    path.write_text(HYBRID_WITH_RESISTORS, encoding="utf-8")
+    plan = load_plan(path)
+    store = new_store(plan, path, tmp_path / "runs")
+    with start_bench("demo", time_scale=TIME_SCALE, seed=SEED) as sim:
+        plan = with_resources(plan, sim.resources)
+        with open_instruments(plan, scripted=True) as instruments:
+            display = PlainDisplay(lambda _: None)
+            hands = ScriptedOperator(instruments.bench)
+            Runner(plan, store, instruments, hands, display, assume_yes=True).run()
+        scenario = sim.state.scenario
+    summary = build_summary(store, plan, fit=False)
+    (sample,) = summary.samples
+    _, z_mounted, _ = _truth(Outcome(summary, scenario), sample)
+    f = sample.data.f
+    inside = np.asarray(sample.data.inside_window, dtype=bool)
+    for band in (f < 1e6, f >= 1e6):
+        use = band & inside
+        assert np.count_nonzero(use) > 10
+        error = np.abs(np.log(sample.data.z[use] / z_mounted[use]))
+        assert float(np.median(error)) < 0.05
+    assert any("SOLT with port series resistors" in w for w in summary.warnings)
