@@ -47,8 +47,9 @@ th { background: var(--band); font-weight: 600; }
 td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
 table.kv th { width: 14rem; }
 table.glance { font-size: .8rem; }
-table.glance td { white-space: nowrap; padding: .15rem .35rem; }
-table.glance th { vertical-align: bottom; padding: .15rem .35rem; }
+table.window td:first-child { white-space: nowrap; }
+table.glance td { white-space: nowrap; padding: .15rem .3rem; }
+table.glance th { vertical-align: bottom; padding: .15rem .3rem; }
 .verdict-pass { font-weight: 700; }
 .verdict-fail { font-weight: 700; text-decoration: underline; }
 .verdict-pass::before { content: "\\2713\\00a0"; }
@@ -69,6 +70,7 @@ section.sample { page-break-inside: auto; }
   h3, h4 { page-break-after: avoid; }
   pre { white-space: pre-wrap; }
   a { color: inherit; text-decoration: none; }
+  table.glance { font-size: 7.5pt; }
 }
 """
 
@@ -315,6 +317,7 @@ def _window_section(summary: RunSummary) -> str:
             ],
             rows,
             numeric={1, 2, 3, 4, 6},
+            css_class="window",
         )
     )
 
@@ -351,8 +354,7 @@ def _glance_section(summary: RunSummary) -> str:
                 esc(row["part"]),
                 esc(row["sample"]),
                 esc(f"{row['bias_v']:g} V"),
-                esc(row["model"] or "no fit"),
-                esc(row["main_landmark"]),
+                esc(row["main_landmark"]) if row["model"] else "no fit",
                 _si(row["measured"], unit),
                 _si(row["nominal"], unit),
                 esc(against),
@@ -369,7 +371,6 @@ def _glance_section(summary: RunSummary) -> str:
                 "part",
                 "sample",
                 "bias",
-                "model",
                 "landmark",
                 "measured",
                 "nominal",
@@ -380,7 +381,7 @@ def _glance_section(summary: RunSummary) -> str:
                 "outside window",
             ],
             rows,
-            numeric={5, 6, 7, 9, 10, 11},
+            numeric={4, 5, 6, 8, 9, 10},
             css_class="glance",
         )
         + '<p class="note">Deviation: the landmark against the nominal value at 0 V; at a '
@@ -471,6 +472,16 @@ def _warnings_list(items: Iterable[str]) -> str:
     return '<ul class="warnings">' + "".join(f"<li>{esc(w)}</li>" for w in items) + "</ul>"
 
 
+def _fit_range_is_narrower(sample: SampleResult) -> bool:
+    """Whether the fit left out an end of the sweep (``fit.f_range``, Hz): it is hatched."""
+    f_range = getattr(sample.fit, "f_range", None)
+    f = np.asarray(sample.data.f, dtype=float)
+    if f_range is None or f.size < 2:
+        return False
+    lo, hi = (float(v) for v in f_range)
+    return lo > f[0] * (1 + 1e-9) or hi < f[-1] * (1 - 1e-9)
+
+
 def _notes_section(items: Iterable[str]) -> str:
     listed = _warnings_list(items)
     return f"<h2>Notes from the run</h2>{listed}" if listed else ""
@@ -525,7 +536,7 @@ def _sample_section(
             "; lower panels: model minus measurement (complex log, magnitude in % and "
             "phase in degrees) with the ±1σ measurement band"
         )
-    if getattr(sample.fit, "f_range", None) is not None:
+    if _fit_range_is_narrower(sample):
         caption += "; hatched: ends of the sweep the fit left out"
     parts.append(
         figs.embed(
