@@ -83,10 +83,11 @@ def _new_figure(
     width: float = 7.0,
     height_ratios: Sequence[float] | None = None,
     gap: float = 0.35,
+    top: float = 0.32,
 ) -> tuple[Figure, list[Axes]]:
     # Fixed margins (in inches, so they hold for any figure size) rather than a layout
     # engine: a report draws dozens of figures and constrained layout doubles their cost.
-    # ``gap`` is the space between panels in inches (room for a panel title).
+    # ``gap`` is the space between panels and ``top`` the margin above them, in inches.
     with matplotlib.rc_context(STYLE):
         fig = Figure(figsize=(width, height))
         axes = fig.subplots(
@@ -96,7 +97,7 @@ def _new_figure(
             squeeze=False,
             gridspec_kw={"height_ratios": height_ratios} if height_ratios else None,
         )[:, 0]
-        bottom, top = 0.5 / height, 1 - 0.32 / height
+        bottom, top = 0.5 / height, 1 - top / height
         panel = (top - bottom) * height / rows
         fig.subplots_adjust(
             left=0.85 / width,
@@ -138,6 +139,15 @@ def _log_minor_positions(lo: float, hi: float) -> np.ndarray:
     decades = np.arange(math.floor(math.log10(lo)), math.ceil(math.log10(hi)) + 1)
     values = (np.arange(2, 10)[None, :] * 10.0 ** decades[:, None]).ravel()
     return values[(values > lo) & (values < hi)]
+
+
+def _finish(fig: Figure) -> None:
+    """Last touches once everything is plotted (the minor grid, see :func:`_minor_grid`).
+
+    Titles are given ``y=1.0``: a title left to place itself makes matplotlib measure
+    the axes' tick labels at every draw, and these sit above plain axes.
+    """
+    _minor_grid(fig)
 
 
 def _minor_grid(fig: Figure) -> None:
@@ -253,7 +263,9 @@ def _unused_spans(ax: Axes, f: np.ndarray, fit: Any, *, label: bool) -> None:
         )
 
 
-def _draw_impedance(ax_mag: Axes, ax_esr: Axes, data: Any, fit: Any) -> None:
+def _draw_impedance(
+    ax_mag: Axes, ax_esr: Axes, data: Any, fit: Any, *, legends: bool = True
+) -> None:
     """|Z| (with the window) and ESR of ``data``, the model of ``fit`` dashed."""
     f = np.asarray(data.f, dtype=float)
     z = np.asarray(data.z, dtype=complex)
@@ -299,11 +311,14 @@ def _draw_impedance(ax_mag: Axes, ax_esr: Axes, data: Any, fit: Any) -> None:
     _label_short_log_range(ax_esr, "Ω")
     ax_mag.set_ylabel("|Z|")
     ax_esr.set_ylabel("ESR = Re Z")
-    ax_mag.legend(loc="best")
-    ax_esr.legend(loc="best")
+    if legends:
+        ax_mag.legend(loc="best")
+        ax_esr.legend(loc="best")
 
 
-def _draw_residuals(ax_mag: Axes, ax_ph: Axes, data: Any, fit: Any) -> None:
+def _draw_residuals(
+    ax_mag: Axes, ax_ph: Axes, data: Any, fit: Any, *, legends: bool = True
+) -> None:
     """Complex-log error of ``fit`` against ``data``: magnitude (%) and phase (°)."""
     f = np.asarray(data.f, dtype=float)
     z = np.asarray(data.z, dtype=complex)
@@ -350,12 +365,16 @@ def _draw_residuals(ax_mag: Axes, ax_ph: Axes, data: Any, fit: Any) -> None:
     _limit_to(ax_ph, phase_deg[inside], None if typical is None else math.degrees(typical))
     ax_mag.set_ylabel("magnitude error (%)")
     ax_ph.set_ylabel("phase error (°)")
-    ax_mag.legend(loc="best")
+    if legends:
+        ax_mag.legend(loc="best")
 
 
 def _rms_text(fit: Any) -> str:
     rms = getattr(getattr(fit, "quality", None), "rms_log_error", None)
     return "" if rms is None else f"RMS complex-log error {rms:.3g}"
+
+
+_REPEATED_LABELS = frozenset({"measured Re Z", "model − measured", "outside window"})
 
 
 def sample_figure(data: Any, fit: Any = None, *, title: str = "") -> Figure:
@@ -368,20 +387,41 @@ def sample_figure(data: Any, fit: Any = None, *, title: str = "") -> Figure:
     hatched. Without a fit only the two impedance panels are drawn.
     """
     if fit is None:
-        fig, (ax_mag, ax_esr) = _new_figure(2, height=5.0)
+        fig, (ax_mag, ax_esr) = _new_figure(2, height=5.5, top=0.95)
         axes = [ax_mag, ax_esr]
     else:
-        fig, axes = _new_figure(4, height=7.6, height_ratios=(3.0, 2.2, 1.3, 1.3), gap=0.3)
+        fig, axes = _new_figure(
+            4, height=8.2, height_ratios=(3.0, 2.2, 1.3, 1.3), gap=0.3, top=0.95
+        )
         ax_mag, ax_esr = axes[:2]
     with matplotlib.rc_context(STYLE):
-        _draw_impedance(ax_mag, ax_esr, data, fit)
+        _draw_impedance(ax_mag, ax_esr, data, fit, legends=False)
         if fit is not None:
-            _draw_residuals(axes[2], axes[3], data, fit)
-            axes[2].set_title(f"model − measured ({_rms_text(fit)})", fontsize=8.5, loc="left")
+            _draw_residuals(axes[2], axes[3], data, fit, legends=False)
+            axes[2].set_title(
+                f"model − measured ({_rms_text(fit)})", fontsize=8.5, loc="left", y=1.0
+            )
         axes[-1].set_xlabel("frequency")
+        # One legend for every panel, in a row under the title: nothing is hidden behind
+        # it, and there is no search for the emptiest corner of each panel.
+        handles: dict[str, Any] = {}
+        for ax in axes:
+            for handle, label in zip(*ax.get_legend_handles_labels(), strict=True):
+                # The ESR and residual panels repeat the |Z| panel's entries under other
+                # names; their own titles and axis labels say what they show.
+                if label not in _REPEATED_LABELS:
+                    handles.setdefault(label, handle)
+        fig.legend(
+            list(handles.values()),
+            list(handles),
+            loc="upper center",
+            bbox_to_anchor=(0.5, 1 - 0.32 / fig.get_figheight()),
+            ncol=min(3, max(1, len(handles))),
+            fontsize=7.5,
+        )
         if title:
-            ax_mag.set_title(title)
-        _minor_grid(fig)
+            fig.suptitle(title, y=1 - 0.06 / fig.get_figheight(), va="top", fontsize=10)
+        _finish(fig)
     return fig
 
 
@@ -398,8 +438,8 @@ def impedance_figure(data: Any, fit: Any = None, *, title: str = "") -> Figure:
         _draw_impedance(ax_mag, ax_esr, data, fit)
         ax_esr.set_xlabel("frequency")
         if title:
-            ax_mag.set_title(title)
-        _minor_grid(fig)
+            ax_mag.set_title(title, y=1.0)
+        _finish(fig)
     return fig
 
 
@@ -417,8 +457,8 @@ def residuals_figure(data: Any, fit: Any, *, title: str = "") -> Figure:
         ax_ph.set_xlabel("frequency")
         heading = title or "fit residuals"
         rms = _rms_text(fit)
-        ax_mag.set_title(f"{heading}   ({rms})" if rms else heading)
-        _minor_grid(fig)
+        ax_mag.set_title(f"{heading}   ({rms})" if rms else heading, y=1.0)
+        _finish(fig)
     return fig
 
 
@@ -469,7 +509,7 @@ def bias_figure(
         ax_c.set_ylabel("capacitance (c_low)")
         ax_pct.set_ylabel(f"change from {reference} (%)")
         ax_pct.set_xlabel("DC bias (V)")
-        ax_c.set_title(f"{part}: capacitance versus DC bias")
+        ax_c.set_title(f"{part}: capacitance versus DC bias", y=1.0)
         ax_c.legend(loc="best")
     return fig
 
@@ -501,9 +541,9 @@ def lot_figure(part: str, samples: Iterable[Any], *, with_models: bool = False) 
         ax_mag.set_ylabel("|Z|")
         ax_esr.set_ylabel("ESR = Re Z")
         ax_esr.set_xlabel("frequency")
-        ax_mag.set_title(f"{part}: all samples")
+        ax_mag.set_title(f"{part}: all samples", y=1.0)
         ax_mag.legend(loc="best", ncol=2)
-        _minor_grid(fig)
+        _finish(fig)
     return fig
 
 
