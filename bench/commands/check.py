@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import textwrap
 from pathlib import Path
 
 import click
@@ -9,6 +10,9 @@ import click
 from bench.errors import InputError
 from bench.procedure.plan import Plan, load_plan
 from bench.units import format_si
+
+# Keeps a number with its unit when a line is wrapped (textwrap breaks at spaces only).
+NBSP = "\u00a0"
 
 
 def _duration(seconds: float) -> str:
@@ -25,13 +29,21 @@ def _duration(seconds: float) -> str:
 def describe_plan(plan: Plan) -> str:
     """The plan in plain words: set-up, parts, batches, steps and estimated duration."""
     s, fx, cal = plan.sweep, plan.fixture, plan.calibration
+    averaging = f"{s.averages} sweeps averaged" if s.averages > 1 else "no averaging"
+    positions = f"{fx.positions} position{'s' if fx.positions != 1 else ''}"
+    used = list(fx.use_positions)
+    if used != list(range(1, fx.positions + 1)):
+        positions += f", using {', '.join(map(str, used))}"
+    resistors = (
+        f"series resistors {format_si(fx.series_r, 'Ω')} at both ports"
+        if fx.series_r
+        else "no series resistors"
+    )
     lines = [
         f"procedure {plan.name} ({plan.source}), {plan.mode}",
         f"  sweep      {format_si(s.start, 'Hz')} to {format_si(s.stop, 'Hz')}, {s.points} points "
-        f"{s.spacing}, IF {format_si(s.if_bandwidth, 'Hz')}, {s.power:g} dBm, "
-        f"{s.averages} sweep(s) averaged",
-        f"  fixture    {fx.positions} position(s), using {', '.join(map(str, fx.use_positions))}; "
-        f"series resistors {format_si(fx.series_r, 'ohm')}; isolation transformer "
+        f"{s.spacing}, IF {format_si(s.if_bandwidth, 'Hz')}, {s.power:g} dBm, {averaging}",
+        f"  fixture    {positions}; {resistors}; isolation transformer "
         f"{'fitted' if fx.isolation_transformer else 'not fitted'}",
     ]
     text = cal.method + (
@@ -49,18 +61,40 @@ def describe_plan(plan: Plan) -> str:
             nominal = format_si(spec.nominal, unit)
             if spec.tolerance:
                 nominal += f" ±{spec.tolerance * 100:g} %"
-        bias = ", ".join(f"{v:g}" for v in part.bias) + " V"
-        extra = (
-            f", limit {plan.bias_limit(part):g} V" if plan.biased and part.bias != (0.0,) else ""
-        )
         lines.append(
             f"    {spec.name:<14} {spec.kind:<8} {nominal:<14} model {spec.model:<10} "
-            f"samples {', '.join(part.samples)}; bias {bias}{extra}"
+            f"samples {', '.join(part.samples)}"
         )
-    lines.append("  batches")
+        if part.bias != (0.0,):
+            bias = ", ".join(f"{v:g}" for v in part.bias) + " V"
+            text = (
+                f"bias {bias}; limit {plan.bias_limit(part):g}{NBSP}V (the lowest of the "
+                "part, bias-tee, DC-block and source ratings)"
+            )
+            lines.extend(
+                textwrap.wrap(text, width=88, initial_indent=" " * 19, subsequent_indent=" " * 19)
+            )
+    if plan.biased:
+        b = plan.bias
+        text = (
+            f"ramped in {b.ramp_step:g}{NBSP}V steps, current limit "
+            f"{format_si(b.current_limit, 'A').replace(' ', NBSP)}, settle {b.settle_s:g}{NBSP}s, "
+            f"output off and a {b.discharge_s:g}{NBSP}s discharge wait at the end, on a stop "
+            "and on any error. A "
+            "caution is shown before the first biased step; local safety rules and the "
+            "instruments' manuals take precedence."
+        )
+        lines.extend(
+            textwrap.wrap(
+                text, width=88, initial_indent="  DC bias    ", subsequent_indent=" " * 13
+            )
+        )
+    lines.append("  batches    (position: part/sample)")
     for i, batch in enumerate(plan.batches, start=1):
-        where = ", ".join(f"p{p.position}={p.part}/{p.sample}" for p in batch)
-        lines.append(f"    {i}: {where}")
+        where = ", ".join(f"{p.position}: {p.part}/{p.sample}" for p in batch)
+        lines.extend(
+            textwrap.wrap(where, width=88, initial_indent=f"    {i}  ", subsequent_indent=" " * 7)
+        )
     counts: dict[str, int] = {}
     for step in plan.steps:
         counts[step.kind] = counts.get(step.kind, 0) + 1

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import re
 from pathlib import Path
 
 import pytest
@@ -133,3 +134,19 @@ def test_bad_procedure_stops_before_anything_is_touched(tmp_path, kit):
     # No simulator is started and no run folder is made: validation comes first.
     assert main(["run", str(path), "--sim", "--out", str(out), "--quiet"]) == 2
     assert not out.exists()
+
+
+def test_check_describes_a_bias_procedure_in_plain_words():
+    repo = Path(__file__).resolve().parents[2]
+    result = CliRunner().invoke(cli, ["check", str(repo / "procedures" / "mlcc_dc_bias.yaml")])
+    assert result.exit_code == 0, result.output
+    text = re.sub(r"\n +", " ", result.output)  # wrapped lines joined
+    assert "no series resistors" in text and "ohm" not in text
+    assert "no averaging" in text and "(s)" not in text
+    # DESIGN §7: ramp, output off with a discharge wait, a caution that defers to local
+    # safety rules and the instruments' manuals.
+    assert "ramped in 0.5\u00a0V steps" in text
+    assert "output off and a 2\u00a0s discharge wait" in text
+    assert "local safety rules and the instruments' manuals take precedence" in text
+    assert "limit 10\u00a0V (the lowest of the part, bias-tee, DC-block and source ratings)" in text
+    assert all(len(line) <= 100 for line in result.output.splitlines())
