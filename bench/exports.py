@@ -462,13 +462,26 @@ def provenance(
     }
 
 
-def _write_touchstone(run_dir: Path, sample: SampleResult) -> list[Path]:
+def run_series_r(summary: RunSummary) -> float | None:
+    """The port series resistance (Ω) of the run's fixture, from its set-up record."""
+    fixture = summary.setup.get("fixture")
+    value = fixture.get("series_r") if isinstance(fixture, dict) else None
+    if value is None:
+        value = summary.setup.get("series_r_ohm", summary.setup.get("series_r"))
+    return float(value) if isinstance(value, (int, float)) else None
+
+
+def _write_touchstone(run_dir: Path, sample: SampleResult, series_r: float | None) -> list[Path]:
     from bench.touchstone import write_touchstone_s, write_touchstone_z
 
     stem = safe_filename(sample.label)
+    # The set-up goes with the data: ``zbench fit`` reads this line, so a re-fit of an
+    # S file from a run with series resistors computes Z with them.
+    setup = [] if series_r is None else [f"port series resistors: {series_r:g} ohm each"]
     comments = [
         f"zbench: {sample.part} sample {sample.sample}, bias {sample.bias_v:g} V",
         "fixture-removed impedance (ohm)",
+        *setup,
     ]
     f = np.asarray(sample.data.f, dtype=float)
     z = np.asarray(sample.data.z, dtype=complex)
@@ -481,7 +494,7 @@ def _write_touchstone(run_dir: Path, sample: SampleResult) -> list[Path]:
         [Path(write_touchstone_z(z_path, f[finite], z[finite], comments))] if finite.any() else []
     )
     if sample.corrected_s is not None:
-        comments = [comments[0], "calibrated S-parameters"]
+        comments = [comments[0], "calibrated S-parameters, mount not removed", *setup]
         s = np.asarray(sample.corrected_s, dtype=complex)
         paths.append(
             Path(
@@ -508,8 +521,9 @@ def write_exports(run_dir: Path, summary: RunSummary) -> dict[str, list[Path]]:
     }
     date = run_date(summary)
     texts: dict[str, list[str]] = {}
+    series_r = run_series_r(summary)
     for sample in summary.samples:
-        written["touchstone"].extend(_write_touchstone(run_dir, sample))
+        written["touchstone"].extend(_write_touchstone(run_dir, sample, series_r))
         if sample.fit is None:
             continue
         text = subckt_text(

@@ -24,6 +24,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -51,6 +52,27 @@ class _Outcome:
     spice_path: Path | None = None
     error: str | None = None
     exit_code: int = 0
+    note: str | None = None
+
+
+#: How a Touchstone comment states the port series resistors: zbench's corrected files
+#: ("port series resistors: 499 ohm each") and the examples' wording.
+_SERIES_R_COMMENTS = (
+    re.compile(r"port series resistors?\s*[:=]\s*([0-9.]+(?:[eE][+-]?\d+)?)\s*(?:ohms?|Ω)", re.I),
+    re.compile(r"([0-9.]+(?:[eE][+-]?\d+)?)\s*(?:ohms?|Ω)\s+in series at each port", re.I),
+)
+
+
+def series_r_from_comments(comments: str) -> float | None:
+    """The port series resistance (Ω) a file's comments state, or None."""
+    for pattern in _SERIES_R_COMMENTS:
+        match = pattern.search(comments or "")
+        if match:
+            try:
+                return float(match.group(1))
+            except ValueError:
+                return None
+    return None
 
 
 def _jsonable(value: Any) -> Any:
@@ -74,11 +96,16 @@ def _element_unit(name: str) -> str:
     return {"R": "Ω", "L": "H", "C": "F"}.get(name[:1].upper(), "")
 
 
+def _model_text(result: Any) -> str:
+    """``two-branch (capacitor)``, or just ``inductor`` when the family names the kind."""
+    return result.model if result.model == result.kind else f"{result.model} ({result.kind})"
+
+
 def _summary_text(outcome: _Outcome) -> str:
     result = outcome.result
     q = result.quality
     lines = [
-        f"{outcome.path}: {result.model} ({result.kind}), RMS complex-log error "
+        f"{outcome.path}: {_model_text(result)}, RMS complex-log error "
         f"{q.rms_log_error:.3g}, largest {q.max_abs_log_error:.3g}; {q.points_used} points used, "
         f"{q.points_outside_window} outside the window"
     ]
@@ -94,7 +121,10 @@ def _summary_text(outcome: _Outcome) -> str:
         text = f"{key} {format_si(float(value), _element_unit(key))}"
         error = sigma.get(key)
         if error is not None and value and math.isfinite(error):
-            text += f" ±{100 * error / value:.2g}%"
+            relative = error / value
+            # Beyond ±100 % the element is not determined by the data (a branch the
+            # fit does not need, pinned at a bound); the number itself says nothing more.
+            text += " (not determined)" if relative > 1 else f" ±{100 * relative:.2g} %"
         elements.append(text)
     lines.append(f"  elements: {', '.join(elements)}")
     for warning in result.warnings:
@@ -152,7 +182,20 @@ def _fit_one(
     want_spice: bool,
 ) -> _Outcome:
     outcome = _Outcome(path=name)
-    result = api.fit(name, model=model, series_r=series_r, mount=mount, fmin=fmin, fmax=fmax)
+    source: Any = name
+    if series_r is None:
+        # Without --series-r, the set-up a file states in its comments (zbench writes it
+        # into every corrected file); fitting a 499 Ω measurement as a plain 50 Ω one
+        # would scale every impedance by about 11.
+        measurement = api.load(name)
+        stated = series_r_from_comments(measurement.comments)
+        if stated is not None:
+            series_r, source = stated, measurement
+            outcome.note = (
+                f"{name}: port series resistors {format_si(stated, 'Ω')} each, as its "
+                "comments state (give --series-r to override)"
+            )
+    result = api.fit(source, model=model, series_r=series_r, mount=mount, fmin=fmin, fmax=fmax)
     outcome.result = result
     if want_spice:
         from bench.core.spice import subckt_text
@@ -273,6 +316,8 @@ def _emit(outcome: _Outcome, *, as_json: bool) -> None:
     if outcome.error is not None:
         click.echo(f"zbench: {outcome.error}", err=True)
         return
+    if outcome.note is not None:
+        click.echo(f"zbench: {outcome.note}", err=True)
     if as_json:
         record = {"file": outcome.path, **outcome.result.to_json()}
         record["spice"] = str(outcome.spice_path) if outcome.spice_path is not None else None

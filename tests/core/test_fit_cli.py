@@ -5,6 +5,7 @@ input the command must refuse."""
 from __future__ import annotations
 
 import json
+import re
 import subprocess
 import sys
 from pathlib import Path
@@ -98,6 +99,29 @@ def test_series_r_accepts_si_prefixes(capsys):
     assert json_lines(plain)[0]["landmarks"] == json_lines(prefixed)[0]["landmarks"]
 
 
+def test_series_r_stated_in_the_file_comments_is_used(capsys, tmp_path):
+    # The example states "port series resistors: 499 ohm each" in its comments.
+    _, stated, err = run(capsys, INDUCTOR, "--json")
+    _, given, _ = run(capsys, INDUCTOR, "--series-r", "499", "--json")
+    assert json_lines(stated)[0]["landmarks"] == json_lines(given)[0]["landmarks"]
+    assert "port series resistors 499 Ω each, as its comments state" in err
+    # An explicit --series-r wins over the comments (and says nothing about them).
+    _, plain, err = run(capsys, INDUCTOR, "--series-r", "0", "--json")
+    assert "comments" not in err
+    # Derived: the same S21 read with Ze = 50 Ω instead of 549 Ω scales Z by 50/549.
+    ratio = json_lines(plain)[0]["landmarks"]["l_low"] / json_lines(given)[0]["landmarks"]["l_low"]
+    assert ratio == pytest.approx(50.0 / 549.0, rel=0.05)
+
+
+def test_series_r_comment_forms():
+    from bench.commands.fit import series_r_from_comments
+
+    assert series_r_from_comments("zbench: A s1\nport series resistors: 499 ohm each") == 499.0
+    assert series_r_from_comments("with 1e3 ohm in series at each port") == 1000.0
+    assert series_r_from_comments("Port series resistor = 49.9 Ω") == 49.9
+    assert series_r_from_comments("fixture-removed impedance (ohm)") is None
+
+
 def test_fmin_fmax_limit_the_points_used(capsys):
     code, out, err = run(capsys, BULK, "--fmin", "1 kHz", "--fmax", "10MHz", "--json")
     assert code in (0, 3), err
@@ -112,6 +136,9 @@ def test_readable_summary_without_json(capsys):
     assert code in (0, 3), err
     assert str(BEAD) in out
     assert "landmarks:" in out and "z_at_srf" in out and "Ω" in out
+    # Elements the data cannot pin (one sigma beyond 100 %) say so instead of a number.
+    assert not re.search(r"±\d[\d.]*e\+", out)
+    assert "bead (inductor)" in out  # the kind is named when the family does not say it
     with pytest.raises(json.JSONDecodeError):
         json.loads(out)
 

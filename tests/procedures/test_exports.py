@@ -280,3 +280,16 @@ def test_summary_gives_the_change_from_zero_volts_at_bias_points(summary, run_di
         assert float(row["change_from_0v"]) == pytest.approx(expected, rel=1e-6, abs=1e-9)
         assert row["result"] == ""
     assert all(r["change_from_0v"] == "" for r in zero.values())
+
+
+def test_corrected_files_state_the_port_series_resistors(summary, tmp_path):
+    from bench.commands.fit import series_r_from_comments
+
+    setup = {**summary.setup, "fixture": {"series_r": 499.0}}
+    run = dataclasses.replace(summary, setup=setup)
+    written = exports.write_exports(tmp_path, run)
+    assert written["touchstone"]
+    for path in written["touchstone"]:
+        # zbench fit reads this back, so a re-fit of the S file uses the same set-up.
+        assert "port series resistors: 499 ohm each" in path.read_text()
+        assert series_r_from_comments(load_measurement(path).comments) == 499.0
