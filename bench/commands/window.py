@@ -60,10 +60,13 @@ def describe_window(window: Window) -> str:
             f"{w.trace_noise_db:g} dB, {w.through_drift_db:g} dB RMS (ε = {eps:.3g} %)",
         ),
         ("tolerance", f"{w.tolerance * 100:g} %"),
-        ("lowest impedance", format_si(w.z_min, "Ω")),
-        ("highest impedance", format_si(w.z_max, "Ω")),
+        ("lowest impedance", f"{format_si(w.z_min, 'Ω')} (error reaches the tolerance)"),
+        ("highest impedance", f"{format_si(w.z_max, 'Ω')} (error reaches the tolerance)"),
         ("span", f"{w.span_decades:.2f} decades"),
-        ("best point", f"{format_si(w.z_best, 'Ω')} ({w.best_uncertainty * 100:.3g} %)"),
+        (
+            "smallest error",
+            f"±{w.best_uncertainty * 100:.3g} % at {format_si(w.z_best, 'Ω')}",
+        ),
     ]
     width = max(len(name) for name, _ in rows)
     lines = ["Measurable window (shunt-through, resistive part)"]
