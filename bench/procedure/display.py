@@ -157,8 +157,8 @@ def result_line(
     value is stated without bias, so at a DC-bias point (``bias_v`` > 0 V; when None it
     is read from a trailing ``2.5V`` in ``label``) there is no verdict, as in the
     exports: the line gives the change from ``reference`` (the same sample's main
-    landmark at 0 V) when known. Fields are separated by two spaces, so
-    :func:`fit_width` can fold a long line between them.
+    landmark at 0 V) when known, and nothing in place of a verdict otherwise. Fields are
+    separated by two spaces, so :func:`fit_width` can fold a long line between them.
     """
 
     def si(key: str, unit: str) -> str:
@@ -183,10 +183,10 @@ def result_line(
         main = landmarks.get("l_low") if kind == "inductor" else None
     bias = label_bias(label) if bias_v is None else float(bias_v)
     if isinstance(main, (int, float)) and bias:
+        # No verdict: the nominal value is stated at 0 V. Without the 0 V value there is
+        # nothing to compare with, and the line stays one line.
         if reference:
             fields.append(f"{(main / reference - 1.0) * 100:+.1f} % vs 0 V, no verdict under bias")
-        else:
-            fields.append("no verdict under bias")
     elif nominal and tolerance and isinstance(main, (int, float)):
         deviation = main / nominal - 1.0
         verdict = "inside" if abs(deviation) <= tolerance * (1 + 1e-12) else "OUTSIDE"

@@ -29,12 +29,13 @@ def test_no_verdict_under_bias_but_the_change_from_zero_volts():
     assert "OUTSIDE" not in line and "inside" not in line
     # 3.62 / 4.49 − 1 = −19.4 % (derived: −0.87 / 4.49 = −0.1938)
     assert "-19.4 % vs 0 V, no verdict under bias" in line
-    # Without the 0 V value, and with the bias read from the label (fit lines).
+    # Without the 0 V value, and with the bias read from the label (fit lines): nothing
+    # in place of a verdict, so the line stays one line.
     line = result_line("fit MC4U7-10V_s1_2.5V", "mlcc", MLCC, nominal=4.7e-6, tolerance=0.1)
-    assert "no verdict under bias" in line and "OUTSIDE" not in line
+    assert "%" not in line and "OUTSIDE" not in line and len(line) <= 80
     # An explicit bias_v wins over the label.
     line = result_line("X/s1", "mlcc", MLCC, nominal=4.7e-6, tolerance=0.1, bias_v=5.0)
-    assert "no verdict under bias" in line
+    assert "vs nominal" not in line
 
 
 def test_label_bias_reads_only_a_trailing_bias():
@@ -53,14 +54,14 @@ def test_points_outside_the_window_singular_and_plural():
 
 def test_long_lines_fold_between_fields_within_80_columns():
     line = (
-        result_line("fit MC4U7-10V_s1_2.5V", "mlcc", MLCC, nominal=4.7e-6, tolerance=0.1)
+        result_line("fit MC4U7-10V_s1", "mlcc", MLCC, nominal=4.7e-6, tolerance=0.1)
         + "  [two-branch, rms 0.035]"
     )
     folded = fit_width(line, 80).split("\n")
     assert len(folded) == 2 and all(len(row) <= 80 for row in folded)
     # Values stay whole ("C 3.62 µF"), the verdict moves to an indented second line.
     assert folded[0].rstrip().endswith("ESR 3.98 mΩ")
-    assert folded[1] == "    no verdict under bias  [two-branch, rms 0.035]"
+    assert folded[1] == "    -23.0 % vs nominal, OUTSIDE ±10 %  [two-branch, rms 0.035]"
     # Right-aligned values ("C  4.5 µF") are never split from their key.
     padded = result_line(
         "A/s1", "mlcc", {"c_low": 4.5e-6, "srf": 28e6}, nominal=4.7e-6, tolerance=0.1
@@ -76,8 +77,16 @@ def test_rich_display_prints_folded_lines_at_the_console_width():
     buffer = io.StringIO()
     display = RichDisplay(Console(file=buffer, width=80, color_system=None))
     display.result(
-        result_line("MC4U7-10V/s1 2.5V", "mlcc", MLCC, nominal=4.7e-6, tolerance=0.1, outside=11)
+        result_line(
+            "MC4U7-10V/s1 2.5V",
+            "mlcc",
+            MLCC,
+            nominal=4.7e-6,
+            tolerance=0.1,
+            outside=11,
+            reference=4.49e-6,
+        )
     )
     rows = buffer.getvalue().rstrip("\n").split("\n")
     assert len(rows) == 2 and all(len(row) <= 80 for row in rows)
-    assert rows[1].startswith("    no verdict under bias")
+    assert rows[1] == "    -19.4 % vs 0 V, no verdict under bias  (11 points outside the window)"
