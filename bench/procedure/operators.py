@@ -70,6 +70,10 @@ class Operator(ABC):
         """Fit the shorting strap in each of ``positions``."""
 
     @abstractmethod
+    def empty_mounts(self, positions: Sequence[int]) -> None:
+        """Leave each of ``positions`` empty: no strap, no part, bare pads."""
+
+    @abstractmethod
     def load_parts(self, placements: Sequence[Placement]) -> None:
         """Place each sample in its position (removing any strap there)."""
 
@@ -138,6 +142,13 @@ class ScriptedOperator(Operator):
         for pos in positions:
             self.bench.place(pos, "short")
         self._did(f"shorting {_positions(positions)}")
+
+    def empty_mounts(self, positions: Sequence[int]) -> None:
+        for pos in positions:
+            self.bench.place(pos, "empty")
+        many = len(positions) > 1
+        where = ", ".join(map(str, positions))
+        self._did(f"emptied mount{'s' if many else ''} in position{'s' if many else ''} {where}")
 
     def load_parts(self, placements: Sequence[Placement]) -> None:
         for p in placements:
@@ -214,6 +225,14 @@ class ConsoleOperator(Operator):
 
     def strap_mounts(self, positions: Sequence[int]) -> None:
         self._action(f"Fit the shorting {_positions(positions, mount=True)}.")
+
+    def empty_mounts(self, positions: Sequence[int]) -> None:
+        many = len(positions) > 1
+        where = ", ".join(map(str, positions))
+        self._action(
+            f"Empty the mount{'s' if many else ''} in position{'s' if many else ''} {where}: "
+            "no strap, no part, bare pads (the open capture measures the pads' capacitance)."
+        )
 
     def load_parts(self, placements: Sequence[Placement]) -> None:
         lines = [f"  position {p.position}: {p.part} sample {p.sample}" for p in placements]
