@@ -43,7 +43,11 @@ def command(scenario: str, port: int, seed: int | None, time_scale: float) -> No
         for name, resource in bench.resources.items():
             identity = bench.instruments[name].identity()
             click.echo(f"  {name:<10} {resource}  {identity}")
-        click.echo("", nl=True)
+        click.echo(
+            "Talk to them with any VISA client (pyvisa with pyvisa-py: ResourceManager('@py'));\n"
+            "the bench port is the scripted operator's hands. 'zbench run PROCEDURE --sim'\n"
+            "starts a simulated bench of its own."
+        )
         while not stop.wait(0.5):
             pass
     except KeyboardInterrupt:
