@@ -263,6 +263,11 @@ def _unused_spans(ax: Axes, f: np.ndarray, fit: Any, *, label: bool) -> None:
         )
 
 
+def _re_label(kind: str | None) -> str:
+    """Label of the Re Z panel: ESR for a capacitor, the series resistance otherwise."""
+    return "Re Z" if kind is None else ("ESR = Re Z" if kind == "capacitor" else "R = Re Z")
+
+
 def _draw_impedance(
     ax_mag: Axes, ax_esr: Axes, data: Any, fit: Any, *, legends: bool = True
 ) -> None:
@@ -310,7 +315,7 @@ def _draw_impedance(
     _label_short_log_range(ax_mag, "Ω")
     _label_short_log_range(ax_esr, "Ω")
     ax_mag.set_ylabel("|Z|")
-    ax_esr.set_ylabel("ESR = Re Z")
+    ax_esr.set_ylabel(_re_label(getattr(fit, "kind", None)))
     if legends:
         ax_mag.legend(loc="best")
         ax_esr.legend(loc="best")
@@ -520,6 +525,7 @@ def lot_figure(part: str, samples: Iterable[Any], *, with_models: bool = False) 
     Each sample has its own colour, line style and marker (markers every few points so
     the curves stay readable). With ``with_models`` the fitted models are drawn thin.
     """
+    samples = list(samples)
     fig, (ax_mag, ax_esr) = _new_figure(2, height=5.6)
     with matplotlib.rc_context(STYLE):
         for index, sample in enumerate(samples):
@@ -539,7 +545,8 @@ def lot_figure(part: str, samples: Iterable[Any], *, with_models: bool = False) 
         _label_short_log_range(ax_mag, "Ω")
         _label_short_log_range(ax_esr, "Ω")
         ax_mag.set_ylabel("|Z|")
-        ax_esr.set_ylabel("ESR = Re Z")
+        kinds = {getattr(s.fit, "kind", None) for s in samples if s.fit is not None}
+        ax_esr.set_ylabel(_re_label(kinds.pop() if len(kinds) == 1 else None))
         ax_esr.set_xlabel("frequency")
         ax_mag.set_title(f"{part}: all samples", y=1.0)
         ax_mag.legend(loc="best", ncol=2)

@@ -149,8 +149,13 @@ def result_line(
     outside: int = 0,
     bias_v: float | None = None,
     reference: float | None = None,
+    z_at_nominal: float | None = None,
+    nominal_at_hz: float | None = None,
 ) -> str:
     """One line per measured part: C, ESL, SRF, ESR (or L, Rdc, SRF, Z@SRF) and a verdict.
+
+    For a bead whose tolerance is stated at a frequency, ``z_at_nominal`` (|Z| in Ω at
+    ``nominal_at_hz``) leads the line and is the value judged.
 
     At 0 V the main landmark (``c_low`` F, ``l_low`` H) is compared with ``nominal``
     and ``tolerance`` (a fraction): ``+2.5 % vs nominal, inside ±20 %``. A nominal
@@ -173,6 +178,15 @@ def result_line(
             f"ESR {si('esr_at_srf', 'Ω'):>7}",
         ]
         main = landmarks.get("c_low")
+    elif kind == "bead" and z_at_nominal is not None and nominal_at_hz:
+        # A bead's tolerance is stated on |Z| at a frequency (Ω at Hz), as in the exports.
+        at = format_si(nominal_at_hz, "Hz", 3).replace(" ", "")
+        fields = [
+            f"|Z|@{at} {format_si(z_at_nominal, 'Ω', 3):>7}",
+            f"Rdc {si('r_dc', 'Ω'):>7}",
+            f"SRF {si('srf', 'Hz'):>8}",
+        ]
+        main = z_at_nominal
     else:
         fields = [
             f"L {si('l_low', 'H'):>7}",

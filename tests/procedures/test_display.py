@@ -90,3 +90,22 @@ def test_rich_display_prints_folded_lines_at_the_console_width():
     rows = buffer.getvalue().rstrip("\n").split("\n")
     assert len(rows) == 2 and all(len(row) <= 80 for row in rows)
     assert rows[1] == "    -19.4 % vs 0 V, no verdict under bias  (11 points outside the window)"
+
+
+def test_a_bead_is_judged_on_its_impedance_at_the_stated_frequency():
+    line = result_line(
+        "FB120/s1",
+        "bead",
+        {"r_dc": 0.0355, "l_low": 248e-9},
+        nominal=120.0,
+        tolerance=0.25,
+        z_at_nominal=131.0,
+        nominal_at_hz=100e6,
+    )
+    assert "|Z|@100MHz   131 Ω" in line
+    # 131 / 120 − 1 = +9.2 % (derived: 11 / 120 = 0.0917)
+    assert "+9.2 % vs nominal, inside ±25 %" in line
+    assert all(len(row) <= 80 for row in fit_width(line, 80).split("\n"))
+    # Without |Z| at the frequency, no verdict is made up from the other landmarks.
+    plain = result_line("FB120/s1", "bead", {"l_low": 248e-9}, nominal=120.0, tolerance=0.25)
+    assert "nominal" not in plain
