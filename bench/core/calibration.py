@@ -12,7 +12,18 @@ Three methods (DESIGN §4):
 * ``"solt"``: full two-port SOLT (twelve-term) correction with
   :class:`skrf.calibration.SOLT` from short, open, load (each on both cable ends) and a
   through (cables joined).
-* ``"hybrid"``: the through response below ``crossover_hz`` and SOLT at and above it.
+* ``"hybrid"``: below ``crossover_hz`` the through response corrected for the port
+  match (:func:`match_corrected`, the default ``low_band="match"``) or the plain
+  through response (``low_band="through"``); SOLT at and above the crossover.
+
+Why the plain through response is not enough for a shunt part. A milliohm part
+presents S11 ≈ −1 to both ports while the through presents ≈ 0, so the ports' source
+and load match enter the through-normalised S21 at first order: the part sees the
+parallel source-load impedance ``Zs‖Zl`` rather than ``Z0/2``, and its impedance reads
+off by about ``−(Γs + Γl)·Z0/(Z0 + Rs)`` (1 to 3 % for ports matched to −35 to −40 dB
+without series resistors). :func:`match_corrected` takes the source match and load
+match from the short, open, load and through already measured for SOLT and puts them
+back, with no reflection of the part in the correction (see its docstring).
 
 All arrays are two-port S-parameters of shape (nf, 2, 2) on the frequency grid ``f``
 (Hz), scikit-rf's convention. No files are read or written here.
@@ -35,6 +46,9 @@ from bench.errors import InputError
 ComplexArray = NDArray[np.complex128]
 Method = Literal["through", "solt", "hybrid"]
 METHODS: tuple[str, ...] = ("through", "solt", "hybrid")
+#: What ``"hybrid"`` does below its crossover: port-match-corrected through response,
+#: or the plain through response.
+LOW_BANDS: tuple[str, ...] = ("match", "through")
 #: Default frequency (Hz) where a hybrid calibration hands over from through-response
 #: to SOLT: low enough that the cables' mismatch ripple is still negligible below it.
 DEFAULT_CROSSOVER_HZ = 1e6
@@ -125,6 +139,36 @@ def through_response(raw_dut: ArrayLike, raw_thru: ArrayLike) -> ComplexArray:
     return out
 
 
+def _solt_calibration(
+    f: ArrayLike,
+    standards: RawStandards,
+    *,
+    ideals: Mapping[str, ArrayLike] | None,
+    z0: float,
+    isolation: bool,
+) -> tuple[NDArray[np.float64], SOLT]:
+    ff = np.asarray(f, dtype=float)
+    missing = standards.missing("solt")
+    if missing:
+        raise ValueError(f"SOLT needs the raw {', '.join(missing)} standard(s); measure them")
+    if ff.shape != standards.f.shape or not np.allclose(ff, standards.f, rtol=1e-12, atol=0):
+        raise ValueError(
+            "the measurement and the standards are on different frequency grids; "
+            "calibrate with the same sweep settings as the measurement"
+        )
+    model = ideal_standards(ff)
+    for name, value in (ideals or {}).items():
+        if name not in model:
+            raise ValueError(f"unknown standard {name!r}; use one of {', '.join(STANDARD_NAMES)}")
+        model[name] = _as_two_port(f"ideal {name}", value, ff.size)
+    measured = [_network(ff, getattr(standards, name), z0) for name in STANDARD_NAMES]
+    ideal = [_network(ff, model[name], z0) for name in STANDARD_NAMES]
+    kwargs: dict[str, Any] = {}
+    if isolation:
+        kwargs["isolation"] = _network(ff, standards.load, z0)
+    return ff, SOLT(measured=measured, ideals=ideal, n_thrus=1, **kwargs)
+
+
 def solt(
     f: ArrayLike,
     raw_dut: ArrayLike,
@@ -141,28 +185,142 @@ def solt(
     missing names are ideal flush standards. ``isolation`` uses the load sweep's S21/S12
     as the leakage terms (worth it only when the analyser's crosstalk is above its noise).
     """
-    ff = np.asarray(f, dtype=float)
-    missing = standards.missing("solt")
-    if missing:
-        raise ValueError(f"SOLT needs the raw {', '.join(missing)} standard(s); measure them")
-    if ff.shape != standards.f.shape or not np.allclose(ff, standards.f, rtol=1e-12, atol=0):
-        raise ValueError(
-            "the measurement and the standards are on different frequency grids; "
-            "calibrate with the same sweep settings as the measurement"
-        )
+    ff, cal = _solt_calibration(f, standards, ideals=ideals, z0=z0, isolation=isolation)
     dut = _as_two_port("raw_dut", raw_dut, ff.size)
-    model = ideal_standards(ff)
-    for name, value in (ideals or {}).items():
-        if name not in model:
-            raise ValueError(f"unknown standard {name!r}; use one of {', '.join(STANDARD_NAMES)}")
-        model[name] = _as_two_port(f"ideal {name}", value, ff.size)
-    measured = [_network(ff, getattr(standards, name), z0) for name in STANDARD_NAMES]
-    ideal = [_network(ff, model[name], z0) for name in STANDARD_NAMES]
-    kwargs: dict[str, Any] = {}
-    if isolation:
-        kwargs["isolation"] = _network(ff, standards.load, z0)
-    cal = SOLT(measured=measured, ideals=ideal, n_thrus=1, **kwargs)
     return np.asarray(cal.apply_cal(_network(ff, dut, z0)).s, dtype=complex)
+
+
+@dataclass(frozen=True, eq=False)
+class PortMatch:
+    """The twelve-term model's transmission-side terms, each (nf,) complex.
+
+    ``source_forward`` / ``load_forward`` (ESF, ELF) and ``tracking_forward`` (ETF)
+    when port 1 drives, ``source_reverse`` / ``load_reverse`` (ESR, ELR) and
+    ``tracking_reverse`` (ETR) when port 2 drives; ``isolation_forward`` /
+    ``isolation_reverse`` (EXF, EXR) are zero unless the isolation terms were used.
+    The load-match terms include the analyser's switch terms.
+    """
+
+    source_forward: ComplexArray
+    load_forward: ComplexArray
+    tracking_forward: ComplexArray
+    isolation_forward: ComplexArray
+    source_reverse: ComplexArray
+    load_reverse: ComplexArray
+    tracking_reverse: ComplexArray
+    isolation_reverse: ComplexArray
+
+    def source_load_impedance(self, z0: float = 50.0) -> ComplexArray:
+        """``Zs‖Zl`` (Ω, (nf,)) a shunt part sees in the forward direction, from
+        ``Zs = Z0(1 + ESF)/(1 − ESF)`` and ``Zl = Z0(1 + ELF)/(1 − ELF)``."""
+        a, b = self.source_forward, self.load_forward
+        return 0.5 * z0 * (1 + a) * (1 + b) / (1 - a * b)
+
+
+def port_match(
+    f: ArrayLike,
+    standards: RawStandards,
+    *,
+    ideals: Mapping[str, ArrayLike] | None = None,
+    z0: float = 50.0,
+    isolation: bool = False,
+) -> PortMatch:
+    """The source match, load match, tracking and isolation terms of the twelve-term
+    model, solved by scikit-rf's SOLT from the raw standards (same arguments as
+    :func:`solt`)."""
+    ff, cal = _solt_calibration(f, standards, ideals=ideals, z0=z0, isolation=isolation)
+    return _port_match_of(cal, ff.size)
+
+
+def _port_match_of(cal: SOLT, nf: int) -> PortMatch:
+    coefs = cal.coefs
+    zero = np.zeros(nf, dtype=complex)
+
+    def term(name: str) -> ComplexArray:
+        value = coefs.get(name)
+        return zero.copy() if value is None else np.asarray(value, dtype=complex).reshape(-1)
+
+    return PortMatch(
+        source_forward=term("forward source match"),
+        load_forward=term("forward load match"),
+        tracking_forward=term("forward transmission tracking"),
+        isolation_forward=term("forward isolation"),
+        source_reverse=term("reverse source match"),
+        load_reverse=term("reverse load match"),
+        tracking_reverse=term("reverse transmission tracking"),
+        isolation_reverse=term("reverse isolation"),
+    )
+
+
+def _shunt_s21(
+    raw: ComplexArray,
+    tracking: ComplexArray,
+    isolation: ComplexArray,
+    a: ComplexArray,
+    b: ComplexArray,
+) -> ComplexArray:
+    # Twelve-term forward transmission (scikit-rf's TwelveTerm; Rehnmark's model):
+    #   S21m − EXF = ETF·S21 / [(1 − ESF·S11)(1 − ELF·S22) − ESF·ELF·S21·S12].
+    # A shunt element is reciprocal and symmetric with S11 = S22 = S21 − 1, so the
+    # denominator is (1 + a)(1 + b) − S21·(a + b + 2ab), linear in S21, and
+    #   S21 = m·(1 + a)(1 + b) / (ETF + m·(a + b + 2ab)),   m = S21m − EXF.
+    m = raw - isolation
+    return m * (1 + a) * (1 + b) / (tracking + m * (a + b + 2 * a * b))
+
+
+def match_corrected(
+    f: ArrayLike,
+    raw_dut: ArrayLike,
+    standards: RawStandards,
+    *,
+    ideals: Mapping[str, ArrayLike] | None = None,
+    z0: float = 50.0,
+    isolation: bool = False,
+) -> ComplexArray:
+    """Through response corrected for the ports' source and load match, for a shunt part.
+
+    S21 and S12 come from the twelve-term model's transmission equation (source match,
+    load match and transmission tracking from the short, open, load and through, as
+    SOLT solves them) with the part's own reflections taken from the shunt relation
+    ``S11 = S22 = S21 − 1`` that the shunt-through conversion assumes anyway, instead of
+    from its measured S11 and S22. In impedance terms this is exactly
+    ``Z = (Zs‖Zl)·S21′/(1 − S21′)`` with S21′ normalised to the through and ``Zs``,
+    ``Zl`` the ports' source and load impedances (:meth:`PortMatch.source_load_impedance`):
+    the part is converted with the impedance it really sees instead of ``Z0/2``.
+
+    On a true shunt element it equals full SOLT; unlike SOLT, the trace noise of the
+    part's reflections (S11 ≈ −1 for a milliohm part) does not enter S21, which matters
+    when the reflections are read through a weak reflection tracking (port series
+    resistors). S11 and S22 are returned as SOLT corrects them. Same arguments as
+    :func:`solt`; S (nf, 2, 2) referred to ``z0`` at the standards' plane.
+    """
+    ff, cal = _solt_calibration(f, standards, ideals=ideals, z0=z0, isolation=isolation)
+    dut = _as_two_port("raw_dut", raw_dut, ff.size)
+    return _solt_and_match(cal, ff, dut, z0)[1]
+
+
+def _solt_and_match(
+    cal: SOLT, f: NDArray[np.float64], dut: ComplexArray, z0: float
+) -> tuple[ComplexArray, ComplexArray]:
+    """(SOLT-corrected S, match-corrected S) of one raw sweep with one solved calibration."""
+    terms = _port_match_of(cal, f.size)
+    full = np.asarray(cal.apply_cal(_network(f, dut, z0)).s, dtype=complex)
+    out = full.copy()
+    out[:, 1, 0] = _shunt_s21(
+        dut[:, 1, 0],
+        terms.tracking_forward,
+        terms.isolation_forward,
+        terms.source_forward,
+        terms.load_forward,
+    )
+    out[:, 0, 1] = _shunt_s21(
+        dut[:, 0, 1],
+        terms.tracking_reverse,
+        terms.isolation_reverse,
+        terms.source_reverse,
+        terms.load_reverse,
+    )
+    return full, out
 
 
 def calibrate(
@@ -172,15 +330,19 @@ def calibrate(
     method: str = "through",
     *,
     crossover_hz: float = DEFAULT_CROSSOVER_HZ,
+    low_band: str = "match",
     ideals: Mapping[str, ArrayLike] | None = None,
     z0: float = 50.0,
     isolation: bool = False,
 ) -> ComplexArray:
     """Corrected two-port S (nf, 2, 2) of ``raw_dut`` by ``method`` (see the module doc).
 
-    ``crossover_hz`` (Hz, > 0) is used by ``"hybrid"`` only: points below it get the
-    through response, points at or above it SOLT. Raises :class:`InputError` for an
-    unknown method or missing standards, ValueError for arrays of the wrong shape.
+    ``crossover_hz`` (Hz, > 0) and ``low_band`` are used by ``"hybrid"`` only: points
+    at or above the crossover get SOLT, points below it :func:`match_corrected`
+    (``low_band="match"``, referred to ``z0`` at the standards' plane like SOLT) or the
+    plain through response (``"through"``, on the through's own scale). Raises
+    :class:`InputError` for an unknown method or low band or missing standards,
+    ValueError for arrays of the wrong shape.
     """
     if method not in METHODS:
         raise InputError(
@@ -204,8 +366,18 @@ def calibrate(
             f"crossover_hz = {crossover_hz!r} is not a frequency",
             hint="give the hybrid crossover in Hz, e.g. 1 MHz",
         )
-    out = solt(ff, dut, standards, ideals=ideals, z0=z0, isolation=isolation)
+    if low_band not in LOW_BANDS:
+        raise InputError(
+            f"unknown low band {low_band!r} for the hybrid calibration",
+            hint=f"use one of {', '.join(LOW_BANDS)}",
+        )
     low = ff < crossover_hz
+    if low_band == "match":
+        ff, cal = _solt_calibration(ff, standards, ideals=ideals, z0=z0, isolation=isolation)
+        full, out = _solt_and_match(cal, ff, dut, z0)
+        out[~low] = full[~low]
+        return out
+    out = solt(ff, dut, standards, ideals=ideals, z0=z0, isolation=isolation)
     out[low] = through_response(dut[low], standards.thru[low])
     return out
 

@@ -13,6 +13,8 @@ from bench.core.calibration import (
     calibrate,
     check_calibration_settings,
     ideal_standards,
+    match_corrected,
+    port_match,
     settings_differences,
     solt,
     through_response,
@@ -120,10 +122,100 @@ def test_through_method_matches_scikit_rf_normalisation_of_s21() -> None:
 
 def test_hybrid_switches_at_the_crossover() -> None:
     standards, raw, _, _, _ = _bench(4)
-    out = calibrate(F, raw, standards, "hybrid", crossover_hz=1e5)
     low = F < 1e5
-    np.testing.assert_allclose(out[low], through_response(raw, standards.thru)[low])
+    out = calibrate(F, raw, standards, "hybrid", crossover_hz=1e5)
+    # Default low band: the match-corrected through response.
+    np.testing.assert_allclose(out[low], match_corrected(F, raw, standards)[low])
     np.testing.assert_allclose(out[~low], solt(F, raw, standards)[~low])
+    plain = calibrate(F, raw, standards, "hybrid", crossover_hz=1e5, low_band="through")
+    np.testing.assert_allclose(plain[low], through_response(raw, standards.thru)[low])
+    np.testing.assert_allclose(plain[~low], solt(F, raw, standards)[~low])
+    with pytest.raises(InputError, match="low band"):
+        calibrate(F, raw, standards, "hybrid", low_band="smooth")
+
+
+def _with_switch_terms(seed: int):
+    """A bench whose analyser has switch terms: the twelve-term case, where the load
+    match is not the error box's own port match."""
+    _, _, dut, z, measure = _bench(seed)
+    rng = np.random.default_rng(100 + seed)
+    gamma_f, gamma_r = (
+        skrf.Network(
+            frequency=skrf.Frequency.from_f(F, unit="Hz"),
+            s=_smooth(rng, 0.03).reshape(-1, 1, 1),
+            z0=50.0,
+        )
+        for _ in range(2)
+    )
+
+    def switched(s: np.ndarray) -> np.ndarray:
+        # scikit-rf's own switch-term termination (calibration.terminate).
+        return skrf.calibration.terminate(_net(measure(s)), gamma_f, gamma_r).s
+
+    ideal = ideal_standards(F)
+    switched_standards = RawStandards(F, **{name: switched(ideal[name]) for name in ideal})
+    return switched_standards, switched(dut), dut, z, switched
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+@pytest.mark.parametrize("switch_terms", [False, True], ids=["eight-term", "twelve-term"])
+def test_match_correction_equals_scikit_rf_solt_on_a_shunt(seed: int, switch_terms: bool) -> None:
+    # Published model: the twelve-term error model as scikit-rf's TwelveTerm/SOLT solves
+    # it (Rehnmark); on a true shunt element (S11 = S22 = S21 − 1) the match correction
+    # is that model's transmission equation, so it must agree with SOLT, noise-free.
+    bench = _with_switch_terms(seed) if switch_terms else _bench(seed)
+    standards, raw, dut, z, _ = bench
+    corrected = match_corrected(F, raw, standards)
+    reference = solt(F, raw, standards)
+    np.testing.assert_allclose(corrected[:, 1, 0], reference[:, 1, 0], rtol=0, atol=1e-9)
+    np.testing.assert_allclose(corrected[:, 0, 1], reference[:, 0, 1], rtol=0, atol=1e-9)
+    np.testing.assert_allclose(corrected[:, 1, 0], dut[:, 1, 0], rtol=0, atol=1e-9)
+    np.testing.assert_allclose(shunt_through_z(corrected[:, 1, 0]), z, rtol=1e-6)
+    # Reflections are SOLT's.
+    np.testing.assert_allclose(corrected[:, 0, 0], reference[:, 0, 0], atol=1e-12)
+
+
+def test_match_correction_removes_the_bias_a_through_normalisation_leaves() -> None:
+    # The DUT is a milliohm shunt (3 mOhm, 22 uF, 0.6 nH): S11 ≈ −1 where the through
+    # shows ≈ 0, so the port match enters the through-normalised S21 at first order.
+    standards, raw, _, z, _ = _with_switch_terms(5)
+    terms = port_match(F, standards)
+    s21n = through_response(raw, standards.thru)[:, 1, 0]
+    plain = shunt_through_z(s21n)
+    # Published: with unequal source and load impedances, Z = (Zs‖Zl)·S21′/(1 − S21′),
+    # S21′ normalised to the through (O. Duffy, REFERENCES §1). With Zs, Zl from the
+    # source and load match, (Zs‖Zl) = (Z0/2)(1 + ESF)(1 + ELF)/(1 − ESF·ELF) [derived:
+    # Zs = Z0(1 + a)/(1 − a), Zl = Z0(1 + b)/(1 − b), ZsZl/(Zs + Zl) simplifies to it].
+    zs_zl = terms.source_load_impedance(50.0)
+    np.testing.assert_allclose(zs_zl * s21n / (1 - s21n), z, rtol=1e-9)
+    # So the plain through normalisation, which converts with Z0/2, reads every Z off by
+    # (Z0/2)/(Zs‖Zl) − 1 ≈ −(ESF + ELF) to first order [derived from the relation above].
+    predicted = 25.0 / zs_zl - 1
+    np.testing.assert_allclose(plain / z - 1, predicted, rtol=1e-9, atol=1e-12)
+    a, b = terms.source_forward, terms.load_forward
+    second_order = 2 * (np.abs(a) + np.abs(b)) ** 2
+    assert np.all(np.abs(predicted + (a + b)) <= second_order)
+    assert np.min(np.abs(predicted)) > 0.01
+    # The match correction leaves none of it.
+    corrected = match_corrected(F, raw, standards)[:, 1, 0]
+    np.testing.assert_allclose(shunt_through_z(corrected), z, rtol=1e-9)
+
+
+def test_match_correction_ignores_the_parts_reflection_noise() -> None:
+    # Why SOLT is noisy behind port series resistors: the part's reflections are read
+    # through a weak reflection tracking and enter SOLT's S21 through the source and
+    # load match. Here a trace noise of 1e-3 on the raw S11 and S22 of the part only:
+    # SOLT's S21 moves, the match-corrected S21 (built from S21 alone) does not.
+    standards, raw, dut, _, _ = _bench(6, mismatch=0.3)
+    rng = np.random.default_rng(8)
+    noisy = raw.copy()
+    for i in (0, 1):
+        noisy[:, i, i] *= 1 + 1e-3 * (rng.normal(size=F.size) + 1j * rng.normal(size=F.size))
+    moved = solt(F, noisy, standards)[:, 1, 0] - dut[:, 1, 0]
+    assert np.max(np.abs(moved / dut[:, 1, 0])) > 1e-4
+    np.testing.assert_allclose(
+        match_corrected(F, noisy, standards)[:, 1, 0], dut[:, 1, 0], rtol=0, atol=1e-9
+    )
 
 
 def test_missing_standards_and_bad_method() -> None:
