@@ -330,6 +330,13 @@ def _scalar(value: Any) -> float | None:
     return float(array) if array.ndim == 0 else None
 
 
+def _landmark_label(spec: PartSpec, name: str) -> str:
+    """A landmark's name for a reader: ``|Z| at 100 MHz`` for a bead's stated point."""
+    if name == "z_at_nominal_hz" and spec.nominal_at_hz:
+        return f"|Z| at {format_si(spec.nominal_at_hz, 'Hz', 4)}"
+    return name
+
+
 def _points_text(sample: SampleResult) -> tuple[int, int, int | None]:
     """(points in the sweep, points outside the window, points the fit used or None)."""
     total = int(np.size(sample.data.f))
@@ -354,7 +361,9 @@ def _glance_section(summary: RunSummary) -> str:
                 esc(row["part"]),
                 esc(row["sample"]),
                 esc(f"{row['bias_v']:g} V"),
-                esc(row["main_landmark"]) if row["model"] else "no fit",
+                esc(_landmark_label(summary.part(row["part"]), row["main_landmark"]))
+                if row["model"]
+                else "no fit",
                 _si(row["measured"], unit),
                 _si(row["nominal"], unit),
                 esc(against),
@@ -499,6 +508,7 @@ def _sample_section(
     name, value = exports.main_landmark(spec, sample)
     deviation, result = exports.verdict(spec, value, sample.bias_v)
     unit = exports.LANDMARK_UNITS.get(name, "")
+    label = esc(_landmark_label(spec, name))
     facts = {
         "position": sample.position,
         "raw file": sample.raw_file or "(not recorded)",
@@ -510,21 +520,21 @@ def _sample_section(
         change = None if not reference else value / reference - 1.0
         if change is not None:
             parts.append(
-                f"<p>{esc(name)} = {_si(value, unit)} at {esc(f'{sample.bias_v:g}')} V: "
+                f"<p>{label} = {_si(value, unit)} at {esc(f'{sample.bias_v:g}')} V: "
                 f"{_percent(change)} from the same sample at 0 V ({_si(reference, unit)}). "
                 '<span class="note">Not judged under bias: the nominal value is stated '
                 "at 0 V.</span></p>"
             )
         else:
             parts.append(
-                f"<p>{esc(name)} = {_si(value, unit)} at {esc(f'{sample.bias_v:g}')} V "
+                f"<p>{label} = {_si(value, unit)} at {esc(f'{sample.bias_v:g}')} V "
                 '<span class="note">(no 0 V measurement to compare with; not judged under '
                 "bias)</span></p>"
             )
     elif spec.nominal:
         tol = f" ± {100 * spec.tolerance:g} %" if spec.tolerance is not None else ""
         parts.append(
-            f"<p>{esc(name)} = {_si(value, unit)} against {_si(spec.nominal, unit)}{esc(tol)}: "
+            f"<p>{label} = {_si(value, unit)} against {_si(spec.nominal, unit)}{esc(tol)}: "
             f"deviation {_percent(deviation)}, {_verdict_html(result, sample.bias_v)}</p>"
         )
     caption = (

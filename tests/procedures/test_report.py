@@ -192,3 +192,11 @@ def test_fit_quality_counts_points_used_and_why_others_were_not(summary, written
         assert f"{sample.fit.quality.points_used} of {total} points used" in line
         assert (f"{outside} outside the measurable window" in line) == (outside > 0)
         assert f"Fit quality: {report.esc(line)}." in text
+
+
+def test_a_bead_is_reported_on_its_impedance_at_the_stated_frequency(summary, written):
+    _, _, text = written
+    bead = summary.part("ZX-F600")
+    label = f"|Z| at {report.format_si(bead.nominal_at_hz, 'Hz', 4)}"
+    glance = text.split("<h2>Results at a glance</h2>", 1)[1].split("</table>", 1)[0]
+    assert report.esc(label) in glance and "z_at_nominal_hz" not in glance
