@@ -5,7 +5,10 @@ In shunt-through the mount sits in series with the part, so a short in the mount
 measures the mount alone, ``Zs``; with an open-mount admittance ``Yo`` the part is
 ``Zdut = (Zm − Zs) / (1 − (Zm − Zs)·Yo)`` (impedance-measurement handbooks; REFERENCES
 §4), and without it ``Zdut = Zm − Zs``. The short may be used point by point, or as a
-fitted ``Rm + jωLm`` that carries no measurement noise into the part's data.
+fitted ``Rm + jωLm`` that carries no measurement noise into the part's data. The open,
+a fraction of a pF across the pads, is a very high impedance that a shunt-through
+set-up sees only near its window's ceiling, so it is always used as a fitted
+``G + jωC`` (:func:`fit_open`, :class:`MountOpen`) over the points it can measure.
 """
 
 from __future__ import annotations
@@ -134,3 +137,161 @@ def open_admittance_from_z(z_open: ArrayLike) -> NDArray[np.complex128]:
     zo = np.asarray(z_open, dtype=complex)
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.where(zo == 0, np.inf + 0j, 1.0 / zo)
+
+
+class OpenNotMeasurableError(ValueError):
+    """The empty-mount capture has too few points inside its measurable window."""
+
+
+@dataclass(frozen=True)
+class MountOpen:
+    """A fitted empty mount: shunt capacitance ``c`` (F, >= 0) and conductance ``g`` (S, >= 0)
+    across the pads, fitted to the open capture over ``f_min``…``f_max`` (Hz).
+
+    ``c_sigma``/``g_sigma`` are one-sigma uncertainties (F, S) from the fit; ``g`` is 0
+    unless the capture shows a conductance above three of its sigmas; ``points_used`` is
+    the number of points the fit used; ``residual`` the RMS of the fit's residuals in
+    units of each point's own uncertainty (about 1 or less for a clean open).
+    """
+
+    c: float
+    g: float = 0.0
+    c_sigma: float = math.nan
+    g_sigma: float = math.nan
+    points_used: int = 0
+    f_min: float = math.nan
+    f_max: float = math.nan
+    residual: float = math.nan
+
+    def admittance(self, f: ArrayLike) -> NDArray[np.complex128]:
+        """``g + j·2πf·c`` (S) at frequencies ``f`` (Hz)."""
+        ff = np.asarray(f, dtype=float)
+        return self.g + 1j * TWO_PI * ff * self.c
+
+
+#: Largest one-sigma relative uncertainty of a point of the open capture that the open
+#: fit uses. Looser than a part's window: the fit has two parameters over many points,
+#: so points too uncertain for a part's landmark still pin the pad capacitance down.
+OPEN_MAX_UNCERTAINTY = 0.5
+#: Fewest points inside that bound for an open fit.
+OPEN_MIN_POINTS = 5
+#: Largest RMS residual (in units of each point's uncertainty) of an acceptable open fit;
+#: above it the capture is not a small capacitance (a strap or part left in the mount).
+OPEN_MAX_RESIDUAL = 5.0
+
+
+def _robust_linear(
+    x: NDArray[np.float64], y: NDArray[np.float64], sigma: NDArray[np.float64]
+) -> tuple[float, float, NDArray[np.float64]]:
+    """Fit ``y = p·x`` (p >= 0) weighted by ``1/sigma`` with a soft-L1 loss.
+
+    Returns ``(p, sigma_p, normalised residuals)``; ``sigma_p`` from the weighted
+    normal equation, scaled up by the residuals' spread when it exceeds the stated sigmas.
+    """
+    a = x / sigma
+    b = y / sigma
+    norm = float(np.dot(a, a))
+    start = max(float(np.dot(a, b)) / norm, 0.0)
+    sigma_p = 1.0 / math.sqrt(norm)
+    result = least_squares(
+        lambda p: a * p[0] - b,
+        x0=[start],
+        bounds=([0.0], [np.inf]),
+        loss="soft_l1",
+        x_scale=[max(abs(start), sigma_p)],
+    )
+    p = max(float(result.x[0]), 0.0)
+    residual = a * p - b
+    dof = max(residual.size - 1, 1)
+    spread = math.sqrt(float(np.dot(residual, residual)) / dof)
+    return p, sigma_p * max(1.0, spread), residual
+
+
+def fit_open(
+    f: ArrayLike,
+    z_open: ArrayLike,
+    *,
+    rel_uncertainty: ArrayLike | None = None,
+    z_short: ArrayLike | Mount | None = None,
+    valid: ArrayLike | None = None,
+    max_uncertainty: float = OPEN_MAX_UNCERTAINTY,
+) -> MountOpen:
+    """Fit the empty mount's shunt admittance ``Yo = G + jωC`` to an open capture.
+
+    ``f`` in Hz (> 0), ``z_open`` the measured impedance of the empty mount (Ω),
+    ``rel_uncertainty`` its one-sigma relative uncertainty per point (a fraction, from
+    the window; None weighs every point alike and uses them all), ``z_short`` the mount's
+    series impedance (Ω on the same grid, or a fitted :class:`Mount`; None: negligible),
+    ``valid`` an optional mask of points allowed. ``Yo = 1/(Zopen − Zshort)``
+    (impedance-measurement handbooks, REFERENCES §4).
+
+    A fraction of a pF is a very high impedance, near the ceiling of a shunt-through
+    window or above it, so only points whose uncertainty is at most ``max_uncertainty``
+    (0 < … < 1) are used, each weighted by its own uncertainty: Im Yo is fitted as ωC,
+    Re Yo as G. A fitted C carries no point-by-point noise into the part's data.
+
+    Raises :class:`OpenNotMeasurableError` when fewer than ``OPEN_MIN_POINTS`` points are
+    usable (the pads are out of this set-up's reach), and ``ValueError`` when the
+    capture does not look like a small capacitance (a strap or part left in the mount).
+    """
+    ff = np.asarray(f, dtype=float)
+    zo = np.asarray(z_open, dtype=complex)
+    if ff.shape != zo.shape or ff.ndim != 1:
+        raise ValueError(
+            f"f and z_open must be 1-D arrays of the same length, got {ff.shape} and {zo.shape}"
+        )
+    if not 0.0 < max_uncertainty < 1.0:
+        raise ValueError(f"max_uncertainty must lie in (0, 1), got {max_uncertainty!r}")
+    series = zo if z_short is None else zo - _as_short(z_short, zo.shape, ff)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        y = 1.0 / series
+    if rel_uncertainty is None:
+        rel = np.full(ff.shape, 0.1)
+    else:
+        rel = np.asarray(rel_uncertainty, dtype=float)
+        if rel.shape != ff.shape:
+            raise ValueError(
+                f"rel_uncertainty has {rel.shape} points but the open capture {ff.shape}"
+            )
+    use = np.isfinite(y) & np.isfinite(rel) & (ff > 0) & (rel > 0)
+    if rel_uncertainty is not None:
+        use &= rel <= max_uncertainty
+    if valid is not None:
+        use &= np.asarray(valid, dtype=bool)
+    n = int(np.count_nonzero(use))
+    if n < OPEN_MIN_POINTS:
+        best = float(np.nanmin(rel)) if np.any(np.isfinite(rel)) else math.inf
+        raise OpenNotMeasurableError(
+            f"the empty mount is out of this set-up's reach: {n} point(s) of the open "
+            f"capture have an uncertainty of at most {max_uncertainty:.0%} (the best is "
+            f"{best:.0%}), {OPEN_MIN_POINTS} are needed; port series resistors raise the "
+            "window's ceiling, and pad capacitance matters little below it"
+        )
+    ff, y, rel = ff[use], y[use], rel[use]
+    omega = TWO_PI * ff
+    # The relative uncertainty of Z is that of Y = 1/Z (first order).
+    sigma = rel * np.abs(y)
+    c, c_sigma, res_c = _robust_linear(omega, y.imag, sigma)
+    g, g_sigma, res_g = _robust_linear(np.ones_like(ff), y.real, sigma)
+    if g < 3.0 * g_sigma:
+        # A conductance the capture cannot tell from zero would only lower the peak of
+        # a high-Q part: leave it out.
+        g = 0.0
+        res_g = -y.real / sigma
+    residual = math.sqrt(float(np.mean(np.concatenate([res_c, res_g]) ** 2)))
+    if c <= 0.0 or residual > OPEN_MAX_RESIDUAL:
+        raise ValueError(
+            f"the open capture does not look like an empty mount (a small capacitance): "
+            f"fitted {c:.3g} F with residuals {residual:.1f} times the points' uncertainty; "
+            "check that no strap or part was left in the mount and capture it again"
+        )
+    return MountOpen(
+        c=c,
+        g=g,
+        c_sigma=c_sigma,
+        g_sigma=g_sigma,
+        points_used=n,
+        f_min=float(ff.min()),
+        f_max=float(ff.max()),
+        residual=residual,
+    )

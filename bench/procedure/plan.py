@@ -15,12 +15,15 @@ from typing import Any
 
 from bench.errors import ProcedureError
 from bench.procedure.loader import ProcedureErrors, SourceDocument, load_document
-from bench.procedure.schema import STEP_NAMES, parse_duration
+from bench.procedure.schema import DEFAULT_STEPS, STEP_NAMES, parse_duration
 from bench.results import PartSpec
 from bench.units import QuantityError, format_si, parse_quantity
 
 NOMINAL_UNIT = {"mlcc": "F", "bulk": "F", "inductor": "H", "bead": "ohm"}
 DEFAULT_MODEL = {"mlcc": "auto", "bulk": "auto", "inductor": "auto", "bead": "auto"}
+
+#: Step kinds that take sweeps (the rest compute from stored ones).
+SWEEP_STEPS = ("calibrate", "mount_open", "mount_short", "measure")
 
 # Analyser limits used when the command map states none (a generic bench analyser).
 DEFAULT_LIMITS = {"max_points": 10001, "min_hz": 1.0, "max_hz": 20e9, "power": (-60.0, 10.0)}
@@ -126,7 +129,7 @@ class Placement:
 class Step:
     """One resumable unit of work.
 
-    ``kind`` is ``calibrate`` (one standard), ``mount_short`` (one position),
+    ``kind`` is ``calibrate`` (one standard), ``mount_open`` or ``mount_short`` (one position),
     ``measure`` (one sample at one bias point), ``fit``, ``export`` or ``report``.
     """
 
@@ -183,7 +186,7 @@ class Plan:
         total = 0.0
         handling = 20.0 if self.mode == "guided" else 0.0  # a person's hands per action
         for step in self.steps:
-            if step.kind in ("calibrate", "mount_short", "measure"):
+            if step.kind in SWEEP_STEPS:
                 total += sweep + 0.2
                 if step.kind == "calibrate" or self.mode == "guided":
                     total += handling
@@ -485,7 +488,7 @@ def build_plan(doc: SourceDocument) -> Plan:
         parts.append(part)
 
     plan_parts = tuple(parts)
-    steps_list = tuple(data.get("steps", STEP_NAMES))
+    steps_list = tuple(data.get("steps", DEFAULT_STEPS))
     _check_steps(doc, steps_list, errors)
     mode = data.get("mode", "guided")
 
@@ -526,6 +529,7 @@ def _check_steps(doc: SourceDocument, steps: tuple[str, ...], errors: list[Proce
                 )
             )
     needs = {
+        "mount_open": "calibrate",
         "mount_short": "calibrate",
         "measure": "calibrate",
         "fit": "measure",
@@ -623,10 +627,11 @@ def _steps(plan: Plan) -> tuple[Step, ...]:
     if "calibrate" in names:
         for std in plan.calibration.standards:
             steps.append(Step(id=f"calibrate/{std}", kind="calibrate", standard=std))
-    if "mount_short" in names:
-        used = sorted({p.position for batch in plan.batches for p in batch})
-        for pos in used:
-            steps.append(Step(id=f"mount_short/p{pos}", kind="mount_short", position=pos))
+    used = sorted({p.position for batch in plan.batches for p in batch})
+    for kind in ("mount_open", "mount_short"):
+        if kind in names:
+            for pos in used:
+                steps.append(Step(id=f"{kind}/p{pos}", kind=kind, position=pos))
     if "measure" in names:
         for batch in plan.batches:
             for placement in batch:

@@ -21,6 +21,7 @@ from bench.core.calibration import (
     through_response,
 )
 from bench.core.conversions import shunt_through_rereference, shunt_through_z
+from bench.core.fixture import MountOpen, fit_mount, fit_open
 from bench.core.impedance import ImpedanceData, impedance_from_shunt_through
 from bench.core.window import floor_on_through_db
 from bench.errors import FitError, RunError
@@ -28,6 +29,35 @@ from bench.procedure.plan import Analysis, Plan, Step
 from bench.results import RunSummary, SampleResult
 from bench.runstore import DONE, RunStore
 from bench.units import format_si
+
+
+@dataclass(frozen=True)
+class OpenResult:
+    """The open (empty-mount) capture of one position: the fitted pads, or why not used.
+
+    ``mount_open`` is the fitted :class:`bench.core.fixture.MountOpen` (None when the
+    capture is out of the set-up's reach or does not look like an empty mount);
+    ``message`` says which, in plain words.
+    """
+
+    position: int
+    mount_open: MountOpen | None
+    message: str
+
+    def record(self) -> dict[str, Any]:
+        """Plain SI numbers for the manifest and the summary's set-up."""
+        m = self.mount_open
+        if m is None:
+            return {"capacitance_f": None, "note": self.message}
+        return {
+            "capacitance_f": m.c,
+            "capacitance_sigma_f": m.c_sigma,
+            "shunt_r_ohm": 1.0 / m.g if m.g > 0 else None,
+            "points": m.points_used,
+            "from_hz": m.f_min,
+            "to_hz": m.f_max,
+            "note": self.message,
+        }
 
 
 @dataclass(frozen=True)
@@ -141,6 +171,70 @@ def mount_short_impedance(
     return f, shunt_through_z(s21n, plan.fixture.z0, plan.fixture.series_r)
 
 
+def mount_open_impedance(
+    plan: Plan,
+    analysis: Analysis,
+    corrector: Corrector,
+    store: RunStore,
+    position: int,
+    *,
+    quick: bool = False,
+) -> ImpedanceData:
+    """The empty mount's measured impedance at ``position`` with its per-point uncertainty
+    (nothing removed; ``quick``: through-response correction only)."""
+    f, s = averaged(store, f"mount_open/p{position}")
+    if quick:
+        s21n = corrector.quick(f, s)[:, 1, 0]
+    else:
+        s21n = corrector.setup_s21(f, corrector.correct(f, s))
+    return sample_impedance(plan, analysis, f, s21n, None)
+
+
+def open_fit(
+    plan: Plan,
+    analysis: Analysis,
+    corrector: Corrector,
+    store: RunStore,
+    position: int,
+    z_short: np.ndarray | None = None,
+    *,
+    quick: bool = False,
+) -> OpenResult:
+    """Fit the pads' shunt C (and G) to the open capture of ``position``.
+
+    ``z_short`` is that position's mount short on the same grid (Ω) or None; with
+    ``analysis.mount == "fitted"`` its fitted ``Rm + jωLm`` is subtracted instead. The
+    open's own window decides which points are used (:func:`bench.core.fixture.fit_open`).
+    """
+    data = mount_open_impedance(plan, analysis, corrector, store, position, quick=quick)
+    short: Any = z_short
+    if z_short is not None and analysis.mount == "fitted":
+        short = fit_mount(data.f, z_short)
+    try:
+        fitted = fit_open(data.f, data.z, rel_uncertainty=data.rel_uncertainty, z_short=short)
+    except ValueError as exc:
+        return OpenResult(position, None, f"position {position}: open not used: {exc}")
+    spread = f" ± {format_si(fitted.c_sigma, 'F')}" if np.isfinite(fitted.c_sigma) else ""
+    conductance = f", shunt {format_si(1.0 / fitted.g, 'ohm')}" if fitted.g > 0 else ""
+    message = (
+        f"position {position}: pads {format_si(fitted.c, 'F')}{spread}{conductance} "
+        f"from {fitted.points_used} points, {format_si(fitted.f_min, 'Hz')} to "
+        f"{format_si(fitted.f_max, 'Hz')}"
+    )
+    return OpenResult(position, fitted, message)
+
+
+def fixture_removal_text(shorts: bool, opens: bool) -> str:
+    """What was removed from the parts' data, in plain words (the summary's set-up)."""
+    if shorts and opens:
+        return "mount short (series) and open (pads' shunt capacitance)"
+    if shorts:
+        return "mount short (series); pads' capacitance not removed"
+    if opens:
+        return "open (pads' shunt capacitance); no mount short"
+    return "none"
+
+
 def ground_loop(f: np.ndarray, z_short: np.ndarray, position: int) -> GroundLoopResult:
     """The core's ground-loop check on one mount short."""
     from bench.core.ground_loop import check_ground_loop
@@ -160,18 +254,19 @@ def sample_impedance(
     f: np.ndarray,
     s21n: np.ndarray,
     z_short: np.ndarray | None,
+    mount_open: MountOpen | None = None,
 ) -> ImpedanceData:
     """The part's impedance with the mount removed, its window and uncertainty.
 
-    ``s21n`` is on the set-up's scale (:meth:`Corrector.setup_s21`). The procedure's
+    ``s21n`` is on the set-up's scale (:meth:`Corrector.setup_s21`); ``z_short`` the
+    shorted mount on the same grid (Ω) or None; ``mount_open`` the fitted pads, whose
+    shunt admittance is removed too (REFERENCES §4), or None. The procedure's
     noise floor is the analyser's own (relative to a through without resistors); on the
     through-normalised scale it stands higher by the through level the port series
     resistors take away (:func:`bench.core.window.floor_on_through_db`).
     """
     mount: Any = z_short
     if z_short is not None and analysis.mount == "fitted":
-        from bench.core.fixture import fit_mount
-
         mount = fit_mount(f, z_short)
     return impedance_from_shunt_through(
         f,
@@ -179,6 +274,7 @@ def sample_impedance(
         z0=plan.fixture.z0,
         series_r=plan.fixture.series_r,
         mount_short=mount,
+        open_admittance=None if mount_open is None else mount_open.admittance(f),
         noise_floor_db=floor_on_through_db(
             analysis.noise_floor_db, plan.fixture.z0, plan.fixture.series_r
         ),
@@ -244,6 +340,22 @@ def build_summary(
         f, z_short = mount_short_impedance(plan, corrector, store, step.position)
         shorts[step.position] = z_short
         loops[step.position] = ground_loop(f, z_short, step.position)
+    opens: dict[int, OpenResult] = {}
+    for step in plan.steps:
+        if step.kind != "mount_open" or step.position is None:
+            continue
+        if store.step_state(step.id) != DONE:
+            warnings.append(
+                f"no open capture for position {step.position}; pads' capacitance not removed"
+            )
+            continue
+        result = open_fit(
+            plan, analysis, corrector, store, step.position, shorts.get(step.position)
+        )
+        opens[step.position] = result
+        if result.mount_open is None:
+            warnings.append(result.message)
+    pads = {pos: r.mount_open for pos, r in opens.items() if r.mount_open is not None}
     samples: list[SampleResult] = []
     for step in plan.steps:
         if step.kind != "measure":
@@ -253,7 +365,9 @@ def build_summary(
             warnings.append(f"{step.id}: {state}, not in the results")
             continue
         samples.append(
-            _sample(store, plan, analysis, corrector, step, shorts, loops, model_override, fit)
+            _sample(
+                store, plan, analysis, corrector, step, shorts, pads, loops, model_override, fit
+            )
         )
     loop_info = {
         str(pos): {
@@ -300,6 +414,8 @@ def build_summary(
                 "tolerance": analysis.tolerance,
                 "mount": analysis.mount,
             },
+            "fixture_removal": fixture_removal_text(bool(shorts), bool(pads)),
+            **({"mount_open": {str(p): r.record() for p, r in opens.items()}} if opens else {}),
             "instruments": manifest.get("instruments", {}),
             "created": manifest.get("created"),
         },
@@ -317,6 +433,7 @@ def _sample(
     corrector: Corrector,
     step: Step,
     shorts: dict[int, np.ndarray],
+    pads: dict[int, MountOpen],
     loops: dict[int, GroundLoopResult],
     model_override: str | None,
     fit: bool,
@@ -326,7 +443,8 @@ def _sample(
     f, s_raw = averaged(store, step.id)
     corrected = corrector.correct(f, s_raw)
     s21n = corrector.setup_s21(f, corrected)
-    data = sample_impedance(plan, analysis, f, s21n, shorts.get(step.position or 0))
+    position = step.position or 0
+    data = sample_impedance(plan, analysis, f, s21n, shorts.get(position), pads.get(position))
     loop = loops.get(step.position or 0)
     detected = loop is not None and loop.detected
     removed = detected and loop_removed_with_short(analysis) and step.position in shorts

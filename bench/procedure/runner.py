@@ -26,12 +26,14 @@ from bench.errors import InputError, RunError, SafetyError
 from bench.files import atomic_write_bytes, atomic_write_text
 from bench.procedure.display import PlainDisplay, result_line
 from bench.procedure.operators import REPEAT, SKIP, STOP, Operator, OperatorStop
-from bench.procedure.plan import Plan, Step
+from bench.procedure.plan import SWEEP_STEPS, Plan, Step
 from bench.procedure.processing import (
     Corrector,
     build_summary,
     ground_loop,
+    loop_removed_with_short,
     mount_short_impedance,
+    open_fit,
     sample_impedance,
 )
 from bench.results import RunSummary
@@ -88,11 +90,13 @@ class Runner:
         self._set_up = False
         self._cables: str | None = None
         self._strapped: set[int] = set()
+        self._emptied: set[int] = set()
         self._batch: int | None = None
         self._selected: int | None = None
         self._caution_done = False
         self._corrector: Corrector | None = None
         self._quick_shorts: dict[int, np.ndarray] = {}
+        self._quick_opens: dict[int, Any] = {}
         self._last: tuple[np.ndarray, np.ndarray] | None = None
         self._loops: dict[int, float] = {}
         # Time spent inside the analyser driver's sweep (instrument time and transfer), s,
@@ -110,7 +114,7 @@ class Runner:
         store.begin_session("resume" if store.manifest["sessions"] else "start")
         store.log(f"session start, plan {plan.name}, first step {store.first_incomplete()}")
         pending = [s for s in plan.steps if store.step_state(s.id) not in (DONE, SKIPPED)]
-        sweeps = sum(1 for s in pending if s.kind in ("calibrate", "mount_short", "measure"))
+        sweeps = sum(1 for s in pending if s.kind in SWEEP_STEPS)
         current: Step | None = None
         try:
             if plan.biased and any(s.bias_v for s in pending):
@@ -360,6 +364,8 @@ class Runner:
         store.log(f"step {step.id} started")
         if step.kind == "calibrate":
             self._calibrate(step)
+        elif step.kind == "mount_open":
+            self._mount_open(step)
         elif step.kind == "mount_short":
             self._mount_short(step)
         elif step.kind == "measure":
@@ -470,22 +476,63 @@ class Runner:
             self._corrector = Corrector.from_store(self.store, self.plan)
         return self._corrector
 
+    def _pending_positions(self, kind: str) -> list[int]:
+        """Positions whose ``kind`` step (mount_open, mount_short) is still to do."""
+        return [
+            s.position
+            for s in self.plan.steps
+            if s.kind == kind
+            and s.position is not None
+            and self.store.step_state(s.id) not in (DONE, SKIPPED)
+        ]
+
+    def _mount_open(self, step: Step) -> None:
+        assert step.position is not None
+        pos = step.position
+        while True:
+            self._cables_to("fixture")
+            if pos not in self._emptied:
+                # One action for every open still to capture, like the straps.
+                todo = self._pending_positions("mount_open")
+                with self._pause():
+                    self.operator.empty_mounts(todo)
+                self._emptied.update(todo)
+                self._strapped.difference_update(todo)
+                self._batch = None
+            self._select(pos)
+            self._sweeps(step, f"open mount, position {pos}")
+            # The short usually comes later; the mount's series milliohms are nothing
+            # beside the pads' kilohms, and processing subtracts the short once it exists.
+            opened = open_fit(self.plan, self.plan.analysis, self._correction(), self.store, pos)
+            if self._decide(step, f"open mount {pos}", opened.message) != REPEAT:
+                break
+        records = dict(self.store.manifest.get("mount_open", {}))
+        records[str(pos)] = opened.record()
+        self.store.update("mount_open", records)
+        if opened.mount_open is None:
+            self._note(opened.message)
+        elif not self.operator.guided:
+            self.display.message(opened.message)
+
+    def _note(self, note: str) -> None:
+        """A warning for the manifest (once) and the display."""
+        warnings = list(self.store.manifest.get("warnings", []))
+        if note not in warnings:
+            warnings.append(note)
+        self.store.update("warnings", warnings)
+        self.display.message(note)
+
     def _mount_short(self, step: Step) -> None:
         assert step.position is not None
         pos = step.position
         while True:
             self._cables_to("fixture")
             if pos not in self._strapped:
-                todo = [
-                    s.position
-                    for s in self.plan.steps
-                    if s.kind == "mount_short"
-                    and s.position is not None
-                    and self.store.step_state(s.id) not in (DONE, SKIPPED)
-                ]
+                todo = self._pending_positions("mount_short")
                 with self._pause():
                     self.operator.strap_mounts(todo)
                 self._strapped.update(todo)
+                self._emptied.difference_update(todo)
                 self._batch = None
             self._select(pos)
             self._sweeps(step, f"mount short, position {pos}")
@@ -514,16 +561,20 @@ class Runner:
                 + GROUND_LOOP_ADVICE
             )
         if loop.detected:
-            note = (
-                f"position {pos}: ground loop, points below {format_si(loop.valid_above_hz, 'Hz')} "
-                "marked invalid"
-            )
-            warnings = list(self.store.manifest.get("warnings", []))
-            if note not in warnings:
-                warnings.append(note)
-            self.store.update("warnings", warnings)
-            self.display.message(note)
-            self._loops[pos] = loop.valid_above_hz
+            below = format_si(loop.valid_above_hz, "Hz")
+            if loop_removed_with_short(self.plan.analysis):
+                # The same judgement as processing: the loop's series error is in this
+                # short as much as in the parts, and leaves with it point by point.
+                self._note(
+                    f"position {pos}: ground loop below {below}; its error is in the mount "
+                    "short too and is removed with it (all points kept)"
+                )
+            else:
+                self._note(
+                    f"position {pos}: ground loop; points below {below} are not used "
+                    "(a fitted mount cannot follow the loop)"
+                )
+                self._loops[pos] = loop.valid_above_hz
 
     def _measure(self, step: Step) -> None:
         placement = step.placement
@@ -540,6 +591,7 @@ class Runner:
                     self.operator.load_parts(batch)
                 self._batch = placement.batch
                 self._strapped.difference_update(p.position for p in batch)
+                self._emptied.difference_update(p.position for p in batch)
             self._select(placement.position)
             if step.bias_v:
                 limit = self.plan.bias_limit(part)
@@ -593,7 +645,9 @@ class Runner:
                     self.plan, self._correction(), self.store, placement.position, quick=True
                 )
                 self._quick_shorts[placement.position] = z_short
-            data = sample_impedance(self.plan, self.plan.analysis, f, s21n, z_short)
+            data = sample_impedance(
+                self.plan, self.plan.analysis, f, s21n, z_short, self._quick_open(placement)
+            )
             valid = np.asarray(data.inside_window) & (f >= self._loops.get(placement.position, 0.0))
             kind = "capacitor" if part.spec.kind in ("mlcc", "bulk") else "inductor"
             marks = landmarks_for(kind, f, data.z, valid)
@@ -607,6 +661,28 @@ class Runner:
             tolerance=part.spec.tolerance,
             outside=data.points_outside_window,
         )
+
+    def _quick_open(self, placement: Any) -> Any:
+        """The pads of ``placement``'s position from its open capture (quick correction),
+        or None when there is none or it was not usable; computed once per position."""
+        pos = placement.position
+        if pos not in self._quick_opens:
+            step_id = f"mount_open/p{pos}"
+            if step_id not in {s.id for s in self.plan.steps}:
+                return None
+            if self.store.step_state(step_id) != DONE:
+                return None
+            opened = open_fit(
+                self.plan,
+                self.plan.analysis,
+                self._correction(),
+                self.store,
+                pos,
+                self._quick_shorts.get(pos),
+                quick=True,
+            )
+            self._quick_opens[pos] = opened.mount_open
+        return self._quick_opens[pos]
 
     def _fit(self, step: Step) -> None:
         self.display.step("fitting models")

@@ -31,7 +31,10 @@ The keys, in brief (``procedures/*.yaml`` are worked examples):
   ``nominal`` (F, H, or Ω for a bead at ``nominal_at`` Hz), ``tolerance`` (``10 %``),
   ``rated_voltage`` (V), ``model`` (a family or ``auto``), ``samples`` (a count or
   names), ``bias`` (list of V, capacitors only).
-- ``steps``: a subset, in order, of calibrate, mount_short, measure, fit, export, report.
+- ``steps``: a subset, in order, of calibrate, mount_open, mount_short, measure, fit,
+  export, report (default: all but the optional mount_open). ``mount_open`` captures
+  each used position's empty mount, so the pads' capacitance is removed from the parts
+  (it matters for high-impedance parts: inductors and beads).
 """
 
 from __future__ import annotations
@@ -45,7 +48,9 @@ from jsonschema.exceptions import ValidationError
 
 from bench.units import QuantityError, parse_quantity
 
-STEP_NAMES = ("calibrate", "mount_short", "measure", "fit", "export", "report")
+STEP_NAMES = ("calibrate", "mount_open", "mount_short", "measure", "fit", "export", "report")
+#: The steps of a procedure that lists none: every step but the optional open capture.
+DEFAULT_STEPS = tuple(name for name in STEP_NAMES if name != "mount_open")
 MODEL_NAMES = ("auto", "series-rlc", "two-branch", "ladder", "inductor", "bead")
 PART_KINDS = ("mlcc", "bulk", "inductor", "bead")
 
