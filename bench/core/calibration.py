@@ -382,6 +382,24 @@ def calibrate(
     return out
 
 
+def through_mismatch_bias(port_match_db: float, z0: float = 50.0, series_r: float = 0.0) -> float:
+    """Largest relative impedance error (fraction) a plain through response leaves on a
+    part well below ``(Z0 + Rs)/2``, for raw port matches of ``port_match_db`` (dB,
+    < 0) at both ports: ``(|Γ1| + |Γ2|)·Z0/(Z0 + Rs)``.
+
+    The part sees ``Zs‖Zl`` instead of ``(Z0 + Rs)/2``; with ``Zs ≈ Rs + Z0(1 + 2Γ1)``
+    and ``Zl ≈ Rs + Z0(1 + 2Γ2)``, ``Zs‖Zl ≈ ((Z0 + Rs)/2)(1 + (Γ1 + Γ2)·Z0/(Z0 + Rs))``
+    to first order (the resistors dilute the analyser's match). ``z0`` and ``series_r``
+    in Ω.
+    """
+    if not (math.isfinite(port_match_db) and port_match_db < 0):
+        raise ValueError(f"port_match_db must be a negative number of dB, got {port_match_db!r}")
+    if not (z0 > 0 and series_r >= 0):
+        raise ValueError(f"need z0 > 0 and series_r >= 0 ohm, got {z0!r} and {series_r!r}")
+    gamma = 10 ** (port_match_db / 20)
+    return 2 * gamma * z0 / (z0 + series_r)
+
+
 # --- checking a stored calibration against a new plan --------------------------------
 
 
