@@ -90,11 +90,58 @@ def averaged(store: RunStore, step_id: str) -> tuple[np.ndarray, np.ndarray]:
 class Corrector:
     """Applies the run's calibration (from its stored raw standards) to raw sweeps."""
 
-    def __init__(self, plan: Plan, standards: dict[str, tuple[np.ndarray, np.ndarray]]):
+    def __init__(
+        self,
+        plan: Plan,
+        standards: dict[str, tuple[np.ndarray, np.ndarray]],
+        *,
+        low_band: str | None = None,
+    ):
         self.plan = plan
         self.standards = standards
         self.f = standards["through"][0]
+        #: What a hybrid calibration does below its crossover (``"match"`` or
+        #: ``"through"``, see :func:`bench.core.calibration.calibrate`).
+        self.low_band = low_band or self.default_low_band(plan)
         self.warnings: list[str] = []
+        if plan.calibration.method == "through":
+            self.warnings.append(self.through_warning(plan))
+
+    #: Raw port match (dB) the through-only warning quotes as its example.
+    EXAMPLE_PORT_MATCH_DB = -40.0
+
+    @staticmethod
+    def default_low_band(plan: Plan) -> str:
+        """``"match"`` without port series resistors, ``"through"`` with them.
+
+        Without resistors the plain through response leaves the ports' match in S21
+        (1 to 3 % on a milliohm part) and the match correction removes it at no cost in
+        noise. With resistors the analyser's match is diluted by ``Z0/(Z0 + Rs)`` (about
+        0.2 %), while the match terms, read through the resistors' weak reflection
+        tracking, are noisy enough that correcting with them adds more error than they
+        remove: the plain through response is then the better low band.
+        """
+        return "through" if plan.fixture.series_r > 0 else "match"
+
+    @classmethod
+    def through_warning(cls, plan: Plan) -> str:
+        """The run-summary note of a through-only calibration: its mismatch bias."""
+        from bench.core.calibration import through_mismatch_bias
+
+        z0, series_r = plan.fixture.z0, plan.fixture.series_r
+        bias = through_mismatch_bias(cls.EXAMPLE_PORT_MATCH_DB, z0, series_r)
+        remedy = (
+            "measure short, open and load too and use calibration method hybrid, which "
+            "corrects the match below its crossover"
+            if series_r <= 0
+            else "the port series resistors already dilute it by Z0/(Z0 + Rs)"
+        )
+        return (
+            "through calibration: the analyser's raw port match stays in S21, so "
+            "low-impedance parts read off by up to (|Γ1| + |Γ2|)·Z0/(Z0 + Rs), "
+            f"{bias:.1%} with ports matched to {cls.EXAMPLE_PORT_MATCH_DB:g} dB on this "
+            f"set-up (Z0 {z0:g} Ω, Rs {series_r:g} Ω); {remedy}"
+        )
 
     @classmethod
     def from_store(cls, store: RunStore, plan: Plan) -> Corrector:
@@ -121,14 +168,18 @@ class Corrector:
         kwargs: dict[str, Any] = {"z0": self.plan.fixture.z0}
         if self.plan.calibration.crossover_hz is not None:
             kwargs["crossover_hz"] = self.plan.calibration.crossover_hz
+        if self.plan.calibration.method == "hybrid":
+            kwargs["low_band"] = self.low_band
         return calibrate(f, s_raw, standards, self.plan.calibration.method, **kwargs)
 
     def through_band(self, f: np.ndarray) -> np.ndarray:
-        """True at the points :meth:`correct` normalises to the through (the rest: SOLT)."""
+        """True at the points :meth:`correct` leaves on the through's own scale (plain
+        through response); the rest are referred to Z0 at the standards' plane (SOLT and
+        the match-corrected band of a hybrid)."""
         method = self.plan.calibration.method
         if method == "through":
             return np.ones(f.shape, dtype=bool)
-        if method == "solt":
+        if method == "solt" or self.low_band == "match":
             return np.zeros(f.shape, dtype=bool)
         crossover = self.plan.calibration.crossover_hz
         return f < (DEFAULT_CROSSOVER_HZ if crossover is None else crossover)
