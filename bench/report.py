@@ -619,17 +619,20 @@ def _lot_html(summary: RunSummary, spec: PartSpec, figs: _Figures) -> str:
             bias_list, cap_list = curves.setdefault(p.sample, ([], []))
             bias_list.append(p.bias_v)
             cap_list.append(p.c_low)
+        starts = {min(bias) for bias, _ in curves.values()}
+        reference = f"{starts.pop():g} V" if len(starts) == 1 else "the lowest bias"
         out.append("<h4>Capacitance versus DC bias</h4>")
         out.append(
             figs.embed(
                 plots.bias_figure(spec.name, curves, nominal=spec.nominal),
                 f"{spec.name}_bias",
-                f"{spec.name}: c_low versus DC bias, and its change from the lowest bias.",
+                f"{spec.name}: c_low versus DC bias, and its change from {reference}"
+                + ("; dotted: the nominal value (stated at 0 V)." if spec.nominal else "."),
             )
         )
         out.append(
             _table(
-                ["sample", "bias", "c_low", "change"],
+                ["sample", "bias", "c_low", f"change from {reference}"],
                 [
                     [esc(p.sample), esc(f"{p.bias_v:g} V"), _si(p.c_low, "F"), _percent(p.change)]
                     for p in points
