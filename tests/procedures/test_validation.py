@@ -165,6 +165,27 @@ BAD = [
         "needs a 'calibrate'",
     ),
     (
+        "open mount without calibrate",
+        GOOD + "steps: [mount_open, mount_short]\n",
+        19,
+        "steps[0]",
+        "'mount_open' needs a 'calibrate'",
+    ),
+    (
+        "open mount after the short",
+        GOOD + "steps: [calibrate, mount_short, mount_open, measure]\n",
+        19,
+        "steps[2]",
+        "'mount_open' cannot come after 'mount_short'",
+    ),
+    (
+        "misspelt open step",
+        GOOD + "steps: [calibrate, mount_opne, measure]\n",
+        19,
+        "steps[1]",
+        "not allowed",
+    ),
+    (
         "hybrid without crossover",
         GOOD + "calibration: {method: hybrid}\n",
         19,
@@ -219,6 +240,35 @@ def test_good_procedure_resolves_to_si_values(tmp_path):
     assert ids[0] == "calibrate/through"
     assert "mount_short/p3" in ids and "mount_short/p4" not in ids
     assert ids.index("measure/P1/s1/0V") < ids.index("measure/P1/s1/5V") < ids.index("fit")
+
+
+def test_open_mount_step_is_optional_and_per_position(tmp_path):
+    # Without a steps list the open capture is not taken (it is optional).
+    plain = load_plan(_write(tmp_path, GOOD))
+    assert not any(s.kind == "mount_open" for s in plain.steps)
+    plan = load_plan(
+        _write(tmp_path, GOOD + "steps: [calibrate, mount_open, mount_short, measure]\n")
+    )
+    ids = [s.id for s in plan.steps]
+    opens = [i for i in ids if i.startswith("mount_open/")]
+    # One per used position, after the calibration and before the shorts.
+    assert opens == ["mount_open/p1", "mount_open/p2", "mount_open/p3"]
+    assert ids.index("calibrate/through") < ids.index("mount_open/p1")
+    assert ids.index("mount_open/p3") < ids.index("mount_short/p1")
+    assert plan.estimated_seconds() > plain.estimated_seconds() - 1.0
+    assert plan.resolved["steps"] == ["calibrate", "mount_open", "mount_short", "measure"]
+
+
+def test_check_command_shows_the_open_mount_step(tmp_path, capsys):
+    result = CliRunner().invoke(cli, ["check", str(REPO / "procedures" / "series_resistors.yaml")])
+    assert result.exit_code == 0, result.output
+    assert "mount_open ×4" in result.output and "mount_short ×4" in result.output
+    bad = _write(tmp_path, GOOD + "steps: [mount_open, measure]\n")
+    from bench.cli import main
+
+    assert main(["check", str(bad)]) == 2
+    err = capsys.readouterr().err
+    assert "proc.yaml:19" in err and "'mount_open' needs a 'calibrate'" in err
 
 
 def test_batches_fill_the_fixture_in_order(tmp_path):
