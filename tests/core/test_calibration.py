@@ -249,3 +249,20 @@ def test_settings_check_says_what_differs() -> None:
         check_calibration_settings(stored, planned, source="runs/cal-1/manifest.json")
     assert "runs/cal-1/manifest.json" in str(info.value)
     assert "calibrate again" in str(info.value)
+
+
+def test_through_mismatch_bias_bound() -> None:
+    from bench.core.calibration import through_mismatch_bias
+
+    # Derived: −40 dB is |Γ| = 0.01 at each port, so (0.01 + 0.01)·50/50 = 2 %; with
+    # 499 Ω resistors the analyser's match is diluted to 0.02·50/549 = 0.182 %.
+    assert through_mismatch_bias(-40.0) == pytest.approx(0.02, rel=1e-12)
+    assert through_mismatch_bias(-40.0, 50.0, 499.0) == pytest.approx(0.02 * 50 / 549, rel=1e-12)
+    # Against the exact source-load impedance (REFERENCES §1, Duffy): Γ = 0.01 in phase
+    # at both ports, Zs = Zl = Rs + 50·1.01/0.99; Zs‖Zl against (Z0 + Rs)/2.
+    for series_r in (0.0, 499.0):
+        zs = series_r + 50.0 * 1.01 / 0.99
+        exact = (zs / 2) / ((50.0 + series_r) / 2) - 1
+        assert through_mismatch_bias(-40.0, 50.0, series_r) == pytest.approx(exact, rel=0.02)
+    with pytest.raises(ValueError, match="negative number of dB"):
+        through_mismatch_bias(3.0)

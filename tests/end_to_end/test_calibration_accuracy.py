@@ -85,3 +85,36 @@ def test_capacitance_within_target_on_every_error_box_draw(tmp_path, seed):
         low = (f < crossover) & np.asarray(s.data.inside_window, dtype=bool)
         bias = np.median(np.log(np.abs(s.data.z[low] / mounted[low])))
         assert abs(bias) < 0.01, f"seed {seed}, {s.part}: |Z| {bias:+.2%} below the crossover"
+
+
+def _corrector(name: str, **calibration):
+    from dataclasses import replace
+
+    from bench.procedure.processing import Corrector
+
+    plan = load_plan(PROCEDURES / name)
+    if calibration:
+        plan = replace(plan, calibration=replace(plan.calibration, **calibration))
+    f = np.geomspace(1e3, 1e8, 11)
+    thru = np.zeros((f.size, 2, 2), complex)
+    thru[:, 0, 1] = thru[:, 1, 0] = 1.0
+    return Corrector(plan, {"through": (f, thru)}), f
+
+
+def test_low_band_policy_and_the_through_only_warning():
+    # Without resistors the hybrid corrects the match below its crossover: no point is
+    # left on the plain through's scale, and there is no through-only warning.
+    corrector, f = _corrector("demo.yaml")
+    assert corrector.low_band == "match"
+    assert not corrector.through_band(f).any()
+    assert corrector.warnings == []
+    # With 499 Ω resistors the plain through response stays below the crossover.
+    corrector, f = _corrector("series_resistors.yaml", method="hybrid", crossover_hz=1e6)
+    assert corrector.low_band == "through"
+    np.testing.assert_array_equal(corrector.through_band(f), f < 1e6)
+    # A through-only run states its expected mismatch bias (derived: −40 dB is 1 % per
+    # port, 2 % at 50 Ω; 0.02·50/549 = 0.18 % behind 499 Ω) and what removes it.
+    (warning,) = _corrector("guided_single_part.yaml")[0].warnings
+    assert "raw port match" in warning and "2.0%" in warning and "hybrid" in warning
+    (warning,) = _corrector("series_resistors.yaml")[0].warnings
+    assert "0.2%" in warning and "dilute" in warning
