@@ -78,3 +78,49 @@ def test_live_progress_display_runs_unattended(tmp_path, kit):
     assert "MC22-6V3/s1" in result.output
     root = next((tmp_path / "runs").iterdir())
     assert json.loads((root / "manifest.json").read_text())["state"] == "complete"
+
+
+def test_open_mount_step_resumes_with_its_sweeps_kept(tmp_path, sim, kit):
+    # A guided session stopped by the operator after the second open capture: the
+    # first open's sweep is kept as it was, the second's too (it was stored before the
+    # question), and the resumed session asks again to empty the mounts (physical state
+    # is never trusted across sessions) and goes on to the shorts and the parts.
+    text = kit.SMALL.replace(
+        "steps: [calibrate, mount_short, measure, fit, export]",
+        "steps: [calibrate, mount_open, mount_short, measure, fit]",
+    )
+    plan, store = kit.start_run(tmp_path, text)
+
+    # Answers after each sweep: the through, open 1, then stop at open 2.
+    def first(bench):
+        return ScriptedOperator(bench, guided=True, decisions=["continue"] * 2 + ["stop"])
+
+    with pytest.raises(RunError, match="stopped"):
+        kit.run_on(sim, plan, store, operator=first)
+    plan2, store2 = kit.reopen(store)
+    assert store2.step_state("mount_open/p1") == DONE
+    assert store2.first_incomplete() == "mount_open/p2"
+    kept = kit.raw_files(store2)
+    assert {"mount_open_p1.s2p", "mount_open_p2.s2p"} <= set(kept)
+    assert "1" in store2.manifest["mount_open"]
+
+    hands: list[ScriptedOperator] = []
+
+    def second(bench):
+        hands.append(ScriptedOperator(bench))
+        return hands[-1]
+
+    runner = kit.run_on(sim, plan2, store2, operator=second)
+    assert store2.manifest["state"] == "complete"
+    after = kit.raw_files(store2)
+    assert all(after[k] == v for k, v in kept.items()), "stored sweeps are not taken again"
+    assert any(a.startswith("emptied mount") and "2" in a for a in hands[0].actions)
+    assert set(store2.manifest["mount_open"]) == {"1", "2", "3"}
+    # A plain 50 ohm set-up cannot reach a fraction of a pF (REFERENCES §1: its window
+    # ends near 200 ohm): the open is recorded as not used, and said so, not guessed.
+    summary = runner.summary
+    assert summary is not None
+    records = summary.setup["mount_open"]
+    assert all(r["capacitance_f"] is None for r in records.values())
+    assert any("open not used" in w and "reach" in w for w in summary.warnings)
+    assert summary.setup["fixture_removal"].startswith("mount short")
