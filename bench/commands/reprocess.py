@@ -102,6 +102,9 @@ def command(
     store.log(f"reprocessed with {settings}")
     written = write_outputs(store, summary)
     fitted = sum(1 for s in summary.samples if s.fit is not None)
-    click.echo(f"reprocessed {len(summary.samples)} sample(s), {fitted} fitted, in {store.root}")
+    count = len(summary.samples)
+    click.echo(
+        f"reprocessed {count} sample{'s' if count != 1 else ''}, {fitted} fitted, in {store.root}"
+    )
     if written.get("report"):
         click.echo(f"report: {written['report']}")

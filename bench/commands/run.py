@@ -90,6 +90,9 @@ def execute(
     say = display.message
     with contextlib.ExitStack() as stack:
         if sim is not None:
+            # Recorded so that a resume goes back to the simulator, never to the
+            # instruments the procedure names (a dry run's sweeps must not meet real ones).
+            store.update("simulated", {"scenario": sim, "time_scale": time_scale})
             bench = stack.enter_context(simulated_bench(sim, time_scale=time_scale, seed=seed))
             plan = with_resources(plan, bench.resources)
         instruments = stack.enter_context(open_instruments(plan, scripted=sim is not None))
@@ -173,7 +176,7 @@ def finished_text(store: RunStore) -> str:
 @click.option(
     "--time-scale",
     type=float,
-    default=SIM_TIME_SCALE,
+    default=None,
     hidden=True,
     help="With --sim: compress the simulated instruments' time by this factor.",
 )
@@ -184,7 +187,7 @@ def command(
     out: Path,
     resume: Path | None,
     assume_yes: bool,
-    time_scale: float,
+    time_scale: float | None,
     quiet: bool,
 ) -> None:
     """Run PROCEDURE on the instruments it names, or against the simulator with --sim."""
@@ -198,11 +201,18 @@ def command(
                 hint="a resumed run uses the procedure stored in its folder",
             )
         store, plan = resumed(resume)
+        simulated = store.manifest.get("simulated")
+        if sim is None and isinstance(simulated, dict):
+            sim = str(simulated.get("scenario") or "demo")
+            if time_scale is None:
+                time_scale = float(simulated.get("time_scale") or SIM_TIME_SCALE)
+            click.echo(f"the run was started on the simulated bench '{sim}'; resuming there")
     elif procedure is None:
         raise InputError("no procedure given", hint="zbench run PROCEDURE.yaml [--sim]")
     else:
         plan = load_plan(procedure)
         store = new_store(plan, procedure, out)
     click.echo(f"run folder: {store.root}")
-    execute(plan, store, sim=sim, assume_yes=assume_yes, time_scale=time_scale, quiet=quiet)
+    scale = SIM_TIME_SCALE if time_scale is None else time_scale
+    execute(plan, store, sim=sim, assume_yes=assume_yes, time_scale=scale, quiet=quiet)
     click.echo(finished_text(store))

@@ -62,6 +62,12 @@ def test_guided_stop_on_stdin_leaves_a_resumable_run(tmp_path, kit):
     assert "zbench run --resume" in str(result.exception)
     root = _run_folder(result.output)
     assert _manifest(root)["state"] == "stopped"
+    # The hint has no --sim: a resume goes back to the simulated bench the run was
+    # started on, never to the instruments the procedure names.
+    result = CliRunner().invoke(cli, ["run", "--resume", str(root), "--quiet"], input="\n" * 4)
+    assert result.exit_code == 0, result.output + repr(result.exception)
+    assert "simulated bench 'bench_single'; resuming there" in result.output
+    assert _manifest(root)["state"] == "complete"
 
 
 class _CutAfterPlacing(ScriptedOperator):
@@ -89,7 +95,7 @@ def test_resume_reprocess_and_report_commands(tmp_path, sim, kit):
 
     result = CliRunner().invoke(cli, ["reprocess", str(store.root), "--model", "series-rlc"])
     assert result.exit_code == 0, result.output + repr(result.exception)
-    assert "3 sample(s), 3 fitted" in result.output
+    assert "3 samples, 3 fitted" in result.output
     fit = json.loads((store.root / "models" / "MC22-6V3_s1.fit.json").read_text())
     assert fit["model"] == "series-rlc"
     assert _manifest(store.root)["reprocess"]["model"] == "series-rlc"
