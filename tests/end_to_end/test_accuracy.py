@@ -249,6 +249,12 @@ def test_inductor_resonance_matches_the_bare_part(outcome, procedure, part, samp
     z_true, _, kind = _truth(result, s)
     true_marks = landmarks_for(kind, s.data.f, z_true)
     _close(s.fit.landmarks["srf"], true_marks["srf"], "srf")
+    # The comparison has teeth: left in, the pads would put the SRF outside the target.
+    pad = result.scenario.mounts[s.position - 1].open_capacitance
+    with_pads = 1.0 / (1.0 / z_true + 2j * np.pi * s.data.f * pad)
+    assert (
+        landmarks_for(kind, s.data.f, with_pads)["srf"] < (1 - TOLERANCE["srf"]) * true_marks["srf"]
+    )
 
 
 def test_fitted_pads_match_the_mounts(outcome):
