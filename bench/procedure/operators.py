@@ -218,7 +218,10 @@ class ConsoleOperator(Operator):
             self._later("remove the isolation transformer from port 2 (cable connected directly)")
 
     def connect_standard(self, standard: str) -> None:
-        self._action(f"Connect {STANDARD_WORDS[standard]}.")
+        if standard == "through":
+            self._action("Join the two cable ends with the THROUGH adapter.")
+        else:
+            self._action(f"Connect {STANDARD_WORDS[standard]}.")
 
     def connect_fixture(self) -> None:
         self._action("Connect both cables to the fixture.")
