@@ -472,9 +472,16 @@ def build_summary(
         },
         calibration=dict(manifest.get("calibration", {})),
         ground_loop=loop_info,
-        warnings=tuple(dict.fromkeys([*manifest.get("warnings", []), *warnings])),
+        warnings=tuple(dict.fromkeys([*_stored_warnings(manifest, opens), *warnings])),
         software_version=__version__,
     )
+
+
+def _stored_warnings(manifest: dict[str, Any], opens: dict[int, OpenResult]) -> list[str]:
+    """The run's own warnings, less its verdicts on the opens processing has just redone
+    (the run judged them before the mount short existed)."""
+    redone = tuple(f"position {pos}: open not used" for pos in opens)
+    return [w for w in manifest.get("warnings", []) if not (redone and w.startswith(redone))]
 
 
 def _sample(
