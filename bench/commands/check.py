@@ -4,11 +4,12 @@ from __future__ import annotations
 
 import textwrap
 from pathlib import Path
+from typing import Any
 
 import click
 
 from bench.errors import InputError
-from bench.procedure.plan import Plan, load_plan
+from bench.procedure.plan import SWEEP_STEPS, Plan, load_plan
 from bench.units import format_si
 
 # Keeps a number with its unit when a line is wrapped (textwrap breaks at spaces only).
@@ -24,6 +25,19 @@ def _duration(seconds: float) -> str:
     if minutes:
         return f"{minutes} min {secs:02d} s"
     return f"{secs} s"
+
+
+def _nominal_text(spec: Any) -> str:
+    """``22 µF ±20 %``, or ``120 Ω ±25 % at 100 MHz`` for a bead; empty without a nominal."""
+    if spec.nominal is None:
+        return ""
+    unit = {"mlcc": "F", "bulk": "F", "inductor": "H", "bead": "Ω"}[spec.kind]
+    text = format_si(spec.nominal, unit)
+    if spec.tolerance:
+        text += f" ±{spec.tolerance * 100:g} %"
+    if spec.kind == "bead" and spec.nominal_at_hz:
+        text += f" at {format_si(spec.nominal_at_hz, 'Hz')}"
+    return text
 
 
 def describe_plan(plan: Plan) -> str:
@@ -53,16 +67,12 @@ def describe_plan(plan: Plan) -> str:
         text += f"; reuse {cal.reuse_run} if younger than {_duration(cal.max_age_s)}"
     lines.append(f"  calibrate  {text}")
     lines.append("  parts")
-    for part in plan.parts:
+    nominals = [_nominal_text(part.spec) for part in plan.parts]
+    width = max([14, *(len(text) for text in nominals)])
+    for part, nominal in zip(plan.parts, nominals, strict=True):
         spec = part.spec
-        nominal = ""
-        if spec.nominal is not None:
-            unit = {"mlcc": "F", "bulk": "F", "inductor": "H", "bead": "Ω"}[spec.kind]
-            nominal = format_si(spec.nominal, unit)
-            if spec.tolerance:
-                nominal += f" ±{spec.tolerance * 100:g} %"
         lines.append(
-            f"    {spec.name:<14} {spec.kind:<8} {nominal:<14} model {spec.model:<10} "
+            f"    {spec.name:<14} {spec.kind:<8} {nominal:<{width}} model {spec.model:<10} "
             f"samples {', '.join(part.samples)}"
         )
         if part.bias != (0.0,):
@@ -72,7 +82,13 @@ def describe_plan(plan: Plan) -> str:
                 "part, bias-tee, DC-block and source ratings)"
             )
             lines.extend(
-                textwrap.wrap(text, width=88, initial_indent=" " * 19, subsequent_indent=" " * 19)
+                textwrap.wrap(
+                    text,
+                    width=88,
+                    initial_indent=" " * 19,
+                    subsequent_indent=" " * 19,
+                    break_on_hyphens=False,
+                )
             )
     if plan.biased:
         b = plan.bias
@@ -86,7 +102,11 @@ def describe_plan(plan: Plan) -> str:
         )
         lines.extend(
             textwrap.wrap(
-                text, width=88, initial_indent="  DC bias    ", subsequent_indent=" " * 13
+                text,
+                width=88,
+                initial_indent="  DC bias    ",
+                subsequent_indent=" " * 13,
+                break_on_hyphens=False,
             )
         )
     lines.append("  batches    (position: part/sample)")
@@ -101,7 +121,7 @@ def describe_plan(plan: Plan) -> str:
     lines.append(
         "  steps      " + ", ".join(f"{k} ×{n}" if n > 1 else k for k, n in counts.items())
     )
-    sweeps = sum(counts.get(k, 0) for k in ("calibrate", "mount_short", "measure"))
+    sweeps = sum(counts.get(k, 0) for k in SWEEP_STEPS)
     lines.append(f"  sweeps     {sweeps * s.averages}")
     lines.append(f"  estimated  {_duration(plan.estimated_seconds())}")
     return "\n".join(lines)
