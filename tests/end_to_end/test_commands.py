@@ -156,3 +156,20 @@ def test_check_describes_a_bias_procedure_in_plain_words():
     assert "local safety rules and the instruments' manuals take precedence" in text
     assert "limit 10\u00a0V (the lowest of the part, bias-tee, DC-block and source ratings)" in text
     assert all(len(line) <= 100 for line in result.output.splitlines())
+
+
+def test_check_counts_every_sweep_step_and_states_a_bead_frequency():
+    repo = Path(__file__).resolve().parents[2]
+    path = repo / "procedures" / "series_resistors.yaml"
+    result = CliRunner().invoke(cli, ["check", str(path)])
+    assert result.exit_code == 0, result.output
+    assert "120 Ω ±25 % at 100 MHz" in result.output
+    steps = re.search(r"^  steps +(.*)$", result.output, re.M).group(1).split(", ")
+    counts = {}
+    for entry in steps:
+        name, _, n = entry.partition(" ×")
+        counts[name] = int(n or 1)
+    swept = sum(counts.get(k, 0) for k in ("calibrate", "mount_open", "mount_short", "measure"))
+    averages = re.search(r"(\d+) sweeps averaged", result.output)
+    expected = swept * (int(averages.group(1)) if averages else 1)
+    assert re.search(rf"^  sweeps +{expected}$", result.output, re.M)
