@@ -45,15 +45,15 @@ def parse_iso(text: str) -> _dt.datetime:
     return _dt.datetime.fromisoformat(text)
 
 
+# Raw-file prefix per step kind; a part's sweeps are named by the part alone.
+_STEM_PREFIXES = {"measure": "", "calibrate": "cal", "mount_short": "short", "mount_open": "open"}
+
+
 def file_stem(step_id: str) -> str:
     """A file-name stem for a step id: ``measure/MC22-6V3/s1/0V`` -> ``MC22-6V3_s1_0V``."""
-    parts = step_id.split("/")
-    if parts[0] == "measure":
-        parts = parts[1:]
-    elif parts[0] == "calibrate":
-        parts = ["cal", *parts[1:]]
-    elif parts[0] == "mount_short":
-        parts = ["short", *parts[1:]]
+    kind, *rest = step_id.split("/")
+    prefix = _STEM_PREFIXES.get(kind, kind)
+    parts = [prefix, *rest] if prefix else rest
     return re.sub(r"[^A-Za-z0-9._-]", "_", "_".join(parts))
 
 

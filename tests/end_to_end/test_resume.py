@@ -101,7 +101,7 @@ def test_open_mount_step_resumes_with_its_sweeps_kept(tmp_path, sim, kit):
     assert store2.step_state("mount_open/p1") == DONE
     assert store2.first_incomplete() == "mount_open/p2"
     kept = kit.raw_files(store2)
-    assert {"mount_open_p1.s2p", "mount_open_p2.s2p"} <= set(kept)
+    assert {"open_p1.s2p", "open_p2.s2p"} <= set(kept)
     assert "1" in store2.manifest["mount_open"]
 
     hands: list[ScriptedOperator] = []

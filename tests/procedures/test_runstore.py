@@ -104,6 +104,7 @@ def test_file_stems():
     assert file_stem("measure/MC22-6V3/s1/2.5V") == "MC22-6V3_s1_2.5V"
     assert file_stem("calibrate/short") == "cal_short"
     assert file_stem("mount_short/p3") == "short_p3"
+    assert file_stem("mount_open/p2") == "open_p2"
 
 
 def test_console_operator_reads_answers():
