@@ -96,7 +96,7 @@ def test_guided_ground_loop_without_transformer_stops_with_advice(tmp_path, sim,
     assert list((store.root / "raw" / "rejected").glob("short_p1*.s2p")), "sweep kept aside"
 
 
-def test_unattended_ground_loop_marks_low_frequencies_invalid(tmp_path, sim, kit):
+def test_unattended_ground_loop_is_detected_and_warned(tmp_path, sim, kit):
     text = kit.SMALL.replace("isolation_transformer: true", "isolation_transformer: false")
     plan, store = kit.start_run(tmp_path, text)
     runner = kit.run_on(sim, plan, store)
