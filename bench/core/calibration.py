@@ -114,6 +114,95 @@ def ideal_standards(f: ArrayLike) -> dict[str, ComplexArray]:
     return {"short": -eye, "open": eye.copy(), "load": np.zeros((nf, 2, 2), complex), "thru": thru}
 
 
+@dataclass(frozen=True)
+class CalibrationKit:
+    """The definitions of a calibration kit's standards, as its data sheet gives them.
+
+    Short: an inductance ``short_inductance`` (H) to ground. Open: a fringing capacitance
+    ``open_capacitance`` (F). Load: ``load_resistance`` (Ω) in series with
+    ``load_inductance`` (H). Each of the three may sit behind a lossless offset line of
+    the reference impedance with one-way delay ``short_delay``, ``open_delay``,
+    ``load_delay`` (s); the through has one-way delay ``through_delay`` (s). All values
+    are ≥ 0; the defaults are ideal flush standards (short −1, open +1, load Z0).
+    """
+
+    short_inductance: float = 0.0
+    open_capacitance: float = 0.0
+    load_resistance: float | None = None
+    load_inductance: float = 0.0
+    short_delay: float = 0.0
+    open_delay: float = 0.0
+    load_delay: float = 0.0
+    through_delay: float = 0.0
+
+    def __post_init__(self) -> None:
+        for name in (
+            "short_inductance",
+            "open_capacitance",
+            "load_inductance",
+            "short_delay",
+            "open_delay",
+            "load_delay",
+            "through_delay",
+        ):
+            value = getattr(self, name)
+            if not (math.isfinite(value) and value >= 0):
+                raise ValueError(
+                    f"calibration kit {name} must be a finite value >= 0, got {value!r}"
+                )
+        r = self.load_resistance
+        if r is not None and not (math.isfinite(r) and r > 0):
+            raise ValueError(f"calibration kit load_resistance must be > 0 ohm, got {r!r}")
+
+    @property
+    def is_ideal(self) -> bool:
+        """True when every standard is the ideal flush one (the load equal to z0)."""
+        return self == CalibrationKit()
+
+
+def kit_standards(f: ArrayLike, kit: CalibrationKit, z0: float = 50.0) -> dict[str, ComplexArray]:
+    """The standards' own responses (nf, 2, 2) on both ports, from their definitions.
+
+    ``f`` in Hz, ``z0`` (Ω, > 0) the reference impedance. Each one-port standard of
+    impedance ``Z`` behind an offset of one-way delay ``τ`` reflects
+    ``Γ = e^(−2jωτ)·(Z − Z0)/(Z + Z0)`` (Pozar, *Microwave Engineering*, §2.3 and §2.5,
+    lossless line of Z0 [from memory]): the short ``Z = jωL``, the open
+    ``Z = 1/(jωC)`` so ``Γ = (1 − jωCZ0)/(1 + jωCZ0)``, the load ``Z = R + jωL``. These
+    are the first terms of the usual kit models (open C0, short L0, a resistive load with
+    its series inductance; common practice, no source). The through is a matched line:
+    ``S21 = S12 = e^(−jωτ)``, ``S11 = S22 = 0``. Leakage (S21 of a reflect) is zero.
+    The result is the ``ideals`` argument of :func:`calibrate`.
+    """
+    ff = np.asarray(f, dtype=float)
+    if not (math.isfinite(z0) and z0 > 0):
+        raise ValueError(f"z0 must be > 0 ohm, got {z0!r}")
+    w = 2 * np.pi * ff
+    nf = ff.size
+
+    def offset(delay: float) -> ComplexArray:
+        return np.exp(-2j * w * delay)
+
+    def gamma(z: ComplexArray) -> ComplexArray:
+        return (z - z0) / (z + z0)
+
+    # The open in admittance form, so a zero capacitance is exactly Γ = +1.
+    y_open = 1j * w * kit.open_capacitance * z0
+    r_load = z0 if kit.load_resistance is None else kit.load_resistance
+    out: dict[str, ComplexArray] = {}
+    for name, g in (
+        ("short", gamma(1j * w * kit.short_inductance) * offset(kit.short_delay)),
+        ("open", (1 - y_open) / (1 + y_open) * offset(kit.open_delay)),
+        ("load", gamma(r_load + 1j * w * kit.load_inductance) * offset(kit.load_delay)),
+    ):
+        s = np.zeros((nf, 2, 2), dtype=complex)
+        s[:, 0, 0] = s[:, 1, 1] = g
+        out[name] = s
+    thru = np.zeros((nf, 2, 2), dtype=complex)
+    thru[:, 0, 1] = thru[:, 1, 0] = np.exp(-1j * w * kit.through_delay)
+    out["thru"] = thru
+    return out
+
+
 def through_response(raw_dut: ArrayLike, raw_thru: ArrayLike) -> ComplexArray:
     """Through-response normalisation of a raw two-port sweep (nf, 2, 2).
 

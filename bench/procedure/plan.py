@@ -13,6 +13,7 @@ from dataclasses import asdict, dataclass, field
 from pathlib import Path
 from typing import Any
 
+from bench.core.calibration import CalibrationKit
 from bench.errors import ProcedureError
 from bench.procedure.loader import ProcedureErrors, SourceDocument, load_document
 from bench.procedure.schema import DEFAULT_STEPS, STEP_NAMES, parse_duration
@@ -74,10 +75,14 @@ class Fixture:
 
 @dataclass(frozen=True)
 class Calibration:
+    """``kit``: the standards' definitions (:class:`bench.core.calibration.CalibrationKit`,
+    ideal flush standards unless the procedure gives ``calibration.kit``)."""
+
     method: str = "through"
     crossover_hz: float | None = None
     reuse_run: str | None = None
     max_age_s: float = 8 * 3600.0
+    kit: CalibrationKit = field(default_factory=CalibrationKit)
 
     @property
     def standards(self) -> tuple[str, ...]:
@@ -229,6 +234,48 @@ def _number(doc: SourceDocument, path: tuple[Any, ...], unit: str | None, defaul
         raise doc.error(
             path, str(exc).removeprefix("value: "), hint="write a number with its unit"
         ) from None
+
+
+#: ``calibration.kit`` keys, their units and whether 0 is allowed (the load must be > 0).
+_KIT_KEYS: tuple[tuple[str, str, bool], ...] = (
+    ("short_inductance", "H", True),
+    ("open_capacitance", "F", True),
+    ("load_resistance", "ohm", False),
+    ("load_inductance", "H", True),
+    ("short_delay", "duration", True),
+    ("open_delay", "duration", True),
+    ("load_delay", "duration", True),
+    ("through_delay", "duration", True),
+)
+
+
+def _kit(doc: SourceDocument, errors: list[ProcedureError]) -> CalibrationKit:
+    """``calibration.kit`` as a :class:`CalibrationKit`; bad values are added to ``errors``
+    (and left ideal) so every error of the file is reported at once."""
+    values: dict[str, float] = {}
+    for key, unit, zero_ok in _KIT_KEYS:
+        path = ("calibration", "kit", key)
+        try:
+            value = _number(doc, path, unit, None)
+        except ProcedureError as exc:
+            errors.append(exc)
+            continue
+        if value is None:
+            continue
+        if not math.isfinite(value) or value < 0 or (value == 0 and not zero_ok):
+            bound = ">= 0" if zero_ok else "> 0"
+            shown = "s" if unit == "duration" else unit
+            errors.append(
+                doc.error(
+                    path,
+                    f"a kit's {key.replace('_', ' ')} must be {bound} {shown}, got {value:g}",
+                    hint="copy the value from the calibration kit's data sheet; leave the "
+                    "key out for an ideal standard",
+                )
+            )
+            continue
+        values[key] = value
+    return CalibrationKit(**values)
 
 
 def _fraction(doc: SourceDocument, path: tuple[Any, ...], default: float | None) -> float | None:
@@ -404,6 +451,7 @@ def build_plan(doc: SourceDocument) -> Plan:
         reuse_run=reuse.get("run"),
         max_age_s=attempt(_number, doc, ("calibration", "reuse", "max_age"), "duration", 28800.0)
         or 28800.0,
+        kit=_kit(doc, errors),
     )
     if calibration.method == "hybrid":
         if calibration.crossover_hz is None:

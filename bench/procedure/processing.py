@@ -170,7 +170,19 @@ class Corrector:
             kwargs["crossover_hz"] = self.plan.calibration.crossover_hz
         if self.plan.calibration.method == "hybrid":
             kwargs["low_band"] = self.low_band
+        if self.plan.calibration.method != "through":
+            kwargs["ideals"] = self.ideals
         return calibrate(f, s_raw, standards, self.plan.calibration.method, **kwargs)
+
+    @property
+    def ideals(self) -> dict[str, np.ndarray]:
+        """The standards' own responses on the calibration grid, from the procedure's
+        ``calibration.kit`` (ideal flush standards when it gives none). Treating a real
+        kit as ideal leaves its definitions in every corrected point: a 50.2 Ω load read
+        as 50 Ω scales a low-impedance part's |Z| by 50/50.2 (−0.4 %)."""
+        from bench.core.calibration import kit_standards
+
+        return kit_standards(self.f, self.plan.calibration.kit, self.plan.fixture.z0)
 
     def through_band(self, f: np.ndarray) -> np.ndarray:
         """True at the points :meth:`correct` leaves on the through's own scale (plain

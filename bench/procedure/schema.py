@@ -22,7 +22,11 @@ The keys, in brief (``procedures/*.yaml`` are worked examples):
   (Ω at each port), ``isolation_transformer`` (bool), ``bias_tee_rating`` and
   ``dc_block_rating`` (V), ``z0`` (Ω).
 - ``calibration``: ``method`` ``through``/``solt``/``hybrid``, ``crossover`` (Hz, hybrid),
-  ``reuse: {run: RUNDIR, max_age: 8 h}``.
+  ``reuse: {run: RUNDIR, max_age: 8 h}``, ``kit`` (the standards' definitions from the
+  kit's data sheet, each optional and ideal when absent: ``short_inductance`` H,
+  ``open_capacitance`` F, ``load_resistance`` Ω (default z0), ``load_inductance`` H,
+  one-way offset delays ``short_delay``, ``open_delay``, ``load_delay``,
+  ``through_delay`` in s, e.g. ``12 ps``).
 - ``analysis``: ``noise_floor``, ``trace_noise`` (dB), ``tolerance`` (accuracy target of
   the window), ``mount`` ``measured``/``fitted``.
 - ``bias``: ``ramp_step`` (V), ``ramp_dwell``, ``settle``, ``discharge`` (durations),
@@ -184,6 +188,21 @@ PROCEDURE_SCHEMA: dict[str, Any] = {
             "properties": {
                 "method": {"enum": ["through", "solt", "hybrid"]},
                 "crossover": _quantity("Hz", "hybrid: through below, SOLT above"),
+                "kit": {
+                    "type": "object",
+                    "additionalProperties": False,
+                    "description": "the standards' definitions (all optional, ideal if absent)",
+                    "properties": {
+                        "short_inductance": _quantity("H", "inductance of the short"),
+                        "open_capacitance": _quantity("F", "fringing capacitance of the open"),
+                        "load_resistance": _quantity("ohm", "resistance of the load"),
+                        "load_inductance": _quantity("H", "series inductance of the load"),
+                        "short_delay": _duration("one-way offset delay of the short (s)"),
+                        "open_delay": _duration("one-way offset delay of the open (s)"),
+                        "load_delay": _duration("one-way offset delay of the load (s)"),
+                        "through_delay": _duration("one-way delay of the through (s)"),
+                    },
+                },
                 "reuse": {
                     "type": "object",
                     "additionalProperties": False,
