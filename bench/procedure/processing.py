@@ -278,7 +278,7 @@ def open_fit(
     except ValueError as exc:
         return OpenResult(position, None, f"position {position}: open not used: {exc}")
     spread = f" ± {format_si(fitted.c_sigma, 'F')}" if np.isfinite(fitted.c_sigma) else ""
-    conductance = f", shunt {format_si(1.0 / fitted.g, 'ohm')}" if fitted.g > 0 else ""
+    conductance = f", shunt {format_si(1.0 / fitted.g, 'Ω')}" if fitted.g > 0 else ""
     message = (
         f"position {position}: pads {format_si(fitted.c, 'F')}{spread}{conductance} "
         f"from {fitted.points_used} points, {format_si(fitted.f_min, 'Hz')} to "
@@ -308,6 +308,26 @@ def ground_loop(f: np.ndarray, z_short: np.ndarray, position: int) -> GroundLoop
         detected=bool(check.detected),
         valid_above_hz=float(check.valid_above_hz or 0.0),
         message=str(check.message),
+    )
+
+
+def ground_loop_note(loop: GroundLoopResult, analysis: Analysis) -> str:
+    """The run's one note on a ground loop found at ``loop.position``, in plain words.
+
+    With a measured mount the loop's error leaves with the short and every point is kept;
+    with a fitted mount the points below the loop's corner are not used (each sample's
+    note counts them). The runner (when the short is captured) and :func:`build_summary`
+    write the same text, so the run's notes give each position once.
+    """
+    below = format_si(loop.valid_above_hz, "Hz")
+    if loop_removed_with_short(analysis):
+        return (
+            f"position {loop.position}: ground loop below {below}; its error is in the "
+            "mount short too and is removed with it (all points kept)"
+        )
+    return (
+        f"position {loop.position}: ground loop below {below}; a fitted mount cannot "
+        "follow it, so the points below are not used in the fits"
     )
 
 
@@ -358,6 +378,31 @@ def loop_removed_with_short(analysis: Analysis) -> bool:
     return analysis.mount == "measured"
 
 
+def z_at_nominal(spec: Any, data: ImpedanceData) -> float | None:
+    """A bead's |Z| (Ω) at the frequency its nominal is stated at (``spec.nominal_at_hz``),
+    by log-log interpolation of the measured points; None for other parts, without that
+    frequency or when it lies outside the sweep."""
+    if spec.kind != "bead" or not spec.nominal_at_hz:
+        return None
+    f = np.asarray(data.f, dtype=float)
+    magnitude = np.abs(np.asarray(data.z))
+    ok = np.isfinite(magnitude) & (magnitude > 0) & (f > 0)
+    if np.count_nonzero(ok) < 2 or not f[ok][0] <= spec.nominal_at_hz <= f[ok][-1]:
+        return None
+    log_z = np.interp(np.log(spec.nominal_at_hz), np.log(f[ok]), np.log(magnitude[ok]))
+    return float(np.exp(log_z))
+
+
+def main_value(spec: Any, landmarks: dict[str, Any], data: ImpedanceData) -> float | None:
+    """The value a part's tolerance is stated on, from the landmarks of its measured data
+    (the live line, before any fit): ``c_low`` (F) for capacitors, ``l_low`` (H) for
+    inductors, a bead's |Z| (Ω) at its stated frequency; None when there is none."""
+    if spec.kind == "bead":
+        return z_at_nominal(spec, data)
+    value = landmarks.get("c_low" if spec.kind in ("mlcc", "bulk") else "l_low")
+    return float(value) if isinstance(value, (int, float)) and np.isfinite(value) else None
+
+
 def fit_sample(
     model: str, data: ImpedanceData, valid_above_hz: float = 0.0
 ) -> tuple[Any, str | None]:
@@ -366,14 +411,56 @@ def fit_sample(
         from bench.core.fitting import fit_impedance
     except ImportError:
         return None, "fitting is not available in this build"
-    valid = np.asarray(data.inside_window, dtype=bool) & (data.f >= valid_above_hz)
+    inside = np.asarray(data.inside_window, dtype=bool)
+    valid = inside & (data.f >= valid_above_hz)
     try:
         fit = fit_impedance(
             data.f, data.z, model=model, rel_uncertainty=data.rel_uncertainty, valid=valid
         )
     except FitError as exc:
         return None, str(exc)
+    if valid_above_hz > 0:
+        fit = _outside_window_only(fit, data, inside, valid)
     return fit, None
+
+
+#: The fitter's note on points it was told not to use (``valid`` False).
+_OUTSIDE_NOTE = "{n} of {total} points lie outside the measurable window and were not used"
+
+
+def _outside_window_only(
+    fit: Any, data: ImpedanceData, inside: np.ndarray, valid: np.ndarray
+) -> Any:
+    """``fit`` with only the points really outside the window counted as outside.
+
+    The fitter counts every point it was told not to use; points left out below a
+    ground-loop corner are inside the window, and the sample's own note counts them
+    (:func:`_sample`). Its quality and warnings are put right here.
+    """
+    z = np.asarray(data.z)
+    finite = np.isfinite(z) & (z != 0) & np.isfinite(np.asarray(data.rel_uncertainty))
+    dropped = int(np.count_nonzero(finite & ~valid))
+    outside = int(np.count_nonzero(finite & ~inside))
+    if dropped == outside:
+        return fit
+    total = z.size
+    old = _OUTSIDE_NOTE.format(n=dropped, total=total)
+    warnings = []
+    for text in fit.warnings:
+        if text == old:
+            if outside:
+                warnings.append(_OUTSIDE_NOTE.format(n=outside, total=total))
+            continue
+        if text.startswith("r_dc (") and "lie outside the measurable window" in text:
+            # The fitter's reason for an unmeasured r_dc: its low band was not used, here
+            # because of the ground loop as much as the window.
+            text = text.replace(
+                "lie outside the measurable window",
+                "were not used (outside the measurable window or below the ground loop)",
+            )
+        warnings.append(text)
+    quality = replace(fit.quality, points_outside_window=outside)
+    return replace(fit, quality=quality, warnings=tuple(warnings))
 
 
 def build_summary(
@@ -441,18 +528,8 @@ def build_summary(
         for pos, r in loops.items()
     }
     for r in loops.values():
-        if not r.detected:
-            continue
-        if loop_removed_with_short(analysis):
-            warnings.append(
-                f"position {r.position}: ground loop below {format_si(r.valid_above_hz, 'Hz')}; "
-                "its error is in the mount short too and was removed with it"
-            )
-        else:
-            warnings.append(
-                f"position {r.position}: ground loop; points below "
-                f"{format_si(r.valid_above_hz, 'Hz')} were not used in the fits"
-            )
+        if r.detected:
+            warnings.append(ground_loop_note(r, analysis))
     if plan.fixture.series_r > 0 and plan.calibration.method != "through":
         warnings.append(
             "SOLT with port series resistors calibrates them out: the corrected data are "
@@ -484,15 +561,22 @@ def build_summary(
         },
         calibration=dict(manifest.get("calibration", {})),
         ground_loop=loop_info,
-        warnings=tuple(dict.fromkeys([*_stored_warnings(manifest, opens), *warnings])),
+        warnings=tuple(dict.fromkeys([*_stored_warnings(manifest, opens, loops), *warnings])),
         software_version=__version__,
     )
 
 
-def _stored_warnings(manifest: dict[str, Any], opens: dict[int, OpenResult]) -> list[str]:
-    """The run's own warnings, less its verdicts on the opens processing has just redone
-    (the run judged them before the mount short existed)."""
-    redone = tuple(f"position {pos}: open not used" for pos in opens)
+def _stored_warnings(
+    manifest: dict[str, Any],
+    opens: dict[int, OpenResult],
+    loops: dict[int, GroundLoopResult] | None = None,
+) -> list[str]:
+    """The run's own warnings, less its verdicts on the opens and ground loops processing
+    has just redone (the run judged the opens before the mount short existed, and a
+    reprocess may judge a loop with another mount setting)."""
+    redone = tuple(f"position {pos}: open not used" for pos in opens) + tuple(
+        f"position {pos}: ground loop" for pos in loops or {}
+    )
     return [w for w in manifest.get("warnings", []) if not (redone and w.startswith(redone))]
 
 
@@ -526,7 +610,13 @@ def _sample(
     if removed:
         notes = ("ground loop: removed with the measured mount short (all points kept)",)
     elif valid_above:
-        notes = (f"ground loop: points below {format_si(valid_above, 'Hz')} not used",)
+        # Inside the window but left out: counted here, not among the points outside it.
+        inside = np.asarray(data.inside_window, dtype=bool)
+        below = int(np.count_nonzero(inside & (f < valid_above)))
+        notes = (
+            f"ground loop: {below} point{'s' if below != 1 else ''} below "
+            f"{format_si(valid_above, 'Hz')} not used (a fitted mount cannot follow the loop)",
+        )
     if result is not None and getattr(result, "warnings", ()):
         notes = (*notes, *result.warnings)
     files = store.step_files(step.id)

@@ -29,12 +29,16 @@ from bench.procedure.operators import REPEAT, SKIP, STOP, Operator, OperatorStop
 from bench.procedure.plan import SWEEP_STEPS, Plan, Step
 from bench.procedure.processing import (
     Corrector,
+    averaged,
     build_summary,
     ground_loop,
+    ground_loop_note,
     loop_removed_with_short,
+    main_value,
     mount_short_impedance,
     open_fit,
     sample_impedance,
+    z_at_nominal,
 )
 from bench.results import RunSummary
 from bench.runstore import DONE, FAILED, RUNNING, SKIPPED, RunStore, file_stem, parse_iso
@@ -99,6 +103,13 @@ class Runner:
         self._quick_opens: dict[int, Any] = {}
         self._last: tuple[np.ndarray, np.ndarray] | None = None
         self._loops: dict[int, float] = {}
+        # Main landmark (c_low F, l_low H, a bead's |Z| Ω at its stated frequency) of each
+        # (part, sample) at 0 V, as measured: the bias points' live lines compare with it.
+        self._zero_bias: dict[tuple[str, str], float] = {}
+        # Steps whose sweeps have moved the progress count in this session: a repeat
+        # takes the sweeps again but does not count them twice, so the count stays
+        # within the total given at the start.
+        self._counted: set[str] = set()
         # Time spent inside the analyser driver's sweep (instrument time and transfer), s,
         # in total and per step: benchmarks subtract it to find the tool's own overhead.
         self.sweep_seconds = 0.0
@@ -114,13 +125,18 @@ class Runner:
         store.begin_session("resume" if store.manifest["sessions"] else "start")
         store.log(f"session start, plan {plan.name}, first step {store.first_incomplete()}")
         pending = [s for s in plan.steps if store.step_state(s.id) not in (DONE, SKIPPED)]
-        sweeps = sum(1 for s in pending if s.kind in SWEEP_STEPS)
         current: Step | None = None
         try:
             if plan.biased and any(s.bias_v for s in pending):
                 self._caution()
             self._prepare_instruments()
             self._maybe_reuse_calibration()
+            # Counted after a reused calibration, whose standards are not swept again.
+            sweeps = sum(
+                1
+                for s in plan.steps
+                if s.kind in SWEEP_STEPS and store.step_state(s.id) not in (DONE, SKIPPED)
+            )
             self.display.start(sweeps * plan.sweep.averages, plan.estimated_seconds())
             for step in plan.steps:
                 if store.step_state(step.id) in (DONE, SKIPPED):
@@ -294,6 +310,13 @@ class Runner:
             return
         if all(self.store.step_state(s.id) == DONE for s in cal_steps):
             return
+        path = self._reuse_path()
+        if not path.exists():
+            # The first run of a lot: nothing to reuse yet, and nothing is wrong.
+            text = f"no earlier calibration found at {path}; taking a new one"
+            self.display.message(text)
+            self.store.log(text)
+            return
         reason = self._reuse_problem()
         if reason is not None:
             self.display.message(f"calibration not reused: {reason}; calibrating anew")
@@ -328,7 +351,7 @@ class Runner:
         try:
             old = RunStore.open(path)
         except InputError as exc:
-            return str(exc).splitlines()[0]
+            return f"{path}: {str(exc).splitlines()[0]}"
         problems = calibration_mismatch(old.manifest["procedure"], self.plan.resolved)
         if problems:
             return "; ".join(problems)
@@ -400,7 +423,7 @@ class Runner:
                 sweeps.append(
                     self.store.read_raw(str(self.store.raw_path(name).relative_to(self.store.root)))
                 )
-                self.display.advance()
+                self._advance(step)
                 continue
             self.display.step(f"{label} sweep {k}/{n}" if n > 1 else label)
             t0 = time.perf_counter()
@@ -420,9 +443,16 @@ class Runner:
                 save=False,
             )
             sweeps.append((np.asarray(data.f, dtype=float), np.asarray(data.s, dtype=complex)))
-            self.display.advance()
+            self._advance(step)
+        self._counted.add(step.id)
         f = sweeps[0][0]
         self._last = (f, sum(s for _, s in sweeps) / len(sweeps))
+
+    def _advance(self, step: Step) -> None:
+        """One sweep of ``step`` done: moves the progress count unless the step's sweeps
+        were already counted in this session (a repeat at the operator's request)."""
+        if step.id not in self._counted:
+            self.display.advance()
 
     def _decide(self, step: Step, label: str, result: str) -> str:
         """Guided sessions: ask what next; handles repeat here, returns skip/continue."""
@@ -538,7 +568,7 @@ class Runner:
             self._sweeps(step, f"mount short, position {pos}")
             f, z_short = mount_short_impedance(self.plan, self._correction(), self.store, pos)
             loop = ground_loop(f, z_short, pos)
-            result = f"|Z| {np.median(np.abs(z_short)) * 1e3:.3g} mOhm (median)"
+            result = f"|Z| {format_si(float(np.median(np.abs(z_short))), 'Ω', 3)} (median)"
             if loop.detected:
                 result += f"; ground loop below {format_si(loop.valid_above_hz, 'Hz')}"
             choice = self._decide(step, f"mount short {pos}", result)
@@ -561,19 +591,10 @@ class Runner:
                 + GROUND_LOOP_ADVICE
             )
         if loop.detected:
-            below = format_si(loop.valid_above_hz, "Hz")
-            if loop_removed_with_short(self.plan.analysis):
-                # The same judgement as processing: the loop's series error is in this
-                # short as much as in the parts, and leaves with it point by point.
-                self._note(
-                    f"position {pos}: ground loop below {below}; its error is in the mount "
-                    "short too and is removed with it (all points kept)"
-                )
-            else:
-                self._note(
-                    f"position {pos}: ground loop; points below {below} are not used "
-                    "(a fitted mount cannot follow the loop)"
-                )
+            # The same note, word for word, as processing writes into the summary, so the
+            # run's notes give each position once.
+            self._note(ground_loop_note(loop, self.plan.analysis))
+            if not loop_removed_with_short(self.plan.analysis):
                 self._loops[pos] = loop.valid_above_hz
 
     def _measure(self, step: Step) -> None:
@@ -623,36 +644,30 @@ class Runner:
                 break
 
     def _live_result(self, step: Step, part: Any) -> str:
-        """Landmarks of the sample just measured, for the live line (no fit yet)."""
-        from bench.core.landmarks import landmarks_for
+        """Landmarks of the sample just measured, for the live line (no fit yet).
 
+        At 0 V the main landmark is kept, so the same sample's bias points show their
+        change from it (and no verdict, as in the exports).
+        """
         placement = step.placement
         assert placement is not None
         label = placement.part + "/" + placement.sample
         if step.bias_v:
             label += f" {step.bias_v:g}V"
+        key = (placement.part, placement.sample)
         try:
             f, s = self._last_average(step)
-            # A quick through-response correction: the live line is a first look; the
-            # fit step applies the run's full calibration.
-            s21n = self._correction().quick(f, s)[:, 1, 0]
-            z_short = self._quick_shorts.get(placement.position)
-            if (
-                z_short is None
-                and self.store.step_state(f"mount_short/p{placement.position}") == DONE
-            ):
-                _, z_short = mount_short_impedance(
-                    self.plan, self._correction(), self.store, placement.position, quick=True
-                )
-                self._quick_shorts[placement.position] = z_short
-            data = sample_impedance(
-                self.plan, self.plan.analysis, f, s21n, z_short, self._quick_open(placement)
-            )
-            valid = np.asarray(data.inside_window) & (f >= self._loops.get(placement.position, 0.0))
-            kind = "capacitor" if part.spec.kind in ("mlcc", "bulk") else "inductor"
-            marks = landmarks_for(kind, f, data.z, valid)
+            marks, data = self._live_landmarks(placement, part, f, s)
         except Exception as exc:  # the live line is information; the fit step decides
             return f"{label}: no landmarks ({exc})"
+        z_nominal = z_at_nominal(part.spec, data)
+        main = main_value(part.spec, marks, data)
+        reference = None
+        if not step.bias_v:
+            if main is not None:
+                self._zero_bias[key] = main
+        else:
+            reference = self._zero_bias_reference(step, part)
         return result_line(
             label,
             part.spec.kind,
@@ -660,7 +675,61 @@ class Runner:
             nominal=part.spec.nominal,
             tolerance=part.spec.tolerance,
             outside=data.points_outside_window,
+            bias_v=step.bias_v,
+            reference=reference,
+            z_at_nominal=z_nominal,
+            nominal_at_hz=part.spec.nominal_at_hz if part.spec.kind == "bead" else None,
         )
+
+    def _live_landmarks(
+        self, placement: Any, part: Any, f: np.ndarray, s: np.ndarray
+    ) -> tuple[dict[str, Any], Any]:
+        """(landmarks, impedance data) of one sample's raw sweep with the quick correction."""
+        from bench.core.landmarks import landmarks_for
+
+        # A quick through-response correction: the live line is a first look; the fit
+        # step applies the run's full calibration.
+        s21n = self._correction().quick(f, s)[:, 1, 0]
+        z_short = self._quick_shorts.get(placement.position)
+        if z_short is None and self.store.step_state(f"mount_short/p{placement.position}") == DONE:
+            _, z_short = mount_short_impedance(
+                self.plan, self._correction(), self.store, placement.position, quick=True
+            )
+            self._quick_shorts[placement.position] = z_short
+        data = sample_impedance(
+            self.plan, self.plan.analysis, f, s21n, z_short, self._quick_open(placement)
+        )
+        valid = np.asarray(data.inside_window) & (f >= self._loops.get(placement.position, 0.0))
+        kind = "capacitor" if part.spec.kind in ("mlcc", "bulk") else "inductor"
+        return dict(landmarks_for(kind, f, data.z, valid)), data
+
+    def _zero_bias_reference(self, step: Step, part: Any) -> float | None:
+        """The same sample's main landmark at 0 V: kept from this session, or (after a
+        resume) worked out again from its stored sweep; None when it was not measured."""
+        placement = step.placement
+        assert placement is not None
+        key = (placement.part, placement.sample)
+        if key in self._zero_bias:
+            return self._zero_bias[key]
+        for other in self.plan.steps:
+            there = other.placement
+            if (
+                other.kind == "measure"
+                and not other.bias_v
+                and there is not None
+                and (there.part, there.sample) == key
+                and self.store.step_state(other.id) == DONE
+            ):
+                try:
+                    f, s = averaged(self.store, other.id)
+                    marks, data = self._live_landmarks(there, part, f, s)
+                except Exception:  # the change is information; without it the line is shorter
+                    return None
+                main = main_value(part.spec, marks, data)
+                if main is not None:
+                    self._zero_bias[key] = main
+                return main
+        return None
 
     def _quick_open(self, placement: Any) -> Any:
         """The pads of ``placement``'s position from its open capture (quick correction),
@@ -686,13 +755,18 @@ class Runner:
 
     def _fit(self, step: Step) -> None:
         self.display.step("fitting models")
+        from bench.exports import main_landmark, zero_bias_values
+
         summary = build_summary(self.store, self.plan)
+        references = zero_bias_values(summary)
         models = self.store.root / "models"
         for sample in summary.samples:
             if sample.fit is not None:
                 text = json.dumps(sample.fit.to_json(), indent=2, default=_plain)
                 atomic_write_text(models / f"{file_stem(sample.label)}.fit.json", text + "\n")
                 part = self.plan.part(sample.part)
+                name, value = main_landmark(part.spec, sample)
+                bead_point = name == "z_at_nominal_hz"
                 self.display.result(
                     result_line(
                         "fit " + sample.label,
@@ -700,8 +774,15 @@ class Runner:
                         dict(sample.fit.landmarks),
                         nominal=part.spec.nominal,
                         tolerance=part.spec.tolerance,
+                        bias_v=sample.bias_v,
+                        reference=(
+                            references.get((sample.part, sample.sample)) if sample.bias_v else None
+                        ),
+                        z_at_nominal=value if bead_point else None,
+                        nominal_at_hz=part.spec.nominal_at_hz if bead_point else None,
                     )
-                    + f"  [{sample.fit.model}, rms {sample.fit.quality.rms_log_error:.3f}]"
+                    + f"  [{sample.fit.model}, rms log error "
+                    f"{sample.fit.quality.rms_log_error:.3f}]"
                 )
             else:
                 self.display.result(f"fit {sample.label}: no model ({sample.fit_error})")
