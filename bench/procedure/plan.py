@@ -268,7 +268,8 @@ def _kit(doc: SourceDocument, errors: list[ProcedureError]) -> CalibrationKit:
             errors.append(
                 doc.error(
                     path,
-                    f"a kit's {key.replace('_', ' ')} must be {bound} {shown}, got {value:g}",
+                    f"a kit's {key.replace('_', ' ')} must be {bound} {shown}, "
+                    f"got {format_si(value, shown)}",
                     hint="copy the value from the calibration kit's data sheet; leave the "
                     "key out for an ideal standard",
                 )

@@ -266,3 +266,93 @@ def test_through_mismatch_bias_bound() -> None:
         assert through_mismatch_bias(-40.0, 50.0, series_r) == pytest.approx(exact, rel=0.02)
     with pytest.raises(ValueError, match="negative number of dB"):
         through_mismatch_bias(3.0)
+
+
+# --- calibration-kit definitions ---------------------------------------------------------
+
+
+def test_kit_standards_follow_the_one_port_formulas() -> None:
+    from bench.core.calibration import CalibrationKit, kit_standards
+
+    kit = CalibrationKit(
+        short_inductance=8e-12,
+        open_capacitance=15e-15,
+        load_resistance=50.2,
+        load_inductance=4e-12,
+        short_delay=10e-12,
+        through_delay=30e-12,
+    )
+    z0 = 50.0
+    out = kit_standards(F, kit, z0)
+    w = 2 * np.pi * F
+    # Derived from Γ = (Z − Z0)/(Z + Z0) (Pozar §2.3, from memory): an open of C0 has
+    # Z = 1/(jωC0), so Γ = (1/(jωC0) − Z0)/(1/(jωC0) + Z0) = (1 − jωC0Z0)/(1 + jωC0Z0).
+    g_open = (1 - 1j * w * 15e-15 * z0) / (1 + 1j * w * 15e-15 * z0)
+    # A short of L0 behind a lossless offset of one-way delay τ: the wave goes there and
+    # back, so Γ = e^(−2jωτ)·(jωL0 − Z0)/(jωL0 + Z0) (derived, same source).
+    g_short = np.exp(-2j * w * 10e-12) * (1j * w * 8e-12 - z0) / (1j * w * 8e-12 + z0)
+    # The load R + jωL: at low frequency Γ → (50.2 − 50)/(50.2 + 50) = 1.996e-3 (derived).
+    z_load = 50.2 + 1j * w * 4e-12
+    g_load = (z_load - z0) / (z_load + z0)
+    for name, g in (("open", g_open), ("short", g_short), ("load", g_load)):
+        np.testing.assert_allclose(out[name][:, 0, 0], g, rtol=1e-12, err_msg=name)
+        np.testing.assert_allclose(out[name][:, 1, 1], g, rtol=1e-12, err_msg=name)
+        np.testing.assert_array_equal(out[name][:, 0, 1], 0)
+    assert out["load"][0, 0, 0] == pytest.approx(0.2 / 100.2, rel=1e-6)
+    # The through: a matched line of one-way delay τ, S21 = e^(−jωτ) (derived).
+    np.testing.assert_allclose(out["thru"][:, 1, 0], np.exp(-1j * w * 30e-12), rtol=1e-12)
+    np.testing.assert_array_equal(out["thru"][:, 0, 0], 0)
+
+
+def test_default_kit_is_the_ideal_flush_standards() -> None:
+    from bench.core.calibration import CalibrationKit, kit_standards
+
+    kit = CalibrationKit()
+    assert kit.is_ideal
+    out, ideal = kit_standards(F, kit), ideal_standards(F)
+    for name in ("short", "open", "load", "thru"):
+        np.testing.assert_allclose(out[name], ideal[name], atol=1e-15, err_msg=name)
+    # The default load is z0, whatever z0 is.
+    assert np.all(kit_standards(F, kit, 75.0)["load"] == 0)
+
+
+@pytest.mark.parametrize(
+    "bad",
+    [{"short_inductance": -1e-12}, {"load_resistance": 0.0}, {"open_delay": float("nan")}],
+)
+def test_kit_rejects_impossible_values(bad) -> None:
+    from bench.core.calibration import CalibrationKit
+
+    with pytest.raises(ValueError, match=next(iter(bad))):
+        CalibrationKit(**bad)
+
+
+@pytest.mark.parametrize("low_band", ["match", None])
+def test_a_real_kit_is_corrected_only_when_its_definitions_are_given(low_band) -> None:
+    # Embed non-ideal standards (the kit's own responses) behind the error boxes; SOLT
+    # and the hybrid's match-corrected low band recover the DUT only when told the kit.
+    from bench.core.calibration import CalibrationKit, kit_standards
+
+    rng = np.random.default_rng(5)
+    x, y = _error_box(rng), _error_box(rng).flipped()
+
+    def measure(s: np.ndarray) -> np.ndarray:
+        return (x ** _net(s) ** y).s
+
+    kit = CalibrationKit(
+        short_inductance=8e-12, open_capacitance=15e-15, load_resistance=50.2, load_delay=5e-12
+    )
+    truth = kit_standards(F, kit)
+    standards = RawStandards(F, **{name: measure(truth[name]) for name in truth})
+    w = 2 * np.pi * F
+    z = 3e-3 + 1j * w * 0.6e-9 + 1 / (1j * w * 22e-6)
+    raw = measure(_shunt_dut(z))
+    method = "solt" if low_band is None else "hybrid"
+    kwargs = {} if low_band is None else {"low_band": low_band}
+    good = calibrate(F, raw, standards, method, ideals=truth, **kwargs)
+    np.testing.assert_allclose(shunt_through_z(good[:, 1, 0]), z, rtol=1e-6)
+    bare = calibrate(F, raw, standards, method, **kwargs)
+    error = np.abs(shunt_through_z(bare[:, 1, 0]) / z - 1)
+    # Derived: taking the 50.2 Ω load for 50 Ω puts the part on a 50/50.2 scale, so a
+    # low-impedance part reads 0.40 % low at low frequency.
+    assert error[F < 1e5] == pytest.approx(1 - 50 / 50.2, rel=0.05)
