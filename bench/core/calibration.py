@@ -25,6 +25,28 @@ without series resistors). :func:`match_corrected` takes the source match and lo
 match from the short, open, load and through already measured for SOLT and puts them
 back, with no reflection of the part in the correction (see its docstring).
 
+The standards' own definitions. SOLT and the match-corrected band solve the error terms
+against what the standards are, so a kit taken for ideal leaves its definitions in every
+point: a 50.2 Ω load taken for 50 Ω reads a low-impedance part 0.4 % low in both bands.
+:class:`CalibrationKit` holds a kit's data-sheet values and :func:`kit_standards` turns
+them into the ``ideals`` argument.
+
+The hand-over at the crossover. On a part that is a true shunt element at the
+standards' plane, the match-corrected band and SOLT are the same equation (see
+:func:`match_corrected`): with the kit given they agree to rounding (about 1e-11 on the
+simulated demo bench without noise), so a hybrid with ``low_band="match"`` has no step
+of its own. What a single sweep shows at the crossover is that sweep's noise: a 22 µF
+MLCC near 1 MHz is a few mΩ, S21 ≈ −80 dB, and against a −100 dB floor each point
+scatters by a few percent whichever band it is in. Steps that remain physically:
+``low_band="through"`` keeps the ports' match below the crossover, a step of about
+``(Γs + Γl)·Z0/(Z0 + Rs)`` (0.75 % and −0.8° on the demo bench's draws without
+resistors, 0.07 % and −0.09° behind 499 Ω), which is why it is the default only with
+resistors; and a fixture whose part is not a pure shunt at the standards' plane (a
+length of line or a series pad path between the connectors and the part) breaks
+``S11 = S22 = S21 − 1``, so the low band then differs from SOLT by the match terms
+times that departure, which grows with frequency and is the reason the crossover sits
+low (not quantified here; the simulator's fixture is a pure shunt).
+
 All arrays are two-port S-parameters of shape (nf, 2, 2) on the frequency grid ``f``
 (Hz), scikit-rf's convention. No files are read or written here.
 """
