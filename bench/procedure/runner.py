@@ -830,8 +830,33 @@ def calibration_mismatch(old: dict[str, Any], new: dict[str, Any]) -> list[str]:
             a = old.get(section, {}).get(key)
             b = new.get(section, {}).get(key)
             if a != b:
-                problems.append(f"{section}.{key} was {a!r}, the plan has {b!r}")
+                was, now = _setting_text(key, a), _setting_text(key, b)
+                problems.append(f"{section}.{key} was {was}, the plan has {now}")
     return problems
+
+
+#: Units of the calibration settings :func:`calibration_mismatch` compares.
+_SETTING_UNITS = {
+    "start": "Hz",
+    "stop": "Hz",
+    "if_bandwidth": "Hz",
+    "crossover_hz": "Hz",
+    "series_r": "Ω",
+    "z0": "Ω",
+}
+
+
+def _setting_text(key: str, value: Any) -> str:
+    """A stored setting as an engineer writes it: ``1 kHz``, ``0 dBm``, ``log``, ``none``."""
+    if value is None:
+        return "none"
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, (int, float)):
+        if key in _SETTING_UNITS:
+            return format_si(float(value), _SETTING_UNITS[key])
+        return f"{value:g} dBm" if key == "power" else f"{value:g}"
+    return str(value)
 
 
 def _plain(value: Any) -> Any:

@@ -216,3 +216,14 @@ def test_points_left_out_for_a_ground_loop_are_not_counted_outside_the_window(tm
     assert any(w.startswith(f"ground loop: {below} point") for w in sample.warnings)
     (row,) = summary_rows(runner.summary)
     assert row["points_outside_window"] == outside
+
+
+def test_a_refused_calibration_names_its_settings_with_units():
+    from bench.procedure.runner import calibration_mismatch
+
+    old = {"sweep": {"if_bandwidth": 1000.0, "power": 0.0}, "fixture": {"series_r": 0.0}}
+    new = {"sweep": {"if_bandwidth": 10.0, "power": -10.0}, "fixture": {"series_r": 499.0}}
+    problems = calibration_mismatch(old, new)
+    assert "sweep.if_bandwidth was 1 kHz, the plan has 10 Hz" in problems
+    assert "sweep.power was 0 dBm, the plan has -10 dBm" in problems
+    assert "fixture.series_r was 0 Ω, the plan has 499 Ω" in problems
