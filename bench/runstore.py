@@ -45,6 +45,9 @@ def parse_iso(text: str) -> _dt.datetime:
     return _dt.datetime.fromisoformat(text)
 
 
+# Name of the link, beside the run folders, to the newest run with a complete calibration.
+LAST_CALIBRATION = "last-calibration"
+
 # Raw-file prefix per step kind; a part's sweeps are named by the part alone.
 _STEM_PREFIXES = {"measure": "", "calibrate": "cal", "mount_short": "short", "mount_open": "open"}
 
@@ -293,6 +296,16 @@ class RunStore:
             )
         measurement = load_measurement(path)
         return np.asarray(measurement.f, dtype=float), np.asarray(measurement.s, dtype=complex)
+
+    def point_latest(self, name: str = LAST_CALIBRATION) -> Path:
+        """Point ``<runs folder>/<name>`` at this run (a relative symbolic link, replaced
+        atomically), so a later procedure can reuse this run's calibration by that name."""
+        link = self.root.parent / name
+        tmp = self.root.parent / f".{name}.{self.run_id}.tmp"
+        tmp.unlink(missing_ok=True)
+        tmp.symlink_to(self.root.name, target_is_directory=True)
+        tmp.replace(link)
+        return link
 
     def log(self, message: str) -> None:
         """Append one line to the run's log (plain text, flushed at once)."""

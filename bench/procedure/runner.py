@@ -41,7 +41,16 @@ from bench.procedure.processing import (
     z_at_nominal,
 )
 from bench.results import RunSummary
-from bench.runstore import DONE, FAILED, RUNNING, SKIPPED, RunStore, file_stem, parse_iso
+from bench.runstore import (
+    DONE,
+    FAILED,
+    LAST_CALIBRATION,
+    RUNNING,
+    SKIPPED,
+    RunStore,
+    file_stem,
+    parse_iso,
+)
 from bench.units import format_si
 
 CAUTION = (
@@ -337,6 +346,18 @@ class Runner:
         self.display.message(f"calibration reused from {old.root}")
         self.store.log(f"calibration reused from {old.root}")
 
+    def _point_last_calibration(self) -> None:
+        """Once every standard is stored, let later runs find this calibration by name."""
+        cal_steps = [s.id for s in self.plan.steps if s.kind == "calibrate"]
+        if not all(self.store.step_state(i) == DONE for i in cal_steps):
+            return
+        try:
+            link = self.store.point_latest()
+        except OSError as exc:  # a file system without links: reuse by run folder still works
+            self.store.log(f"could not point {LAST_CALIBRATION} at this run ({exc})")
+            return
+        self.store.log(f"{link} now points at this run's calibration")
+
     def _reuse_path(self) -> Path:
         given = Path(self.plan.calibration.reuse_run or "")
         if not given.is_absolute() and not given.exists():
@@ -402,6 +423,8 @@ class Runner:
         if store.step_state(step.id) == RUNNING:
             store.mark(step.id, DONE)
         store.log(f"step {step.id} {store.step_state(step.id)}")
+        if step.kind == "calibrate":
+            self._point_last_calibration()
 
     def _parameters(self) -> tuple[str, ...]:
         # All four: SOLT corrects with all of them, the through response uses S21 and S12,

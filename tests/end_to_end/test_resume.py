@@ -69,6 +69,29 @@ def test_calibration_reused_within_its_age_and_settings(tmp_path, sim, kit):
     assert any("not reused" in line and "sweep.points" in line for line in lines)
 
 
+def test_runs_in_one_folder_reuse_the_last_calibration_by_name(tmp_path, sim, kit):
+    # A lot measured run after run into one folder: the first run finds no calibration
+    # and takes one; the folder's last-calibration link then names it for the next run.
+    out = tmp_path / "runs"
+    text = kit.SMALL.replace(
+        "calibration: {method: through}",
+        f"calibration:\n  method: through\n  reuse: {{run: '{out / 'last-calibration'}', "
+        "max_age: 1 h}",
+    )
+    plan, first = kit.start_run(tmp_path, text)  # run folders under tmp_path/runs
+    lines: list[str] = []
+    kit.run_on(sim, plan, first, lines=lines)
+    assert any("no earlier calibration found" in line for line in lines)
+    link = out / "last-calibration"
+    assert link.is_symlink() and link.resolve() == first.root.resolve()
+
+    plan2, second = kit.start_run(tmp_path, text)
+    kit.run_on(sim, plan2, second)
+    assert second.step_info("calibrate/through")["reused_from"] == str(link)
+    # The link still names the run whose standards were swept, so the age stays honest.
+    assert link.resolve() == first.root.resolve()
+
+
 def test_live_progress_display_runs_unattended(tmp_path, kit):
     path = kit.write_procedure(tmp_path, kit.SMALL.replace("samples: 2}", "samples: 1}"))
     args = ["run", str(path), "--sim", "--yes", "--out", str(tmp_path / "runs")]
