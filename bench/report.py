@@ -102,6 +102,15 @@ _KEY_UNITS = {
     "rated_voltage": "V",
     "settle": "s",
     "sweep_time": "s",
+    # calibration kit definitions
+    "short_inductance": "H",
+    "open_capacitance": "F",
+    "load_resistance": "Ω",
+    "load_inductance": "H",
+    "short_delay": "s",
+    "open_delay": "s",
+    "load_delay": "s",
+    "through_delay": "s",
 }
 _FRACTION_KEYS = ("tolerance",)
 _TIME_KEYS = ("started", "created", "time", "date", "finished")

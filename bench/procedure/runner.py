@@ -13,6 +13,7 @@ sessions: a resumed run asks the operator again for whatever the next step needs
 from __future__ import annotations
 
 import contextlib
+import dataclasses
 import datetime as _dt
 import json
 import time
@@ -511,6 +512,7 @@ class Runner:
                 {
                     "method": self.plan.calibration.method,
                     "crossover_hz": self.plan.calibration.crossover_hz,
+                    "kit": dataclasses.asdict(self.plan.calibration.kit),
                     "standards": {
                         std: self.store.step_files(f"calibrate/{std}")
                         for std in self.plan.calibration.standards

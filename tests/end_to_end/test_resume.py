@@ -58,6 +58,8 @@ def test_calibration_reused_within_its_age_and_settings(tmp_path, sim, kit):
         first.root / "raw" / "cal_through.s2p"
     ).read_bytes()
     assert second.manifest["calibration"]["reused_from"] == str(first.root)
+    # The record says which kit definitions corrected the standards (ideal when none given).
+    assert first.manifest["calibration"]["kit"]["short_inductance"] == 0.0
     assert any("calibration reused" in line for line in lines)
 
     # Other sweep settings: the stored calibration does not fit, so a new one is taken.
