@@ -54,6 +54,11 @@ SCOUT_POINTS = 160
 BIC_MARGIN = 6.0
 # A family whose fit leaves this many times the best χ² so far gets no higher orders.
 HOPELESS_FACTOR = 10.0
+# An element whose one-sigma uncertainty exceeds its value (100 %) is not determined by
+# the data: its confidence interval reaches from nothing to double.
+UNDETERMINED = 1.0
+# An element within this distance (natural log) of a bound is pinned at it.
+PINNED_LOG = 1e-3
 
 AUTO_CANDIDATES: dict[str, tuple[tuple[str, tuple[int, ...]], ...]] = {
     "capacitor": (("series-rlc", (1,)), ("two-branch", (1,)), ("ladder", (2, 3, 4, 5))),
@@ -91,12 +96,18 @@ class FitQuality:
 
 @dataclass(frozen=True)
 class Candidate:
-    """One family and order tried by the fitter, with its criterion and quality."""
+    """One family and order tried by the fitter, with its criterion and quality.
+
+    ``supported`` is False when an element of the fit is pinned at a bound or not
+    determined (one sigma above 100 %): the data do not support that many elements, and
+    the selection passes such a candidate over for a simpler one.
+    """
 
     model: str
     order: int
     bic: float
     rms_log_error: float
+    supported: bool = True
 
 
 @dataclass(frozen=True)
@@ -167,6 +178,21 @@ class _Trial:
     bic: float
     rms: float
     at_bound: tuple[str, ...]
+    pinned: tuple[str, ...] = ()
+    rel_sigma: dict[str, float] = field(default_factory=dict)
+
+    @property
+    def undetermined(self) -> tuple[str, ...]:
+        return tuple(n for n, s in self.rel_sigma.items() if not s <= UNDETERMINED)
+
+    @property
+    def supported(self) -> bool:
+        return not self.pinned and not self.undetermined
+
+    @property
+    def weakness(self) -> dict[str, float]:
+        """Relative one-sigma uncertainty of each element, ``inf`` where it is pinned."""
+        return {n: (math.inf if n in self.pinned else s) for n, s in self.rel_sigma.items()}
 
 
 def _check_inputs(f: Any, z: Any, rel_uncertainty: Any, valid: Any):
@@ -273,6 +299,7 @@ def _fit_order(
     weight: NDArray[np.float64],
     landmarks: Landmarks,
     previous: Mapping[str, float] | None,
+    starts: list[dict[str, float]] | None = None,
 ) -> _Trial:
     names = family.element_names(order)
     node = family.circuit(order)
@@ -289,7 +316,9 @@ def _fit_order(
     coarse = _objective(node, names, f[::step], z[::step], weight[::step])
     fine = coarse if step == 1 else _objective(node, names, f, z, weight)
     scouts = []
-    for start in family.starts(order, f, z, landmarks, previous):
+    if starts is None:
+        starts = family.starts(order, f, z, landmarks, previous)
+    for start in starts:
         q0 = np.log([clip_to_bounds(start, limits)[n] for n in names])
         with np.errstate(all="ignore"):
             r0 = coarse[0](q0)
@@ -322,12 +351,26 @@ def _fit_order(
     at_bound = tuple(
         n
         for n, qi, a, b in zip(names, q, lo, hi, strict=True)
-        if (qi - a < 1e-3 and "low" not in vanish[n]) or (b - qi < 1e-3 and "high" not in vanish[n])
+        if (qi - a < PINNED_LOG and "low" not in vanish[n])
+        or (b - qi < PINNED_LOG and "high" not in vanish[n])
     )
-    return _Trial(family, order, values, q, chi2, bic, float(np.sqrt(np.mean(err**2))), at_bound)
+    # Pinned at any bound, also where the element harmlessly drops out: a section that
+    # drops out was not needed, so this order is not supported by the data.
+    pinned = tuple(
+        n
+        for n, qi, a, b in zip(names, q, lo, hi, strict=True)
+        if qi - a < PINNED_LOG or b - qi < PINNED_LOG
+    )
+    trial = _Trial(
+        family, order, values, q, chi2, bic, float(np.sqrt(np.mean(err**2))), at_bound, pinned
+    )
+    cov = _covariance(trial, f, z, weight)
+    sigma_log = np.sqrt(np.clip(np.diag(cov), 0.0, None))
+    rel = {n: float(s) for n, s in zip(names, sigma_log, strict=True)}
+    return _Trial(family, order, values, q, chi2, bic, trial.rms, at_bound, pinned, rel_sigma=rel)
 
 
-def _select(trials: list[_Trial]) -> _Trial:
+def _lowest_bic(trials: list[_Trial]) -> _Trial:
     """The trial with the lowest BIC, except that more elements must earn their place.
 
     A candidate with more elements replaces a simpler one only when it lowers the BIC by
@@ -340,6 +383,26 @@ def _select(trials: list[_Trial]) -> _Trial:
         margin = 0.0 if trial.q.size == best.q.size else BIC_MARGIN
         if trial.bic < best.bic - margin:
             best = trial
+    return best
+
+
+def _select(trials: list[_Trial], quality_bound: float) -> _Trial:
+    """The chosen trial: :func:`_lowest_bic` among the trials the data support.
+
+    A trial with an element pinned at a bound or not determined (see
+    :attr:`Candidate.supported`) has more elements than the data can tell apart, however
+    low its criterion; the simplest trials (fewest elements) stay eligible whatever their
+    state, as the base the others must improve on. Only when no eligible trial meets the
+    quality bound is an unsupported one that meets it taken (its undetermined elements
+    are then named in the warnings).
+    """
+    fewest = min(t.q.size for t in trials)
+    eligible = [t for t in trials if t.supported or t.q.size == fewest]
+    best = _lowest_bic(eligible)
+    if best.rms > quality_bound:
+        good = [t for t in trials if t.rms <= quality_bound]
+        if good:
+            best = _lowest_bic(good)
     return best
 
 
@@ -472,6 +535,52 @@ def _low_frequency_warnings(
     return []
 
 
+def _fit_family(
+    family: ModelFamily,
+    orders: tuple[int, ...],
+    f: NDArray[np.float64],
+    z: NDArray[np.complex128],
+    weight: NDArray[np.float64],
+    data_marks: Landmarks,
+    others: list[_Trial],
+    n_used: int,
+) -> list[_Trial]:
+    """Fit the orders of one family, lowest first, until a higher one stops paying.
+
+    An order the data do not support (an element pinned or not determined) ends the
+    climb: a higher order adds elements to a circuit that already has too many. Its fit
+    is not wasted: without the unsupported section it starts the next lower order again,
+    which finds that order's best valley when its own starts missed it (a section that
+    dropped out to a bound leaves a better lower-order fit behind).
+    """
+    out: list[_Trial] = []
+    previous = None
+    best_bic = math.inf
+    for o in orders:
+        if 2 * n_used <= len(family.element_names(o)) + 1:
+            break
+        trial = _fit_order(family, o, f, z, weight, data_marks, previous)
+        out.append(trial)
+        previous = trial.values
+        if not trial.supported and len(out) > 1:
+            start = family.reduced_start(o, trial.values, trial.weakness)
+            lower = out[-2]
+            if start is not None:
+                again = _fit_order(
+                    family, lower.order, f, z, weight, data_marks, None, starts=[start]
+                )
+                if again.chi2 < lower.chi2:
+                    out[-2] = again
+            break
+        if trial.bic > best_bic:
+            break  # the criterion has turned; higher orders will not pay
+        best_bic = min(best_bic, trial.bic)
+        overall = min(t.chi2 for t in [*others, *out])
+        if trial.chi2 > HOPELESS_FACTOR * overall:
+            break  # another family fits far better; more orders of this one will not catch up
+    return out
+
+
 def fit_impedance(
     f: Any,
     z: Any,
@@ -530,23 +639,10 @@ def fit_impedance(
 
     trials: list[_Trial] = []
     for family, orders in _candidates(model, kind, order):
-        previous = None
-        best_bic = math.inf
-        for o in orders:
-            if 2 * n_used <= len(family.element_names(o)) + 1:
-                break
-            trial = _fit_order(family, o, fu, zu, weight, data_marks, previous)
-            trials.append(trial)
-            previous = trial.values
-            if trial.bic > best_bic:
-                break  # the criterion has turned; higher orders will not pay
-            best_bic = min(best_bic, trial.bic)
-            overall = min(t.chi2 for t in trials)
-            if trial.chi2 > HOPELESS_FACTOR * overall:
-                break  # another family fits far better; more orders of this one will not catch up
+        trials += _fit_family(family, orders, fu, zu, weight, data_marks, trials, n_used)
     if not trials:
         raise FitError(f"too few points ({n_used}) for any order of model {model!r}")
-    best = _select(trials)
+    best = _select(trials, quality_bound)
 
     zm = network_impedance(best.family.circuit(best.order), fu, best.values)
     err = np.abs(np.log(zm / zu))
@@ -566,6 +662,12 @@ def fit_impedance(
             f"elements {', '.join(best.at_bound)} ended at the edge of their allowed range; "
             "the data may not determine them"
         )
+    loose = [n for n in best.undetermined if n not in best.at_bound]
+    if loose:
+        warnings.append(
+            f"elements {', '.join(loose)} are not determined by the data (one-sigma "
+            "uncertainty above 100 %); no simpler model met the quality bound"
+        )
     if quality.rms_log_error > quality_bound:
         warnings.append(
             f"rms log error {quality.rms_log_error:.3g} exceeds the quality bound "
@@ -584,5 +686,7 @@ def fit_impedance(
         order=best.order,
         quality_bound=float(quality_bound),
         f_range=(float(fu[0]), float(fu[-1])),
-        candidates=tuple(Candidate(t.family.name, t.order, float(t.bic), t.rms) for t in trials),
+        candidates=tuple(
+            Candidate(t.family.name, t.order, float(t.bic), t.rms, t.supported) for t in trials
+        ),
     )

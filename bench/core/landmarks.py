@@ -16,7 +16,9 @@ Every figure comes from a band of points, never from one point, so noise average
   (exact for a series R-L-C, REFERENCES §3) over the points around it;
 - values at resonance: a quadratic in ``log f`` through the neighbouring points, of
   Re Z at a series resonance and of Re(1/Z) at a parallel one (both vary slowly there);
-- a sign change across a gap in the valid points is no resonance: it was not measured.
+- a sign change across a gap in the valid points is no resonance: it was not measured;
+- a parallel resonance needs a real peak: inductive points below it and |Z| well above
+  its low-frequency level (a noisy reactance near zero at the floor flips sign too).
 Points outside the measurable window (``valid`` False) are ignored.
 """
 
@@ -60,49 +62,95 @@ def _points_per_decade(f: NDArray[np.float64]) -> float:
     return (f.size - 1) / max(np.log10(f[-1] / f[0]), 1e-9)
 
 
-def first_crossing(f: NDArray[np.float64], y: NDArray[np.float64], rising: bool) -> float | None:
-    """First frequency where ``y`` changes sign (− to + when ``rising``), refined.
+def _crossings(f: NDArray[np.float64], y: NDArray[np.float64], rising: bool):
+    """Every frequency where ``y`` changes sign (− to + when ``rising``), refined, in
+    order of frequency, with the index of the first point after it.
 
     The sign change is looked for in a running median (about 1/20 decade wide, at least
     3 points) so that noise near the zero does not make false crossings; a crossing must
     hold for a few points. The estimate is then refined by a straight line of ``ω·y``
     against ``ω²`` through the points within ±15 % of it (for ``y`` = X of a series
-    R-L-C, ``ω·X = ω²L − 1/C`` exactly).
+    R-L-C, ``ω·X = ω²L − 1/C`` exactly). A sign change across a gap in the points (a
+    stretch outside the window) is skipped: the resonance itself was not measured.
     """
     if f.size < 4:
-        return None
+        return
     width = max(3, round(_points_per_decade(f) / 20) | 1)
     s = _smooth(y, width)
     sign = np.sign(s) if rising else -np.sign(s)
     hold = max(2, width // 2)
-    idx = None
-    for i in range(1, f.size):
-        if sign[i - 1] < 0 and sign[i] > 0:
-            after = sign[i : i + hold]
-            before = sign[max(0, i - hold) : i]
-            if np.all(after > 0) and np.all(before < 0):
-                idx = i
-                break
-    if idx is None:
-        return None
     steps = np.diff(np.log(f))
-    if steps[idx - 1] > 3 * np.median(steps):
-        # The sign changes across a gap in the points (a stretch outside the window):
-        # the resonance itself was not measured.
+    typical_step = np.median(steps)
+    for idx in range(1, f.size):
+        if not (sign[idx - 1] < 0 and sign[idx] > 0):
+            continue
+        after = sign[idx : idx + hold]
+        before = sign[max(0, idx - hold) : idx]
+        if not (np.all(after > 0) and np.all(before < 0)):
+            continue
+        if steps[idx - 1] > 3 * typical_step:
+            continue
+        # Linear interpolation of the smoothed trace in log f for a first estimate.
+        x0, x1 = np.log(f[idx - 1]), np.log(f[idx])
+        y0, y1 = s[idx - 1], s[idx]
+        guess = float(np.exp(x0 - y0 * (x1 - x0) / (y1 - y0)))
+        near = (f > guess / 1.15) & (f < guess * 1.15)
+        estimate = guess
+        if np.count_nonzero(near) >= 3:
+            w = 2 * np.pi * f[near]
+            a, b = np.polyfit(w**2, w * y[near], 1)
+            if a != 0 and -b / a > 0:
+                refined = float(np.sqrt(-b / a) / (2 * np.pi))
+                if guess / 1.15 < refined < guess * 1.15:
+                    estimate = refined
+        yield estimate, idx
+
+
+def first_crossing(f: NDArray[np.float64], y: NDArray[np.float64], rising: bool) -> float | None:
+    """First frequency where ``y`` changes sign (− to + when ``rising``), refined.
+
+    See :func:`_crossings` for how noise and gaps are kept from making false crossings.
+    """
+    for estimate, _ in _crossings(f, y, rising):
+        return estimate
+    return None
+
+
+# A parallel resonance must lift |Z| at least this far above its lowest value below the
+# resonance: at the peak of L ‖ R ‖ C, |Z| = R, far above the winding's Rdc, while a
+# sign flip of a noisy reactance near the floor (where |Z| ≈ Rdc) lifts nothing.
+PEAK_RISE = 2.0
+
+
+def _parallel_resonance(f: NDArray[np.float64], z: NDArray[np.complex128]) -> float | None:
+    """The first parallel resonance with a real peak of |Z| (Hz), or None.
+
+    A candidate is where the susceptance rises through zero (− to +); for L‖R‖C,
+    ``ω·Im Y = ω²C − 1/L`` is a straight line in ω², which the refinement uses. It counts
+    only when the points below it are inductive in the main (the reactance was positive
+    before it turned) and |Z| near it stands :data:`PEAK_RISE` times above the lowest
+    |Z| below it (the smoothed traces, so one noisy point decides nothing).
+    """
+    if f.size < 4:
         return None
-    # Linear interpolation of the smoothed trace in log f for a first estimate.
-    x0, x1 = np.log(f[idx - 1]), np.log(f[idx])
-    y0, y1 = s[idx - 1], s[idx]
-    guess = float(np.exp(x0 - y0 * (x1 - x0) / (y1 - y0)))
-    near = (f > guess / 1.15) & (f < guess * 1.15)
-    if np.count_nonzero(near) >= 3:
-        w = 2 * np.pi * f[near]
-        a, b = np.polyfit(w**2, w * y[near], 1)
-        if a != 0 and -b / a > 0:
-            refined = float(np.sqrt(-b / a) / (2 * np.pi))
-            if guess / 1.15 < refined < guess * 1.15:
-                return refined
-    return guess
+    width = max(3, round(_points_per_decade(f) / 20) | 1)
+    magnitude = _smooth(np.abs(z), width)
+    reactance = _smooth(z.imag, width)
+    for estimate, idx in _crossings(f, (1.0 / z).imag, rising=True):
+        below = np.arange(f.size) < idx
+        if np.count_nonzero(below) < 3:
+            continue  # no rise seen: the sweep starts at (or above) the resonance
+        lead = below & (f >= estimate / 3)
+        if np.count_nonzero(lead) < 3:
+            lead = below & (np.arange(f.size) >= idx - 3)
+        if np.count_nonzero(reactance[lead] > 0) <= np.count_nonzero(lead) / 2:
+            continue
+        near = (f > estimate / 1.12) & (f < estimate * 1.12)
+        peak = float(np.max(magnitude[near])) if np.any(near) else float(magnitude[idx])
+        if peak < PEAK_RISE * float(np.min(magnitude[below])):
+            continue
+        return estimate
+    return None
 
 
 def _value_at(f: NDArray[np.float64], y: NDArray[np.float64], f0: float) -> float | None:
@@ -198,9 +246,7 @@ def inductor_landmarks(f: Any, z: Any, valid: Any = None) -> Landmarks:
         return out
     w = 2 * np.pi * f
     x = z.imag
-    # Parallel resonance: the susceptance rises through zero (− to +); for L‖R‖C,
-    # ω·Im Y = ω²C − 1/L is a straight line in ω², which the refinement uses.
-    srf = first_crossing(f, (1.0 / z).imag, rising=True)
+    srf = _parallel_resonance(f, z)
     out["srf"] = srf
     # DC resistance: median of Re Z over the lowest third of a decade.
     lowest = f <= f[0] * 10 ** (1 / 3)

@@ -15,7 +15,17 @@ from typing import Any
 
 import numpy as np
 
-from bench.core.models.network import C, L, ModelFamily, R, landmark, parallel, series, wide_bounds
+from bench.core.models.network import (
+    C,
+    L,
+    ModelFamily,
+    R,
+    drop_section,
+    landmark,
+    parallel,
+    series,
+    wide_bounds,
+)
 
 MAX_SECTIONS = 2
 
@@ -65,6 +75,11 @@ def bounds(order, f, landmarks) -> dict[str, tuple[float, float]]:
     return wide_bounds(names(order))
 
 
+def reduce(order, values, weakness) -> dict[str, float]:
+    """The fit of ``order`` without its least determined section, as a start one order down."""
+    return drop_section(order, values, weakness, ("Rs", "Ls"))
+
+
 FAMILY = ModelFamily(
     name="inductor",
     kind="inductor",
@@ -73,4 +88,5 @@ FAMILY = ModelFamily(
     circuit=circuit,
     starts=starts,
     bounds=bounds,
+    reduce=reduce,
 )

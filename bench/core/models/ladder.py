@@ -19,7 +19,17 @@ from typing import Any
 
 import numpy as np
 
-from bench.core.models.network import C, L, ModelFamily, R, landmark, parallel, series, wide_bounds
+from bench.core.models.network import (
+    C,
+    L,
+    ModelFamily,
+    R,
+    drop_section,
+    landmark,
+    parallel,
+    series,
+    wide_bounds,
+)
 
 MAX_ORDER = 5
 
@@ -85,6 +95,11 @@ def bounds(order, f, landmarks) -> dict[str, tuple[float, float]]:
     return wide_bounds(names(order))
 
 
+def reduce(order, values, weakness) -> dict[str, float]:
+    """The fit of ``order`` without its least determined section, as a start one order down."""
+    return drop_section(order, values, weakness, ("R", "C"))
+
+
 FAMILY = ModelFamily(
     name="ladder",
     kind="capacitor",
@@ -93,4 +108,5 @@ FAMILY = ModelFamily(
     circuit=circuit,
     starts=starts,
     bounds=bounds,
+    reduce=reduce,
 )

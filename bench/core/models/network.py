@@ -221,6 +221,8 @@ Starts = Callable[
     [int, NDArray[np.float64], ComplexArray, Mapping[str, Any], "Mapping[str, float] | None"],
     list[dict[str, float]],
 ]
+# reduce(order, values, weakness) -> start values of the next lower order.
+Reduce = Callable[[int, Mapping[str, float], Mapping[str, float]], dict[str, float]]
 
 
 @dataclass(frozen=True)
@@ -232,6 +234,10 @@ class ModelFamily:
     landmarks and, when given, the fit of the next lower order;
     ``bounds(order, f, landmarks)`` the (low, high) value of each element.
     ``order_of(names)`` recovers the order from a set of element names.
+    ``reduce(order, values, weakness)``, when given, turns a fit of ``order`` into start
+    values of the next lower order by dropping the part of the circuit the data did not
+    support (``weakness``: each element's relative one-sigma uncertainty, ``inf`` for an
+    element pinned at a bound); without it the lower order's elements are kept by name.
     """
 
     name: str
@@ -241,6 +247,23 @@ class ModelFamily:
     circuit: Callable[[int], Node]
     starts: Starts
     bounds: Callable[[int, NDArray[np.float64], Mapping[str, Any]], dict[str, tuple[float, float]]]
+    reduce: Reduce | None = None
+
+    def lower_order(self, order: int) -> int | None:
+        """The next lower order of the family, or None for its lowest."""
+        below = [o for o in self.orders if o < order]
+        return max(below) if below else None
+
+    def reduced_start(
+        self, order: int, values: Mapping[str, float], weakness: Mapping[str, float]
+    ) -> dict[str, float] | None:
+        """Start values of the next lower order from a fit of ``order`` (None at the lowest)."""
+        lower = self.lower_order(order)
+        if lower is None:
+            return None
+        if self.reduce is not None:
+            return self.reduce(order, values, weakness)
+        return {name: float(values[name]) for name in self.element_names(lower)}
 
     def element_names(self, order: int | None = None) -> tuple[str, ...]:
         return element_names(self.circuit(self.orders[0] if order is None else order))
@@ -270,6 +293,33 @@ class ModelFamily:
     def spice_lines(self, values: Mapping[str, float]) -> list[str]:
         """SPICE element lines between pins 1 and 2 for element ``values`` (SI)."""
         return spice_lines(self.circuit(self.order_of(values)), values)
+
+
+def drop_section(
+    order: int,
+    values: Mapping[str, float],
+    weakness: Mapping[str, float],
+    prefixes: Sequence[str],
+) -> dict[str, float]:
+    """``values`` of a circuit of ``order`` numbered sections (elements ``<prefix><k>``,
+    k = 1..order) without its weakest section, the rest renumbered 1..order-1.
+
+    The weakest section is the one holding the least determined element (the largest
+    ``weakness``); the sections are interchangeable in the circuit, so renumbering them
+    changes nothing.
+    """
+
+    def score(k: int) -> float:
+        return max(float(weakness.get(f"{p}{k}", 0.0)) for p in prefixes)
+
+    weakest = max(range(1, order + 1), key=score)
+    section_names = {f"{p}{k}" for p in prefixes for k in range(1, order + 1)}
+    out = {name: float(v) for name, v in values.items() if name not in section_names}
+    kept = [k for k in range(1, order + 1) if k != weakest]
+    for new, old in enumerate(kept, start=1):
+        for p in prefixes:
+            out[f"{p}{new}"] = float(values[f"{p}{old}"])
+    return out
 
 
 def clip_to_bounds(
