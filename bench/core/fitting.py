@@ -41,6 +41,7 @@ from bench.core.models.network import (
     vanishing_sides,
 )
 from bench.errors import FitError, InputError
+from bench.units import format_si
 
 DEFAULT_QUALITY_BOUND = 0.1
 # Relative model-error floor added in quadrature to each point's uncertainty: no circuit
@@ -476,13 +477,13 @@ def _resonance_warnings(
     if srf is None:
         out.append(
             f"the model's {what} lies outside the sweep "
-            f"({f[0]:.4g} to {f[-1]:.4g} Hz); srf is not given"
+            f"({format_si(f[0], 'Hz')} to {format_si(f[-1], 'Hz')}); srf is not given"
         )
         return out
     nearest = int(np.argmin(np.abs(np.log(f / srf))))
     if not inside[nearest] or data_marks.get("srf") is None:
         out.append(
-            f"the {what} near {srf:.4g} Hz lies outside the measurable window; "
+            f"the {what} near {format_si(srf, 'Hz')} lies outside the measurable window; "
             "srf and the value at resonance come from the model, not from measured points"
         )
     return out
@@ -512,14 +513,15 @@ def _low_frequency_warnings(
         band = np.arange(f.size) < 3
     seen = band & used
     note = (
-        f"r_dc ({r_dc:.3g} ohm) comes from the model, not from measured points: "
+        f"r_dc ({format_si(r_dc, 'Ω', 3)}) comes from the model, not from measured points: "
         f"{{why}}; measure it with a set-up whose window reaches it (no series "
         f"resistors, a narrower IF bandwidth) or with a DC ohmmeter"
     )
     if np.count_nonzero(seen) < max(3, np.count_nonzero(band) // 2):
         return [
             note.format(
-                why=f"the points below {f[band][-1]:.4g} Hz lie outside the measurable window"
+                why=f"the points below {format_si(f[band][-1], 'Hz')} lie outside the "
+                "measurable window"
             )
         ]
     # Standard error of the band's median of Re Z: about 1.25·σ/√n, with σ the RMS of
@@ -529,7 +531,8 @@ def _low_frequency_warnings(
     if r_dc < 3.0 * standard_error:
         return [
             note.format(
-                why=f"it is below three times its standard error there ({standard_error:.2g} ohm)"
+                why="it is below three times its standard error there "
+                f"({format_si(standard_error, 'Ω', 2)})"
             )
         ]
     return []

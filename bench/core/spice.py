@@ -2,14 +2,17 @@
 
 Pin 1 to pin 2 is the part. The subcircuit carries, as ``*`` comments, the model family,
 the landmarks, the fit quality and the measurement's provenance, so a model file found
-alone still says where it came from. Element values are plain SI numbers that every
-SPICE reads. Networks without a DC path get a 1e12 Ω bleed resistor so that an operating
-point exists (ngspice stops on a floating node otherwise). Text only; no I/O here.
+alone still says where it came from. Comments are plain ASCII ("uF", "mOhm", "+/-"), as
+some SPICE readers reject any other byte even in a comment; element values are plain SI
+numbers in exponent notation (``1.2e-09``), which every SPICE reads. Networks without a
+DC path get a 1e12 Ω bleed resistor so that an operating point exists (ngspice stops on a
+floating node otherwise). Text only; no I/O here.
 """
 
 from __future__ import annotations
 
 import re
+import unicodedata
 from collections.abc import Mapping, Sequence
 
 from bench.core.fitting import FitResult
@@ -42,9 +45,44 @@ def spice_name(name: str) -> str:
     return text
 
 
+# Characters of zbench's texts (units, prefixes, signs) spelled in ASCII.
+_ASCII = {
+    "µ": "u",
+    "μ": "u",
+    "Ω": "Ohm",
+    "±": "+/-",
+    "−": "-",
+    "–": "-",
+    "—": "-",
+    "‖": "||",
+    "×": "x",
+    "·": "*",
+    "°": " deg",
+    "≈": "~",
+    "≤": "<=",
+    "≥": ">=",
+    "²": "^2",
+    "√": "sqrt",
+    "‘": "'",
+    "’": "'",
+    "“": '"',
+    "”": '"',
+}
+_ASCII_TABLE = str.maketrans(_ASCII)
+
+
+def ascii_text(text: str) -> str:
+    """``text`` in plain ASCII: units and signs spelled out (``µF`` -> ``uF``, ``Ω`` ->
+    ``Ohm``, ``±`` -> ``+/-``), accents dropped, anything else left becomes ``?``."""
+    text = str(text).translate(_ASCII_TABLE)
+    text = unicodedata.normalize("NFKD", text)
+    text = "".join(c for c in text if not unicodedata.combining(c))
+    return text.encode("ascii", errors="replace").decode("ascii")
+
+
 def _comment(text: str) -> str:
-    """One comment line; newlines in values would otherwise end the comment."""
-    return "* " + " ".join(str(text).split())
+    """One comment line in ASCII; newlines in values would otherwise end the comment."""
+    return "* " + " ".join(ascii_text(text).split())
 
 
 def subckt_text(result: FitResult, name: str, *, provenance: Mapping[str, str]) -> str:
@@ -56,7 +94,10 @@ def subckt_text(result: FitResult, name: str, *, provenance: Mapping[str, str]) 
     sub = spice_name(name)
     q = result.quality
     lines = [
-        _comment(f"{sub}: zbench {result.model} model (order {result.order}) of a {result.kind}"),
+        _comment(
+            f"{sub}: zbench {result.model} model (order {result.order}) of "
+            f"{'an' if result.kind[:1] in 'aeiou' else 'a'} {result.kind}"
+        ),
         _comment(
             f"fitted from {format_si(result.f_range[0], 'Hz')} to "
             f"{format_si(result.f_range[1], 'Hz')}, {q.points_used} points used, "
@@ -80,7 +121,7 @@ def subckt_text(result: FitResult, name: str, *, provenance: Mapping[str, str]) 
         unit = _ELEMENT_UNITS.get(key[0], "")
         text = format_si(value, unit)
         if sigma is not None and value > 0:
-            text += f" ± {100 * sigma / value:.2g} %"
+            text += f" +/- {100 * sigma / value:.2g} %"
         elements.append(f"{key} = {text}")
     lines.append(_comment("elements: " + ", ".join(elements)))
     for key, value in provenance.items():
