@@ -14,7 +14,10 @@
 - the Jacobian is analytic: ``d ln Z/d ln p = p·(dZ/dp)/Z`` from the network tree;
 - the order of ``ladder``, ``inductor`` and ``bead``, and the family under ``auto``, is
   chosen by the Bayesian information criterion ``χ² + k·ln(m)`` (χ² weighted by the
-  point uncertainties, m residuals, k elements);
+  point uncertainties, m residuals, k elements), among the fits the data support: a fit
+  with an element pinned at a bound of its range or not determined (one sigma above
+  100 %) has more elements than the data can tell apart and is passed over for a
+  simpler one, and its fit, without the unsupported section, restarts the lower order;
 - element uncertainties come from the Jacobian, the covariance scaled by the residual
   variance ``χ²/(m − k)``.
 
@@ -387,7 +390,7 @@ def _lowest_bic(trials: list[_Trial]) -> _Trial:
     return best
 
 
-def _select(trials: list[_Trial], quality_bound: float) -> _Trial:
+def _select(trials: list[_Trial], quality_bound: float) -> tuple[_Trial, bool]:
     """The chosen trial: :func:`_lowest_bic` among the trials the data support.
 
     A trial with an element pinned at a bound or not determined (see
@@ -395,16 +398,20 @@ def _select(trials: list[_Trial], quality_bound: float) -> _Trial:
     low its criterion; the simplest trials (fewest elements) stay eligible whatever their
     state, as the base the others must improve on. Only when no eligible trial meets the
     quality bound is an unsupported one that meets it taken (its undetermined elements
-    are then named in the warnings).
+    are then named in the warnings). Returns the trial and whether it is such a one.
     """
     fewest = min(t.q.size for t in trials)
     eligible = [t for t in trials if t.supported or t.q.size == fewest]
     best = _lowest_bic(eligible)
-    if best.rms > quality_bound:
-        good = [t for t in trials if t.rms <= quality_bound]
-        if good:
-            best = _lowest_bic(good)
-    return best
+    if best.rms <= quality_bound:
+        return best, False
+    good = [t for t in eligible if t.rms <= quality_bound]
+    if good:
+        return _lowest_bic(good), False
+    good = [t for t in trials if t.rms <= quality_bound]
+    if good:
+        return _lowest_bic(good), True
+    return best, False
 
 
 def _covariance(trial: _Trial, f, z, weight) -> NDArray[np.float64]:
@@ -645,7 +652,7 @@ def fit_impedance(
         trials += _fit_family(family, orders, fu, zu, weight, data_marks, trials, n_used)
     if not trials:
         raise FitError(f"too few points ({n_used}) for any order of model {model!r}")
-    best = _select(trials, quality_bound)
+    best, unsupported = _select(trials, quality_bound)
 
     zm = network_impedance(best.family.circuit(best.order), fu, best.values)
     err = np.abs(np.log(zm / zu))
@@ -669,7 +676,8 @@ def fit_impedance(
     if loose:
         warnings.append(
             f"elements {', '.join(loose)} are not determined by the data (one-sigma "
-            "uncertainty above 100 %); no simpler model met the quality bound"
+            "uncertainty above 100 %)"
+            + ("; no model with fewer elements met the quality bound" if unsupported else "")
         )
     if quality.rms_log_error > quality_bound:
         warnings.append(

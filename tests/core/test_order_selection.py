@@ -120,6 +120,7 @@ def test_unsupported_order_is_taken_only_when_nothing_simpler_meets_the_bound():
     assert undetermined
     note = [w for w in strict.warnings if "not determined" in w]
     assert note and all(n in note[0] for n in undetermined)
+    assert "no model with fewer elements met the quality bound" in note[0]
 
 
 def test_dropping_a_section_renumbers_the_rest():
