@@ -204,7 +204,8 @@ def _fit_one(
         provenance = api.default_provenance(
             name,
             series_r=f"{series_r or 0:g} ohm",
-            mount=str(mount) if mount is not None else "none",
+            # The mount arrives loaded; its file name is the provenance, not its data.
+            mount=str(getattr(mount, "path", mount)) if mount is not None else "none",
             model=result.model,
         )
         outcome.spice_text = subckt_text(result, spice_name(Path(name).stem), provenance=provenance)

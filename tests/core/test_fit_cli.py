@@ -153,6 +153,16 @@ def test_spice_for_one_file_is_that_file(capsys, tmp_path):
     assert ".ends" in text.lower()
 
 
+def test_spice_names_the_mount_file_not_its_data(capsys, tmp_path):
+    target = tmp_path / "mlcc.sub"
+    code, _, err = run(capsys, MLCC, "--mount", MOUNT, "--spice", target)
+    assert code in (0, 3), err
+    comments = [line for line in target.read_text().splitlines() if line.startswith("*")]
+    mount_lines = [line for line in comments if line.startswith("* mount:")]
+    assert mount_lines == [f"* mount: {MOUNT}"]
+    assert all(len(line) < 300 for line in comments)
+
+
 def test_spice_for_several_files_is_a_folder_or_a_library(capsys, tmp_path):
     folder = tmp_path / "models"
     code, out, err = run(capsys, BULK, MLCC, "--spice", folder, "--json")
