@@ -307,7 +307,7 @@ def _fit_order(
 ) -> _Trial:
     names = family.element_names(order)
     node = family.circuit(order)
-    limits = family.bounds(order, f, landmarks)
+    limits = family.element_bounds(order, f, landmarks)
     lo = np.log([limits[n][0] for n in names])
     hi = np.log([limits[n][1] for n in names])
     m = 2 * f.size

@@ -207,7 +207,7 @@ def test_starts_are_inside_bounds_for_plain_landmarks(name):
     )
     z = np.full(f.shape, 1.0 + 0.1j)
     for order in family.orders:
-        bounds = family.bounds(order, f, marks)
+        bounds = family.element_bounds(order, f, marks)
         starts = family.starts(order, f, z, marks, None)
         assert starts
         for start in starts:

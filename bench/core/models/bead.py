@@ -13,7 +13,7 @@ from typing import Any
 
 import numpy as np
 
-from bench.core.models.network import C, L, ModelFamily, R, landmark, parallel, series, wide_bounds
+from bench.core.models.network import C, L, ModelFamily, R, landmark, parallel, series
 
 
 def names(order: int) -> tuple[str, ...]:
@@ -55,10 +55,6 @@ def starts(order, f, z, landmarks: Mapping[str, Any], previous=None) -> list[dic
     return out
 
 
-def bounds(order, f, landmarks) -> dict[str, tuple[float, float]]:
-    return wide_bounds(names(order))
-
-
 FAMILY = ModelFamily(
     name="bead",
     kind="inductor",
@@ -66,5 +62,4 @@ FAMILY = ModelFamily(
     description="Rdc in series with L ‖ R ‖ C, optionally a second L ‖ R",
     circuit=circuit,
     starts=starts,
-    bounds=bounds,
 )

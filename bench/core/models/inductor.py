@@ -24,7 +24,6 @@ from bench.core.models.network import (
     landmark,
     parallel,
     series,
-    wide_bounds,
 )
 
 MAX_SECTIONS = 2
@@ -71,10 +70,6 @@ def starts(order, f, z, landmarks: Mapping[str, Any], previous=None) -> list[dic
     return out
 
 
-def bounds(order, f, landmarks) -> dict[str, tuple[float, float]]:
-    return wide_bounds(names(order))
-
-
 def reduce(order, values, weakness) -> dict[str, float]:
     """The fit of ``order`` without its least determined section, as a start one order down."""
     return drop_section(order, values, weakness, ("Rs", "Ls"))
@@ -87,6 +82,5 @@ FAMILY = ModelFamily(
     description="winding Rdc, L and R-L sections, with core-loss Rp and winding Cp across",
     circuit=circuit,
     starts=starts,
-    bounds=bounds,
     reduce=reduce,
 )

@@ -28,7 +28,6 @@ from bench.core.models.network import (
     landmark,
     parallel,
     series,
-    wide_bounds,
 )
 
 MAX_ORDER = 5
@@ -91,10 +90,6 @@ def starts(order, f, z, landmarks: Mapping[str, Any], previous=None) -> list[dic
     return out
 
 
-def bounds(order, f, landmarks) -> dict[str, tuple[float, float]]:
-    return wide_bounds(names(order))
-
-
 def reduce(order, values, weakness) -> dict[str, float]:
     """The fit of ``order`` without its least determined section, as a start one order down."""
     return drop_section(order, values, weakness, ("R", "C"))
@@ -107,6 +102,5 @@ FAMILY = ModelFamily(
     description="series R, L and C with N parallel R-C sections (bulk capacitors)",
     circuit=circuit,
     starts=starts,
-    bounds=bounds,
     reduce=reduce,
 )

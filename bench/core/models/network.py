@@ -223,6 +223,7 @@ Starts = Callable[
 ]
 # reduce(order, values, weakness) -> start values of the next lower order.
 Reduce = Callable[[int, Mapping[str, float], Mapping[str, float]], dict[str, float]]
+Bounds = Callable[[int, NDArray[np.float64], Mapping[str, Any]], dict[str, tuple[float, float]]]
 
 
 @dataclass(frozen=True)
@@ -232,7 +233,8 @@ class ModelFamily:
     ``circuit(order)`` gives the network; ``starts(order, f, z, landmarks, previous)`` a
     short list of deterministic start values (dicts of element values, SI) from the
     landmarks and, when given, the fit of the next lower order;
-    ``bounds(order, f, landmarks)`` the (low, high) value of each element.
+    ``bounds(order, f, landmarks)``, when given, the (low, high) value of each element;
+    without it every element gets the :data:`WIDE_BOUNDS` of its kind.
     ``order_of(names)`` recovers the order from a set of element names.
     ``reduce(order, values, weakness)``, when given, turns a fit of ``order`` into start
     values of the next lower order by dropping the part of the circuit the data did not
@@ -246,8 +248,16 @@ class ModelFamily:
     description: str
     circuit: Callable[[int], Node]
     starts: Starts
-    bounds: Callable[[int, NDArray[np.float64], Mapping[str, Any]], dict[str, tuple[float, float]]]
+    bounds: Bounds | None = None
     reduce: Reduce | None = None
+
+    def element_bounds(
+        self, order: int, f: NDArray[np.float64], landmarks: Mapping[str, Any]
+    ) -> dict[str, tuple[float, float]]:
+        """The (low, high) value of each element of ``order`` (SI units)."""
+        if self.bounds is not None:
+            return self.bounds(order, f, landmarks)
+        return wide_bounds(self.element_names(order))
 
     def lower_order(self, order: int) -> int | None:
         """The next lower order of the family, or None for its lowest."""

@@ -14,7 +14,6 @@ from bench.core.models.network import (
     R,
     landmark,
     series,
-    wide_bounds,
 )
 
 
@@ -34,10 +33,6 @@ def starts(order, f, z, landmarks: Mapping[str, Any], previous=None) -> list[dic
     ]
 
 
-def bounds(order, f, landmarks) -> dict[str, tuple[float, float]]:
-    return wide_bounds(("R", "L", "C"))
-
-
 FAMILY = ModelFamily(
     name="series-rlc",
     kind="capacitor",
@@ -45,5 +40,4 @@ FAMILY = ModelFamily(
     description="series R-L-C (ESR, ESL, C)",
     circuit=circuit,
     starts=starts,
-    bounds=bounds,
 )

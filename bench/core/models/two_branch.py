@@ -12,7 +12,7 @@ from typing import Any
 
 import numpy as np
 
-from bench.core.models.network import C, L, ModelFamily, R, landmark, parallel, series, wide_bounds
+from bench.core.models.network import C, L, ModelFamily, R, landmark, parallel, series
 
 NAMES = ("R1", "L1", "C1", "R2", "L2", "C2")
 
@@ -112,10 +112,6 @@ def _step_start(f, z, srf: float, c: float, esr: float) -> dict[str, float] | No
     return {"R1": esr, "L1": l1, "C1": max(c - c2, 0.5 * c), "R2": r2, "L2": l2, "C2": c2}
 
 
-def bounds(order, f, landmarks) -> dict[str, tuple[float, float]]:
-    return wide_bounds(NAMES)
-
-
 FAMILY = ModelFamily(
     name="two-branch",
     kind="capacitor",
@@ -123,5 +119,4 @@ FAMILY = ModelFamily(
     description="two series R-L-C branches in parallel",
     circuit=circuit,
     starts=starts,
-    bounds=bounds,
 )
