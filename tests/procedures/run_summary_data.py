@@ -2,15 +2,11 @@
 
 Invented parts from :mod:`simulated_instruments.parts`, turned into noisy shunt-through
 measurements (DESIGN §4), through the real impedance chain and the real fitter, into a
-:class:`bench.results.RunSummary`. The test modules import it by file path under one
-``sys.modules`` key, so the fits run once per test session.
+:class:`bench.results.RunSummary`. ``conftest.py`` imports it by file path and builds
+the run once per test session.
 """
 
 from __future__ import annotations
-
-import importlib.util
-import sys
-from pathlib import Path
 
 import numpy as np
 
@@ -19,8 +15,6 @@ from bench.core.fitting import fit_impedance
 from bench.core.impedance import impedance_from_shunt_through
 from bench.results import PartSpec, RunSummary, SampleResult
 from simulated_instruments.parts import BulkCapacitor, FerriteBead, Mlcc, PowerInductor
-
-KEY = "zbench_tests_run_summary_data"
 
 #: Capacitances of the MLCC lot at 0 V (F, invented): s3 lies outside 10 µF ± 10 %.
 MLCC_C = {"s1": 10.0e-6, "s2": 9.6e-6, "s3": 11.5e-6}
@@ -156,23 +150,3 @@ def build() -> RunSummary:
         warnings=("one sample could not be fitted",),
         software_version="0.1.0",
     )
-
-
-_CACHED: list[RunSummary] = []
-
-
-def summary() -> RunSummary:
-    """The run, built on first use and then reused."""
-    if not _CACHED:
-        _CACHED.append(build())
-    return _CACHED[0]
-
-
-def load():
-    """Import this file once per session under :data:`KEY` (tests are not a package)."""
-    if KEY not in sys.modules:
-        spec = importlib.util.spec_from_file_location(KEY, Path(__file__))
-        module = importlib.util.module_from_spec(spec)
-        sys.modules[KEY] = module
-        spec.loader.exec_module(module)
-    return sys.modules[KEY]

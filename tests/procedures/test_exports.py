@@ -6,38 +6,17 @@ from __future__ import annotations
 
 import csv
 import dataclasses
-import importlib.util
 import re
 import shutil
 import subprocess
-import sys
 from pathlib import Path
 
 import numpy as np
 import pytest
 
 from bench import exports
-from bench.results import PartSpec, RunSummary
+from bench.results import PartSpec
 from bench.touchstone import load_measurement
-
-
-def _data_module():
-    key = "zbench_tests_run_summary_data"
-    if key not in sys.modules:
-        path = Path(__file__).with_name("run_summary_data.py")
-        spec = importlib.util.spec_from_file_location(key, path)
-        module = importlib.util.module_from_spec(spec)
-        sys.modules[key] = module
-        spec.loader.exec_module(module)
-    return sys.modules[key]
-
-
-DATA = _data_module()
-
-
-@pytest.fixture(scope="module")
-def summary() -> RunSummary:
-    return DATA.summary()
 
 
 @pytest.fixture(scope="module")
@@ -244,12 +223,12 @@ def test_lot_statistics_against_numpy(summary, run_dir):
     assert row["unit"] == "F"
 
 
-def test_bias_table_and_csv(summary, run_dir):
+def test_bias_table_and_csv(summary, summary_data, run_dir):
     table = exports.bias_table(summary)
     assert list(table) == ["ZX-C10U"]  # the only part measured at several bias points
     points = {(p.sample, p.bias_v): p for p in table["ZX-C10U"]}
     for sample in ("s1", "s2"):
-        low, high = points[(sample, 0.0)], points[(sample, DATA.MLCC_BIAS)]
+        low, high = points[(sample, 0.0)], points[(sample, summary_data.MLCC_BIAS)]
         assert low.change == 0.0
         assert high.change == pytest.approx(high.c_low / low.c_low - 1, rel=1e-12)
         # Class II ceramic of the simulator: C(V) = C0/(1 + (V/V50)²) with V50 = 0.42·6.3 V

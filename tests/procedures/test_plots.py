@@ -2,10 +2,7 @@
 
 from __future__ import annotations
 
-import importlib.util
 import io
-import sys
-from pathlib import Path
 
 import numpy as np
 from PIL import Image
@@ -15,26 +12,14 @@ from bench import plots
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948), file signature
 
 
-def _data_module():
-    key = "zbench_tests_run_summary_data"
-    if key not in sys.modules:
-        path = Path(__file__).with_name("run_summary_data.py")
-        spec = importlib.util.spec_from_file_location(key, path)
-        module = importlib.util.module_from_spec(spec)
-        sys.modules[key] = module
-        spec.loader.exec_module(module)
-    return sys.modules[key]
-
-
-def _samples():
-    summary = _data_module().summary()
+def _samples(summary):
     fitted = next(s for s in summary.samples if s.fit is not None)
     unfitted = next(s for s in summary.samples if s.fit is None)
     return fitted, unfitted
 
 
-def test_sample_figure_has_impedance_and_residual_panels_on_one_axis():
-    fitted, unfitted = _samples()
+def test_sample_figure_has_impedance_and_residual_panels_on_one_axis(summary):
+    fitted, unfitted = _samples(summary)
     fig = plots.sample_figure(fitted.data, fitted.fit, title="A / s1")
     assert len(fig.axes) == 4
     assert [ax.get_ylabel() for ax in fig.axes] == [
@@ -59,8 +44,8 @@ def test_minor_grid_positions_are_two_to_nine_per_decade():
     assert plots._log_minor_positions(0.0, 10.0).size == 0
 
 
-def test_minor_grid_is_drawn_without_minor_ticks():
-    fitted, _ = _samples()
+def test_minor_grid_is_drawn_without_minor_ticks(summary):
+    fitted, _ = _samples(summary)
     fig = plots.sample_figure(fitted.data, fitted.fit)
     ax = fig.axes[0]
     assert ax.xaxis.get_minorticklocs().size == 0
@@ -74,8 +59,8 @@ def test_minor_grid_is_drawn_without_minor_ticks():
     assert abs(vertical - 8 * decades) <= 8
 
 
-def test_png_is_a_small_palette_image():
-    fitted, _ = _samples()
+def test_png_is_a_small_palette_image(summary):
+    fitted, _ = _samples(summary)
     fig = plots.sample_figure(fitted.data, fitted.fit)
     data = plots.png_bytes(fig)
     assert data.startswith(PNG_SIGNATURE)

@@ -5,11 +5,8 @@ from __future__ import annotations
 
 import base64
 import html.parser
-import importlib.util
 import io
 import re
-import sys
-from pathlib import Path
 
 import pytest
 from PIL import Image
@@ -17,25 +14,6 @@ from PIL import Image
 from bench import exports, report
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948), file signature
-
-
-def _data_module():
-    key = "zbench_tests_run_summary_data"
-    if key not in sys.modules:
-        path = Path(__file__).with_name("run_summary_data.py")
-        spec = importlib.util.spec_from_file_location(key, path)
-        module = importlib.util.module_from_spec(spec)
-        sys.modules[key] = module
-        spec.loader.exec_module(module)
-    return sys.modules[key]
-
-
-DATA = _data_module()
-
-
-@pytest.fixture(scope="module")
-def summary():
-    return DATA.summary()
 
 
 @pytest.fixture(scope="module")
