@@ -503,6 +503,7 @@ def _low_frequency_warnings(
     sigma: NDArray[np.float64],
     used: NDArray[np.bool_],
     model_marks: Landmarks,
+    some_excluded: bool = False,
 ) -> list[str]:
     """Say so when the DC resistance of an inductor or bead was not measured.
 
@@ -527,8 +528,12 @@ def _low_frequency_warnings(
     if np.count_nonzero(seen) < max(3, np.count_nonzero(band) // 2):
         return [
             note.format(
-                why=f"the points below {format_si(f[band][-1], 'Hz')} lie outside the "
-                "measurable window"
+                why=f"the points below {format_si(f[band][-1], 'Hz')} "
+                + (
+                    "were not used (outside the measurable window or left out)"
+                    if some_excluded
+                    else "lie outside the measurable window"
+                )
             )
         ]
     # Standard error of the band's median of Re Z: about 1.25·σ/√n, with σ the RMS of
@@ -600,6 +605,7 @@ def fit_impedance(
     valid: Any = None,
     quality_bound: float = DEFAULT_QUALITY_BOUND,
     order: int | None = None,
+    excluded: Any = None,
 ) -> FitResult:
     """Fit an equivalent circuit to the impedance ``z`` (Ω, complex) at ``f`` (Hz).
 
@@ -608,7 +614,9 @@ def fit_impedance(
     is the relative uncertainty of each point (fraction, e.g. 0.01) and weights the fit;
     ``valid`` marks points inside the measurable window (others are dropped and counted).
     ``quality_bound`` is the largest ``rms_log_error`` that ``meets_quality`` accepts.
-    ``order`` fixes the order of a family with several.
+    ``order`` fixes the order of a family with several. ``excluded`` marks points inside
+    the window that are not to be used for another reason (below a ground-loop corner,
+    say): they are dropped but not counted as outside the window.
 
     Raises :class:`InputError` for malformed arrays or an unknown model,
     :class:`ModelMismatchError` when the model's kind (capacitor or inductor) is not the
@@ -617,8 +625,14 @@ def fit_impedance(
     if model not in MODEL_NAMES:
         raise InputError(f"unknown model {model!r}", hint=f"choose one of {', '.join(MODEL_NAMES)}")
     f, z, sigma, inside = _check_inputs(f, z, rel_uncertainty, valid)
+    left_out = np.zeros(f.shape, bool) if excluded is None else np.asarray(excluded, bool)
+    if left_out.shape != f.shape:
+        raise InputError(
+            f"excluded has {left_out.size} marks for {f.size} frequencies",
+            hint="give one True/False mark per frequency point",
+        )
     finite = np.isfinite(z) & (z != 0) & np.isfinite(sigma)
-    used = finite & inside
+    used = finite & inside & ~left_out
     warnings: list[str] = []
     n_unusable = int(np.count_nonzero(~finite))
     if n_unusable:
@@ -666,7 +680,7 @@ def fit_impedance(
         kind, f, network_impedance(best.family.circuit(best.order), f, best.values)
     )
     warnings += _resonance_warnings(kind, f, used, model_marks, data_marks)
-    warnings += _low_frequency_warnings(kind, f, z, sigma, used, model_marks)
+    warnings += _low_frequency_warnings(kind, f, z, sigma, used, model_marks, left_out.any())
     if best.at_bound:
         warnings.append(
             f"elements {', '.join(best.at_bound)} ended at the edge of their allowed range; "

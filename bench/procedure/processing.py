@@ -411,56 +411,20 @@ def fit_sample(
         from bench.core.fitting import fit_impedance
     except ImportError:
         return None, "fitting is not available in this build"
-    inside = np.asarray(data.inside_window, dtype=bool)
-    valid = inside & (data.f >= valid_above_hz)
     try:
+        # Points below a ground-loop corner are inside the window: left out, not counted
+        # as outside it (the sample's own note counts them).
         fit = fit_impedance(
-            data.f, data.z, model=model, rel_uncertainty=data.rel_uncertainty, valid=valid
+            data.f,
+            data.z,
+            model=model,
+            rel_uncertainty=data.rel_uncertainty,
+            valid=data.inside_window,
+            excluded=np.asarray(data.f) < valid_above_hz,
         )
     except FitError as exc:
         return None, str(exc)
-    if valid_above_hz > 0:
-        fit = _outside_window_only(fit, data, inside, valid)
     return fit, None
-
-
-#: The fitter's note on points it was told not to use (``valid`` False).
-_OUTSIDE_NOTE = "{n} of {total} points lie outside the measurable window and were not used"
-
-
-def _outside_window_only(
-    fit: Any, data: ImpedanceData, inside: np.ndarray, valid: np.ndarray
-) -> Any:
-    """``fit`` with only the points really outside the window counted as outside.
-
-    The fitter counts every point it was told not to use; points left out below a
-    ground-loop corner are inside the window, and the sample's own note counts them
-    (:func:`_sample`). Its quality and warnings are put right here.
-    """
-    z = np.asarray(data.z)
-    finite = np.isfinite(z) & (z != 0) & np.isfinite(np.asarray(data.rel_uncertainty))
-    dropped = int(np.count_nonzero(finite & ~valid))
-    outside = int(np.count_nonzero(finite & ~inside))
-    if dropped == outside:
-        return fit
-    total = z.size
-    old = _OUTSIDE_NOTE.format(n=dropped, total=total)
-    warnings = []
-    for text in fit.warnings:
-        if text == old:
-            if outside:
-                warnings.append(_OUTSIDE_NOTE.format(n=outside, total=total))
-            continue
-        if text.startswith("r_dc (") and "lie outside the measurable window" in text:
-            # The fitter's reason for an unmeasured r_dc: its low band was not used, here
-            # because of the ground loop as much as the window.
-            text = text.replace(
-                "lie outside the measurable window",
-                "were not used (outside the measurable window or below the ground loop)",
-            )
-        warnings.append(text)
-    quality = replace(fit.quality, points_outside_window=outside)
-    return replace(fit, quality=quality, warnings=tuple(warnings))
 
 
 def build_summary(
