@@ -690,7 +690,9 @@ def _fit_family(
         if trial.bic > best_bic:
             break  # the criterion has turned; higher orders will not pay
         best_bic = min(best_bic, trial.bic)
-        overall = min(t.chi2 for t in [*others, *out])
+        # Compared with fits of no more elements: a higher order of another family may
+        # fit far better now, and this family's next order catch up.
+        overall = min(t.chi2 for t in [*others, *out] if t.q.size <= trial.q.size)
         if trial.chi2 > HOPELESS_FACTOR * overall:
             break  # another family fits far better; more orders of this one will not catch up
     return out
@@ -779,9 +781,16 @@ def fit_impedance(
     glitch, edge = _screen(f, z, candidates_ok, negative, all_weight, best)
     screened = used & ~glitch & ~edge
     if np.count_nonzero(screened) < n_used and np.count_nonzero(screened) >= MIN_POINTS:
+        # Every candidate again on the screened points, from where it ended: one start.
         used = screened
         n_used = int(np.count_nonzero(used))
-        trials, data_marks, (best, unsupported) = choose(used)
+        fu, zu, weight = f[used], z[used], all_weight[used]
+        data_marks = landmarks_for(kind, fu, zu)
+        trials = [
+            _fit_order(t.family, t.order, fu, zu, weight, data_marks, None, starts=[t.values])
+            for t in trials
+        ]
+        best, unsupported = _select(trials, quality_bound)
     else:
         glitch[:] = False
         edge[:] = False
@@ -823,7 +832,8 @@ def fit_impedance(
         points_excluded=int(sum(e.count for e in excluded)),
     )
     model_marks = _model_landmarks(kind, f, best)
-    marks, sources = _merge_landmarks(data_marks, model_marks)
+    cut = (bool(np.any(edge & (f < fu[0]))), bool(np.any(edge & (f > fu[-1]))))
+    marks, sources = _merge_landmarks(data_marks, model_marks, cut)
     warnings += _resonance_warnings(kind, f, used, model_marks, data_marks)
     warnings += _low_frequency_warnings(kind, f, z, sigma, used, marks, left_out.any())
     if best.at_bound:
@@ -903,14 +913,24 @@ def _model_landmarks(kind: str, f: NDArray[np.float64], trial: _Trial) -> Landma
     return out
 
 
-def _merge_landmarks(data: Landmarks, model: Landmarks) -> tuple[Landmarks, dict[str, str | None]]:
+# Landmarks read at the bottom or the top of the sweep (``bench.core.landmarks``): when
+# the screening cut that edge off, the measured points no longer hold them.
+BOTTOM_LANDMARKS = ("c_low", "l_low", "r_dc")
+TOP_LANDMARKS = ("esl",)
+
+
+def _merge_landmarks(
+    data: Landmarks, model: Landmarks, cut: tuple[bool, bool] = (False, False)
+) -> tuple[Landmarks, dict[str, str | None]]:
     """Each landmark from the measured points where they give it, else from the model;
-    with its source (``"data"``, ``"model"``, or None where neither gives one)."""
+    with its source (``"data"``, ``"model"``, or None where neither gives one). ``cut``
+    says whether the bottom and the top of the band were left out as band edges."""
     order = list(model) + [k for k in data if k not in model]
+    lost = (BOTTOM_LANDMARKS if cut[0] else ()) + (TOP_LANDMARKS if cut[1] else ())
     marks: Landmarks = {}
     sources: dict[str, str | None] = {}
     for key in order:
-        if data.get(key) is not None:
+        if data.get(key) is not None and not (key in lost and model.get(key) is not None):
             marks[key], sources[key] = data[key], "data"
         elif model.get(key) is not None:
             marks[key], sources[key] = model[key], "model"

@@ -27,10 +27,10 @@ class FamilyEntry:
 
 REGISTRY: tuple[FamilyEntry, ...] = (
     FamilyEntry("series-rlc", "capacitor", "series_rlc", (1,)),
-    FamilyEntry("lossy-rlc", "capacitor", "lossy_rlc", (0, 1)),
+    FamilyEntry("lossy-rlc", "capacitor", "lossy_rlc", (0, 1, 2)),
     FamilyEntry("two-branch", "capacitor", "two_branch", (1,)),
     FamilyEntry("ladder", "capacitor", "ladder", (2, 3, 4, 5)),
-    FamilyEntry("inductor", "inductor", "inductor", (0, 1, 2)),
+    FamilyEntry("inductor", "inductor", "inductor", (0, 1, 2, 3, 4)),
     FamilyEntry("bead", "inductor", "bead", (1, 2, 3)),
 )
 

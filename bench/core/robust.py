@@ -25,7 +25,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 NEGATIVE_SIGMAS = 3.0
-GLITCH_LEVEL = 6.0
+GLITCH_LEVEL = 4.0
 # A glitch stands this many times above the median residual of its neighbours.
 GLITCH_CONTRAST = 4.0
 GLITCH_NEIGHBOURS = 3

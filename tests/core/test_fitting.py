@@ -127,7 +127,8 @@ def test_ladder_follows_distributed_line_better_than_series_rlc():
 @pytest.mark.parametrize(
     ("part", "kind", "models"),
     [
-        (MLCC, "capacitor", {"two-branch"}),
+        # lossy-rlc order 2 is two-branch with the loss across the band added.
+        (MLCC, "capacitor", {"two-branch", "lossy-rlc"}),
         (BULK, "capacitor", {"ladder"}),
         (INDUCTOR, "inductor", {"inductor", "bead"}),
         (BEAD, "inductor", {"bead"}),

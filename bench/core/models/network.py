@@ -32,8 +32,11 @@ class Element:
     """One element; ``name`` starts with its kind letter (``R1``, ``Lk1``, ``Cp``).
 
     Kinds ``R``, ``L``, ``C`` are the ideal parts. Two kinds describe a loss spread
-    over a band ``band = (f_lo, f_hi)`` (Hz) and stand for a ladder of ideal parts in
-    the SPICE export (:func:`dielectric_ladder`, :func:`skin_ladder`):
+    over a band ``band = (f_lo, f_hi)`` (Hz). Each is a ladder of ideal parts with
+    :data:`LADDER_PER_DECADE` sections per decade (:func:`dielectric_ladder`,
+    :func:`skin_ladder`): the model is that ladder, the SPICE export writes it out, and
+    the continuous forms below are its limit (:func:`dielectric_continuum`,
+    :func:`skin_continuum`), within about 1 % inside the band:
 
     - ``D`` (value in F): dielectric loss with a constant loss tangent, the wideband
       Debye model of Djordjevic, Biljić, Likar-Smiljanić and Sarkar (IEEE Trans. EMC
@@ -99,18 +102,52 @@ def S(name: str, band: tuple[float, float]) -> Element:
 SKIN_REFERENCE_HZ = 1e6
 
 
-def _dielectric_shape(jw: ComplexArray, band: tuple[float, float]) -> ComplexArray:
-    """``jω·(2/π)·ln((ω2 + jω)/(ω1 + jω))``: admittance per farad of a ``D`` element."""
+def dielectric_continuum(jw: ComplexArray, band: tuple[float, float]) -> ComplexArray:
+    """``jω·(2/π)·ln((ω2 + jω)/(ω1 + jω))``: admittance per farad of the continuous
+    wideband Debye form (Djordjevic et al. 2001, from memory)."""
     w1, w2 = 2 * np.pi * band[0], 2 * np.pi * band[1]
     return jw * (2 / np.pi) * np.log((w2 + jw) / (w1 + jw))
 
 
-def _skin_shape(jw: ComplexArray, band: tuple[float, float]) -> ComplexArray:
-    """Impedance per ohm of an ``S`` element (see :class:`Element`)."""
+def skin_continuum(jw: ComplexArray, band: tuple[float, float]) -> ComplexArray:
+    """Impedance per ohm of the continuous √f form (see :class:`Element`)."""
     wa, wb = 2 * np.pi * band[0], 2 * np.pi * band[1]
     a = np.sqrt(2.0) / (np.pi * np.sqrt(2 * np.pi * SKIN_REFERENCE_HZ))
     root = np.sqrt(jw)
     return 2 * a * root * (np.arctan(np.sqrt(wb) / root) - np.arctan(np.sqrt(wa) / root))
+
+
+def _dielectric_shape(jw: ComplexArray, band: tuple[float, float]) -> ComplexArray:
+    """Admittance per farad of a ``D`` element: the ladder of :func:`dielectric_ladder`
+    itself, so that the model and its SPICE export are one circuit."""
+    centres, width = _log_cells(band)
+    g = (2 / np.pi) * width
+    return np.sum(g * jw[None, :] / (1 + jw[None, :] / centres[:, None]), axis=0)
+
+
+def _skin_shape(jw: ComplexArray, band: tuple[float, float]) -> ComplexArray:
+    """Impedance per ohm of an ``S`` element: the ladder of :func:`skin_ladder` itself."""
+    centres, width = _log_cells(band)
+    a = np.sqrt(2.0) / (np.pi * np.sqrt(2 * np.pi * SKIN_REFERENCE_HZ))
+    r = a * np.sqrt(centres) * width
+    return np.sum(r[:, None] * jw[None, :] / (centres[:, None] + jw[None, :]), axis=0)
+
+
+_SHAPES: dict[tuple[str, tuple[float, float] | None, int, int], ComplexArray] = {}
+
+
+def _shape(node: Element, jw: ComplexArray) -> ComplexArray:
+    """The frequency shape of a ``D`` or ``S`` element, kept for the grids in use (a fit
+    evaluates one grid hundreds of times and the shape does not depend on the value)."""
+    key = (node.kind, node.band, jw.size, hash(jw.tobytes()))
+    out = _SHAPES.get(key)
+    if out is None:
+        if len(_SHAPES) > 64:
+            _SHAPES.clear()
+        out = (_dielectric_shape if node.kind == "D" else _skin_shape)(jw, node.band)
+        out.flags.writeable = False
+        _SHAPES[key] = out
+    return out
 
 
 def _element_impedance(node: Element, jw: ComplexArray, value: float) -> ComplexArray:
@@ -121,9 +158,9 @@ def _element_impedance(node: Element, jw: ComplexArray, value: float) -> Complex
     if node.kind == "C":
         return 1.0 / (jw * value)
     if node.kind == "D":
-        return 1.0 / (value * _dielectric_shape(jw, node.band))
+        return 1.0 / (value * _shape(node, jw))
     if node.kind == "S":
-        return value * _skin_shape(jw, node.band)
+        return value * _shape(node, jw)
     raise ValueError(f"unknown element kind {node.kind!r}")
 
 
