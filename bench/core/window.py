@@ -309,8 +309,10 @@ def relative_uncertainty(z: ArrayLike, window: Window) -> NDArray[np.float64]:
     window's set-up. NaN impedances give NaN; 0 and infinity give infinity.
     """
     zz = np.asarray(z, dtype=complex)
-    if window.method == "as-given":
-        raise ValueError("data taken as given carry their own uncertainty; there is no model")
+    if window.method not in METHODS:
+        raise ValueError(
+            f"a {window.method} window has no uncertainty model; the data carry their own"
+        )
     out = _uncertainty(
         zz,
         window.ze,
@@ -324,7 +326,7 @@ def relative_uncertainty(z: ArrayLike, window: Window) -> NDArray[np.float64]:
 
 def inside_window(z: ArrayLike, window: Window) -> NDArray[np.bool_]:
     """True where ``z`` (Ω) is measurable within the window's tolerance."""
-    if window.method == "as-given":
+    if window.method not in METHODS:
         return np.isfinite(np.asarray(z, dtype=complex))
     u = relative_uncertainty(z, window)
     with np.errstate(invalid="ignore"):
