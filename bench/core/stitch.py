@@ -10,9 +10,9 @@ is ``1/√Σ(1/u²)``.
 
 Where two set-ups overlap they must agree within their uncertainties: a run of at least
 ``min_points`` consecutive common points (gaps of up to two points bridged) where
-``|ln Za − ln Zb|`` exceeds ``threshold`` times ``√(ua² + ub²)`` is reported as a :class:`Disagreement` naming its band, its size
-(the median ``|Za/Zb − 1|`` there) and the two set-ups. Values are still merged there:
-the report says which to trust.
+``|ln Za − ln Zb|`` exceeds ``threshold`` times ``√(ua² + ub²)`` is reported as a
+:class:`Disagreement` naming its band, its size (the median ``|Za/Zb − 1|`` there)
+and the two set-ups. Values are still merged there: the report says which to trust.
 """
 
 from __future__ import annotations
