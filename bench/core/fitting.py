@@ -61,6 +61,9 @@ DEFAULT_QUALITY_BOUND = 0.1
 # resonance, where ESR is read.
 MODEL_ERROR_FLOOR = 0.02
 MIN_POINTS = 10
+# A longer sweep is fitted on this many of its points, spread evenly in log f (quality is
+# still measured on every point): the cost of a fit then stays bounded whatever the file.
+MAX_FIT_POINTS = 4000
 # Points of the thinned grid on which every start is first run to convergence.
 SCOUT_POINTS = 160
 BIC_MARGIN = 6.0
@@ -72,7 +75,8 @@ UNDETERMINED = 1.0
 # An element within this distance (natural log) of a bound is pinned at it.
 PINNED_LOG = 1e-3
 
-# Soft-L1 scale of the final robust solve, in units of a point's uncertainty: points
+# Soft-L1 scale of the final robust solve (docs/references.md §11), in units of a
+# point's uncertainty: points
 # within a few sigma count as in least squares, beyond it their pull grows only linearly
 # (scipy's ``least_squares(loss="soft_l1")``; the scale is common practice, no source).
 ROBUST_SCALE = 3.0
@@ -650,6 +654,15 @@ def _low_frequency_warnings(
     return []
 
 
+def _spread_in_log(f: NDArray[np.float64], most: int) -> NDArray[np.intp] | slice:
+    """Indices of at most about ``most`` points of the increasing grid ``f``, spread evenly
+    in log f (every point of a sparse stretch is kept); all points when there are few."""
+    if f.size <= most:
+        return slice(None)
+    targets = np.geomspace(f[0], f[-1], most)
+    return np.unique(np.clip(np.searchsorted(f, targets), 0, f.size - 1))
+
+
 def _fit_family(
     family: ModelFamily,
     orders: tuple[int, ...],
@@ -770,9 +783,12 @@ def fit_impedance(
         fu, zu, weight = f[mask], z[mask], all_weight[mask]
         marks = landmarks_for(kind, fu, zu)
         n = int(np.count_nonzero(mask))
+        # The fit runs on at most MAX_FIT_POINTS of the points (all of them, usually).
+        pick = _spread_in_log(fu, MAX_FIT_POINTS)
+        fs, zs, ws = fu[pick], zu[pick], weight[pick]
         trials: list[_Trial] = []
         for family, orders in _candidates(model, kind, order):
-            trials += _fit_family(family, orders, fu, zu, weight, marks, trials, n)
+            trials += _fit_family(family, orders, fs, zs, ws, marks, trials, n)
         if not trials:
             raise FitError(f"too few points ({n}) for any order of model {model!r}")
         return trials, marks, _select(trials, quality_bound)
@@ -786,8 +802,10 @@ def fit_impedance(
         n_used = int(np.count_nonzero(used))
         fu, zu, weight = f[used], z[used], all_weight[used]
         data_marks = landmarks_for(kind, fu, zu)
+        pick = _spread_in_log(fu, MAX_FIT_POINTS)
+        fs, zs, ws = fu[pick], zu[pick], weight[pick]
         trials = [
-            _fit_order(t.family, t.order, fu, zu, weight, data_marks, None, starts=[t.values])
+            _fit_order(t.family, t.order, fs, zs, ws, data_marks, None, starts=[t.values])
             for t in trials
         ]
         best, unsupported = _select(trials, quality_bound)
@@ -795,7 +813,9 @@ def fit_impedance(
         glitch[:] = False
         edge[:] = False
     fu, zu, weight = f[used], z[used], all_weight[used]
-    best = _robust_refine(best, fu, zu, weight, data_marks)
+    pick = _spread_in_log(fu, MAX_FIT_POINTS)
+    fs, zs, ws = fu[pick], zu[pick], weight[pick]
+    best = _robust_refine(best, fs, zs, ws, data_marks)
 
     status = np.full(f.size, "used", dtype=object)
     status[~finite] = "unusable"
@@ -853,7 +873,7 @@ def fit_impedance(
             f"rms log error {quality.rms_log_error:.3g} exceeds the quality bound "
             f"{quality_bound:.3g}; try another model or check the measurement"
         )
-    cov = _covariance(best, fu, zu, weight)
+    cov = _covariance(best, fs, zs, ws)
     return FitResult(
         model=best.family.name,
         kind=kind,

@@ -14,7 +14,8 @@ Three kinds of point are left out of a fit and reported (reason, count, band):
 
 Residuals here are ``|ln Zmodel − ln Zmeasured|`` over the point's weight (its
 uncertainty with the model-error floor), so 1 is a typical point. The thresholds are
-common practice for outlier screening (a few sigma), no source. No I/O.
+common practice for outlier screening (a few sigma, docs/references.md §11), no source.
+No I/O.
 """
 
 from __future__ import annotations

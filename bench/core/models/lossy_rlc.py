@@ -1,5 +1,7 @@
 """``lossy-rlc``: a capacitor whose loss follows the band: ``R + S + jωL + 1/(jωC + Y_D)``.
 
+Loss across the band, docs/references.md §9.
+
 ``D`` is the dielectric loss of a constant loss tangent (the wideband Debye model of
 Djordjevic, Biljić, Likar-Smiljanić and Sarkar, IEEE Trans. EMC 43(4), 2001, cited from
 memory): across the capacitor it makes ESR fall as 1/f below resonance, as class II

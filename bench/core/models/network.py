@@ -31,7 +31,8 @@ BLEED_RESISTANCE = 1e12
 class Element:
     """One element; ``name`` starts with its kind letter (``R1``, ``Lk1``, ``Cp``).
 
-    Kinds ``R``, ``L``, ``C`` are the ideal parts. Two kinds describe a loss spread
+    Kinds ``R``, ``L``, ``C`` are the ideal parts. Two kinds (docs/references.md §9)
+    describe a loss spread
     over a band ``band = (f_lo, f_hi)`` (Hz). Each is a ladder of ideal parts with
     :data:`LADDER_PER_DECADE` sections per decade (:func:`dielectric_ladder`,
     :func:`skin_ladder`): the model is that ladder, the SPICE export writes it out, and
