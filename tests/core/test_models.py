@@ -233,3 +233,18 @@ def test_starts_are_inside_bounds_for_plain_landmarks(name):
             assert set(start) == set(family.element_names(order))
             for key, value in start.items():
                 assert bounds[key][0] < value < bounds[key][1], (order, key, value)
+
+
+def test_schema_api_and_auto_read_the_one_registry():
+    from bench import api
+    from bench.core.model_registry import FAMILY_NAMES, REGISTRY, auto_candidates
+    from bench.procedure.schema import MODEL_NAMES as SCHEMA_NAMES
+
+    assert set(SCHEMA_NAMES) == set(MODEL_NAMES) == {*FAMILY_NAMES, "auto"}
+    assert api.model_kinds() == {e.name: e.kind for e in REGISTRY}
+    assert set(api.MODEL_NAMES) == set(MODEL_NAMES)
+    for entry in REGISTRY:
+        assert FAMILIES[entry.name].kind == entry.kind
+        assert set(entry.auto_orders) <= set(FAMILIES[entry.name].orders)
+    tried = {name for kind in ("capacitor", "inductor") for name, _ in auto_candidates(kind)}
+    assert tried == set(FAMILY_NAMES)
