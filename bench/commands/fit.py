@@ -224,7 +224,8 @@ def _fit_one(
     default="auto",
     show_default=True,
     metavar="NAME",
-    help="series-rlc, two-branch, ladder, inductor, bead or auto (chooses family and order).",
+    help="A model family (series-rlc, lossy-rlc, two-branch, ladder, inductor, bead) or auto "
+    "(chooses family and order).",
 )
 @click.option("--series-r", metavar="OHMS", help="Resistor in series at each port (e.g. 499).")
 @click.option("--mount", metavar="FILE", help="Shorted-mount measurement to subtract.")
