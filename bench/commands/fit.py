@@ -31,7 +31,6 @@ from typing import Any
 
 import click
 
-from bench import api
 from bench.errors import FitError, InputError, ZbenchError
 from bench.exports import LANDMARK_UNITS
 from bench.files import atomic_write_text
@@ -139,6 +138,8 @@ def _summary_text(outcome: _Outcome) -> str:
 def _parse_option(value: str | None, unit: str, option: str) -> float | None:
     if value is None:
         return None
+    from bench import api
+
     return api._quantity(value, unit, option)
 
 
@@ -181,6 +182,8 @@ def _fit_one(
     spice_path: Path | None,
     want_spice: bool,
 ) -> _Outcome:
+    from bench import api  # loads the numeric core: not needed for --help
+
     outcome = _Outcome(path=name)
     source: Any = name
     if series_r is None:
@@ -188,9 +191,10 @@ def _fit_one(
         # into every corrected file); fitting a 499 Ω measurement as a plain 50 Ω one
         # would scale every impedance by about 11.
         measurement = api.load(name)
+        source = measurement  # read once: a long file costs its parse only once
         stated = series_r_from_comments(measurement.comments)
         if stated is not None:
-            series_r, source = stated, measurement
+            series_r = stated
             outcome.note = (
                 f"{name}: port series resistors {format_si(stated, 'Ω')} each, as its "
                 "comments state (give --series-r to override)"
@@ -252,6 +256,8 @@ def command(
     FILE is a 2-port Touchstone of a calibrated shunt-through measurement, or a 1-port
     Touchstone holding Z. Values take SI prefixes (499, 2k, 100 MHz).
     """
+    from bench import api
+
     model = model.strip().lower()
     api.check_model_name(model)
     r = _parse_option(series_r, "ohm", "--series-r")
