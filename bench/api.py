@@ -23,10 +23,9 @@ from __future__ import annotations
 import os
 from datetime import datetime, timezone
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
-from matplotlib.figure import Figure
 
 from bench import __version__
 from bench.core.conversions import shunt_through_s21
@@ -38,6 +37,9 @@ from bench.errors import FitError, InputError
 from bench.files import atomic_write_text
 from bench.touchstone import MIN_POINTS, Measurement, interpolate_to, load_measurement
 from bench.units import QuantityError, parse_quantity
+
+if TYPE_CHECKING:  # matplotlib loads only when a plot is drawn
+    from matplotlib.figure import Figure
 
 PathLike = str | os.PathLike[str]
 
