@@ -116,7 +116,7 @@ def test_touchstone_z_round_trips_and_s_only_when_kept(summary, run_dir):
     names = {p.name for p in written["touchstone"]}
     for sample in summary.samples:
         stem = exports.safe_filename(sample.label)
-        loaded = load_measurement(folder / "corrected" / f"{stem}.z1p")
+        loaded = load_measurement(folder / "corrected" / f"{stem}.s1p")
         np.testing.assert_allclose(loaded.f, sample.data.f, rtol=1e-12)
         np.testing.assert_allclose(loaded.z, sample.data.z, rtol=1e-9)
         assert (f"{stem}.s2p" in names) == (sample.corrected_s is not None)
@@ -132,9 +132,9 @@ def test_non_finite_points_are_left_out_of_the_z_file(summary, tmp_path):
     broken = dataclasses.replace(sample, data=dataclasses.replace(sample.data, z=z))
     run = dataclasses.replace(summary, samples=(broken,))
     written = exports.write_exports(tmp_path, run)
-    (z1p,) = written["touchstone"]
-    assert "2 points with a non-finite impedance left out" in z1p.read_text()
-    loaded = load_measurement(z1p)
+    (s1p,) = written["touchstone"]
+    assert "2 points with a non-finite impedance left out" in s1p.read_text()
+    loaded = load_measurement(s1p)
     assert loaded.f.size == sample.data.f.size - 2
     assert written["spice"] == [] and written["library"] == []
 
