@@ -242,8 +242,9 @@ def _fit_one(
     want_spice: bool,
     method: str | None = None,
     subckt: str | None = None,
+    outcome: _Outcome | None = None,
 ) -> _Outcome:
-    outcome = _Outcome(path=name)
+    outcome = outcome or _Outcome(path=name)
     data, stated = _impedance_of(
         name, outcome, series_r=series_r, mount=mount, fmin=fmin, fmax=fmax, method=method
     )
@@ -459,9 +460,12 @@ def command(
     names = subcircuit_names(files)
     outcomes: list[_Outcome] = []
     for name in files:
+        # Notes made before a failure (a file read with default units) still reach the user.
+        started = _Outcome(path=name)
         try:
             outcome = _fit_one(
                 name,
+                outcome=started,
                 model=model,
                 series_r=r,
                 mount=mount_data,
@@ -478,7 +482,9 @@ def command(
                 text = f"{name}: no fit: {text}"
             elif name not in text:
                 text = f"{name}: {text}"
-            outcome = _Outcome(path=name, error=text, exit_code=exc.exit_code)
+            outcome = _Outcome(
+                path=name, error=text, exit_code=exc.exit_code, notes=started.notes
+            )
         except Exception as exc:  # one bad file must not stop an archive re-fit
             outcome = _Outcome(
                 path=name,
@@ -501,13 +507,13 @@ def command(
 
 
 def _emit(outcome: _Outcome, *, as_json: bool) -> None:
+    for note in outcome.notes:
+        click.echo(f"zbench: {note}", err=True)
     if outcome.error is not None:
         click.echo(f"zbench: {outcome.error}", err=True)
         return
     if outcome.note is not None:
         click.echo(f"zbench: {outcome.note}", err=True)
-    for note in outcome.notes:
-        click.echo(f"zbench: {note}", err=True)
     if as_json:
         record = {"file": outcome.path, **outcome.extra, **outcome.result.to_json()}
         record["spice"] = str(outcome.spice_path) if outcome.spice_path is not None else None
