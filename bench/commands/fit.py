@@ -482,9 +482,7 @@ def command(
                 text = f"{name}: no fit: {text}"
             elif name not in text:
                 text = f"{name}: {text}"
-            outcome = _Outcome(
-                path=name, error=text, exit_code=exc.exit_code, notes=started.notes
-            )
+            outcome = _Outcome(path=name, error=text, exit_code=exc.exit_code, notes=started.notes)
         except Exception as exc:  # one bad file must not stop an archive re-fit
             outcome = _Outcome(
                 path=name,
