@@ -472,12 +472,16 @@ def run_series_r(summary: RunSummary) -> float | None:
 
 
 def _write_touchstone(run_dir: Path, sample: SampleResult, series_r: float | None) -> list[Path]:
-    from bench.touchstone import write_touchstone_s, write_touchstone_z
+    from bench.core.window import METHODS
+    from bench.touchstone import method_comment, write_touchstone_s, write_touchstone_z
 
     stem = safe_filename(sample.label)
-    # The set-up goes with the data: ``zbench fit`` reads this line, so a re-fit of an
-    # S file from a run with series resistors computes Z with them.
+    # The set-up goes with the data: ``zbench fit`` reads these lines, so a re-fit of an
+    # S file from a run with series resistors computes Z with them, by the same method.
     setup = [] if series_r is None else [f"port series resistors: {series_r:g} ohm each"]
+    method = getattr(getattr(sample.data, "window", None), "method", None)
+    if method in METHODS:
+        setup.append(method_comment(method))
     comments = [
         f"zbench: {sample.part} sample {sample.sample}, bias {sample.bias_v:g} V",
         "fixture-removed impedance (ohm)",

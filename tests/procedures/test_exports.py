@@ -123,6 +123,11 @@ def test_touchstone_z_round_trips_and_s_only_when_kept(summary, run_dir):
     kept = next(s for s in summary.samples if s.corrected_s is not None)
     s2p = load_measurement(folder / "corrected" / f"{exports.safe_filename(kept.label)}.s2p")
     np.testing.assert_allclose(s2p.s, kept.corrected_s, rtol=1e-9, atol=1e-15)
+    # The measuring method goes with the data, so a re-fit reads it the same way.
+    assert s2p.method == kept.data.window.method and s2p.method_source == "comments"
+    # The impedance is a standard one-port Touchstone Z file, normalised as 1.x requires.
+    text = (folder / "corrected" / f"{exports.safe_filename(kept.label)}.s1p").read_text()
+    assert "# Hz Z RI R 50" in text and "normalised to R = 50 ohm" in text
 
 
 def test_non_finite_points_are_left_out_of_the_z_file(summary, tmp_path):
