@@ -37,9 +37,9 @@ from bench.core.impedance import (
     impedance_from_series_through,
     impedance_from_shunt_through,
 )
-from bench.core.window import check_method
 from bench.core.model_registry import MODEL_KINDS as _REGISTRY_KINDS
 from bench.core.model_registry import MODEL_NAMES as _REGISTRY_NAMES
+from bench.core.window import check_method
 from bench.errors import FitError, InputError
 from bench.files import atomic_write_text
 from bench.touchstone import (
