@@ -15,6 +15,7 @@ Typical use::
 from __future__ import annotations
 
 import math
+import time
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -22,7 +23,13 @@ from typing import Any
 import numpy as np
 
 from drivers.command_map import CommandMap, load_command_map
-from drivers.errors import DriverError, PlanError, TransportError
+from drivers.errors import (
+    DriverError,
+    InstrumentError,
+    InstrumentTimeout,
+    PlanError,
+    TransportError,
+)
 from drivers.scpi import ScpiInstrument
 from drivers.transport import Transport
 
@@ -219,9 +226,10 @@ class NetworkAnalyzer(ScpiInstrument):
         """Run one sweep, wait for it, and read the frequencies and the asked traces.
 
         ``parameters`` is a subset of ``("S11", "S21", "S12", "S22")`` (all that the map
-        offers by default). Completion is awaited with one blocking ``*OPC?`` whose
-        timeout is the reported sweep time × ``timeout_factor`` + ``timeout_margin_s``,
-        so nothing polls while the analyser sweeps.
+        offers by default). The end of the sweep is awaited as the map's ``trigger.sync``
+        says: one blocking ``*OPC?``-like query, or polling a status register; either is
+        bounded by the reported sweep time × ``timeout_factor`` + ``timeout_margin_s``.
+        Without a stimulus query the frequencies are computed from the read-back set-up.
         """
         wanted = tuple(parameters) if parameters is not None else self.map.parameters
         unknown = [p for p in wanted if p not in self.map.parameters]
@@ -232,24 +240,18 @@ class NetworkAnalyzer(ScpiInstrument):
             )
         expected_s = self.sweep_time()
         wait_s = max(expected_s, 0.0) * self.map.timeout_factor + self.map.timeout_margin_s
+        for command in self.map.sync.before:
+            self.transport.write(command)
         self.transport.write(self.map.trigger)
-        with self.transport.timeout(wait_s):
-            done = self.transport.query(self.map.complete)
-        if done.strip() not in ("1", "+1"):
-            raise DriverError(
-                f"{self.resource_name}: expected '1' from {self.map.complete!r} after "
-                f"{self.map.trigger!r}, found {done!r}"
-            )
+        self.wait_for_sweep(wait_s)
         self.check_errors(self.map.trigger)
 
-        f = self._read_values(self.map.frequency_query)
-        if f.size < 1:
-            raise TransportError(
-                self.resource_name, f"query {self.map.frequency_query!r}", "no frequencies"
-            )
+        f = self.frequencies()
         traces: dict[str, np.ndarray] = {}
-        for name in wanted:
-            command = self.map.trace_command(name)
+        for position, name in enumerate(wanted):
+            setup, command = self.map.trace_commands(name, position)
+            for line in setup:
+                self.write_checked(line)
             values = self._read_values(command)
             if values.size != 2 * f.size:
                 raise TransportError(
@@ -257,10 +259,79 @@ class NetworkAnalyzer(ScpiInstrument):
                     f"query {command!r}",
                     f"expected {2 * f.size} values (re, im for {f.size} frequencies), "
                     f"found {values.size}",
-                    hint="the block was cut or corrupted: repeat the sweep",
+                    hint="the block was cut or corrupted, or the data format of the map is "
+                    "not the instrument's (data.format, data.byte_order): repeat the sweep, "
+                    "then check the map with zbench probe",
                 )
             traces[name] = values[0::2] + 1j * values[1::2]
         return SweepData(f=f, traces=traces, plan=self._plan)
+
+    def wait_for_sweep(self, wait_s: float) -> None:
+        """Wait for the end of the sweep as ``trigger.sync`` says, for at most ``wait_s``."""
+        sync = self.map.sync
+        if sync.method == "opc":
+            with self.transport.timeout(wait_s):
+                done = self.transport.query(sync.query)
+            if done.strip() not in ("1", "+1"):
+                raise DriverError(
+                    f"{self.resource_name}: expected '1' from {sync.query!r} after "
+                    f"{self.map.trigger!r}, found {done!r}"
+                )
+            return
+        deadline = time.monotonic() + wait_s
+        while True:
+            answer = self.transport.query(sync.query)
+            try:
+                register = int(float(answer))
+            except ValueError:
+                raise DriverError(
+                    f"{self.resource_name}: expected an integer register from {sync.query!r}, "
+                    f"found {answer[:80]!r}; fix trigger.sync.query in {self.map.path}"
+                ) from None
+            if register & sync.mask:
+                return
+            if time.monotonic() >= deadline:
+                raise InstrumentTimeout(
+                    self.resource_name,
+                    f"poll {sync.query!r} for mask {sync.mask}",
+                    f"the sweep did not end within {wait_s:.3g} s (last register {register})",
+                )
+            self._sleep(sync.interval_s)
+
+    def _sleep(self, seconds: float) -> None:
+        time.sleep(seconds)
+
+    def frequencies(self) -> np.ndarray:
+        """The stimulus list: queried when the map has a query, else computed from the
+        read-back start, stop, points and spacing (log: geometric, linear: even steps)."""
+        if self.map.frequency_query is not None:
+            f = self._read_values(self.map.frequency_query)
+            if f.size < 1:
+                raise TransportError(
+                    self.resource_name, f"query {self.map.frequency_query!r}", "no frequencies"
+                )
+            return f
+        plan = self._plan if self._plan is not None else self.read_settings()
+        if plan.spacing == "log":
+            return np.geomspace(plan.start_hz, plan.stop_hz, plan.points)
+        return np.linspace(plan.start_hz, plan.stop_hz, plan.points)
+
+    def check_errors(self, command: str) -> None:
+        """As :meth:`ScpiInstrument.check_errors`, with the map's words for known codes."""
+        try:
+            super().check_errors(command)
+        except InstrumentError as exc:
+            words = self.map.explain_error(exc.code)
+            if not words:
+                raise
+            raise InstrumentError(
+                exc.code,
+                exc.text,
+                exc.command,
+                resource=exc.resource,
+                others=exc.others,
+                fix=f"{words} (command map {self.map.name!r})",
+            ) from None
 
     def snapshot(self) -> dict[str, Any]:
         """Identity and present settings, for a run's provenance (JSON-ready)."""

@@ -9,7 +9,7 @@ max. The result is a frozen :class:`CommandMap`. Errors name the map file and th
 from __future__ import annotations
 
 import string
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
@@ -74,6 +74,45 @@ class Limits:
 
 
 @dataclass(frozen=True)
+class Sync:
+    """How the end of a sweep is awaited (``trigger.sync`` of a map).
+
+    ``method`` ``"opc"``: one blocking ``query`` answering 1. ``"poll"``: ``query`` reads
+    an integer register every ``interval_s`` until ``value & mask`` is non-zero.
+    ``before``: commands sent before the trigger.
+    """
+
+    method: str
+    query: str
+    mask: int = 0
+    interval_s: float = 0.05
+    before: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class Traces:
+    """How a trace is set up and read (``data.traces`` of a map)."""
+
+    select_by: str
+    query: str
+    define: str | None = None
+    select: str | None = None
+    name: str | None = None
+    numbers: dict[str, int] | None = None
+
+    def number_of(self, parameter: str, position: int) -> int:
+        """The trace or channel number of ``parameter``, read ``position``-th (0-based)."""
+        if self.numbers and parameter in self.numbers:
+            return self.numbers[parameter]
+        return position + 1
+
+    def fields(self, parameter: str, position: int) -> dict[str, Any]:
+        number = self.number_of(parameter, position)
+        name = self.name.format(parameter=parameter, number=number) if self.name else parameter
+        return {"parameter": parameter, "number": number, "name": name}
+
+
+@dataclass(frozen=True)
 class CommandMap:
     """A validated analyser command map (see ``command_maps/default.yaml``)."""
 
@@ -90,22 +129,45 @@ class CommandMap:
     correction: Setting
     sweep_time_query: str
     trigger: str
-    complete: str
+    sync: Sync
     timeout_factor: float
     timeout_margin_s: float
-    encoding: str
+    data_format: str
     format_commands: tuple[str, ...]
-    datatype: str
     big_endian: bool
     block_terminated: bool
-    frequency_query: str
-    trace_query: str
+    frequency_query: str | None
+    traces: Traces
     parameters: tuple[str, ...]
     limits: Limits
+    error_codes: dict[int, tuple[str, str | None]] = field(default_factory=dict)
 
-    def trace_command(self, parameter: str) -> str:
+    @property
+    def encoding(self) -> str:
+        """``"ascii"`` or ``"binary"`` (a REAL,32 or REAL,64 block)."""
+        return "ascii" if self.data_format == "ascii" else "binary"
+
+    @property
+    def datatype(self) -> str:
+        """The :mod:`struct` code of a block's values: ``"f"`` (REAL,32) or ``"d"``."""
+        return "f" if self.data_format == "real32" else "d"
+
+    def trace_commands(self, parameter: str, position: int = 0) -> tuple[list[str], str]:
+        """The set-up commands (define, select) and the query of one trace."""
+        fields = self.traces.fields(parameter, position)
+        setup = [t.format(**fields) for t in (self.traces.define, self.traces.select) if t]
+        return setup, self.traces.query.format(**fields)
+
+    def trace_command(self, parameter: str, position: int = 0) -> str:
         """The query of one S-parameter trace, e.g. ``TRACe:DATA? S21``."""
-        return self.trace_query.format(parameter=parameter)
+        return self.trace_commands(parameter, position)[1]
+
+    def explain_error(self, code: int) -> str:
+        """The map's words for an instrument error code ('' when the map has none)."""
+        if code not in self.error_codes:
+            return ""
+        meaning, fix = self.error_codes[code]
+        return meaning + (f"; {fix}" if fix else "")
 
 
 def format_number(value: Any) -> str:
@@ -179,7 +241,8 @@ def parse_command_map(raw: Any, path: str = "<command map>") -> CommandMap:
             path,
             key,
             f"{first.message}{more}",
-            hint="compare with drivers/command_maps/default.yaml; unknown keys are not allowed",
+            hint="compare with drivers/command_maps/default.yaml and the guide "
+            "drivers/command_maps/README.md; unknown keys are not allowed",
         )
     common, sweep, data, trigger = raw["common"], raw["sweep"], raw["data"], raw["trigger"]
 
@@ -187,14 +250,35 @@ def parse_command_map(raw: Any, path: str = "<command map>") -> CommandMap:
     for key in SETTING_KEYS:
         settings[key] = _setting(sweep[key], path, f"sweep.{key}")
     correction = _setting(raw["correction"], path, "correction")
-    _check_fields(data["trace_query"], {"parameter"}, path, "data.trace_query")
-    for key, text in (
+    plain = [
         ("common.identity", common["identity"]),
         ("common.error_query", common["error_query"]),
-        ("data.frequency_query", data["frequency_query"]),
         ("sweep.time_query", sweep["time_query"]),
-    ):
+        ("trigger.sync.query", trigger["sync"]["query"]),
+    ]
+    if "frequency_query" in data:
+        plain.append(("data.frequency_query", data["frequency_query"]))
+    for key, text in plain:
         _check_fields(text, set(), path, key)
+    traces = _traces(data["traces"], path)
+    sync_raw = trigger["sync"]
+    sync = Sync(
+        method=sync_raw["method"],
+        query=sync_raw["query"],
+        mask=int(sync_raw.get("mask", 0)),
+        interval_s=float(sync_raw.get("interval_s", 0.05)),
+        before=tuple(sync_raw.get("before", ())),
+    )
+    error_codes: dict[int, tuple[str, str | None]] = {}
+    for i, entry in enumerate(common.get("error_codes", [])):
+        if entry["code"] in error_codes:
+            raise CommandMapError(
+                path,
+                f"common.error_codes.{i}.code",
+                f"code {entry['code']} is listed twice",
+                hint="keep one entry per code",
+            )
+        error_codes[int(entry["code"])] = (entry["meaning"], entry.get("fix"))
 
     limits = {}
     for key, bounds in raw["limits"].items():
@@ -228,18 +312,18 @@ def parse_command_map(raw: Any, path: str = "<command map>") -> CommandMap:
         correction=correction,
         sweep_time_query=sweep["time_query"],
         trigger=trigger["single"],
-        complete=trigger["complete"],
+        sync=sync,
         timeout_factor=float(trigger.get("timeout_factor", 2.0)),
         timeout_margin_s=float(trigger.get("timeout_margin_s", 10.0)),
-        encoding=data["encoding"],
+        data_format=data["format"],
         format_commands=tuple(data["format_commands"]),
-        datatype=data.get("datatype", "d"),
         big_endian=data.get("byte_order", "big") == "big",
         block_terminated=bool(data.get("block_terminated", True)),
-        frequency_query=data["frequency_query"],
-        trace_query=data["trace_query"],
+        frequency_query=data.get("frequency_query"),
+        traces=traces,
         parameters=tuple(data["parameters"]),
         limits=Limits(**limits),
+        error_codes=error_codes,
     )
 
 
@@ -279,11 +363,51 @@ def _setting(raw: dict[str, Any], path: str, key: str) -> Setting:
     return Setting(set=raw["set"], query=raw["query"], choices=choices)
 
 
-def _check_fields(template: str, wanted: set[str], path: str, key: str) -> None:
-    """A template must hold exactly the ``{fields}`` in ``wanted`` (literal braces: ``{{``)."""
+_TRACE_FIELDS = {
+    "name": ({"parameter"}, {"parameter", "name"}),
+    "number": ({"number"}, {"parameter", "number", "name"}),
+    "channel": ({"number"}, {"parameter", "number", "name"}),
+}
+
+
+def _traces(raw: dict[str, Any], path: str) -> Traces:
+    """Check the trace templates: each must say which trace it means, with known fields."""
+    mode = raw["select_by"]
+    needed, allowed = _TRACE_FIELDS[mode]
+    if mode == "channel" and "define" in raw:
+        raise CommandMapError(
+            path,
+            "data.traces.define",
+            "a trace implied by its channel has no define command",
+            hint="remove define, or use select_by: number",
+        )
+    if "name" in raw:
+        _check_subset(raw["name"], set(), {"parameter", "number"}, path, "data.traces.name")
+    for key in ("define", "select", "query"):
+        if key in raw:
+            _check_subset(raw[key], needed, allowed, path, f"data.traces.{key}")
+    numbers = raw.get("numbers")
+    if numbers and len(set(numbers.values())) != len(numbers):
+        raise CommandMapError(
+            path,
+            "data.traces.numbers",
+            f"two parameters share a number: {numbers}",
+            hint="give each parameter its own trace or channel number",
+        )
+    return Traces(
+        select_by=mode,
+        query=raw["query"],
+        define=raw.get("define"),
+        select=raw.get("select"),
+        name=raw.get("name"),
+        numbers=dict(numbers) if numbers else None,
+    )
+
+
+def _fields_of(template: str, path: str, key: str) -> set[str]:
     try:
         parts = string.Formatter().parse(template)
-        found = {field for _, field, _, _ in parts if field is not None}
+        return {field for _, field, _, _ in parts if field is not None}
     except ValueError as exc:
         raise CommandMapError(
             path,
@@ -291,6 +415,27 @@ def _check_fields(template: str, wanted: set[str], path: str, key: str) -> None:
             f"bad template {template!r}: {exc}",
             hint="write literal braces as '{{' and '}}'",
         ) from exc
+
+
+def _check_subset(template: str, needed: set[str], allowed: set[str], path: str, key: str):
+    """A template must hold one of ``needed`` (when any) and nothing outside ``allowed``."""
+    found = _fields_of(template, path, key)
+    unknown = found - allowed
+    if unknown or (needed and not found & needed):
+        want = " or ".join("{" + n + "}" for n in sorted(needed)) if needed else "no field"
+        may = ", ".join("{" + a + "}" for a in sorted(allowed)) or "none"
+        raise CommandMapError(
+            path,
+            key,
+            f"template {template!r} must contain {want} (allowed: {may}), "
+            f"found {', '.join('{' + f + '}' for f in sorted(found)) or 'none'}",
+            hint="see 'Trace set-up' in drivers/command_maps/README.md",
+        )
+
+
+def _check_fields(template: str, wanted: set[str], path: str, key: str) -> None:
+    """A template must hold exactly the ``{fields}`` in ``wanted`` (literal braces: ``{{``)."""
+    found = _fields_of(template, path, key)
     if found != wanted:
         expected = ", ".join("{" + w + "}" for w in sorted(wanted)) or "no {fields}"
         got = ", ".join("{" + f + "}" for f in sorted(found)) or "none"

@@ -72,6 +72,7 @@ class InstrumentError(DriverError):
         *,
         resource: str = "",
         others: tuple[tuple[int, str], ...] = (),
+        fix: str | None = None,
     ):
         self.code = code
         self.text = text
@@ -83,7 +84,8 @@ class InstrumentError(DriverError):
         if others:
             more = "; ".join(f'{c},"{t}"' for c, t in others)
             message += f" (and then: {more})"
-        message += "\n  fix: check the value and form of that command against the command map"
+        fix = fix or "check the value and form of that command against the command map"
+        message += f"\n  fix: {fix}"
         super().__init__(message)
 
 

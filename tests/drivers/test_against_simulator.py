@@ -179,7 +179,7 @@ def test_corrupt_block_is_a_transport_error(links):
 def test_ascii_dialect_from_a_changed_map(links):
     """The same analyser read in ASCII, by a map that differs only in its data section."""
     raw = yaml.safe_load((MAPS_DIR / "default.yaml").read_text())
-    raw["data"].update(encoding="ascii", format_commands=["FORMat:DATA ASCii"])
+    raw["data"].update(format="ascii", format_commands=["FORMat:DATA ASCii"])
     ascii_map = parse_command_map(raw, "ascii.yaml")
     BenchControl(links["bench"]).connect_through()
     binary = NetworkAnalyzer(links["analyzer"])

@@ -249,10 +249,10 @@ def test_another_dialect_is_a_map_not_code(expected_protocol):
     other["sweep"]["time_query"] = "SWE:TIME?"
     other["trigger"]["single"] = "INIT"
     other["data"].update(
-        encoding="ascii",
+        format="ascii",
         format_commands=["FORM ASC"],
         frequency_query="FREQ:DATA?",
-        trace_query="CALC:DATA? {parameter}",
+        traces={"select_by": "name", "query": "CALC:DATA? {parameter}"},
     )
     cmap = parse_command_map(other, "ascii-short.yaml")
     script = [

@@ -55,8 +55,8 @@ def test_unknown_key_is_an_error_naming_file_and_key(tmp_path):
 
 def test_missing_key(tmp_path):
     raw = copy.deepcopy(DEFAULT)
-    del raw["data"]["trace_query"]
-    with pytest.raises(CommandMapError, match="trace_query"):
+    del raw["data"]["traces"]
+    with pytest.raises(CommandMapError, match="traces"):
         load_command_map(write_map(tmp_path, raw))
 
 
@@ -71,7 +71,7 @@ def test_template_without_value_field(tmp_path):
 
 def test_template_with_unknown_field(tmp_path):
     raw = copy.deepcopy(DEFAULT)
-    raw["data"]["trace_query"] = "CALC{channel}:DATA? {parameter}"
+    raw["data"]["traces"]["query"] = "CALC{channel}:DATA? {parameter}"
     with pytest.raises(CommandMapError, match="channel"):
         load_command_map(write_map(tmp_path, raw))
 
