@@ -26,8 +26,7 @@ from simulated_instruments.scenario import load_scenario
 
 # A 1.2 kB file: nine levels, each a list of nine aliases of the level below (9^9 values).
 LAUGHS = 'a: &a ["lol","lol","lol","lol","lol","lol","lol","lol","lol"]\n' + "".join(
-    f"{chr(98 + i)}: &{chr(98 + i)} [" + ",".join([f"*{chr(97 + i)}"] * 9) + "]\n"
-    for i in range(8)
+    f"{chr(98 + i)}: &{chr(98 + i)} [" + ",".join([f"*{chr(97 + i)}"] * 9) + "]\n" for i in range(8)
 )
 
 HOSTILE = {
