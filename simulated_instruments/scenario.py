@@ -144,7 +144,7 @@ SCHEMA: dict[str, Any] = _obj(
                 "closed": {"type": "integer", "minimum": 1},
                 "placements": {
                     "type": "object",
-                    "patternProperties": {"^[0-9]+$": {"type": "string"}},
+                    "patternProperties": {r"^[0-9]+\Z": {"type": "string"}},
                     "additionalProperties": False,
                 },
             }
