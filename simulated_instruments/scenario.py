@@ -18,10 +18,10 @@ from typing import Any
 
 import jsonschema
 import numpy as np
-import yaml
 
 from bench.errors import InputError
 from bench.units import QuantityError, parse_quantity
+from drivers.safe_yaml import YamlRefusedError, load_text, read_text
 from simulated_instruments.parts import (
     DEFAULT_SPREAD,
     Part,
@@ -159,7 +159,7 @@ SCHEMA: dict[str, Any] = _obj(
                 "closed": {"type": "integer", "minimum": 1},
                 "placements": {
                     "type": "object",
-                    "patternProperties": {"^[0-9]+$": {"type": "string"}},
+                    "patternProperties": {r"^[0-9]+\Z": {"type": "string"}},
                     "additionalProperties": False,
                 },
             }
@@ -256,9 +256,17 @@ def _read_source(scenario: str | Path | Mapping[str, Any]) -> tuple[dict[str, An
             hint=f"give a path to a scenario YAML or one of: {', '.join(names)}",
         )
     try:
-        data = yaml.safe_load(path.read_text(encoding="utf-8"))
-    except yaml.YAMLError as exc:
-        raise InputError(f"not valid YAML: {exc}", path=str(path)) from exc
+        # Bounded: size, nesting, alias expansion, tags and merge keys (drivers.safe_yaml).
+        data = load_text(read_text(path))
+    except YamlRefusedError as exc:
+        line = f" (line {exc.line})" if exc.line is not None else ""
+        raise InputError(f"{exc.message}{line}", path=str(path), hint=exc.hint) from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise InputError(
+            f"cannot read the scenario ({type(exc).__name__})",
+            path=str(path),
+            hint="give a readable UTF-8 YAML file",
+        ) from None
     if not isinstance(data, dict):
         raise InputError("a scenario must be a mapping", path=str(path))
     return data, str(path)
