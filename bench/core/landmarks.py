@@ -19,7 +19,11 @@ Every figure comes from a band of points, never from one point, so noise average
 - a sign change across a gap in the valid points is no resonance: it was not measured;
 - a parallel resonance needs a real peak: inductive points below it and |Z| well above
   its low-frequency level (a noisy reactance near zero at the floor flips sign too).
-Points outside the measurable window (``valid`` False) are ignored.
+Points outside the measurable window (``valid`` False) are ignored. A sweep of more than
+:data:`MAX_POINTS` points is first averaged onto a logarithmic grid of bins (an empty bin
+stays a gap), so the cost grows linearly with the points and the bands keep their width
+in log f whatever the grid (a linear sweep has few points per decade at its low end and
+thousands at its top).
 """
 
 from __future__ import annotations
@@ -30,6 +34,10 @@ import numpy as np
 from numpy.typing import NDArray
 
 Landmarks = dict[str, float | None]
+
+# Above this many points a sweep is averaged onto LOG_BINS logarithmic bins first.
+MAX_POINTS = 4000
+LOG_BINS = 2000
 
 
 def _prepare(f: Any, z: Any, valid: Any) -> tuple[NDArray[np.float64], NDArray[np.complex128]]:
@@ -44,16 +52,39 @@ def _prepare(f: Any, z: Any, valid: Any) -> tuple[NDArray[np.float64], NDArray[n
             raise ValueError(f"valid must have the shape of f {f.shape}, got {valid.shape}")
         keep &= valid
     order = np.argsort(f[keep])
-    return f[keep][order], z[keep][order]
+    f, z = f[keep][order], z[keep][order]
+    if f.size > MAX_POINTS:
+        f, z = _log_binned(f, z)
+    return f, z
+
+
+def _log_binned(
+    f: NDArray[np.float64], z: NDArray[np.complex128]
+) -> tuple[NDArray[np.float64], NDArray[np.complex128]]:
+    """Mean of the points in each of :data:`LOG_BINS` equal bins of log f (sorted input);
+    a bin without points is left out. Linear in the number of points."""
+    x = np.log(f)
+    span = max(x[-1] - x[0], 1e-12)
+    index = np.minimum(((x - x[0]) / span * LOG_BINS).astype(np.intp), LOG_BINS - 1)
+    count = np.bincount(index, minlength=LOG_BINS)
+    filled = count > 0
+    n = count[filled]
+    f_mean = np.exp(np.bincount(index, weights=x, minlength=LOG_BINS)[filled] / n)
+    re = np.bincount(index, weights=z.real, minlength=LOG_BINS)[filled] / n
+    im = np.bincount(index, weights=z.imag, minlength=LOG_BINS)[filled] / n
+    return f_mean, re + 1j * im
 
 
 def _smooth(y: NDArray[np.float64], width: int) -> NDArray[np.float64]:
-    """Running median over ``width`` points (odd; edges repeated): keeps sign changes sharp."""
+    """Running median over ``width`` points (odd; edges repeated): keeps sign changes sharp.
+
+    scipy's median filter keeps time and memory linear in the points for any width.
+    """
     if width <= 1 or y.size < 3:
         return y
-    half = width // 2
-    padded = np.pad(y, half, mode="edge")
-    return np.median(np.lib.stride_tricks.sliding_window_view(padded, 2 * half + 1), axis=1)
+    from scipy.ndimage import median_filter
+
+    return median_filter(y, size=2 * (width // 2) + 1, mode="nearest")
 
 
 def _points_per_decade(f: NDArray[np.float64]) -> float:

@@ -1,6 +1,22 @@
-"""The measurable impedance window of a shunt-through set-up and per-point uncertainty.
+"""The measurable impedance window of each measuring method, and per-point uncertainty.
 
-Definitions (used by every function here; DESIGN §4, REFERENCES §1):
+Three methods (``METHODS``) share one error model: an additive receiver noise ``N`` and
+a multiplicative error ``ε`` on the measured ratio, plus, for reflection, a residual of
+the one-port calibration. The two-port methods are written on their through-normalised
+transmission ``S21n``; the relative error it gives on Z is the same expression for both,
+``dZ/Z = dS/(S·(1 − S))`` (derived from either conversion), so only ``S21n(Z)`` differs:
+
+* shunt-through ``S21n = 2Z/(2Z + Ze)``: floor set by ``N``, ceiling by ``ε``;
+* series-through ``S21n = 2Ze/(2Ze + Z)``: floor set by ``ε``
+  (``m = ε·(2Ze + Z)/Z``), ceiling by ``N`` (``a ≈ N·Z/(2Ze)``);
+  docs/references.md §9 (derived) gives about 13 Ω and 1 MΩ at 50 Ω, 0.1 dB, −100 dB, 10 %;
+* one-port reflection ``Γ = (Z − Z0)/(Z + Z0)``: ``dZ/Z = dΓ·(Z + Z0)²/(2Z·Z0)``, with
+  ``|dΓ|`` the root-sum-square of the calibration residual ``reflection_uncertainty``,
+  the noise ``N`` and the trace noise on ``|Γ|``; best at ``Z = Z0`` (``2·dΓ``);
+  docs/references.md §9 (derived) gives about 1.3 Ω to 1.9 kΩ at |dΓ| = 0.005, 10 %.
+  Port series resistors do not apply to a reflection.
+
+Definitions of the shunt-through window (docs/design.md §4, docs/references.md §1):
 
 * ``Ze = z0 + series_r`` (Ω), the impedance each port presents to the part.
 * ``S21n = 2Z / (2Z + Ze)``, the through-normalised transmission of a shunt part ``Z``.
@@ -21,7 +37,7 @@ Definitions (used by every function here; DESIGN §4, REFERENCES §1):
   by its own complex S21n in :func:`relative_uncertainty`, so it may fall slightly
   inside or outside a bound that is stated for a resistor.
 
-Worked figures (derived, REFERENCES §1): a plain 50 Ω set-up, −100 dB floor, 0.1 dB
+Worked figures (derived, docs/references.md §1): a plain 50 Ω set-up, −100 dB floor, 0.1 dB
 multiplicative error (ε = 1.16 %) and a 10 % target give ``z_max ≈ 25·(0.1/0.0116 − 1)
 ≈ 190 Ω`` and ``z_min ≈ 25·1e-5/0.1 = 2.5 mΩ``; the trade's rule of thumb quotes about
 1 mΩ to about 225 Ω at about 100 dB of dynamic range (its floor corresponds to a looser
@@ -37,8 +53,18 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 from scipy.optimize import brentq, minimize_scalar
 
-from bench.core.conversions import effective_port_impedance, shunt_through_s21
+from bench.core.conversions import (
+    effective_port_impedance,
+    reflection_s11,
+    series_through_s21,
+    shunt_through_s21,
+)
 from bench.errors import InputError
+
+#: The measuring methods, in the order the command line lists them.
+METHODS = ("shunt-through", "series-through", "reflection")
+#: Default residual of a one-port (open, short, load) calibration on |Γ|.
+DEFAULT_REFLECTION_UNCERTAINTY = 0.005
 
 #: Default RMS trace noise of a good analyser at a narrow IF bandwidth (dB).
 DEFAULT_TRACE_NOISE_DB = 0.01
@@ -57,7 +83,7 @@ def floor_on_through_db(analyser_floor_db: float, z0: float = 50.0, series_r: fl
     An analyser's floor is a fixed receiver noise, stated relative to its own reference
     (a unit through, no resistors). Port series resistors ``series_r`` (Ω at each port)
     lower the through that S21 is normalised to, to ``Z0/(Z0 + Rs)`` of that reference
-    (REFERENCES §1, derived), so relative to it the same noise stands
+    (docs/references.md §1, derived), so relative to it the same noise stands
     ``20·log10((Z0 + Rs)/Z0)`` dB higher: 20.8 dB for 499 Ω on 50 Ω, so a −100 dB
     analyser gives −79.2 dB on the ``S21n`` scale. Without resistors the floor is unchanged.
     """
@@ -88,6 +114,13 @@ class Window:
     multiplicative_error: float = 0.0
     z_best: float = float("nan")
     best_uncertainty: float = float("nan")
+    method: str = "shunt-through"
+    reflection_uncertainty: float = 0.0
+
+    @property
+    def bounded(self) -> bool:
+        """False for data taken as given (no window cut: ``z_min`` 0, ``z_max`` inf)."""
+        return math.isfinite(self.z_max) and self.z_min > 0
 
     @property
     def dynamic_range_db(self) -> float:
@@ -96,12 +129,15 @@ class Window:
 
     @property
     def span_decades(self) -> float:
-        """Width of the window in decades of impedance."""
+        """Width of the window in decades of impedance (inf when unbounded)."""
+        if not self.bounded:
+            return math.inf
         return math.log10(self.z_max / self.z_min)
 
-    def to_dict(self) -> dict[str, float]:
+    def to_dict(self) -> dict[str, float | str]:
         """Plain numbers (SI units), as ``zbench window --json`` prints them."""
         return {
+            "method": self.method,
             "z_min": self.z_min,
             "z_max": self.z_max,
             "z0": self.z0,
@@ -114,19 +150,43 @@ class Window:
             "multiplicative_error": self.multiplicative_error,
             "z_best": self.z_best,
             "best_uncertainty": self.best_uncertainty,
+            "reflection_uncertainty": self.reflection_uncertainty,
         }
 
 
 def _uncertainty(
-    z: NDArray[np.complex128], ze: float, noise: float, eps: float
+    z: NDArray[np.complex128],
+    ze: float,
+    noise: float,
+    eps: float,
+    method: str = "shunt-through",
+    reflection_uncertainty: float = 0.0,
 ) -> NDArray[np.float64]:
-    s = shunt_through_s21(z, ze, 0.0)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        additive = noise / np.abs(s * (1.0 - s))
-        multiplicative = eps / np.abs(1.0 - s)
-    out = np.hypot(additive, multiplicative)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        if method == "reflection":
+            gamma = reflection_s11(z, ze)
+            d_gamma = np.sqrt(reflection_uncertainty**2 + noise**2 + (eps * np.abs(gamma)) ** 2)
+            out = d_gamma * np.abs((z + ze) ** 2 / (2.0 * z * ze))
+        else:
+            if method == "series-through":
+                s = series_through_s21(z, ze, 0.0)
+            else:
+                s = shunt_through_s21(z, ze, 0.0)
+            additive = noise / np.abs(s * (1.0 - s))
+            multiplicative = eps / np.abs(1.0 - s)
+            out = np.hypot(additive, multiplicative)
     # Z = 0 (a perfect short) and Z = inf (nothing) carry no information at all.
     return np.where(np.isfinite(out), out, np.inf)
+
+
+def check_method(method: str) -> str:
+    """``method`` normalised (lower case, ``_`` as ``-``), or :class:`InputError`."""
+    name = str(method).strip().lower().replace("_", "-")
+    if name not in METHODS:
+        raise InputError(
+            f"unknown measuring method {method!r}", hint=f"choose one of: {', '.join(METHODS)}"
+        )
+    return name
 
 
 def measurable_window(
@@ -137,14 +197,31 @@ def measurable_window(
     trace_noise_db: float = DEFAULT_TRACE_NOISE_DB,
     tolerance: float = 0.1,
     through_drift_db: float = DEFAULT_THROUGH_DRIFT_DB,
+    method: str = "shunt-through",
+    reflection_uncertainty: float = DEFAULT_REFLECTION_UNCERTAINTY,
 ) -> Window:
-    """The measurable window of a shunt-through set-up (definitions in the module doc).
+    """The measurable window of one set-up (definitions in the module doc).
 
-    ``z0`` > 0 Ω; ``series_r`` >= 0 Ω at each port; ``noise_floor_db`` < 0 dB relative to
-    the through (typically −80 to −130); ``trace_noise_db`` and ``through_drift_db``
-    >= 0 dB RMS; ``tolerance`` a fraction in (0, 1). Raises :class:`InputError` when a
-    value is out of range or when no impedance can be measured within the tolerance.
+    ``method`` one of :data:`METHODS`; ``z0`` > 0 Ω; ``series_r`` >= 0 Ω at each port
+    (two-port methods only; a reflection refuses it); ``noise_floor_db`` < 0 dB relative
+    to the through, or to a full reflection (typically −80 to −130); ``trace_noise_db``
+    and ``through_drift_db`` >= 0 dB RMS (the drift is the through's, so a reflection
+    does not use it: its calibration residual is ``reflection_uncertainty``, a fraction
+    of |Γ| in [0, 1)); ``tolerance`` a fraction in (0, 1). Raises :class:`InputError`
+    when a value is out of range or when no impedance can be measured within the
+    tolerance.
     """
+    method = check_method(method)
+    if method == "reflection" and series_r:
+        raise InputError(
+            f"series_r = {series_r!r}: port series resistors do not apply to a reflection",
+            hint="give series_r = 0 (or leave it out) for the reflection method",
+        )
+    if not (math.isfinite(reflection_uncertainty) and 0 <= reflection_uncertainty < 1):
+        raise InputError(
+            f"reflection_uncertainty = {reflection_uncertainty!r} is out of range",
+            hint="give the calibration residual on |Γ| as a fraction, e.g. 0.005",
+        )
     try:
         ze = effective_port_impedance(z0, series_r)
     except ValueError as exc:
@@ -164,10 +241,16 @@ def measurable_window(
             raise InputError(f"{key} = {value!r} is out of range", hint=f"give {expected}")
 
     noise = 10.0 ** (noise_floor_db / 20.0)
-    eps = math.hypot(db_to_relative(trace_noise_db), db_to_relative(through_drift_db))
+    if method == "reflection":
+        eps = db_to_relative(trace_noise_db)
+        d_gamma = float(reflection_uncertainty)
+    else:
+        eps = math.hypot(db_to_relative(trace_noise_db), db_to_relative(through_drift_db))
+        d_gamma = 0.0
 
     def rel(log_x: float) -> float:
-        return float(_uncertainty(np.array([10.0**log_x + 0j]), ze, noise, eps)[0])
+        z = np.array([10.0**log_x + 0j])
+        return float(_uncertainty(z, ze, noise, eps, method, d_gamma)[0])
 
     # The uncertainty of a resistor is convex in log Z with one minimum near the
     # geometric middle of the window; search for it, then for each crossing.
@@ -197,6 +280,24 @@ def measurable_window(
         multiplicative_error=eps,
         z_best=10.0**log_best,
         best_uncertainty=u_best,
+        method=method,
+        reflection_uncertainty=d_gamma,
+    )
+
+
+def unbounded_window(tolerance: float = 1.0) -> Window:
+    """The window of data taken as given: no cut (``z_min`` 0, ``z_max`` inf)."""
+    return Window(
+        z_min=0.0,
+        z_max=math.inf,
+        z0=50.0,
+        series_r=0.0,
+        noise_floor_db=-math.inf,
+        trace_noise_db=0.0,
+        tolerance=tolerance,
+        through_drift_db=0.0,
+        noise_floor=0.0,
+        method="as-given",
     )
 
 
@@ -208,12 +309,25 @@ def relative_uncertainty(z: ArrayLike, window: Window) -> NDArray[np.float64]:
     window's set-up. NaN impedances give NaN; 0 and infinity give infinity.
     """
     zz = np.asarray(z, dtype=complex)
-    out = _uncertainty(zz, window.ze, window.noise_floor, window.multiplicative_error)
+    if window.method not in METHODS:
+        raise ValueError(
+            f"a {window.method} window has no uncertainty model; the data carry their own"
+        )
+    out = _uncertainty(
+        zz,
+        window.ze,
+        window.noise_floor,
+        window.multiplicative_error,
+        window.method,
+        window.reflection_uncertainty,
+    )
     return np.where(np.isnan(zz), np.nan, out)
 
 
 def inside_window(z: ArrayLike, window: Window) -> NDArray[np.bool_]:
     """True where ``z`` (Ω) is measurable within the window's tolerance."""
+    if window.method not in METHODS:
+        return np.isfinite(np.asarray(z, dtype=complex))
     u = relative_uncertainty(z, window)
     with np.errstate(invalid="ignore"):
         # A hair of slack so a point exactly on a bound counts as inside.

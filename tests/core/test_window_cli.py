@@ -69,3 +69,21 @@ def test_bad_values_exit_2_with_a_message(
     assert text in captured.err
     assert "fix:" in captured.err
     assert "Traceback" not in captured.err
+
+
+def test_method_option_prints_each_window(capsys: pytest.CaptureFixture[str]) -> None:
+    # docs/references.md §9 [derived]: series-through floor about 13 Ω at 50 Ω, 0.1 dB.
+    assert main(["window", "--method", "series-through", "--json"]) == 0
+    series = json.loads(capsys.readouterr().out)
+    assert series["method"] == "series-through" and 12.5 < series["z_min"] < 14.5
+    assert main(["window", "--method", "reflection"]) == 0
+    text = capsys.readouterr().out
+    assert "reflection" in text and "|dΓ| = 0.005" in text
+    assert main(["window", "--method", "all", "--json"]) == 0
+    methods = [w["method"] for w in json.loads(capsys.readouterr().out)]
+    assert methods == ["shunt-through", "series-through", "reflection"]
+
+
+def test_unknown_method_is_bad_input(capsys: pytest.CaptureFixture[str]) -> None:
+    assert main(["window", "--method", "bridge"]) == 2
+    assert "choose one of" in capsys.readouterr().err
