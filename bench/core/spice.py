@@ -20,6 +20,8 @@ import re
 import unicodedata
 from collections.abc import Mapping, Sequence
 
+import numpy as np
+
 from bench.core.fitting import FitResult
 from bench.core.models.network import L as Ind
 from bench.core.models.network import Node, R, series, spice_lines
@@ -221,3 +223,22 @@ def _on_mount_lines(result: FitResult, mount: tuple[float, float]) -> list[str]:
         raise ValueError("the part's elements already use the names Rmount or Lmount")
     values.update(Rmount=max(mount[0], 1e-12), Lmount=max(mount[1], 1e-18))
     return spice_lines(series(R("Rmount"), Ind("Lmount"), part), values)
+
+
+def removed_mount(f, z_measured, z, valid=None) -> tuple[float, float] | None:
+    """The series R (Ω) and L (H) of the mount removed from a measurement, fitted to
+    ``z_measured − z`` (``bench.core.fixture.fit_mount``), or None when nothing was
+    removed. With the pads' open admittance also removed the difference holds a little of
+    it too; the series mount dominates at the low impedances of power-delivery parts."""
+    from bench.core.fixture import fit_mount
+
+    if z_measured is None:
+        return None
+    diff = np.asarray(z_measured, dtype=complex) - np.asarray(z, dtype=complex)
+    if not np.any(np.abs(diff) > 0):
+        return None
+    keep = np.isfinite(diff) if valid is None else np.asarray(valid, bool) & np.isfinite(diff)
+    if np.count_nonzero(keep) < 3:
+        return None
+    mount = fit_mount(np.asarray(f, dtype=float), diff, valid=keep)
+    return float(mount.r), float(mount.l)
