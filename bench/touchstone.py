@@ -33,7 +33,7 @@ import warnings
 from collections.abc import Iterable
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Literal
+from typing import Literal, NoReturn
 
 import numpy as np
 import skrf
@@ -229,13 +229,9 @@ def scan_touchstone(path: Path) -> Scan:
     declared: int | None = None
     matrix = "full"
     in_noise = False
-    widths: set[int] = set()
-    freqs: list[float] = []
-    row_lines: list[int] = []
-    largest = 0.0
-    all_zero = True
-    pending: list[str] = []
-    pending_line = 0
+    numbers: list[str] = []
+    lines_at: list[tuple[int, int]] = []
+    width = 0
     for number, raw in enumerate(text.splitlines(), start=1):
         line = raw.split("!", 1)[0].strip()
         if not line:
@@ -280,59 +276,40 @@ def scan_touchstone(path: Path) -> Scan:
         if in_noise:
             continue
         tokens = line.split()
-        try:
-            values = [float(t) for t in tokens]
-        except ValueError:
-            bad = next(t for t in tokens if not _is_number(t))
-            raise _bad(
-                name,
-                number,
-                f"{bad!r} is not a number",
-                "not a readable Touchstone file there: give an option line such as "
-                "'# Hz S RI R 50', then rows of numbers only; comment out other text with '!'",
-            ) from None
+        # A row of the wrong width may be text: say so first, it is the likelier fault.
+        odd = ports is None or (ports <= 2 and len(tokens) != width)
+        if odd and not all(_is_number(t) for t in tokens):
+            _raise_not_a_number(name, tokens, [(number, len(tokens))])
         if ports is None:
-            ports = {3: 1, 9: 2}.get(len(values), 0)
+            ports = {3: 1, 9: 2}.get(len(tokens), 0)
             if not ports:
                 raise _bad(
                     name,
                     number,
-                    f"the first data row has {len(values)} numbers, not 3 "
+                    f"the first data row has {len(tokens)} numbers, not 3 "
                     "(one port) or 9 (two ports)",
                     "name the file .s1p or .s2p for its port count and check the rows",
                 )
-        n = ports
-        width = 1 + (n * (n + 1) if matrix in ("lower", "upper") else 2 * n * n)
-        if n <= 2:
-            if len(values) != width:
-                raise _bad(
-                    name,
-                    number,
-                    f"has {len(values)} numbers in a row where a {n}-port file has {width} "
-                    f"(frequency and {width - 1} values)",
-                    "check the port count: a one-port file is .s1p (3 numbers a row), a "
-                    "two-port file .s2p (9 numbers a row)",
-                )
-            row = values
-        else:
-            # Larger networks wrap rows; count numbers only (they are refused later).
-            if not pending:
-                pending_line = number
-            pending.extend(tokens)
-            if len(pending) < width:
-                continue
-            row = [float(t) for t in pending[:width]]
-            pending = pending[width:]
-            number = pending_line
-        widths.add(len(row))
-        freqs.append(row[0])
-        row_lines.append(number)
-        data = np.abs(np.asarray(row[1:]))
-        if data.size:
-            finite = data[np.isfinite(data)]  # NaN and inf get their own message later
-            largest = max(largest, float(np.max(finite)) if finite.size else 0.0)
-            all_zero = all_zero and not np.any(data)
-    if not freqs:
+        if width == 0:
+            n = ports
+            width = 1 + (n * (n + 1) if matrix in ("lower", "upper") else 2 * n * n)
+        if ports <= 2 and len(tokens) != width:
+            raise _bad(
+                name,
+                number,
+                f"has {len(tokens)} numbers in a row where a {ports}-port file has {width} "
+                f"(frequency and {width - 1} values)",
+                "check the port count: a one-port file is .s1p (3 numbers a row), a "
+                "two-port file .s2p (9 numbers a row)",
+            )
+        # Larger networks wrap rows; their numbers are only counted (refused later).
+        lines_at.append((number, len(tokens)))
+        numbers.extend(tokens)
+    try:
+        values = np.array(numbers, dtype=float)
+    except ValueError:
+        _raise_not_a_number(name, numbers, lines_at)
+    if width == 0 or values.size == 0:
         raise _bad(
             name,
             None,
@@ -340,6 +317,19 @@ def scan_touchstone(path: Path) -> Scan:
             "give a Touchstone file: an option line such as '# Hz S RI R 50', then one line "
             "of numbers per frequency",
         )
+    if values.size % width:
+        raise _bad(
+            name,
+            None,
+            f"holds {values.size} numbers, not a whole number of {width}-number rows",
+            "check the port count and re-export the file",
+        )
+    rows = values.reshape(-1, width)
+    freqs = rows[:, 0]
+    data = np.abs(rows[:, 1:])
+    finite = data[np.isfinite(data)]  # NaN and inf get their own message later
+    largest = float(finite.max()) if finite.size else 0.0
+    all_zero = not np.any(data)
     if version.startswith("2") and declared is not None and declared != len(freqs):
         raise _bad(
             name,
@@ -357,11 +347,29 @@ def scan_touchstone(path: Path) -> Scan:
         has_option_line=option is not None,
         ports=int(ports or 0),
         rows=len(freqs),
-        frequencies=np.asarray(freqs, dtype=float) * _UNITS[unit],
+        frequencies=freqs * _UNITS[unit],
         declared_frequencies=declared,
         all_zero=all_zero,
         largest=largest,
     )
+
+
+def _raise_not_a_number(name: str, numbers: list[str], lines_at: list[tuple[int, int]]) -> NoReturn:
+    """The slow path after a fast conversion failed: find the line and the token."""
+    start = 0
+    for number, count in lines_at:
+        for token in numbers[start : start + count]:
+            if not _is_number(token):
+                raise _bad(
+                    name,
+                    number,
+                    f"{token!r} is not a number",
+                    "not a readable Touchstone file there: give an option line such as "
+                    "'# Hz S RI R 50', then rows of numbers only; comment out other text "
+                    "with '!'",
+                ) from None
+        start += count
+    raise _bad(name, None, "holds text where numbers belong", "re-export the file")
 
 
 def _is_number(token: str) -> bool:
