@@ -50,6 +50,11 @@ from bench.files import atomic_write_text
 MIN_POINTS = 10
 #: Largest measurement file read (bytes): about a million one-port points.
 MAX_FILE_BYTES = 64 * 1024 * 1024
+#: Most frequency points a file may hold: reading costs time and memory in proportion
+#: (scikit-rf parses each row in Python), so a longer file is refused before it is read.
+MAX_POINTS = 200_001
+#: Bytes of a file allowed per point (a 2-port row of full-precision numbers is under 200).
+_BYTES_PER_POINT = 256
 #: Largest |S| accepted: a passive part's corrected S-parameters stay near or below 1;
 #: raw, uncorrected ratios may exceed it a little, never by orders of magnitude.
 MAX_ABS_S = 100.0
@@ -142,6 +147,28 @@ def check_regular_file(path: Path, *, kinds: str = "a .s2p, .s1p or .csv file") 
             path=name,
             hint="export fewer points (a log sweep of a few thousand points is plenty) or "
             "split the band into several files and join them with --join",
+        )
+    _check_size(path)
+
+
+def _check_size(path: Path) -> None:
+    """Refuse, before reading it, a file with more than :data:`MAX_POINTS` data rows."""
+    size = path.stat().st_size
+    if size <= MAX_POINTS * 6:
+        return  # too small to hold that many rows
+    rows = 0
+    with path.open("rb") as stream:
+        if size > MAX_POINTS * _BYTES_PER_POINT:
+            rows = -1  # too large to read at all
+        else:
+            rows = sum(1 for line in stream if line.lstrip()[:1] not in (b"!", b"#", b"[", b""))
+    if rows < 0 or rows > MAX_POINTS:
+        held = f"{size / 1e6:.0f} MB" if rows < 0 else f"{rows} data rows"
+        raise InputError(
+            f"holds {held}; zbench reads files of at most {MAX_POINTS} frequency points",
+            path=str(path),
+            hint="export the sweep with fewer points (a log sweep of 801 to 1601 points "
+            "resolves every landmark), or keep every n-th row of the file",
         )
 
 

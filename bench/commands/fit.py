@@ -20,7 +20,8 @@ one library holding every subcircuit; any other OUT is a folder (created if need
 receiving one ``<file stem>.sub`` per FILE. Subcircuit names are the file stems made
 SPICE tokens.
 
-Several files are fitted in one process; a bad file does not stop the others. Exit
+Several files are fitted in parallel, on up to ``--jobs`` processes (default: all
+cores), and reported in the order given; a bad file does not stop the others. Exit
 code: 0 all fitted; 3 some fit did not meet its quality bound (its result is still
 printed and written); 2 some input was bad (message on stderr naming the file and the
 fix); 1 internal error. When several apply, 1 wins over 2, and 2 over 3.
@@ -28,6 +29,7 @@ fix); 1 internal error. When several apply, 1 wins over 2, and 2 over 3.
 
 from __future__ import annotations
 
+import functools
 import json
 import math
 import re
@@ -37,10 +39,10 @@ from typing import Any
 
 import click
 
-from bench import api
 from bench.errors import FitError, InputError, ZbenchError
 from bench.exports import LANDMARK_UNITS
 from bench.files import atomic_write_text
+from bench.parallel import ordered_map
 from bench.units import format_si
 
 
@@ -170,6 +172,8 @@ def _summary_text(outcome: _Outcome) -> str:
 def _parse_option(value: str | None, unit: str, option: str) -> float | None:
     if value is None:
         return None
+    from bench import api
+
     return api._quantity(value, unit, option)
 
 
@@ -244,6 +248,8 @@ def _fit_one(
     subckt: str | None = None,
     outcome: _Outcome | None = None,
 ) -> _Outcome:
+    from bench import api  # loads the numeric core: not needed for --help
+
     outcome = outcome or _Outcome(path=name)
     data, stated = _impedance_of(
         name, outcome, series_r=series_r, mount=mount, fmin=fmin, fmax=fmax, method=method
@@ -283,6 +289,8 @@ def _impedance_of(
     method: str | None,
 ) -> tuple[Any, float | None]:
     """One file's impedance data (notes added to ``outcome``), and the series R used."""
+    from bench import api
+
     measurement = api.load(name, series_r=series_r or 0.0, method=method)
     outcome.notes.extend(f"{name}: warning: {text}" for text in measurement.warnings)
     note = _method_note(name, measurement)
@@ -319,6 +327,7 @@ def _fit_joined(
     spice_out: str | None,
 ) -> _Outcome:
     """All ``files`` as set-ups of one part: stitched, then fitted once."""
+    from bench import api
     from bench.core.stitch import stitch
 
     label = "+".join(files)
@@ -370,6 +379,38 @@ def _fit_joined(
     return outcome
 
 
+def _fit_guarded(
+    name: str, *, spice_paths: dict[str, Path], subckt_names: dict[str, str], **options: Any
+) -> _Outcome:
+    """:func:`_fit_one` with every error turned into the file's outcome (a worker's task).
+
+    Notes made before a failure (a file read with default units) still reach the user.
+    """
+    started = _Outcome(path=name)
+    try:
+        return _fit_one(
+            name,
+            outcome=started,
+            spice_path=spice_paths.get(name),
+            subckt=subckt_names.get(name),
+            **options,
+        )
+    except ZbenchError as exc:
+        text = str(exc)
+        if isinstance(exc, FitError):
+            text = f"{name}: no fit: {text}"
+        elif name not in text:
+            text = f"{name}: {text}"
+        return _Outcome(path=name, error=text, exit_code=exc.exit_code, notes=started.notes)
+    except Exception as exc:  # one bad file must not stop an archive re-fit
+        return _Outcome(
+            path=name,
+            error=f"{name}: internal error ({type(exc).__name__}: {exc})",
+            exit_code=1,
+            notes=started.notes,
+        )
+
+
 @click.command("fit")
 @click.argument("files", nargs=-1, required=True, metavar="FILE...")
 @click.option(
@@ -377,7 +418,8 @@ def _fit_joined(
     default="auto",
     show_default=True,
     metavar="NAME",
-    help="series-rlc, two-branch, ladder, inductor, bead or auto (chooses family and order).",
+    help="A model family (series-rlc, lossy-rlc, two-branch, ladder, inductor, bead) or auto "
+    "(chooses family and order).",
 )
 @click.option(
     "--method",
@@ -401,6 +443,13 @@ def _fit_joined(
     help="Write SPICE subcircuits: a file for one FILE; a folder, or a .lib library, for several.",
 )
 @click.option("--json", "as_json", is_flag=True, help="One JSON object per file (JSON Lines).")
+@click.option(
+    "--jobs",
+    type=click.IntRange(min=1),
+    default=None,
+    metavar="N",
+    help="Fit up to N files at once, one process each (default: all cores).",
+)
 def command(
     files: tuple[str, ...],
     model: str,
@@ -412,6 +461,7 @@ def command(
     fmax: str | None,
     spice_out: str | None,
     as_json: bool,
+    jobs: int | None,
 ) -> None:
     """Fit equivalent-circuit models to stored measurements.
 
@@ -419,6 +469,8 @@ def command(
     say otherwise; 1-port S: reflection; Z: the impedance as given) or an impedance
     analyser's CSV. Values take SI prefixes (499, 2k, 100 MHz).
     """
+    from bench import api
+
     model = model.strip().lower()
     api.check_model_name(model)
     if method is not None:
@@ -459,36 +511,20 @@ def command(
     per_file, library = _spice_targets(files, spice_out)
     names = subcircuit_names(files)
     outcomes: list[_Outcome] = []
-    for name in files:
-        # Notes made before a failure (a file read with default units) still reach the user.
-        started = _Outcome(path=name)
-        try:
-            outcome = _fit_one(
-                name,
-                outcome=started,
-                model=model,
-                series_r=r,
-                mount=mount_data,
-                fmin=lo,
-                fmax=hi,
-                spice_path=per_file.get(name),
-                want_spice=spice_out is not None,
-                method=method,
-                subckt=names[name],
-            )
-        except ZbenchError as exc:
-            text = str(exc)
-            if isinstance(exc, FitError):
-                text = f"{name}: no fit: {text}"
-            elif name not in text:
-                text = f"{name}: {text}"
-            outcome = _Outcome(path=name, error=text, exit_code=exc.exit_code, notes=started.notes)
-        except Exception as exc:  # one bad file must not stop an archive re-fit
-            outcome = _Outcome(
-                path=name,
-                error=f"{name}: internal error ({type(exc).__name__}: {exc})",
-                exit_code=1,
-            )
+    task = functools.partial(
+        _fit_guarded,
+        model=model,
+        series_r=r,
+        mount=mount_data,
+        fmin=lo,
+        fmax=hi,
+        spice_paths=per_file,
+        subckt_names=names,
+        want_spice=spice_out is not None,
+        method=method,
+    )
+    # Files are fitted on up to --jobs processes; results come back in input order.
+    for outcome in ordered_map(task, files, jobs):
         if library is not None and outcome.spice_text:
             outcome.spice_path = library  # written once every file is fitted
         outcomes.append(outcome)

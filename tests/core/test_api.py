@@ -106,9 +106,9 @@ def test_fit_refuses_unknown_and_mismatched_models():
 
 def test_export_spice_writes_a_subcircuit(tmp_path):
     result = api.fit(EXAMPLES / "bulk_330u.s2p")
-    path = api.export_spice(result, tmp_path / "bulk.sub", "ZX-P330U typ")
+    path = api.export_spice(result, tmp_path / "bulk.sub", "ZBEX-P330U typ")
     text = path.read_text()
-    assert ".subckt ZX_P330U_typ 1 2" in text and ".ends" in text
+    assert ".subckt ZBEX_P330U_typ 1 2" in text and ".ends" in text
     assert "software: zbench" in text
 
 
