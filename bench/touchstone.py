@@ -140,6 +140,7 @@ def check_regular_file(path: Path, *, kinds: str = "a .s2p, .s1p or .csv file") 
             path=name,
             hint=f"save the data to a file first and give {kinds}",
         )
+    _check_size(path)
     if info.st_size > MAX_FILE_BYTES:
         raise InputError(
             f"is {info.st_size / 2**20:.0f} MiB, above the {MAX_FILE_BYTES / 2**20:.0f} MiB "
@@ -148,7 +149,6 @@ def check_regular_file(path: Path, *, kinds: str = "a .s2p, .s1p or .csv file") 
             hint="export fewer points (a log sweep of a few thousand points is plenty) or "
             "split the band into several files and join them with --join",
         )
-    _check_size(path)
 
 
 def _check_size(path: Path) -> None:
