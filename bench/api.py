@@ -23,32 +23,30 @@ from __future__ import annotations
 import os
 from datetime import datetime, timezone
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
-from matplotlib.figure import Figure
 
 from bench import __version__
 from bench.core.conversions import shunt_through_s21
 from bench.core.fixture import Mount
 from bench.core.impedance import ImpedanceData, impedance_from_shunt_through
+from bench.core.model_registry import MODEL_KINDS as _REGISTRY_KINDS
+from bench.core.model_registry import MODEL_NAMES as _REGISTRY_NAMES
 from bench.errors import FitError, InputError
 from bench.files import atomic_write_text
 from bench.touchstone import MIN_POINTS, Measurement, interpolate_to, load_measurement
 from bench.units import QuantityError, parse_quantity
 
+if TYPE_CHECKING:  # matplotlib loads only when a plot is drawn
+    from matplotlib.figure import Figure
+
 PathLike = str | os.PathLike[str]
 
-#: Family of parts each model describes (the registry's ``kind`` wins where it differs);
+#: Family of parts each model describes, from the one registry of model families;
 #: ``auto`` chooses among those of the data's kind.
-MODEL_KINDS: dict[str, str] = {
-    "series-rlc": "capacitor",
-    "two-branch": "capacitor",
-    "ladder": "capacitor",
-    "inductor": "inductor",
-    "bead": "inductor",
-}
-MODEL_NAMES = (*MODEL_KINDS, "auto")
+MODEL_KINDS: dict[str, str] = dict(_REGISTRY_KINDS)
+MODEL_NAMES = _REGISTRY_NAMES
 
 
 def _quantity(value: Any, unit: str, name: str) -> float | None:
@@ -189,11 +187,7 @@ def crop(
 
 def model_kinds() -> dict[str, str]:
     """``{model name: "capacitor" | "inductor"}`` from the core's model registry."""
-    try:
-        from bench.core.models import FAMILIES
-    except ImportError:  # registry not importable: the documented names above
-        return dict(MODEL_KINDS)
-    return {name: family.kind for name, family in FAMILIES.items()}
+    return dict(MODEL_KINDS)
 
 
 def check_model_name(model: str, *, name: str | None = None) -> None:

@@ -33,6 +33,11 @@ from bench.files import atomic_write_text
 
 #: Fewest frequency points a fit or a mount removal can work with.
 MIN_POINTS = 10
+#: Most frequency points a file may hold: reading costs time and memory in proportion
+#: (scikit-rf parses each row in Python), so a longer file is refused before it is read.
+MAX_POINTS = 200_001
+#: Bytes of a file allowed per point (a 2-port row of full-precision numbers is under 200).
+_BYTES_PER_POINT = 256
 
 
 @dataclass(frozen=True, eq=False)
@@ -71,6 +76,7 @@ def _read(path: Path) -> tuple[Touchstone, skrf.Network]:
         raise InputError(
             "is a folder, not a measurement file", path=name, hint="give a .s2p or .s1p file"
         )
+    _check_size(path)
     try:
         with warnings.catch_warnings():
             # scikit-rf warns (e.g. about frequency order) where we raise our own,
@@ -86,6 +92,27 @@ def _read(path: Path) -> tuple[Touchstone, skrf.Network]:
             "'# Hz S RI R 50', then one line of numbers per frequency",
         ) from exc
     return touchstone, network
+
+
+def _check_size(path: Path) -> None:
+    """Refuse, before reading it, a file with more than :data:`MAX_POINTS` data rows."""
+    size = path.stat().st_size
+    if size <= MAX_POINTS * 6:
+        return  # too small to hold that many rows
+    rows = 0
+    with path.open("rb") as stream:
+        if size > MAX_POINTS * _BYTES_PER_POINT:
+            rows = -1  # too large to read at all
+        else:
+            rows = sum(1 for line in stream if line.lstrip()[:1] not in (b"!", b"#", b"[", b""))
+    if rows < 0 or rows > MAX_POINTS:
+        held = f"{size / 1e6:.0f} MB" if rows < 0 else f"{rows} data rows"
+        raise InputError(
+            f"holds {held}; zbench reads files of at most {MAX_POINTS} frequency points",
+            path=str(path),
+            hint="export the sweep with fewer points (a log sweep of 801 to 1601 points "
+            "resolves every landmark), or keep every n-th row of the file",
+        )
 
 
 def _data_row_frequencies(path: Path, ports: int) -> NDArray[np.float64]:

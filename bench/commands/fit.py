@@ -14,7 +14,8 @@ one library holding every subcircuit; any other OUT is a folder (created if need
 receiving one ``<file stem>.sub`` per FILE. Subcircuit names are the file stems made
 SPICE tokens.
 
-Several files are fitted in one process; a bad file does not stop the others. Exit
+Several files are fitted in parallel, on up to ``--jobs`` processes (default: all
+cores), and reported in the order given; a bad file does not stop the others. Exit
 code: 0 all fitted; 3 some fit did not meet its quality bound (its result is still
 printed and written); 2 some input was bad (message on stderr naming the file and the
 fix); 1 internal error. When several apply, 1 wins over 2, and 2 over 3.
@@ -22,6 +23,7 @@ fix); 1 internal error. When several apply, 1 wins over 2, and 2 over 3.
 
 from __future__ import annotations
 
+import functools
 import json
 import math
 import re
@@ -31,10 +33,10 @@ from typing import Any
 
 import click
 
-from bench import api
 from bench.errors import FitError, InputError, ZbenchError
 from bench.exports import LANDMARK_UNITS
 from bench.files import atomic_write_text
+from bench.parallel import ordered_map
 from bench.units import format_si
 
 
@@ -139,6 +141,8 @@ def _summary_text(outcome: _Outcome) -> str:
 def _parse_option(value: str | None, unit: str, option: str) -> float | None:
     if value is None:
         return None
+    from bench import api
+
     return api._quantity(value, unit, option)
 
 
@@ -181,6 +185,8 @@ def _fit_one(
     spice_path: Path | None,
     want_spice: bool,
 ) -> _Outcome:
+    from bench import api  # loads the numeric core: not needed for --help
+
     outcome = _Outcome(path=name)
     source: Any = name
     if series_r is None:
@@ -188,9 +194,10 @@ def _fit_one(
         # into every corrected file); fitting a 499 Ω measurement as a plain 50 Ω one
         # would scale every impedance by about 11.
         measurement = api.load(name)
+        source = measurement  # read once: a long file costs its parse only once
         stated = series_r_from_comments(measurement.comments)
         if stated is not None:
-            series_r, source = stated, measurement
+            series_r = stated
             outcome.note = (
                 f"{name}: port series resistors {format_si(stated, 'Ω')} each, as its "
                 "comments state (give --series-r to override)"
@@ -217,6 +224,25 @@ def _fit_one(
     return outcome
 
 
+def _fit_guarded(name: str, *, spice_paths: dict[str, Path], **options: Any) -> _Outcome:
+    """:func:`_fit_one` with every error turned into the file's outcome (a worker's task)."""
+    try:
+        return _fit_one(name, spice_path=spice_paths.get(name), **options)
+    except ZbenchError as exc:
+        text = str(exc)
+        if isinstance(exc, FitError):
+            text = f"{name}: no fit: {text}"
+        elif name not in text:
+            text = f"{name}: {text}"
+        return _Outcome(path=name, error=text, exit_code=exc.exit_code)
+    except Exception as exc:  # one bad file must not stop an archive re-fit
+        return _Outcome(
+            path=name,
+            error=f"{name}: internal error ({type(exc).__name__}: {exc})",
+            exit_code=1,
+        )
+
+
 @click.command("fit")
 @click.argument("files", nargs=-1, required=True, metavar="FILE...")
 @click.option(
@@ -224,7 +250,8 @@ def _fit_one(
     default="auto",
     show_default=True,
     metavar="NAME",
-    help="series-rlc, two-branch, ladder, inductor, bead or auto (chooses family and order).",
+    help="A model family (series-rlc, lossy-rlc, two-branch, ladder, inductor, bead) or auto "
+    "(chooses family and order).",
 )
 @click.option("--series-r", metavar="OHMS", help="Resistor in series at each port (e.g. 499).")
 @click.option("--mount", metavar="FILE", help="Shorted-mount measurement to subtract.")
@@ -237,6 +264,13 @@ def _fit_one(
     help="Write SPICE subcircuits: a file for one FILE; a folder, or a .lib library, for several.",
 )
 @click.option("--json", "as_json", is_flag=True, help="One JSON object per file (JSON Lines).")
+@click.option(
+    "--jobs",
+    type=click.IntRange(min=1),
+    default=None,
+    metavar="N",
+    help="Fit up to N files at once, one process each (default: all cores).",
+)
 def command(
     files: tuple[str, ...],
     model: str,
@@ -246,12 +280,15 @@ def command(
     fmax: str | None,
     spice_out: str | None,
     as_json: bool,
+    jobs: int | None,
 ) -> None:
     """Fit equivalent-circuit models to stored measurements.
 
     FILE is a 2-port Touchstone of a calibrated shunt-through measurement, or a 1-port
     Touchstone holding Z. Values take SI prefixes (499, 2k, 100 MHz).
     """
+    from bench import api
+
     model = model.strip().lower()
     api.check_model_name(model)
     r = _parse_option(series_r, "ohm", "--series-r")
@@ -271,31 +308,18 @@ def command(
         mount_data = api.load(mount, series_r=r or 0.0)
     per_file, library = _spice_targets(files, spice_out)
     outcomes: list[_Outcome] = []
-    for name in files:
-        try:
-            outcome = _fit_one(
-                name,
-                model=model,
-                series_r=r,
-                mount=mount_data,
-                fmin=lo,
-                fmax=hi,
-                spice_path=per_file.get(name),
-                want_spice=spice_out is not None,
-            )
-        except ZbenchError as exc:
-            text = str(exc)
-            if isinstance(exc, FitError):
-                text = f"{name}: no fit: {text}"
-            elif name not in text:
-                text = f"{name}: {text}"
-            outcome = _Outcome(path=name, error=text, exit_code=exc.exit_code)
-        except Exception as exc:  # one bad file must not stop an archive re-fit
-            outcome = _Outcome(
-                path=name,
-                error=f"{name}: internal error ({type(exc).__name__}: {exc})",
-                exit_code=1,
-            )
+    task = functools.partial(
+        _fit_guarded,
+        model=model,
+        series_r=r,
+        mount=mount_data,
+        fmin=lo,
+        fmax=hi,
+        spice_paths=per_file,
+        want_spice=spice_out is not None,
+    )
+    # Files are fitted on up to --jobs processes; results come back in input order.
+    for outcome in ordered_map(task, files, jobs):
         if library is not None and outcome.spice_text:
             outcome.spice_path = library  # written once every file is fitted
         outcomes.append(outcome)

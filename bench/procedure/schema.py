@@ -50,12 +50,14 @@ import jsonschema
 from jsonschema import Draft202012Validator
 from jsonschema.exceptions import ValidationError
 
+from bench.core.model_registry import FAMILY_NAMES
 from bench.units import QuantityError, parse_quantity
 
 STEP_NAMES = ("calibrate", "mount_open", "mount_short", "measure", "fit", "export", "report")
 #: The steps of a procedure that lists none: every step but the optional open capture.
 DEFAULT_STEPS = tuple(name for name in STEP_NAMES if name != "mount_open")
-MODEL_NAMES = ("auto", "series-rlc", "two-branch", "ladder", "inductor", "bead")
+#: ``auto`` and every family of the one registry of model families.
+MODEL_NAMES = ("auto", *FAMILY_NAMES)
 PART_KINDS = ("mlcc", "bulk", "inductor", "bead")
 # A name used in file names, step ids and SCPI lines. ``\Z``, not ``$``: jsonschema
 # searches with Python's ``re``, where ``$`` also matches before a final newline.

@@ -151,6 +151,13 @@ def test_reprocess_with_other_settings_uses_only_stored_data(tmp_path, sim, kit)
     analysis = with_analysis(plan2, tolerance=0.02, mount="fitted")
     summary = build_summary(store2, plan2, analysis=analysis, model_override="series-rlc")
     assert all(s.fit is None or s.fit.model == "series-rlc" for s in summary.samples)
+    # Fitted on all cores or one at a time: the same samples, in order, the same fits.
+    serial = build_summary(store2, plan2, analysis=analysis, model_override="series-rlc", jobs=1)
+    assert [s.label for s in serial.samples] == [s.label for s in summary.samples]
+    assert [s.fit and s.fit.elements for s in serial.samples] == [
+        s.fit and s.fit.elements for s in summary.samples
+    ]
+    assert [s.warnings for s in serial.samples] == [s.warnings for s in summary.samples]
     first = summary.samples[0]
     # A tighter accuracy target narrows the window: at least as many points fall outside.
     base = build_summary(store2, plan2, fit=False).samples[0]
