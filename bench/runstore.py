@@ -60,6 +60,31 @@ def file_stem(step_id: str) -> str:
     return re.sub(r"[^A-Za-z0-9._-]", "_", "_".join(parts))
 
 
+#: Largest manifest read back (a run of thousands of steps stays far below it).
+MAX_MANIFEST_BYTES = 50_000_000
+
+
+def _manifest_shape_ok(manifest: Any) -> bool:
+    """A mapping whose steps each have an id, a state and files inside the run folder."""
+    if not isinstance(manifest, dict) or not isinstance(manifest.get("steps"), list):
+        return False
+    for entry in manifest["steps"]:
+        if not isinstance(entry, dict) or not isinstance(entry.get("id"), str):
+            return False
+        files = entry.get("files", [])
+        if not isinstance(files, list) or not all(_inside_run(f) for f in files):
+            return False
+    return isinstance(manifest.get("procedure", {}), dict)
+
+
+def _inside_run(relative: Any) -> bool:
+    """A relative path that stays inside the run folder (no '..', not absolute)."""
+    if not isinstance(relative, str) or not relative:
+        return False
+    path = Path(relative)
+    return not path.is_absolute() and ".." not in path.parts
+
+
 class RunStore:
     """A run folder and its manifest. Create with :meth:`create`, reopen with :meth:`open`."""
 
@@ -123,13 +148,31 @@ class RunStore:
                 hint="give a folder that zbench run or zbench demo created",
             )
         try:
-            manifest = json.loads(path.read_text(encoding="utf-8"))
+            with path.open("rb") as handle:
+                data = handle.read(MAX_MANIFEST_BYTES + 1)
+            if len(data) > MAX_MANIFEST_BYTES:
+                raise ValueError("larger than a run's manifest can be")
+            manifest = json.loads(data.decode("utf-8"))
         except json.JSONDecodeError as exc:
             raise InputError(
                 f"manifest.json is not valid JSON ({exc.msg}, line {exc.lineno})",
                 path=str(path),
                 hint="restore the manifest from a backup; the raw sweeps are untouched",
             ) from None
+        except (OSError, ValueError, RecursionError) as exc:
+            # Never the file's text in the message: the folder may be any folder.
+            reason = "nested too deeply" if isinstance(exc, RecursionError) else type(exc).__name__
+            raise InputError(
+                f"manifest.json cannot be read as a zbench manifest ({reason})",
+                path=str(path),
+                hint="give a folder that zbench run or zbench demo created",
+            ) from None
+        if not _manifest_shape_ok(manifest):
+            raise InputError(
+                "manifest.json is not a zbench run manifest",
+                path=str(path),
+                hint="give a folder that zbench run or zbench demo created",
+            )
         if manifest.get("format") != FORMAT_VERSION:
             raise InputError(
                 f"run format {manifest.get('format')!r} is not {FORMAT_VERSION}",
