@@ -116,7 +116,9 @@ def parse_instrument_map(kind: str, raw: Any, path: str = "<map>") -> Any:
         raise CommandMapError(
             path,
             key,
-            schema_error_words(first),
+            "a command must be one line of printable ASCII, at most 200 characters"
+            if first.validator in ("pattern", "minLength", "maxLength")
+            else schema_error_words(first),
             hint=f"compare with drivers/command_maps/{kind}/default.yaml",
         )
     values = {k: v for k, v in raw.items() if k != "name"}
