@@ -119,7 +119,7 @@ def main() -> list[Path]:
     z = (ze / 2) * s21 / (1 - s21)  # DESIGN §4, inverted
     written.append(
         write_touchstone_z(
-            HERE / "bead_600r.z1p",
+            HERE / "bead_600r.s1p",
             f,
             z,
             comments=[

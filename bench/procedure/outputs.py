@@ -74,7 +74,7 @@ def planned_files(plan: Plan) -> list[PlannedFile]:
         stem = safe_filename(label)
         for name in (
             f"corrected/{stem}.s2p",
-            f"corrected/{stem}.z1p",
+            f"corrected/{stem}.s1p",
             f"models/{stem}.sub",
             f"plots/{stem}_impedance.png",
         ):

@@ -119,7 +119,7 @@ def test_file_with_too_many_points_is_refused_before_it_is_read(tmp_path):
     from bench.errors import InputError
     from bench.touchstone import MAX_POINTS, load_measurement
 
-    path = tmp_path / "long.z1p"
+    path = tmp_path / "long.s1p"
     rows = np.column_stack(
         [np.arange(1, MAX_POINTS + 2), np.ones(MAX_POINTS + 1), np.zeros(MAX_POINTS + 1)]
     )

@@ -67,7 +67,7 @@ def test_a_process_with_threads_still_maps_in_order():
 @pytest.mark.skipif(not EXAMPLES.is_dir(), reason="the example measurements are not in this tree")
 def test_fit_jobs_gives_the_serial_output_in_input_order(capsys, tmp_path):
     files = [
-        EXAMPLES / "bead_600r.z1p",
+        EXAMPLES / "bead_600r.s1p",
         EXAMPLES / "mlcc_22u.s2p",
         tmp_path / "missing.s2p",
         EXAMPLES / "inductor_2u2.s2p",

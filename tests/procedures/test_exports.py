@@ -116,13 +116,18 @@ def test_touchstone_z_round_trips_and_s_only_when_kept(summary, run_dir):
     names = {p.name for p in written["touchstone"]}
     for sample in summary.samples:
         stem = exports.safe_filename(sample.label)
-        loaded = load_measurement(folder / "corrected" / f"{stem}.z1p")
+        loaded = load_measurement(folder / "corrected" / f"{stem}.s1p")
         np.testing.assert_allclose(loaded.f, sample.data.f, rtol=1e-12)
         np.testing.assert_allclose(loaded.z, sample.data.z, rtol=1e-9)
         assert (f"{stem}.s2p" in names) == (sample.corrected_s is not None)
     kept = next(s for s in summary.samples if s.corrected_s is not None)
     s2p = load_measurement(folder / "corrected" / f"{exports.safe_filename(kept.label)}.s2p")
     np.testing.assert_allclose(s2p.s, kept.corrected_s, rtol=1e-9, atol=1e-15)
+    # The measuring method goes with the data, so a re-fit reads it the same way.
+    assert s2p.method == kept.data.window.method and s2p.method_source == "comments"
+    # The impedance is a standard one-port Touchstone Z file, normalised as 1.x requires.
+    text = (folder / "corrected" / f"{exports.safe_filename(kept.label)}.s1p").read_text()
+    assert "# Hz Z RI R 50" in text and "normalised to R = 50 ohm" in text
 
 
 def test_non_finite_points_are_left_out_of_the_z_file(summary, tmp_path):
@@ -132,9 +137,9 @@ def test_non_finite_points_are_left_out_of_the_z_file(summary, tmp_path):
     broken = dataclasses.replace(sample, data=dataclasses.replace(sample.data, z=z))
     run = dataclasses.replace(summary, samples=(broken,))
     written = exports.write_exports(tmp_path, run)
-    (z1p,) = written["touchstone"]
-    assert "2 points with a non-finite impedance left out" in z1p.read_text()
-    loaded = load_measurement(z1p)
+    (s1p,) = written["touchstone"]
+    assert "2 points with a non-finite impedance left out" in s1p.read_text()
+    loaded = load_measurement(s1p)
     assert loaded.f.size == sample.data.f.size - 2
     assert written["spice"] == [] and written["library"] == []
 

@@ -165,7 +165,7 @@ def test_accepted_plans_never_map_two_outputs_to_one_file(parts):
             label = f"{step.placement.part}_{step.placement.sample}"
             label += f"_{step.bias_v:g}V" if step.bias_v else ""
             written += [
-                f"corrected/{safe_filename(label)}.z1p",
+                f"corrected/{safe_filename(label)}.s1p",
                 f"models/{safe_filename(label)}.sub",
             ]
             spice.append(spice_name(label))
