@@ -18,6 +18,7 @@ starts.
 from __future__ import annotations
 
 import datetime as _dt
+import hashlib
 import json
 import re
 import shutil
@@ -58,6 +59,35 @@ def file_stem(step_id: str) -> str:
     prefix = _STEM_PREFIXES.get(kind, kind)
     parts = [prefix, *rest] if prefix else rest
     return re.sub(r"[^A-Za-z0-9._-]", "_", "_".join(parts))
+
+
+def plan_digest(resolved: dict[str, Any]) -> str:
+    """A digest of the resolved plan (SI values, every setting; not the file's path).
+
+    A resume compares it with the plan rebuilt from the run folder's ``procedure.yaml``,
+    so an edit there (fewer points, another current limit) is found, not silently used.
+    """
+    plain = {k: v for k, v in resolved.items() if k != "source"}
+    text = json.dumps(plain, sort_keys=True, separators=(",", ":"), default=str)
+    return "sha256:" + hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def changed_keys(old: Any, new: Any, prefix: str = "") -> list[str]:
+    """Dotted keys whose values differ between two resolved plans."""
+    if isinstance(old, dict) and isinstance(new, dict):
+        keys: list[str] = []
+        for key in sorted(set(old) | set(new), key=str):
+            if key == "source" and not prefix:
+                continue
+            name = f"{prefix}.{key}" if prefix else str(key)
+            keys += changed_keys(old.get(key), new.get(key), name)
+        return keys
+    if isinstance(old, tuple | list) and isinstance(new, tuple | list) and len(old) == len(new):
+        keys = []
+        for i, (a, b) in enumerate(zip(old, new, strict=True)):
+            keys += changed_keys(a, b, f"{prefix}[{i}]")
+        return keys
+    return [] if old == new else [prefix or "<plan>"]
 
 
 #: Largest manifest read back (a run of thousands of steps stays far below it).
@@ -121,6 +151,7 @@ class RunStore:
             "software_version": __version__,
             "state": "created",
             "procedure": resolved,
+            "plan_digest": plan_digest(resolved),
             "procedure_file": PROCEDURE_COPY,
             "instruments": {},
             "calibration": {},
