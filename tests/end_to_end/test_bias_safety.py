@@ -115,3 +115,21 @@ def test_an_unconfirmed_output_off_goes_to_stderr_with_its_own_status(
     err = capsys.readouterr().err
     assert "could not confirm the DC source output is off" in err
     assert "could not confirm" in store.manifest["dc_output_unconfirmed"]
+
+
+def test_check_instruments_reports_a_source_left_on_and_switches_it_off(tmp_path, sim, kit, capsys):
+    from bench.cli import main
+
+    state = sim.state
+    with state.lock:
+        state.bias.change(state.now(), setpoint=4.0, output=True)
+    text = _biased(kit)
+    for role, resource in sim.resources.items():
+        text = text.replace(f"  {role}: {{", f"  {role}: {{resource: '{resource}', ", 1)
+    path = kit.write_procedure(tmp_path, text)
+    assert main(["check", str(path), "--instruments", "--yes"]) == 0
+    out = capsys.readouterr()
+    assert "its output is ON (set to 4 V)" in out.err
+    assert "reports a maximum of 20 V; the procedure states 20 V" in out.out
+    assert "output switched off and set to 0 V" in out.out
+    assert state.bias.output is False and state.bias.setpoint == 0.0
