@@ -17,7 +17,7 @@ import jsonschema
 import yaml
 
 from drivers.errors import CommandMapError
-from drivers.safe_yaml import YamlRefusedError, load_text, read_text
+from drivers.safe_yaml import YamlRefusedError, load_text, read_text, schema_error_words
 
 MAPS_DIR = Path(__file__).parent / "command_maps"
 SCHEMA_PATH = MAPS_DIR / "command_map.schema.yaml"
@@ -244,7 +244,7 @@ def parse_command_map(raw: Any, path: str = "<command map>") -> CommandMap:
         raise CommandMapError(
             path,
             key,
-            f"{first.message}{more}",
+            f"{schema_error_words(first)}{more}",
             hint="compare with drivers/command_maps/default.yaml and the guide "
             "drivers/command_maps/README.md; unknown keys are not allowed",
         )
