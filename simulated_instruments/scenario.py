@@ -1,8 +1,9 @@
 """Scenarios: YAML descriptions of invented benches, validated strictly into typed objects.
 
 A scenario names the analyser's limits and noise, the cables, transformer and series
-resistor boards, the calibration kit, the fixture (one mount per position), the DC
-source, the parts of the lot with their samples, the starting state and faults.
+resistor boards, the calibration kit, the fixture (one shunt mount per position of the
+switched board, plus one series-through and one reflection mount the cables can be
+moved to), the DC source, the parts of the lot with their samples, the starting state and faults.
 ``load_scenario`` accepts a name under ``simulated_instruments/scenarios/``, a path or a
 mapping. Every object is closed (unknown keys are errors naming the key).
 """
@@ -17,10 +18,10 @@ from typing import Any
 
 import jsonschema
 import numpy as np
-import yaml
 
 from bench.errors import InputError
 from bench.units import QuantityError, parse_quantity
+from drivers.safe_yaml import YamlRefusedError, load_text, read_text
 from simulated_instruments.parts import (
     DEFAULT_SPREAD,
     Part,
@@ -130,6 +131,18 @@ SCHEMA: dict[str, Any] = _obj(
                 },
                 "strap": _obj({"resistance": _Q, "inductance": _Q}),
                 "open_line_capacitance": _Q,
+                "series_mount": _obj(
+                    {
+                        "resistance": _Q,
+                        "inductance": _Q,
+                        "gap_capacitance": _Q,
+                        "strap_resistance": _Q,
+                        "strap_inductance": _Q,
+                    }
+                ),
+                "reflection_mount": _obj(
+                    {"resistance": _Q, "inductance": _Q, "open_capacitance": _Q}
+                ),
             },
             ("positions",),
         ),
@@ -156,13 +169,15 @@ SCHEMA: dict[str, Any] = _obj(
         },
         "initial": _obj(
             {
-                "cables": {"enum": ["short", "open", "load", "through", "fixture"]},
+                "cables": {
+                    "enum": ["short", "open", "load", "through", "fixture", "series", "reflection"]
+                },
                 "transformer": {"type": "boolean"},
                 "resistors": _Q,
                 "closed": {"type": "integer", "minimum": 1},
                 "placements": {
                     "type": "object",
-                    "patternProperties": {"^[0-9]+$": {"type": "string"}},
+                    "patternProperties": {r"^[0-9]+\Z": {"type": "string"}},
                     "additionalProperties": False,
                 },
             }
@@ -235,6 +250,12 @@ class Scenario:
     kit: CalibrationKit
     mounts: tuple[Mount, ...]
     open_line_capacitance: float
+    #: The series-through mount: traces in series (R, L) and the gap's capacitance
+    #: across the part (``open_capacitance``); the zero-ohm strap bridges the gap.
+    series_mount: Mount
+    #: The one-port reflection mount: pad and via in series (R, L), the pad's
+    #: capacitance to ground across the part; the strap shorts it.
+    reflection_mount: Mount
     switch_identity: str
     switch_settle: float
     dc_identity: str
@@ -306,9 +327,17 @@ def _read_one(scenario: str | Path | Mapping[str, Any]) -> tuple[dict[str, Any],
             hint=f"give a path to a scenario YAML or one of: {', '.join(names)}",
         )
     try:
-        data = yaml.safe_load(path.read_text(encoding="utf-8"))
-    except yaml.YAMLError as exc:
-        raise InputError(f"not valid YAML: {exc}", path=str(path)) from exc
+        # Bounded: size, nesting, alias expansion, tags and merge keys (drivers.safe_yaml).
+        data = load_text(read_text(path))
+    except YamlRefusedError as exc:
+        line = f" (line {exc.line})" if exc.line is not None else ""
+        raise InputError(f"{exc.message}{line}", path=str(path), hint=exc.hint) from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise InputError(
+            f"cannot read the scenario ({type(exc).__name__})",
+            path=str(path),
+            hint="give a readable UTF-8 YAML file",
+        ) from None
     if not isinstance(data, dict):
         raise InputError("a scenario must be a mapping", path=str(path))
     return data, str(path)
@@ -424,6 +453,23 @@ def load_scenario(
             )
         )
 
+    sm = fixture.get("series_mount", {})
+    series_mount = Mount(
+        resistance=_q(sm, "resistance", "ohm", 0.3e-3, "fixture.series_mount"),
+        inductance=_q(sm, "inductance", "H", 0.4e-9, "fixture.series_mount"),
+        open_capacitance=_q(sm, "gap_capacitance", "F", 0.08e-12, "fixture.series_mount"),
+        strap_resistance=_q(sm, "strap_resistance", "ohm", 0.5e-3, "fixture.series_mount"),
+        strap_inductance=_q(sm, "strap_inductance", "H", 0.3e-9, "fixture.series_mount"),
+    )
+    rm = fixture.get("reflection_mount", {})
+    reflection_mount = Mount(
+        resistance=_q(rm, "resistance", "ohm", 0.2e-3, "fixture.reflection_mount"),
+        inductance=_q(rm, "inductance", "H", 0.25e-9, "fixture.reflection_mount"),
+        open_capacitance=_q(rm, "open_capacitance", "F", 0.15e-12, "fixture.reflection_mount"),
+        strap_resistance=strap_r,
+        strap_inductance=strap_l,
+    )
+
     parts: dict[str, Part] = {}
     part_names: list[str] = []
     for name, entry in data["parts"].items():
@@ -477,6 +523,8 @@ def load_scenario(
         kit=kit,
         mounts=tuple(mounts),
         open_line_capacitance=_q(fixture, "open_line_capacitance", "F", 0.5e-12, "fixture"),
+        series_mount=series_mount,
+        reflection_mount=reflection_mount,
         switch_identity=sw.get("identity", "zbench,simulated fixture switch,SIM-SW-0001,0.1"),
         switch_settle=_q(sw, "settle_time", "s", 5e-3, "switch"),
         dc_identity=dc.get("identity", "zbench,simulated DC bias source,SIM-DC-0001,0.1"),

@@ -163,7 +163,7 @@ def test_check_counts_every_sweep_step_and_states_a_bead_frequency():
     path = repo / "procedures" / "series_resistors.yaml"
     result = CliRunner().invoke(cli, ["check", str(path)])
     assert result.exit_code == 0, result.output
-    assert "120 Ω ±25 % at 100 MHz" in result.output
+    assert "137 Ω ±25 % at 100 MHz" in result.output
     steps = re.search(r"^  steps +(.*)$", result.output, re.M).group(1).split(", ")
     counts = {}
     for entry in steps:
