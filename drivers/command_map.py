@@ -142,6 +142,7 @@ class CommandMap:
     parameters: tuple[str, ...]
     limits: Limits
     error_codes: dict[int, tuple[str, str | None]] = field(default_factory=dict)
+    kind: str = "network"
 
     @property
     def encoding(self) -> str:
@@ -284,6 +285,16 @@ def parse_command_map(raw: Any, path: str = "<command map>") -> CommandMap:
             )
         error_codes[int(entry["code"])] = (entry["meaning"], entry.get("fix"))
 
+    kind = raw.get("kind", "network")
+    wrong = [p for p in data["parameters"] if (p == "RATIO") != (kind == "gain_phase")]
+    if wrong:
+        raise CommandMapError(
+            path,
+            "data.parameters",
+            f"{wrong} do not belong to a map of kind {kind!r}",
+            hint="a network analyser reads S11, S21, S12, S22; a gain-phase analyser RATIO",
+        )
+
     limits = {}
     for key, bounds in raw["limits"].items():
         if not bounds["min"] <= bounds["max"]:
@@ -328,6 +339,7 @@ def parse_command_map(raw: Any, path: str = "<command map>") -> CommandMap:
         parameters=tuple(data["parameters"]),
         limits=Limits(**limits),
         error_codes=error_codes,
+        kind=raw.get("kind", "network"),
     )
 
 
