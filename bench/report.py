@@ -32,7 +32,7 @@ CSS = """
 :root { --ink: #1b1b1b; --muted: #5a5a5a; --rule: #c9c9c9; --band: #f3f4f6; }
 * { box-sizing: border-box; }
 body { font-family: "DejaVu Sans", "Helvetica Neue", Arial, sans-serif; color: var(--ink);
-       max-width: 62rem; margin: 1.5rem auto; padding: 0 1.2rem; line-height: 1.4;
+       max-width: 72rem; margin: 1.5rem auto; padding: 0 1.2rem; line-height: 1.4;
        font-size: 10.5pt; }
 h1 { font-size: 1.55rem; margin: 0 0 .2rem; }
 h2 { font-size: 1.2rem; border-bottom: 2px solid var(--ink); padding-bottom: .15rem;
@@ -49,6 +49,7 @@ table.kv th { width: 14rem; }
 table.glance { font-size: .8rem; }
 table.window td:first-child { white-space: nowrap; }
 table.glance td { white-space: nowrap; padding: .15rem .3rem; }
+table.glance th { font-size: .72rem; }
 table.glance th { vertical-align: bottom; padding: .15rem .3rem; }
 .verdict-pass { font-weight: 700; }
 .verdict-fail { font-weight: 700; text-decoration: underline; }
@@ -56,7 +57,10 @@ table.glance th { vertical-align: bottom; padding: .15rem .3rem; }
 .verdict-fail::before { content: "\\2717\\00a0"; }
 .verdict-check { font-weight: 700; font-style: italic; }
 .verdict-check::before { content: "?\\00a0"; }
-span.reason { white-space: normal; display: inline-block; min-width: 14rem; }
+span.reason { white-space: normal; display: inline-block; min-width: 9rem; max-width: 13rem;
+              font-size: .75rem; }
+div.scroll { overflow-x: auto; }
+@media print { div.scroll { overflow: visible; } }
 h3.glance span.note { font-weight: normal; font-size: .85rem; }
 figure { margin: .6rem 0 1rem; page-break-inside: avoid; break-inside: avoid; }
 figure img { max-width: 100%; border: 1px solid var(--rule); }
@@ -405,18 +409,17 @@ def _glance_part(summary: RunSummary, spec: PartSpec, rows: list[tuple[dict, Sam
             esc(against),
             _verdict_html(row["result"], row["bias_v"], short=True, reason=row["reason"]),
             "—" if row["rms_log_error"] is None else f"{row['rms_log_error']:.3g}",
-            "—" if used is None else f"{used} of {total}",
-            str(outside),
+            ("—" if used is None else f"{used} of {total}") + f" / {outside}",
         ]
         body.append(cells)
     headers = ["sample", "bias (V)", *(f"{name} ({unit})" for _, name, unit in columns)]
     if df_freqs:
         headers.append(f"DF at {format_si(df_freqs[0], 'Hz', 3)}" if len(df_freqs) == 1 else "DF")
     headers += [f"|Z| at {format_si(f, 'Hz', 4)} (Ω)" for f in freqs]
-    headers += ["drive (V rms)", "deviation", "verdict", "RMS log error", "points fitted",
-                "outside window"]  # fmt: skip
+    headers += ["drive (V rms)", "deviation", "verdict", "RMS log error",
+                "points fitted / outside window"]  # fmt: skip
     first_numeric = 2
-    numeric = set(range(first_numeric, len(headers))) - {len(headers) - 4}
+    numeric = set(range(first_numeric, len(headers))) - {len(headers) - 3}
     model = ""
     typical = exports.typical_model(summary, spec.name)
     if typical is not None:
@@ -429,7 +432,9 @@ def _glance_part(summary: RunSummary, spec: PartSpec, rows: list[tuple[dict, Sam
         nominal = f" · {label} nominal {format_si(spec.nominal, unit, 4)}{tol}"
     return (
         f'<h3 class="glance">{esc(spec.name)}<span class="note">{esc(nominal + model)}</span></h3>'
+        + '<div class="scroll">'
         + _table(headers, body, numeric=numeric, css_class="glance")
+        + "</div>"
     )
 
 

@@ -36,7 +36,7 @@ CAPACITOR_KINDS = ("mlcc", "bulk")
 
 #: Frequencies (Hz) where the results table gives |Z| when they lie inside the sweep
 #: (decades a power-integrity engineer reads a target impedance at; our choice).
-Z_AT_HZ = (1e5, 1e6, 1e7, 1e8)
+Z_AT_HZ = (1e6, 1e7, 1e8)
 
 #: The dissipation factor is stated at 120 Hz for bulk (electrolytic, polymer) parts and
 #: at 1 kHz for ceramics (common practice, no source); the first one inside the
