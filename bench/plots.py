@@ -210,6 +210,8 @@ def _window_bounds(data: Any) -> tuple[np.ndarray, np.ndarray] | None:
     z_max = getattr(window, "z_max", None)
     if z_min is None or z_max is None:
         return None
+    if not (np.isfinite(z_max) and z_min > 0):
+        return None  # data taken as given: no window to shade
     f = np.asarray(data.f, dtype=float)
     lo = np.broadcast_to(np.asarray(z_min, dtype=float), f.shape)
     hi = np.broadcast_to(np.asarray(z_max, dtype=float), f.shape)

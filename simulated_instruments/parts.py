@@ -327,6 +327,13 @@ class FerriteBead:
     (1 + f/loss_corner)^loss_exponent``: the loss resistance (Ω) falls at high frequency
     as the ferrite's permeability relaxes. The optional second relaxation (``inductance2``
     H, ``resistance2`` Ω, both set or both None) adds a second hump. Units: H, Ω, F, Hz.
+
+    A dispersive ferrite: with ``relaxation_frequency`` (Hz) set, the core's inductance
+    follows a Cole-Cole permeability, ``L·μn(f)`` with ``μn = 1/(1 + (j f/fr)^(1 − α))``
+    normalised to 1 at DC and ``α = cole_alpha`` (0 is a single Debye relaxation, larger
+    spreads it over more decades): ``jωL·μn`` turns from inductive to resistive above
+    ``fr`` as μ'' takes over, as ferrite permeability spectra do (Cole and Cole, J. Chem.
+    Phys. 9, 341 (1941), the dispersion form, cited from memory; docs/references.md).
     """
 
     name: str = "bead"
@@ -339,6 +346,8 @@ class FerriteBead:
     inductance2: float | None = None
     resistance2: float | None = None
     rated_current: float = 2.0
+    relaxation_frequency: float | None = None
+    cole_alpha: float = 0.0
 
     def __post_init__(self) -> None:
         _positive(
@@ -352,9 +361,15 @@ class FerriteBead:
                 "inductance2",
                 "resistance2",
                 "rated_current",
+                "relaxation_frequency",
             ),
         )
         _non_negative(self, ("loss_exponent",))
+        if not 0.0 <= self.cole_alpha < 1.0:
+            raise PartError(
+                f"FerriteBead {self.name!r}: cole_alpha must lie in [0, 1), got {self.cole_alpha}",
+                hint="0 for a single relaxation, about 0.1 to 0.4 for a real ferrite",
+            )
         if (self.inductance2 is None) != (self.resistance2 is None):
             raise PartError(
                 f"FerriteBead {self.name!r}: inductance2 and resistance2 go together; "
@@ -371,12 +386,20 @@ class FerriteBead:
         f = _frequencies(f)
         w = 2 * np.pi * f
         r = self.resistance / (1.0 + f / self.loss_corner) ** self.loss_exponent
-        y = 1.0 / (1j * w * self.inductance) + 1.0 / r + 1j * w * self.capacitance
+        z_core = 1j * w * self.inductance * self.permeability(f)
+        y = 1.0 / z_core + 1.0 / r + 1j * w * self.capacitance
         z = self.r_dc + 1.0 / y
         if self.inductance2 is not None and self.resistance2 is not None:
             y2 = 1.0 / (1j * w * self.inductance2) + 1.0 / self.resistance2
             z = z + 1.0 / y2
         return z
+
+    def permeability(self, f: Any) -> np.ndarray:
+        """The core's relative permeability normalised to 1 at DC (1 without dispersion)."""
+        f = _frequencies(f)
+        if self.relaxation_frequency is None:
+            return np.ones(f.shape, dtype=complex)
+        return 1.0 / (1.0 + (1j * f / self.relaxation_frequency) ** (1.0 - self.cole_alpha))
 
 
 Part = Mlcc | BulkCapacitor | PowerInductor | FerriteBead
@@ -408,6 +431,8 @@ _FIELD_UNITS: dict[str, str | None] = {
     "rated_current": "A",
     "skin_corner": "Hz",
     "loss_corner": "Hz",
+    "relaxation_frequency": "Hz",
+    "cole_alpha": None,
     "loss_tangent": None,
     "mode_c_ratio": None,
     "mode_l_ratio": None,

@@ -1,8 +1,9 @@
 """Scenarios: YAML descriptions of invented benches, validated strictly into typed objects.
 
 A scenario names the analyser's limits and noise, the cables, transformer and series
-resistor boards, the calibration kit, the fixture (one mount per position), the DC
-source, the parts of the lot with their samples, the starting state and faults.
+resistor boards, the calibration kit, the fixture (one shunt mount per position of the
+switched board, plus one series-through and one reflection mount the cables can be
+moved to), the DC source, the parts of the lot with their samples, the starting state and faults.
 ``load_scenario`` accepts a name under ``simulated_instruments/scenarios/``, a path or a
 mapping. Every object is closed (unknown keys are errors naming the key).
 """
@@ -17,10 +18,10 @@ from typing import Any
 
 import jsonschema
 import numpy as np
-import yaml
 
 from bench.errors import InputError
 from bench.units import QuantityError, parse_quantity
+from drivers.safe_yaml import YamlRefusedError, load_text, read_text
 from simulated_instruments.parts import (
     DEFAULT_SPREAD,
     Part,
@@ -31,6 +32,12 @@ from simulated_instruments.parts import (
 from simulated_instruments.physics import CalibrationKit, Mount
 
 SCENARIO_DIR = Path(__file__).parent / "scenarios"
+
+# The analyser's command dialects; each has a command map of the same name in
+# drivers/command_maps/.
+ANALYZER_DIALECTS = ("default", "meas_stim")
+# How deep ``extends:`` may chain (a scenario extending one that extends another...).
+MAX_EXTENDS = 4
 
 _Q = {"type": ["number", "string"]}
 
@@ -70,6 +77,7 @@ SCHEMA: dict[str, Any] = _obj(
         "analyzer": _obj(
             {
                 "identity": {"type": "string"},
+                "dialect": {"enum": list(ANALYZER_DIALECTS)},
                 "frequency": _range(),
                 "points": _range(),
                 "power": _range(),
@@ -112,6 +120,18 @@ SCHEMA: dict[str, Any] = _obj(
                 },
                 "strap": _obj({"resistance": _Q, "inductance": _Q}),
                 "open_line_capacitance": _Q,
+                "series_mount": _obj(
+                    {
+                        "resistance": _Q,
+                        "inductance": _Q,
+                        "gap_capacitance": _Q,
+                        "strap_resistance": _Q,
+                        "strap_inductance": _Q,
+                    }
+                ),
+                "reflection_mount": _obj(
+                    {"resistance": _Q, "inductance": _Q, "open_capacitance": _Q}
+                ),
             },
             ("positions",),
         ),
@@ -138,13 +158,15 @@ SCHEMA: dict[str, Any] = _obj(
         },
         "initial": _obj(
             {
-                "cables": {"enum": ["short", "open", "load", "through", "fixture"]},
+                "cables": {
+                    "enum": ["short", "open", "load", "through", "fixture", "series", "reflection"]
+                },
                 "transformer": {"type": "boolean"},
                 "resistors": _Q,
                 "closed": {"type": "integer", "minimum": 1},
                 "placements": {
                     "type": "object",
-                    "patternProperties": {"^[0-9]+$": {"type": "string"}},
+                    "patternProperties": {r"^[0-9]+\Z": {"type": "string"}},
                     "additionalProperties": False,
                 },
             }
@@ -160,6 +182,7 @@ class AnalyzerSpec:
     """Limits, noise and timing of the simulated network analyser (SI units, dB, dBm)."""
 
     identity: str = "zbench,simulated network analyser,SIM-VNA-0001,0.1"
+    dialect: str = "default"
     f_min: float = 10.0
     f_max: float = 500e6
     points_min: int = 2
@@ -196,6 +219,12 @@ class Scenario:
     kit: CalibrationKit
     mounts: tuple[Mount, ...]
     open_line_capacitance: float
+    #: The series-through mount: traces in series (R, L) and the gap's capacitance
+    #: across the part (``open_capacitance``); the zero-ohm strap bridges the gap.
+    series_mount: Mount
+    #: The one-port reflection mount: pad and via in series (R, L), the pad's
+    #: capacitance to ground across the part; the strap shorts it.
+    reflection_mount: Mount
     switch_identity: str
     switch_settle: float
     dc_identity: str
@@ -222,7 +251,38 @@ def _q(section: Mapping[str, Any], key: str, unit: str | None, default: float, w
         raise InputError(str(exc), hint="write a number, optionally with an SI prefix") from exc
 
 
-def _read_source(scenario: str | Path | Mapping[str, Any]) -> tuple[dict[str, Any], str]:
+def _merged(base: dict[str, Any], over: Mapping[str, Any]) -> dict[str, Any]:
+    """``over`` laid on ``base``: mappings merge key by key, anything else replaces."""
+    out = dict(base)
+    for key, value in over.items():
+        if isinstance(value, Mapping) and isinstance(out.get(key), Mapping):
+            out[key] = _merged(dict(out[key]), value)
+        else:
+            out[key] = value
+    return out
+
+
+def _read_source(
+    scenario: str | Path | Mapping[str, Any], depth: int = 0
+) -> tuple[dict[str, Any], str]:
+    """The scenario's mapping and where it came from; ``extends: <name>`` takes another
+    scenario as the base and lays this one's keys on it."""
+    data, where = _read_one(scenario)
+    base_name = data.pop("extends", None)
+    if base_name is None:
+        return data, where
+    if not isinstance(base_name, str) or depth >= MAX_EXTENDS:
+        raise InputError(
+            f"extends: {base_name!r} is not a scenario name, or the chain is deeper than "
+            f"{MAX_EXTENDS}",
+            path=where,
+            hint="name one scenario to extend, e.g. 'extends: demo'",
+        )
+    base, _ = _read_source(base_name, depth + 1)
+    return _merged(base, data), where
+
+
+def _read_one(scenario: str | Path | Mapping[str, Any]) -> tuple[dict[str, Any], str]:
     if isinstance(scenario, Mapping):
         return dict(scenario), "<scenario>"
     path = Path(scenario)
@@ -235,9 +295,17 @@ def _read_source(scenario: str | Path | Mapping[str, Any]) -> tuple[dict[str, An
             hint=f"give a path to a scenario YAML or one of: {', '.join(names)}",
         )
     try:
-        data = yaml.safe_load(path.read_text(encoding="utf-8"))
-    except yaml.YAMLError as exc:
-        raise InputError(f"not valid YAML: {exc}", path=str(path)) from exc
+        # Bounded: size, nesting, alias expansion, tags and merge keys (drivers.safe_yaml).
+        data = load_text(read_text(path))
+    except YamlRefusedError as exc:
+        line = f" (line {exc.line})" if exc.line is not None else ""
+        raise InputError(f"{exc.message}{line}", path=str(path), hint=exc.hint) from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise InputError(
+            f"cannot read the scenario ({type(exc).__name__})",
+            path=str(path),
+            hint="give a readable UTF-8 YAML file",
+        ) from None
     if not isinstance(data, dict):
         raise InputError("a scenario must be a mapping", path=str(path))
     return data, str(path)
@@ -283,6 +351,7 @@ def load_scenario(
     eb = a.get("error_boxes", {})
     analyzer = AnalyzerSpec(
         identity=a.get("identity", d.identity),
+        dialect=a.get("dialect", d.dialect),
         f_min=f_min,
         f_max=f_max,
         points_min=int(p_min),
@@ -352,6 +421,23 @@ def load_scenario(
             )
         )
 
+    sm = fixture.get("series_mount", {})
+    series_mount = Mount(
+        resistance=_q(sm, "resistance", "ohm", 0.3e-3, "fixture.series_mount"),
+        inductance=_q(sm, "inductance", "H", 0.4e-9, "fixture.series_mount"),
+        open_capacitance=_q(sm, "gap_capacitance", "F", 0.08e-12, "fixture.series_mount"),
+        strap_resistance=_q(sm, "strap_resistance", "ohm", 0.5e-3, "fixture.series_mount"),
+        strap_inductance=_q(sm, "strap_inductance", "H", 0.3e-9, "fixture.series_mount"),
+    )
+    rm = fixture.get("reflection_mount", {})
+    reflection_mount = Mount(
+        resistance=_q(rm, "resistance", "ohm", 0.2e-3, "fixture.reflection_mount"),
+        inductance=_q(rm, "inductance", "H", 0.25e-9, "fixture.reflection_mount"),
+        open_capacitance=_q(rm, "open_capacitance", "F", 0.15e-12, "fixture.reflection_mount"),
+        strap_resistance=strap_r,
+        strap_inductance=strap_l,
+    )
+
     parts: dict[str, Part] = {}
     part_names: list[str] = []
     for name, entry in data["parts"].items():
@@ -405,6 +491,8 @@ def load_scenario(
         kit=kit,
         mounts=tuple(mounts),
         open_line_capacitance=_q(fixture, "open_line_capacitance", "F", 0.5e-12, "fixture"),
+        series_mount=series_mount,
+        reflection_mount=reflection_mount,
         switch_identity=sw.get("identity", "zbench,simulated fixture switch,SIM-SW-0001,0.1"),
         switch_settle=_q(sw, "settle_time", "s", 5e-3, "switch"),
         dc_identity=dc.get("identity", "zbench,simulated DC bias source,SIM-DC-0001,0.1"),

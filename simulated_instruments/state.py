@@ -7,8 +7,11 @@ behind one lock. :meth:`BenchState.sweep` composes the physics of
 
 Signal path, port 1 to port 2:
 ``error box 1 · resistor board · [what the cables meet] · resistor board · error box 2``
-where the cables meet a calibration standard on each end, the through adapter, or the
-fixture: the selected position's shunt element, ``mount pads + (part ‖ pad capacitance)
+where the cables meet a calibration standard on each end, the through adapter, the
+series-through mount (``traces + (element ‖ gap capacitance)`` in series between the
+cable ends), the reflection mount (port 1 only: ``pad + (element ‖ pad capacitance)`` to
+ground, the port-2 cable left open), or the switched fixture: the selected position's
+shunt element, ``mount pads + (part ‖ pad capacitance)
 + ground-loop error`` (the ground-loop term only for the fixture, which is where the two
 cable shields close a loop through the DUT's ground). The analyser's ``CORRection ON``
 returns the same path without its error boxes (as if its own calibration had been made
@@ -33,7 +36,9 @@ from simulated_instruments.scpi import Session
 
 SHORT = "SHORT"
 EMPTY = "EMPTY"
-CABLE_STATES = ("SHORT", "OPEN", "LOAD", "THROUGH", "FIXTURE")
+CABLE_STATES = ("SHORT", "OPEN", "LOAD", "THROUGH", "FIXTURE", "SERIES", "REFLECTION")
+#: The single mounts the cables can be moved to, besides the switched shunt fixture.
+SINGLE_MOUNTS = ("SERIES", "REFLECTION")
 
 
 @dataclass(frozen=True)
@@ -108,6 +113,8 @@ class BenchState:
             }
             for pos, item in init.get("placements", {}).items():
                 self.placements[int(pos)] = item.upper() if item.upper() in (SHORT, EMPTY) else item
+            #: What sits in the series-through and the reflection mount.
+            self.mounted: dict[str, str] = {name: EMPTY for name in SINGLE_MOUNTS}
             self.refresh_load()
 
     def _apply_scenario_faults(self) -> None:
@@ -157,6 +164,27 @@ class BenchState:
         with self.lock:
             self.placements[position] = item
             self.refresh_load()
+
+    def mount(self, which: str, item: str) -> None:
+        """Put ``item`` (SHORT: the strap, EMPTY: the gap or open, or a part) in the
+        ``SERIES`` or ``REFLECTION`` mount."""
+        with self.lock:
+            self.mounted[which] = item
+            self.refresh_load()
+
+    def single_mount(self, which: str) -> physics.Mount:
+        return self.scenario.series_mount if which == "SERIES" else self.scenario.reflection_mount
+
+    def mount_impedance(self, which: str, f: np.ndarray) -> np.ndarray:
+        """Impedance (Ω) at the terminals of the ``SERIES`` or ``REFLECTION`` mount, as the
+        cable end(s) see it: traces + (what is mounted ‖ the gap's or pad's capacitance)."""
+        mount = self.single_mount(which)
+        item = self.mounted[which]
+        if item == EMPTY:
+            return mount.with_element(f, None)
+        if item == SHORT:
+            return mount.with_element(f, mount.strap(f))
+        return mount.with_element(f, self.scenario.parts[item].impedance(f, 0.0))
 
     def set_missing(self, position: int, missing: bool) -> None:
         with self.lock:
@@ -246,6 +274,12 @@ class BenchState:
             return "reflect", (g, g)
         if self.cables == "THROUGH":
             return "abcd", physics.series_abcd(np.zeros(len(f), dtype=complex))
+        if self.cables == "SERIES":
+            return "abcd", physics.series_abcd(self.mount_impedance("SERIES", f))
+        if self.cables == "REFLECTION":
+            g1 = physics.reflection(self.mount_impedance("REFLECTION", f))
+            c = self.scenario.open_line_capacitance
+            return "reflect", (g1, physics.reflection(1 / (2j * np.pi * f * c)))
         if self.closed is None:
             c = self.scenario.open_line_capacitance
             g = physics.reflection(1 / (2j * np.pi * f * c))

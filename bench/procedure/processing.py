@@ -25,6 +25,7 @@ from bench.core.fixture import MountOpen, fit_mount, fit_open
 from bench.core.impedance import ImpedanceData, impedance_from_shunt_through
 from bench.core.window import floor_on_through_db
 from bench.errors import FitError, RunError
+from bench.parallel import ordered_map
 from bench.procedure.plan import Analysis, Plan, Step
 from bench.results import RunSummary, SampleResult
 from bench.runstore import DONE, RunStore
@@ -434,11 +435,13 @@ def build_summary(
     analysis: Analysis | None = None,
     model_override: str | None = None,
     fit: bool = True,
+    jobs: int | None = None,
 ) -> RunSummary:
     """Recompute every sample of a run from its raw sweeps into a :class:`RunSummary`.
 
     ``analysis`` and ``model_override`` replace the procedure's settings (reprocess);
     measure steps that were skipped or never ran are left out, and said so in warnings.
+    The samples are fitted on up to ``jobs`` processes (all cores when None).
     """
     analysis = analysis or plan.analysis
     corrector = Corrector.from_store(store, plan)
@@ -470,7 +473,7 @@ def build_summary(
         if result.mount_open is None:
             warnings.append(result.message)
     pads = {pos: r.mount_open for pos, r in opens.items() if r.mount_open is not None}
-    samples: list[SampleResult] = []
+    unfitted: list[tuple[SampleResult, tuple[str, ImpedanceData, float]]] = []
     for step in plan.steps:
         if step.kind != "measure":
             continue
@@ -478,11 +481,22 @@ def build_summary(
         if state != DONE:
             warnings.append(f"{step.id}: {state}, not in the results")
             continue
-        samples.append(
-            _sample(
-                store, plan, analysis, corrector, step, shorts, pads, loops, model_override, fit
-            )
+        unfitted.append(
+            _sample(store, plan, analysis, corrector, step, shorts, pads, loops, model_override)
         )
+    samples = [sample for sample, _ in unfitted]
+    if fit:
+        # The fits run on up to `jobs` processes (all cores by default), in sample order.
+        fits = ordered_map(_fit_task, [task for _, task in unfitted], jobs)
+        samples = [
+            replace(
+                sample,
+                fit=result,
+                fit_error=error,
+                warnings=(*sample.warnings, *(getattr(result, "warnings", ()) or ())),
+            )
+            for sample, (result, error) in zip(samples, fits, strict=True)
+        ]
     loop_info = {
         str(pos): {
             "detected": r.detected,
@@ -554,8 +568,8 @@ def _sample(
     pads: dict[int, MountOpen],
     loops: dict[int, GroundLoopResult],
     model_override: str | None,
-    fit: bool,
-) -> SampleResult:
+) -> tuple[SampleResult, tuple[str, ImpedanceData, float]]:
+    """A sample's result before its fit, and the fit's task (model, data, valid above)."""
     placement = step.placement
     assert placement is not None
     f, s_raw = averaged(store, step.id)
@@ -569,7 +583,6 @@ def _sample(
     valid_above = loop.valid_above_hz if detected and not removed else 0.0
     part = plan.part(placement.part)
     model = model_override or part.spec.model
-    result, error = fit_sample(model, data, valid_above) if fit else (None, None)
     notes: tuple[str, ...] = ()
     if removed:
         notes = ("ground loop: removed with the measured mount short (all points kept)",)
@@ -581,21 +594,24 @@ def _sample(
             f"ground loop: {below} point{'s' if below != 1 else ''} below "
             f"{format_si(valid_above, 'Hz')} not used (a fitted mount cannot follow the loop)",
         )
-    if result is not None and getattr(result, "warnings", ()):
-        notes = (*notes, *result.warnings)
     files = store.step_files(step.id)
-    return SampleResult(
+    sample = SampleResult(
         part=placement.part,
         sample=placement.sample,
         data=data,
-        fit=result,
+        fit=None,
         bias_v=step.bias_v,
         position=placement.position,
         raw_file=files[0] if files else None,
         corrected_s=corrected,
-        fit_error=error,
         warnings=notes,
     )
+    return sample, (model, data, valid_above)
+
+
+def _fit_task(task: tuple[str, ImpedanceData, float]) -> tuple[Any, str | None]:
+    """:func:`fit_sample` of one (model, data, valid above) task: a worker's job."""
+    return fit_sample(*task)
 
 
 def with_analysis(plan: Plan, **changes: Any) -> Analysis:

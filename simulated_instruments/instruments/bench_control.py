@@ -2,8 +2,14 @@
 
 Nodes (DEVELOPERS.md, bench-control table; FAULt nodes in the simulator's README):
 
-- ``OPERator:CABLes STANdard,SHORt|OPEN|LOAD``, ``THRough``, ``FIXTure``; ``OPERator:CABLes?``
-  answers ``STAN,SHOR``, ``STAN,OPEN``, ``STAN,LOAD``, ``THR`` or ``FIXT``;
+- ``OPERator:CABLes STANdard,SHORt|OPEN|LOAD``, ``THRough``, ``FIXTure``, ``SERies`` (both
+  cables on the series-through mount), ``REFLection`` (the port-1 cable on the reflection
+  mount, the port-2 cable left open); ``OPERator:CABLes?`` answers ``STAN,SHOR``,
+  ``STAN,OPEN``, ``STAN,LOAD``, ``THR``, ``FIXT``, ``SER`` or ``REFL``;
+- ``OPERator:MOUNt SERies|REFLection,GAP|STRAp|"<part>/<sample>"``: leave the mount empty
+  (the series mount's empty gap, the reflection mount's open; ``EMPTy`` and ``OPEN`` are
+  read too), fit its zero-ohm strap (``SHORt`` read too), or mount a part;
+  ``OPERator:MOUNt? SERies|REFLection`` answers ``GAP``, ``STRA`` or the quoted part;
 - ``OPERator:PLACe <pos>,SHORt|EMPTy|"<part>/<sample>"``; ``OPERator:PLACe? <pos>``
   answers ``SHOR``, ``EMPT`` or the quoted part;
 - ``OPERator:TRANsformer ON|OFF`` (query 1/0), ``OPERator:RESistors <ohms>`` (query);
@@ -42,6 +48,8 @@ _CABLE_ANSWERS = {
     "LOAD": "STAN,LOAD",
     "THROUGH": "THR",
     "FIXTURE": "FIXT",
+    "SERIES": "SER",
+    "REFLECTION": "REFL",
 }
 
 
@@ -77,7 +85,9 @@ class BenchControl(Instrument):
         def set_cables(s: Session, p: list[str]) -> None:
             if not p:
                 raise ScpiError(-109, "cables")
-            what = parse_choice(p[0], ("STANdard", "THRough", "FIXTure"), name="cables")
+            what = parse_choice(
+                p[0], ("STANdard", "THRough", "FIXTure", "SERies", "REFLection"), name="cables"
+            )
             if what == "STANDARD":
                 if len(p) != 2:
                     raise ScpiError(-109 if len(p) < 2 else -108, "STANdard,SHORt|OPEN|LOAD")
@@ -124,6 +134,37 @@ class BenchControl(Instrument):
             return f'"{item}"'
 
         tree.add("OPERator:PLACe", set=place, query=placed)
+
+        def which_mount(text: str) -> str:
+            return parse_choice(text, ("SERies", "REFLection"), name="mount")
+
+        def mount(s: Session, p: list[str]) -> None:
+            if len(p) != 2:
+                raise ScpiError(-109 if len(p) < 2 else -108, "MOUNt SERies|REFLection,<item>")
+            which = which_mount(p[0])
+            text = p[1].strip()
+            if text[:1] in "\"'":
+                item = parse_string(text, name="part")
+                if item not in st.scenario.parts:
+                    raise ScpiError(
+                        -224,
+                        f"no part {item[:40]!r} in scenario {st.scenario.name}; "
+                        "see OPERator:PARTs?",
+                    )
+            else:
+                word = parse_choice(text, ("GAP", "STRAp", "EMPTy", "OPEN", "SHORt"), name="item")
+                item = SHORT if word in ("STRAP", "SHORT") else EMPTY
+            st.mount(which, item)
+
+        def mounted(s: Session, p: list[str]) -> str:
+            item = st.mounted[which_mount(one(p, "mount"))]
+            if item == SHORT:
+                return "STRA"
+            if item == EMPTY:
+                return "GAP"
+            return f'"{item}"'
+
+        tree.add("OPERator:MOUNt", set=mount, query=mounted)
 
         def set_transformer(s: Session, p: list[str]) -> None:
             with st.lock:

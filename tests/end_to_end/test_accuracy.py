@@ -231,7 +231,7 @@ def test_fitted_landmarks_match_the_true_part(outcome, procedure, part, sample, 
         _close(fit.landmarks[key], expected_marks[key], key)
 
 
-INDUCTORS = [c for c in CASES if c[1] == "PL470N"]
+INDUCTORS = [c for c in CASES if c[1] == "PL530N"]
 
 
 @pytest.mark.parametrize(
@@ -318,7 +318,7 @@ fixture: {positions: 8, series_resistor: 499 ohm, isolation_transformer: true}
 calibration: {method: hybrid, crossover: 1 MHz}
 analysis: {noise_floor: -120 dB, mount: fitted}
 parts:
-  - {name: FB120, kind: bead, nominal: 120 ohm, nominal_at: 100 MHz, samples: 1}
+  - {name: FB137, kind: bead, nominal: 137 ohm, nominal_at: 100 MHz, samples: 1}
 steps: [calibrate, mount_short, measure]
 """
 

@@ -1,0 +1,167 @@
+"""The measure step: one part's sample at one bias point, and its live line (landmarks
+from a quick correction, before any fit)."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+from bench.procedure.display import result_line
+from bench.procedure.operators import REPEAT
+from bench.procedure.plan import Step
+from bench.procedure.processing import (
+    averaged,
+    main_value,
+    mount_short_impedance,
+    open_fit,
+    sample_impedance,
+    z_at_nominal,
+)
+from bench.procedure.steps import bias
+from bench.procedure.steps.context import RunContext
+from bench.procedure.steps.sweep import cables_to, decide, select, sweeps
+from bench.runstore import DONE
+
+
+def measure(ctx: RunContext, step: Step) -> None:
+    placement = step.placement
+    assert placement is not None
+    plan = ctx.plan
+    part = plan.part(placement.part)
+    label = f"{placement.part}/{placement.sample}" + (
+        f" at {step.bias_v:g} V" if step.bias_v else ""
+    )
+    where = f"{label}, position {placement.position}"
+    while True:
+        cables_to(ctx, "fixture")
+        if ctx.batch != placement.batch:
+            batch = plan.batches[placement.batch]
+            with ctx.pause():
+                ctx.operator.load_parts(batch)
+            ctx.batch = placement.batch
+            ctx.strapped.difference_update(p.position for p in batch)
+            ctx.emptied.difference_update(p.position for p in batch)
+        select(ctx, placement.position)
+        if step.bias_v:
+            bias.biased(ctx, part, step.bias_v, label, lambda: sweeps(ctx, step, where))
+        else:
+            sweeps(ctx, step, where)
+        result = live_result(ctx, step, part)
+        if not ctx.operator.guided:
+            ctx.display.result(result)
+        if decide(ctx, step, label, result) != REPEAT:
+            break
+
+
+def live_result(ctx: RunContext, step: Step, part: Any) -> str:
+    """Landmarks of the sample just measured, for the live line (no fit yet).
+
+    At 0 V the main landmark is kept, so the same sample's bias points show their change
+    from it (and no verdict, as in the exports).
+    """
+    placement = step.placement
+    assert placement is not None
+    label = placement.part + "/" + placement.sample
+    if step.bias_v:
+        label += f" {step.bias_v:g}V"
+    key = (placement.part, placement.sample)
+    try:
+        f, s = ctx.last_average()
+        marks, data = live_landmarks(ctx, placement, part, f, s)
+    except Exception as exc:  # the live line is information; the fit step decides
+        return f"{label}: no landmarks ({exc})"
+    z_nominal = z_at_nominal(part.spec, data)
+    main = main_value(part.spec, marks, data)
+    reference = None
+    if not step.bias_v:
+        if main is not None:
+            ctx.zero_bias[key] = main
+    else:
+        reference = zero_bias_reference(ctx, step, part)
+    return result_line(
+        label,
+        part.spec.kind,
+        marks,
+        nominal=part.spec.nominal,
+        tolerance=part.spec.tolerance,
+        outside=data.points_outside_window,
+        bias_v=step.bias_v,
+        reference=reference,
+        z_at_nominal=z_nominal,
+        nominal_at_hz=part.spec.nominal_at_hz if part.spec.kind == "bead" else None,
+    )
+
+
+def live_landmarks(
+    ctx: RunContext, placement: Any, part: Any, f: np.ndarray, s: np.ndarray
+) -> tuple[dict[str, Any], Any]:
+    """(landmarks, impedance data) of one sample's raw sweep with the quick correction."""
+    from bench.core.landmarks import landmarks_for
+
+    plan, store = ctx.plan, ctx.store
+    # A quick through-response correction: the live line is a first look; the fit step
+    # applies the run's full calibration.
+    s21n = ctx.correction().quick(f, s)[:, 1, 0]
+    z_short = ctx.quick_shorts.get(placement.position)
+    if z_short is None and store.step_state(f"mount_short/p{placement.position}") == DONE:
+        _, z_short = mount_short_impedance(
+            plan, ctx.correction(), store, placement.position, quick=True
+        )
+        ctx.quick_shorts[placement.position] = z_short
+    data = sample_impedance(plan, plan.analysis, f, s21n, z_short, quick_open(ctx, placement))
+    valid = np.asarray(data.inside_window) & (f >= ctx.loops.get(placement.position, 0.0))
+    kind = "capacitor" if part.spec.kind in ("mlcc", "bulk") else "inductor"
+    return dict(landmarks_for(kind, f, data.z, valid)), data
+
+
+def zero_bias_reference(ctx: RunContext, step: Step, part: Any) -> float | None:
+    """The same sample's main landmark at 0 V: kept from this session, or (after a resume)
+    worked out again from its stored sweep; None when it was not measured."""
+    placement = step.placement
+    assert placement is not None
+    key = (placement.part, placement.sample)
+    if key in ctx.zero_bias:
+        return ctx.zero_bias[key]
+    for other in ctx.plan.steps:
+        there = other.placement
+        if (
+            other.kind == "measure"
+            and not other.bias_v
+            and there is not None
+            and (there.part, there.sample) == key
+            and ctx.store.step_state(other.id) == DONE
+        ):
+            try:
+                f, s = averaged(ctx.store, other.id)
+                marks, data = live_landmarks(ctx, there, part, f, s)
+            except Exception:  # the change is information; without it the line is shorter
+                return None
+            main = main_value(part.spec, marks, data)
+            if main is not None:
+                ctx.zero_bias[key] = main
+            return main
+    return None
+
+
+def quick_open(ctx: RunContext, placement: Any) -> Any:
+    """The pads of ``placement``'s position from its open capture (quick correction), or
+    None when there is none or it was not usable; computed once per position."""
+    pos = placement.position
+    if pos not in ctx.quick_opens:
+        step_id = f"mount_open/p{pos}"
+        if step_id not in {s.id for s in ctx.plan.steps}:
+            return None
+        if ctx.store.step_state(step_id) != DONE:
+            return None
+        opened = open_fit(
+            ctx.plan,
+            ctx.plan.analysis,
+            ctx.correction(),
+            ctx.store,
+            pos,
+            ctx.quick_shorts.get(pos),
+            quick=True,
+        )
+        ctx.quick_opens[pos] = opened.mount_open
+    return ctx.quick_opens[pos]

@@ -1,0 +1,86 @@
+"""The steps after the sweeps: fit every sample, write the exports and the report."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from bench.files import atomic_write_text
+from bench.procedure.display import result_line
+from bench.procedure.plan import Step
+from bench.procedure.processing import build_summary
+from bench.procedure.steps.context import RunContext
+from bench.runstore import DONE, SKIPPED, file_stem
+
+
+def fit(ctx: RunContext, step: Step) -> None:
+    ctx.display.step("fitting models")
+    from bench.exports import main_landmark, zero_bias_values
+
+    summary = build_summary(ctx.store, ctx.plan)
+    references = zero_bias_values(summary)
+    models = ctx.store.root / "models"
+    for sample in summary.samples:
+        if sample.fit is not None:
+            text = json.dumps(sample.fit.to_json(), indent=2, default=_plain)
+            atomic_write_text(models / f"{file_stem(sample.label)}.fit.json", text + "\n")
+            part = ctx.plan.part(sample.part)
+            name, value = main_landmark(part.spec, sample)
+            bead_point = name == "z_at_nominal_hz"
+            ctx.display.result(
+                result_line(
+                    "fit " + sample.label,
+                    part.spec.kind,
+                    dict(sample.fit.landmarks),
+                    nominal=part.spec.nominal,
+                    tolerance=part.spec.tolerance,
+                    bias_v=sample.bias_v,
+                    reference=(
+                        references.get((sample.part, sample.sample)) if sample.bias_v else None
+                    ),
+                    z_at_nominal=value if bead_point else None,
+                    nominal_at_hz=part.spec.nominal_at_hz if bead_point else None,
+                )
+                + f"  [{sample.fit.model}, rms log error "
+                f"{sample.fit.quality.rms_log_error:.3f}]"
+            )
+        else:
+            ctx.display.result(f"fit {sample.label}: no model ({sample.fit_error})")
+    ctx.summary = summary
+
+
+def export(ctx: RunContext, step: Step) -> None:
+    ctx.display.step("writing exports")
+    try:
+        from bench.exports import write_exports
+    except ImportError:
+        ctx.store.mark(step.id, SKIPPED, message="exports are not available in this build")
+        return
+    root = ctx.store.root
+    written = write_exports(root, ctx.need_summary())
+    files = [str(Path(p).relative_to(root)) for paths in written.values() for p in paths]
+    ctx.store.mark(step.id, DONE, files=files)
+
+
+def report(ctx: RunContext, step: Step) -> None:
+    ctx.display.step("writing the report")
+    try:
+        from bench.report import write_report
+    except ImportError:
+        ctx.store.mark(step.id, SKIPPED, message="the report is not available in this build")
+        return
+    path = write_report(ctx.store.root, ctx.need_summary())
+    relative = str(Path(path).relative_to(ctx.store.root))
+    ctx.store.mark(step.id, DONE, files=[relative])
+    ctx.store.update("report", relative)
+
+
+def _plain(value: Any) -> Any:
+    if isinstance(value, (np.floating, np.integer)):
+        return value.item()
+    if isinstance(value, np.ndarray):
+        return value.tolist()
+    return str(value)

@@ -1,0 +1,112 @@
+"""What every swept step does: the hands' set-up, cables, switch, sweeps and the
+operator's choice after a sweep."""
+
+from __future__ import annotations
+
+import time
+from pathlib import Path
+
+import numpy as np
+
+from bench.procedure.operators import REPEAT, SKIP, STOP, OperatorStop
+from bench.procedure.plan import Step
+from bench.procedure.steps.context import RunContext
+from bench.runstore import SKIPPED, file_stem
+
+#: All four: SOLT corrects with all of them, the through response uses S21 and S12, and a
+#: reprocess with another method needs them stored.
+PARAMETERS = ("S11", "S21", "S12", "S22")
+
+
+def setup(ctx: RunContext) -> None:
+    if ctx.set_up:
+        return
+    with ctx.pause():
+        ctx.operator.fit_resistors(ctx.plan.fixture.series_r)
+        ctx.operator.fit_transformer(ctx.plan.fixture.isolation_transformer)
+    ctx.set_up = True
+
+
+def cables_to(ctx: RunContext, target: str) -> None:
+    setup(ctx)
+    if ctx.cables == target:
+        return
+    with ctx.pause():
+        if target == "fixture":
+            ctx.operator.connect_fixture()
+        else:
+            ctx.operator.connect_standard(target)
+    ctx.cables = target
+    ctx.store.log(f"cables: {target}")
+
+
+def select(ctx: RunContext, position: int) -> None:
+    if ctx.inst.switch is not None and ctx.selected != position:
+        ctx.inst.switch.select(position)
+    ctx.selected = position
+
+
+def sweeps(ctx: RunContext, step: Step, label: str) -> None:
+    """Take the step's sweeps (the procedure's average count), writing each at once.
+
+    Sweeps already stored for this step (an interrupted earlier session) are kept and
+    not taken again.
+    """
+    store = ctx.store
+    n = ctx.plan.sweep.averages
+    base = file_stem(step.id)
+    taken: list[tuple[np.ndarray, np.ndarray]] = []
+    for k in range(1, n + 1):
+        name = base if n == 1 else f"{base}_a{k}"
+        if store.adopt_raw(step.id, name):
+            taken.append(store.read_raw(str(store.raw_path(name).relative_to(store.root))))
+            advance(ctx, step)
+            continue
+        ctx.display.step(f"{label} sweep {k}/{n}" if n > 1 else label)
+        t0 = time.perf_counter()
+        data = ctx.inst.analyzer.sweep(PARAMETERS)
+        spent = time.perf_counter() - t0
+        ctx.sweep_seconds += spent
+        ctx.step_sweep_seconds[step.id] = ctx.step_sweep_seconds.get(step.id, 0.0) + spent
+        ctx.sweeps_done += 1
+        # Listed in the manifest at the step's next mark; adopt_raw finds it otherwise.
+        store.write_raw(
+            step.id,
+            name,
+            data.f,
+            data.s,
+            z0=ctx.plan.fixture.z0,
+            comments=(f"raw, analyser correction off, sweep {k} of {n}",),
+            save=False,
+        )
+        taken.append((np.asarray(data.f, dtype=float), np.asarray(data.s, dtype=complex)))
+        advance(ctx, step)
+    ctx.counted.add(step.id)
+    f = taken[0][0]
+    ctx.last = (f, sum(s for _, s in taken) / len(taken))
+
+
+def advance(ctx: RunContext, step: Step) -> None:
+    """One sweep of ``step`` done: moves the progress count unless the step's sweeps were
+    already counted in this session (a repeat at the operator's request)."""
+    if step.id not in ctx.counted:
+        ctx.display.advance()
+
+
+def decide(ctx: RunContext, step: Step, label: str, result: str) -> str:
+    """Guided sessions: ask what next; handles repeat here, returns skip/continue."""
+    while ctx.operator.guided:
+        with ctx.pause():
+            choice = ctx.operator.after_sweep(label, result)
+        if choice == STOP:
+            raise OperatorStop("stopped by the operator")
+        if choice == SKIP:
+            ctx.store.mark(step.id, SKIPPED, message="skipped by the operator")
+            return SKIP
+        if choice != REPEAT:
+            return choice
+        for relative in ctx.store.step_files(step.id):
+            ctx.store.reject_raw(step.id, Path(relative).stem)
+        ctx.store.log(f"{step.id}: sweep repeated at the operator's request")
+        return REPEAT
+    return "continue"
