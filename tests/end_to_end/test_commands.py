@@ -126,8 +126,9 @@ def test_demo_command_writes_the_report(tmp_path):
     manifest = _manifest(root)
     assert manifest["state"] == "complete"
     assert manifest["calibration"]["method"] == "hybrid"
-    # 4 standards + 8 mount shorts + 11 samples, three of them at 3 bias points.
-    assert len(list((root / "raw").glob("*.s2p"))) == 4 + 8 + 11 + 6
+    # 4 standards + 8 mount shorts + 11 samples, three of them at 3 bias points; then an
+    # inductor and a bead on each single mount (its empty and strap captures first).
+    assert len(list((root / "raw").glob("*.s2p"))) == 4 + 8 + 11 + 6 + 2 * (2 + 2)
     for name in ("summary.csv", "report.html", "log", "procedure.yaml"):
         assert (root / name).is_file(), name
     assert list((root / "models").glob("*.lib"))

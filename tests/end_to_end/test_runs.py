@@ -168,8 +168,10 @@ fixture: {positions: 8, series_resistor: 499 ohm, isolation_transformer: true}
 calibration: {method: through}
 analysis: {mount: fitted}
 parts:
-  - {name: PL470N, kind: inductor, nominal: 470n, tolerance: 20 %, samples: 1}
-  - {name: FB120, kind: bead, nominal: 120 ohm, nominal_at: 100 MHz, samples: 1}
+  - {name: PL470N, kind: inductor, nominal: 470n, tolerance: 20 %, samples: 1,
+     method: shunt-through}
+  - {name: FB120, kind: bead, nominal: 120 ohm, nominal_at: 100 MHz, samples: 1,
+     method: shunt-through}
 steps: [calibrate, mount_short, measure]
 """
 
