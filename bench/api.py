@@ -12,7 +12,7 @@ Thin wrappers over the core, with the same behaviour and errors as ``zbench fit`
     fig = api.plot(data, result)                        # |Z| and ESR with the model
     fig.savefig("mlcc_22u.png")
 
-``api.fit("examples/bead.z1p", series_r=499)`` does all of it from a path. Values may be
+``api.fit("examples/bead_600r.s1p", series_r=499)`` does all of it from a path. Values may be
 numbers in SI units or strings with SI prefixes (``"499"``, ``"100 MHz"``, ``"2k"``).
 Bad input raises :class:`bench.errors.InputError` with the file and the fix; a fit that
 cannot be made raises :class:`bench.errors.FitError`.
@@ -23,32 +23,43 @@ from __future__ import annotations
 import os
 from datetime import datetime, timezone
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
-from matplotlib.figure import Figure
 
 from bench import __version__
-from bench.core.conversions import shunt_through_s21
-from bench.core.fixture import Mount
-from bench.core.impedance import ImpedanceData, impedance_from_shunt_through
+from bench.core.conversions import reflection_s11, series_through_s21, shunt_through_s21
+from bench.core.fixture import Mount, remove_fixture
+from bench.core.impedance import (
+    ImpedanceData,
+    impedance_as_given,
+    impedance_from_reflection,
+    impedance_from_series_through,
+    impedance_from_shunt_through,
+)
+from bench.core.model_registry import MODEL_KINDS as _REGISTRY_KINDS
+from bench.core.model_registry import MODEL_NAMES as _REGISTRY_NAMES
+from bench.core.window import check_method
 from bench.errors import FitError, InputError
 from bench.files import atomic_write_text
-from bench.touchstone import MIN_POINTS, Measurement, interpolate_to, load_measurement
+from bench.touchstone import (
+    MIN_POINTS,
+    Measurement,
+    check_method_for_ports,
+    interpolate_to,
+    load_measurement,
+)
 from bench.units import QuantityError, parse_quantity
+
+if TYPE_CHECKING:  # matplotlib loads only when a plot is drawn
+    from matplotlib.figure import Figure
 
 PathLike = str | os.PathLike[str]
 
-#: Family of parts each model describes (the registry's ``kind`` wins where it differs);
+#: Family of parts each model describes, from the one registry of model families;
 #: ``auto`` chooses among those of the data's kind.
-MODEL_KINDS: dict[str, str] = {
-    "series-rlc": "capacitor",
-    "two-branch": "capacitor",
-    "ladder": "capacitor",
-    "inductor": "inductor",
-    "bead": "inductor",
-}
-MODEL_NAMES = (*MODEL_KINDS, "auto")
+MODEL_KINDS: dict[str, str] = dict(_REGISTRY_KINDS)
+MODEL_NAMES = _REGISTRY_NAMES
 
 
 def _quantity(value: Any, unit: str, name: str) -> float | None:
@@ -60,18 +71,24 @@ def _quantity(value: Any, unit: str, name: str) -> float | None:
         raise InputError(str(exc), hint=f"write {name} like '499', '2k' or '100 MHz'") from exc
 
 
-def load(path: PathLike, *, series_r: float | str = 0.0) -> Measurement:
-    """Load a 2-port shunt-through Touchstone (S) or a 1-port Touchstone holding Z.
+def load(path: PathLike, *, series_r: float | str = 0.0, method: str | None = None) -> Measurement:
+    """Load a measurement: Touchstone (2-port S, 1-port S or Z) or an impedance CSV.
 
     ``series_r`` (Ω, ≥ 0) is the resistor in series at each port of a 2-port
-    measurement; it sets ``Ze = z0 + series_r`` in ``Z = (Ze/2)·S21/(1 − S21)``.
+    measurement; it sets ``Ze = z0 + series_r``. ``method`` (``shunt-through``,
+    ``series-through``, ``reflection``) says how it was measured; None infers it
+    (:func:`bench.touchstone.load_measurement`).
     """
     r = _quantity(series_r, "ohm", "series resistance") or 0.0
-    return load_measurement(Path(path), series_r=r)
+    return load_measurement(Path(path), series_r=r, method=_method(method))
+
+
+def _method(method: str | None) -> str | None:
+    return None if method is None else check_method(method)
 
 
 def _mount_impedance(
-    mount: Any, f: np.ndarray, series_r: float
+    mount: Any, f: np.ndarray, series_r: float, method: str | None = None
 ) -> tuple[np.ndarray | Mount | None, str | None]:
     """The shorted mount on the grid ``f``, and the file it came from (if any)."""
     if mount is None:
@@ -79,7 +96,7 @@ def _mount_impedance(
     if isinstance(mount, Mount):
         return mount, None
     if isinstance(mount, (str, os.PathLike)):
-        mount = load_measurement(Path(mount), series_r=series_r)
+        mount = load_measurement(Path(mount), series_r=series_r, method=method)
     if isinstance(mount, (Measurement, ImpedanceData)):
         name = str(getattr(mount, "path", "mount short"))
         mf = np.asarray(mount.f, dtype=float)
@@ -106,21 +123,27 @@ def impedance(
     noise_floor_db: float = -100.0,
     trace_noise_db: float | None = None,
     tolerance: float = 0.1,
+    method: str | None = None,
+    reflection_uncertainty: float | None = None,
 ) -> ImpedanceData:
     """Fixture-removed impedance with its window and per-point uncertainty.
 
-    ``measurement`` is a :class:`Measurement` or a path. ``series_r`` (Ω) overrides the
-    one the measurement was loaded with; for a Z file it only sets the set-up whose
-    window the points are judged against. ``mount`` is a shorted-mount measurement (a
-    path or a :class:`Measurement`, interpolated onto the grid; never extrapolated),
-    a fitted :class:`bench.core.fixture.Mount`, or an array on the grid (Ω).
-    ``fmin``/``fmax`` (Hz) keep only the points between them. ``noise_floor_db``
-    (dB relative to the through), ``trace_noise_db`` (dB RMS) and ``tolerance``
-    (fraction) describe the set-up as in :func:`bench.core.window.measurable_window`.
+    ``measurement`` is a :class:`Measurement` or a path. ``method`` overrides the one the
+    measurement was loaded with (a one-port S file is always a reflection); an impedance
+    file without a method is taken as given (no window cut, weights from its own
+    scatter), with one it is judged against that method's window. ``series_r`` (Ω)
+    overrides the one the measurement was loaded with. ``mount`` is a shorted-mount
+    measurement (a path or a :class:`Measurement`, interpolated onto the grid; never
+    extrapolated), a fitted :class:`bench.core.fixture.Mount`, or an array on the grid
+    (Ω). ``fmin``/``fmax`` (Hz) keep only the points between them. ``noise_floor_db``
+    (dB relative to the through), ``trace_noise_db`` (dB RMS), ``tolerance`` (fraction)
+    and ``reflection_uncertainty`` (|dΓ|) describe the set-up as in
+    :func:`bench.core.window.measurable_window`.
     """
     r = _quantity(series_r, "ohm", "series resistance")
+    chosen = _method(method)
     if not isinstance(measurement, Measurement):
-        measurement = load(measurement, series_r=r or 0.0)
+        measurement = load(measurement, series_r=r or 0.0, method=chosen)
     if r is None:
         r = measurement.series_r
     if r < 0:
@@ -128,21 +151,45 @@ def impedance(
             f"series resistance {r:g} Ω is negative",
             hint="give the resistor at each port, e.g. 499",
         )
+    name = str(measurement.path)
     f = np.asarray(measurement.f, dtype=float)
-    if measurement.s is not None:
-        s21n = np.asarray(measurement.s[:, 1, 0], dtype=complex)
-    else:
-        # A Z file: the transmission this Z would give on the set-up, so the window and
-        # uncertainty are judged as for a measurement made there.
-        s21n = shunt_through_s21(measurement.z, measurement.z0, r)
-    short, _ = _mount_impedance(mount, f, r)
+    if measurement.kind == "s1p":
+        check_method_for_ports(name, 1, chosen)
+    chosen = chosen or measurement.method
+    if chosen == "reflection" and r:
+        raise InputError(
+            "port series resistors do not apply to a reflection",
+            path=name,
+            hint="leave out --series-r for a one-port reflection",
+        )
+    short, _ = _mount_impedance(mount, f, r, chosen)
     options: dict[str, Any] = {"noise_floor_db": noise_floor_db, "tolerance": tolerance}
     if trace_noise_db is not None:
         options["trace_noise_db"] = trace_noise_db
-    data = impedance_from_shunt_through(
-        f, s21n, z0=measurement.z0, series_r=r, mount_short=short, **options
-    )
-    return crop(data, fmin=fmin, fmax=fmax, name=str(measurement.path))
+    z0 = measurement.z0
+    if measurement.s is not None:
+        s = np.asarray(measurement.s, dtype=complex)
+        s11, s21 = s[:, 0, 0], (s[:, 1, 0] if s.shape[1] > 1 else None)
+    elif chosen is None:
+        z = measurement.z if short is None else remove_fixture(measurement.z, short, f=f)
+        return crop(impedance_as_given(f, z), fmin=fmin, fmax=fmax, name=name)
+    else:
+        # An impedance file with a stated method: the raw quantity this Z gives on that
+        # set-up, so the window and uncertainty are judged as for a measurement made there.
+        s11 = reflection_s11(measurement.z, z0)
+        to_s21 = series_through_s21 if chosen == "series-through" else shunt_through_s21
+        s21 = to_s21(measurement.z, z0, r)
+    if chosen == "reflection":
+        if reflection_uncertainty is not None:
+            options["reflection_uncertainty"] = reflection_uncertainty
+        data = impedance_from_reflection(f, s11, z0=z0, mount_short=short, **options)
+    elif chosen == "series-through":
+        data = impedance_from_series_through(
+            f, s21, z0=z0, series_r=r, mount_short=short, **options
+        )
+    else:
+        data = impedance_from_shunt_through(f, s21, z0=z0, series_r=r, mount_short=short, **options)
+    return crop(data, fmin=fmin, fmax=fmax, name=name)
 
 
 def crop(
@@ -189,11 +236,7 @@ def crop(
 
 def model_kinds() -> dict[str, str]:
     """``{model name: "capacitor" | "inductor"}`` from the core's model registry."""
-    try:
-        from bench.core.models import FAMILIES
-    except ImportError:  # registry not importable: the documented names above
-        return dict(MODEL_KINDS)
-    return {name: family.kind for name, family in FAMILIES.items()}
+    return dict(MODEL_KINDS)
 
 
 def check_model_name(model: str, *, name: str | None = None) -> None:

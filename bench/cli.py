@@ -34,6 +34,12 @@ class LazyGroup(click.Group):
     def list_commands(self, ctx: click.Context) -> list[str]:
         return list(COMMANDS)
 
+    def format_commands(self, ctx: click.Context, formatter: click.HelpFormatter) -> None:
+        """The command list of ``zbench --help``, from the table: nothing is imported."""
+        rows = [(name, help_text) for name, (_, help_text) in COMMANDS.items()]
+        with formatter.section("Commands"):
+            formatter.write_dl(rows)
+
     def get_command(self, ctx: click.Context, cmd_name: str) -> click.Command | None:
         if cmd_name not in COMMANDS:
             return None

@@ -7,7 +7,7 @@
   main landmark is the median of the part's samples (at the part's lowest bias point);
 - ``models/<part>_bias.csv``: capacitance versus DC bias, for parts measured at several
   bias points;
-- ``corrected/<label>.z1p``: the fixture-removed impedance as a one-port Touchstone Z
+- ``corrected/<label>.s1p``: the fixture-removed impedance as a one-port Touchstone Z
   file, and ``corrected/<label>.s2p``: the calibrated S-parameters when they were kept;
 - ``summary.csv``: one row per sample and bias point (landmarks, fit quality, points
   outside the window, pass/fail against the procedure's nominal value and tolerance);
@@ -472,12 +472,16 @@ def run_series_r(summary: RunSummary) -> float | None:
 
 
 def _write_touchstone(run_dir: Path, sample: SampleResult, series_r: float | None) -> list[Path]:
-    from bench.touchstone import write_touchstone_s, write_touchstone_z
+    from bench.core.window import METHODS
+    from bench.touchstone import method_comment, write_touchstone_s, write_touchstone_z
 
     stem = safe_filename(sample.label)
-    # The set-up goes with the data: ``zbench fit`` reads this line, so a re-fit of an
-    # S file from a run with series resistors computes Z with them.
+    # The set-up goes with the data: ``zbench fit`` reads these lines, so a re-fit of an
+    # S file from a run with series resistors computes Z with them, by the same method.
     setup = [] if series_r is None else [f"port series resistors: {series_r:g} ohm each"]
+    method = getattr(getattr(sample.data, "window", None), "method", None)
+    if method in METHODS:
+        setup.append(method_comment(method))
     comments = [
         f"zbench: {sample.part} sample {sample.sample}, bias {sample.bias_v:g} V",
         "fixture-removed impedance (ohm)",
@@ -489,7 +493,7 @@ def _write_touchstone(run_dir: Path, sample: SampleResult, series_r: float | Non
     if not finite.all():
         # Touchstone has no "missing" value: keep the finite points and say so.
         comments.append(f"{int((~finite).sum())} points with a non-finite impedance left out")
-    z_path = run_dir / "corrected" / f"{stem}.z1p"
+    z_path = run_dir / "corrected" / f"{stem}.s1p"
     paths = (
         [Path(write_touchstone_z(z_path, f[finite], z[finite], comments))] if finite.any() else []
     )

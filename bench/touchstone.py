@@ -1,82 +1,411 @@
 """Reading stored measurements and writing Touchstone S and Z files (scikit-rf).
 
-A measurement zbench can fit is either a 2-port Touchstone of a calibrated
-shunt-through measurement (S-parameters) or a 1-port Touchstone holding the part's
-impedance Z (DESIGN §3). Every bad input raises :class:`bench.errors.InputError`
-naming the file and the fix. Files are written through
+A measurement zbench can fit (docs/design.md §9) is a Touchstone file:
+
+* a 2-port S file of a shunt-through or series-through measurement (the method from
+  the caller, else from the file's comments, else shunt-through);
+* a 1-port S file: a reflection (``S11``);
+* a 1-port Z (or version-2 Y) file: the part's impedance as given;
+
+or an impedance analyser's CSV (:mod:`bench.impedance_csv`). Before scikit-rf parses a
+file, :func:`scan_touchstone` reads it once, within a size bound, and refuses what
+scikit-rf would misread or accept silently: rows that do not match the port count of
+the extension, an option line with a reference impedance that is not positive, a
+version-2 ``[Number of Frequencies]`` that disagrees with the rows, text where a number
+belongs. A file without an option line is read with the Touchstone defaults
+(``GHz S MA R 50``) and a warning saying so. Every bad input raises
+:class:`bench.errors.InputError` naming the file and the fix. Files are written through
 :func:`bench.files.atomic_write_text`, so a reader never sees half a file.
 
-Notes on the format (REFERENCES §6): in version 1.x files Z data is normalised to
-the option line's R and scikit-rf reads and writes that correctly; version-1 Y, G
-and H files are read wrongly by scikit-rf 2.2, so they are refused here; R is
-written as an integer in 1.x files.
+Notes on the format (docs/references.md §6): in version 1.x files Z data is normalised to
+the option line's R and scikit-rf reads and writes that correctly; version-1 Y, G and H
+files are read wrongly by scikit-rf 2.2, so they are refused here; R is written as an
+integer in 1.x files.
 """
 
 from __future__ import annotations
 
 import math
+import os
 import re
+import stat
 import warnings
 from collections.abc import Iterable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Literal
 
 import numpy as np
 import skrf
 from numpy.typing import ArrayLike, NDArray
-from skrf.io.touchstone import Touchstone
 
-from bench.core.conversions import shunt_through_z
+from bench.core.conversions import reflection_z, series_through_z, shunt_through_z
 from bench.errors import InputError
 from bench.files import atomic_write_text
 
 #: Fewest frequency points a fit or a mount removal can work with.
 MIN_POINTS = 10
+#: Largest measurement file read (bytes): about a million one-port points.
+MAX_FILE_BYTES = 64 * 1024 * 1024
+#: Most frequency points a file may hold: reading costs time and memory in proportion
+#: (scikit-rf parses each row in Python), so a longer file is refused before it is read.
+MAX_POINTS = 200_001
+#: Bytes of a file allowed per point (a 2-port row of full-precision numbers is under 200).
+_BYTES_PER_POINT = 256
+#: Largest |S| accepted: a passive part's corrected S-parameters stay near or below 1;
+#: raw, uncorrected ratios may exceed it a little, never by orders of magnitude.
+MAX_ABS_S = 100.0
+#: Largest |Z| (Ω) accepted in an impedance file.
+MAX_ABS_Z = 1e12
+#: The measuring methods a 2-port S file may hold.
+TWO_PORT_METHODS = ("shunt-through", "series-through")
+_METHOD_COMMENT = re.compile(
+    r"measur\w*\s+method\s*[:=]\s*(shunt-through|series-through|reflection)", re.I
+)
+_UNITS = {"hz": 1.0, "khz": 1e3, "mhz": 1e6, "ghz": 1e9}
+_FORMATS = ("db", "ma", "ri")
+_PARAMETERS = ("s", "y", "z", "h", "g")
+_EXTENSION = re.compile(r"\.[sS](\d+)[pP]$")
 
 
 @dataclass(frozen=True, eq=False)
 class Measurement:
     """A stored measurement ready for the core.
 
-    ``kind`` is ``"s2p"`` (2-port S of a shunt-through measurement, ``s`` of shape
-    (nf, 2, 2)) or ``"z1p"`` (1-port Z file, ``s`` None). ``z`` (Ω, shape (nf,)) is the
-    part's impedance: read from a Z file, or computed from S21 of a 2-port file by the
-    shunt-through formula with ``series_r``. ``f`` in Hz, strictly increasing.
-    ``z0`` is the reference impedance of the file (Ω).
+    ``kind`` is ``"s2p"`` (2-port S, ``s`` of shape (nf, 2, 2)), ``"s1p"`` (1-port S, a
+    reflection, ``s`` of shape (nf, 1, 1)) or ``"impedance"`` (a 1-port Z file or an
+    impedance CSV, ``s`` None). ``method`` is the measuring method (``"shunt-through"``,
+    ``"series-through"``, ``"reflection"``) or None for an impedance taken as given, and
+    ``method_source`` where it came from (``"option"``, ``"comments"``, ``"file"``,
+    ``"default"``). ``z`` (Ω, shape (nf,)) is the part's impedance by that method (with
+    ``series_r`` for the two-port ones). ``f`` in Hz, strictly increasing; ``z0`` the
+    file's reference impedance (Ω); ``warnings`` what the reader wants a person to know.
     """
 
     path: Path
     f: NDArray[np.float64]
-    kind: Literal["s2p", "z1p"]
+    kind: Literal["s2p", "s1p", "impedance"]
     s: NDArray[np.complex128] | None
     z: NDArray[np.complex128]
     z0: float
     series_r: float = 0.0
     comments: str = ""
+    method: str | None = None
+    method_source: str = "default"
+    warnings: tuple[str, ...] = field(default_factory=tuple)
 
     @property
     def s21(self) -> NDArray[np.complex128] | None:
-        """S21 of a 2-port measurement, None for a Z file."""
-        return None if self.s is None else self.s[:, 1, 0]
+        """S21 of a 2-port measurement, None otherwise."""
+        return None if self.s is None or self.s.shape[1] < 2 else self.s[:, 1, 0]
 
 
-def _read(path: Path) -> tuple[Touchstone, skrf.Network]:
+def method_comment(method: str) -> str:
+    """The comment line zbench writes so a reader infers the method: ``measurement method: X``."""
+    return f"measurement method: {method}"
+
+
+def method_from_comments(comments: str) -> str | None:
+    """The measuring method a file's comments state (``measurement method: X``), or None."""
+    match = _METHOD_COMMENT.search(comments or "")
+    return match.group(1).lower() if match else None
+
+
+def check_regular_file(path: Path, *, kinds: str = "a .s2p, .s1p or .csv file") -> None:
+    """Refuse a missing path, a folder, a device or a FIFO, and a file over the size bound.
+
+    Only ``stat`` is used, so a FIFO or a device is never opened (and cannot block).
+    """
     name = str(path)
-    if not path.exists():
+    try:
+        info = os.stat(path)
+    except FileNotFoundError:
         raise InputError(
-            "file not found", path=name, hint="check the path; give a .s2p or .s1p file"
-        )
-    if not path.is_file():
+            "file not found", path=name, hint=f"check the path; give {kinds}"
+        ) from None
+    except OSError as exc:
         raise InputError(
-            "is a folder, not a measurement file", path=name, hint="give a .s2p or .s1p file"
+            f"cannot be read ({exc.strerror or exc})",
+            path=name,
+            hint="check the path and its permissions",
+        ) from exc
+    if stat.S_ISDIR(info.st_mode):
+        raise InputError("is a folder, not a measurement file", path=name, hint=f"give {kinds}")
+    if not stat.S_ISREG(info.st_mode):
+        raise InputError(
+            "is not a regular file (a pipe, socket or device); zbench reads measurement files only",
+            path=name,
+            hint=f"save the data to a file first and give {kinds}",
         )
+    if info.st_size > MAX_FILE_BYTES:
+        raise InputError(
+            f"is {info.st_size / 2**20:.0f} MiB, above the {MAX_FILE_BYTES / 2**20:.0f} MiB "
+            "zbench reads",
+            path=name,
+            hint="export fewer points (a log sweep of a few thousand points is plenty) or "
+            "split the band into several files and join them with --join",
+        )
+    _check_size(path)
+
+
+def _check_size(path: Path) -> None:
+    """Refuse, before reading it, a file with more than :data:`MAX_POINTS` data rows."""
+    size = path.stat().st_size
+    if size <= MAX_POINTS * 6:
+        return  # too small to hold that many rows
+    rows = 0
+    with path.open("rb") as stream:
+        if size > MAX_POINTS * _BYTES_PER_POINT:
+            rows = -1  # too large to read at all
+        else:
+            rows = sum(1 for line in stream if line.lstrip()[:1] not in (b"!", b"#", b"[", b""))
+    if rows < 0 or rows > MAX_POINTS:
+        held = f"{size / 1e6:.0f} MB" if rows < 0 else f"{rows} data rows"
+        raise InputError(
+            f"holds {held}; zbench reads files of at most {MAX_POINTS} frequency points",
+            path=str(path),
+            hint="export the sweep with fewer points (a log sweep of 801 to 1601 points "
+            "resolves every landmark), or keep every n-th row of the file",
+        )
+
+
+@dataclass(frozen=True)
+class Scan:
+    """What :func:`scan_touchstone` found: version, option line, ports and rows."""
+
+    version: str
+    unit: str
+    parameter: str
+    data_format: str
+    reference: float
+    has_option_line: bool
+    ports: int
+    rows: int
+    frequencies: NDArray[np.float64]
+    declared_frequencies: int | None
+    all_zero: bool
+    largest: float
+
+
+def _bad(name: str, line: int | None, message: str, hint: str) -> InputError:
+    where = f"{name}:{line}" if line is not None else name
+    return InputError(message, path=where, hint=hint)
+
+
+def _option_line(name: str, number: int, text: str) -> tuple[str, str, str, float]:
+    tokens = text[1:].split()
+    unit, parameter, data_format, reference = "ghz", "s", "ma", 50.0
+    i = 0
+    while i < len(tokens):
+        token = tokens[i].lower()
+        if token in _UNITS:
+            unit = token
+        elif token in _PARAMETERS:
+            parameter = token
+        elif token in _FORMATS:
+            data_format = token
+        elif token == "r":
+            if i + 1 >= len(tokens):
+                raise _bad(
+                    name, number, "option line: R has no value", "write e.g. '# Hz S RI R 50'"
+                )
+            try:
+                reference = float(tokens[i + 1])
+            except ValueError:
+                raise _bad(
+                    name,
+                    number,
+                    f"option line: R {tokens[i + 1]!r} is not a number",
+                    "write the reference impedance in ohms, e.g. 'R 50'",
+                ) from None
+            if not (math.isfinite(reference) and reference > 0):
+                raise _bad(
+                    name,
+                    number,
+                    f"option line: reference impedance R {tokens[i + 1]} must be a positive "
+                    "number of ohms",
+                    "write the reference the data were measured against, e.g. 'R 50'",
+                )
+            i += 1
+        else:
+            raise _bad(
+                name,
+                number,
+                f"option line: {tokens[i]!r} is not a Touchstone option",
+                "write '# <Hz|kHz|MHz|GHz> <S|Z|Y> <RI|MA|DB> R <ohms>', e.g. '# Hz S RI R 50'",
+            )
+        i += 1
+    return unit, parameter, data_format, reference
+
+
+def scan_touchstone(path: Path) -> Scan:
+    """Read a Touchstone file's structure once, refusing what would be misread.
+
+    Checks: the option line; every network-data row has ``1 + 2n²`` numbers for the
+    file's ``n`` ports (from ``[Number of Ports]`` in version 2, else the extension
+    ``.sNp``, else the first row's width); numbers are numbers; a version-2
+    ``[Number of Frequencies]`` equals the rows. Raises :class:`InputError` with the line.
+    """
+    name = str(path)
+    check_regular_file(path)
+    text = path.read_bytes().decode("latin-1")
+    match = _EXTENSION.search(path.name)
+    ports = int(match.group(1)) if match else None
+    version = "1.0"
+    option: tuple[str, str, str, float] | None = None
+    declared: int | None = None
+    matrix = "full"
+    in_noise = False
+    widths: set[int] = set()
+    freqs: list[float] = []
+    row_lines: list[int] = []
+    largest = 0.0
+    all_zero = True
+    pending: list[str] = []
+    pending_line = 0
+    for number, raw in enumerate(text.splitlines(), start=1):
+        line = raw.split("!", 1)[0].strip()
+        if not line:
+            continue
+        if line.startswith("#"):
+            if option is None:
+                option = _option_line(name, number, line)
+            continue
+        if line.startswith("["):
+            keyword, _, rest = line[1:].partition("]")
+            key = keyword.strip().lower()
+            value = rest.strip()
+            if key == "version":
+                version = value or "2.0"
+            elif key == "number of ports":
+                try:
+                    ports = int(value)
+                except ValueError:
+                    raise _bad(
+                        name,
+                        number,
+                        f"[Number of Ports] {value!r} is not a whole number",
+                        "write e.g. '[Number of Ports] 2'",
+                    ) from None
+            elif key == "number of frequencies":
+                try:
+                    declared = int(value)
+                except ValueError:
+                    raise _bad(
+                        name,
+                        number,
+                        f"[Number of Frequencies] {value!r} is not a whole number",
+                        "write the number of data rows",
+                    ) from None
+            elif key == "matrix format":
+                matrix = value.lower()
+            elif key == "noise data":
+                in_noise = True
+            elif key == "end":
+                break
+            continue
+        if in_noise:
+            continue
+        tokens = line.split()
+        try:
+            values = [float(t) for t in tokens]
+        except ValueError:
+            bad = next(t for t in tokens if not _is_number(t))
+            raise _bad(
+                name,
+                number,
+                f"{bad!r} is not a number",
+                "not a readable Touchstone file there: give an option line such as "
+                "'# Hz S RI R 50', then rows of numbers only; comment out other text with '!'",
+            ) from None
+        if ports is None:
+            ports = {3: 1, 9: 2}.get(len(values), 0)
+            if not ports:
+                raise _bad(
+                    name,
+                    number,
+                    f"the first data row has {len(values)} numbers, not 3 "
+                    "(one port) or 9 (two ports)",
+                    "name the file .s1p or .s2p for its port count and check the rows",
+                )
+        n = ports
+        width = 1 + (n * (n + 1) if matrix in ("lower", "upper") else 2 * n * n)
+        if n <= 2:
+            if len(values) != width:
+                raise _bad(
+                    name,
+                    number,
+                    f"has {len(values)} numbers in a row where a {n}-port file has {width} "
+                    f"(frequency and {width - 1} values)",
+                    "check the port count: a one-port file is .s1p (3 numbers a row), a "
+                    "two-port file .s2p (9 numbers a row)",
+                )
+            row = values
+        else:
+            # Larger networks wrap rows; count numbers only (they are refused later).
+            if not pending:
+                pending_line = number
+            pending.extend(tokens)
+            if len(pending) < width:
+                continue
+            row = [float(t) for t in pending[:width]]
+            pending = pending[width:]
+            number = pending_line
+        widths.add(len(row))
+        freqs.append(row[0])
+        row_lines.append(number)
+        data = np.abs(np.asarray(row[1:]))
+        if data.size:
+            finite = data[np.isfinite(data)]  # NaN and inf get their own message later
+            largest = max(largest, float(np.max(finite)) if finite.size else 0.0)
+            all_zero = all_zero and not np.any(data)
+    if not freqs:
+        raise _bad(
+            name,
+            None,
+            "holds no network data rows",
+            "give a Touchstone file: an option line such as '# Hz S RI R 50', then one line "
+            "of numbers per frequency",
+        )
+    if version.startswith("2") and declared is not None and declared != len(freqs):
+        raise _bad(
+            name,
+            None,
+            f"[Number of Frequencies] says {declared} but the file has {len(freqs)} data rows",
+            "correct [Number of Frequencies] or restore the missing rows",
+        )
+    unit, parameter, data_format, reference = option or ("ghz", "s", "ma", 50.0)
+    return Scan(
+        version=version,
+        unit=unit,
+        parameter=parameter,
+        data_format=data_format,
+        reference=reference,
+        has_option_line=option is not None,
+        ports=int(ports or 0),
+        rows=len(freqs),
+        frequencies=np.asarray(freqs, dtype=float) * _UNITS[unit],
+        declared_frequencies=declared,
+        all_zero=all_zero,
+        largest=largest,
+    )
+
+
+def _is_number(token: str) -> bool:
+    try:
+        float(token)
+    except ValueError:
+        return False
+    return True
+
+
+def _read(path: Path) -> skrf.Network:
+    name = str(path)
     try:
         with warnings.catch_warnings():
             # scikit-rf warns (e.g. about frequency order) where we raise our own,
             # clearer errors below; its warnings must not escape as such.
             warnings.simplefilter("ignore")
-            touchstone = Touchstone(name)
             network = skrf.Network(name)
     except Exception as exc:  # scikit-rf raises several types for unreadable files
         raise InputError(
@@ -85,81 +414,10 @@ def _read(path: Path) -> tuple[Touchstone, skrf.Network]:
             hint="give a Touchstone file: extension .s1p or .s2p, an option line such as "
             "'# Hz S RI R 50', then one line of numbers per frequency",
         ) from exc
-    return touchstone, network
+    return network
 
 
-def _data_row_frequencies(path: Path, ports: int) -> NDArray[np.float64]:
-    """First number of each network-data row (file units) of a 1- or 2-port file."""
-    width = 1 + 2 * ports * ports
-    out = []
-    in_noise = False
-    for raw in path.read_text(encoding="latin-1").splitlines():
-        line = raw.split("!", 1)[0].strip()
-        if not line or line.startswith("#"):
-            continue
-        if line.startswith("["):
-            in_noise = in_noise or line.lower().startswith("[noise data]")
-            continue
-        tokens = line.split()
-        if in_noise or len(tokens) != width:
-            continue
-        try:
-            out.append(float(tokens[0]))
-        except ValueError:
-            continue
-    return np.asarray(out, dtype=float)
-
-
-def load_measurement(path: str | Path, *, series_r: float = 0.0) -> Measurement:
-    """Load a 2-port shunt-through S file or a 1-port Z file for fitting.
-
-    ``series_r`` (Ω, >= 0) is the series resistor at each port of a 2-port
-    measurement, used to compute Z from its through-normalised S21; it is ignored for
-    Z files (their Z is already the part's). Raises :class:`InputError` for a missing
-    file, a file that is not Touchstone, a wrong port count (3 or more ports, or a
-    1-port holding S, Y, G or H instead of Z), v1 Y/G/H 2-port data, frequencies not
-    strictly increasing, NaN or infinite values, or fewer than :data:`MIN_POINTS` points.
-    """
-    p = Path(path)
-    name = str(p)
-    if not (math.isfinite(series_r) and series_r >= 0):
-        raise InputError(
-            f"series resistance {series_r!r} is not a resistance >= 0 ohms",
-            path=name,
-            hint="give --series-r as the resistor at each port, e.g. 0 or 499",
-        )
-    touchstone, network = _read(p)
-    ports = network.nports
-    parameter = str(getattr(touchstone, "parameter", "s")).lower()
-    version = str(getattr(touchstone, "version", "1.0"))
-    if ports >= 3:
-        raise InputError(
-            f"has {ports} ports; zbench reads a 2-port shunt-through measurement or a "
-            f"1-port file holding Z",
-            path=name,
-            hint="export ports 1 and 2 of the shunt-through measurement as a .s2p file",
-        )
-    if ports == 1 and parameter != "z":
-        raise InputError(
-            f"is a 1-port file holding {parameter.upper()}, but a 1-port measurement "
-            f"must hold the part's impedance Z",
-            path=name,
-            hint="write the part's impedance as '# Hz Z RI R 50', or give the 2-port "
-            "shunt-through .s2p file (a 1-port S11 is a reflection measurement, not this one)",
-        )
-    if ports == 2 and parameter in ("y", "g", "h") and version.startswith("1"):
-        raise InputError(
-            f"holds version-1 {parameter.upper()} data, which scikit-rf does not read "
-            f"correctly (it scales it by R)",
-            path=name,
-            hint="export the measurement as S-parameters ('# Hz S RI R 50') or as Touchstone 2.0",
-        )
-    f = np.asarray(network.f, dtype=float)
-    # scikit-rf takes a fall in frequency as the start of noise data and silently
-    # stops there, so the frequency order is checked on the file's own data rows.
-    listed = _data_row_frequencies(p, ports) * float(getattr(touchstone, "frequency_mult", 1.0))
-    if listed.size > f.size:
-        f = listed
+def _check_grid(name: str, f: NDArray[np.float64]) -> None:
     if f.size < MIN_POINTS:
         raise InputError(
             f"has {f.size} frequency points; at least {MIN_POINTS} are needed",
@@ -175,9 +433,94 @@ def load_measurement(path: str | Path, *, series_r: float = 0.0) -> Measurement:
             path=name,
             hint="sort the data by frequency and remove repeated frequencies",
         )
-    if f.size != network.f.size:
+
+
+def check_method_for_ports(name: str, ports: int, method: str | None) -> None:
+    """Refuse a method the file cannot hold (a two-port method on a one-port file)."""
+    if method is None:
+        return
+    if ports == 1 and method != "reflection":
         raise InputError(
-            f"has {f.size} data rows but only {network.f.size} could be read as network data",
+            f"is a one-port file, so it holds a reflection, not a {method} measurement",
+            path=name,
+            hint="give --method reflection (or leave it out), or the two-port .s2p file",
+        )
+
+
+def load_measurement(
+    path: str | Path, *, series_r: float = 0.0, method: str | None = None
+) -> Measurement:
+    """Load a stored measurement for fitting (see the module doc for what is read how).
+
+    ``series_r`` (Ω, >= 0) is the series resistor at each port of a 2-port measurement,
+    used to compute Z from its through-normalised S21. ``method`` (``"shunt-through"``,
+    ``"series-through"``, ``"reflection"`` or None) says how the file was measured; when
+    None it is inferred (one-port S: reflection; two-port S: the comments' statement,
+    else shunt-through; Z file: none, the impedance is taken as given). A ``.csv`` is
+    read by :func:`bench.impedance_csv.load_impedance_csv`. Raises :class:`InputError`
+    for everything a person must fix, naming the file and the fix.
+    """
+    p = Path(path)
+    name = str(p)
+    if not (math.isfinite(series_r) and series_r >= 0):
+        raise InputError(
+            f"series resistance {series_r!r} is not a resistance >= 0 ohms",
+            path=name,
+            hint="give --series-r as the resistor at each port, e.g. 0 or 499",
+        )
+    if p.suffix.lower() in (".csv", ".tsv"):
+        from bench.impedance_csv import load_impedance_csv
+
+        check_regular_file(p)
+        return load_impedance_csv(p, method=method)
+    scan = scan_touchstone(p)
+    notes: list[str] = []
+    if not scan.has_option_line:
+        notes.append(
+            "has no option line ('# ...'), so it is read with the Touchstone defaults: "
+            "frequencies in GHz, S-parameters as magnitude and angle, R 50"
+        )
+    ports, parameter, version = scan.ports, scan.parameter, scan.version
+    if ports >= 3 or ports < 1:
+        raise InputError(
+            f"has {ports} ports; zbench reads a 2-port (shunt- or series-through) "
+            f"measurement or a 1-port reflection or impedance file",
+            path=name,
+            hint="export ports 1 and 2 of the measurement as a .s2p file",
+        )
+    if parameter in ("g", "h") or (parameter == "y" and version.startswith("1")):
+        raise InputError(
+            f"holds version-{version[0]} {parameter.upper()} data, which zbench does not read "
+            "(scikit-rf scales version-1 Y by R)",
+            path=name,
+            hint="export the measurement as S-parameters ('# Hz S RI R 50') or Z, or as "
+            "Touchstone 2.0",
+        )
+    if scan.all_zero:
+        raise InputError(
+            "every value in the file is zero: there is no measurement in it, and nothing "
+            "was fitted or written",
+            path=name,
+            hint="re-export the measurement; check that the analyser's trace held data",
+        )
+    limit = MAX_ABS_Z if parameter == "z" else MAX_ABS_S
+    if scan.data_format != "db" and not scan.largest <= limit:
+        raise InputError(
+            f"holds values up to {scan.largest:.3g}, which no measurement of a passive part "
+            f"gives ({'|Z|' if parameter == 'z' else '|S|'} should stay below {limit:g})",
+            path=name,
+            hint="check the export: the data format on the option line (RI, MA, DB) and "
+            "the column order",
+        )
+    network = _read(p)
+    f = np.asarray(network.f, dtype=float)
+    # scikit-rf takes a fall in frequency as the start of noise data and silently
+    # stops there, so the frequency order is checked on the file's own data rows.
+    _check_grid(name, scan.frequencies if scan.rows > f.size else f)
+    if f.size != scan.rows or network.nports != ports:
+        raise InputError(
+            f"has {scan.rows} data rows of {ports} ports but only {f.size} of "
+            f"{network.nports} could be read as network data",
             path=name,
             hint="check the file for stray or malformed rows and re-export it",
         )
@@ -191,24 +534,74 @@ def load_measurement(path: str | Path, *, series_r: float = 0.0) -> Measurement:
             path=name,
             hint="re-export the measurement, or drop the bad points",
         )
-    z0_all = np.asarray(network.z0)
-    z0 = float(np.real(z0_all.flat[0]))
+    z0 = float(np.real(np.asarray(network.z0).flat[0]))
     comments = str(getattr(network, "comments", "") or "")
-    if ports == 1:
+    common = {"path": p, "f": f, "z0": z0, "comments": comments, "warnings": tuple(notes)}
+    if ports == 1 and parameter in ("z", "y"):
         z = np.asarray(network.z[:, 0, 0], dtype=complex)
+        _check_finite(name, z, "impedance")
         return Measurement(
-            path=p, f=f, kind="z1p", s=None, z=z, z0=z0, series_r=0.0, comments=comments
+            kind="impedance",
+            s=None,
+            z=z,
+            method=method,
+            method_source="option" if method else "file",
+            **common,
         )
-    z = shunt_through_z(s[:, 1, 0], z0, series_r)
-    if not np.all(np.isfinite(z)):
-        raise InputError(
-            "has S21 = 1 at some frequencies, where the shunt-through impedance is infinite",
-            path=name,
-            hint="check that this is a shunt-through measurement normalised to the through",
+    stated = method_from_comments(comments)
+    if ports == 1:
+        check_method_for_ports(name, 1, method)
+        z = reflection_z(s[:, 0, 0], z0)
+        _check_finite(name, z, "reflection")
+        source = "option" if method else "file"
+        return Measurement(
+            kind="s1p", s=s, z=z, method="reflection", method_source=source, **common
         )
+    chosen, source = method, "option"
+    if chosen is None:
+        chosen, source = (stated, "comments") if stated else ("shunt-through", "default")
+    if chosen == "reflection":
+        if series_r:
+            raise InputError(
+                "port series resistors do not apply to a reflection",
+                path=name,
+                hint="leave out --series-r, or give the two-port method",
+            )
+        z = reflection_z(s[:, 0, 0], z0)
+    elif chosen == "series-through":
+        z = series_through_z(s[:, 1, 0], z0, series_r)
+    else:
+        z = shunt_through_z(s[:, 1, 0], z0, series_r)
+    _check_finite(name, z, chosen)
     return Measurement(
-        path=p, f=f, kind="s2p", s=s, z=z, z0=z0, series_r=float(series_r), comments=comments
+        kind="s2p",
+        s=s,
+        z=z,
+        series_r=float(series_r),
+        method=chosen,
+        method_source=source,
+        **common,
     )
+
+
+_SINGULAR = {
+    "shunt-through": ("S21 = 1", "a shunt-through measurement normalised to the through"),
+    "series-through": ("S21 = 0", "a series-through measurement with signal through the part"),
+    "reflection": ("S11 = 1", "a reflection measurement of a part, not of an open port"),
+    "impedance": ("an infinite impedance", "an impedance file"),
+}
+
+
+def _check_finite(name: str, z: NDArray[np.complex128], method: str) -> None:
+    bad = ~np.isfinite(z)
+    if bad.any():
+        where, what = _SINGULAR[method]
+        raise InputError(
+            f"has {where} at {int(bad.sum())} frequencies, where the part's impedance by "
+            f"the {method} method is infinite",
+            path=name,
+            hint=f"check that this is {what}, or give --method for the way it was measured",
+        )
 
 
 def interpolate_to(
@@ -303,13 +696,21 @@ def write_touchstone_s(
 def write_touchstone_z(
     path: str | Path, f: ArrayLike, z: ArrayLike, comments: Iterable[str] = (), z0: float = 50.0
 ) -> Path:
-    """Write a part's impedance ``z`` (Ω, shape (nf,)) as a 1-port Touchstone 1.x Z file.
+    """Write a part's impedance ``z`` (Ω, shape (nf,)) as a standard 1-port Touchstone 1.x
+    file, ``.s1p`` with ``# Hz Z RI R 50``.
 
-    The values are normalised to ``R z0`` in the file as version 1.1 requires
-    (``# Hz Z RI R 50``); :func:`load_measurement` reads them back in ohms.
+    The values are normalised to ``R z0`` in the file as version 1.1 requires, and a
+    comment says so; :func:`load_measurement` (and any Touchstone reader) reads them
+    back in ohms. ``path`` must end in ``.s1p``: zbench writes no extension of its own.
     """
+    if _EXTENSION.search(Path(path).name) is None or not str(path).lower().endswith(".s1p"):
+        raise ValueError(f"{path}: an impedance is written as a standard one-port .s1p file")
     zz = np.asarray(z, dtype=complex).reshape(-1, 1, 1)
     if not np.all(np.isfinite(zz)):
         raise ValueError("impedance values must be finite to be written")
     s = skrf.network.z2s(zz, z0)
-    return _write(_network(f, s, z0, comments), path, z0, "Z")
+    note = (
+        f"impedance Z of the part; values normalised to R = {_option_r(z0)} ohm as "
+        "Touchstone 1.x requires (multiply by R for ohms)"
+    )
+    return _write(_network(f, s, z0, [*comments, note]), path, z0, "Z")

@@ -17,6 +17,7 @@ import jsonschema
 import yaml
 
 from drivers.errors import CommandMapError
+from drivers.safe_yaml import YamlRefusedError, load_text, read_text
 
 MAPS_DIR = Path(__file__).parent / "command_maps"
 SCHEMA_PATH = MAPS_DIR / "command_map.schema.yaml"
@@ -207,25 +208,28 @@ def load_command_map(name_or_path: str | Path = "default") -> CommandMap:
     """
     path = _resolve(name_or_path)
     try:
-        text = path.read_text(encoding="utf-8")
+        text = read_text(path)
     except OSError as exc:
         raise CommandMapError(
             str(path),
             "",
             f"cannot read the command map ({exc.strerror})",
             hint=f"give a readable file, or one of the shipped maps: {available_command_maps()}",
-        ) from exc
-    try:
-        raw = yaml.safe_load(text)
-    except yaml.YAMLError as exc:
-        where = getattr(exc, "problem_mark", None)
-        line = f" at line {where.line + 1}" if where is not None else ""
+        ) from None
+    except UnicodeDecodeError:
         raise CommandMapError(
-            str(path),
-            "",
-            f"not valid YAML{line}: {getattr(exc, 'problem', exc)}",
-            hint="fix the YAML syntax (indentation, quotes, colons)",
-        ) from exc
+            str(path), "", "not a UTF-8 text file", hint="give a command map YAML file"
+        ) from None
+    except YamlRefusedError as exc:
+        raise CommandMapError(str(path), "", exc.message, hint=exc.hint) from None
+    try:
+        # Bounded: size, nesting, alias expansion, tags and merge keys (drivers.safe_yaml).
+        raw = load_text(text)
+    except YamlRefusedError as exc:
+        line = f" at line {exc.line}" if exc.line is not None else ""
+        raise CommandMapError(
+            str(path), "", f"{exc.message}{line}", hint=exc.hint or "fix the YAML syntax"
+        ) from None
     return parse_command_map(raw, str(path))
 
 

@@ -100,7 +100,7 @@ class VisaTransport:
         write_termination: str = "\n",
         clear: bool = True,
     ) -> VisaTransport:
-        """Open ``resource_name`` (e.g. ``TCPIP0::192.168.0.20::5025::SOCKET``).
+        """Open ``resource_name`` (e.g. ``TCPIP0::192.0.2.20::5025::SOCKET``).
 
         ``backend`` is the VISA library (``"@py"`` for pyvisa-py, ``""`` or a path for
         an installed vendor VISA); ``timeout_s`` (s, > 0) is the default per-operation

@@ -84,34 +84,34 @@ def write_s2p(
 def main() -> list[Path]:
     written = []
     # MLCC, 22 µF class II, on the example mount; plain 50 Ω set-up.
-    mlcc = Mlcc(name="ZX-C22U", capacitance=22e-6, esl=0.42e-9, esr=2.6e-3, rated_voltage=6.3)
+    mlcc = Mlcc(name="ZBEX-C22U", capacitance=22e-6, esl=0.42e-9, esr=2.6e-3, rated_voltage=6.3)
     f = grid(100.0, 200e6, 401)
     written.append(
-        write_s2p("mlcc_22u.s2p", f, mlcc.impedance(f) + mount(f), 0.0, 11, "MLCC ZX-C22U, 22 uF")
+        write_s2p("mlcc_22u.s2p", f, mlcc.impedance(f) + mount(f), 0.0, 11, "MLCC ZBEX-C22U, 22 uF")
     )
     # The same fixture's mount short, on the MLCC's grid.
     written.append(write_s2p("mount_short.s2p", f, mount(f), 0.0, 12, "shorted mount"))
     # Bulk polymer capacitor, 330 µF; plain 50 Ω set-up, no mount (already removed).
     bulk = BulkCapacitor(
-        name="ZX-P330U", capacitance=330e-6, line_resistance=25e-3, esr=6e-3, esl=2.2e-9
+        name="ZBEX-P330U", capacitance=330e-6, line_resistance=25e-3, esr=6e-3, esl=2.2e-9
     )
     f = grid(100.0, 100e6, 401)
     written.append(
-        write_s2p("bulk_330u.s2p", f, bulk.impedance(f), 0.0, 13, "bulk ZX-P330U, 330 uF")
+        write_s2p("bulk_330u.s2p", f, bulk.impedance(f), 0.0, 13, "bulk ZBEX-P330U, 330 uF")
     )
     # Power inductor, 2.2 µH, measured with 499 Ω in series at each port.
     inductor = PowerInductor(
-        name="ZX-L2U2", inductance=2.2e-6, r_dc=14e-3, winding_capacitance=5e-12
+        name="ZBEX-L2U2", inductance=2.2e-6, r_dc=14e-3, winding_capacitance=5e-12
     )
     f = grid(1e3, 300e6, 401)
     written.append(
         write_s2p(
-            "inductor_2u2.s2p", f, inductor.impedance(f), 499.0, 14, "inductor ZX-L2U2, 2.2 uH"
+            "inductor_2u2.s2p", f, inductor.impedance(f), 499.0, 14, "inductor ZBEX-L2U2, 2.2 uH"
         )
     )
     # Ferrite bead, about 600 Ω at 100 MHz: a 1-port Z file, measured with 499 Ω resistors.
     bead = FerriteBead(
-        name="ZX-F600", r_dc=45e-3, inductance=1.1e-6, resistance=650.0, capacitance=0.9e-12
+        name="ZBEX-F600", r_dc=45e-3, inductance=1.1e-6, resistance=650.0, capacitance=0.9e-12
     )
     f = grid(100e3, 1e9, 401)
     ze = Z0 + 499.0
@@ -119,11 +119,11 @@ def main() -> list[Path]:
     z = (ze / 2) * s21 / (1 - s21)  # DESIGN §4, inverted
     written.append(
         write_touchstone_z(
-            HERE / "bead_600r.z1p",
+            HERE / "bead_600r.s1p",
             f,
             z,
             comments=[
-                "zbench example: ferrite bead ZX-F600, about 600 ohm at 100 MHz",
+                "zbench example: ferrite bead ZBEX-F600, about 600 ohm at 100 MHz",
                 "invented part; impedance from a shunt-through measurement",
                 "with 499 ohm in series at each port",
             ],

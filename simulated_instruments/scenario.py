@@ -18,10 +18,10 @@ from typing import Any
 
 import jsonschema
 import numpy as np
-import yaml
 
 from bench.errors import InputError
 from bench.units import QuantityError, parse_quantity
+from drivers.safe_yaml import YamlRefusedError, load_text, read_text
 from simulated_instruments.parts import (
     DEFAULT_SPREAD,
     Part,
@@ -32,6 +32,12 @@ from simulated_instruments.parts import (
 from simulated_instruments.physics import CalibrationKit, Mount
 
 SCENARIO_DIR = Path(__file__).parent / "scenarios"
+
+# The analyser's command dialects; each has a command map of the same name in
+# drivers/command_maps/.
+ANALYZER_DIALECTS = ("default", "meas_stim")
+# How deep ``extends:`` may chain (a scenario extending one that extends another...).
+MAX_EXTENDS = 4
 
 _Q = {"type": ["number", "string"]}
 
@@ -71,6 +77,7 @@ SCHEMA: dict[str, Any] = _obj(
         "analyzer": _obj(
             {
                 "identity": {"type": "string"},
+                "dialect": {"enum": list(ANALYZER_DIALECTS)},
                 "frequency": _range(),
                 "points": _range(),
                 "power": _range(),
@@ -159,7 +166,7 @@ SCHEMA: dict[str, Any] = _obj(
                 "closed": {"type": "integer", "minimum": 1},
                 "placements": {
                     "type": "object",
-                    "patternProperties": {"^[0-9]+$": {"type": "string"}},
+                    "patternProperties": {r"^[0-9]+\Z": {"type": "string"}},
                     "additionalProperties": False,
                 },
             }
@@ -175,6 +182,7 @@ class AnalyzerSpec:
     """Limits, noise and timing of the simulated network analyser (SI units, dB, dBm)."""
 
     identity: str = "zbench,simulated network analyser,SIM-VNA-0001,0.1"
+    dialect: str = "default"
     f_min: float = 10.0
     f_max: float = 500e6
     points_min: int = 2
@@ -243,7 +251,38 @@ def _q(section: Mapping[str, Any], key: str, unit: str | None, default: float, w
         raise InputError(str(exc), hint="write a number, optionally with an SI prefix") from exc
 
 
-def _read_source(scenario: str | Path | Mapping[str, Any]) -> tuple[dict[str, Any], str]:
+def _merged(base: dict[str, Any], over: Mapping[str, Any]) -> dict[str, Any]:
+    """``over`` laid on ``base``: mappings merge key by key, anything else replaces."""
+    out = dict(base)
+    for key, value in over.items():
+        if isinstance(value, Mapping) and isinstance(out.get(key), Mapping):
+            out[key] = _merged(dict(out[key]), value)
+        else:
+            out[key] = value
+    return out
+
+
+def _read_source(
+    scenario: str | Path | Mapping[str, Any], depth: int = 0
+) -> tuple[dict[str, Any], str]:
+    """The scenario's mapping and where it came from; ``extends: <name>`` takes another
+    scenario as the base and lays this one's keys on it."""
+    data, where = _read_one(scenario)
+    base_name = data.pop("extends", None)
+    if base_name is None:
+        return data, where
+    if not isinstance(base_name, str) or depth >= MAX_EXTENDS:
+        raise InputError(
+            f"extends: {base_name!r} is not a scenario name, or the chain is deeper than "
+            f"{MAX_EXTENDS}",
+            path=where,
+            hint="name one scenario to extend, e.g. 'extends: demo'",
+        )
+    base, _ = _read_source(base_name, depth + 1)
+    return _merged(base, data), where
+
+
+def _read_one(scenario: str | Path | Mapping[str, Any]) -> tuple[dict[str, Any], str]:
     if isinstance(scenario, Mapping):
         return dict(scenario), "<scenario>"
     path = Path(scenario)
@@ -256,9 +295,17 @@ def _read_source(scenario: str | Path | Mapping[str, Any]) -> tuple[dict[str, An
             hint=f"give a path to a scenario YAML or one of: {', '.join(names)}",
         )
     try:
-        data = yaml.safe_load(path.read_text(encoding="utf-8"))
-    except yaml.YAMLError as exc:
-        raise InputError(f"not valid YAML: {exc}", path=str(path)) from exc
+        # Bounded: size, nesting, alias expansion, tags and merge keys (drivers.safe_yaml).
+        data = load_text(read_text(path))
+    except YamlRefusedError as exc:
+        line = f" (line {exc.line})" if exc.line is not None else ""
+        raise InputError(f"{exc.message}{line}", path=str(path), hint=exc.hint) from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise InputError(
+            f"cannot read the scenario ({type(exc).__name__})",
+            path=str(path),
+            hint="give a readable UTF-8 YAML file",
+        ) from None
     if not isinstance(data, dict):
         raise InputError("a scenario must be a mapping", path=str(path))
     return data, str(path)
@@ -304,6 +351,7 @@ def load_scenario(
     eb = a.get("error_boxes", {})
     analyzer = AnalyzerSpec(
         identity=a.get("identity", d.identity),
+        dialect=a.get("dialect", d.dialect),
         f_min=f_min,
         f_max=f_max,
         points_min=int(p_min),

@@ -526,6 +526,7 @@ class _Entry:
     text: str
     set: Handler | None = None
     query: Handler | None = None
+    max_suffix: int = 1
 
 
 class CommandTree:
@@ -535,15 +536,26 @@ class CommandTree:
         self._entries: list[_Entry] = []
         self._common: dict[tuple[str, bool], Handler] = {}
 
-    def add(self, pattern: str, *, set: Handler | None = None, query: Handler | None = None):
-        """Register handlers for ``pattern``; a handler gets (session, parameters)."""
+    def add(
+        self,
+        pattern: str,
+        *,
+        set: Handler | None = None,
+        query: Handler | None = None,
+        max_suffix: int = 1,
+    ):
+        """Register handlers for ``pattern``; a handler gets (session, parameters).
+
+        ``max_suffix`` > 1 lets the header's nodes carry a numeric suffix up to it
+        (``MEASure3``); the handler finds it in ``session.suffix``.
+        """
         nodes = _parse_pattern(pattern)
         for entry in self._entries:
             if entry.pattern == nodes:
                 entry.set = set or entry.set
                 entry.query = query or entry.query
                 return
-        self._entries.append(_Entry(nodes, pattern, set, query))
+        self._entries.append(_Entry(nodes, pattern, set, query, max_suffix))
 
     def add_common(self, name: str, handler: Handler, *, query: bool) -> None:
         """Register an IEEE 488.2 common command (``IDN`` with ``query=True`` is ``*IDN?``)."""
@@ -565,14 +577,14 @@ class CommandTree:
         """
         if header.common:
             return self._common.get((header.nodes[0][0], header.query)), path
-        for _, suffix in header.nodes:
-            if suffix is not None and suffix != 1:
-                raise ScpiError(-114, f"suffix {suffix}")
         names = tuple(name for name, _ in header.nodes)
         tries = [names] if header.rooted or not path else [path + names, names]
         for full in tries:
             entry = self.find(full)
             if entry is not None:
+                for _, suffix in header.nodes:
+                    if suffix is not None and not 1 <= suffix <= entry.max_suffix:
+                        raise ScpiError(-114, f"suffix {suffix}")
                 handler = entry.query if header.query else entry.set
                 if handler is None:
                     what = "query" if header.query else "command"
@@ -603,6 +615,8 @@ class Session:
     # encoding another client receives.
     data_format: str = "ASCII"
     byte_order: str = "NORMAL"
+    # The numeric suffix of the header being executed (1 when none was given).
+    suffix: int = 1
     # Set by the server: True when the client has sent more input (for -410).
     input_pending: Callable[[], bool] = no_input_pending
 
@@ -688,6 +702,7 @@ class Instrument:
                     raise ScpiError(-113, header_text[:60])
                 if not header.common:
                     session.path = full[:-1]
+                session.suffix = max((n for _, n in header.nodes if n is not None), default=1)
                 result = handler(session, params)
                 if header.query:
                     if result is None:

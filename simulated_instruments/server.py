@@ -21,7 +21,7 @@ from pathlib import Path
 from typing import Any
 
 from simulated_instruments.faults import corrupt_block_header
-from simulated_instruments.instruments import Analyzer, BenchControl, DcSource, Switch
+from simulated_instruments.instruments import ANALYZERS, BenchControl, DcSource, Switch
 from simulated_instruments.scenario import Scenario, load_scenario
 from simulated_instruments.scpi import Instrument, Session, no_input_pending
 from simulated_instruments.state import BenchState
@@ -273,7 +273,7 @@ def start_bench(
     sc = load_scenario(scenario, seed=seed)
     state = BenchState(sc, time_scale=time_scale)
     instruments: dict[str, Instrument] = {
-        "analyzer": Analyzer(state),
+        "analyzer": ANALYZERS[sc.analyzer.dialect](state),
         "switch": Switch(state),
         "dc_source": DcSource(state),
         "bench": BenchControl(state),

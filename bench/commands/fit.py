@@ -1,8 +1,14 @@
 """``zbench fit FILE...``: fit equivalent circuits to stored measurements (DESIGN §3).
 
-Each FILE is a 2-port Touchstone of a calibrated shunt-through measurement (Z from S21
-with the port series resistors) or a 1-port Touchstone holding Z. With ``--json`` one
-JSON object per file is printed, one per line (JSON Lines), SI units throughout::
+Each FILE is a Touchstone file or an impedance analyser's CSV (docs/design.md §9):
+a 2-port S file is a shunt-through measurement unless ``--method series-through`` says
+otherwise or its comments state the method (zbench writes ``measurement method: ...``);
+a 1-port S file is a reflection; a Z file or a CSV is the impedance as given (judged
+against ``--method``'s window when given, otherwise no window cut and weights from the
+file's own scatter). ``--join`` fits all FILEs as set-ups of one part, stitched into one
+broadband impedance (inverse-variance weighted; disagreeing overlaps are reported).
+With ``--json`` one JSON object per file is printed, one per line (JSON Lines), SI units
+throughout::
 
     {"file": ..., "model": ..., "elements": {...}, "landmarks": {...},
      "quality": {"rms_log_error": ..., "max_abs_log_error": ..., "points_used": N,
@@ -14,7 +20,8 @@ one library holding every subcircuit; any other OUT is a folder (created if need
 receiving one ``<file stem>.sub`` per FILE. Subcircuit names are the file stems made
 SPICE tokens.
 
-Several files are fitted in one process; a bad file does not stop the others. Exit
+Several files are fitted in parallel, on up to ``--jobs`` processes (default: all
+cores), and reported in the order given; a bad file does not stop the others. Exit
 code: 0 all fitted; 3 some fit did not meet its quality bound (its result is still
 printed and written); 2 some input was bad (message on stderr naming the file and the
 fix); 1 internal error. When several apply, 1 wins over 2, and 2 over 3.
@@ -22,19 +29,20 @@ fix); 1 internal error. When several apply, 1 wins over 2, and 2 over 3.
 
 from __future__ import annotations
 
+import functools
 import json
 import math
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 import click
 
-from bench import api
 from bench.errors import FitError, InputError, ZbenchError
 from bench.exports import LANDMARK_UNITS
 from bench.files import atomic_write_text
+from bench.parallel import ordered_map
 from bench.units import format_si
 
 
@@ -53,6 +61,31 @@ class _Outcome:
     error: str | None = None
     exit_code: int = 0
     note: str | None = None
+    notes: list[str] = field(default_factory=list)
+    extra: dict[str, Any] = field(default_factory=dict)
+
+
+_METHOD_NOTES = {
+    "default": "shunt-through (a two-port S file; give --method series-through if the part "
+    "sat in series)",
+    "comments": "{method}, as its comments state (give --method to override)",
+    "file": "reflection (a one-port S file)",
+}
+
+
+def _method_note(name: str, measurement: Any) -> str | None:
+    """What the reader decided about the method, for a person; None when told."""
+    source = measurement.method_source
+    if measurement.kind == "impedance":
+        if measurement.method is None:
+            return (
+                f"{name}: impedance taken as given: no window cut, each point weighted by "
+                "the file's own scatter (give --method to judge it against a set-up's window)"
+            )
+        return None
+    if source in _METHOD_NOTES:
+        return f"{name}: " + _METHOD_NOTES[source].format(method=measurement.method)
+    return None
 
 
 #: How a Touchstone comment states the port series resistors: zbench's corrected files
@@ -139,6 +172,8 @@ def _summary_text(outcome: _Outcome) -> str:
 def _parse_option(value: str | None, unit: str, option: str) -> float | None:
     if value is None:
         return None
+    from bench import api
+
     return api._quantity(value, unit, option)
 
 
@@ -147,7 +182,7 @@ def _spice_targets(files: tuple[str, ...], out: str | None) -> tuple[dict[str, P
     if out is None:
         return {}, None
     target = Path(out)
-    stems = {}
+    stems: dict[str, list[str]] = {}
     for name in files:
         stems.setdefault(Path(name).stem, []).append(name)
     clashes = [names for names in stems.values() if len(names) > 1]
@@ -170,6 +205,35 @@ def _spice_targets(files: tuple[str, ...], out: str | None) -> tuple[dict[str, P
     return {name: target / f"{Path(name).stem}.sub" for name in files}, None
 
 
+def subcircuit_names(files: tuple[str, ...]) -> dict[str, str]:
+    """A unique SPICE subcircuit name per file: the stem made a SPICE token, with ``_2``,
+    ``_3`` … added where two stems give one token (``a-b`` and ``a_b`` both give ``a_b``;
+    SPICE names are also case-insensitive)."""
+    from bench.exports import spice_name
+
+    taken: set[str] = set()
+    out: dict[str, str] = {}
+    for name in files:
+        base = spice_name(Path(name).stem)
+        candidate, k = base, 2
+        while candidate.lower() in taken:
+            candidate, k = f"{base}_{k}", k + 1
+        taken.add(candidate.lower())
+        out[name] = candidate
+    return out
+
+
+def _write_output(path: Path, text: str, option: str = "--spice") -> Path:
+    """Write ``text`` atomically; a full disk or a read-only folder is bad input, not a crash."""
+    try:
+        return atomic_write_text(path, text)
+    except OSError as exc:
+        raise InputError(
+            f"cannot write {path}: {exc.strerror or exc}",
+            hint=f"free some space or choose a writable place for {option}",
+        ) from exc
+
+
 def _fit_one(
     name: str,
     *,
@@ -180,22 +244,17 @@ def _fit_one(
     fmax: float | None,
     spice_path: Path | None,
     want_spice: bool,
+    method: str | None = None,
+    subckt: str | None = None,
+    outcome: _Outcome | None = None,
 ) -> _Outcome:
-    outcome = _Outcome(path=name)
-    source: Any = name
-    if series_r is None:
-        # Without --series-r, the set-up a file states in its comments (zbench writes it
-        # into every corrected file); fitting a 499 Ω measurement as a plain 50 Ω one
-        # would scale every impedance by about 11.
-        measurement = api.load(name)
-        stated = series_r_from_comments(measurement.comments)
-        if stated is not None:
-            series_r, source = stated, measurement
-            outcome.note = (
-                f"{name}: port series resistors {format_si(stated, 'Ω')} each, as its "
-                "comments state (give --series-r to override)"
-            )
-    result = api.fit(source, model=model, series_r=series_r, mount=mount, fmin=fmin, fmax=fmax)
+    from bench import api  # loads the numeric core: not needed for --help
+
+    outcome = outcome or _Outcome(path=name)
+    data, stated = _impedance_of(
+        name, outcome, series_r=series_r, mount=mount, fmin=fmin, fmax=fmax, method=method
+    )
+    result = api.fit(data, model=model)
     outcome.result = result
     if want_spice:
         from bench.core.spice import subckt_text
@@ -203,18 +262,153 @@ def _fit_one(
 
         provenance = api.default_provenance(
             name,
-            series_r=f"{series_r or 0:g} ohm",
+            method=data.window.method,
+            series_r=f"{stated or 0:g} ohm",
             # The mount arrives loaded; its file name is the provenance, not its data.
             mount=str(getattr(mount, "path", mount)) if mount is not None else "none",
             model=result.model,
         )
-        outcome.spice_text = subckt_text(result, spice_name(Path(name).stem), provenance=provenance)
+        outcome.spice_text = subckt_text(
+            result, subckt or spice_name(Path(name).stem), provenance=provenance
+        )
         if spice_path is not None:
-            atomic_write_text(spice_path, outcome.spice_text)
-            outcome.spice_path = spice_path
+            outcome.spice_path = _write_output(spice_path, outcome.spice_text)
     if not _meets_quality(result):
         outcome.exit_code = 3
     return outcome
+
+
+def _impedance_of(
+    name: str,
+    outcome: _Outcome,
+    *,
+    series_r: float | None,
+    mount: Any,
+    fmin: float | None,
+    fmax: float | None,
+    method: str | None,
+) -> tuple[Any, float | None]:
+    """One file's impedance data (notes added to ``outcome``), and the series R used."""
+    from bench import api
+
+    measurement = api.load(name, series_r=series_r or 0.0, method=method)
+    outcome.notes.extend(f"{name}: warning: {text}" for text in measurement.warnings)
+    note = _method_note(name, measurement)
+    if note:
+        outcome.notes.append(note)
+    if series_r is None and measurement.kind == "s2p":
+        # Without --series-r, the set-up a file states in its comments (zbench writes it
+        # into every corrected file); fitting a 499 Ω measurement as a plain 50 Ω one
+        # would scale every impedance by about 11.
+        stated = series_r_from_comments(measurement.comments)
+        if stated is not None:
+            series_r = stated
+            outcome.notes.append(
+                f"{name}: port series resistors {format_si(stated, 'Ω')} each, as its "
+                "comments state (give --series-r to override)"
+            )
+    elif series_r and measurement.kind == "impedance" and measurement.method is None:
+        outcome.notes.append(
+            f"{name}: --series-r sets a window only with --method; this impedance is taken as given"
+        )
+    data = api.impedance(measurement, series_r=series_r, mount=mount, fmin=fmin, fmax=fmax)
+    return data, series_r
+
+
+def _fit_joined(
+    files: tuple[str, ...],
+    *,
+    model: str,
+    series_r: float | None,
+    mount: Any,
+    fmin: float | None,
+    fmax: float | None,
+    method: str | None,
+    spice_out: str | None,
+) -> _Outcome:
+    """All ``files`` as set-ups of one part: stitched, then fitted once."""
+    from bench import api
+    from bench.core.stitch import stitch
+
+    label = "+".join(files)
+    outcome = _Outcome(path=label)
+    segments = []
+    for name in files:
+        data, _ = _impedance_of(
+            name, outcome, series_r=series_r, mount=mount, fmin=fmin, fmax=fmax, method=method
+        )
+        segments.append(data)
+    joined = stitch(segments, list(files))
+    for text in joined.warnings:
+        outcome.notes.append(f"warning: {text}")
+    outcome.extra = {
+        "files": list(files),
+        "segments": [
+            {
+                "file": name,
+                "method": seg.window.method,
+                "z_min": seg.window.z_min,
+                "z_max": seg.window.z_max,
+                "f_min": float(seg.f[0]),
+                "f_max": float(seg.f[-1]),
+                "points_inside_window": int(seg.inside_window.sum()),
+            }
+            for name, seg in zip(files, segments, strict=True)
+        ],
+        "disagreements": [
+            {"f_lo": d.f_lo, "f_hi": d.f_hi, "size": d.size, "labels": list(d.labels)}
+            for d in joined.disagreements
+        ],
+    }
+    result = api.fit(joined.data, model=model)
+    outcome.result = result
+    if spice_out is not None:
+        from bench.core.spice import subckt_text
+
+        target = Path(spice_out)
+        stem = Path(files[0]).stem
+        path = target / f"{stem}.sub" if target.is_dir() else target
+        provenance = api.default_provenance(
+            ", ".join(files), methods=", ".join(s.window.method for s in segments)
+        )
+        name = subcircuit_names((files[0],))[files[0]]
+        outcome.spice_text = subckt_text(result, name, provenance=provenance)
+        outcome.spice_path = _write_output(path, outcome.spice_text)
+    if not _meets_quality(result):
+        outcome.exit_code = 3
+    return outcome
+
+
+def _fit_guarded(
+    name: str, *, spice_paths: dict[str, Path], subckt_names: dict[str, str], **options: Any
+) -> _Outcome:
+    """:func:`_fit_one` with every error turned into the file's outcome (a worker's task).
+
+    Notes made before a failure (a file read with default units) still reach the user.
+    """
+    started = _Outcome(path=name)
+    try:
+        return _fit_one(
+            name,
+            outcome=started,
+            spice_path=spice_paths.get(name),
+            subckt=subckt_names.get(name),
+            **options,
+        )
+    except ZbenchError as exc:
+        text = str(exc)
+        if isinstance(exc, FitError):
+            text = f"{name}: no fit: {text}"
+        elif name not in text:
+            text = f"{name}: {text}"
+        return _Outcome(path=name, error=text, exit_code=exc.exit_code, notes=started.notes)
+    except Exception as exc:  # one bad file must not stop an archive re-fit
+        return _Outcome(
+            path=name,
+            error=f"{name}: internal error ({type(exc).__name__}: {exc})",
+            exit_code=1,
+            notes=started.notes,
+        )
 
 
 @click.command("fit")
@@ -224,7 +418,19 @@ def _fit_one(
     default="auto",
     show_default=True,
     metavar="NAME",
-    help="series-rlc, two-branch, ladder, inductor, bead or auto (chooses family and order).",
+    help="A model family (series-rlc, lossy-rlc, two-branch, ladder, inductor, bead) or auto "
+    "(chooses family and order).",
+)
+@click.option(
+    "--method",
+    metavar="NAME",
+    help="How the files were measured: shunt-through, series-through or reflection "
+    "(default: from the file, see above).",
+)
+@click.option(
+    "--join",
+    is_flag=True,
+    help="The files are set-ups of one part: stitch them into one impedance and fit once.",
 )
 @click.option("--series-r", metavar="OHMS", help="Resistor in series at each port (e.g. 499).")
 @click.option("--mount", metavar="FILE", help="Shorted-mount measurement to subtract.")
@@ -237,23 +443,40 @@ def _fit_one(
     help="Write SPICE subcircuits: a file for one FILE; a folder, or a .lib library, for several.",
 )
 @click.option("--json", "as_json", is_flag=True, help="One JSON object per file (JSON Lines).")
+@click.option(
+    "--jobs",
+    type=click.IntRange(min=1),
+    default=None,
+    metavar="N",
+    help="Fit up to N files at once, one process each (default: all cores).",
+)
 def command(
     files: tuple[str, ...],
     model: str,
+    method: str | None,
+    join: bool,
     series_r: str | None,
     mount: str | None,
     fmin: str | None,
     fmax: str | None,
     spice_out: str | None,
     as_json: bool,
+    jobs: int | None,
 ) -> None:
     """Fit equivalent-circuit models to stored measurements.
 
-    FILE is a 2-port Touchstone of a calibrated shunt-through measurement, or a 1-port
-    Touchstone holding Z. Values take SI prefixes (499, 2k, 100 MHz).
+    FILE is a Touchstone file (2-port S: shunt-through unless --method or its comments
+    say otherwise; 1-port S: reflection; Z: the impedance as given) or an impedance
+    analyser's CSV. Values take SI prefixes (499, 2k, 100 MHz).
     """
+    from bench import api
+
     model = model.strip().lower()
     api.check_model_name(model)
+    if method is not None:
+        from bench.core.window import check_method
+
+        method = check_method(method)
     r = _parse_option(series_r, "ohm", "--series-r")
     if r is not None and r < 0:
         raise InputError(
@@ -268,34 +491,40 @@ def command(
     mount_data = None
     if mount is not None:
         # Loaded once for all files; checked against each file's grid as it is used.
-        mount_data = api.load(mount, series_r=r or 0.0)
+        mount_data = api.load(mount, series_r=r or 0.0, method=method)
+    if join:
+        if len(files) < 2:
+            raise InputError("--join needs two or more files of one part", hint="give them all")
+        outcome = _fit_joined(
+            files,
+            model=model,
+            series_r=r,
+            mount=mount_data,
+            fmin=lo,
+            fmax=hi,
+            method=method,
+            spice_out=spice_out,
+        )
+        _emit(outcome, as_json=as_json)
+        _finish([outcome], None)
+        return
     per_file, library = _spice_targets(files, spice_out)
+    names = subcircuit_names(files)
     outcomes: list[_Outcome] = []
-    for name in files:
-        try:
-            outcome = _fit_one(
-                name,
-                model=model,
-                series_r=r,
-                mount=mount_data,
-                fmin=lo,
-                fmax=hi,
-                spice_path=per_file.get(name),
-                want_spice=spice_out is not None,
-            )
-        except ZbenchError as exc:
-            text = str(exc)
-            if isinstance(exc, FitError):
-                text = f"{name}: no fit: {text}"
-            elif name not in text:
-                text = f"{name}: {text}"
-            outcome = _Outcome(path=name, error=text, exit_code=exc.exit_code)
-        except Exception as exc:  # one bad file must not stop an archive re-fit
-            outcome = _Outcome(
-                path=name,
-                error=f"{name}: internal error ({type(exc).__name__}: {exc})",
-                exit_code=1,
-            )
+    task = functools.partial(
+        _fit_guarded,
+        model=model,
+        series_r=r,
+        mount=mount_data,
+        fmin=lo,
+        fmax=hi,
+        spice_paths=per_file,
+        subckt_names=names,
+        want_spice=spice_out is not None,
+        method=method,
+    )
+    # Files are fitted on up to --jobs processes; results come back in input order.
+    for outcome in ordered_map(task, files, jobs):
         if library is not None and outcome.spice_text:
             outcome.spice_path = library  # written once every file is fitted
         outcomes.append(outcome)
@@ -305,22 +534,22 @@ def command(
         if texts:
             from bench.core.spice import library_text
 
-            atomic_write_text(
-                library, library_text(texts, title=f"zbench fit of {len(texts)} files")
-            )
+            _write_output(library, library_text(texts, title=f"zbench fit of {len(texts)} files"))
             if not as_json:
                 click.echo(f"SPICE library: {library}")
     _finish(outcomes, library)
 
 
 def _emit(outcome: _Outcome, *, as_json: bool) -> None:
+    for note in outcome.notes:
+        click.echo(f"zbench: {note}", err=True)
     if outcome.error is not None:
         click.echo(f"zbench: {outcome.error}", err=True)
         return
     if outcome.note is not None:
         click.echo(f"zbench: {outcome.note}", err=True)
     if as_json:
-        record = {"file": outcome.path, **outcome.result.to_json()}
+        record = {"file": outcome.path, **outcome.extra, **outcome.result.to_json()}
         record["spice"] = str(outcome.spice_path) if outcome.spice_path is not None else None
         click.echo(json.dumps(_jsonable(record), allow_nan=False))
     else:
@@ -339,7 +568,9 @@ def _finish(outcomes: list[_Outcome], library: Path | None) -> None:
         raise InputError(f"{len(failed)} of {len(outcomes)} files could not be fitted (see above)")
     if 3 in codes:
         below = [o.path for o in outcomes if o.exit_code == 3]
+        written = library is not None or any(o.spice_path is not None for o in outcomes)
+        tail = "results were still printed and written" if written else "results were printed"
         raise FitError(
             f"{len(below)} of {len(outcomes)} fits did not meet their quality bound "
-            f"({', '.join(below)}); results were still written"
+            f"({', '.join(below)}); {tail}"
         )

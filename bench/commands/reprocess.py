@@ -75,6 +75,13 @@ def write_outputs(store: RunStore, summary: Any) -> dict[str, Any]:
     default=None,
     help="Remove the measured mount short, or a fitted Rm + jωLm.",
 )
+@click.option(
+    "--jobs",
+    type=click.IntRange(min=1),
+    default=None,
+    metavar="N",
+    help="Fit up to N samples at once, one process each (default: all cores).",
+)
 def command(
     run_dir: Path,
     model: str | None,
@@ -82,6 +89,7 @@ def command(
     noise_floor: float | None,
     trace_noise: float | None,
     mount: str | None,
+    jobs: int | None,
 ) -> None:
     """Recompute RUN_DIR from its raw data (calibration, window, fits, exports, report)."""
     from bench.commands.run import resumed
@@ -96,7 +104,7 @@ def command(
         trace_noise_db=trace_noise,
         mount=mount,
     )
-    summary = build_summary(store, plan, analysis=analysis, model_override=model)
+    summary = build_summary(store, plan, analysis=analysis, model_override=model, jobs=jobs)
     settings = {"analysis": dataclasses.asdict(analysis), "model": model, "time": now_iso()}
     store.update("reprocess", settings)
     store.log(f"reprocessed with {settings}")

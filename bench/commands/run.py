@@ -117,11 +117,11 @@ def _is_procedure(text: str) -> bool:
     path = Path(text)
     if path.suffix not in (".yaml", ".yml") or not path.is_file():
         return False
-    import yaml
+    from drivers.safe_yaml import YamlRefusedError, load_text, read_text
 
     try:
-        data = yaml.safe_load(path.read_text(encoding="utf-8"))
-    except (yaml.YAMLError, UnicodeDecodeError):
+        data = load_text(read_text(path))
+    except (YamlRefusedError, OSError, UnicodeDecodeError):
         return False
     return isinstance(data, dict) and "sweep" in data and "parts" in data
 

@@ -144,3 +144,42 @@ def shunt_through_rereference(s21: ArrayLike, from_ze: ArrayLike, to_ze: ArrayLi
     b = np.asarray(to_ze, dtype=complex)
     with np.errstate(divide="ignore", invalid="ignore"):
         return a * s / (a * s + b * (1.0 - s))
+
+
+# -- gain-phase analyser ---------------------------------------------------------------
+# A gain-phase analyser returns the ratio of two receivers, not a calibrated S21. In the
+# set-up zbench uses, its source (any source impedance) drives receiver A's node, a
+# reference resistor ``r_ref`` joins it to the part, and receiver B sits across the part
+# with its own input impedance ``z_in`` (e.g. 1 MΩ ‖ 30 pF) in parallel. The ratio is the
+# voltage divider H = B/A = Zp / (Zp + r_ref) with Zp = Z ‖ z_in, so
+# Zp = r_ref·H/(1 − H) and Z = Zp·z_in/(z_in − Zp). The source impedance sets the level
+# at A, not the ratio. (Divider and ABCD algebra: docs/references.md §1 [derived].)
+
+
+def gain_phase_z(h: ArrayLike, *, r_ref: float, z_in: ArrayLike | None = None) -> ComplexArray:
+    """The part's impedance (Ω) from a gain-phase analyser's receiver ratio ``h`` = B/A.
+
+    ``r_ref`` (Ω, > 0) is the reference resistor between receiver A's node and the part;
+    ``z_in`` (Ω, scalar or per point) is receiver B's input impedance in parallel with the
+    part, or None for an ideal (infinite) input. ``h = 1`` gives an infinite impedance.
+    """
+    if not r_ref > 0:
+        raise ValueError(f"r_ref must be > 0 Ω, got {r_ref!r}")
+    hh = np.asarray(h, dtype=complex)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        zp = r_ref * hh / (1.0 - hh)
+        if z_in is None:
+            return zp
+        zi = np.asarray(z_in, dtype=complex)
+        return zp * zi / (zi - zp)
+
+
+def gain_phase_ratio(z: ArrayLike, *, r_ref: float, z_in: ArrayLike | None = None) -> ComplexArray:
+    """The receiver ratio B/A a gain-phase analyser reads on a part of impedance ``z``
+    (the inverse of :func:`gain_phase_z`)."""
+    if not r_ref > 0:
+        raise ValueError(f"r_ref must be > 0 Ω, got {r_ref!r}")
+    zz = np.asarray(z, dtype=complex)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        zp = zz if z_in is None else zz * np.asarray(z_in) / (zz + np.asarray(z_in))
+        return zp / (zp + r_ref)

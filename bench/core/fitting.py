@@ -11,6 +11,9 @@
   positive and the model passive;
 - start values come from the landmarks; each family gives a few deterministic starts
   and the best result is kept; higher orders also start from the next lower order's fit;
+- points no passive part gives, isolated glitches and band edges taken over by a
+  fixture mode are found and left out (``bench.core.robust``), and the chosen model is
+  solved once more with a soft-L1 loss so that a few bad points cannot move it;
 - the Jacobian is analytic: ``d ln Z/d ln p = p·(dZ/dp)/Z`` from the network tree;
 - the order of ``ladder``, ``inductor`` and ``bead``, and the family under ``auto``, is
   chosen by the Bayesian information criterion ``χ² + k·ln(m)`` (χ² weighted by the
@@ -35,14 +38,19 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy.optimize import least_squares
 
+from bench.core import robust
 from bench.core.landmarks import Landmarks, classify, landmarks_for
-from bench.core.models import FAMILIES, MODEL_NAMES, ModelFamily
+from bench.core.model_registry import MODEL_NAMES, auto_candidates
+from bench.core.models import FAMILIES, ModelFamily
 from bench.core.models.network import (
+    Node,
     clip_to_bounds,
     impedance_and_jacobian,
     network_impedance,
+    spice_lines,
     vanishing_sides,
 )
+from bench.core.robust import Exclusion
 from bench.errors import FitError, InputError
 from bench.units import format_si
 
@@ -67,10 +75,14 @@ UNDETERMINED = 1.0
 # An element within this distance (natural log) of a bound is pinned at it.
 PINNED_LOG = 1e-3
 
-AUTO_CANDIDATES: dict[str, tuple[tuple[str, tuple[int, ...]], ...]] = {
-    "capacitor": (("series-rlc", (1,)), ("two-branch", (1,)), ("ladder", (2, 3, 4, 5))),
-    "inductor": (("inductor", (0, 1, 2)), ("bead", (1, 2))),
-}
+# Soft-L1 scale of the final robust solve (docs/references.md §11), in units of a
+# point's uncertainty: points
+# within a few sigma count as in least squares, beyond it their pull grows only linearly
+# (scipy's ``least_squares(loss="soft_l1")``; the scale is common practice, no source).
+ROBUST_SCALE = 3.0
+# Decades beyond the measured band over which the model's landmarks are still looked
+# for when the data cannot give them.
+LANDMARK_REACH = 2.0
 
 
 class ModelMismatchError(FitError):
@@ -85,19 +97,30 @@ class FitQuality:
 
     ``rms_log_error``: RMS over used points of ``|ln Zmodel − ln Zmeasured|`` (0.01 is
     about 1 % in magnitude and 0.6° in phase); ``max_abs_log_error`` its maximum.
+    ``noise_ratio``: ``rms_log_error`` over the RMS of the points' relative uncertainty,
+    the error the noise alone predicts (1 is a fit down to the noise; above about 1.5 the
+    model misses something the data show). ``chi2_reduced``: ``Σ|e|²/u²`` over the
+    degrees of freedom ``n − k/2`` (n points of two components, k elements).
+    ``points_excluded``: points inside the window the screening left out.
     """
 
     rms_log_error: float
     max_abs_log_error: float
     points_used: int
     points_outside_window: int
+    noise_ratio: float = math.nan
+    chi2_reduced: float = math.nan
+    points_excluded: int = 0
 
-    def to_dict(self) -> dict[str, float | int]:
+    def to_dict(self) -> dict[str, float | int | None]:
         return {
             "rms_log_error": self.rms_log_error,
             "max_abs_log_error": self.max_abs_log_error,
+            "noise_ratio": None if math.isnan(self.noise_ratio) else self.noise_ratio,
+            "chi2_reduced": None if math.isnan(self.chi2_reduced) else self.chi2_reduced,
             "points_used": self.points_used,
             "points_outside_window": self.points_outside_window,
+            "points_excluded": self.points_excluded,
         }
 
 
@@ -121,12 +144,16 @@ class Candidate:
 class FitResult:
     """A fitted equivalent circuit.
 
-    ``elements`` and ``uncertainties`` (one sigma) in SI units (Ω, H, F); ``landmarks``
-    computed from the fitted model on the measured grid, ``landmark_uncertainties``
+    ``elements`` and ``uncertainties`` (one sigma) in SI units (Ω, H, F; ``D`` in F and
+    ``S`` in Ω at 1 MHz, see ``bench.core.models.network``); ``landmarks`` read from the
+    measured points where they hold them and from the fitted model otherwise, as
+    ``landmark_sources`` says (``"data"`` or ``"model"``); ``landmark_uncertainties``
     their one-sigma uncertainties propagated from the elements (None where a landmark
     is undefined); ``f_range`` (Hz) the span of the points used; ``candidates`` every
-    family and order tried, with its criterion. ``meets_quality`` is
-    ``rms_log_error <= quality_bound``.
+    family and order tried, with its criterion; ``excluded`` the points the screening
+    left out (reason, count, band) and ``point_status`` the fate of every input point
+    (``used``, ``outside-window``, ``left-out``, ``unusable``, ``negative-resistance``,
+    ``glitch``, ``band-edge``). ``meets_quality`` is ``rms_log_error <= quality_bound``.
     """
 
     model: str
@@ -141,6 +168,10 @@ class FitResult:
     f_range: tuple[float, float] = (math.nan, math.nan)
     candidates: tuple[Candidate, ...] = field(default=())
     landmark_uncertainties: dict[str, float | None] = field(default_factory=dict)
+    landmark_sources: dict[str, str | None] = field(default_factory=dict)
+    excluded: tuple[Exclusion, ...] = ()
+    point_status: tuple[str, ...] = ()
+    circuit: Node | None = None
 
     @property
     def meets_quality(self) -> bool:
@@ -152,11 +183,18 @@ class FitResult:
 
     def impedance(self, f: Any) -> NDArray[np.complex128]:
         """Model impedance (Ω) at ``f`` (Hz, > 0)."""
-        return self.family.impedance(np.asarray(f, dtype=float), self.elements)
+        if self.circuit is None:
+            return self.family.impedance(np.asarray(f, dtype=float), self.elements)
+        f = np.asarray(f, dtype=float)
+        if np.any(~np.isfinite(f)) or np.any(f <= 0):
+            raise ValueError(f"model {self.model}: frequencies must be finite and above 0 Hz")
+        return network_impedance(self.circuit, f, self.elements)
 
     def spice_lines(self) -> list[str]:
         """SPICE element lines of the model between pins 1 and 2."""
-        return self.family.spice_lines(self.elements)
+        if self.circuit is None:
+            return self.family.spice_lines(self.elements)
+        return spice_lines(self.circuit, self.elements)
 
     def to_json(self) -> dict[str, Any]:
         """The object ``zbench fit --json`` prints (without ``spice``); SI units."""
@@ -168,7 +206,9 @@ class FitResult:
             "uncertainties": dict(self.uncertainties),
             "landmark_uncertainties": dict(self.landmark_uncertainties),
             "landmarks": dict(self.landmarks),
+            "landmark_sources": dict(self.landmark_sources),
             "quality": self.quality.to_dict(),
+            "excluded": [e.to_dict() for e in self.excluded],
             "quality_bound": self.quality_bound,
             "meets_quality": self.meets_quality,
             "warnings": list(self.warnings),
@@ -179,6 +219,7 @@ class FitResult:
 class _Trial:
     family: ModelFamily
     order: int
+    node: Node
     values: dict[str, float]
     q: NDArray[np.float64]
     chi2: float
@@ -308,12 +349,11 @@ def _fit_order(
     previous: Mapping[str, float] | None,
     starts: list[dict[str, float]] | None = None,
 ) -> _Trial:
+    node = family.circuit_for(order, f)
     names = family.element_names(order)
-    node = family.circuit(order)
     limits = family.element_bounds(order, f, landmarks)
     lo = np.log([limits[n][0] for n in names])
     hi = np.log([limits[n][1] for n in names])
-    m = 2 * f.size
     k = len(names)
 
     # Every start runs to convergence on a thinned grid (every few points, at most
@@ -347,10 +387,19 @@ def _fit_order(
         if not refined:
             raise FitError(f"model {family.name} (order {order}): the fit did not converge")
         best = min(refined, key=lambda r: r[0])
-    chi2, q = best
+    return _make_trial(family, order, node, best[1], lo, hi, f, z, weight)
+
+
+def _make_trial(family, order, node, q, lo, hi, f, z, weight) -> _Trial:
+    """The trial of ``family``/``order`` at log values ``q``, with its criterion, the
+    elements at a bound and the relative uncertainty of every element."""
+    names = family.element_names(order)
+    m = 2 * f.size
+    k = len(names)
     values = dict(zip(names, (float(v) for v in np.exp(q)), strict=True))
     zm = network_impedance(node, f, values)
     err = np.abs(np.log(zm / z))
+    chi2 = float(np.sum((err * weight) ** 2))
     # Known-variance form: the weights are the points' uncertainties (with the model-error
     # floor), so χ² is on an absolute scale and each element must lower it by ln(m).
     bic = chi2 + k * math.log(m)
@@ -369,12 +418,59 @@ def _fit_order(
         if qi - a < PINNED_LOG or b - qi < PINNED_LOG
     )
     trial = _Trial(
-        family, order, values, q, chi2, bic, float(np.sqrt(np.mean(err**2))), at_bound, pinned
+        family,
+        order,
+        node,
+        values,
+        q,
+        chi2,
+        bic,
+        float(np.sqrt(np.mean(err**2))),
+        at_bound,
+        pinned,
     )
     cov = _covariance(trial, f, z, weight)
     sigma_log = np.sqrt(np.clip(np.diag(cov), 0.0, None))
     rel = {n: float(s) for n, s in zip(names, sigma_log, strict=True)}
-    return _Trial(family, order, values, q, chi2, bic, trial.rms, at_bound, pinned, rel_sigma=rel)
+    return _Trial(
+        family, order, node, values, q, chi2, bic, trial.rms, at_bound, pinned, rel_sigma=rel
+    )
+
+
+def _robust_refine(trial: _Trial, f, z, weight, landmarks: Landmarks) -> _Trial:
+    """The chosen trial solved once more with a soft-L1 loss (scipy's ``least_squares``,
+    scale :data:`ROBUST_SCALE` in units of a point's uncertainty), so that a few points
+    the screening let through cannot pull the fit; kept only when it stays as good in
+    plain least squares within the noise (χ² up by less than the number of elements)."""
+    family, order = trial.family, trial.order
+    names = family.element_names(order)
+    limits = family.element_bounds(order, f, landmarks)
+    lo = np.log([limits[n][0] for n in names])
+    hi = np.log([limits[n][1] for n in names])
+    residuals, jacobian = _objective(trial.node, names, f, z, weight)
+    span = hi - lo
+    q0 = np.clip(trial.q, lo + 1e-9 * span, hi - 1e-9 * span)
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        sol = least_squares(
+            residuals,
+            q0,
+            jac=jacobian,
+            bounds=(lo, hi),
+            method="trf",
+            loss="soft_l1",
+            f_scale=ROBUST_SCALE,
+            max_nfev=20 * (len(names) + 1),
+            ftol=1e-7,
+            xtol=1e-7,
+            gtol=1e-7,
+        )
+    if not np.all(np.isfinite(sol.x)):
+        return trial
+    refined = _make_trial(family, order, trial.node, sol.x, lo, hi, f, z, weight)
+    # A sanity bound only: on clean data the two solutions agree to the noise.
+    if not np.isfinite(refined.chi2) or refined.rms > 1.5 * trial.rms + 1e-12:
+        return trial
+    return refined
 
 
 def _lowest_bic(trials: list[_Trial]) -> _Trial:
@@ -420,7 +516,7 @@ def _select(trials: list[_Trial], quality_bound: float) -> tuple[_Trial, bool]:
 def _covariance(trial: _Trial, f, z, weight) -> NDArray[np.float64]:
     """Covariance of the log element values, from the Jacobian at the solution, scaled by
     the residual variance χ²/(m − k)."""
-    zm, jac = impedance_and_jacobian(trial.family.circuit(trial.order), f, trial.values)
+    zm, jac = impedance_and_jacobian(trial.node, f, trial.values)
     d = jac / zm * weight
     jm = np.concatenate([d.real.T, d.imag.T])
     m, k = jm.shape
@@ -440,7 +536,7 @@ def _landmark_uncertainties(
     """One-sigma uncertainty of each model landmark, propagated from the element
     covariance through the landmark's derivatives (finite differences in log values)."""
     names = trial.family.element_names(trial.order)
-    node = trial.family.circuit(trial.order)
+    node = trial.node
     step = 1e-4
     grads = []
     for name in names:
@@ -462,7 +558,7 @@ def _candidates(
     model: str, kind: str, order: int | None
 ) -> list[tuple[ModelFamily, tuple[int, ...]]]:
     if model == "auto":
-        return [(FAMILIES[name], orders) for name, orders in AUTO_CANDIDATES[kind]]
+        return [(FAMILIES[name], orders) for name, orders in auto_candidates(kind)]
     family = FAMILIES[model]
     if order is not None:
         if order not in family.orders:
@@ -484,10 +580,15 @@ def _resonance_warnings(
     srf = model_marks.get("srf")
     what = "series resonance" if kind == "capacitor" else "parallel resonance"
     out = []
-    if srf is None:
+    if srf is None or not f[0] <= srf <= f[-1]:
         out.append(
             f"the model's {what} lies outside the sweep "
-            f"({format_si(f[0], 'Hz')} to {format_si(f[-1], 'Hz')}); srf is not given"
+            f"({format_si(f[0], 'Hz')} to {format_si(f[-1], 'Hz')}); "
+            + (
+                "srf is not given"
+                if srf is None
+                else f"srf ({format_si(srf, 'Hz')}) is the model's extrapolation"
+            )
         )
         return out
     nearest = int(np.argmin(np.abs(np.log(f / srf))))
@@ -602,7 +703,9 @@ def _fit_family(
         if trial.bic > best_bic:
             break  # the criterion has turned; higher orders will not pay
         best_bic = min(best_bic, trial.bic)
-        overall = min(t.chi2 for t in [*others, *out])
+        # Compared with fits of no more elements: a higher order of another family may
+        # fit far better now, and this family's next order catch up.
+        overall = min(t.chi2 for t in [*others, *out] if t.q.size <= trial.q.size)
         if trial.chi2 > HOPELESS_FACTOR * overall:
             break  # another family fits far better; more orders of this one will not catch up
     return out
@@ -644,7 +747,11 @@ def fit_impedance(
             hint="give one True/False mark per frequency point",
         )
     finite = np.isfinite(z) & (z != 0) & np.isfinite(sigma)
-    used = finite & inside & ~left_out
+    candidates_ok = finite & inside & ~left_out
+    negative = candidates_ok & robust.negative_resistance(
+        np.where(finite, z, 0), np.where(finite, sigma, 0)
+    )
+    used = candidates_ok & ~negative
     warnings: list[str] = []
     n_unusable = int(np.count_nonzero(~finite))
     if n_unusable:
@@ -658,11 +765,10 @@ def fit_impedance(
     if n_used < MIN_POINTS:
         raise FitError(
             f"only {n_used} of {f.size} points are usable (inside the measurable window, "
-            f"finite); a fit needs at least {MIN_POINTS}. Widen the sweep, raise the "
-            "signal, or fit series resistors to move the window onto the part"
+            f"finite, no negative resistance); a fit needs at least {MIN_POINTS}. Widen the "
+            "sweep, raise the signal, or fit series resistors to move the window onto the part"
         )
-    fu, zu = f[used], z[used]
-    kind = classify(fu, zu)
+    kind = classify(f[used], z[used])
     if model != "auto" and FAMILIES[model].kind != kind:
         fits = [name for name, fam in FAMILIES.items() if fam.kind == kind]
         raise ModelMismatchError(
@@ -670,32 +776,86 @@ def fit_impedance(
             f"{'capacitive' if kind == 'capacitor' else 'inductive'} at its lowest "
             f"frequencies, so it is a {kind}; use --model auto or one of {', '.join(fits)}"
         )
-    weight = 1.0 / np.hypot(np.clip(sigma[used], 1e-6, None), MODEL_ERROR_FLOOR)
-    data_marks = landmarks_for(kind, fu, zu)
+    u_all = np.clip(np.where(finite, sigma, 1.0), 1e-6, None)
+    all_weight = 1.0 / np.hypot(u_all, MODEL_ERROR_FLOOR)
 
-    # The fit runs on at most MAX_FIT_POINTS of the points (all of them, usually).
+    def choose(mask):
+        fu, zu, weight = f[mask], z[mask], all_weight[mask]
+        marks = landmarks_for(kind, fu, zu)
+        n = int(np.count_nonzero(mask))
+        # The fit runs on at most MAX_FIT_POINTS of the points (all of them, usually).
+        pick = _spread_in_log(fu, MAX_FIT_POINTS)
+        fs, zs, ws = fu[pick], zu[pick], weight[pick]
+        trials: list[_Trial] = []
+        for family, orders in _candidates(model, kind, order):
+            trials += _fit_family(family, orders, fs, zs, ws, marks, trials, n)
+        if not trials:
+            raise FitError(f"too few points ({n}) for any order of model {model!r}")
+        return trials, marks, _select(trials, quality_bound)
+
+    trials, data_marks, (best, unsupported) = choose(used)
+    glitch, edge = _screen(f, z, candidates_ok, negative, all_weight, best)
+    screened = used & ~glitch & ~edge
+    if np.count_nonzero(screened) < n_used and np.count_nonzero(screened) >= MIN_POINTS:
+        # Every candidate again on the screened points, from where it ended: one start.
+        used = screened
+        n_used = int(np.count_nonzero(used))
+        fu, zu, weight = f[used], z[used], all_weight[used]
+        data_marks = landmarks_for(kind, fu, zu)
+        pick = _spread_in_log(fu, MAX_FIT_POINTS)
+        fs, zs, ws = fu[pick], zu[pick], weight[pick]
+        trials = [
+            _fit_order(t.family, t.order, fs, zs, ws, data_marks, None, starts=[t.values])
+            for t in trials
+        ]
+        best, unsupported = _select(trials, quality_bound)
+    else:
+        glitch[:] = False
+        edge[:] = False
+    fu, zu, weight = f[used], z[used], all_weight[used]
     pick = _spread_in_log(fu, MAX_FIT_POINTS)
     fs, zs, ws = fu[pick], zu[pick], weight[pick]
-    trials: list[_Trial] = []
-    for family, orders in _candidates(model, kind, order):
-        trials += _fit_family(family, orders, fs, zs, ws, data_marks, trials, n_used)
-    if not trials:
-        raise FitError(f"too few points ({n_used}) for any order of model {model!r}")
-    best, unsupported = _select(trials, quality_bound)
+    best = _robust_refine(best, fs, zs, ws, data_marks)
 
-    zm = network_impedance(best.family.circuit(best.order), fu, best.values)
+    status = np.full(f.size, "used", dtype=object)
+    status[~finite] = "unusable"
+    status[finite & ~inside] = "outside-window"
+    status[finite & inside & left_out] = "left-out"
+    status[negative] = "negative-resistance"
+    status[glitch] = "glitch"
+    status[edge] = "band-edge"
+    excluded = tuple(
+        e
+        for e in (
+            robust.exclusion(reason, f, status == reason)
+            for reason in ("negative-resistance", "glitch", "band-edge")
+        )
+        if e is not None
+    )
+    for e in excluded:
+        warnings.append(
+            f"{e.count} points left out as {e.reason} "
+            f"({format_si(e.f_lo, 'Hz')} to {format_si(e.f_hi, 'Hz')})"
+        )
+
+    zm = network_impedance(best.node, fu, best.values)
     err = np.abs(np.log(zm / zu))
+    u = u_all[used]
+    k = best.q.size
     quality = FitQuality(
         rms_log_error=float(np.sqrt(np.mean(err**2))),
         max_abs_log_error=float(np.max(err)),
         points_used=n_used,
         points_outside_window=n_outside,
+        noise_ratio=float(np.sqrt(np.mean(err**2) / np.mean(u**2))),
+        chi2_reduced=float(np.sum((err / u) ** 2) / max(n_used - k / 2, 1.0)),
+        points_excluded=int(sum(e.count for e in excluded)),
     )
-    model_marks = landmarks_for(
-        kind, f, network_impedance(best.family.circuit(best.order), f, best.values)
-    )
+    model_marks = _model_landmarks(kind, f, best)
+    cut = (bool(np.any(edge & (f < fu[0]))), bool(np.any(edge & (f > fu[-1]))))
+    marks, sources = _merge_landmarks(data_marks, model_marks, cut)
     warnings += _resonance_warnings(kind, f, used, model_marks, data_marks)
-    warnings += _low_frequency_warnings(kind, f, z, sigma, used, model_marks, left_out.any())
+    warnings += _low_frequency_warnings(kind, f, z, sigma, used, marks, left_out.any())
     if best.at_bound:
         warnings.append(
             f"elements {', '.join(best.at_bound)} ended at the edge of their allowed range; "
@@ -720,7 +880,8 @@ def fit_impedance(
         elements=dict(best.values),
         uncertainties=_uncertainties(best, cov),
         landmark_uncertainties=_landmark_uncertainties(best, cov, kind, f, model_marks),
-        landmarks=model_marks,
+        landmarks=marks,
+        landmark_sources=sources,
         quality=quality,
         warnings=tuple(warnings),
         order=best.order,
@@ -729,4 +890,70 @@ def fit_impedance(
         candidates=tuple(
             Candidate(t.family.name, t.order, float(t.bic), t.rms, t.supported) for t in trials
         ),
+        excluded=excluded,
+        point_status=tuple(str(x) for x in status),
+        circuit=best.node,
     )
+
+
+def _screen(f, z, candidates, negative, weight, best: _Trial):
+    """Glitches and band edges (``bench.core.robust``) on the residuals of ``best`` over
+    the ``candidates`` points (negative-resistance points count as infinitely far off)."""
+    idx = np.flatnonzero(candidates)
+    with np.errstate(all="ignore"):
+        zm = network_impedance(best.node, f[idx], best.values)
+        residual = np.abs(np.log(zm / z[idx])) * weight[idx]
+    neg = negative[idx]
+    glitch = np.zeros(f.size, bool)
+    edge = np.zeros(f.size, bool)
+    edge[idx] = robust.band_edges(np.where(neg, np.inf, residual), neg)
+    glitch[idx] = robust.glitches(np.where(neg, 0.0, residual)) & ~neg
+    return glitch & ~edge, edge
+
+
+def _model_landmarks(kind: str, f: NDArray[np.float64], trial: _Trial) -> Landmarks:
+    """Landmarks of the fitted model: on the measured grid, and where the grid cannot
+    give one, on a grid reaching :data:`LANDMARK_REACH` decades beyond it; a capacitance
+    or inductance still missing is the model's low-frequency value (the slope of its
+    reactance far below the band)."""
+    marks = landmarks_for(kind, f, network_impedance(trial.node, f, trial.values))
+    if all(v is not None for v in marks.values()):
+        return marks
+    reach = 10**LANDMARK_REACH
+    wide = np.geomspace(f[0] / reach, f[-1] * reach, 60 * int(2 * LANDMARK_REACH + 1) + f.size)
+    more = landmarks_for(kind, wide, network_impedance(trial.node, wide, trial.values))
+    out = {key: (value if value is not None else more.get(key)) for key, value in marks.items()}
+    f_low = np.array([f[0] / reach])
+    z_low = network_impedance(trial.node, f_low, trial.values)[0]
+    w_low = 2 * np.pi * float(f_low[0])
+    if kind == "capacitor" and out.get("c_low") is None and z_low.imag < 0:
+        out["c_low"] = float(-1.0 / (w_low * z_low.imag))
+    if kind == "inductor" and out.get("l_low") is None and z_low.imag > 0:
+        out["l_low"] = float(z_low.imag / w_low)
+    return out
+
+
+# Landmarks read at the bottom or the top of the sweep (``bench.core.landmarks``): when
+# the screening cut that edge off, the measured points no longer hold them.
+BOTTOM_LANDMARKS = ("c_low", "l_low", "r_dc")
+TOP_LANDMARKS = ("esl",)
+
+
+def _merge_landmarks(
+    data: Landmarks, model: Landmarks, cut: tuple[bool, bool] = (False, False)
+) -> tuple[Landmarks, dict[str, str | None]]:
+    """Each landmark from the measured points where they give it, else from the model;
+    with its source (``"data"``, ``"model"``, or None where neither gives one). ``cut``
+    says whether the bottom and the top of the band were left out as band edges."""
+    order = list(model) + [k for k in data if k not in model]
+    lost = (BOTTOM_LANDMARKS if cut[0] else ()) + (TOP_LANDMARKS if cut[1] else ())
+    marks: Landmarks = {}
+    sources: dict[str, str | None] = {}
+    for key in order:
+        if data.get(key) is not None and not (key in lost and model.get(key) is not None):
+            marks[key], sources[key] = data[key], "data"
+        elif model.get(key) is not None:
+            marks[key], sources[key] = model[key], "model"
+        else:
+            marks[key], sources[key] = None, None
+    return marks, sources

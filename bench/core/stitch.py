@@ -5,8 +5,8 @@ Each set-up (a method, a series-resistor board, an analyser) gives an
 uncertainty. :func:`stitch` puts them on the union of their frequency grids and, at each
 frequency, averages the complex log impedance of the set-ups whose point lies inside
 their window, each weighted by the inverse of its variance (``1/u²``, ``u`` the relative
-one-sigma uncertainty, which is the sigma of Re and Im of ln Z). The merged uncertainty
-is ``1/√Σ(1/u²)``.
+one-sigma uncertainty, which is the sigma of Re and Im of ln Z; docs/references.md §10).
+The merged uncertainty is ``1/√Σ(1/u²)``.
 
 Where two set-ups overlap they must agree within their uncertainties: a run of at least
 ``min_points`` consecutive common points (gaps of up to two points bridged) where

@@ -16,6 +16,7 @@ from jsonschema.exceptions import ValidationError
 
 from bench.errors import ProcedureError
 from bench.procedure.schema import PROCEDURE_SCHEMA, validator
+from drivers.safe_yaml import YamlRefusedError, compose_text, construct_scalar, read_text
 
 PathKey = tuple[Any, ...]
 
@@ -83,24 +84,21 @@ def _build(node: yaml.Node, path: PathKey, lines: dict[PathKey, int], source: st
     if isinstance(node, yaml.SequenceNode):
         return [_build(item, (*path, i), lines, source) for i, item in enumerate(node.value)]
     # Scalars: the resolver already chose the tag (int, float, bool, str ...).
-    return yaml.SafeLoader("").construct_object(node, deep=True)
+    try:
+        return construct_scalar(node)
+    except YamlRefusedError as exc:
+        raise ProcedureError(
+            exc.message, path=source, line=exc.line, key=dotted(path), hint=exc.hint
+        ) from None
 
 
 def parse_text(text: str, source: str = "<procedure>") -> SourceDocument:
     """Parse YAML ``text`` into a :class:`SourceDocument` (no schema check yet)."""
     try:
-        node = yaml.compose(text, Loader=yaml.SafeLoader)
-    except yaml.MarkedYAMLError as exc:
-        mark = exc.problem_mark or exc.context_mark
-        line = mark.line + 1 if mark is not None else None
-        raise ProcedureError(
-            f"not valid YAML: {exc.problem or exc}",
-            path=source,
-            line=line,
-            hint="check the indentation and the quoting on that line",
-        ) from None
-    except yaml.YAMLError as exc:
-        raise ProcedureError(f"not valid YAML: {exc}", path=source) from None
+        # Bounded: size, nesting, alias expansion, tags and merge keys (drivers.safe_yaml).
+        node = compose_text(text)
+    except YamlRefusedError as exc:
+        raise ProcedureError(exc.message, path=source, line=exc.line, hint=exc.hint) from None
     if node is None:
         raise ProcedureError(
             "the file is empty", path=source, hint="start from one of the files in procedures/"
@@ -214,10 +212,18 @@ def load_document(path: str | Path) -> SourceDocument:
     """Read and schema-check a procedure file; raise the first error (all are in ``errors``)."""
     source = Path(path)
     try:
-        text = source.read_text(encoding="utf-8")
+        text = read_text(source)
     except FileNotFoundError:
         raise ProcedureError(
             "no such procedure file", path=str(source), hint="check the path"
+        ) from None
+    except YamlRefusedError as exc:
+        raise ProcedureError(exc.message, path=str(source), hint=exc.hint) from None
+    except OSError as exc:
+        raise ProcedureError(
+            f"cannot read the procedure file ({exc.strerror or type(exc).__name__})",
+            path=str(source),
+            hint="check the path and its permissions",
         ) from None
     except UnicodeDecodeError:
         raise ProcedureError(

@@ -554,9 +554,24 @@ def build_plan(doc: SourceDocument) -> Plan:
         else:
             samples = tuple(samples_value)
         bias_points: list[float] = []
+        tags: dict[str, int] = {}
         for j, _ in enumerate(p.get("bias", [0.0])):
             value = attempt(_number, doc, ("parts", i, "bias", j), "V", 0.0)
-            bias_points.append(0.0 if value is None else value)
+            value = 0.0 if value is None else value
+            # Equal after unit parsing ([2 V, 2000 mV]), or equal in step ids and file
+            # names (bias_tag keeps six digits): one step, so one entry.
+            tag = bias_tag(value)
+            if tag in tags:
+                errors.append(
+                    doc.error(
+                        ("parts", i, "bias", j),
+                        f"the same bias point as bias[{tags[tag]}] ({tag})",
+                        hint="remove the repeated point",
+                    )
+                )
+                continue
+            tags[tag] = j
+            bias_points.append(value)
         stated = p.get("method", DEFAULT_METHOD[kind])
         methods = (stated,) if isinstance(stated, str) else tuple(stated)
         if kind not in ("mlcc", "bulk"):
@@ -602,7 +617,13 @@ def build_plan(doc: SourceDocument) -> Plan:
         raise ProcedureErrors(errors)
     steps = _steps(provisional)
     resolved = _resolved(provisional)
-    return Plan(**{**provisional.__dict__, "steps": steps, "resolved": resolved})
+    plan = Plan(**{**provisional.__dict__, "steps": steps, "resolved": resolved})
+    from bench.procedure.outputs import output_errors
+
+    clashes = output_errors(doc, plan)
+    if clashes:
+        raise ProcedureErrors(clashes)
+    return plan
 
 
 def _check_steps(doc: SourceDocument, steps: tuple[str, ...], errors: list[ProcedureError]) -> None:

@@ -25,6 +25,7 @@ from bench.core.fixture import MountOpen, fit_mount, fit_open
 from bench.core.impedance import ImpedanceData, impedance_from_shunt_through
 from bench.core.window import floor_on_through_db
 from bench.errors import FitError, RunError
+from bench.parallel import ordered_map
 from bench.procedure.plan import SHUNT, SINGLE_MOUNT_METHODS, Analysis, Plan, Step
 from bench.results import RunSummary, SampleResult
 from bench.runstore import DONE, RunStore
@@ -455,11 +456,13 @@ def build_summary(
     analysis: Analysis | None = None,
     model_override: str | None = None,
     fit: bool = True,
+    jobs: int | None = None,
 ) -> RunSummary:
     """Recompute every sample of a run from its raw sweeps into a :class:`RunSummary`.
 
     ``analysis`` and ``model_override`` replace the procedure's settings (reprocess);
     measure steps that were skipped or never ran are left out, and said so in warnings.
+    The samples are fitted on up to ``jobs`` processes (all cores when None).
     """
     analysis = analysis or plan.analysis
     corrector = Corrector.from_store(store, plan)
@@ -504,7 +507,6 @@ def build_summary(
                 warnings.append(
                     f"no {single.CAPTURE_WORDS[(m, kind)]} capture of the {m} mount; not removed"
                 )
-    samples: list[SampleResult] = []
     groups: dict[tuple[str, str, float], list[Step]] = {}
     for step in plan.steps:
         if step.kind != "measure":
@@ -516,29 +518,34 @@ def build_summary(
         assert step.placement is not None
         key = (step.placement.part, step.placement.sample, step.bias_v)
         groups.setdefault(key, []).append(step)
+    unfitted: list[tuple[SampleResult, tuple[str, ImpedanceData, float]]] = []
+    shunt = {"shorts": shorts, "pads": pads, "loops": loops}
     for steps in groups.values():
         if len(steps) == 1 and steps[0].method == SHUNT:
-            samples.append(
+            unfitted.append(
                 _sample(
-                    store,
-                    plan,
-                    analysis,
-                    corrector,
-                    steps[0],
-                    shorts,
-                    pads,
-                    loops,
-                    model_override,
-                    fit,
+                    store, plan, analysis, corrector, steps[0], shorts, pads, loops, model_override
                 )
             )
-            continue
-        shunt = {"shorts": shorts, "pads": pads, "loops": loops}
-        samples.append(
-            _setups_sample(
-                store, plan, analysis, corrector, steps, shunt, mounts, model_override, fit
+        else:
+            unfitted.append(
+                _setups_sample(
+                    store, plan, analysis, corrector, steps, shunt, mounts, model_override
+                )
             )
-        )
+    samples = [sample for sample, _ in unfitted]
+    if fit:
+        # The fits run on up to `jobs` processes (all cores by default), in sample order.
+        fits = ordered_map(_fit_task, [task for _, task in unfitted], jobs)
+        samples = [
+            replace(
+                sample,
+                fit=result,
+                fit_error=error,
+                warnings=(*sample.warnings, *(getattr(result, "warnings", ()) or ())),
+            )
+            for sample, (result, error) in zip(samples, fits, strict=True)
+        ]
     loop_info = {
         str(pos): {
             "detected": r.detected,
@@ -615,8 +622,8 @@ def _sample(
     pads: dict[int, MountOpen],
     loops: dict[int, GroundLoopResult],
     model_override: str | None,
-    fit: bool,
-) -> SampleResult:
+) -> tuple[SampleResult, tuple[str, ImpedanceData, float]]:
+    """A sample's result before its fit, and the fit's task (model, data, valid above)."""
     placement = step.placement
     assert placement is not None
     f, s_raw = averaged(store, step.id)
@@ -630,7 +637,6 @@ def _sample(
     valid_above = loop.valid_above_hz if detected and not removed else 0.0
     part = plan.part(placement.part)
     model = model_override or part.spec.model
-    result, error = fit_sample(model, data, valid_above) if fit else (None, None)
     notes: tuple[str, ...] = ()
     if removed:
         notes = ("ground loop: removed with the measured mount short (all points kept)",)
@@ -642,21 +648,24 @@ def _sample(
             f"ground loop: {below} point{'s' if below != 1 else ''} below "
             f"{format_si(valid_above, 'Hz')} not used (a fitted mount cannot follow the loop)",
         )
-    if result is not None and getattr(result, "warnings", ()):
-        notes = (*notes, *result.warnings)
     files = store.step_files(step.id)
-    return SampleResult(
+    sample = SampleResult(
         part=placement.part,
         sample=placement.sample,
         data=data,
-        fit=result,
+        fit=None,
         bias_v=step.bias_v,
         position=placement.position,
         raw_file=files[0] if files else None,
         corrected_s=corrected,
-        fit_error=error,
         warnings=notes,
     )
+    return sample, (model, data, valid_above)
+
+
+def _fit_task(task: tuple[str, ImpedanceData, float]) -> tuple[Any, str | None]:
+    """:func:`fit_sample` of one (model, data, valid above) task: a worker's job."""
+    return fit_sample(*task)
 
 
 def with_analysis(plan: Plan, **changes: Any) -> Analysis:
@@ -673,10 +682,10 @@ def _setups_sample(
     shunt: dict[str, Any],
     mounts: dict[str, Any],
     model_override: str | None,
-    fit: bool,
-) -> SampleResult:
-    """One sample measured on a single mount, or several ways and stitched into one curve;
-    each set-up's data (with its own window) is kept in ``setups``."""
+) -> tuple[SampleResult, tuple[str, ImpedanceData, float]]:
+    """One sample measured on a single mount, or several ways and stitched into one curve
+    (before its fit, and the fit's task); each set-up's data, with its own window, is
+    kept in ``setups``."""
     from bench.procedure import methods as single
 
     first = steps[0]
@@ -690,7 +699,7 @@ def _setups_sample(
         files = store.step_files(step.id)
         raw_file = raw_file or (files[0] if files else None)
         if step.method == SHUNT:
-            r = _sample(
+            r, _ = _sample(
                 store,
                 plan,
                 analysis,
@@ -700,7 +709,6 @@ def _setups_sample(
                 shunt["pads"],
                 shunt["loops"],
                 None,
-                False,
             )
             setups.append((SHUNT, r.data))
             notes.extend(r.warnings)
@@ -715,19 +723,16 @@ def _setups_sample(
     notes.extend(disagreements)
     part = plan.part(first.placement.part)
     model = model_override or part.spec.model
-    result, error = fit_sample(model, data) if fit else (None, None)
-    if result is not None and getattr(result, "warnings", ()):
-        notes.extend(result.warnings)
-    return SampleResult(
+    sample = SampleResult(
         part=first.placement.part,
         sample=first.placement.sample,
         data=data,
-        fit=result,
+        fit=None,
         bias_v=first.bias_v,
         position=position,
         raw_file=raw_file,
         corrected_s=corrected if len(setups) == 1 else None,
-        fit_error=error,
         warnings=tuple(dict.fromkeys(notes)),
         setups=tuple(setups),
     )
+    return sample, (model, data, 0.0)

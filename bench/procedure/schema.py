@@ -55,6 +55,7 @@ import jsonschema
 from jsonschema import Draft202012Validator
 from jsonschema.exceptions import ValidationError
 
+from bench.core.model_registry import FAMILY_NAMES
 from bench.units import QuantityError, parse_quantity
 
 STEP_NAMES = ("calibrate", "mount_open", "mount_short", "measure", "fit", "export", "report")
@@ -62,8 +63,12 @@ STEP_NAMES = ("calibrate", "mount_open", "mount_short", "measure", "fit", "expor
 DEFAULT_STEPS = tuple(name for name in STEP_NAMES if name != "mount_open")
 #: The ways a part is measured (each with its mount, calibration and fixture removal).
 METHOD_NAMES = ("shunt-through", "series-through", "reflection")
-MODEL_NAMES = ("auto", "series-rlc", "two-branch", "ladder", "inductor", "bead")
+#: ``auto`` and every family of the one registry of model families.
+MODEL_NAMES = ("auto", *FAMILY_NAMES)
 PART_KINDS = ("mlcc", "bulk", "inductor", "bead")
+# A name used in file names, step ids and SCPI lines. ``\Z``, not ``$``: jsonschema
+# searches with Python's ``re``, where ``$`` also matches before a final newline.
+NAME_PATTERN = r"^[A-Za-z0-9][A-Za-z0-9._-]*\Z"
 
 
 def _quantity(unit: str | None, description: str) -> dict[str, Any]:
@@ -103,7 +108,7 @@ _PART = {
     "additionalProperties": False,
     "required": ["name", "kind"],
     "properties": {
-        "name": {"type": "string", "pattern": "^[A-Za-z0-9][A-Za-z0-9._-]*$"},
+        "name": {"type": "string", "pattern": NAME_PATTERN},
         "kind": {"enum": list(PART_KINDS)},
         "nominal": _quantity(None, "F for mlcc/bulk, H for inductor, ohm for bead"),
         "tolerance": {"type": ["number", "string"], "description": "fraction or percent"},
@@ -130,7 +135,7 @@ _PART = {
                     "type": "array",
                     "minItems": 1,
                     "uniqueItems": True,
-                    "items": {"type": "string", "pattern": "^[A-Za-z0-9][A-Za-z0-9._-]*$"},
+                    "items": {"type": "string", "pattern": NAME_PATTERN},
                 },
             ]
         },
@@ -149,7 +154,7 @@ PROCEDURE_SCHEMA: dict[str, Any] = {
     "additionalProperties": False,
     "required": ["name", "sweep", "parts"],
     "properties": {
-        "name": {"type": "string", "pattern": "^[A-Za-z0-9][A-Za-z0-9._-]*$"},
+        "name": {"type": "string", "pattern": NAME_PATTERN},
         "description": {"type": "string"},
         "mode": {"enum": ["guided", "unattended"]},
         "instruments": {

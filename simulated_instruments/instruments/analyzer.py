@@ -71,9 +71,10 @@ class Sweep:
 
 
 def encode_values(values: np.ndarray, data_format: str, byte_order: str) -> bytes | str:
-    """Values as ASCII (full precision, comma-separated) or a REAL,64 block."""
-    if data_format == "REAL":
-        dtype = ">f8" if byte_order == "NORMAL" else "<f8"
+    """Values as ASCII (full precision, comma-separated), a REAL,64 or a REAL,32 block."""
+    if data_format in ("REAL", "REAL32"):
+        size = "f8" if data_format == "REAL" else "f4"
+        dtype = (">" if byte_order == "NORMAL" else "<") + size
         return format_block(np.ascontiguousarray(values, dtype=dtype).tobytes())
     return ",".join(map(format_number, np.asarray(values, dtype=float).tolist()))
 

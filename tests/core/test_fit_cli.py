@@ -24,7 +24,7 @@ MLCC = EXAMPLES / "mlcc_22u.s2p"
 MOUNT = EXAMPLES / "mount_short.s2p"
 BULK = EXAMPLES / "bulk_330u.s2p"
 INDUCTOR = EXAMPLES / "inductor_2u2.s2p"
-BEAD = EXAMPLES / "bead_600r.z1p"
+BEAD = EXAMPLES / "bead_600r.s1p"
 
 QUALITY_KEYS = {"rms_log_error", "max_abs_log_error", "points_used", "points_outside_window"}
 
@@ -221,7 +221,7 @@ def bad_cases(tmp_path: Path) -> dict[str, tuple[list[object], str]]:
     ok = shunt_s2p(tmp_path / "ok.s2p", f, rlc(f))
     three = skrf.Network(frequency=skrf.Frequency.from_f(f, unit="Hz"), s=np.zeros((50, 3, 3)))
     three.write_touchstone(str(tmp_path / "three"))
-    one_s = skrf.Network(frequency=skrf.Frequency.from_f(f, unit="Hz"), s=np.zeros((50, 1, 1)))
+    one_s = skrf.Network(frequency=skrf.Frequency.from_f(f, unit="Hz"), s=np.full((50, 1, 1), 0.5))
     one_s.write_touchstone(str(tmp_path / "one_s"))
     freqs = list(np.logspace(3, 8, 20))
     freqs[7], freqs[8] = freqs[8], freqs[7]
@@ -235,7 +235,10 @@ def bad_cases(tmp_path: Path) -> dict[str, tuple[list[object], str]]:
             "Touchstone",
         ),
         "three ports": ([tmp_path / "three.s3p"], "3 ports"),
-        "one-port S": ([tmp_path / "one_s.s1p"], "must hold the part's impedance Z"),
+        "one-port S": (
+            [tmp_path / "one_s.s1p", "--method", "shunt-through"],
+            "is a one-port file, so it holds a reflection",
+        ),
         "frequencies not increasing": (
             [write_text(tmp_path / "order.s2p", s2p_lines(freqs))],
             "not strictly increasing",
@@ -316,7 +319,7 @@ def test_console_entry_point_gives_no_traceback(tmp_path):
 
 def test_one_port_z_file_round_trip(capsys, tmp_path):
     f = np.logspace(3, 8, 150)
-    path = write_touchstone_z(tmp_path / "part.z1p", f, rlc(f))
+    path = write_touchstone_z(tmp_path / "part.s1p", f, rlc(f))
     code, out, err = run(capsys, path, "--json")
     assert code in (0, 3), err
     landmarks = json_lines(out)[0]["landmarks"]

@@ -127,7 +127,8 @@ def test_ladder_follows_distributed_line_better_than_series_rlc():
 @pytest.mark.parametrize(
     ("part", "kind", "models"),
     [
-        (MLCC, "capacitor", {"two-branch"}),
+        # lossy-rlc order 2 is two-branch with the loss across the band added.
+        (MLCC, "capacitor", {"two-branch", "lossy-rlc"}),
         (BULK, "capacitor", {"ladder"}),
         (INDUCTOR, "inductor", {"inductor", "bead"}),
         (BEAD, "inductor", {"bead"}),
@@ -297,7 +298,10 @@ def test_resonance_beyond_the_sweep_still_fits_and_says_so():
     result = fit_impedance(data.f, data.z, rel_uncertainty=data.rel_uncertainty)
     assert result.kind == "capacitor"
     assert result.meets_quality
-    assert result.landmarks["srf"] is None
+    # Every landmark the model defines is given; this one is the model's extrapolation.
+    assert result.landmarks["srf"] is not None
+    assert result.landmark_sources["srf"] == "model"
+    assert result.landmark_sources["c_low"] == "data"
     assert result.landmarks["c_low"] == pytest.approx(
         landmarks_for("capacitor", f, part.impedance(f))["c_low"], rel=TOLERANCE["c_low"]
     )

@@ -52,14 +52,15 @@ def test_linear_sweep_of_an_inductor_finds_its_parallel_resonance():
     assert marks["l_low"] == pytest.approx(1e-6, rel=0.02)
 
 
-def test_running_median_is_the_plain_median_with_edges_repeated():
+@pytest.mark.parametrize(("size", "width"), [(301, 21), (30_001, 201)])
+def test_running_median_is_the_plain_median_with_edges_repeated(size, width):
+    # Small traces and large ones (scipy's filter) give the same medians.
     rng = np.random.default_rng(3)
-    y = rng.normal(size=301)
-    width = 21
+    y = rng.normal(size=size)
     half = width // 2
     padded = np.pad(y, half, mode="edge")
-    plain = np.array([np.median(padded[i : i + width]) for i in range(y.size)])
-    np.testing.assert_array_equal(landmarks._smooth(y, width), plain)
+    plain = np.array([np.median(padded[i : i + width]) for i in range(0, y.size, 97)])
+    np.testing.assert_array_equal(landmarks._smooth(y, width)[::97], plain)
 
 
 def test_points_spread_in_log_keep_sparse_stretches_and_bound_the_rest():
@@ -112,3 +113,32 @@ def test_million_point_landmarks_fit_in_bounded_memory():
     )
     assert done.returncode == 0, done.stderr
     assert float(done.stdout) == pytest.approx(2.2508e6, rel=1e-3)
+
+
+def test_file_with_too_many_points_is_refused_before_it_is_read(tmp_path):
+    from bench.errors import InputError
+    from bench.touchstone import MAX_POINTS, load_measurement
+
+    path = tmp_path / "long.s1p"
+    rows = np.column_stack(
+        [np.arange(1, MAX_POINTS + 2), np.ones(MAX_POINTS + 1), np.zeros(MAX_POINTS + 1)]
+    )
+    with path.open("w") as stream:
+        stream.write("! an invented long sweep\n# Hz Z RI R 50\n")
+        np.savetxt(stream, rows, fmt="%d")
+    with pytest.raises(InputError) as caught:
+        load_measurement(path)
+    text = str(caught.value)
+    assert str(path) in text and f"{MAX_POINTS + 1} data rows" in text
+    assert "fewer points" in caught.value.hint
+
+
+def test_huge_file_is_refused_by_its_size(tmp_path):
+    from bench.errors import InputError
+    from bench.touchstone import load_measurement
+
+    path = tmp_path / "huge.s2p"
+    with path.open("wb") as stream:
+        stream.truncate(300_000_000)  # sparse: nothing is written, nothing may be read
+    with pytest.raises(InputError, match="286 MiB"):
+        load_measurement(path)

@@ -164,3 +164,77 @@ def test_as_given_estimates_its_own_scatter() -> None:
     assert estimate_scatter(z).min() > 0
     given = impedance_as_given(f, z, rel_uncertainty=0.02)
     assert np.all(given.rel_uncertainty == 0.02)
+
+
+def _noisy(z: np.ndarray, window, rng: np.random.Generator) -> np.ndarray:
+    """``z`` with complex noise of a third of each point's predicted uncertainty."""
+    u = relative_uncertainty(z, window)
+    return z * (1 + u / 3 * (rng.normal(size=z.size) + 1j * rng.normal(size=z.size)) / 2**0.5)
+
+
+def _resonance(part, f_lo: float, f_hi: float) -> tuple[float, float]:
+    f = np.logspace(np.log10(f_lo), np.log10(f_hi), 200001)
+    z = part(f)
+    i = int(np.flatnonzero(np.diff(np.sign(z.imag)) < 0)[0])
+    return float(f[i]), float(abs(z[i]))
+
+
+def _inductor(l_h: float, r_core: float, c_w: float):
+    """An invented inductor richer than the fit models: √f winding loss (40 mΩ at DC,
+    doubling at 1 MHz), a core-loss resistance and a winding capacitance."""
+
+    def z(f: np.ndarray) -> np.ndarray:
+        jw = 2j * np.pi * f
+        winding = 0.04 * (1 + np.sqrt(f / 1e6)) + jw * l_h
+        return 1 / (1 / winding + 1 / r_core + jw * c_w)
+
+    return z
+
+
+@pytest.mark.parametrize(
+    ("method", "part", "band", "l_h"),
+    [
+        # Series-through: a 2.2 µH inductor peaking near 5 kΩ, far above shunt-through.
+        ("series-through", _inductor(2.2e-6, 5e3, 1.5e-12), (2e6, 1e9), 2.2e-6),
+        # Reflection: a 470 nH inductor peaking near 1 kΩ, inside 1.3 Ω to 1.9 kΩ.
+        ("reflection", _inductor(470e-9, 1e3, 1.0e-12), (1e6, 1e9), 470e-9),
+    ],
+)
+def test_each_method_recovers_an_inductor_inside_its_window(method, part, band, l_h) -> None:
+    from bench.core.fitting import fit_impedance
+
+    rng = np.random.default_rng(21)
+    f = np.logspace(np.log10(band[0]), np.log10(band[1]), 301)
+    window = measurable_window(method=method)
+    z = _noisy(part(f), window, rng)
+    if method == "series-through":
+        data = impedance_from_series_through(f, series_through_s21(z))
+    else:
+        data = impedance_from_reflection(f, reflection_s11(z))
+    assert data.inside_window.mean() > 0.9
+    result = fit_impedance(
+        data.f, data.z, rel_uncertainty=data.rel_uncertainty, valid=data.inside_window
+    )
+    srf, z_srf = _resonance(part, band[0], band[1])
+    # Tolerances of the recovery tests: L 2 %, SRF 2 %, |Z| at SRF 5 %.
+    assert result.landmarks["l_low"] == pytest.approx(l_h, rel=0.02)
+    assert result.landmarks["srf"] == pytest.approx(srf, rel=0.02)
+    assert result.landmarks["z_at_srf"] == pytest.approx(z_srf, rel=0.05)
+
+
+def test_shunt_through_recovers_a_capacitor_with_dielectric_loss() -> None:
+    from bench.core.fitting import fit_impedance
+
+    rng = np.random.default_rng(22)
+    f = np.logspace(2, 8, 301)
+    jw = 2j * np.pi * f
+    # Invented MLCC: 4.7 µF with a constant loss tangent of 0.02, √f ESR, 0.6 nH.
+    z_true = 1 / (jw * 4.7e-6 * (1 - 0.02j)) + 3e-3 * (1 + np.sqrt(f / 1e6)) + jw * 0.6e-9
+    window = measurable_window()
+    z = _noisy(z_true, window, rng)
+    data = impedance_from_shunt_through(f, 2 * z / (2 * z + 50.0))
+    result = fit_impedance(
+        data.f, data.z, rel_uncertainty=data.rel_uncertainty, valid=data.inside_window
+    )
+    # C within 1 % (recovery tolerance); |1 − j·tanδ| moves |C| by 0.02 %.
+    assert result.landmarks["c_low"] == pytest.approx(4.7e-6, rel=0.01)

@@ -89,8 +89,18 @@ IDS = [f"{c[0]}-{len(c[1])}" for c in CASES]
 
 def test_registry_has_the_design_names():
     # DESIGN §3 names the families; "auto" is the fitter's choice among them.
-    assert set(MODEL_NAMES) == {"series-rlc", "two-branch", "ladder", "inductor", "bead", "auto"}
-    assert {FAMILIES[n].kind for n in ("series-rlc", "two-branch", "ladder")} == {"capacitor"}
+    # lossy-rlc is the series R-L-C with loss across the band (docs/references.md §9).
+    assert set(MODEL_NAMES) == {
+        "series-rlc",
+        "lossy-rlc",
+        "two-branch",
+        "ladder",
+        "inductor",
+        "bead",
+        "auto",
+    }
+    capacitors = ("series-rlc", "lossy-rlc", "two-branch", "ladder")
+    assert {FAMILIES[n].kind for n in capacitors} == {"capacitor"}
     assert {FAMILIES[n].kind for n in ("inductor", "bead")} == {"inductor"}
     with pytest.raises(KeyError, match="choose one of"):
         get_family("spline")
@@ -120,6 +130,10 @@ def test_analytic_jacobian_matches_finite_differences(name, values, formula):
         assert np.max(np.abs(jac[i] - numeric) / np.abs(z)) < 1e-7, key
 
 
+# Decades of random element values by kind letter (D in F, S in Ω at 1 MHz).
+RANDOM_DECADES = {"R": (-4, 3), "L": (-10, -5), "C": (-12, -3), "D": (-14, -5), "S": (-4, 0)}
+
+
 @pytest.mark.parametrize("name", sorted(FAMILIES))
 def test_every_order_is_passive_for_random_positive_values(name):
     # A network of positive R, L and C is passive: Re Z >= 0 at every frequency.
@@ -128,7 +142,7 @@ def test_every_order_is_passive_for_random_positive_values(name):
     for order in family.orders:
         for _ in range(20):
             values = {
-                n: float(10 ** rng.uniform(*{"R": (-4, 3), "L": (-10, -5), "C": (-12, -3)}[n[0]]))
+                n: float(10 ** rng.uniform(*RANDOM_DECADES[n[0]]))
                 for n in family.element_names(order)
             }
             z = family.impedance(F, values)
@@ -141,8 +155,13 @@ def test_element_names_are_spice_ready_and_unique(name):
     for order in family.orders:
         names = family.element_names(order)
         assert len(set(n.lower() for n in names)) == len(names)
-        assert all(n[0] in "RLC" for n in names)
+        # R, L, C are SPICE elements; D and S become ladders of them in the export.
+        assert all(n[0] in "RLCDS" for n in names)
         assert family.order_of(dict.fromkeys(names, 1.0)) == order
+        lines = family.spice_lines(dict.fromkeys(names, 1e-6))
+        tokens = [line.split()[0] for line in lines]
+        assert all(t[0] in "RLC" for t in tokens)
+        assert len(set(t.lower() for t in tokens)) == len(tokens)
 
 
 def test_impedance_refuses_zero_frequency():
@@ -214,3 +233,18 @@ def test_starts_are_inside_bounds_for_plain_landmarks(name):
             assert set(start) == set(family.element_names(order))
             for key, value in start.items():
                 assert bounds[key][0] < value < bounds[key][1], (order, key, value)
+
+
+def test_schema_api_and_auto_read_the_one_registry():
+    from bench import api
+    from bench.core.model_registry import FAMILY_NAMES, REGISTRY, auto_candidates
+    from bench.procedure.schema import MODEL_NAMES as SCHEMA_NAMES
+
+    assert set(SCHEMA_NAMES) == set(MODEL_NAMES) == {*FAMILY_NAMES, "auto"}
+    assert api.model_kinds() == {e.name: e.kind for e in REGISTRY}
+    assert set(api.MODEL_NAMES) == set(MODEL_NAMES)
+    for entry in REGISTRY:
+        assert FAMILIES[entry.name].kind == entry.kind
+        assert set(entry.auto_orders) <= set(FAMILIES[entry.name].orders)
+    tried = {name for kind in ("capacitor", "inductor") for name, _ in auto_candidates(kind)}
+    assert tried == set(FAMILY_NAMES)

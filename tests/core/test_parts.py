@@ -115,18 +115,20 @@ def test_inductor_skin_effect_raises_resistance_as_sqrt_f():
     assert z[2].real / z[1].real == pytest.approx(2.0, rel=1e-2)
 
 
-def test_bead_matches_published_extraction_without_extra_loss():
-    # REFERENCES §3 [derived from a published extraction]: L = 18.47 µH, C = 1.4 pF,
-    # R = 1.6 kΩ -> |Z(10 MHz)| = 1005.4 Ω (R 631.8, X +782.1); |Z(100 MHz)| = 990.0 Ω.
+def test_bead_matches_derived_values_without_extra_loss():
+    # Invented element values, derived by hand (docs/references.md §3 [derived]):
+    # L = 15 µH, C = 1.2 pF, R = 1.3 kΩ in parallel, Y = 1/R + j(ωC − 1/(ωL)).
+    # 10 MHz: Y = 7.692e-4 − j9.856e-4 S -> Z = 492.1 + j630.5 Ω, |Z| = 799.8 Ω;
+    # 100 MHz: Y = 7.692e-4 + j6.479e-4 S -> Z = 760.5 − j640.5 Ω, |Z| = 994.3 Ω.
     bead = FerriteBead(
-        r_dc=1e-9, inductance=18.47e-6, resistance=1600.0, capacitance=1.4e-12, loss_exponent=0.0
+        r_dc=1e-9, inductance=15e-6, resistance=1300.0, capacitance=1.2e-12, loss_exponent=0.0
     )
     z = bead.impedance(np.array([10e6, 100e6]))
-    assert abs(z[0]) == pytest.approx(1005.4, rel=1e-3)
-    assert z[0].real == pytest.approx(631.8, rel=1e-3)
-    assert z[0].imag == pytest.approx(782.1, rel=1e-3)
-    assert abs(z[1]) == pytest.approx(990.0, rel=1e-3)
-    assert z[1].imag == pytest.approx(-777.7, rel=1e-3)
+    assert abs(z[0]) == pytest.approx(799.8, rel=1e-3)
+    assert z[0].real == pytest.approx(492.1, rel=1e-3)
+    assert z[0].imag == pytest.approx(630.5, rel=1e-3)
+    assert abs(z[1]) == pytest.approx(994.3, rel=1e-3)
+    assert z[1].imag == pytest.approx(-640.5, rel=1e-3)
 
 
 def test_part_from_dict_reads_si_strings():

@@ -37,7 +37,7 @@ def test_z_file_round_trip(tmp_path: Path) -> None:
     assert "R 50.0" not in text
     assert "!invented part ZC10U" in text
     m = load_measurement(path)
-    assert m.kind == "z1p" and m.s is None and m.z0 == 50.0
+    assert m.kind == "impedance" and m.s is None and m.z0 == 50.0
     np.testing.assert_allclose(m.f, F, rtol=1e-12)
     np.testing.assert_allclose(m.z, Z, rtol=1e-9)
 
@@ -88,7 +88,7 @@ BAD_CASES = [
     ("notes.txt", "hello\n", "not a readable Touchstone", "option line"),
     ("junk.s2p", "hello world\nnot numbers\n", "not a readable Touchstone", "option line"),
     ("three.s3p", "# Hz S RI R 50\n" + "\n".join(_rows(12, 18)) + "\n", "3 ports", "ports 1 and 2"),
-    ("refl.s1p", "# Hz S RI R 50\n" + "\n".join(_rows(12, 2)) + "\n", "holding S", "Z RI"),
+    ("h1.s1p", "# Hz H RI R 50\n" + "\n".join(_rows(12, 2)) + "\n", "H data", "S-parameters"),
     ("y1.s2p", "# Hz Y RI R 50\n" + "\n".join(_rows(12, 8)) + "\n", "version-1 Y", "S-parameters"),
     ("few.s2p", "# Hz S RI R 50\n" + "\n".join(_rows(5, 8)) + "\n", "5 frequency points", "more"),
     (

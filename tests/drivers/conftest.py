@@ -37,6 +37,7 @@ class ScriptedTransport:
         self.sent: list[str] = []
         self.timeouts: list[float] = []
         self.timeout_s = 5.0
+        self.block_formats: list[tuple[str, bool]] = []
 
     def _next(self, kind: str, command: str) -> Any:
         self.sent.append(command)
@@ -64,6 +65,7 @@ class ScriptedTransport:
 
     def query_binary(self, command, datatype="d", big_endian=True, *, terminated=True):
         answer = self._next("binary query", command)
+        self.block_formats.append((datatype, big_endian))
         assert isinstance(answer, np.ndarray), f"{command!r}: script answer is not an array"
         return answer
 

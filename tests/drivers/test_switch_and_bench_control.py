@@ -127,7 +127,7 @@ def test_bench_queries_and_fault_helpers(expected_protocol):
         ("OPERator:TRANsformer?", "1"),
         ("OPERator:RESistors?", "499"),
         ("OPERator:POSitions?", "8"),
-        ("OPERator:PARTs?", '"MC22-6V3/s1,FB120/s2"'),
+        ("OPERator:PARTs?", '"MC22-6V3/s1,FB137/s2"'),
         ("FAULt:DELay ANALyzer,2.5,1", None), OK,
         ("FAULt:DROP SWITch,3", None), OK,
         ("FAULt:BLOCk ANALyzer,2", None), OK,
@@ -142,7 +142,7 @@ def test_bench_queries_and_fault_helpers(expected_protocol):
         assert hands.transformer_fitted() is True
         assert hands.resistance() == 499.0
         assert hands.positions() == 8
-        assert hands.parts() == ["MC22-6V3/s1", "FB120/s2"]
+        assert hands.parts() == ["MC22-6V3/s1", "FB137/s2"]
         hands.fault_delay("analyzer", 2.5)
         hands.fault_drop("switch", 3)
         hands.fault_corrupt_block("analyzer", 2)

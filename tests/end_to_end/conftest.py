@@ -38,7 +38,7 @@ calibration: {method: through}
 bias: {ramp_step: 2 V, ramp_dwell: 1 ms, settle: 5 ms, discharge: 5 ms, current_limit: 10 mA}
 parts:
   - {name: MC22-6V3, kind: mlcc, nominal: 22u, tolerance: 20 %, rated_voltage: 6.3 V, samples: 2}
-  - {name: PB330-6V3, kind: bulk, nominal: 330u, tolerance: 20 %, rated_voltage: 6.3 V, samples: 1}
+  - {name: PB345-7V1, kind: bulk, nominal: 345u, tolerance: 20 %, rated_voltage: 7.1 V, samples: 1}
 steps: [calibrate, mount_short, measure, fit, export]
 """
 

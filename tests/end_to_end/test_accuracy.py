@@ -236,7 +236,7 @@ def test_fitted_landmarks_match_the_true_part(outcome, procedure, part, sample, 
 
 # The inductor on the switched fixture's pads (the demo's is on the series-through and
 # reflection mounts, which their own captures remove: see test_methods.py).
-INDUCTORS = [c for c in CASES if c[1] == "PL470N" and c[0] == "series_resistors.yaml"]
+INDUCTORS = [c for c in CASES if c[1] == "PL530N" and c[0] == "series_resistors.yaml"]
 
 
 @pytest.mark.parametrize(
@@ -325,7 +325,7 @@ fixture: {positions: 8, series_resistor: 499 ohm, isolation_transformer: true}
 calibration: {method: hybrid, crossover: 1 MHz}
 analysis: {noise_floor: -120 dB, mount: fitted}
 parts:
-  - {name: FB120, kind: bead, nominal: 120 ohm, nominal_at: 100 MHz, samples: 1,
+  - {name: FB137, kind: bead, nominal: 137 ohm, nominal_at: 100 MHz, samples: 1,
      method: shunt-through}
 steps: [calibrate, mount_short, measure]
 """

@@ -37,7 +37,7 @@ from simulated_instruments.server import start_bench
 
 PROCEDURES = Path(__file__).resolve().parents[2] / "procedures"
 TIME_SCALE = 0.001
-PARTS = ("MC22-6V3", "MC100N-16V", "PB330-6V3")
+PARTS = ("MC22-6V3", "MC100N-16V", "PB345-7V1")
 
 
 def _noise_free_demo() -> dict:

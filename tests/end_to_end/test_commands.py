@@ -164,7 +164,7 @@ def test_check_counts_every_sweep_step_and_states_a_bead_frequency():
     path = repo / "procedures" / "series_resistors.yaml"
     result = CliRunner().invoke(cli, ["check", str(path)])
     assert result.exit_code == 0, result.output
-    assert "120 Ω ±25 % at 100 MHz" in result.output
+    assert "137 Ω ±25 % at 100 MHz" in result.output
     steps = re.search(r"^  steps +(.*)$", result.output, re.M).group(1).split(", ")
     counts = {}
     for entry in steps:
@@ -174,3 +174,20 @@ def test_check_counts_every_sweep_step_and_states_a_bead_frequency():
     averages = re.search(r"(\d+) sweeps averaged", result.output)
     expected = swept * (int(averages.group(1)) if averages else 1)
     assert re.search(rf"^  sweeps +{expected}$", result.output, re.M)
+
+
+@pytest.mark.slow
+def test_demo_runs_on_the_second_dialect(tmp_path):
+    out = tmp_path / "runs"
+    args = ["demo", "--out", str(out), "--quiet", "--dialect", "meas_stim"]
+    result = CliRunner().invoke(cli, args)
+    assert result.exit_code == 0, result.output + repr(result.exception)
+    root = _run_folder(result.output)
+    manifest = _manifest(root)
+    assert manifest["state"] == "complete"
+    assert manifest["simulated"]["scenario"] == "demo_meas_stim"
+    assert manifest["instruments"]["analyzer"]["command_map"] == "meas_stim"
+    assert "SIM-VNA-0002" in manifest["instruments"]["analyzer"]["identity"]
+    # the stored procedure names the map, so a resume speaks the same dialect
+    assert "command_map: meas_stim" in (root / "procedure.yaml").read_text(encoding="utf-8")
+    assert len(list((root / "raw").glob("*.s2p"))) == 4 + 8 + 11 + 6 + 2 * (2 + 2)

@@ -66,7 +66,7 @@ def test_fault_leaves_a_resumable_run(tmp_path, sim, kit, what, fault, words):
 
 def _bias_text(kit) -> str:
     text = kit.SMALL.replace("samples: 2}", "samples: 2, bias: [0 V, 3 V, 6.3 V]}")
-    return "\n".join(line for line in text.splitlines() if "PB330" not in line) + "\n"
+    return "\n".join(line for line in text.splitlines() if "PB345" not in line) + "\n"
 
 
 def _watch(sim) -> list[float]:

@@ -24,10 +24,10 @@ calibration:
   kit: {short_inductance: 3 pH, open_capacitance: 12 fF, load_resistance: 50.2 ohm,
         load_inductance: 4 pH}
 parts:
-  - {name: FB240-2A, kind: bead, samples: 1, method: [series-through, reflection]}
-  - {name: PL470N, kind: inductor, nominal: 470n, samples: 1,
+  - {name: FB239, kind: bead, samples: 1, method: [series-through, reflection]}
+  - {name: PL530N, kind: inductor, nominal: 530n, samples: 1,
      method: [series-through, reflection]}
-steps: [calibrate, mount_short, measure, fit]
+steps: [calibrate, mount_short, measure, fit, export, report]
 """
 
 # The recovery bounds the method issue sets for inductors and beads (L 2 %, SRF 2 %,
@@ -53,7 +53,7 @@ def both_ways(tmp_path_factory):
         truth = dict(bench.state.scenario.parts)
     finally:
         bench.stop()
-    return runner.summary, truth, hands[0].actions
+    return runner.summary, truth, hands[0].actions, store.root
 
 
 def _check(measured, true):
@@ -64,8 +64,8 @@ def _check(measured, true):
 
 
 def test_each_part_is_stitched_from_both_set_ups(both_ways):
-    summary, _, _ = both_ways
-    assert [s.part for s in summary.samples] == ["FB240-2A", "PL470N"]
+    summary, _, _, _ = both_ways
+    assert [s.part for s in summary.samples] == ["FB239", "PL530N"]
     for sample in summary.samples:
         assert [label for label, _ in sample.setups] == ["series-through", "reflection"]
         series, reflection = (d.window for _, d in sample.setups)
@@ -77,7 +77,7 @@ def test_each_part_is_stitched_from_both_set_ups(both_ways):
 
 
 def test_the_stitched_curve_recovers_the_true_part(both_ways):
-    summary, truth, _ = both_ways
+    summary, truth, _, _ = both_ways
     for sample in summary.samples:
         d = sample.data
         true = landmarks_for(
@@ -88,7 +88,7 @@ def test_the_stitched_curve_recovers_the_true_part(both_ways):
 
 
 def test_each_set_up_recovers_the_part_inside_its_own_window(both_ways):
-    summary, truth, _ = both_ways
+    summary, truth, _, _ = both_ways
     for sample in summary.samples:
         part = truth[f"{sample.part}/s1"]
         for label, d in sample.setups:
@@ -99,16 +99,32 @@ def test_each_set_up_recovers_the_part_inside_its_own_window(both_ways):
 
 
 def test_the_hands_were_told_which_mount_to_fit(both_ways):
-    _, _, actions = both_ways
+    _, _, actions, _ = both_ways
     text = "\n".join(actions)
     for expected in (
         "cables: on the SERIES-THROUGH mount",
         "emptied the SERIES-THROUGH mount",
         "zero-ohm strap fitted in the SERIES-THROUGH mount",
-        "placed FB240-2A/s1 in the SERIES-THROUGH mount",
+        "placed FB239/s1 in the SERIES-THROUGH mount",
         "cables: on the REFLECTION mount",
         "zero-ohm strap fitted in the REFLECTION mount",
-        "placed PL470N/s1 in the REFLECTION mount",
+        "placed PL530N/s1 in the REFLECTION mount",
     ):
         assert expected in text
     assert text.index("SERIES-THROUGH") < text.index("REFLECTION")
+
+
+def test_fit_json_and_report_show_each_set_up_and_its_window(both_ways):
+    import json
+
+    summary, _, _, root = both_ways
+    for sample in summary.samples:
+        record = json.loads((root / "models" / f"{sample.label}.fit.json").read_text("utf-8"))
+        methods = [s["method"] for s in record["setups"]]
+        assert methods == ["series-through", "reflection"]
+        for entry, (_, data) in zip(record["setups"], sample.setups, strict=True):
+            assert entry["window"]["z_min"] == pytest.approx(data.window.z_min)
+            assert entry["points_inside"] == int(np.count_nonzero(data.inside_window))
+    html = (root / "report.html").read_text("utf-8")
+    assert html.count("series-through: window") == 2 and html.count("reflection: window") == 2
+    assert "coloured: each set-up inside its own window" in html

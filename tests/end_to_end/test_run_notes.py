@@ -70,16 +70,16 @@ def test_a_bead_line_leads_with_its_impedance_at_the_stated_frequency(tmp_path, 
     text = ONE_MLCC.replace(
         "  - {name: MC22-6V3, kind: mlcc, nominal: 22u, tolerance: 20 %, rated_voltage: 6.3 V, "
         "samples: 1}",
-        "  - {name: FB120, kind: bead, nominal: 120 ohm, tolerance: 25 %, nominal_at: 100 MHz, "
+        "  - {name: FB137, kind: bead, nominal: 137 ohm, tolerance: 25 %, nominal_at: 100 MHz, "
         "samples: 1, method: shunt-through}",
     ).replace("stop: 100 MHz, points: 101", "stop: 200 MHz, points: 121")
     plan, store = kit.start_run(tmp_path, text)
     lines: list[str] = []
     runner = kit.run_on(sim, plan, store, lines=lines)
-    for line in (_line(lines, "FB120/s1"), _line(lines, "fit FB120_s1")):
+    for line in (_line(lines, "FB137/s1"), _line(lines, "fit FB137_s1")):
         assert "|Z|@100MHz" in line and "vs nominal" in line
     (row,) = summary_rows(runner.summary)
-    fit_line = _line(lines, "fit FB120_s1")
+    fit_line = _line(lines, "fit FB137_s1")
     # The fit line judges the value the exports judge.
     assert f"{row['deviation'] * 100:+.1f} % vs nominal" in fit_line
 

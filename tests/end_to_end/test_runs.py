@@ -36,7 +36,7 @@ def test_unattended_run_stores_every_sweep_and_fits(tmp_path, sim, kit):
             assert sample.fit.landmarks["c_low"] == pytest.approx(22e-6, rel=0.2)
         assert sample.fit.quality.rms_log_error < 0.3
     rows = list(csv.DictReader((store.root / "summary.csv").read_text().splitlines()))
-    assert {r["part"] for r in rows} == {"MC22-6V3", "PB330-6V3"}
+    assert {r["part"] for r in rows} == {"MC22-6V3", "PB345-7V1"}
     assert any("MC22-6V3/s1" in line and "C " in line for line in lines), "live result line"
     assert (store.root / "models" / "MC22-6V3.lib").is_file()
 
@@ -113,7 +113,7 @@ def test_unattended_ground_loop_is_detected_and_warned(tmp_path, sim, kit):
 
 def test_bias_sweep_keeps_limits_and_leaves_output_off(tmp_path, sim, kit):
     text = kit.SMALL.replace("samples: 2}", "samples: 2, bias: [0 V, 3 V, 6.3 V]}")
-    text = "\n".join(line for line in text.splitlines() if "PB330" not in line) + "\n"
+    text = "\n".join(line for line in text.splitlines() if "PB345" not in line) + "\n"
     plan, store = kit.start_run(tmp_path, text)
     seen = _watch_bias(sim)
     runner = kit.run_on(sim, plan, store)
@@ -151,6 +151,13 @@ def test_reprocess_with_other_settings_uses_only_stored_data(tmp_path, sim, kit)
     analysis = with_analysis(plan2, tolerance=0.02, mount="fitted")
     summary = build_summary(store2, plan2, analysis=analysis, model_override="series-rlc")
     assert all(s.fit is None or s.fit.model == "series-rlc" for s in summary.samples)
+    # Fitted on all cores or one at a time: the same samples, in order, the same fits.
+    serial = build_summary(store2, plan2, analysis=analysis, model_override="series-rlc", jobs=1)
+    assert [s.label for s in serial.samples] == [s.label for s in summary.samples]
+    assert [s.fit and s.fit.elements for s in serial.samples] == [
+        s.fit and s.fit.elements for s in summary.samples
+    ]
+    assert [s.warnings for s in serial.samples] == [s.warnings for s in summary.samples]
     first = summary.samples[0]
     # A tighter accuracy target narrows the window: at least as many points fall outside.
     base = build_summary(store2, plan2, fit=False).samples[0]
@@ -168,9 +175,9 @@ fixture: {positions: 8, series_resistor: 499 ohm, isolation_transformer: true}
 calibration: {method: through}
 analysis: {mount: fitted}
 parts:
-  - {name: PL470N, kind: inductor, nominal: 470n, tolerance: 20 %, samples: 1,
+  - {name: PL530N, kind: inductor, nominal: 530n, tolerance: 20 %, samples: 1,
      method: shunt-through}
-  - {name: FB120, kind: bead, nominal: 120 ohm, nominal_at: 100 MHz, samples: 1,
+  - {name: FB137, kind: bead, nominal: 137 ohm, nominal_at: 100 MHz, samples: 1,
      method: shunt-through}
 steps: [calibrate, mount_short, measure]
 """
@@ -184,13 +191,13 @@ def test_series_resistors_raise_the_window_and_keep_the_impedance(tmp_path, sim,
     # Window floor and ceiling scale by (Z0 + Rs)/Z0 = 549/50 (REFERENCES §1, derived):
     # about 1 mΩ … 225 Ω at 50 Ω becomes about 11 mΩ … 2.5 kΩ (common practice).
     assert 1.5e3 < window.z_max < 4e3
-    inductor = next(s for s in summary.samples if s.part == "PL470N")
+    inductor = next(s for s in summary.samples if s.part == "PL530N")
     f = inductor.data.f
     i = int(np.argmin(abs(f - 10e6)))
-    # |Z| of 470 nH at 10 MHz: 2π · 10e6 · 470e-9 = 29.5 Ω (derived); the invented part's
+    # |Z| of 530 nH at 10 MHz: 2π · 10e6 · 530e-9 = 33.3 Ω (derived); the invented part's
     # true circuit adds winding resistance and parallel capacitance, so allow 15 %.
-    assert abs(inductor.data.z[i]) == pytest.approx(2 * np.pi * f[i] * 470e-9, rel=0.15)
-    bead = next(s for s in summary.samples if s.part == "FB120")
+    assert abs(inductor.data.z[i]) == pytest.approx(2 * np.pi * f[i] * 530e-9, rel=0.15)
+    bead = next(s for s in summary.samples if s.part == "FB137")
     j = int(np.argmin(abs(bead.data.f - 100e6)))
-    # The bead is invented as 120 Ω at 100 MHz with a ±25 % spread of samples.
-    assert abs(bead.data.z[j]) == pytest.approx(120.0, rel=0.3)
+    # The bead is invented as 137 Ω at 100 MHz with a ±25 % spread of samples.
+    assert abs(bead.data.z[j]) == pytest.approx(137.0, rel=0.3)

@@ -21,18 +21,18 @@ MLCC_C = {"s1": 10.0e-6, "s2": 9.6e-6, "s3": 11.5e-6}
 MLCC_BIAS = 3.0  # V, second bias point of s1 and s2
 
 MLCC_SPEC = PartSpec(
-    name="ZX-C10U",
+    name="ZBEX-C10U",
     kind="mlcc",
     nominal=10e-6,
     tolerance=0.10,
     rated_voltage=6.3,
     description='invented 10 µF <X5R> & "6.3 V" <script>alert(1)</script>',
 )
-INDUCTOR_SPEC = PartSpec(name="ZX-L2U2", kind="inductor", nominal=2.2e-6, tolerance=0.2)
+INDUCTOR_SPEC = PartSpec(name="ZBEX-L2U2", kind="inductor", nominal=2.2e-6, tolerance=0.2)
 BEAD_SPEC = PartSpec(
-    name="ZX-F600", kind="bead", nominal=600.0, tolerance=0.25, nominal_at_hz=100e6
+    name="ZBEX-F600", kind="bead", nominal=600.0, tolerance=0.25, nominal_at_hz=100e6
 )
-BULK_SPEC = PartSpec(name="ZX-P330U", kind="bulk", description="invented polymer, no tolerance")
+BULK_SPEC = PartSpec(name="ZBEX-P330U", kind="bulk", description="invented polymer, no tolerance")
 
 
 def measure(part, f, *, series_r=0.0, bias_v=0.0, seed=0):

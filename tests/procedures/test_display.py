@@ -94,7 +94,7 @@ def test_rich_display_prints_folded_lines_at_the_console_width():
 
 def test_a_bead_is_judged_on_its_impedance_at_the_stated_frequency():
     line = result_line(
-        "FB120/s1",
+        "FB137/s1",
         "bead",
         {"r_dc": 0.0355, "l_low": 248e-9},
         nominal=120.0,
@@ -107,5 +107,5 @@ def test_a_bead_is_judged_on_its_impedance_at_the_stated_frequency():
     assert "+9.2 % vs nominal, inside ±25 %" in line
     assert all(len(row) <= 80 for row in fit_width(line, 80).split("\n"))
     # Without |Z| at the frequency, no verdict is made up from the other landmarks.
-    plain = result_line("FB120/s1", "bead", {"l_low": 248e-9}, nominal=120.0, tolerance=0.25)
+    plain = result_line("FB137/s1", "bead", {"l_low": 248e-9}, nominal=120.0, tolerance=0.25)
     assert "nominal" not in plain

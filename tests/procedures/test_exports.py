@@ -61,7 +61,7 @@ def test_every_fitted_sample_gets_a_subcircuit_that_parses(summary, run_dir):
             assert needle in text
         assert "zbench 0.1.0" in text and "date: 2026-01-01T12:00:00Z" in text
     # The sample whose fit failed has no model but still a summary row.
-    assert not (folder / "models" / "ZX-C10U_s4.sub").exists()
+    assert not (folder / "models" / "ZBEX-C10U_s4.sub").exists()
 
 
 def test_library_typical_is_the_median_sample(summary, run_dir):
@@ -71,23 +71,23 @@ def test_library_typical_is_the_median_sample(summary, run_dir):
     )
     # The three MLCC samples at 0 V: the median c_low (numpy) picks the typical one.
     zero_bias = [
-        s for s in summary.samples if s.part == "ZX-C10U" and s.fit is not None and s.bias_v == 0
+        s for s in summary.samples if s.part == "ZBEX-C10U" and s.fit is not None and s.bias_v == 0
     ]
     c_values = np.array([s.fit.landmarks["c_low"] for s in zero_bias])
     median_sample = zero_bias[int(np.flatnonzero(c_values == np.median(c_values))[0])]
-    library = (folder / "models" / "ZX-C10U.lib").read_text()
+    library = (folder / "models" / "ZBEX-C10U.lib").read_text()
     blocks = subckt_blocks(library)
     expected = {
-        exports.sample_spice_name(s) for s in summary.samples if s.part == "ZX-C10U" and s.fit
+        exports.sample_spice_name(s) for s in summary.samples if s.part == "ZBEX-C10U" and s.fit
     }
-    assert set(blocks) == expected | {"ZX_C10U_typ"}
-    assert blocks["ZX_C10U_typ"] == blocks[exports.sample_spice_name(median_sample)]
+    assert set(blocks) == expected | {"ZBEX_C10U_typ"}
+    assert blocks["ZBEX_C10U_typ"] == blocks[exports.sample_spice_name(median_sample)]
     assert f"median sample by c_low: {median_sample.label}" in library
 
 
 def test_typical_of_an_even_lot_is_a_real_sample(summary):
-    typical = exports.typical_sample(summary, "ZX-L2U2")
-    values = sorted(s.fit.landmarks["l_low"] for s in summary.samples if s.part == "ZX-L2U2")
+    typical = exports.typical_sample(summary, "ZBEX-L2U2")
+    values = sorted(s.fit.landmarks["l_low"] for s in summary.samples if s.part == "ZBEX-L2U2")
     assert typical.fit.landmarks["l_low"] == values[0]  # lower of the two middle values
 
 
@@ -116,13 +116,18 @@ def test_touchstone_z_round_trips_and_s_only_when_kept(summary, run_dir):
     names = {p.name for p in written["touchstone"]}
     for sample in summary.samples:
         stem = exports.safe_filename(sample.label)
-        loaded = load_measurement(folder / "corrected" / f"{stem}.z1p")
+        loaded = load_measurement(folder / "corrected" / f"{stem}.s1p")
         np.testing.assert_allclose(loaded.f, sample.data.f, rtol=1e-12)
         np.testing.assert_allclose(loaded.z, sample.data.z, rtol=1e-9)
         assert (f"{stem}.s2p" in names) == (sample.corrected_s is not None)
     kept = next(s for s in summary.samples if s.corrected_s is not None)
     s2p = load_measurement(folder / "corrected" / f"{exports.safe_filename(kept.label)}.s2p")
     np.testing.assert_allclose(s2p.s, kept.corrected_s, rtol=1e-9, atol=1e-15)
+    # The measuring method goes with the data, so a re-fit reads it the same way.
+    assert s2p.method == kept.data.window.method and s2p.method_source == "comments"
+    # The impedance is a standard one-port Touchstone Z file, normalised as 1.x requires.
+    text = (folder / "corrected" / f"{exports.safe_filename(kept.label)}.s1p").read_text()
+    assert "# Hz Z RI R 50" in text and "normalised to R = 50 ohm" in text
 
 
 def test_non_finite_points_are_left_out_of_the_z_file(summary, tmp_path):
@@ -132,9 +137,9 @@ def test_non_finite_points_are_left_out_of_the_z_file(summary, tmp_path):
     broken = dataclasses.replace(sample, data=dataclasses.replace(sample.data, z=z))
     run = dataclasses.replace(summary, samples=(broken,))
     written = exports.write_exports(tmp_path, run)
-    (z1p,) = written["touchstone"]
-    assert "2 points with a non-finite impedance left out" in z1p.read_text()
-    loaded = load_measurement(z1p)
+    (s1p,) = written["touchstone"]
+    assert "2 points with a non-finite impedance left out" in s1p.read_text()
+    loaded = load_measurement(s1p)
     assert loaded.f.size == sample.data.f.size - 2
     assert written["spice"] == [] and written["library"] == []
 
@@ -164,14 +169,14 @@ def test_summary_csv_columns_and_pass_fail(summary, run_dir):
             assert row["result"] == expected
     results = {(r["part"], r["sample"], r["bias_v"]): r["result"] for r in rows}
     # Invented lot (run_summary_data.py): s3 is 11.5 µF against 10 µF ± 10 %.
-    assert results[("ZX-C10U", "s3", "0")] == "fail"
-    assert results[("ZX-C10U", "s1", "0")] == "pass"
-    assert results[("ZX-P330U", "s1", "0")] == ""
+    assert results[("ZBEX-C10U", "s3", "0")] == "fail"
+    assert results[("ZBEX-C10U", "s1", "0")] == "pass"
+    assert results[("ZBEX-P330U", "s1", "0")] == ""
 
 
 def test_bead_main_landmark_is_measured_z_at_the_nominal_frequency(summary):
-    bead = next(s for s in summary.samples if s.part == "ZX-F600")
-    name, value = exports.main_landmark(summary.part("ZX-F600"), bead)
+    bead = next(s for s in summary.samples if s.part == "ZBEX-F600")
+    name, value = exports.main_landmark(summary.part("ZBEX-F600"), bead)
     assert name == "z_at_nominal_hz"
     f, mag = bead.data.f, np.abs(bead.data.z)
     i = int(np.searchsorted(f, 100e6))
@@ -211,22 +216,22 @@ def test_lot_statistics_against_numpy(summary, run_dir):
                     assert got.std == pytest.approx(np.std(values, ddof=1), rel=1e-12)
                 else:
                     assert np.isnan(got.std)
-    assert stats["ZX-C10U"][0.0]["c_low"].n == 3  # the failed fit is left out
+    assert stats["ZBEX-C10U"][0.0]["c_low"].n == 3  # the failed fit is left out
     folder, _ = run_dir
     rows = read_csv(folder / "lot_statistics.csv")
     row = next(
         r
         for r in rows
-        if r["part"] == "ZX-C10U" and r["landmark"] == "c_low" and r["bias_v"] == "0"
+        if r["part"] == "ZBEX-C10U" and r["landmark"] == "c_low" and r["bias_v"] == "0"
     )
-    assert float(row["mean"]) == pytest.approx(stats["ZX-C10U"][0.0]["c_low"].mean, rel=1e-5)
+    assert float(row["mean"]) == pytest.approx(stats["ZBEX-C10U"][0.0]["c_low"].mean, rel=1e-5)
     assert row["unit"] == "F"
 
 
 def test_bias_table_and_csv(summary, summary_data, run_dir):
     table = exports.bias_table(summary)
-    assert list(table) == ["ZX-C10U"]  # the only part measured at several bias points
-    points = {(p.sample, p.bias_v): p for p in table["ZX-C10U"]}
+    assert list(table) == ["ZBEX-C10U"]  # the only part measured at several bias points
+    points = {(p.sample, p.bias_v): p for p in table["ZBEX-C10U"]}
     for sample in ("s1", "s2"):
         low, high = points[(sample, 0.0)], points[(sample, summary_data.MLCC_BIAS)]
         assert low.change == 0.0
@@ -235,10 +240,10 @@ def test_bias_table_and_csv(summary, summary_data, run_dir):
         # (simulated_instruments/parts.py); a fit reads about that loss, within a few %.
         assert high.change == pytest.approx(1 / (1 + (3.0 / (0.42 * 6.3)) ** 2) - 1, abs=0.03)
     folder, written = run_dir
-    assert [p.name for p in written["bias"]] == ["ZX-C10U_bias.csv"]
-    rows = read_csv(folder / "models" / "ZX-C10U_bias.csv")
+    assert [p.name for p in written["bias"]] == ["ZBEX-C10U_bias.csv"]
+    rows = read_csv(folder / "models" / "ZBEX-C10U_bias.csv")
     assert list(rows[0]) == ["sample", "bias_v", "c_low", "change"]
-    assert len(rows) == len(table["ZX-C10U"])
+    assert len(rows) == len(table["ZBEX-C10U"])
 
 
 def test_names_are_safe_for_files_and_spice():

@@ -86,8 +86,8 @@ def test_figures_per_sample_and_per_part(summary, written):
         # One figure per sample: |Z|, ESR and (with a fit) the residuals share its axis.
         assert f"{exports.safe_filename(sample.label)}_impedance" in names
         assert f"{exports.safe_filename(sample.label)}_residuals" not in names
-    assert {"ZX-C10U_lot", "ZX-C10U_bias", "ZX-L2U2_lot", "ZX-F600_lot"} <= names
-    assert "ZX-P330U_lot" not in names  # one sample only: nothing to overlay
+    assert {"ZBEX-C10U_lot", "ZBEX-C10U_bias", "ZBEX-L2U2_lot", "ZBEX-F600_lot"} <= names
+    assert "ZBEX-P330U_lot" not in names  # one sample only: nothing to overlay
 
 
 def test_text_from_the_run_is_escaped(written):
@@ -108,7 +108,7 @@ def test_setup_calibration_window_and_ground_loop(written):
     assert "650 µΩ" in text  # ground-loop DC error
     # The inductor's resonance rises above the 50 Ω window: its points outside are listed.
     window = text.split("<h2>Measurable window</h2>", 1)[1].split("</table>", 1)[0]
-    row = re.search(r"<tr><td>ZX-L2U2_s1</td>(.*?)</tr>", window).group(1)
+    row = re.search(r"<tr><td>ZBEX-L2U2_s1</td>(.*?)</tr>", window).group(1)
     assert "MHz" in row and ">0<" not in row
 
 
@@ -128,7 +128,7 @@ def test_landmarks_verdicts_spice_lot_and_bias(summary, written):
             assert f".subckt {exports.sample_spice_name(sample)} 1 2" in text
     assert "<h4>Lot statistics at 0 V</h4>" in text and "<h4>Lot statistics at 3 V</h4>" in text
     assert "<h4>Capacitance versus DC bias</h4>" in text
-    assert "ZX_C10U_typ" in text
+    assert "ZBEX_C10U_typ" in text
     assert "<th>read from the data</th>" in text
     for key in ("c_low", "esl", "srf", "esr_at_srf", "l_low", "r_dc", "z_at_srf", "c_par"):
         assert f"<td>{key}</td>" in text
@@ -174,7 +174,7 @@ def test_fit_quality_counts_points_used_and_why_others_were_not(summary, written
 
 def test_a_bead_is_reported_on_its_impedance_at_the_stated_frequency(summary, written):
     _, _, text = written
-    bead = summary.part("ZX-F600")
+    bead = summary.part("ZBEX-F600")
     label = f"|Z| at {report.format_si(bead.nominal_at_hz, 'Hz', 4)}"
     glance = text.split("<h2>Results at a glance</h2>", 1)[1].split("</table>", 1)[0]
     assert report.esc(label) in glance and "z_at_nominal_hz" not in glance

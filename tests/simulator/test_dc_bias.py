@@ -19,11 +19,11 @@ def wait_for(predicate, timeout: float = 10.0) -> bool:
 
 
 def test_charging_current_of_a_bulk_capacitor(sim_bench_factory, bench_client):
-    # Slowed down 20×: the 330 µF part charges at the 100 mA limit for about 16 ms of
-    # simulated time (C·ΔV/I = 330 µF × 4.8 V / 0.1 A), 0.3 s here.
+    # Slowed down 20×: the 345 µF part charges at the 100 mA limit for about 17 ms of
+    # simulated time (C·ΔV/I = 345 µF × 4.8 V / 0.1 A), 0.3 s here.
     bench = sim_bench_factory("demo", time_scale=20.0)
     client = bench_client(bench)
-    client.do('OPER:PLAC 1,"PB330-6V3/s1"')
+    client.do('OPER:PLAC 1,"PB345-7V1/s1"')
     client.select(1)
     dc = client.dc
     dc.write("SOUR:CURR 0.1;:SOUR:VOLT 5;:OUTP ON")
@@ -45,7 +45,7 @@ def test_charging_current_of_a_bulk_capacitor(sim_bench_factory, bench_client):
 
 def test_resistive_load_runs_into_the_current_limit(sim_bench, bench_client):
     client = bench_client(sim_bench)
-    client.do('OPER:PLAC 7,"PL470N/s1"')
+    client.do('OPER:PLAC 7,"PL530N/s1"')
     client.select(7)
     dc = client.dc
     dc.write("SOUR:CURR 20MA;:SOUR:VOLT 2;:OUTP ON")

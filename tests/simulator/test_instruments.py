@@ -198,7 +198,7 @@ def test_bench_control_nodes(sim_bench, open_instrument):
     assert float(bench.query("OPER:RES?")) == 499.0
     assert bench.query("OPER:POS?") == "8"
     parts = bench.query("OPER:PART?").strip('"').split(",")
-    assert "PL470N/s2" in parts and "FB120/s1" in parts and len(parts) == 16
+    assert "PL530N/s2" in parts and "FB137/s1" in parts and len(parts) == 16
     bench.write('OPER:PLAC 2,"NOPART/s1"')
     bench.write("OPER:PLAC 9,SHORt")
     bench.write("OPER:CABL STAN,THRU")

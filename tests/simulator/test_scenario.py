@@ -21,9 +21,9 @@ def test_demo_scenario_has_the_promised_parts_and_limits():
         "MC22-6V3": 3,
         "MC4U7-10V": 3,
         "MC100N-16V": 3,
-        "PB330-6V3": 2,
-        "PL470N": 2,
-        "FB120": 2,
+        "PB345-7V1": 2,
+        "PL530N": 2,
+        "FB137": 2,
     }
     for name, count in expected.items():
         assert [f"{name}/s{k}" for k in range(1, count + 1)] == [
@@ -63,8 +63,8 @@ def test_samples_are_seeded_and_spread_realistically():
         (lambda d: d.update(colour="blue"), ["colour"]),
         (lambda d: d["analyzer"].update(points_max=5), ["analyzer", "points_max"]),
         (lambda d: d["fixture"]["mounts"].pop(), ["7 entries", "8 positions"]),
-        (lambda d: d["parts"]["FB120"]["circuit"].update(type="resistor"), ["FB120", "type"]),
-        (lambda d: d["parts"]["FB120"]["circuit"].update(inductance="fast"), ["FB120"]),
+        (lambda d: d["parts"]["FB137"]["circuit"].update(type="resistor"), ["FB137", "type"]),
+        (lambda d: d["parts"]["FB137"]["circuit"].update(inductance="fast"), ["FB137"]),
         (lambda d: d["initial"].update(placements={"3": "NOPE/s1"}), ["NOPE/s1"]),
     ],
 )

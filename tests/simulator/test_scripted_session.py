@@ -12,11 +12,11 @@ CAPACITORS = {
     1: "MC22-6V3/s1",
     2: "MC4U7-10V/s2",
     3: "MC100N-16V/s3",
-    4: "PB330-6V3/s1",
+    4: "PB345-7V1/s1",
     5: "MC22-6V3/s2",
     6: "MC100N-16V/s1",
 }
-INDUCTORS = {7: "PL470N/s1", 8: "FB120/s2"}
+INDUCTORS = {7: "PL530N/s1", 8: "FB137/s2"}
 
 
 def network(f, s):

@@ -1,27 +1,33 @@
 """Model families of equivalent circuits, by name.
 
-``FAMILIES`` maps each name of the command line (``series-rlc``, ``two-branch``,
-``ladder``, ``inductor``, ``bead``) to its :class:`~bench.core.models.network.ModelFamily`.
-To add a family, write a module with a ``FAMILY`` and list it here.
+``FAMILIES`` maps each family name of the registry (:mod:`bench.core.model_registry`,
+the one list the schema, the API and ``auto`` read) to its
+:class:`~bench.core.models.network.ModelFamily`, taken from the module the registry
+names. To add a family, write a module with a ``FAMILY`` and add one registry line.
 """
 
 from __future__ import annotations
 
-from bench.core.models import bead, inductor, ladder, series_rlc, two_branch
+from importlib import import_module
+
+from bench.core.model_registry import MODEL_NAMES, REGISTRY
 from bench.core.models.network import ModelFamily
 
-FAMILIES: dict[str, ModelFamily] = {
-    family.name: family
-    for family in (
-        series_rlc.FAMILY,
-        two_branch.FAMILY,
-        ladder.FAMILY,
-        inductor.FAMILY,
-        bead.FAMILY,
-    )
-}
 
-MODEL_NAMES: tuple[str, ...] = (*FAMILIES, "auto")
+def _load() -> dict[str, ModelFamily]:
+    out: dict[str, ModelFamily] = {}
+    for entry in REGISTRY:
+        family = import_module(f"bench.core.models.{entry.module}").FAMILY
+        if family.name != entry.name or family.kind != entry.kind:
+            raise RuntimeError(
+                f"model registry entry {entry.name} ({entry.kind}) does not match its module's "
+                f"family {family.name} ({family.kind})"
+            )
+        out[entry.name] = family
+    return out
+
+
+FAMILIES: dict[str, ModelFamily] = _load()
 
 
 def get_family(name: str) -> ModelFamily:

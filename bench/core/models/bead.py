@@ -1,9 +1,13 @@
-"""``bead``: a ferrite bead, ``Rdc + (L ‖ R ‖ C)``, optionally ``+ (L2 ‖ R2)``.
+"""``bead``: a ferrite bead, ``Rdc + (L ‖ R ‖ C)``, optionally ``+ Σ (Lk ‖ Rk)``.
 
 The parallel L-R-C is the common-practice bead model (REFERENCES §3): below the peak the
 ferrite is inductive, at the peak resistive (``R``), above it the winding capacitance
-takes over. A second L-R relaxation (order 2) follows a loss that changes with
-frequency. Rdc and the inductors give the DC path.
+takes over. Further L‖R sections (orders 2 and 3) are the Foster form of the ferrite's
+permeability dispersion: a first-order relaxation ``μ(f) = μ0/(1 + j f/fr)`` gives
+``Z = jωL0/(1 + jω/ωr)``, which is exactly ``L0 ‖ R`` with ``R = 2π·fr·L0``
+[derived]; a spread of relaxation times (the Cole-Cole form
+``μ0/(1 + (j f/fr)^(1−α))``, from memory) is a sum of such sections with spread
+corners. Rdc and the inductors give the DC path.
 """
 
 from __future__ import annotations
@@ -16,15 +20,10 @@ import numpy as np
 from bench.core.models.network import C, L, ModelFamily, R, landmark, parallel, series
 
 
-def names(order: int) -> tuple[str, ...]:
-    out = ("Rdc", "L", "R", "C")
-    return (*out, "L2", "R2") if order == 2 else out
-
-
 def circuit(order: int = 1):
     parts = [R("Rdc"), parallel(L("L"), R("R"), C("C"))]
-    if order == 2:
-        parts.append(parallel(L("L2"), R("R2")))
+    for k in range(2, order + 1):
+        parts.append(parallel(L(f"L{k}"), R(f"R{k}")))
     return series(*parts)
 
 
@@ -40,6 +39,22 @@ def starts(order, f, z, landmarks: Mapping[str, Any], previous=None) -> list[dic
     if order == 1:
         return [base, {**base, "R": z_srf * 1.5, "C": c_par * 0.8}]
     out = []
+    if order == 3:
+        if previous is not None:
+            out.append({**previous, "L3": 0.05 * previous["L"], "R3": 0.1 * previous["R"]})
+            out.append({**previous, "L3": 0.3 * previous["L"], "R3": 3.0 * previous["R"]})
+        for share in (0.3, 0.1):
+            out.append(
+                {
+                    **base,
+                    "L": l_low * (1 - 2 * share),
+                    "L2": l_low * share,
+                    "R2": z_srf * 0.3,
+                    "L3": l_low * share,
+                    "R3": z_srf * 0.05,
+                }
+            )
+        return out
     if previous is not None:
         out.append({**previous, "L2": 0.05 * previous["L"], "R2": 0.2 * previous["R"]})
     for share, r_share in ((0.3, 0.3), (0.1, 0.1)):
@@ -58,8 +73,8 @@ def starts(order, f, z, landmarks: Mapping[str, Any], previous=None) -> list[dic
 FAMILY = ModelFamily(
     name="bead",
     kind="inductor",
-    orders=(1, 2),
-    description="Rdc in series with L ‖ R ‖ C, optionally a second L ‖ R",
+    orders=(1, 2, 3),
+    description="Rdc in series with L ‖ R ‖ C, optionally one or two further L ‖ R",
     circuit=circuit,
     starts=starts,
 )

@@ -26,7 +26,7 @@ from bench.core.models.network import (
     series,
 )
 
-MAX_SECTIONS = 2
+MAX_SECTIONS = 4
 
 
 def names(order: int) -> tuple[str, ...]:

@@ -29,10 +29,31 @@ BLEED_RESISTANCE = 1e12
 
 @dataclass(frozen=True)
 class Element:
-    """One R, L or C element; ``name`` starts with its kind letter (``R1``, ``Lk1``, ``Cp``)."""
+    """One element; ``name`` starts with its kind letter (``R1``, ``Lk1``, ``Cp``).
+
+    Kinds ``R``, ``L``, ``C`` are the ideal parts. Two kinds (docs/references.md §9)
+    describe a loss spread
+    over a band ``band = (f_lo, f_hi)`` (Hz). Each is a ladder of ideal parts with
+    :data:`LADDER_PER_DECADE` sections per decade (:func:`dielectric_ladder`,
+    :func:`skin_ladder`): the model is that ladder, the SPICE export writes it out, and
+    the continuous forms below are its limit (:func:`dielectric_continuum`,
+    :func:`skin_continuum`), within about 1 % inside the band:
+
+    - ``D`` (value in F): dielectric loss with a constant loss tangent, the wideband
+      Debye model of Djordjevic, Biljić, Likar-Smiljanić and Sarkar (IEEE Trans. EMC
+      43(4), 2001; cited from memory): ``Y = jω·D·(2/π)·ln((ω2 + jω)/(ω1 + jω))``, the
+      limit of series R-C branches with log-spaced time constants between ``1/ω2`` and
+      ``1/ω1``. Placed across a capacitor C, its loss tangent is about ``D/C`` in the band.
+    - ``S`` (value in Ω): conductor (skin) loss, resistance rising as √f, the limit of
+      series R‖L sections with log-spaced corners (the R-L ladder of Kim and Neikirk,
+      1996, cited from memory): ``Z = 2A·√(jω)·[atan(√(ωb/jω)) − atan(√(ωa/jω))]``
+      with ``A = S·√2/(π·√ω_ref)``, so that Re Z ≈ ``S·√(f/1 MHz)`` inside the band
+      and Im Z ≈ Re Z, as for a conductor well above its skin corner [derived].
+    """
 
     kind: str
     name: str
+    band: tuple[float, float] | None = None
 
 
 @dataclass(frozen=True)
@@ -68,6 +89,119 @@ def C(name: str) -> Element:
     return Element("C", name)
 
 
+def D(name: str, band: tuple[float, float]) -> Element:
+    """Dielectric loss (constant loss tangent) over ``band`` (Hz); value in F."""
+    return Element("D", name, (float(band[0]), float(band[1])))
+
+
+def S(name: str, band: tuple[float, float]) -> Element:
+    """Conductor loss (√f resistance) over ``band`` (Hz); value in Ω at 1 MHz."""
+    return Element("S", name, (float(band[0]), float(band[1])))
+
+
+# Reference frequency of the skin element's value: Re Z = S at 1 MHz.
+SKIN_REFERENCE_HZ = 1e6
+
+
+def dielectric_continuum(jw: ComplexArray, band: tuple[float, float]) -> ComplexArray:
+    """``jω·(2/π)·ln((ω2 + jω)/(ω1 + jω))``: admittance per farad of the continuous
+    wideband Debye form (Djordjevic et al. 2001, from memory)."""
+    w1, w2 = 2 * np.pi * band[0], 2 * np.pi * band[1]
+    return jw * (2 / np.pi) * np.log((w2 + jw) / (w1 + jw))
+
+
+def skin_continuum(jw: ComplexArray, band: tuple[float, float]) -> ComplexArray:
+    """Impedance per ohm of the continuous √f form (see :class:`Element`)."""
+    wa, wb = 2 * np.pi * band[0], 2 * np.pi * band[1]
+    a = np.sqrt(2.0) / (np.pi * np.sqrt(2 * np.pi * SKIN_REFERENCE_HZ))
+    root = np.sqrt(jw)
+    return 2 * a * root * (np.arctan(np.sqrt(wb) / root) - np.arctan(np.sqrt(wa) / root))
+
+
+def _dielectric_shape(jw: ComplexArray, band: tuple[float, float]) -> ComplexArray:
+    """Admittance per farad of a ``D`` element: the ladder of :func:`dielectric_ladder`
+    itself, so that the model and its SPICE export are one circuit."""
+    centres, width = _log_cells(band)
+    g = (2 / np.pi) * width
+    return np.sum(g * jw[None, :] / (1 + jw[None, :] / centres[:, None]), axis=0)
+
+
+def _skin_shape(jw: ComplexArray, band: tuple[float, float]) -> ComplexArray:
+    """Impedance per ohm of an ``S`` element: the ladder of :func:`skin_ladder` itself."""
+    centres, width = _log_cells(band)
+    a = np.sqrt(2.0) / (np.pi * np.sqrt(2 * np.pi * SKIN_REFERENCE_HZ))
+    r = a * np.sqrt(centres) * width
+    return np.sum(r[:, None] * jw[None, :] / (centres[:, None] + jw[None, :]), axis=0)
+
+
+_SHAPES: dict[tuple[str, tuple[float, float] | None, int, int], ComplexArray] = {}
+
+
+def _shape(node: Element, jw: ComplexArray) -> ComplexArray:
+    """The frequency shape of a ``D`` or ``S`` element, kept for the grids in use (a fit
+    evaluates one grid hundreds of times and the shape does not depend on the value)."""
+    key = (node.kind, node.band, jw.size, hash(jw.tobytes()))
+    out = _SHAPES.get(key)
+    if out is None:
+        if len(_SHAPES) > 64:
+            _SHAPES.clear()
+        out = (_dielectric_shape if node.kind == "D" else _skin_shape)(jw, node.band)
+        out.flags.writeable = False
+        _SHAPES[key] = out
+    return out
+
+
+def _element_impedance(node: Element, jw: ComplexArray, value: float) -> ComplexArray:
+    if node.kind == "R":
+        return np.full(jw.shape, value, dtype=complex)
+    if node.kind == "L":
+        return jw * value
+    if node.kind == "C":
+        return 1.0 / (jw * value)
+    if node.kind == "D":
+        return 1.0 / (value * _shape(node, jw))
+    if node.kind == "S":
+        return value * _shape(node, jw)
+    raise ValueError(f"unknown element kind {node.kind!r}")
+
+
+# Sections per decade of the SPICE ladders that stand for D and S elements: two keep the
+# ladder within about 1 % of its continuous limit [derived numerically, see the tests].
+LADDER_PER_DECADE = 2.0
+
+
+def _log_cells(band: tuple[float, float]) -> tuple[NDArray[np.float64], float]:
+    """Centres (rad/s) and width (nepers) of equal cells in ln ω over ``band`` (Hz)."""
+    lo, hi = np.log(2 * np.pi * band[0]), np.log(2 * np.pi * band[1])
+    n = max(2, int(np.ceil(LADDER_PER_DECADE * (hi - lo) / np.log(10))))
+    width = (hi - lo) / n
+    return np.exp(lo + width * (np.arange(n) + 0.5)), float(width)
+
+
+def dielectric_ladder(value: float, band: tuple[float, float]) -> list[tuple[float, float]]:
+    """``(R, C)`` of the series R-C branches that stand for a ``D`` element of ``value`` F.
+
+    The continuous form integrates ``g·jω/(1 + jω/u)`` over ``d ln u`` with
+    ``g = (2/π)·D``; the ladder is its midpoint rule on cells of equal width in ln u:
+    ``ΔC = g·Δ``, ``R = 1/(u·ΔC)`` (Djordjevic et al. 2001, from memory; [derived]).
+    """
+    centres, width = _log_cells(band)
+    dc = (2 / np.pi) * value * width
+    return [(float(1.0 / (u * dc)), float(dc)) for u in centres]
+
+
+def skin_ladder(value: float, band: tuple[float, float]) -> list[tuple[float, float]]:
+    """``(R, L)`` of the series R‖L sections that stand for an ``S`` element of ``value`` Ω.
+
+    The continuous form integrates ``A·√u·jω/(u + jω)`` over ``d ln u``; each cell of the
+    midpoint rule is one section ``R = A·√u·Δ``, ``L = R/u`` (corner u), whose impedance
+    is ``R·jω/(u + jω)`` [derived].
+    """
+    centres, width = _log_cells(band)
+    a = value * np.sqrt(2.0) / (np.pi * np.sqrt(2 * np.pi * SKIN_REFERENCE_HZ))
+    return [(float(a * np.sqrt(u) * width), float(a * np.sqrt(u) * width / u)) for u in centres]
+
+
 def element_names(node: Node) -> tuple[str, ...]:
     """Element names in the order they appear in the tree."""
     if isinstance(node, Element):
@@ -83,15 +217,8 @@ def _evaluate(
 ) -> tuple[ComplexArray, dict[str, ComplexArray]]:
     """Impedance of ``node`` and ``p·dZ/dp`` of each element below it (by name)."""
     if isinstance(node, Element):
-        value = values[node.name]
-        if node.kind == "R":
-            z = np.full(jw.shape, value, dtype=complex)
-            return z, {node.name: z}
-        if node.kind == "L":
-            z = jw * value
-            return z, {node.name: z}
-        z = 1.0 / (jw * value)
-        return z, {node.name: -z}
+        z = _element_impedance(node, jw, values[node.name])
+        return z, {node.name: -z if node.kind in "CD" else z}
     results = [_evaluate(part, jw, values) for part in node.parts]
     if isinstance(node, Series):
         z = results[0][0].copy()
@@ -136,20 +263,15 @@ def network_impedance(node: Node, f: Any, values: Mapping[str, float]) -> Comple
 
 def _impedance(node: Node, jw: ComplexArray, values: Mapping[str, float]) -> ComplexArray:
     if isinstance(node, Element):
-        value = values[node.name]
-        if node.kind == "R":
-            return np.full(jw.shape, value, dtype=complex)
-        if node.kind == "L":
-            return jw * value
-        return 1.0 / (jw * value)
+        return _element_impedance(node, jw, values[node.name])
     zs = [_impedance(part, jw, values) for part in node.parts]
     if isinstance(node, Series):
         return sum(zs)
     return 1.0 / sum(1.0 / z for z in zs)
 
 
-_SHORT = {"R": "low", "L": "low", "C": "high"}
-_OPEN = {"R": "high", "L": "high", "C": "low"}
+_SHORT = {"R": "low", "L": "low", "C": "high", "D": "high", "S": "low"}
+_OPEN = {"R": "high", "L": "high", "C": "low", "D": "low", "S": "high"}
 
 
 def vanishing_sides(node: Node, context: tuple[str, ...] = ("pins",)) -> dict[str, set[str]]:
@@ -179,7 +301,7 @@ def vanishing_sides(node: Node, context: tuple[str, ...] = ("pins",)) -> dict[st
 def has_dc_path(node: Node) -> bool:
     """True when the network conducts at DC (some path holds no capacitor)."""
     if isinstance(node, Element):
-        return node.kind != "C"
+        return node.kind not in "CD"
     if isinstance(node, Series):
         return all(has_dc_path(p) for p in node.parts)
     return any(has_dc_path(p) for p in node.parts)
@@ -199,7 +321,20 @@ def spice_lines(node: Node, values: Mapping[str, float], a: str = "1", b: str = 
         return f"n{counter[0]}"
 
     def emit(n: Node, x: str, y: str) -> None:
-        if isinstance(n, Element):
+        if isinstance(n, Element) and n.kind == "D":
+            # One series R-C branch per cell, all between x and y.
+            for k, (r, c) in enumerate(dielectric_ladder(values[n.name], n.band), start=1):
+                mid = new_node()
+                lines.append(f"R{n.name}{k} {x} {mid} {r:.9g}")
+                lines.append(f"C{n.name}{k} {mid} {y} {c:.9g}")
+        elif isinstance(n, Element) and n.kind == "S":
+            # R‖L sections in series from x to y.
+            sections = skin_ladder(values[n.name], n.band)
+            nodes = [x] + [new_node() for _ in sections[:-1]] + [y]
+            for k, (r, ind) in enumerate(sections, start=1):
+                lines.append(f"R{n.name}{k} {nodes[k - 1]} {nodes[k]} {r:.9g}")
+                lines.append(f"L{n.name}{k} {nodes[k - 1]} {nodes[k]} {ind:.9g}")
+        elif isinstance(n, Element):
             lines.append(f"{n.name} {x} {y} {values[n.name]:.9g}")
         elif isinstance(n, Series):
             nodes = [x] + [new_node() for _ in n.parts[:-1]] + [y]
@@ -236,6 +371,9 @@ class ModelFamily:
     ``bounds(order, f, landmarks)``, when given, the (low, high) value of each element;
     without it every element gets the :data:`WIDE_BOUNDS` of its kind.
     ``order_of(names)`` recovers the order from a set of element names.
+    ``network(order, band)``, when given, builds the circuit for a measured band (Hz)
+    (families with ``D`` or ``S`` elements); ``circuit(order)`` is then the circuit of a
+    default band, good for names and orders only.
     ``reduce(order, values, weakness)``, when given, turns a fit of ``order`` into start
     values of the next lower order by dropping the part of the circuit the data did not
     support (``weakness``: each element's relative one-sigma uncertainty, ``inf`` for an
@@ -250,6 +388,14 @@ class ModelFamily:
     starts: Starts
     bounds: Bounds | None = None
     reduce: Reduce | None = None
+    network: Callable[[int, tuple[float, float]], Node] | None = None
+
+    def circuit_for(self, order: int, f: NDArray[np.float64]) -> Node:
+        """The circuit of ``order`` fitted on the frequencies ``f`` (Hz): families with
+        loss spread over a band (``D``, ``S`` elements) place it over ``f``'s span."""
+        if self.network is None:
+            return self.circuit(order)
+        return self.network(order, (float(np.min(f)), float(np.max(f))))
 
     def element_bounds(
         self, order: int, f: NDArray[np.float64], landmarks: Mapping[str, Any]
@@ -359,7 +505,13 @@ def span(f: Sequence[float]) -> tuple[float, float]:
 
 # Wide limits by element kind (SI): far outside any passive on a power-delivery network,
 # they only keep the optimiser in a range where the arithmetic stays finite.
-WIDE_BOUNDS = {"R": (1e-7, 1e7), "L": (1e-15, 1.0), "C": (1e-16, 10.0)}
+WIDE_BOUNDS = {
+    "R": (1e-7, 1e7),
+    "L": (1e-15, 1.0),
+    "C": (1e-16, 10.0),
+    "D": (1e-18, 10.0),
+    "S": (1e-9, 1e4),
+}
 
 
 def wide_bounds(names: Sequence[str]) -> dict[str, tuple[float, float]]:

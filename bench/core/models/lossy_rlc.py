@@ -1,0 +1,139 @@
+"""``lossy-rlc``: a capacitor whose loss follows the band: ``R + S + jωL + 1/(jωC + Y_D)``.
+
+Loss across the band, docs/references.md §9.
+
+``D`` is the dielectric loss of a constant loss tangent (the wideband Debye model of
+Djordjevic, Biljić, Likar-Smiljanić and Sarkar, IEEE Trans. EMC 43(4), 2001, cited from
+memory): across the capacitor it makes ESR fall as 1/f below resonance, as class II
+dielectrics do, with ``tan δ ≈ D/C``. ``S`` (order ≥ 1) is the conductor loss rising as
+√f (an R-L ladder in the SPICE export, after Kim and Neikirk, 1996, from memory). Order
+2 adds a weak second series R-L-C branch in parallel, for a stack's higher mode. Both
+loss elements span the measured band with a margin, so they are passive and become
+ladders of ideal R, L, C in SPICE (see ``bench.core.models.network``).
+
+Orders: 0 = R, L, C, D; 1 = + S; 2 = + S and R2, L2, C2.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+
+from bench.core.models import two_branch
+from bench.core.models.network import (
+    C,
+    D,
+    L,
+    ModelFamily,
+    R,
+    S,
+    landmark,
+    parallel,
+    series,
+)
+
+# The loss elements reach this far beyond the measured band (factors on f_lo and f_hi):
+# the continuous Debye and skin forms flatten near their band edges.
+DIELECTRIC_MARGIN = (10.0, 10.0)
+SKIN_MARGIN = (100.0, 10.0)
+# Band of a circuit built without data (only for element names and orders).
+DEFAULT_BAND = (1e2, 1e9)
+
+
+def _bands(band):
+    lo, hi = band
+    return (
+        (lo / DIELECTRIC_MARGIN[0], hi * DIELECTRIC_MARGIN[1]),
+        (lo / SKIN_MARGIN[0], hi * SKIN_MARGIN[1]),
+    )
+
+
+def network(order: int, band: tuple[float, float] = DEFAULT_BAND):
+    dband, sband = _bands(band)
+    main = [R("R")]
+    if order >= 1:
+        main.append(S("S", sband))
+    main += [L("L"), parallel(C("C"), D("D", dband))]
+    if order < 2:
+        return series(*main)
+    return parallel(series(*main), series(R("R2"), L("L2"), C("C2")))
+
+
+def circuit(order: int = 0):
+    return network(order)
+
+
+def _loss_estimates(f, z, c: float, esr: float, srf: float) -> tuple[float, float]:
+    """Loss tangent from Re Z below resonance, skin resistance at 1 MHz from above it."""
+    w = 2 * np.pi * f
+    low = (f < srf / 5) & (z.imag < 0)
+    tan_delta = 0.01
+    if np.count_nonzero(low) >= 3:
+        ratio = (z.real[low] - esr) / np.abs(z.imag[low])
+        tan_delta = float(np.clip(np.median(ratio), 1e-4, 0.3))
+    high = f > 3 * srf
+    s = 1e-3 * esr
+    if np.count_nonzero(high) >= 3:
+        rise = float(np.median(z.real[high]) - esr)
+        f_mid = float(np.median(f[high]))
+        if rise > 0:
+            s = rise / np.sqrt(f_mid / 1e6)
+    del w
+    return tan_delta, max(s, 1e-9)
+
+
+def starts(order, f, z, landmarks: Mapping[str, Any], previous=None) -> list[dict[str, float]]:
+    f = np.asarray(f, dtype=float)
+    z = np.asarray(z, dtype=complex)
+    c = landmark(landmarks, "c_low", 1e-6)
+    srf = landmark(landmarks, "srf", np.sqrt(f[0] * f[-1]))
+    esl = landmark(landmarks, "esl", 1.0 / ((2 * np.pi * srf) ** 2 * c))
+    esr = landmark(landmarks, "esr_at_srf", float(np.min(np.abs(z))))
+    tan_delta, s = _loss_estimates(f, z, c, esr, srf)
+    dband, _ = _bands((f[0], f[-1]))
+    # The loss adds (2/π)·D·ln(ω2/ω) to C at low frequency.
+    c_inf = c / (1 + tan_delta * (2 / np.pi) * np.log(dband[1] / f[0]))
+    base = {"R": esr, "L": esl, "C": c_inf, "D": tan_delta * c_inf}
+    out: list[dict[str, float]] = []
+    if order == 0:
+        return [base, {**base, "D": base["D"] * 0.2, "R": esr * 0.8}]
+    if order == 1:
+        if previous is not None:
+            out.append({**previous, "S": s, "R": previous["R"] * 0.7})
+        out.append({**base, "S": s, "R": esr * 0.5})
+        return out
+    seed = dict(previous) if previous is not None else {**base, "S": s, "R": esr * 0.5}
+    for feature in (
+        two_branch._mode_start(f, z, srf, c, esr),
+        two_branch._step_start(f, z, srf, c, esr),
+    ):
+        if feature is not None:
+            out.append({**seed, "L": feature["L1"], **{k: feature[k] for k in ("R2", "L2", "C2")}})
+    top = max(f[-1], 4 * srf)
+    for ratio in (0.3, 0.08):
+        f2 = srf * (top / srf) ** ratio * 1.5
+        l2 = esl * 5
+        out.append(
+            {
+                **seed,
+                "L": esl * 1.25,
+                "R2": esr * 5,
+                "L2": l2,
+                "C2": 1 / ((2 * np.pi * f2) ** 2 * l2),
+            }
+        )
+    return out
+
+
+FAMILY = ModelFamily(
+    name="lossy-rlc",
+    kind="capacitor",
+    orders=(0, 1, 2),
+    description="series R, L, C with dielectric loss (constant tan d), conductor loss (sqrt f) "
+    "and a second mode",
+    circuit=circuit,
+    starts=starts,
+    network=network,
+)

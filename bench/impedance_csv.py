@@ -1,0 +1,261 @@
+"""Reading an impedance analyser's CSV export as the part's impedance (docs/design.md §9).
+
+The form read: optional comment lines (starting with ``#``, ``!`` or ``%``), then a
+header row naming the columns, then one row of numbers per frequency. Names are
+case-insensitive; each carries its unit in brackets (``Frequency [Hz]``, ``|Z| (Ohm)``)
+or after a space (``Phase deg``). Columns: a frequency (Hz, kHz, MHz, GHz), then one
+pair among |Z| (Ω, kΩ, mΩ) with phase (deg or rad), R with X (Ω), or real with
+imaginary part (Ω). Comma, semicolon or tab delimited; with semicolons a decimal comma
+is read as a point. ``Frequency [Hz],|Z| [Ohm],Phase [deg]`` is the plainest form.
+
+Every malformed file (no header, an unknown column, a missing unit, text where a number
+belongs) raises :class:`bench.errors.InputError` naming the file, the line and the fix.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from pathlib import Path
+
+import numpy as np
+
+from bench.errors import InputError
+
+_FREQ_UNITS = {"hz": 1.0, "khz": 1e3, "mhz": 1e6, "ghz": 1e9}
+_OHM_UNITS = {
+    "ohm": 1.0,
+    "ohms": 1.0,
+    "Ω": 1.0,
+    "mohm": 1e-3,
+    "mΩ": 1e-3,
+    "kohm": 1e3,
+    "kΩ": 1e3,
+}
+_ANGLE_UNITS = {
+    "deg": math.pi / 180,
+    "degree": math.pi / 180,
+    "degrees": math.pi / 180,
+    "°": math.pi / 180,
+    "rad": 1.0,
+    "radian": 1.0,
+    "radians": 1.0,
+}
+#: Column role -> accepted names (lower case).
+_NAMES = {
+    "f": ("frequency", "freq", "f"),
+    "mag": ("|z|", "z", "mag", "magnitude", "impedance", "|z| magnitude", "zmag", "mag(z)"),
+    "phase": ("phase", "theta", "θ", "angle", "arg", "phase(z)", "arg(z)"),
+    "r": ("r", "rs", "resistance", "esr"),
+    "x": ("x", "xs", "reactance"),
+    "re": ("real", "re", "re(z)", "real(z)", "real part", "z'"),
+    "im": ("imag", "imaginary", "im", "im(z)", "imag(z)", "imaginary part", "z''"),
+}
+_UNITS_OF = {
+    "f": _FREQ_UNITS,
+    "mag": _OHM_UNITS,
+    "phase": _ANGLE_UNITS,
+    "r": _OHM_UNITS,
+    "x": _OHM_UNITS,
+    "re": _OHM_UNITS,
+    "im": _OHM_UNITS,
+}
+_PAIRS = (("mag", "phase"), ("r", "x"), ("re", "im"))
+_EXAMPLE = "Frequency [Hz],|Z| [Ohm],Phase [deg]"
+_BRACKETED = re.compile(r"^(.*?)\s*[\[(]\s*([^\])]*?)\s*[\])]\s*$")
+
+
+def _role(name: str) -> str | None:
+    key = name.strip().lower()
+    for role, names in _NAMES.items():
+        if key in names:
+            return role
+    return None
+
+
+def _unit_of(role: str, unit: str) -> float | None:
+    table = _UNITS_OF[role]
+    for key, scale in table.items():
+        if unit == key or unit.lower() == key.lower():
+            return scale
+    return None
+
+
+def _column(where: str, text: str) -> tuple[str, float]:
+    """A header field as (role, scale to SI), or :class:`InputError`."""
+    field = text.strip().strip('"').strip("'").strip()
+    match = _BRACKETED.match(field)
+    if match:
+        name, unit = match.group(1), match.group(2)
+    else:
+        parts = field.rsplit(None, 1)
+        name, unit = (parts[0], parts[1]) if len(parts) == 2 else (field, "")
+        if _role(field) is not None and (len(parts) < 2 or _role(name) is None):
+            name, unit = field, ""
+    role = _role(name)
+    if role is None:
+        raise InputError(
+            f"unknown column {field!r}",
+            path=where,
+            hint="name the columns Frequency, then |Z| and Phase, or R and X, or Real and "
+            f"Imag, each with its unit, e.g. '{_EXAMPLE}'",
+        )
+    if not unit:
+        raise InputError(
+            f"column {field!r} has no unit",
+            path=where,
+            hint=f"write the unit in brackets or after a space, e.g. '{_EXAMPLE}'",
+        )
+    scale = _unit_of(role, unit)
+    if scale is None:
+        known = ", ".join(k for k in _UNITS_OF[role] if k.isascii())
+        raise InputError(
+            f"column {field!r}: unit {unit!r} is not one zbench reads for it",
+            path=where,
+            hint=f"use one of: {known}",
+        )
+    return role, scale
+
+
+def _number(where: str, text: str, decimal_comma: bool, column: str) -> float:
+    token = text.strip().strip('"')
+    if decimal_comma:
+        token = token.replace(",", ".")
+    try:
+        return float(token)
+    except ValueError:
+        raise InputError(
+            f"{token!r} in column {column!r} is not a number",
+            path=where,
+            hint="each data row holds only numbers (a decimal point, or a decimal comma "
+            "with ';' as the delimiter); remove other text or mark it as a comment with '#'",
+        ) from None
+
+
+def load_impedance_csv(path: str | Path, *, method: str | None = None):
+    """Read an impedance CSV (module doc) as a :class:`bench.touchstone.Measurement`.
+
+    ``method`` is kept as the measurement's method (it only sets the window the points
+    are judged against); without it the impedance is taken as given.
+    """
+    from bench.touchstone import MAX_ABS_Z, Measurement, _check_grid
+
+    p = Path(path)
+    name = str(p)
+    raw = p.read_bytes()
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        text = raw.decode("latin-1")
+    lines = text.splitlines()
+    comments: list[str] = []
+    header_at = None
+    for index, line in enumerate(lines):
+        stripped = line.strip()
+        if not stripped:
+            continue
+        if stripped[0] in "#!%":
+            comments.append(stripped[1:].strip())
+            continue
+        header_at = index
+        break
+    if header_at is None:
+        raise InputError(
+            "holds no header row and no data",
+            path=name,
+            hint=f"give a header row naming the columns, e.g. '{_EXAMPLE}', then the data",
+        )
+    header = lines[header_at]
+    where = f"{name}:{header_at + 1}"
+    delimiter = "\t" if "\t" in header else ";" if ";" in header else ","
+    fields = header.split(delimiter)
+    if all(_is_number(field.replace(",", ".")) for field in fields if field.strip()):
+        raise InputError(
+            "has no header row: the first line holds numbers",
+            path=where,
+            hint=f"add a header row naming the columns with their units, e.g. '{_EXAMPLE}'",
+        )
+    roles: list[tuple[str, float]] = [_column(where, field) for field in fields]
+    names = [field.strip() for field in fields]
+    seen = [role for role, _ in roles]
+    for role in set(seen):
+        if seen.count(role) > 1:
+            raise InputError(
+                f"names the {role!r} column twice", path=where, hint="keep one column for each"
+            )
+    pair = [p for p in _PAIRS if p[0] in seen and p[1] in seen]
+    if "f" not in seen or len(pair) != 1 or len(seen) != 3:
+        raise InputError(
+            f"has the columns {', '.join(names)}; zbench needs a frequency and one pair: "
+            "|Z| with phase, R with X, or real with imaginary part",
+            path=where,
+            hint=f"export three columns, e.g. '{_EXAMPLE}'",
+        )
+    decimal_comma = delimiter == ";"
+    columns = {role: i for i, (role, _) in enumerate(roles)}
+    scales = {role: scale for role, scale in roles}
+    rows: list[list[float]] = []
+    for index in range(header_at + 1, len(lines)):
+        line = lines[index].strip()
+        if not line or line[0] in "#!%":
+            continue
+        cells = line.split(delimiter)
+        row_at = f"{name}:{index + 1}"
+        if len(cells) != len(fields):
+            raise InputError(
+                f"has {len(cells)} fields where the header has {len(fields)}",
+                path=row_at,
+                hint=f"give every row the header's columns, separated by {delimiter!r}"
+                + (" (a decimal comma needs ';' as the delimiter)" if delimiter == "," else ""),
+            )
+        rows.append(
+            [_number(row_at, cells[i], decimal_comma, names[i]) for i in range(len(fields))]
+        )
+    if not rows:
+        raise InputError(
+            "has a header but no data rows", path=name, hint="export the measurement's data too"
+        )
+    data = np.asarray(rows, dtype=float)
+    f = data[:, columns["f"]] * scales["f"]
+    a, b = pair[0]
+    first = data[:, columns[a]] * scales[a]
+    second = data[:, columns[b]] * scales[b]
+    z = first * np.exp(1j * second) if a == "mag" else first + 1j * second
+    _check_grid(name, f)
+    if not (np.all(np.isfinite(z)) and np.all(np.isfinite(f))):
+        raise InputError(
+            "holds NaN or infinite values", path=name, hint="remove or re-export those rows"
+        )
+    if not np.any(z):
+        raise InputError(
+            "every impedance in the file is zero: there is no measurement in it, and "
+            "nothing was fitted or written",
+            path=name,
+            hint="re-export the measurement",
+        )
+    largest = float(np.max(np.abs(z)))
+    if largest > MAX_ABS_Z:
+        raise InputError(
+            f"holds impedances up to {largest:.3g} Ω, which no measurement of a part gives",
+            path=name,
+            hint="check the units in the header (Ohm, kOhm) and the column order",
+        )
+    return Measurement(
+        path=p,
+        f=f,
+        kind="impedance",
+        s=None,
+        z=z,
+        z0=50.0,
+        comments="\n".join(comments),
+        method=method,
+        method_source="option" if method else "file",
+    )
+
+
+def _is_number(text: str) -> bool:
+    try:
+        float(text.strip().strip('"'))
+    except ValueError:
+        return False
+    return True

@@ -1,0 +1,76 @@
+"""Fits on every core: a map over worker processes that keeps the input order.
+
+``ordered_map(fn, items, jobs)`` calls ``fn(item)`` for each item and yields the results
+in the order of ``items``, as soon as each one and those before it are done, so output
+streams in input order while later items are still being worked on. ``fn`` must be a
+module-level function, and items and results picklable (arrays and frozen dataclasses
+are). One item or one job runs in this process, with no pool at all.
+
+Workers are forked from this process when it runs one thread (they then start with
+everything already imported); a process with other threads (the simulated bench of a
+``run --sim``) forks them from a clean server process instead, which imports the fitting
+core once, since forking a threaded process can deadlock.
+"""
+
+from __future__ import annotations
+
+import os
+import threading
+from collections.abc import Callable, Iterable, Iterator
+from typing import TypeVar
+
+T = TypeVar("T")
+R = TypeVar("R")
+
+#: Modules a worker process needs before its first task (forkserver preload).
+PRELOAD = ["bench.core.fitting"]
+
+
+def available_cores() -> int:
+    """Cores this process may run on (its CPU affinity where the system tells it)."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except (AttributeError, OSError):
+        return max(1, os.cpu_count() or 1)
+
+
+def worker_count(jobs: int | None, tasks: int) -> int:
+    """Workers for ``tasks`` items: ``jobs`` (all cores when None), never more than tasks."""
+    wanted = available_cores() if jobs is None or jobs <= 0 else jobs
+    return max(1, min(wanted, tasks))
+
+
+def _context():
+    import multiprocessing
+
+    if threading.active_count() == 1 and "fork" in multiprocessing.get_all_start_methods():
+        import importlib
+
+        for name in PRELOAD:  # imported once here, inherited by every worker
+            importlib.import_module(name)
+        return multiprocessing.get_context("fork")
+    if "forkserver" in multiprocessing.get_all_start_methods():
+        context = multiprocessing.get_context("forkserver")
+        context.set_forkserver_preload(PRELOAD)
+        return context
+    return multiprocessing.get_context("spawn")
+
+
+def ordered_map(fn: Callable[[T], R], items: Iterable[T], jobs: int | None = None) -> Iterator[R]:
+    """``fn`` over ``items`` on up to ``jobs`` processes (all cores when None), in order."""
+    todo = list(items)
+    workers = worker_count(jobs, len(todo))
+    if workers == 1:
+        for item in todo:
+            yield fn(item)
+        return
+    from concurrent.futures import ProcessPoolExecutor
+
+    pool = ProcessPoolExecutor(max_workers=workers, mp_context=_context())
+    try:
+        futures = [pool.submit(fn, item) for item in todo]
+        for future in futures:
+            yield future.result()
+    finally:
+        # On an error or Ctrl-C nothing further is started and the workers are stopped.
+        pool.shutdown(wait=True, cancel_futures=True)

@@ -1,0 +1,160 @@
+"""Impedance analysers' CSV exports: every accepted form, and malformed files."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from bench.errors import InputError
+from bench.touchstone import load_measurement
+
+F = np.logspace(3, 8, 21)
+# An invented MLCC: 1 µF, 5 mΩ, 0.8 nH.
+Z = 0.005 + 1 / (2j * np.pi * F * 1e-6) + 2j * np.pi * F * 0.8e-9
+
+
+def _table(header: str, delimiter: str, columns, *, decimal_comma: bool = False) -> str:
+    lines = [header]
+    for row in zip(*columns, strict=True):
+        cells = [repr(float(v)) for v in row]
+        if decimal_comma:
+            cells = [c.replace(".", ",") for c in cells]
+        lines.append(delimiter.join(cells))
+    return "\n".join(lines) + "\n"
+
+
+FORMS = [
+    # (header, delimiter, columns from (f, z), decimal comma)
+    (
+        "Frequency [Hz],|Z| [Ohm],Phase [deg]",
+        ",",
+        lambda f, z: (f, abs(z), np.degrees(np.angle(z))),
+        False,
+    ),
+    (
+        "frequency (kHz),|z| (ohm),phase (rad)",
+        ",",
+        lambda f, z: (f / 1e3, abs(z), np.angle(z)),
+        False,
+    ),
+    ("Freq MHz;R Ohm;X Ohm", ";", lambda f, z: (f / 1e6, z.real, z.imag), True),
+    ("FREQUENCY [GHz]\tReal [Ω]\tImag [Ω]", "\t", lambda f, z: (f / 1e9, z.real, z.imag), False),
+    (
+        "Frequency Hz;|Z| kOhm;Phase deg",
+        ";",
+        lambda f, z: (f, abs(z) / 1e3, np.degrees(np.angle(z))),
+        False,
+    ),
+    (
+        '"Frequency [Hz]","R [mOhm]","X [mOhm]"',
+        ",",
+        lambda f, z: (f, z.real * 1e3, z.imag * 1e3),
+        False,
+    ),
+]
+
+
+@pytest.mark.parametrize(
+    ("header", "delimiter", "columns", "comma"), FORMS, ids=[f[0] for f in FORMS]
+)
+def test_every_accepted_form_reads_the_same_impedance(
+    tmp_path: Path, header: str, delimiter: str, columns, comma: bool
+) -> None:
+    path = tmp_path / "part.csv"
+    path.write_text(
+        "# exported by an analyser\n"
+        + _table(header, delimiter, columns(F, Z), decimal_comma=comma)
+    )
+    m = load_measurement(path)
+    assert m.kind == "impedance" and m.method is None
+    np.testing.assert_allclose(m.f, F, rtol=1e-12)
+    np.testing.assert_allclose(m.z, Z, rtol=1e-9)
+    assert "exported by an analyser" in m.comments
+
+
+def _good_rows(n: int = 12) -> str:
+    return "".join(f"{1e3 * (k + 1):g},{1 + k:g},-45\n" for k in range(n))
+
+
+MALFORMED = [
+    # (name, content, expected message, line, expected fix)
+    ("no header", _good_rows(), "no header row", 1, "Frequency [Hz],|Z| [Ohm],Phase [deg]"),
+    (
+        "unknown column",
+        "Frequency [Hz],|Z| [Ohm],Q [1]\n" + _good_rows(),
+        "unknown column 'Q [1]'",
+        1,
+        "name the columns",
+    ),
+    (
+        "missing unit",
+        "Frequency,|Z| [Ohm],Phase [deg]\n" + _good_rows(),
+        "column 'Frequency' has no unit",
+        1,
+        "unit in brackets",
+    ),
+    (
+        "wrong unit",
+        "Frequency [Hz],|Z| [F],Phase [deg]\n" + _good_rows(),
+        "unit 'F' is not one",
+        1,
+        "ohm",
+    ),
+    (
+        "text in a number",
+        "Frequency [Hz],|Z| [Ohm],Phase [deg]\n" + _good_rows(4) + "5e3,abc,-45\n" + _good_rows(8),
+        "'abc' in column '|Z| [Ohm]' is not a number",
+        6,
+        "only numbers",
+    ),
+    (
+        "short row",
+        "Frequency [Hz],|Z| [Ohm],Phase [deg]\n" + _good_rows(3) + "4e3,2\n",
+        "has 2 fields where the header has 3",
+        5,
+        "header's columns",
+    ),
+    (
+        "no pair",
+        "Frequency [Hz],|Z| [Ohm],X [Ohm]\n" + _good_rows(),
+        "needs a frequency and one pair",
+        1,
+        "three columns",
+    ),
+    (
+        "decimal comma with commas",
+        "Frequency [Hz],|Z| [Ohm],Phase [deg]\n1000,1,5,-45\n",
+        "has 4 fields",
+        2,
+        "decimal comma needs ';'",
+    ),
+    ("empty", "\n# only a comment\n", "no header row and no data", None, "header row"),
+]
+
+
+@pytest.mark.parametrize(
+    ("case", "content", "message", "line", "fix"), MALFORMED, ids=[m[0] for m in MALFORMED]
+)
+def test_malformed_files_name_file_line_and_fix(
+    tmp_path: Path, case: str, content: str, message: str, line: int | None, fix: str
+) -> None:
+    path = tmp_path / "bad.csv"
+    path.write_text(content)
+    with pytest.raises(InputError) as info:
+        load_measurement(path)
+    text = str(info.value)
+    where = f"{path}:{line}:" if line is not None else f"{path}:"
+    assert text.startswith(where), text
+    assert message in text and "fix:" in text and fix in text
+    assert info.value.exit_code == 2
+
+
+def test_an_all_zero_csv_is_refused_truthfully(tmp_path: Path) -> None:
+    path = tmp_path / "zero.csv"
+    path.write_text(
+        "Frequency [Hz],R [Ohm],X [Ohm]\n" + "".join(f"{1e3 * (k + 1):g},0,0\n" for k in range(12))
+    )
+    with pytest.raises(InputError, match="nothing was fitted or written"):
+        load_measurement(path)

@@ -1,0 +1,70 @@
+"""The command line loads only what a command uses.
+
+``zbench fit`` must not pay for plotting, the report, the procedure machinery or the
+drivers; ``--help`` not even for scikit-rf or the numeric core. Checked in a fresh
+interpreter through ``sys.modules`` (behaviour, not time; timings are in benchmarks/).
+"""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+import textwrap
+from pathlib import Path
+
+import pytest
+
+EXAMPLE = Path(__file__).resolve().parents[2] / "examples" / "mlcc_22u.s2p"
+HEAVY = (
+    "matplotlib",
+    "skrf",
+    "scipy",
+    "jinja2",
+    "pyvisa",
+    "yaml",
+    "rich",
+    "bench.report",
+    "bench.plots",
+    "bench.procedure",
+    "simulated_instruments",
+)
+
+
+def loaded_after(args: list[str]) -> set[str]:
+    script = textwrap.dedent(
+        f"""
+        import json, sys
+        from bench.cli import main
+        code = main({args!r})
+        print(json.dumps([code, sorted(sys.modules)]))
+        """
+    )
+    done = subprocess.run(
+        [sys.executable, "-c", script], capture_output=True, text=True, timeout=120
+    )
+    assert done.returncode == 0, done.stderr
+    code, modules = json.loads(done.stdout.strip().splitlines()[-1])
+    assert code in (0, 3), done.stderr
+    return {m for m in modules if any(m == h or m.startswith(h + ".") for h in HEAVY)}
+
+
+def test_importing_the_command_line_loads_nothing_heavy():
+    assert loaded_after(["--help"]) == set()
+
+
+def test_fit_help_loads_no_plotting_and_no_scikit_rf():
+    heavy = loaded_after(["fit", "--help"])
+    assert not {m for m in heavy if m.split(".")[0] in ("matplotlib", "skrf")}
+    assert not {m for m in heavy if m.startswith(("bench.report", "bench.plots"))}
+
+
+@pytest.mark.skipif(not EXAMPLE.exists(), reason="the example measurement is not in this tree")
+def test_fitting_a_file_loads_no_plotting_report_or_procedure():
+    heavy = loaded_after(["fit", str(EXAMPLE), "--json"])
+    roots = {m.split(".")[0] for m in heavy}
+    assert "matplotlib" not in roots
+    assert "jinja2" not in roots and "pyvisa" not in roots
+    assert not {
+        m for m in heavy if m.startswith(("bench.report", "bench.plots", "bench.procedure"))
+    }
