@@ -41,6 +41,7 @@ from typing import Any
 
 import numpy as np
 
+from bench.errors import ZbenchError
 from bench.files import atomic_write_text
 from bench.results import PartSpec, RunSummary, SampleResult
 
@@ -75,6 +76,7 @@ SUMMARY_COLUMNS = (
     "points_used",
     "points_outside_window",
     "main_landmark",
+    "unit",
     "measured",
     "nominal",
     "tolerance",
@@ -82,9 +84,40 @@ SUMMARY_COLUMNS = (
     "deviation",
     "change_from_0v",
     "result",
+    "reason",
+    "df",
+    "df_at_hz",
+    "drive_v",
     "fit_error",
     "warnings",
 )
+
+#: Units of the ``summary.csv`` columns (ASCII). ``measured`` and ``nominal`` take the
+#: unit of the main landmark, given in the ``unit`` column; fractions say so.
+_COLUMN_UNITS = {
+    "bias_v": "V",
+    **CSV_UNITS,
+    "rms_log_error": "1",
+    "max_abs_log_error": "1",
+    "tolerance": "fraction",
+    "nominal_at_hz": "Hz",
+    "deviation": "fraction",
+    "change_from_0v": "fraction",
+    "df": "1",
+    "df_at_hz": "Hz",
+    "drive_v": "V rms",
+}
+
+
+def csv_header(column: str) -> str:
+    """Header text of a ``summary.csv`` column: its name and unit, ``srf [Hz]``."""
+    unit = _COLUMN_UNITS.get(column)
+    return f"{column} [{unit}]" if unit else column
+
+
+def csv_column(header: str) -> str:
+    """The column name of a ``summary.csv`` header (the inverse of :func:`csv_header`)."""
+    return header.split(" [", 1)[0]
 
 
 # --------------------------------------------------------------------------- names
@@ -138,12 +171,15 @@ def _magnitude_at(f: np.ndarray, z: np.ndarray, at_hz: float) -> float | None:
 def main_landmark(spec: PartSpec, sample: SampleResult) -> tuple[str, float | None]:
     """Name and value (SI) of the landmark the part's tolerance is stated on.
 
-    ``c_low`` for capacitors and ``l_low`` for inductors (from the fit's landmarks);
+    ``c_low`` for capacitors and ``l_low`` for inductors (the shown landmarks of
+    :func:`bench.verdicts.shown_landmarks`: from the data where they hold, else the fit);
     for a bead with ``nominal_at_hz``, ``z_at_nominal_hz``: |Z| there, from the
     measurement when the frequency is inside the sweep, else from the model; for a
     bead without it, ``z_at_srf``. The value is None when it cannot be had (no fit).
     """
-    landmarks = dict(sample.fit.landmarks) if sample.fit is not None else {}
+    from bench.verdicts import kind_of, shown_landmarks
+
+    landmarks = shown_landmarks(sample, kind_of(spec)) if sample.fit is not None else {}
     if spec.kind in CAPACITOR_KINDS:
         return "c_low", _finite(landmarks.get("c_low"))
     if spec.kind == "bead":
@@ -213,14 +249,25 @@ def summary_rows(summary: RunSummary) -> list[dict[str, Any]]:
     ``change_from_0v`` (fraction) is given at DC-bias points: the main landmark against
     the same sample's at 0 V, the figure that replaces a verdict under bias.
     """
+    from bench.verdicts import (
+        dissipation_factor,
+        judge,
+        kind_of,
+        plausibility_notes,
+        sample_drive,
+        shown_landmarks,
+    )
+
     rows = []
     references = zero_bias_values(summary)
+    plausibility = plausibility_notes(summary.warnings)
     for sample in summary.samples:
         spec = summary.part(sample.part)
         fit = sample.fit
-        landmarks = dict(fit.landmarks) if fit is not None else {}
+        landmarks = shown_landmarks(sample, kind_of(spec)) if fit is not None else {}
         name, value = main_landmark(spec, sample)
-        deviation, result = verdict(spec, value, sample.bias_v)
+        deviation, judged = judge(spec, sample, value, summary.warnings, plausibility)
+        df, df_at = dissipation_factor(sample, spec)
         quality = fit.quality if fit is not None else None
         outside = (
             quality.points_outside_window
@@ -241,13 +288,18 @@ def summary_rows(summary: RunSummary) -> list[dict[str, Any]]:
             "points_used": quality.points_used if quality is not None else None,
             "points_outside_window": outside,
             "main_landmark": name,
+            "unit": CSV_UNITS.get(name, ""),
             "measured": value,
             "nominal": spec.nominal,
             "tolerance": spec.tolerance,
             "nominal_at_hz": spec.nominal_at_hz if spec.kind == "bead" else None,
             "deviation": deviation,
             "change_from_0v": change_from_zero_bias(sample, value, references),
-            "result": result,
+            "result": judged.result,
+            "reason": judged.reason,
+            "df": df,
+            "df_at_hz": df_at,
+            "drive_v": sample_drive(summary, sample),
             "fit_error": sample.fit_error,
             "warnings": "; ".join(dict.fromkeys(warnings)),
         }
@@ -353,13 +405,53 @@ def bias_table(summary: RunSummary) -> dict[str, tuple[BiasPoint, ...]]:
     return table
 
 
-def typical_sample(summary: RunSummary, part: str) -> SampleResult | None:
-    """The sample of ``part`` whose main landmark is the median of the lot.
+#: An element whose one-sigma uncertainty exceeds this fraction of its value makes a fit
+#: poorly determined for the typical model (common practice, no source).
+TYPICAL_MAX_UNCERTAINTY = 0.5
 
-    Only fitted samples at the part's lowest bias point take part. With an even count
-    the lower of the two middle samples is taken (a real sample, not an average);
-    ties keep the order of the run. None when no sample of the part has a value.
+
+@dataclass(frozen=True)
+class Typical:
+    """A part's typical model: the sample it stands for and the fit it exports.
+
+    ``fit`` is the sample's own fit, or a refit of its data with the lot's majority
+    family when its own family differs (``refitted``). ``warnings`` name poorly
+    determined elements and any fall-back taken.
     """
+
+    sample: SampleResult
+    fit: Any
+    family: str
+    refitted: bool
+    basis: str
+    warnings: tuple[str, ...] = ()
+
+
+def poorly_determined(fit: Any, limit: float = TYPICAL_MAX_UNCERTAINTY) -> list[str]:
+    """Elements of ``fit`` whose one-sigma uncertainty exceeds ``limit`` of their value."""
+    out = []
+    sigma = dict(getattr(fit, "uncertainties", {}) or {})
+    for key, value in fit.elements.items():
+        error = sigma.get(key)
+        if error is None or not value or not math.isfinite(error):
+            continue
+        if error / abs(value) > limit:
+            out.append(f"{key} ±{100 * error / abs(value):.0f} %")
+    return out
+
+
+def typical_model(summary: RunSummary, part: str) -> Typical | None:
+    """The typical model of ``part``: the median sample among well-determined fits.
+
+    Only fitted samples at the part's lowest bias point with a main landmark take part.
+    Well determined: the fit meets its quality bound and no element is uncertain by
+    more than :data:`TYPICAL_MAX_UNCERTAINTY`; when no fit is, all take part, with a
+    warning. The family is the lot's most common one (the first in run order on a tie);
+    a median sample fitted with another family is refitted with it. With an even count
+    the lower of the two middle samples is taken (a real sample, not an average).
+    """
+    from collections import Counter
+
     spec = summary.part(part)
     candidates = [s for s in summary.samples if s.part == part and s.fit is not None]
     if not candidates:
@@ -374,8 +466,63 @@ def typical_sample(summary: RunSummary, part: str) -> SampleResult | None:
             valued.append((value, sample))
     if not valued:
         return None
-    valued.sort(key=lambda item: item[0])
-    return valued[(len(valued) - 1) // 2][1]
+    warnings: list[str] = []
+    families = Counter(s.fit.model for _, s in valued)
+    family = max(families, key=lambda name: (families[name], -list(families).index(name)))
+    if len(families) > 1:
+        listed = ", ".join(f"{name} ×{n}" for name, n in families.items())
+        warnings.append(
+            f"the lot was fitted with several families ({listed}); typical uses {family}"
+        )
+    good = [(v, s) for v, s in valued if s.fit.meets_quality and not poorly_determined(s.fit)]
+    if good:
+        basis = f"median of {len(good)} well-determined fit{'s' if len(good) != 1 else ''}"
+    else:
+        good = valued
+        basis = f"median of {len(valued)} fits, none well determined"
+        warnings.append("no sample's fit is well determined; the typical model is uncertain")
+    good.sort(key=lambda item: item[0])
+    sample = good[(len(good) - 1) // 2][1]
+    fit, refitted = sample.fit, False
+    if fit.model != family:
+        try:
+            fit = _refit(sample, family)
+            refitted = True
+        except ZbenchError as exc:  # a failed refit keeps the sample's own fit
+            warnings.append(
+                f"refit of {sample.label} with {family} failed ({exc}); kept {fit.model}"
+            )
+            fit = sample.fit
+    weak = poorly_determined(fit)
+    if weak:
+        warnings.append(
+            f"typical model {typical_spice_name(part)}: poorly determined element"
+            f"{'s' if len(weak) != 1 else ''} {', '.join(weak)} (above "
+            f"{100 * TYPICAL_MAX_UNCERTAINTY:g} %)"
+        )
+    return Typical(sample, fit, fit.model, refitted, basis, tuple(warnings))
+
+
+def _refit(sample: SampleResult, family: str) -> Any:
+    from bench.core.fitting import fit_impedance
+
+    data = sample.data
+    bound = getattr(sample.fit, "quality_bound", None)
+    kwargs = {} if bound is None else {"quality_bound": bound}
+    return fit_impedance(
+        data.f,
+        data.z,
+        model=family,
+        rel_uncertainty=data.rel_uncertainty,
+        valid=data.inside_window,
+        **kwargs,
+    )
+
+
+def typical_sample(summary: RunSummary, part: str) -> SampleResult | None:
+    """The sample the typical model of ``part`` stands for (see :func:`typical_model`)."""
+    typical = typical_model(summary, part)
+    return None if typical is None else typical.sample
 
 
 # --------------------------------------------------------------------------- writing
@@ -401,8 +548,13 @@ def _csv_text(columns: tuple[str, ...] | list[str], rows: list[dict[str, Any]]) 
 
 
 def summary_csv_text(summary: RunSummary) -> str:
-    """Text of ``summary.csv``."""
-    return _csv_text(SUMMARY_COLUMNS, summary_rows(summary))
+    """Text of ``summary.csv``: headers carry their units (:func:`csv_header`)."""
+    buffer = io.StringIO()
+    writer = csv.writer(buffer, lineterminator="\n")
+    writer.writerow([csv_header(column) for column in SUMMARY_COLUMNS])
+    for row in summary_rows(summary):
+        writer.writerow([_cell(row.get(column)) for column in SUMMARY_COLUMNS])
+    return buffer.getvalue()
 
 
 def lot_statistics_csv_text(summary: RunSummary) -> str:
@@ -517,7 +669,7 @@ def write_exports(run_dir: Path, summary: RunSummary) -> dict[str, list[Path]]:
     (per-part ``.lib``), ``touchstone``, ``summary``, ``lot``, ``bias``. Samples whose fit
     failed get Touchstone files and a summary row, but no subcircuit.
     """
-    from bench.core.spice import library_text, subckt_text
+    from bench.core.spice import library_text, on_mount_subckt_text, removed_mount, subckt_text
 
     run_dir = Path(run_dir)
     written: dict[str, list[Path]] = {
@@ -537,15 +689,31 @@ def write_exports(run_dir: Path, summary: RunSummary) -> dict[str, list[Path]]:
         atomic_write_text(path, text)
         written["spice"].append(path)
         texts.setdefault(sample.part, []).append(text)
+        # The same part on its mount (mount included), for a schematic with ideal wiring.
+        data = sample.data
+        mount = removed_mount(data.f, data.z_measured, data.z, data.inside_window)
+        if mount is not None:
+            text = on_mount_subckt_text(
+                sample.fit,
+                sample_spice_name(sample),
+                *mount,
+                provenance=provenance(summary, sample, date=date),
+            )
+            path = run_dir / "models" / f"{safe_filename(sample.label)}_on_mount.sub"
+            atomic_write_text(path, text)
+            written["spice"].append(path)
+            texts[sample.part].append(text)
     for spec in summary.parts:
         subckts = texts.get(spec.name)
         if not subckts:
             continue
-        typical = typical_sample(summary, spec.name)
+        typical = typical_model(summary, spec.name)
         if typical is not None:
-            origin = provenance(summary, typical, date=date)
+            origin = provenance(summary, typical.sample, date=date)
             origin["typical of"] = (
-                f"median sample by {main_landmark(spec, typical)[0]}: {typical.label}"
+                f"{typical.basis} by {main_landmark(spec, typical.sample)[0]}: "
+                f"{typical.sample.label}"
+                + (f", refitted as {typical.family}" if typical.refitted else "")
             )
             subckts = [
                 *subckts,

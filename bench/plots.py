@@ -42,6 +42,10 @@ MEASURED_COLOUR = "#1b1b1b"
 MODEL_COLOUR = "#b03a2e"
 OUTSIDE_COLOUR = "#b03a2e"
 WINDOW_FACE = "#9bb7d4"
+#: The ±1σ measurement band: another hue and a hatch, so it never reads as the window.
+SIGMA_FACE = "#e3c27a"
+SIGMA_HATCH = "...."
+NEGATIVE_COLOUR = "#6a3d7a"
 
 STYLE: dict[str, Any] = {
     "font.size": 9.0,
@@ -63,6 +67,9 @@ STYLE: dict[str, Any] = {
 }
 
 DPI = 110
+#: Stored PNGs are at least this wide (pixels), large enough for a slide; the
+#: resolution follows from the figure's width (see :func:`slide_dpi`).
+SLIDE_WIDTH_PX = 1600
 #: Palette size of the stored PNGs (see :func:`png_bytes`).
 PALETTE_COLOURS = 64
 
@@ -218,19 +225,24 @@ def _outside_mask(data: Any) -> np.ndarray:
     return ~np.asarray(inside, dtype=bool)
 
 
-def _landmark_lines(ax: Axes, fit: Any) -> None:
+def _landmark_lines(ax: Axes, fit: Any, f: np.ndarray | None = None) -> None:
     """A thin vertical line at the resonance, the landmark an engineer looks for first."""
     srf = (getattr(fit, "landmarks", None) or {}).get("srf")
     if srf is None or not math.isfinite(srf) or srf <= 0:
         return
     ax.axvline(srf, color="#666666", linewidth=0.8, linestyle=(0, (2, 2)), zorder=1)
+    # Near the right edge the label goes to the left of the line, so it is never clipped.
+    right = False
+    if f is not None and np.size(f) >= 2 and f[0] > 0:
+        lo, hi = math.log(f[0]), math.log(f[-1])
+        right = hi > lo and (math.log(srf) - lo) / (hi - lo) > 0.7
     ax.annotate(
         f"SRF {format_si(srf, 'Hz', 4)}",
         xy=(srf, 1.0),
         xycoords=("data", "axes fraction"),
-        xytext=(3, -3),
+        xytext=(-3 if right else 3, -3),
         textcoords="offset points",
-        ha="left",
+        ha="right" if right else "left",
         va="top",
         fontsize=7.5,
         color="#444444",
@@ -270,6 +282,25 @@ def _re_label(kind: str | None) -> str:
     return "Re Z" if kind is None else ("ESR = Re Z" if kind == "capacitor" else "R = Re Z")
 
 
+def _mark_non_positive(ax: Axes, f: np.ndarray, values: np.ndarray) -> None:
+    """Mark points a log axis cannot show (Re Z ≤ 0) on the panel's floor, counted."""
+    values = np.asarray(values, dtype=float)
+    bad = np.isfinite(values) & (values <= 0)
+    if not bad.any():
+        return
+    ax.plot(
+        f[bad],
+        np.full(int(bad.sum()), 0.02),
+        transform=ax.get_xaxis_transform(),
+        linestyle="none",
+        marker="v",
+        markersize=3.5,
+        color=NEGATIVE_COLOUR,
+        clip_on=False,
+        label=f"Re Z ≤ 0, not on the log axis ({int(bad.sum())})",
+    )
+
+
 def _draw_impedance(
     ax_mag: Axes, ax_esr: Axes, data: Any, fit: Any, *, legends: bool = True
 ) -> None:
@@ -292,8 +323,8 @@ def _draw_impedance(
         label = f"model ({fit.model})"
         ax_mag.plot(f, np.abs(zm), color=MODEL_COLOUR, linestyle="--", label=label)
         ax_esr.plot(f, _positive(zm.real), color=MODEL_COLOUR, linestyle="--", label=label)
-        _landmark_lines(ax_mag, fit)
-        _landmark_lines(ax_esr, fit)
+        _landmark_lines(ax_mag, fit, f)
+        _landmark_lines(ax_esr, fit, f)
         _unused_spans(ax_mag, f, fit, label=True)
         _unused_spans(ax_esr, f, fit, label=False)
     if outside.any():
@@ -316,8 +347,9 @@ def _draw_impedance(
     _log_axes(ax_esr)
     _label_short_log_range(ax_mag, "Ω")
     _label_short_log_range(ax_esr, "Ω")
-    ax_mag.set_ylabel("|Z|")
-    ax_esr.set_ylabel(_re_label(getattr(fit, "kind", None)))
+    _mark_non_positive(ax_esr, f, z.real)
+    ax_mag.set_ylabel("|Z| (Ω)")
+    ax_esr.set_ylabel(_re_label(getattr(fit, "kind", None)) + " (Ω)")
     if legends:
         ax_mag.legend(loc="best")
         ax_esr.legend(loc="best")
@@ -339,11 +371,16 @@ def _draw_residuals(
     rel = getattr(data, "rel_uncertainty", None)
     if rel is not None:
         band = 100.0 * np.clip(np.asarray(rel, dtype=float), 0, 10.0)
-        ax_mag.fill_between(
-            f, -band, band, color=WINDOW_FACE, alpha=0.3, linewidth=0, label="±1σ measurement"
-        )
+        sigma = {
+            "facecolor": SIGMA_FACE,
+            "edgecolor": "#b08a3a",
+            "hatch": SIGMA_HATCH,
+            "alpha": 0.45,
+            "linewidth": 0,
+        }
+        ax_mag.fill_between(f, -band, band, label="±1σ measurement", **sigma)
         band_deg = np.degrees(np.clip(np.asarray(rel, dtype=float), 0, math.pi))
-        ax_ph.fill_between(f, -band_deg, band_deg, color=WINDOW_FACE, alpha=0.3, linewidth=0)
+        ax_ph.fill_between(f, -band_deg, band_deg, **sigma)
     inside = ~outside
     ax_mag.plot(
         f, np.where(inside, mag_pct, np.nan), color=MEASURED_COLOUR, label="model − measured"
@@ -444,7 +481,7 @@ def sample_figure(
             axes[2].set_title(
                 f"model − measured ({_rms_text(fit)})", fontsize=8.5, loc="left", y=1.0
             )
-        axes[-1].set_xlabel("frequency")
+        axes[-1].set_xlabel("frequency (Hz)")
         # One legend for every panel, in a row under the title: nothing is hidden behind
         # it, and there is no search for the emptiest corner of each panel.
         handles: dict[str, Any] = {}
@@ -473,13 +510,13 @@ def impedance_figure(data: Any, fit: Any = None, *, title: str = "") -> Figure:
 
     The measurable window (``data.window.z_min`` … ``z_max``, Ω) is shaded on the |Z|
     panel; points outside it are marked with crosses on both panels. Non-positive
-    Re Z (noise around a near-lossless point) cannot be shown on a log axis and is left
-    out of the ESR panel.
+    Re Z (noise around a near-lossless point) cannot be shown on a log axis: those
+    points are marked with triangles on the ESR panel's floor and counted in the legend.
     """
     fig, (ax_mag, ax_esr) = _new_figure(2, height=5.6)
     with matplotlib.rc_context(STYLE):
         _draw_impedance(ax_mag, ax_esr, data, fit)
-        ax_esr.set_xlabel("frequency")
+        ax_esr.set_xlabel("frequency (Hz)")
         if title:
             ax_mag.set_title(title, y=1.0)
         _finish(fig)
@@ -497,7 +534,7 @@ def residuals_figure(data: Any, fit: Any, *, title: str = "") -> Figure:
     fig, (ax_mag, ax_ph) = _new_figure(2, height=4.2)
     with matplotlib.rc_context(STYLE):
         _draw_residuals(ax_mag, ax_ph, data, fit)
-        ax_ph.set_xlabel("frequency")
+        ax_ph.set_xlabel("frequency (Hz)")
         heading = title or "fit residuals"
         rms = _rms_text(fit)
         ax_mag.set_title(f"{heading}   ({rms})" if rms else heading, y=1.0)
@@ -549,7 +586,7 @@ def bias_figure(
             ax_c.axhline(nominal, color="#666666", linewidth=0.8, linestyle=":", label="nominal")
         ax_c.yaxis.set_major_formatter(EngFormatter(unit="F", sep=" "))
         ax_pct.axhline(0.0, color="#666666", linewidth=0.7)
-        ax_c.set_ylabel("capacitance (c_low)")
+        ax_c.set_ylabel("capacitance c_low (F)")
         ax_pct.set_ylabel(f"change from {reference} (%)")
         ax_pct.set_xlabel("DC bias (V)")
         ax_c.set_title(f"{part}: capacitance versus DC bias", y=1.0)
@@ -557,13 +594,18 @@ def bias_figure(
     return fig
 
 
-def lot_figure(part: str, samples: Iterable[Any], *, with_models: bool = False) -> Figure:
+def lot_figure(
+    part: str, samples: Iterable[Any], *, with_models: bool = False, title: str = ""
+) -> Figure:
     """|Z| and ESR of every sample of a part overlaid (``samples``: ``SampleResult``).
 
     Each sample has its own colour, line style and marker (markers every few points so
     the curves stay readable). With ``with_models`` the fitted models are drawn thin.
+    Curves of one sample at several DC bias points (a per-bias overlay) are labelled
+    by their bias.
     """
     samples = list(samples)
+    one_sample = len({s.sample for s in samples}) == 1 and len(samples) > 1
     fig, (ax_mag, ax_esr) = _new_figure(2, height=5.6)
     with matplotlib.rc_context(STYLE):
         for index, sample in enumerate(samples):
@@ -572,6 +614,8 @@ def lot_figure(part: str, samples: Iterable[Any], *, with_models: bool = False) 
             style = series_style(index)
             every = max(1, f.size // 12)
             label = sample.sample + (f" @ {sample.bias_v:g} V" if sample.bias_v else "")
+            if one_sample:
+                label = f"{sample.bias_v:g} V"
             kwargs = {"markevery": (index % every, every), "markersize": 4, **style}
             ax_mag.plot(f, _positive(np.abs(z)), label=label, **kwargs)
             ax_esr.plot(f, _positive(z.real), label=label, **kwargs)
@@ -582,19 +626,32 @@ def lot_figure(part: str, samples: Iterable[Any], *, with_models: bool = False) 
         _log_axes(ax_esr)
         _label_short_log_range(ax_mag, "Ω")
         _label_short_log_range(ax_esr, "Ω")
-        ax_mag.set_ylabel("|Z|")
+        ax_mag.set_ylabel("|Z| (Ω)")
         kinds = {getattr(s.fit, "kind", None) for s in samples if s.fit is not None}
-        ax_esr.set_ylabel(_re_label(kinds.pop() if len(kinds) == 1 else None))
-        ax_esr.set_xlabel("frequency")
-        ax_mag.set_title(f"{part}: all samples", y=1.0)
+        ax_esr.set_ylabel(_re_label(kinds.pop() if len(kinds) == 1 else None) + " (Ω)")
+        for sample in samples:
+            z = np.asarray(sample.data.z, dtype=complex)
+            if np.any(np.isfinite(z.real) & (z.real <= 0)):
+                _mark_non_positive(ax_esr, np.asarray(sample.data.f, dtype=float), z.real)
+                break
+        ax_esr.set_xlabel("frequency (Hz)")
+        ax_mag.set_title(title or f"{part}: all samples", y=1.0)
         ax_mag.legend(loc="best", ncol=2)
         _finish(fig)
     return fig
 
 
-def png_bytes(fig: Figure, *, dpi: int = DPI, colours: int | None = PALETTE_COLOURS) -> bytes:
+def slide_dpi(fig: Figure, width_px: int = SLIDE_WIDTH_PX) -> int:
+    """The resolution at which ``fig`` is at least ``width_px`` pixels wide."""
+    return max(DPI, math.ceil(width_px / fig.get_figwidth()))
+
+
+def png_bytes(
+    fig: Figure, *, dpi: int | None = None, colours: int | None = PALETTE_COLOURS
+) -> bytes:
     """Render ``fig`` to PNG bytes with the Agg renderer.
 
+    ``dpi`` defaults to :func:`slide_dpi` (at least :data:`SLIDE_WIDTH_PX` wide).
     With ``colours`` (2…256) the image is stored with a palette of that many colours
     instead of full RGB: a line figure holds a few inks and their anti-aliased edges,
     so the file is about a third of the size and reads the same. ``None`` keeps RGB.
@@ -602,6 +659,7 @@ def png_bytes(fig: Figure, *, dpi: int = DPI, colours: int | None = PALETTE_COLO
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from PIL import Image
 
+    dpi = slide_dpi(fig) if dpi is None else dpi
     buffer = io.BytesIO()
     if colours is None:
         fig.savefig(buffer, format="png", dpi=dpi, facecolor="white")
@@ -617,7 +675,7 @@ def png_bytes(fig: Figure, *, dpi: int = DPI, colours: int | None = PALETTE_COLO
     return buffer.getvalue()
 
 
-def save_png(fig: Figure, path: str | os.PathLike[str], *, dpi: int = DPI) -> bytes:
+def save_png(fig: Figure, path: str | os.PathLike[str], *, dpi: int | None = None) -> bytes:
     """Write ``fig`` to ``path`` as PNG atomically (see :func:`png_bytes`); returns its bytes."""
     data = png_bytes(fig, dpi=dpi)
     atomic_write_bytes(path, data)

@@ -23,7 +23,7 @@ from typing import Any
 
 import numpy as np
 
-from bench import exports, plots
+from bench import exports, plots, verdicts
 from bench.files import atomic_write_text
 from bench.results import PartSpec, RunSummary, SampleResult
 from bench.units import format_si
@@ -32,7 +32,7 @@ CSS = """
 :root { --ink: #1b1b1b; --muted: #5a5a5a; --rule: #c9c9c9; --band: #f3f4f6; }
 * { box-sizing: border-box; }
 body { font-family: "DejaVu Sans", "Helvetica Neue", Arial, sans-serif; color: var(--ink);
-       max-width: 62rem; margin: 1.5rem auto; padding: 0 1.2rem; line-height: 1.4;
+       max-width: 72rem; margin: 1.5rem auto; padding: 0 1.2rem; line-height: 1.4;
        font-size: 10.5pt; }
 h1 { font-size: 1.55rem; margin: 0 0 .2rem; }
 h2 { font-size: 1.2rem; border-bottom: 2px solid var(--ink); padding-bottom: .15rem;
@@ -49,11 +49,19 @@ table.kv th { width: 14rem; }
 table.glance { font-size: .8rem; }
 table.window td:first-child { white-space: nowrap; }
 table.glance td { white-space: nowrap; padding: .15rem .3rem; }
+table.glance th { font-size: .72rem; }
 table.glance th { vertical-align: bottom; padding: .15rem .3rem; }
 .verdict-pass { font-weight: 700; }
 .verdict-fail { font-weight: 700; text-decoration: underline; }
 .verdict-pass::before { content: "\\2713\\00a0"; }
 .verdict-fail::before { content: "\\2717\\00a0"; }
+.verdict-check { font-weight: 700; font-style: italic; }
+.verdict-check::before { content: "?\\00a0"; }
+span.reason { white-space: normal; display: inline-block; min-width: 9rem; max-width: 13rem;
+              font-size: .75rem; }
+div.scroll { overflow-x: auto; }
+@media print { div.scroll { overflow: visible; } }
+h3.glance span.note { font-weight: normal; font-size: .85rem; }
 figure { margin: .6rem 0 1rem; page-break-inside: avoid; break-inside: avoid; }
 figure img { max-width: 100%; border: 1px solid var(--rule); }
 figcaption { color: var(--muted); font-size: .85rem; }
@@ -243,14 +251,20 @@ def _si(value: float | None, unit: str, digits: int = 4) -> str:
     return esc(format_si(value, unit, digits))
 
 
-def _verdict_html(result: str, bias_v: float = 0.0, *, short: bool = False) -> str:
+def _verdict_html(
+    result: str, bias_v: float = 0.0, *, short: bool = False, reason: str = ""
+) -> str:
+    """PASS, FAIL or CHECK (with its reason), or why there is none."""
     if not result:
         if bias_v:
             text = "not judged" if short else "not judged under bias"
         else:
             text = "no tolerance" if short else "no tolerance given"
         return f'<span class="note">{text}</span>'
-    return f'<span class="verdict-{esc(result)}">{esc(result.upper())}</span>'
+    mark = f'<span class="verdict-{esc(result.lower())}">{esc(result.upper())}</span>'
+    if result.upper() == "CHECK" and reason:
+        mark += f'<br><span class="note reason">{esc(reason)}</span>'
+    return mark
 
 
 def _percent(value: float | None) -> str:
@@ -364,58 +378,98 @@ def _points_text(sample: SampleResult) -> tuple[int, int, int | None]:
     return total, outside, used
 
 
-def _glance_section(summary: RunSummary) -> str:
-    rows = []
-    for row, sample in zip(exports.summary_rows(summary), summary.samples, strict=True):
-        unit = exports.LANDMARK_UNITS.get(row["main_landmark"], "")
+_GLANCE_COLUMNS = {
+    "capacitor": (("c_low", "C", "F"), ("esl", "ESL", "H"), ("srf", "SRF", "Hz"),
+                  ("esr_at_srf", "ESR", "Ω")),
+    "inductor": (("l_low", "L", "H"), ("r_dc", "Rdc", "Ω"), ("srf", "SRF", "Hz"),
+                 ("z_at_srf", "|Z| at SRF", "Ω"), ("c_par", "Cpar", "F")),
+}  # fmt: skip
+
+
+def _glance_part(summary: RunSummary, spec: PartSpec, rows: list[tuple[dict, SampleResult]]) -> str:
+    """One part's table: every landmark an engineer looks for, one row per sample."""
+    kind = verdicts.kind_of(spec)
+    columns = _GLANCE_COLUMNS[kind]
+    z_points = {s.label: verdicts.z_at_frequencies(s, spec) for _, s in rows}
+    freqs = sorted({f for values in z_points.values() for f in values})
+    dfs = {s.label: verdicts.dissipation_factor(s, spec) for _, s in rows}
+    df_freqs = sorted({at for _, at in dfs.values() if at is not None})
+    body = []
+    for row, sample in rows:
         total, outside, used = _points_text(sample)
         if row["bias_v"]:
-            # No verdict under bias: the change from the same sample at 0 V instead.
             change = row["change_from_0v"]
             against = "—" if change is None else f"{_percent(change)} vs 0 V"
         else:
             against = _percent(row["deviation"])
-        rows.append(
-            [
-                esc(row["part"]),
-                esc(row["sample"]),
-                esc(f"{row['bias_v']:g} V"),
-                esc(_landmark_label(summary.part(row["part"]), row["main_landmark"]))
-                if row["model"]
-                else "no fit",
-                _si(row["measured"], unit),
-                _si(row["nominal"], unit),
-                esc(against),
-                _verdict_html(row["result"], row["bias_v"], short=True),
-                "—" if row["rms_log_error"] is None else f"{row['rms_log_error']:.3g}",
-                "—" if used is None else f"{used} of {total}",
-                str(outside),
-            ]
-        )
+        cells = [esc(row["sample"]), esc(f"{row['bias_v']:g} V")]
+        cells += [_si(row.get(key), unit) for key, _, unit in columns]
+        if df_freqs:
+            df, at = dfs[sample.label]
+            cells.append(
+                "—"
+                if df is None
+                else esc(
+                    f"{df:.3g}" + (f" at {format_si(at, 'Hz', 3)}" if len(df_freqs) > 1 else "")
+                )
+            )
+        cells += [_si(z_points[sample.label].get(f), "Ω", 3) for f in freqs]
+        cells += [
+            _si(row["drive_v"], "V", 3),
+            esc(against),
+            _verdict_html(row["result"], row["bias_v"], short=True, reason=row["reason"]),
+            "—" if row["rms_log_error"] is None else f"{row['rms_log_error']:.3g}",
+            ("—" if used is None else f"{used} of {total}") + f" / {outside}",
+        ]
+        body.append(cells)
+    headers = ["sample", "bias (V)", *(f"{name} ({unit})" for _, name, unit in columns)]
+    if df_freqs:
+        headers.append(f"DF at {format_si(df_freqs[0], 'Hz', 3)}" if len(df_freqs) == 1 else "DF")
+    headers += [f"|Z| at {format_si(f, 'Hz', 4)} (Ω)" for f in freqs]
+    headers += ["drive (V rms)", "deviation", "verdict", "RMS log error",
+                "points fitted / outside window"]  # fmt: skip
+    first_numeric = 2
+    numeric = set(range(first_numeric, len(headers))) - {len(headers) - 3}
+    model = ""
+    typical = exports.typical_model(summary, spec.name)
+    if typical is not None:
+        model = f" · typical model {exports.typical_spice_name(spec.name)} = {typical.sample.label}"
+    nominal = ""
+    if spec.nominal:
+        unit = "Ω" if spec.kind == "bead" else ("F" if kind == "capacitor" else "H")
+        tol = f" ± {100 * spec.tolerance:g} %" if spec.tolerance is not None else ""
+        label = _landmark_label(spec, exports.main_landmark(spec, rows[0][1])[0])
+        nominal = f" · {label} nominal {format_si(spec.nominal, unit, 4)}{tol}"
+    return (
+        f'<h3 class="glance">{esc(spec.name)}<span class="note">{esc(nominal + model)}</span></h3>'
+        + '<div class="scroll">'
+        + _table(headers, body, numeric=numeric, css_class="glance")
+        + "</div>"
+    )
+
+
+def _glance_section(summary: RunSummary) -> str:
+    by_part: dict[str, list[tuple[dict, SampleResult]]] = {}
+    for row, sample in zip(exports.summary_rows(summary), summary.samples, strict=True):
+        by_part.setdefault(sample.part, []).append((row, sample))
+    tables = [
+        _glance_part(summary, spec, by_part[spec.name])
+        for spec in summary.parts
+        if spec.name in by_part
+    ]
     return (
         "<h2>Results at a glance</h2>"
-        + _table(
-            [
-                "part",
-                "sample",
-                "bias",
-                "landmark",
-                "measured",
-                "nominal",
-                "deviation",
-                "verdict",
-                "RMS log error",
-                "points fitted",
-                "outside window",
-            ],
-            rows,
-            numeric={4, 5, 6, 8, 9, 10},
-            css_class="glance",
-        )
-        + '<p class="note">Deviation: the landmark against the nominal value at 0 V; at a '
-        "DC-bias point, its change from the same sample at 0 V (a nominal value is stated "
-        "without bias, so it is not judged there). Points fitted: those inside the "
-        "window and the fit's frequency range.</p>"
+        + "".join(tables)
+        + '<p class="note">Landmarks are read from the measured points inside the window '
+        "where the data give them, else from the fitted model (the same values as the "
+        "console). DF: ESR·ωC at 120 Hz or 1 kHz where measured inside the window. Drive: "
+        "the largest RMS voltage across the part over the sweep, from the source power, "
+        "Z0 and the port series resistors. Deviation: the main landmark against the "
+        "nominal value at 0 V; at a DC-bias point, its change from the same sample at 0 V "
+        "(a nominal value is stated without bias, so it is not judged there). Verdict: "
+        "PASS or FAIL against the tolerance, CHECK when the fit missed its quality bound, "
+        "a fixture step was skipped or a plausibility check failed (the reason follows). "
+        "Points fitted: those inside the window and the fit's frequency range.</p>"
     )
 
 
@@ -525,9 +579,12 @@ def _sample_section(
     )
     parts = [f'<section class="sample"><h4>{esc(heading)}</h4>']
     name, value = exports.main_landmark(spec, sample)
-    deviation, result = exports.verdict(spec, value, sample.bias_v)
+    deviation, judged = verdicts.judge(
+        spec, sample, value, summary.warnings, verdicts.plausibility_notes(summary.warnings)
+    )
     unit = exports.LANDMARK_UNITS.get(name, "")
     label = esc(_landmark_label(spec, name))
+    drive = verdicts.sample_drive(summary, sample)
     facts = {
         "position": sample.position,
         **(
@@ -537,6 +594,9 @@ def _sample_section(
         ),
         "raw file": sample.raw_file or "(not recorded)",
         "model": sample.fit.model if sample.fit is not None else "no fit",
+        "drive across the part": "not recorded"
+        if drive is None
+        else f"{format_si(drive, 'V', 3)} rms at most",
     }
     parts.append(_kv_table(facts))
     if sample.bias_v and value is not None:
@@ -559,8 +619,11 @@ def _sample_section(
         tol = f" ± {100 * spec.tolerance:g} %" if spec.tolerance is not None else ""
         parts.append(
             f"<p>{label} = {_si(value, unit)} against {_si(spec.nominal, unit)}{esc(tol)}: "
-            f"deviation {_percent(deviation)}, {_verdict_html(result, sample.bias_v)}</p>"
+            f"deviation {_percent(deviation)}, "
+            f"{_verdict_html(judged.result, sample.bias_v, reason=judged.reason)}</p>"
         )
+    if judged.result == "CHECK" and (sample.bias_v or not spec.nominal):
+        parts.append(f"<p>{_verdict_html(judged.result, reason=judged.reason)}</p>")
     caption = (
         f"{heading}: |Z| and ESR versus frequency; shaded band: measurable window; "
         "crosses: points outside it; dashed: fitted model"
@@ -617,6 +680,23 @@ def _lot_html(summary: RunSummary, spec: PartSpec, figs: _Figures) -> str:
                 f"{spec.name}: every sample at {lowest:g} V overlaid.",
             )
         )
+    biases = sorted({s.bias_v for s in samples})
+    if len(biases) > 1:
+        for name in dict.fromkeys(s.sample for s in samples):
+            curves = sorted((s for s in samples if s.sample == name), key=lambda s: s.bias_v)
+            if len(curves) < 2:
+                continue
+            out.append(
+                figs.embed(
+                    plots.lot_figure(
+                        spec.name,
+                        curves,
+                        title=f"{spec.name} / {name}: |Z| and ESR at each DC bias",
+                    ),
+                    f"{spec.name}_{name}_bias_overlay",
+                    f"{spec.name} / {name}: |Z| and ESR at every DC bias point overlaid.",
+                )
+            )
     stats = exports.lot_statistics(summary).get(spec.name, {})
     for bias, landmarks in stats.items():
         rows = []
@@ -686,13 +766,20 @@ def _part_section(summary: RunSummary, spec: PartSpec, figs: _Figures) -> str:
         facts["rated voltage"] = format_si(spec.rated_voltage, "V")
     facts["model requested"] = spec.model
     facts["samples measured"] = str(len(samples))
-    typical = exports.typical_sample(summary, spec.name) if samples else None
+    typical = exports.typical_model(summary, spec.name) if samples else None
     if typical is not None:
-        facts["typical model"] = f"{exports.typical_spice_name(spec.name)} = {typical.label}"
+        facts["typical model"] = (
+            f"{exports.typical_spice_name(spec.name)} = {typical.sample.label} "
+            f"({typical.basis}; family {typical.family}"
+            + (", refitted" if typical.refitted else "")
+            + ")"
+        )
     body = [
         f'<h2 id="{esc(exports.safe_filename(spec.name))}">Part {esc(spec.name)}</h2>',
         _kv_table(facts),
     ]
+    if typical is not None and typical.warnings:
+        body.append(_warnings_list(typical.warnings))
     if not samples:
         body.append('<p class="note">No sample of this part was measured.</p>')
         return "".join(body)

@@ -6,6 +6,7 @@ import json
 import re
 from pathlib import Path
 
+import click
 import pytest
 from click.testing import CliRunner
 
@@ -93,12 +94,41 @@ def test_resume_reprocess_and_report_commands(tmp_path, sim, kit):
     after = kit.raw_files(store)
     assert all(after[k] == v for k, v in kept.items())
 
-    result = CliRunner().invoke(cli, ["reprocess", str(store.root), "--model", "series-rlc"])
-    assert result.exit_code == 0, result.output + repr(result.exception)
-    assert "3 samples, 3 fitted" in result.output
-    fit = json.loads((store.root / "models" / "MC22-6V3_s1.fit.json").read_text())
+    before = {
+        p.relative_to(store.root): p.read_bytes()
+        for p in store.root.rglob("*")
+        if p.is_file() and p.name not in ("manifest.json", "log")
+    }
+    result = CliRunner().invoke(
+        cli, ["reprocess", str(store.root), "--model", "series-rlc", "--tolerance", "10%"]
+    )
+    # A series R-L-C cannot follow these parts to the bound: exit 3, counted, never 0.
+    bad = re.search(r"(\d+) fitted, (\d+) missed the quality bound", result.output)
+    assert bad, result.output
+    assert result.exit_code == (3 if int(bad.group(2)) else 0), result.output
+    assert "3 samples" in result.output
+    (first,) = (store.root / "reprocess").iterdir()
+    assert first.name.endswith("model-series-rlc_tolerance-10pct")
+    fit = json.loads((first / "models" / "MC22-6V3_s1.fit.json").read_text())
     assert fit["model"] == "series-rlc"
-    assert _manifest(store.root)["reprocess"]["model"] == "series-rlc"
+    settings = json.loads((first / "settings.json").read_text())
+    assert (first / settings["raw"]).resolve() == (store.root / "raw").resolve()
+    assert settings["settings"]["analysis"]["tolerance"] == pytest.approx(0.1)
+    # The report names the settings used, not the procedure's.
+    text = (first / "report.html").read_text(encoding="utf-8")
+    assert "<th>model requested</th><td>series-rlc</td>" in text
+    assert "<th>changed on the command line</th><td>model, tolerance</td>" in text
+    # Nothing of the run's own results changed.
+    for relative, data in before.items():
+        assert (store.root / relative).read_bytes() == data, relative
+    # A second reprocess makes a second result set; the first stays as it was.
+    kept = {p: p.read_bytes() for p in first.rglob("*") if p.is_file()}
+    result = CliRunner().invoke(cli, ["reprocess", str(store.root)])
+    assert result.exit_code in (0, 3), result.output + repr(result.exception)
+    assert len(list((store.root / "reprocess").iterdir())) == 2
+    assert all(p.read_bytes() == data for p, data in kept.items())
+    listed = _manifest(store.root)["reprocessed"]
+    assert [entry["model"] for entry in listed] == ["series-rlc", None]
 
     result = CliRunner().invoke(cli, ["report", str(store.root)])
     assert result.exit_code == 0, result.output + repr(result.exception)
@@ -191,3 +221,15 @@ def test_demo_runs_on_the_second_dialect(tmp_path):
     # the stored procedure names the map, so a resume speaks the same dialect
     assert "command_map: meas_stim" in (root / "procedure.yaml").read_text(encoding="utf-8")
     assert len(list((root / "raw").glob("*.s2p"))) == 4 + 8 + 11 + 6 + 2 * (2 + 2)
+
+
+def test_reprocess_reads_options_with_units_and_refuses_nonsense(tmp_path):
+    from bench.commands.options import Fraction, Quantity
+
+    assert Fraction().convert("10%", None, None) == pytest.approx(0.1)
+    assert Fraction().convert("0.05", None, None) == pytest.approx(0.05)
+    assert Quantity("dB", "-110").convert("-110 dB", None, None) == -110.0
+    with pytest.raises(click.BadParameter, match="between 0 and 1"):
+        Fraction().convert("150%", None, None)
+    result = CliRunner().invoke(cli, ["reprocess", str(tmp_path), "--tolerance", "ten"])
+    assert result.exit_code == 2 and "0.1 or 10%" in result.output

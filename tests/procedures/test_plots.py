@@ -2,9 +2,12 @@
 
 from __future__ import annotations
 
+import dataclasses
 import io
+import re
 
 import numpy as np
+import pytest
 from PIL import Image
 
 from bench import plots
@@ -23,8 +26,8 @@ def test_sample_figure_has_impedance_and_residual_panels_on_one_axis(summary):
     fig = plots.sample_figure(fitted.data, fitted.fit, title="A / s1")
     assert len(fig.axes) == 4
     assert [ax.get_ylabel() for ax in fig.axes] == [
-        "|Z|",
-        "ESR = Re Z",
+        "|Z| (Ω)",
+        "ESR = Re Z (Ω)",
         "magnitude error (%)",
         "phase error (°)",
     ]
@@ -68,7 +71,61 @@ def test_png_is_a_small_palette_image(summary):
         assert image.mode == "P"
         assert len(image.getcolors(256)) <= plots.PALETTE_COLOURS
         width, height = image.size
-    # 7 in × 8.2 in at the figure DPI.
-    assert (width, height) == (round(7.0 * plots.DPI), round(8.2 * plots.DPI))
+    # Large enough for a slide: at least 1600 px wide, the figure's proportions kept.
+    assert width >= plots.SLIDE_WIDTH_PX == 1600
+    assert height / width == pytest.approx(8.2 / 7.0, rel=0.01)
     rgb = plots.png_bytes(fig, colours=None)
     assert len(data) < 0.6 * len(rgb)
+
+
+def test_every_axis_names_its_unit(summary):
+    fitted, _ = _samples(summary)
+    fig = plots.sample_figure(fitted.data, fitted.fit)
+    for ax in fig.axes:
+        assert re.search(r"\((Ω|%|°)\)$", ax.get_ylabel()), ax.get_ylabel()
+    assert fig.axes[-1].get_xlabel() == "frequency (Hz)"
+    lot = plots.lot_figure("A", [s for s in summary.samples if s.fit is not None][:2])
+    assert [ax.get_ylabel()[-3:] for ax in lot.axes] == ["(Ω)", "(Ω)"]
+
+
+def test_window_and_sigma_band_are_told_apart(summary):
+    from matplotlib.colors import to_hex
+
+    fitted, _ = _samples(summary)
+    fig = plots.sample_figure(fitted.data, fitted.fit)
+    (legend,) = fig.legends
+    patches = {
+        t.get_text(): h for t, h in zip(legend.get_texts(), legend.legend_handles, strict=True)
+    }
+    window, sigma = patches["measurable window"], patches["±1σ measurement"]
+    assert to_hex(window.get_facecolor()) != to_hex(sigma.get_facecolor())
+    assert sigma.get_hatch() and not window.get_hatch()
+
+
+def test_non_positive_re_z_is_marked_not_dropped(summary):
+    fitted, _ = _samples(summary)
+    z = fitted.data.z.copy()
+    z[[5, 6, 7]] = -abs(z[[5, 6, 7]].real) + 1j * z[[5, 6, 7]].imag
+    data = dataclasses.replace(fitted.data, z=z)
+    fig = plots.sample_figure(data, fitted.fit)
+    (legend,) = fig.legends
+    labels = [t.get_text() for t in legend.get_texts()]
+    assert "Re Z ≤ 0, not on the log axis (3)" in labels
+
+
+def test_srf_label_near_the_right_edge_stays_inside_the_figure(summary):
+    fitted, _ = _samples(summary)
+    f = fitted.data.f
+    fit = dataclasses.replace(fitted.fit, landmarks={**fitted.fit.landmarks, "srf": f[-2]})
+    fig = plots.sample_figure(fitted.data, fit)
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    canvas = FigureCanvasAgg(fig)
+    canvas.draw()
+    renderer = canvas.get_renderer()
+    width = fig.bbox.width
+    labels = [t for ax in fig.axes for t in ax.texts if t.get_text().startswith("SRF")]
+    assert labels
+    for text in labels:
+        box = text.get_window_extent(renderer)
+        assert box.x0 >= 0 and box.x1 <= width
