@@ -22,7 +22,8 @@ fixture: {positions: 8, use_positions: [3], series_resistor: 499 ohm, isolation_
 calibration: {method: through}
 analysis: {noise_floor: -110 dB, mount: fitted}
 parts:
-  - {name: PL530N, kind: inductor, nominal: 530n, model: inductor, samples: 1}
+  - {name: PL530N, kind: inductor, nominal: 530n, model: inductor, samples: 1,
+     method: shunt-through}
 steps: [calibrate, mount_open, mount_short, measure]
 """
 

@@ -71,7 +71,7 @@ def test_a_bead_line_leads_with_its_impedance_at_the_stated_frequency(tmp_path, 
         "  - {name: MC22-6V3, kind: mlcc, nominal: 22u, tolerance: 20 %, rated_voltage: 6.3 V, "
         "samples: 1}",
         "  - {name: FB137, kind: bead, nominal: 137 ohm, tolerance: 25 %, nominal_at: 100 MHz, "
-        "samples: 1}",
+        "samples: 1, method: shunt-through}",
     ).replace("stop: 100 MHz, points: 101", "stop: 200 MHz, points: 121")
     plan, store = kit.start_run(tmp_path, text)
     lines: list[str] = []
