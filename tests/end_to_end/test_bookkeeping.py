@@ -77,3 +77,25 @@ def test_ctrl_c_under_bias_confirms_output_off_and_discharged(tmp_path, sim, kit
     confirm = [line for line in lines if "DC bias output is OFF" in line]
     assert confirm and "discharged" in confirm[0]
     assert sim.state.bias.output is False  # the simulated source really is off
+
+
+def test_console_summary_and_report_give_the_same_landmarks(tmp_path, sim, kit):
+    from bench import exports
+    from bench.units import format_si
+
+    plan, store = kit.start_run(tmp_path, kit.SMALL)
+    lines: list[str] = []
+    runner = kit.run_on(sim, plan, store, lines=lines)
+    report = (
+        (store.root / "report.html").read_text(encoding="utf-8")
+        if (store.root / "report.html").exists()
+        else None
+    )
+    for row in exports.summary_rows(runner.summary):
+        label = f"fit {row['part']}_{row['sample']}"
+        (line,) = [x for x in lines if x.startswith(label + " ")]
+        for key, name, unit in (("c_low", "C", "F"), ("esl", "ESL", "H"), ("srf", "SRF", "Hz")):
+            shown = format_si(row[key], unit, 3)
+            assert f"{name} {shown}" in " ".join(line.split()), (line, key, shown)
+        if report is not None:
+            assert format_si(row["srf"], "Hz", 4) in report
