@@ -25,6 +25,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "check": ("check", "Validate a procedure and print its plan."),
     "reprocess": ("reprocess", "Recompute a run from its stored raw data."),
     "report": ("report", "Rebuild the report of a run."),
+    "probe": ("probe", "Check a command map against a live instrument, entry by entry."),
 }
 
 

@@ -63,6 +63,16 @@ class RunError(ZbenchError):
     exit_code = 1
 
 
+class BiasNotConfirmedOffError(RunError):
+    """The DC source's output could not be confirmed off after a biased run (exit 4).
+
+    A status of its own, so that a script driving zbench can tell "the part may still be
+    charged" from any other stop.
+    """
+
+    exit_code = 4
+
+
 class SafetyError(ZbenchError):
     """A requested action would exceed a safety limit; nothing was applied."""
 

@@ -669,7 +669,7 @@ def write_exports(run_dir: Path, summary: RunSummary) -> dict[str, list[Path]]:
     (per-part ``.lib``), ``touchstone``, ``summary``, ``lot``, ``bias``. Samples whose fit
     failed get Touchstone files and a summary row, but no subcircuit.
     """
-    from bench.core.spice import library_text, subckt_text
+    from bench.core.spice import library_text, on_mount_subckt_text, removed_mount, subckt_text
 
     run_dir = Path(run_dir)
     written: dict[str, list[Path]] = {
@@ -689,6 +689,20 @@ def write_exports(run_dir: Path, summary: RunSummary) -> dict[str, list[Path]]:
         atomic_write_text(path, text)
         written["spice"].append(path)
         texts.setdefault(sample.part, []).append(text)
+        # The same part on its mount (mount included), for a schematic with ideal wiring.
+        data = sample.data
+        mount = removed_mount(data.f, data.z_measured, data.z, data.inside_window)
+        if mount is not None:
+            text = on_mount_subckt_text(
+                sample.fit,
+                sample_spice_name(sample),
+                *mount,
+                provenance=provenance(summary, sample, date=date),
+            )
+            path = run_dir / "models" / f"{safe_filename(sample.label)}_on_mount.sub"
+            atomic_write_text(path, text)
+            written["spice"].append(path)
+            texts[sample.part].append(text)
     for spec in summary.parts:
         subckts = texts.get(spec.name)
         if not subckts:

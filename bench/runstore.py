@@ -18,6 +18,7 @@ starts.
 from __future__ import annotations
 
 import datetime as _dt
+import hashlib
 import json
 import re
 import shutil
@@ -62,6 +63,60 @@ def file_stem(step_id: str) -> str:
     return re.sub(r"[^A-Za-z0-9._-]", "_", "_".join(parts))
 
 
+def plan_digest(resolved: dict[str, Any]) -> str:
+    """A digest of the resolved plan (SI values, every setting; not the file's path).
+
+    A resume compares it with the plan rebuilt from the run folder's ``procedure.yaml``,
+    so an edit there (fewer points, another current limit) is found, not silently used.
+    """
+    plain = {k: v for k, v in resolved.items() if k != "source"}
+    text = json.dumps(plain, sort_keys=True, separators=(",", ":"), default=str)
+    return "sha256:" + hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def changed_keys(old: Any, new: Any, prefix: str = "") -> list[str]:
+    """Dotted keys whose values differ between two resolved plans."""
+    if isinstance(old, dict) and isinstance(new, dict):
+        keys: list[str] = []
+        for key in sorted(set(old) | set(new), key=str):
+            if key == "source" and not prefix:
+                continue
+            name = f"{prefix}.{key}" if prefix else str(key)
+            keys += changed_keys(old.get(key), new.get(key), name)
+        return keys
+    if isinstance(old, tuple | list) and isinstance(new, tuple | list) and len(old) == len(new):
+        keys = []
+        for i, (a, b) in enumerate(zip(old, new, strict=True)):
+            keys += changed_keys(a, b, f"{prefix}[{i}]")
+        return keys
+    return [] if old == new else [prefix or "<plan>"]
+
+
+#: Largest manifest read back (a run of thousands of steps stays far below it).
+MAX_MANIFEST_BYTES = 50_000_000
+
+
+def _manifest_shape_ok(manifest: Any) -> bool:
+    """A mapping whose steps each have an id, a state and files inside the run folder."""
+    if not isinstance(manifest, dict) or not isinstance(manifest.get("steps"), list):
+        return False
+    for entry in manifest["steps"]:
+        if not isinstance(entry, dict) or not isinstance(entry.get("id"), str):
+            return False
+        files = entry.get("files", [])
+        if not isinstance(files, list) or not all(_inside_run(f) for f in files):
+            return False
+    return isinstance(manifest.get("procedure", {}), dict)
+
+
+def _inside_run(relative: Any) -> bool:
+    """A relative path that stays inside the run folder (no '..', not absolute)."""
+    if not isinstance(relative, str) or not relative:
+        return False
+    path = Path(relative)
+    return not path.is_absolute() and ".." not in path.parts
+
+
 class RunStore:
     """A run folder and its manifest. Create with :meth:`create`, reopen with :meth:`open`."""
 
@@ -98,6 +153,7 @@ class RunStore:
             "software_version": __version__,
             "state": "created",
             "procedure": resolved,
+            "plan_digest": plan_digest(resolved),
             "procedure_file": PROCEDURE_COPY,
             "instruments": {},
             "calibration": {},
@@ -125,13 +181,31 @@ class RunStore:
                 hint="give a folder that zbench run or zbench demo created",
             )
         try:
-            manifest = json.loads(path.read_text(encoding="utf-8"))
+            with path.open("rb") as handle:
+                data = handle.read(MAX_MANIFEST_BYTES + 1)
+            if len(data) > MAX_MANIFEST_BYTES:
+                raise ValueError("larger than a run's manifest can be")
+            manifest = json.loads(data.decode("utf-8"))
         except json.JSONDecodeError as exc:
             raise InputError(
                 f"manifest.json is not valid JSON ({exc.msg}, line {exc.lineno})",
                 path=str(path),
                 hint="restore the manifest from a backup; the raw sweeps are untouched",
             ) from None
+        except (OSError, ValueError, RecursionError) as exc:
+            # Never the file's text in the message: the folder may be any folder.
+            reason = "nested too deeply" if isinstance(exc, RecursionError) else type(exc).__name__
+            raise InputError(
+                f"manifest.json cannot be read as a zbench manifest ({reason})",
+                path=str(path),
+                hint="give a folder that zbench run or zbench demo created",
+            ) from None
+        if not _manifest_shape_ok(manifest):
+            raise InputError(
+                "manifest.json is not a zbench run manifest",
+                path=str(path),
+                hint="give a folder that zbench run or zbench demo created",
+            )
         if manifest.get("format") != FORMAT_VERSION:
             raise InputError(
                 f"run format {manifest.get('format')!r} is not {FORMAT_VERSION}",

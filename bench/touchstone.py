@@ -7,20 +7,23 @@ A measurement zbench can fit (docs/design.md §9) is a Touchstone file:
 * a 1-port S file: a reflection (``S11``);
 * a 1-port Z (or version-2 Y) file: the part's impedance as given;
 
-or an impedance analyser's CSV (:mod:`bench.impedance_csv`). Before scikit-rf parses a
-file, :func:`scan_touchstone` reads it once, within a size bound, and refuses what
-scikit-rf would misread or accept silently: rows that do not match the port count of
-the extension, an option line with a reference impedance that is not positive, a
-version-2 ``[Number of Frequencies]`` that disagrees with the rows, text where a number
-belongs. A file without an option line is read with the Touchstone defaults
-(``GHz S MA R 50``) and a warning saying so. Every bad input raises
-:class:`bench.errors.InputError` naming the file and the fix. Files are written through
-:func:`bench.files.atomic_write_text`, so a reader never sees half a file.
+or an impedance analyser's CSV (:mod:`bench.impedance_csv`). :func:`scan_touchstone`
+reads a file once, within a size bound, converting all numbers in one numpy pass, and
+refuses what a lenient reader would misread or accept silently: rows that do not match
+the port count of the extension, an option line with a reference impedance that is not
+positive, a version-2 ``[Number of Frequencies]`` that disagrees with the rows, a
+version-2 two-port file without ``[Two-Port Data Order]``, text where a number belongs.
+:func:`network_matrix` turns the rows into matrices (scikit-rf converts Z and Y to S;
+a test checks the result against scikit-rf's own reader). A file without an option line
+is read with the Touchstone defaults (``GHz S MA R 50``) and a warning saying so. Every
+bad input raises :class:`bench.errors.InputError` naming the file and the fix. Files are
+written with scikit-rf through :func:`bench.files.atomic_write_text`, so a reader never
+sees half a file.
 
 Notes on the format (docs/references.md §6): in version 1.x files Z data is normalised to
-the option line's R and scikit-rf reads and writes that correctly; version-1 Y, G and H
-files are read wrongly by scikit-rf 2.2, so they are refused here; R is written as an
-integer in 1.x files.
+the option line's R; version-1 Y, G and H files are read wrongly by scikit-rf 2.2, so
+they are refused here (as are G and H in version 2); R is written as an integer in 1.x
+files.
 """
 
 from __future__ import annotations
@@ -33,7 +36,7 @@ import warnings
 from collections.abc import Iterable
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Literal
+from typing import Literal, NoReturn
 
 import numpy as np
 import skrf
@@ -50,8 +53,6 @@ MAX_FILE_BYTES = 64 * 1024 * 1024
 #: Most frequency points a file may hold: reading costs time and memory in proportion
 #: (scikit-rf parses each row in Python), so a longer file is refused before it is read.
 MAX_POINTS = 200_001
-#: Bytes of a file allowed per point (a 2-port row of full-precision numbers is under 200).
-_BYTES_PER_POINT = 256
 #: Largest |S| accepted: a passive part's corrected S-parameters stay near or below 1;
 #: raw, uncorrected ratios may exceed it a little, never by orders of magnitude.
 MAX_ABS_S = 100.0
@@ -137,6 +138,7 @@ def check_regular_file(path: Path, *, kinds: str = "a .s2p, .s1p or .csv file") 
             path=name,
             hint=f"save the data to a file first and give {kinds}",
         )
+    _check_size(path)
     if info.st_size > MAX_FILE_BYTES:
         raise InputError(
             f"is {info.st_size / 2**20:.0f} MiB, above the {MAX_FILE_BYTES / 2**20:.0f} MiB "
@@ -145,24 +147,18 @@ def check_regular_file(path: Path, *, kinds: str = "a .s2p, .s1p or .csv file") 
             hint="export fewer points (a log sweep of a few thousand points is plenty) or "
             "split the band into several files and join them with --join",
         )
-    _check_size(path)
 
 
 def _check_size(path: Path) -> None:
-    """Refuse, before reading it, a file with more than :data:`MAX_POINTS` data rows."""
-    size = path.stat().st_size
-    if size <= MAX_POINTS * 6:
+    """Refuse, before parsing it, a file with more than :data:`MAX_POINTS` data rows
+    (its bytes are bounded already by :data:`MAX_FILE_BYTES`)."""
+    if path.stat().st_size <= MAX_POINTS * 6:
         return  # too small to hold that many rows
-    rows = 0
     with path.open("rb") as stream:
-        if size > MAX_POINTS * _BYTES_PER_POINT:
-            rows = -1  # too large to read at all
-        else:
-            rows = sum(1 for line in stream if line.lstrip()[:1] not in (b"!", b"#", b"[", b""))
-    if rows < 0 or rows > MAX_POINTS:
-        held = f"{size / 1e6:.0f} MB" if rows < 0 else f"{rows} data rows"
+        rows = sum(1 for line in stream if line.lstrip()[:1] not in (b"!", b"#", b"[", b""))
+    if rows > MAX_POINTS:
         raise InputError(
-            f"holds {held}; zbench reads files of at most {MAX_POINTS} frequency points",
+            f"holds {rows} data rows; zbench reads files of at most {MAX_POINTS} frequency points",
             path=str(path),
             hint="export the sweep with fewer points (a log sweep of 801 to 1601 points "
             "resolves every landmark), or keep every n-th row of the file",
@@ -185,6 +181,11 @@ class Scan:
     declared_frequencies: int | None
     all_zero: bool
     largest: float
+    data: NDArray[np.float64] = field(default_factory=lambda: np.zeros((0, 0)))
+    matrix: str = "full"
+    order: str = "21_12"
+    references: tuple[float, ...] = ()
+    comments: str = ""
 
 
 def _bad(name: str, line: int | None, message: str, hint: str) -> InputError:
@@ -256,15 +257,18 @@ def scan_touchstone(path: Path) -> Scan:
     declared: int | None = None
     matrix = "full"
     in_noise = False
-    widths: set[int] = set()
-    freqs: list[float] = []
-    row_lines: list[int] = []
-    largest = 0.0
-    all_zero = True
-    pending: list[str] = []
-    pending_line = 0
+    numbers: list[str] = []
+    lines_at: list[tuple[int, int]] = []
+    width = 0
+    comments: list[str] = []
+    order: str | None = None
+    references: list[float] = []
+    in_reference = False
     for number, raw in enumerate(text.splitlines(), start=1):
-        line = raw.split("!", 1)[0].strip()
+        line, bang, comment = raw.partition("!")
+        line = line.strip()
+        if bang:
+            comments.append(comment.strip())
         if not line:
             continue
         if line.startswith("#"):
@@ -299,67 +303,70 @@ def scan_touchstone(path: Path) -> Scan:
                     ) from None
             elif key == "matrix format":
                 matrix = value.lower()
+            elif key == "two-port data order":
+                order = value.lower()
             elif key == "noise data":
                 in_noise = True
             elif key == "end":
                 break
-            continue
+            in_reference = key == "reference"
+            if not in_reference or not value:
+                continue
+            line = value
         if in_noise:
             continue
         tokens = line.split()
-        try:
-            values = [float(t) for t in tokens]
-        except ValueError:
-            bad = next(t for t in tokens if not _is_number(t))
-            raise _bad(
-                name,
-                number,
-                f"{bad!r} is not a number",
-                "not a readable Touchstone file there: give an option line such as "
-                "'# Hz S RI R 50', then rows of numbers only; comment out other text with '!'",
-            ) from None
+        if in_reference:
+            # [Reference] values (one per port) may run over several lines.
+            if all(_is_number(t) for t in tokens) and len(references) + len(tokens) <= (ports or 0):
+                references.extend(float(t) for t in tokens)
+                continue
+            in_reference = False
+        if (
+            ports == 2
+            and len(tokens) == 5
+            and version.startswith("1")
+            and numbers
+            and _is_number(tokens[0])
+            and float(tokens[0]) <= float(numbers[-width])
+        ):
+            # Version 1: a fall in frequency starts the noise parameters (5 numbers a row).
+            in_noise = True
+            continue
+        # A row of the wrong width may be text: say so first, it is the likelier fault.
+        odd = ports is None or (ports <= 2 and len(tokens) != width)
+        if odd and not all(_is_number(t) for t in tokens):
+            _raise_not_a_number(name, tokens, [(number, len(tokens))])
         if ports is None:
-            ports = {3: 1, 9: 2}.get(len(values), 0)
+            ports = {3: 1, 9: 2}.get(len(tokens), 0)
             if not ports:
                 raise _bad(
                     name,
                     number,
-                    f"the first data row has {len(values)} numbers, not 3 "
+                    f"the first data row has {len(tokens)} numbers, not 3 "
                     "(one port) or 9 (two ports)",
                     "name the file .s1p or .s2p for its port count and check the rows",
                 )
-        n = ports
-        width = 1 + (n * (n + 1) if matrix in ("lower", "upper") else 2 * n * n)
-        if n <= 2:
-            if len(values) != width:
-                raise _bad(
-                    name,
-                    number,
-                    f"has {len(values)} numbers in a row where a {n}-port file has {width} "
-                    f"(frequency and {width - 1} values)",
-                    "check the port count: a one-port file is .s1p (3 numbers a row), a "
-                    "two-port file .s2p (9 numbers a row)",
-                )
-            row = values
-        else:
-            # Larger networks wrap rows; count numbers only (they are refused later).
-            if not pending:
-                pending_line = number
-            pending.extend(tokens)
-            if len(pending) < width:
-                continue
-            row = [float(t) for t in pending[:width]]
-            pending = pending[width:]
-            number = pending_line
-        widths.add(len(row))
-        freqs.append(row[0])
-        row_lines.append(number)
-        data = np.abs(np.asarray(row[1:]))
-        if data.size:
-            finite = data[np.isfinite(data)]  # NaN and inf get their own message later
-            largest = max(largest, float(np.max(finite)) if finite.size else 0.0)
-            all_zero = all_zero and not np.any(data)
-    if not freqs:
+        if width == 0:
+            n = ports
+            width = 1 + (n * (n + 1) if matrix in ("lower", "upper") else 2 * n * n)
+        if ports <= 2 and len(tokens) != width:
+            raise _bad(
+                name,
+                number,
+                f"has {len(tokens)} numbers in a row where a {ports}-port file has {width} "
+                f"(frequency and {width - 1} values)",
+                "check the port count: a one-port file is .s1p (3 numbers a row), a "
+                "two-port file .s2p (9 numbers a row)",
+            )
+        # Larger networks wrap rows; their numbers are only counted (refused later).
+        lines_at.append((number, len(tokens)))
+        numbers.extend(tokens)
+    try:
+        values = np.array(numbers, dtype=float)
+    except ValueError:
+        _raise_not_a_number(name, numbers, lines_at)
+    if width == 0 or values.size == 0:
         raise _bad(
             name,
             None,
@@ -367,6 +374,16 @@ def scan_touchstone(path: Path) -> Scan:
             "give a Touchstone file: an option line such as '# Hz S RI R 50', then one line "
             "of numbers per frequency",
         )
+    if values.size % width:
+        raise _bad(
+            name,
+            None,
+            f"holds {values.size} numbers, not a whole number of {width}-number rows",
+            "check the port count and re-export the file",
+        )
+    rows = values.reshape(-1, width)
+    freqs = rows[:, 0]
+    all_zero = not np.any(rows[:, 1:])
     if version.startswith("2") and declared is not None and declared != len(freqs):
         raise _bad(
             name,
@@ -375,6 +392,34 @@ def scan_touchstone(path: Path) -> Scan:
             "correct [Number of Frequencies] or restore the missing rows",
         )
     unit, parameter, data_format, reference = option or ("ghz", "s", "ma", 50.0)
+    largest = 0.0
+    if data_format != "db" and rows.shape[1] % 2 == 1:
+        pairs = rows[:, 1:].reshape(rows.shape[0], -1, 2)
+        with np.errstate(over="ignore"):
+            size = np.abs(pairs).max(axis=-1) if data_format == "ri" else pairs[..., 0]
+        size = np.abs(size[np.isfinite(size)])  # NaN and inf get their own message later
+        largest = float(size.max()) if size.size else 0.0
+    if version.startswith("2") and ports == 2 and order not in ("12_21", "21_12"):
+        raise _bad(
+            name,
+            None,
+            "is a version-2 two-port file without a valid [Two-Port Data Order]",
+            "add '[Two-Port Data Order] 12_21' (or 21_12) as the specification requires",
+        )
+    if references and len(set(references)) > 1:
+        raise _bad(
+            name,
+            None,
+            f"[Reference] gives different impedances per port ({references})",
+            "re-export the measurement with one reference impedance, e.g. 50 ohm",
+        )
+    if references and not all(math.isfinite(r) and r > 0 for r in references):
+        raise _bad(
+            name,
+            None,
+            f"[Reference] {references[0]:g} must be a positive number of ohms",
+            "write the reference the data were measured against, e.g. 50",
+        )
     return Scan(
         version=version,
         unit=unit,
@@ -384,11 +429,34 @@ def scan_touchstone(path: Path) -> Scan:
         has_option_line=option is not None,
         ports=int(ports or 0),
         rows=len(freqs),
-        frequencies=np.asarray(freqs, dtype=float) * _UNITS[unit],
+        frequencies=freqs * _UNITS[unit],
         declared_frequencies=declared,
         all_zero=all_zero,
         largest=largest,
+        data=rows,
+        matrix=matrix,
+        order=order or "21_12",
+        references=tuple(references),
+        comments="\n".join(c for c in comments if c),
     )
+
+
+def _raise_not_a_number(name: str, numbers: list[str], lines_at: list[tuple[int, int]]) -> NoReturn:
+    """The slow path after a fast conversion failed: find the line and the token."""
+    start = 0
+    for number, count in lines_at:
+        for token in numbers[start : start + count]:
+            if not _is_number(token):
+                raise _bad(
+                    name,
+                    number,
+                    f"{token!r} is not a number",
+                    "not a readable Touchstone file there: give an option line such as "
+                    "'# Hz S RI R 50', then rows of numbers only; comment out other text "
+                    "with '!'",
+                ) from None
+        start += count
+    raise _bad(name, None, "holds text where numbers belong", "re-export the file")
 
 
 def _is_number(token: str) -> bool:
@@ -397,24 +465,6 @@ def _is_number(token: str) -> bool:
     except ValueError:
         return False
     return True
-
-
-def _read(path: Path) -> skrf.Network:
-    name = str(path)
-    try:
-        with warnings.catch_warnings():
-            # scikit-rf warns (e.g. about frequency order) where we raise our own,
-            # clearer errors below; its warnings must not escape as such.
-            warnings.simplefilter("ignore")
-            network = skrf.Network(name)
-    except Exception as exc:  # scikit-rf raises several types for unreadable files
-        raise InputError(
-            f"not a readable Touchstone file ({type(exc).__name__}: {exc})",
-            path=name,
-            hint="give a Touchstone file: extension .s1p or .s2p, an option line such as "
-            "'# Hz S RI R 50', then one line of numbers per frequency",
-        ) from exc
-    return network
 
 
 def _check_grid(name: str, f: NDArray[np.float64]) -> None:
@@ -433,6 +483,46 @@ def _check_grid(name: str, f: NDArray[np.float64]) -> None:
             path=name,
             hint="sort the data by frequency and remove repeated frequencies",
         )
+
+
+def network_matrix(scan: Scan) -> tuple[NDArray[np.complex128], float]:
+    """The network data of a scanned 1- or 2-port file as complex matrices (nf, n, n), in
+    the file's parameter (S, or Z and Y in ohms and siemens), and the reference (Ω).
+
+    Formats RI, MA and DB (angles in degrees); version 1 lists two-port data as 11, 21,
+    12, 22 and normalises Z and Y to R; version 2 follows ``[Two-Port Data Order]`` and
+    ``[Matrix Format]`` and does not normalise (docs/references.md §6).
+    """
+    rows = scan.data
+    pairs = rows[:, 1:].reshape(rows.shape[0], -1, 2)
+    a, b = pairs[..., 0], pairs[..., 1]
+    with np.errstate(over="ignore", invalid="ignore"):
+        if scan.data_format == "ri":
+            v = a + 1j * b
+        elif scan.data_format == "ma":
+            v = a * np.exp(1j * np.deg2rad(b))
+        else:
+            v = 10.0 ** (a / 20.0) * np.exp(1j * np.deg2rad(b))
+    if scan.ports == 1:
+        m = v.reshape(-1, 1, 1)
+    else:
+        if scan.matrix == "lower":
+            m11, m21, m22 = v.T
+            m12 = m21
+        elif scan.matrix == "upper":
+            m11, m12, m22 = v.T
+            m21 = m12
+        elif scan.version.startswith("1") or scan.order == "21_12":
+            m11, m21, m12, m22 = v.T
+        else:
+            m11, m12, m21, m22 = v.T
+        m = np.stack([np.stack([m11, m12], -1), np.stack([m21, m22], -1)], -2)
+    z0 = scan.references[0] if scan.references else scan.reference
+    if scan.version.startswith("1") and scan.parameter == "z":
+        m = m * scan.reference
+    elif scan.version.startswith("1") and scan.parameter == "y":
+        m = m / scan.reference
+    return np.asarray(m, dtype=complex), float(z0)
 
 
 def check_method_for_ports(name: str, ports: int, method: str | None) -> None:
@@ -512,21 +602,11 @@ def load_measurement(
             hint="check the export: the data format on the option line (RI, MA, DB) and "
             "the column order",
         )
-    network = _read(p)
-    f = np.asarray(network.f, dtype=float)
-    # scikit-rf takes a fall in frequency as the start of noise data and silently
-    # stops there, so the frequency order is checked on the file's own data rows.
-    _check_grid(name, scan.frequencies if scan.rows > f.size else f)
-    if f.size != scan.rows or network.nports != ports:
-        raise InputError(
-            f"has {scan.rows} data rows of {ports} ports but only {f.size} of "
-            f"{network.nports} could be read as network data",
-            path=name,
-            hint="check the file for stray or malformed rows and re-export it",
-        )
-    s = np.asarray(network.s, dtype=complex)
-    if not np.all(np.isfinite(s)):
-        rows = np.unique(np.nonzero(~np.isfinite(s.reshape(f.size, -1)))[0])
+    f = scan.frequencies
+    _check_grid(name, f)
+    matrix, z0 = network_matrix(scan)
+    if not np.all(np.isfinite(matrix)):
+        rows = np.unique(np.nonzero(~np.isfinite(matrix.reshape(f.size, -1)))[0])
         listed = ", ".join(f"{f[i]:g} Hz" for i in rows[:3])
         raise InputError(
             f"has NaN or infinite values at {rows.size} frequencies ({listed}"
@@ -534,11 +614,11 @@ def load_measurement(
             path=name,
             hint="re-export the measurement, or drop the bad points",
         )
-    z0 = float(np.real(np.asarray(network.z0).flat[0]))
-    comments = str(getattr(network, "comments", "") or "")
+    comments = scan.comments
     common = {"path": p, "f": f, "z0": z0, "comments": comments, "warnings": tuple(notes)}
     if ports == 1 and parameter in ("z", "y"):
-        z = np.asarray(network.z[:, 0, 0], dtype=complex)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            z = matrix[:, 0, 0] if parameter == "z" else 1.0 / matrix[:, 0, 0]
         _check_finite(name, z, "impedance")
         return Measurement(
             kind="impedance",
@@ -548,6 +628,12 @@ def load_measurement(
             method_source="option" if method else "file",
             **common,
         )
+    if parameter == "z":
+        s = skrf.network.z2s(matrix, z0)
+    elif parameter == "y":
+        s = skrf.network.y2s(matrix, z0)
+    else:
+        s = matrix
     stated = method_from_comments(comments)
     if ports == 1:
         check_method_for_ports(name, 1, method)

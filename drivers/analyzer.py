@@ -24,6 +24,7 @@ import numpy as np
 
 from drivers.command_map import CommandMap, load_command_map
 from drivers.errors import (
+    CommandMapError,
     DriverError,
     InstrumentError,
     InstrumentTimeout,
@@ -98,6 +99,8 @@ class SweepData:
         """S-parameters as a complex (nf, 2, 2) array (scikit-rf order); NaN where not read."""
         s = np.full((self.f.size, 2, 2), np.nan + 1j * np.nan, dtype=complex)
         for name, trace in self.traces.items():
+            if name not in _INDEX:
+                continue
             i, j = _INDEX[name]
             s[:, i, j] = trace
         return s
@@ -109,9 +112,19 @@ class SweepData:
 class NetworkAnalyzer(ScpiInstrument):
     """A network analyser speaking the dialect of ``command_map``."""
 
+    #: the map kind this driver reads
+    kind = "network"
+
     def __init__(self, transport: Transport, command_map: CommandMap | str | Path = "default"):
         if not isinstance(command_map, CommandMap):
             command_map = load_command_map(command_map)
+        if command_map.kind != self.kind:
+            raise CommandMapError(
+                command_map.path,
+                "kind",
+                f"a map of kind {command_map.kind!r} cannot drive a {self.kind} analyser",
+                hint="give the map written for this instrument",
+            )
         self.map = command_map
         super().__init__(
             transport,

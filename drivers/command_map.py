@@ -17,7 +17,7 @@ import jsonschema
 import yaml
 
 from drivers.errors import CommandMapError
-from drivers.safe_yaml import YamlRefusedError, load_text, read_text
+from drivers.safe_yaml import YamlRefusedError, load_text, read_text, schema_error_words
 
 MAPS_DIR = Path(__file__).parent / "command_maps"
 SCHEMA_PATH = MAPS_DIR / "command_map.schema.yaml"
@@ -142,6 +142,7 @@ class CommandMap:
     parameters: tuple[str, ...]
     limits: Limits
     error_codes: dict[int, tuple[str, str | None]] = field(default_factory=dict)
+    kind: str = "network"
 
     @property
     def encoding(self) -> str:
@@ -244,7 +245,7 @@ def parse_command_map(raw: Any, path: str = "<command map>") -> CommandMap:
         raise CommandMapError(
             path,
             key,
-            f"{first.message}{more}",
+            f"{schema_error_words(first)}{more}",
             hint="compare with drivers/command_maps/default.yaml and the guide "
             "drivers/command_maps/README.md; unknown keys are not allowed",
         )
@@ -283,6 +284,16 @@ def parse_command_map(raw: Any, path: str = "<command map>") -> CommandMap:
                 hint="keep one entry per code",
             )
         error_codes[int(entry["code"])] = (entry["meaning"], entry.get("fix"))
+
+    kind = raw.get("kind", "network")
+    wrong = [p for p in data["parameters"] if (p == "RATIO") != (kind == "gain_phase")]
+    if wrong:
+        raise CommandMapError(
+            path,
+            "data.parameters",
+            f"{wrong} do not belong to a map of kind {kind!r}",
+            hint="a network analyser reads S11, S21, S12, S22; a gain-phase analyser RATIO",
+        )
 
     limits = {}
     for key, bounds in raw["limits"].items():
@@ -328,6 +339,7 @@ def parse_command_map(raw: Any, path: str = "<command map>") -> CommandMap:
         parameters=tuple(data["parameters"]),
         limits=Limits(**limits),
         error_codes=error_codes,
+        kind=raw.get("kind", "network"),
     )
 
 

@@ -39,6 +39,11 @@ class DcSourceCommands:
     measure_voltage: str = "MEASure:VOLTage?"
     measure_current: str = "MEASure:CURRent?"
     error_query: str = "SYSTem:ERRor:NEXT?"
+    #: Optional (None: the instrument has no such command, or the map leaves it out).
+    voltage_max_query: str | None = None
+    over_voltage: str | None = None
+    over_voltage_query: str | None = None
+    over_current: str | None = None
 
 
 MAX_RAMP_STEPS = 10_000  # a ramp longer than this is a mistake in the step, not a plan
@@ -175,6 +180,40 @@ class DcSource(ScpiInstrument):
             f"{self.resource_name}: expected 0/1 in answer to {self.commands.output_query!r}, "
             f"found {answer!r}"
         )
+
+    def reported_max_voltage(self) -> float | None:
+        """The highest voltage the instrument says it can set, V (None: the map cannot ask)."""
+        if self.commands.voltage_max_query is None:
+            return None
+        return self.query_float(self.commands.voltage_max_query)
+
+    def set_protection(self, volts: float, amps: float) -> list[str]:
+        """Set the instrument's own over-voltage (and over-current) protection at ``volts``
+        (V) and ``amps`` (A), where the map has the commands; returns what was set."""
+        done = []
+        if self.commands.over_voltage is not None:
+            volts = self.check_voltage(volts)
+            self.write_checked(self.commands.over_voltage.format(value=format_number(volts)))
+            done.append(f"over-voltage protection {volts:g} V")
+        if self.commands.over_current is not None:
+            amps = self.check_current(amps)
+            self.write_checked(self.commands.over_current.format(value=format_number(amps)))
+            done.append(f"over-current protection {amps:g} A")
+        return done
+
+    def zero_and_off(self) -> None:
+        """Output off and the set-point to 0 V, both attempted; the first failure is raised.
+
+        For a link that may have been cut while biased: the output goes off first, and a
+        set-point left at the bias voltage would come back the moment someone switches
+        the output on again, so it is set to 0 too.
+        """
+        try:
+            self.output_off()
+        finally:
+            self._setpoint = None
+            self.write_checked(self.commands.voltage.format(value=format_number(0.0)))
+            self._setpoint = 0.0
 
     def measure_voltage(self) -> float:
         """Measured output voltage, V."""

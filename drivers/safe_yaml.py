@@ -20,6 +20,7 @@ a hint. Its message never quotes the file's text beyond a tag or an anchor name.
 
 from __future__ import annotations
 
+import re
 from pathlib import Path
 from typing import Any
 
@@ -221,3 +222,38 @@ def read_text(path: str | Path) -> str:
             hint="a zbench YAML file is a few kilobytes; check that this is the right file",
         )
     return data.decode("utf-8")
+
+
+def schema_error_words(error: Any) -> str:
+    """A jsonschema ``ValidationError`` in words that never quote the checked value.
+
+    jsonschema's own message repeats the value (``'root:x:0:0' is not of type
+    'object'``); a file read by mistake may be private, so the message says only what
+    was expected.
+    """
+    kind = error.validator
+    expected = error.validator_value
+    if kind == "additionalProperties":
+        allowed = set(error.schema.get("properties", {}))
+        extra = sorted(str(k) for k in error.instance if k not in allowed)
+        # A key is named only when it looks like one (a misspelt key): any other text
+        # may be a line of a file that is not a map at all.
+        named = [k for k in extra if re.fullmatch(r"[A-Za-z_][A-Za-z0-9_]{0,30}", k)]
+        return f"unknown key {named[0]!r}" if named else "unknown key"
+    if kind == "required":
+        instance = error.instance if isinstance(error.instance, dict) else {}
+        missing = [k for k in expected if k not in instance]
+        return f"missing key {missing[0]!r}" if missing else "a key is missing"
+    if kind == "type":
+        found = type(error.instance).__name__
+        wanted = " or ".join(expected) if isinstance(expected, list) else expected
+        return f"expected {wanted}, found a {found}"
+    if kind == "enum":
+        return f"expected one of {', '.join(map(str, expected))[:200]}"
+    if kind in ("minimum", "maximum", "exclusiveMinimum", "exclusiveMaximum"):
+        return f"the value breaks its bound ({kind} {expected})"
+    if kind in ("pattern", "minLength", "maxLength", "format"):
+        return f"the text does not have the expected form ({kind})"
+    if kind in ("minItems", "maxItems", "uniqueItems"):
+        return f"the list does not have the expected entries ({kind})"
+    return f"does not match the schema ({kind})"

@@ -38,6 +38,9 @@ from drivers.errors import (
 
 traffic_log = logging.getLogger("drivers.traffic")
 
+# A device clear drains at most this many unread bytes before it gives up.
+MAX_CLEAR_BYTES = 16 * 1024 * 1024
+
 # VISA status codes that mean the link itself is gone (VISA spec VPP-4.3, viRead/viWrite).
 _LINK_LOST = {
     constants.StatusCode.error_connection_lost,
@@ -212,9 +215,43 @@ class VisaTransport:
     # -- I/O -----------------------------------------------------------------------
 
     def clear(self) -> None:
-        """Clear the device (VISA viClear): drops any unread answer in the link."""
-        with self._mapped("clear"):
-            self._resource.clear()
+        """Clear the device (VISA viClear): drops any unread answer in the link.
+
+        On a pyvisa-py socket the unread bytes are drained here, for at most
+        ``MAX_CLEAR_BYTES``, and a peer that has closed the connection is reported as
+        :class:`ConnectionLost` (pyvisa-py's own clear would spin on a closed socket).
+        """
+        sock = self._socket()
+        if sock is None:
+            with self._mapped("clear"):
+                self._resource.clear()
+            return
+        with contextlib.suppress(Exception):
+            self._resource.visalib.sessions[self._resource.session]._pending_buffer.clear()
+        drained = 0
+        try:
+            while drained < MAX_CLEAR_BYTES:
+                readable, _, _ = select.select([sock], [], [], 0.1)
+                if not readable:
+                    return
+                chunk = sock.recv(65536)
+                if not chunk:
+                    break
+                drained += len(chunk)
+        except ConnectionRefusedError as exc:
+            raise ConnectionFailed(
+                self.resource_name, "open", exc.strerror or "connection refused"
+            ) from exc
+        except OSError as exc:
+            raise ConnectionLost(self.resource_name, "clear", exc.strerror or str(exc)) from exc
+        if drained >= MAX_CLEAR_BYTES:
+            raise TransportError(
+                self.resource_name,
+                "clear",
+                f"the instrument keeps sending (more than {MAX_CLEAR_BYTES} bytes unread)",
+                hint="stop what the instrument is streaming, or power-cycle it",
+            )
+        raise ConnectionLost(self.resource_name, "clear", "the instrument closed the connection")
 
     def write(self, command: str) -> None:
         """Send one program message (the write termination is added)."""

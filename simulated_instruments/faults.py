@@ -20,7 +20,7 @@ from __future__ import annotations
 import threading
 from dataclasses import dataclass, field
 
-INSTRUMENTS = ("analyzer", "switch", "dc_source", "bench")
+INSTRUMENTS = ("analyzer", "switch", "dc_source", "bench", "gain_phase")
 
 
 @dataclass

@@ -58,7 +58,7 @@ def _range() -> dict[str, Any]:
 _FAULT_SCHEMA = _obj(
     {
         "type": {"enum": ["delay", "drop", "corrupt_block", "error", "missing"]},
-        "instrument": {"enum": ["analyzer", "switch", "dc_source", "bench"]},
+        "instrument": {"enum": ["analyzer", "switch", "dc_source", "bench", "gain_phase"]},
         "seconds": _Q,
         "count": {"type": "integer", "minimum": 0},
         "after": {"type": "integer", "minimum": 0},
@@ -93,6 +93,17 @@ SCHEMA: dict[str, Any] = _obj(
                         "cable_delay": _Q,
                     }
                 ),
+            }
+        ),
+        "gain_phase": _obj(
+            {
+                "identity": {"type": "string"},
+                "frequency": _range(),
+                "source_impedance": _Q,
+                "reference_resistor": _Q,
+                "input_resistance": _Q,
+                "input_capacitance": _Q,
+                "receiver_floor": _Q,
             }
         ),
         "cables": _obj({"shield_resistance": _Q, "shield_cutoff": _Q}),
@@ -203,6 +214,26 @@ class AnalyzerSpec:
 
 
 @dataclass(frozen=True)
+class GainPhaseSpec:
+    """Limits, set-up and noise of the simulated gain-phase analyser (SI units, dBm)."""
+
+    identity: str = "zbench,simulated gain-phase analyser GP-30,SIM-GPA-0001,0.1"
+    f_min: float = 10.0
+    f_max: float = 30e6
+    points_max: int = 4001
+    level_min: float = -40.0
+    level_max: float = 13.0
+    bandwidth_min: float = 1.0
+    bandwidth_max: float = 10e3
+    source_impedance: float = 50.0
+    reference_resistor: float = 1.0
+    input_resistance: float = 1e6
+    input_capacitance: float = 30e-12
+    receiver_floor: float = 2e-7
+    per_point: float = 2e-3
+
+
+@dataclass(frozen=True)
 class Scenario:
     """A validated scenario; ``parts`` maps ``"<part>/<sample>"`` to its true circuit."""
 
@@ -236,6 +267,7 @@ class Scenario:
     part_names: tuple[str, ...]
     initial: dict[str, Any] = field(default_factory=dict)
     faults: tuple[dict[str, Any], ...] = ()
+    gain_phase: GainPhaseSpec | None = None
 
     @property
     def positions(self) -> int:
@@ -506,4 +538,27 @@ def load_scenario(
         part_names=tuple(part_names),
         initial=initial,
         faults=tuple(data.get("faults", [])),
+        gain_phase=_gain_phase(data["gain_phase"], where) if "gain_phase" in data else None,
     )
+
+
+def _gain_phase(g: Mapping[str, Any], where: str) -> GainPhaseSpec:
+    """The ``gain_phase`` section: the simulated gain-phase analyser, if the bench has one."""
+    d = GainPhaseSpec()
+    band = g.get("frequency", {})
+    spec = GainPhaseSpec(
+        identity=g.get("identity", d.identity),
+        f_min=_q(band, "min", "Hz", d.f_min, "gain_phase.frequency"),
+        f_max=_q(band, "max", "Hz", d.f_max, "gain_phase.frequency"),
+        source_impedance=_q(g, "source_impedance", "ohm", d.source_impedance, "gain_phase"),
+        reference_resistor=_q(g, "reference_resistor", "ohm", d.reference_resistor, "gain_phase"),
+        input_resistance=_q(g, "input_resistance", "ohm", d.input_resistance, "gain_phase"),
+        input_capacitance=_q(g, "input_capacitance", "F", d.input_capacitance, "gain_phase"),
+        receiver_floor=_q(g, "receiver_floor", "V", d.receiver_floor, "gain_phase"),
+    )
+    if not (0 < spec.f_min < spec.f_max and spec.reference_resistor > 0):
+        raise InputError(
+            "gain_phase: need 0 < frequency.min < frequency.max and reference_resistor > 0",
+            path=where,
+        )
+    return spec

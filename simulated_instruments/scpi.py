@@ -326,9 +326,11 @@ def parse_numeric(
     value = float(number) * _suffix_multiplier(suffix, unit)
     if not math.isfinite(value):
         raise ScpiError(-222, f"{name}: {text[:40]} is not finite")
-    if minimum is not None and value < minimum * (1 - 1e-12) - 1e-300:
+    # A relative slack of 1e-12 either side of a bound (on its magnitude, so a negative
+    # bound such as -30 dBm is not narrowed).
+    if minimum is not None and value < minimum - 1e-12 * abs(minimum) - 1e-300:
         raise ScpiError(-222, f"{name} {value:g} below {minimum:g}")
-    if maximum is not None and value > maximum * (1 + 1e-12) + 1e-300:
+    if maximum is not None and value > maximum + 1e-12 * abs(maximum) + 1e-300:
         raise ScpiError(-222, f"{name} {value:g} above {maximum:g}")
     if minimum is not None:
         value = max(value, minimum)

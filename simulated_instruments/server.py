@@ -22,13 +22,14 @@ from typing import Any
 
 from simulated_instruments.faults import corrupt_block_header
 from simulated_instruments.instruments import ANALYZERS, BenchControl, DcSource, Switch
+from simulated_instruments.instruments.gain_phase import GainPhaseAnalyzer
 from simulated_instruments.scenario import Scenario, load_scenario
 from simulated_instruments.scpi import Instrument, Session, no_input_pending
 from simulated_instruments.state import BenchState
 
 HOST = "127.0.0.1"
 MAX_LINE = 64 * 1024
-ORDER = ("analyzer", "switch", "dc_source", "bench")
+ORDER = ("analyzer", "switch", "dc_source", "bench", "gain_phase")
 
 
 def resource_string(port: int, host: str = HOST) -> str:
@@ -264,9 +265,10 @@ def start_bench(
     """Start the simulated bench of ``scenario`` on loopback and return it running.
 
     ``scenario``: a name under ``simulated_instruments/scenarios/``, a path to a YAML
-    file, or a mapping. ``ports``: None or 0 (OS-chosen ports), a base port (the four
-    instruments on base, base+1, base+2, base+3 in the order analyzer, switch,
-    dc_source, bench), or a mapping of instrument name to port (0 for OS-chosen).
+    file, or a mapping. ``ports``: None or 0 (OS-chosen ports), a base port (the
+    instruments on base, base+1, ... in the order analyzer, switch, dc_source, bench and,
+    when the scenario has one, gain_phase), or a mapping of instrument name to port (0 for
+    OS-chosen).
     ``time_scale`` (> 0) multiplies every simulated duration (sweeps, relay settling,
     charging), so 0.001 makes a 4 s sweep take 4 ms. ``seed`` overrides the scenario's.
     """
@@ -278,9 +280,13 @@ def start_bench(
         "dc_source": DcSource(state),
         "bench": BenchControl(state),
     }
+    if sc.gain_phase is not None:
+        instruments["gain_phase"] = GainPhaseAnalyzer(state, sc.gain_phase)
     servers: dict[str, _InstrumentServer] = {}
     try:
         for name, port in _ports(ports).items():
+            if name not in instruments:
+                continue
             servers[name] = _InstrumentServer(instruments[name], state, port, host)
     except OSError:
         for srv in servers.values():

@@ -24,6 +24,7 @@ import math
 import threading
 import time
 import weakref
+import zlib
 from dataclasses import dataclass
 
 import numpy as np
@@ -64,7 +65,8 @@ class BenchState:
         self.stopping = threading.Event()
         self._t0 = time.monotonic()
         seed = scenario.seed
-        self.noise_rng = np.random.default_rng([seed, 1])
+        #: How many sweeps of each set-up this bench has taken (see :meth:`sweep_rng`).
+        self._sweep_counts: dict[int, int] = {}
         box_rng = np.random.default_rng([seed, 2])
         spec = scenario.analyzer
         self.box_terms = tuple(
@@ -350,4 +352,31 @@ class BenchState:
                 # The floor is specified relative to the raw through level.
                 s1, s2, _, _ = self.error_boxes(plan.f)
                 floor = floor * np.abs(s1[:, 1, 0] * s2[:, 0, 1])
-            return physics.add_noise(s, self.noise_rng, floor, trace)
+            return physics.add_noise(s, self.sweep_rng(plan), floor, trace)
+
+    def sweep_rng(self, plan: SweepPlan) -> np.random.Generator:
+        """The noise of one sweep, drawn from the seed, what is measured and how often.
+
+        Not one stream for the bench's life: a run stopped and resumed on a new bench
+        (same seed) then sees, for each sweep it takes again, the noise the uninterrupted
+        run saw, so the two give the same raw data. The set-up is what the analyser
+        looks at (cables, the closed position and its content, the single mounts, series
+        resistors, transformer, bias set-point) and the sweep's settings; the n-th sweep
+        of one set-up gets the n-th draw.
+        """
+        setup = (
+            self.cables,
+            self.closed,
+            self.placements.get(self.closed) if self.closed is not None else None,
+            tuple(sorted(getattr(self, "mounted", {}).items())),
+            self.resistors,
+            self.transformer,
+            round(float(self.bias.setpoint), 9) if self.bias.output else 0.0,
+            plan.power_dbm,
+            plan.if_bandwidth,
+            plan.corrected,
+        )
+        key = zlib.crc32(repr(setup).encode() + np.ascontiguousarray(plan.f).tobytes())
+        count = self._sweep_counts.get(key, 0)
+        self._sweep_counts[key] = count + 1
+        return np.random.default_rng([self.scenario.seed, 1, key, count])

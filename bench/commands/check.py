@@ -130,7 +130,15 @@ def describe_plan(plan: Plan) -> str:
 @click.command("check")
 @click.argument("procedure", required=False, type=click.Path(path_type=Path))
 @click.option("--schema", "show_schema", is_flag=True, help="Print the procedure JSON schema.")
-def command(procedure: Path | None, show_schema: bool) -> None:
+@click.option(
+    "--instruments",
+    "probe",
+    is_flag=True,
+    help="Also connect to the instruments the procedure names: identify each, and report "
+    "a DC source left on (offering to switch it off) or one whose maximum differs.",
+)
+@click.option("--yes", "assume_yes", is_flag=True, help="With --instruments: switch off unasked.")
+def command(procedure: Path | None, show_schema: bool, probe: bool, assume_yes: bool) -> None:
     """Validate PROCEDURE and print its plan; exit 2 with file:line:key messages on errors."""
     if show_schema:
         import json
@@ -144,3 +152,59 @@ def command(procedure: Path | None, show_schema: bool) -> None:
     plan = load_plan(procedure)
     click.echo(describe_plan(plan))
     click.echo("procedure is valid")
+    if probe:
+        check_instruments(plan, assume_yes=assume_yes)
+
+
+def check_instruments(plan: Any, *, assume_yes: bool = False) -> None:
+    """Connect to the plan's instruments, identify them and look at the DC source."""
+    from bench.errors import SafetyError
+    from bench.procedure.instruments import needed_roles
+    from drivers.dc_source import DcSource
+    from drivers.instrument_maps import load_instrument_map
+    from drivers.scpi import ScpiInstrument
+    from drivers.transport import VisaTransport
+
+    roles = needed_roles(plan, scripted=False)
+    if plan.instruments["dc_source"].resource and "dc_source" not in roles:
+        roles.append("dc_source")
+    for role in roles:
+        inst = plan.instruments[role]
+        if not inst.resource:
+            click.echo(f"  {role}: no resource given")
+            continue
+        with VisaTransport.open(inst.resource, timeout_s=inst.timeout_s) as link:
+            click.echo(f"  {role}: {ScpiInstrument(link).identify()}")
+            if role != "dc_source":
+                continue
+            source = DcSource(
+                link,
+                max_voltage=inst.max_voltage or 1.0,
+                max_current=inst.max_current or 0.01,
+                commands=load_instrument_map("dc_source", inst.command_map),
+            )
+            reported = source.reported_max_voltage()
+            if reported is not None and inst.max_voltage is not None:
+                agree = abs(reported - inst.max_voltage) <= 0.02 * max(reported, inst.max_voltage)
+                click.echo(
+                    f"  dc_source: reports a maximum of {reported:g} V; the procedure states "
+                    f"{inst.max_voltage:g} V" + ("" if agree else " - THESE DISAGREE")
+                )
+                if not agree:
+                    raise SafetyError(
+                        f"the DC source reports a maximum of {reported:g} V, the procedure "
+                        f"states {inst.max_voltage:g} V: correct dc_source.max_voltage"
+                    )
+            if source.output_is_on():
+                click.echo(
+                    f"  dc_source: its output is ON (set to {source.setpoint():g} V): "
+                    "a part may be charged",
+                    err=True,
+                )
+                if assume_yes or click.confirm("  switch it off now (0 V, output off)?"):
+                    source.zero_and_off()
+                    click.echo("  dc_source: output switched off and set to 0 V")
+                else:
+                    raise SafetyError("the DC source's output is on; switch it off by hand")
+            else:
+                click.echo("  dc_source: output off")

@@ -41,7 +41,13 @@ def demo_procedure() -> Path:
     show_default=True,
     help="Command dialect of the simulated analyser (and the command map the run uses).",
 )
-def command(out: Path, quiet: bool, dialect: str) -> None:
+@click.option(
+    "--seed",
+    type=int,
+    default=None,
+    help="The simulated bench's random seed (default: the scenario's own); kept in the manifest.",
+)
+def command(out: Path, quiet: bool, dialect: str, seed: int | None) -> None:
     """Start the simulated bench, run procedures/demo.yaml unattended, print the report path."""
     path = demo_procedure()
     if dialect == "default":
@@ -64,6 +70,7 @@ def command(out: Path, quiet: bool, dialect: str) -> None:
         sim=DEMO_SCENARIOS[dialect],
         assume_yes=True,
         time_scale=DEMO_TIME_SCALE,
+        seed=seed,
         quiet=quiet,
     )
     click.echo(finished_text(store))

@@ -69,6 +69,35 @@ def resumed(run_dir: Path) -> tuple[RunStore, Plan]:
     return store, plan
 
 
+def check_plan_unchanged(store: RunStore, plan: Plan, *, accept_changed_plan: bool) -> None:
+    """Refuse to resume with a plan other than the one the run started with (its digest in
+    the manifest), unless ``accept_changed_plan``: then the manifest records the plan
+    really used from here on, and the change."""
+    from bench.runstore import changed_keys, now_iso, plan_digest
+
+    run_dir = store.root
+    digest = plan_digest(plan.resolved)
+    started = store.manifest.get("plan_digest")
+    if started is not None and started != digest:
+        changes = changed_keys(store.manifest["procedure"], plan.resolved) or ["<plan>"]
+        more = f" and {len(changes) - 6} more" if len(changes) > 6 else ""
+        shown = ", ".join(changes[:6]) + more
+        if not accept_changed_plan:
+            raise InputError(
+                f"the procedure in the run folder was changed after the run started ({shown})",
+                path=str(Path(run_dir) / "procedure.yaml"),
+                hint="put it back as it was and resume, start a new run, or resume with "
+                "--accept-changed-plan to go on with the changed plan (the manifest records it)",
+            )
+        history = list(store.manifest.get("plan_changes", []))
+        history.append({"time": now_iso(), "from": started, "to": digest, "changed": changes})
+        store.update("plan_changes", history)
+        store.update("procedure", plan.resolved)
+        store.log(f"resumed with a changed plan ({shown}), accepted by --accept-changed-plan")
+    if started != digest:
+        store.update("plan_digest", digest)
+
+
 def execute(
     plan: Plan,
     store: RunStore,
@@ -93,8 +122,13 @@ def execute(
         if sim is not None:
             # Recorded so that a resume goes back to the simulator, never to the
             # instruments the procedure names (a dry run's sweeps must not meet real ones).
-            store.update("simulated", {"scenario": sim, "time_scale": time_scale})
             bench = stack.enter_context(simulated_bench(sim, time_scale=time_scale, seed=seed))
+            # The seed really used (the scenario's own when none is given): a resume
+            # starts the simulator with it again, so its noise continues the run's.
+            store.update(
+                "simulated",
+                {"scenario": sim, "time_scale": time_scale, "seed": bench.scenario.seed},
+            )
             plan = with_resources(plan, bench.resources)
         instruments = stack.enter_context(open_instruments(plan, scripted=sim is not None))
         person = ConsoleOperator(guided=guided, ask=_ask, say=say)
@@ -180,6 +214,17 @@ def finished_text(store: RunStore) -> str:
     default=None,
     help="With --sim: run the simulated instruments' time this much faster (0.01 = 100x).",
 )
+@click.option(
+    "--seed",
+    type=int,
+    default=None,
+    help="With --sim: the simulated bench's random seed (default: the scenario's own).",
+)
+@click.option(
+    "--accept-changed-plan",
+    is_flag=True,
+    help="With --resume: go on although the run folder's procedure.yaml was changed.",
+)
 @click.option("--quiet", is_flag=True, help="Plain lines instead of live progress.")
 def command(
     procedure: Path | None,
@@ -188,6 +233,8 @@ def command(
     resume: Path | None,
     assume_yes: bool,
     time_scale: float | None,
+    seed: int | None,
+    accept_changed_plan: bool,
     quiet: bool,
 ) -> None:
     """Run PROCEDURE on the instruments it names, or against the simulator with --sim."""
@@ -208,12 +255,20 @@ def command(
             )
             click.echo(finished_text(store))
             return
+        check_plan_unchanged(store, plan, accept_changed_plan=accept_changed_plan)
         simulated = store.manifest.get("simulated")
+        if isinstance(simulated, dict) and seed is None and simulated.get("seed") is not None:
+            seed = int(simulated["seed"])
         if sim is None and isinstance(simulated, dict):
             sim = str(simulated.get("scenario") or "demo")
             if time_scale is None:
                 time_scale = float(simulated.get("time_scale") or SIM_TIME_SCALE)
             click.echo(f"the run was started on the simulated bench '{sim}'; resuming there")
+    elif accept_changed_plan:
+        raise InputError(
+            "--accept-changed-plan goes with --resume RUNDIR",
+            hint="a new run takes its procedure as it is",
+        )
     elif procedure is None:
         raise InputError("no procedure given", hint="zbench run PROCEDURE.yaml [--sim]")
     else:
@@ -222,7 +277,11 @@ def command(
     click.echo(f"run folder: {store.root}")
     scale = SIM_TIME_SCALE if time_scale is None else time_scale
     try:
-        execute(plan, store, sim=sim, assume_yes=assume_yes, time_scale=scale, quiet=quiet)
+        if seed is not None and sim is None:
+            raise InputError("--seed goes with --sim", hint="real instruments have no seed")
+        execute(
+            plan, store, sim=sim, assume_yes=assume_yes, time_scale=scale, seed=seed, quiet=quiet
+        )
     except BaseException:
         if resume is None and never_started(store):
             # Nothing was measured (unknown scenario, bad map, refused connection): no

@@ -14,7 +14,8 @@ import click
     type=click.IntRange(0, 65532),
     default=0,
     show_default=True,
-    help="First TCP port: analyzer on N, switch N+1, dc_source N+2, bench N+3 (0: OS-chosen).",
+    help="First TCP port: analyzer on N, switch N+1, dc_source N+2, bench N+3, a gain-phase "
+    "analyser (if the scenario has one) N+4 (0: OS-chosen).",
 )
 @click.option("--seed", type=int, default=None, help="Override the scenario's random seed.")
 @click.option(

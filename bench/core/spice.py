@@ -1,12 +1,17 @@
 """SPICE text of fitted models: one ``.subckt NAME 1 2`` per part and a library of them.
 
-Pin 1 to pin 2 is the part. The subcircuit carries, as ``*`` comments, the model family,
-the landmarks, the fit quality and the measurement's provenance, so a model file found
-alone still says where it came from. Comments are plain ASCII ("uF", "mOhm", "+/-"), as
-some SPICE readers reject any other byte even in a comment; element values are plain SI
-numbers in exponent notation (``1.2e-09``), which every SPICE reads. Networks without a
-DC path get a 1e12 Ω bleed resistor so that an operating point exists (ngspice stops on a
-floating node otherwise). Text only; no I/O here.
+Pin 1 to pin 2 is the part. Each part has two forms, named so they cannot be mixed up:
+``NAME`` is the part alone, its mount removed (for a board-level field solver that
+models the pads and vias itself), and ``NAME_on_mount`` the part on the mount it was
+measured in, the mount's series R and L included (for a schematic with ideal
+connections); see :func:`on_mount_subckt_text`. The subcircuit carries, as ``*``
+comments, the model family, the landmarks, the fit quality and the measurement's
+provenance, so a model file found alone still says where it came from. Comments are
+plain ASCII ("uF", "mOhm", "+/-"), as some SPICE readers reject any other byte even in a
+comment; element values are plain SI numbers in exponent notation (``1.2e-09``), which
+every SPICE reads. Networks without a DC path get a 1e12 Ω bleed resistor so that an
+operating point exists (ngspice stops on a floating node otherwise). Text only; no I/O
+here.
 """
 
 from __future__ import annotations
@@ -15,8 +20,15 @@ import re
 import unicodedata
 from collections.abc import Mapping, Sequence
 
+import numpy as np
+
 from bench.core.fitting import FitResult
+from bench.core.models.network import L as Ind
+from bench.core.models.network import Node, R, series, spice_lines
 from bench.units import format_si
+
+#: Suffix of the subcircuit of a part on its mount.
+ON_MOUNT_SUFFIX = "_on_mount"
 
 _LANDMARK_UNITS = {
     "c_low": "F",
@@ -28,7 +40,7 @@ _LANDMARK_UNITS = {
     "z_at_srf": "Ohm",
     "c_par": "F",
 }
-_ELEMENT_UNITS = {"R": "Ohm", "L": "H", "C": "F"}
+_ELEMENT_UNITS = {"R": "Ohm", "L": "H", "C": "F", "D": "F", "S": "Ohm at 1 MHz"}
 
 
 def spice_name(name: str) -> str:
@@ -86,17 +98,42 @@ def _comment(text: str) -> str:
 
 
 def subckt_text(result: FitResult, name: str, *, provenance: Mapping[str, str]) -> str:
-    """SPICE subcircuit text of ``result`` named ``name`` (sanitised), pins ``1 2``.
+    """SPICE subcircuit text of ``result`` named ``name`` (sanitised), pins ``1 2``: the
+    part alone, its mount removed.
 
     ``provenance`` holds what the measurement was (file, part, sample, run, date,
     fixture, ...); each entry becomes a comment line.
     """
-    sub = spice_name(name)
+    return _subckt(result, spice_name(name), provenance, None)
+
+
+def on_mount_subckt_text(
+    result: FitResult,
+    name: str,
+    mount_r: float,
+    mount_l: float,
+    *,
+    provenance: Mapping[str, str],
+) -> str:
+    """SPICE subcircuit of the part on its mount, named ``NAME_on_mount``: the mount's
+    series resistance ``mount_r`` (Ω) and inductance ``mount_l`` (H) from pin 1, then
+    the part to pin 2."""
+    if not (mount_r >= 0 and mount_l >= 0):
+        raise ValueError(f"mount R and L must be >= 0, got {mount_r} Ohm and {mount_l} H")
+    return _subckt(result, spice_name(name) + ON_MOUNT_SUFFIX, provenance, (mount_r, mount_l))
+
+
+def _subckt(result: FitResult, sub: str, provenance, mount: tuple[float, float] | None) -> str:
     q = result.quality
     lines = [
         _comment(
             f"{sub}: zbench {result.model} model (order {result.order}) of "
             f"{'an' if result.kind[:1] in 'aeiou' else 'a'} {result.kind}"
+            + (
+                ", the part alone (mount removed; for a board-level field solver)"
+                if mount is None
+                else ", the part on its mount (mount included; for ideal connections)"
+            )
         ),
         _comment(
             f"fitted from {format_si(result.f_range[0], 'Hz')} to "
@@ -105,16 +142,27 @@ def subckt_text(result: FitResult, name: str, *, provenance: Mapping[str, str]) 
         ),
         _comment(
             f"fit quality: rms_log_error {q.rms_log_error:.4g}, max_abs_log_error "
-            f"{q.max_abs_log_error:.4g}, bound {result.quality_bound:.4g} "
-            f"({'met' if result.meets_quality else 'NOT met'})"
+            f"{q.max_abs_log_error:.4g}, noise_ratio {q.noise_ratio:.3g}, bound "
+            f"{result.quality_bound:.4g} ({'met' if result.meets_quality else 'NOT met'})"
         ),
     ]
+    if result.excluded:
+        lines.append(
+            _comment(
+                "points left out: "
+                + ", ".join(
+                    f"{e.count} {e.reason} ({format_si(e.f_lo, 'Hz')} to {format_si(e.f_hi, 'Hz')})"
+                    for e in result.excluded
+                )
+            )
+        )
     marks = []
     for key, value in result.landmarks.items():
         text = "n/a" if value is None else format_si(value, _LANDMARK_UNITS.get(key, ""))
-        marks.append(f"{key} = {text}")
+        source = result.landmark_sources.get(key)
+        marks.append(f"{key} = {text}" + (f" ({source})" if source else ""))
     if marks:
-        lines.append(_comment("landmarks (from the model): " + ", ".join(marks)))
+        lines.append(_comment("landmarks: " + ", ".join(marks)))
     elements = []
     for key, value in result.elements.items():
         sigma = result.uncertainties.get(key)
@@ -128,8 +176,18 @@ def subckt_text(result: FitResult, name: str, *, provenance: Mapping[str, str]) 
         lines.append(_comment(f"{key}: {value}"))
     for warning in result.warnings:
         lines.append(_comment(f"warning: {warning}"))
+    if mount is not None:
+        lines.append(
+            _comment(
+                f"mount in series from pin 1: Rmount = {format_si(mount[0], 'Ohm')}, "
+                f"Lmount = {format_si(mount[1], 'H')}"
+            )
+        )
     lines.append(f".subckt {sub} 1 2")
-    lines.extend(result.spice_lines())
+    if mount is None:
+        lines.extend(result.spice_lines())
+    else:
+        lines.extend(_on_mount_lines(result, mount))
     lines.append(f".ends {sub}")
     return "\n".join(lines) + "\n"
 
@@ -153,3 +211,34 @@ def library_text(subckts: Sequence[str], *, title: str) -> str:
     head = [_comment(title), _comment(f"{len(subckts)} subcircuits, pins 1 and 2"), "*"]
     body = "\n".join(text.rstrip("\n") + "\n" for text in subckts)
     return "\n".join(head) + "\n\n" + body
+
+
+def _on_mount_lines(result: FitResult, mount: tuple[float, float]) -> list[str]:
+    """Element lines of the mount (Rmount, Lmount) in series with the part's circuit."""
+    part: Node | None = result.circuit
+    values = dict(result.elements)
+    if part is None:
+        part = result.family.circuit(result.order)
+    if "Rmount" in values or "Lmount" in values:
+        raise ValueError("the part's elements already use the names Rmount or Lmount")
+    values.update(Rmount=max(mount[0], 1e-12), Lmount=max(mount[1], 1e-18))
+    return spice_lines(series(R("Rmount"), Ind("Lmount"), part), values)
+
+
+def removed_mount(f, z_measured, z, valid=None) -> tuple[float, float] | None:
+    """The series R (Ω) and L (H) of the mount removed from a measurement, fitted to
+    ``z_measured − z`` (``bench.core.fixture.fit_mount``), or None when nothing was
+    removed. With the pads' open admittance also removed the difference holds a little of
+    it too; the series mount dominates at the low impedances of power-delivery parts."""
+    from bench.core.fixture import fit_mount
+
+    if z_measured is None:
+        return None
+    diff = np.asarray(z_measured, dtype=complex) - np.asarray(z, dtype=complex)
+    if not np.any(np.abs(diff) > 0):
+        return None
+    keep = np.isfinite(diff) if valid is None else np.asarray(valid, bool) & np.isfinite(diff)
+    if np.count_nonzero(keep) < 3:
+        return None
+    mount = fit_mount(np.asarray(f, dtype=float), diff, valid=keep)
+    return float(mount.r), float(mount.l)

@@ -54,6 +54,7 @@ def open_instruments(plan: Plan, *, scripted: bool) -> Iterator[BenchInstruments
     """Open every needed instrument of ``plan``; close them all on the way out."""
     from drivers.analyzer import NetworkAnalyzer
     from drivers.bench_control import BenchControl
+    from drivers.instrument_maps import load_instrument_map
     from drivers.switch import FixtureSwitch
     from drivers.transport import VisaTransport
 
@@ -78,7 +79,8 @@ def open_instruments(plan: Plan, *, scripted: bool) -> Iterator[BenchInstruments
         analyzer = NetworkAnalyzer(link("analyzer"), plan.instruments["analyzer"].command_map)
         switch = None
         if "switch" in roles:
-            switch = FixtureSwitch(link("switch"), plan.fixture.positions)
+            commands = load_instrument_map("switch", plan.instruments["switch"].command_map)
+            switch = FixtureSwitch(link("switch"), plan.fixture.positions, commands=commands)
         dc = link("dc_source") if "dc_source" in roles else None
         bench = BenchControl(link("bench")) if "bench" in roles else None
         yield BenchInstruments(analyzer, switch, dc, bench, transports)

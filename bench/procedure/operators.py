@@ -88,6 +88,10 @@ class Operator(ABC):
     def advise(self, text: str) -> None:  # noqa: B027 (optional hook)
         """Tell the operator something that needs no answer."""
 
+    def confirm(self, question: str) -> bool:
+        """A yes/no question about a safe action (scripted hands agree)."""
+        return True
+
 
 class ScriptedOperator(Operator):
     """The simulated bench's hands, through its bench-control instrument.
@@ -190,6 +194,10 @@ class ConsoleOperator(Operator):
         self._ask = ask or input
         self._say = say or print
         self._pending: list[str] = []
+
+    def confirm(self, question: str) -> bool:
+        answer = self._ask(f"{question} [Y/n] ").strip().lower()
+        return answer in ("", "y", "yes")
 
     def _later(self, text: str) -> None:
         # Set-up actions are asked together with the next action, so an unattended run

@@ -316,6 +316,41 @@ def analyzer_limits(command_map: str) -> dict[str, Any]:
     return limits
 
 
+def _command_map_errors(
+    doc: SourceDocument, instruments: dict[str, Instrument]
+) -> list[ProcedureError]:
+    """Each named command map must load and validate, by ``check`` time.
+
+    The message is the map loader's, which names the file and key and never quotes the
+    file's contents (a mistyped path may point at any file).
+    """
+    from drivers.command_map import load_command_map
+    from drivers.errors import CommandMapError
+    from drivers.instrument_maps import load_instrument_map
+
+    loaders = {
+        "analyzer": load_command_map,
+        "switch": lambda name: load_instrument_map("switch", name),
+        "dc_source": lambda name: load_instrument_map("dc_source", name),
+    }
+    errors = []
+    for role, load in loaders.items():
+        name = instruments[role].command_map
+        if name == "default":
+            continue
+        try:
+            load(name)
+        except CommandMapError as exc:
+            errors.append(
+                doc.error(
+                    ("instruments", role, "command_map"),
+                    f"the command map does not load: {str(exc).splitlines()[0]}",
+                    hint=exc.hint or "give a shipped map's name or a map file that validates",
+                )
+            )
+    return errors
+
+
 def build_plan(doc: SourceDocument) -> Plan:
     """Turn a schema-checked document into a :class:`Plan`, checking values against each other.
 
@@ -345,6 +380,8 @@ def build_plan(doc: SourceDocument) -> Plan:
             max_current=attempt(_number, doc, ("instruments", role, "max_current"), "A", None),
             max_power=attempt(_number, doc, ("instruments", role, "max_power"), "dBm", None),
         )
+
+    errors.extend(_command_map_errors(doc, instruments))
 
     s = data["sweep"]
     sweep = Sweep(
@@ -618,6 +655,16 @@ def _check_steps(doc: SourceDocument, steps: tuple[str, ...], errors: list[Proce
 
 
 def _check_bias(doc: SourceDocument, plan: Plan, errors: list[ProcedureError]) -> None:
+    max_current = plan.instruments["dc_source"].max_current
+    if plan.biased and max_current is not None and plan.bias.current_limit > max_current:
+        errors.append(
+            doc.error(
+                ("bias", "current_limit"),
+                f"the current limit {format_si(plan.bias.current_limit, 'A')} is above "
+                f"dc_source.max_current {format_si(max_current, 'A')}",
+                hint="lower bias.current_limit, or state the source's real maximum",
+            )
+        )
     for i, part in enumerate(plan.parts):
         if not any(v != 0.0 for v in part.bias):
             continue
@@ -639,6 +686,10 @@ def _check_bias(doc: SourceDocument, plan: Plan, errors: list[ProcedureError]) -
             missing.append((("fixture", "dc_block_rating"), "fixture.dc_block_rating"))
         if plan.instruments["dc_source"].max_voltage is None:
             missing.append((("instruments", "dc_source", "max_voltage"), "dc_source.max_voltage"))
+        if plan.instruments["dc_source"].max_current is None:
+            # The current limit needs a bound as the voltage has: a source that can
+            # deliver amperes would deliver them into a shorted or failing part.
+            missing.append((("instruments", "dc_source", "max_current"), "dc_source.max_current"))
         if missing:
             for _, what in missing:
                 errors.append(

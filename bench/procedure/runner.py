@@ -21,7 +21,7 @@ import time
 from collections.abc import Callable
 from typing import Any
 
-from bench.errors import RunError, SafetyError
+from bench.errors import BiasNotConfirmedOffError, RunError, SafetyError
 from bench.procedure.display import PlainDisplay
 from bench.procedure.operators import Operator, OperatorStop
 from bench.procedure.plan import SWEEP_STEPS, Plan, Step
@@ -143,8 +143,11 @@ class Runner:
             self._stopped(current, f"internal error: {exc!r}")
             raise
         finally:
-            bias.bias_off(ctx)
+            unconfirmed = bias.bias_off(ctx)
             self.display.stop()
+            if unconfirmed is not None:
+                # Its own exit status (4): the part may still be charged.
+                raise BiasNotConfirmedOffError(self._resume_text(unconfirmed))
 
     def _resume_text(self, reason: str) -> str:
         return (

@@ -286,3 +286,16 @@ def test_unwritable_output_is_bad_input_not_a_traceback(
     assert code == 2, err
     assert f"cannot write {tmp_path / 'p.sub'}: {os.strerror(code_)}" in err
     assert "internal error" not in err and "Traceback" not in err
+
+
+def test_two_port_z_file_of_a_shunt_part_reads_as_its_impedance(tmp_path: Path) -> None:
+    # A shunt element's Z-matrix has every entry equal to Z (textbook two-port algebra);
+    # version 1.x Z data are normalised to R (docs/references.md §6).
+    z = _inductor(F[:40])
+    rows = "".join(
+        f"{float(f)!r} " + " ".join([f"{v.real / 50:.17g} {v.imag / 50:.17g}"] * 4) + "\n"
+        for f, v in zip(F[:40], z, strict=True)
+    )
+    m = load_measurement(_write(tmp_path, "z2.s2p", "# Hz Z RI R 50\n" + rows))
+    assert m.kind == "s2p" and m.method == "shunt-through"
+    np.testing.assert_allclose(m.z, z, rtol=1e-9)

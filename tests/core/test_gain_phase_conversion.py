@@ -50,3 +50,19 @@ def test_divider_by_hand():
 def test_bad_reference_is_refused():
     with pytest.raises(ValueError, match="r_ref"):
         gain_phase_z(0.5, r_ref=0.0)
+
+
+def test_impedance_data_from_the_ratio():
+    from bench.core.gain_phase import impedance_from_gain_phase
+
+    z = bulk_capacitor(F)
+    z_in = 1 / (1 / 1e6 + 2j * np.pi * F * 30e-12)
+    data = impedance_from_gain_phase(F, gain_phase_ratio(z, r_ref=1.0, z_in=z_in), r_ref=1.0,
+                                     z_in=z_in)  # fmt: skip
+    np.testing.assert_allclose(data.z, z, rtol=1e-7)
+    # The divider is a shunt-through of Ze = 2·r_ref: the uncertainty grows where |Z| is
+    # far above the reference (the ratio near 1), here the lowest frequencies.
+    low_f = data.rel_uncertainty[F < 20]
+    mid = data.rel_uncertainty[(F > 1e3) & (F < 1e6)]
+    assert low_f.max() > mid.max()
+    assert data.inside_window[(F > 1e3) & (F < 1e6)].all()

@@ -153,3 +153,51 @@ def test_scikit_rf_still_misreads_version_1_y_files(tmp_path: Path) -> None:
     net = skrf.Network(str(path))
     assert net.y[0, 0, 0] == pytest.approx(25.0)
     assert net.y[0, 0, 0] != pytest.approx(0.01)
+
+
+@pytest.mark.parametrize("form", ["ri", "ma", "db"])
+@pytest.mark.parametrize("parameter", ["S", "Z"])
+def test_reader_agrees_with_scikit_rf(tmp_path: Path, form: str, parameter: str) -> None:
+    # scikit-rf's own writer and reader (version 1.x, docs/references.md §6 and §8) are
+    # the outside reference for zbench's parser of the same file.
+    rng = np.random.default_rng(4)
+    n = 25
+    f = np.logspace(3, 8, n)
+    s = 0.4 * (rng.normal(size=(n, 2, 2)) + 1j * rng.normal(size=(n, 2, 2)))
+    net = skrf.Network(frequency=skrf.Frequency.from_f(f, unit="Hz"), s=s, z0=50.0, name="x")
+    path = tmp_path / "x.s2p"
+    text = net.write_touchstone(return_string=True, form=form, r_ref=50.0, parameter=parameter)
+    path.write_text(text)
+    m = load_measurement(path)
+    ref = skrf.Network(str(path))
+    np.testing.assert_allclose(m.f, ref.f, rtol=1e-12)
+    np.testing.assert_allclose(m.s, ref.s, rtol=1e-7, atol=1e-9)
+
+
+def test_version_2_data_order_and_version_1_noise_rows(tmp_path: Path) -> None:
+    # Touchstone 1.x lists two-port data 11 21 12 22; 2.0 follows [Two-Port Data Order];
+    # 1.x noise parameters follow the network data, starting with a fall in frequency
+    # (docs/references.md §6).
+    f = np.logspace(3, 6, 12)
+    s11, s21, s12, s22 = 0.1 + 0.2j, 0.5 - 0.1j, 0.05 + 0j, -0.2 + 0.1j
+    v1 = "".join(
+        f"{x:g} {s11.real} {s11.imag} {s21.real} {s21.imag} {s12.real} {s12.imag} "
+        f"{s22.real} {s22.imag}\n"
+        for x in f
+    )
+    noise = "1000 1.5 0.3 10 0.4\n2000 1.6 0.3 11 0.4\n"
+    one = load_measurement(_write(tmp_path, "v1.s2p", "# Hz S RI R 50\n" + v1 + noise))
+    v2 = "".join(
+        f"{x:g} {s11.real} {s11.imag} {s12.real} {s12.imag} {s21.real} {s21.imag} "
+        f"{s22.real} {s22.imag}\n"
+        for x in f
+    )
+    header = "[Version] 2.0\n# Hz S RI R 50\n[Number of Ports] 2\n"
+    two = load_measurement(
+        _write(tmp_path, "v2.s2p", header + "[Two-Port Data Order] 12_21\n" + v2 + "[End]\n")
+    )
+    for m in (one, two):
+        assert m.f.size == 12
+        assert (m.s[0, 1, 0], m.s[0, 0, 1]) == (pytest.approx(s21), pytest.approx(s12))
+    with pytest.raises(InputError, match="Two-Port Data Order"):
+        load_measurement(_write(tmp_path, "v2bad.s2p", header + v2))

@@ -119,3 +119,57 @@ def test_format_number():
     assert float(format_number(1.0955163172973315)) == 1.0955163172973315
     with pytest.raises(TypeError):
         format_number(True)
+
+
+MEAS_STIM = yaml.safe_load((MAPS_DIR / "meas_stim.yaml").read_text())
+
+
+@pytest.mark.parametrize(
+    ("edit", "key", "words"),
+    [
+        (lambda m: m["trigger"]["sync"].pop("mask"), "trigger.sync", "mask"),
+        (lambda m: m["trigger"]["sync"].update(method="wait"), "trigger.sync.method", "opc"),
+        (
+            lambda m: m["data"]["traces"].update(query="MEASure:VALues?"),
+            "data.traces.query",
+            "{number}",
+        ),
+        (
+            lambda m: m["data"]["traces"].update(numbers={"S11": 1, "S21": 1}),
+            "data.traces.numbers",
+            "share a number",
+        ),
+        (
+            lambda m: m["data"]["traces"].update(select_by="channel"),
+            "data.traces.define",
+            "no define",
+        ),
+        (lambda m: m["data"].update(format="real16"), "data.format", "real32"),
+        (
+            lambda m: m["common"]["error_codes"].append({"code": 201, "meaning": "again"}),
+            "common.error_codes.4.code",
+            "twice",
+        ),
+        (lambda m: m["data"].update(parameters=["RATIO"]), "data.parameters", "kind"),
+    ],
+)
+def test_new_map_keys_are_checked_with_file_key_and_fix(tmp_path, edit, key, words):
+    raw = copy.deepcopy(MEAS_STIM)
+    edit(raw)
+    path = write_map(tmp_path, raw)
+    with pytest.raises(CommandMapError) as info:
+        load_command_map(path)
+    assert info.value.path == str(path)
+    assert info.value.key == key
+    assert words in str(info.value)
+    assert "fix:" in str(info.value)
+
+
+def test_meas_stim_map_reads_every_axis():
+    cmap = load_command_map("meas_stim")
+    assert cmap.sync.method == "poll" and cmap.sync.mask == 2
+    assert cmap.sync.before == ("STATus:SWEep:CLEar",)
+    assert (cmap.data_format, cmap.datatype, cmap.big_endian) == ("real32", "f", False)
+    assert cmap.frequency_query is None
+    assert cmap.trace_commands("S21") == (["MEASure2:DEFine S21"], "MEASure2:VALues?")
+    assert "define it first" in cmap.explain_error(201)

@@ -21,7 +21,8 @@ def drain_errors(inst) -> list[str]:
 
 
 def test_resources_are_loopback_sockets(sim_bench):
-    assert set(sim_bench.resources) == {"analyzer", "switch", "dc_source", "bench"}
+    # the demo bench has a gain-phase analyser besides the four bench instruments
+    assert set(sim_bench.resources) == {"analyzer", "switch", "dc_source", "bench", "gain_phase"}
     for name, resource in sim_bench.resources.items():
         assert resource == f"TCPIP0::127.0.0.1::{sim_bench.ports[name]}::SOCKET"
         assert sim_bench.ports[name] > 0

@@ -166,6 +166,15 @@ def test_numeric_bounds_and_specials():
     assert info.value.code == -222
 
 
+def test_negative_bounds_are_inclusive():
+    # A source power limit of -30 dBm accepts -30 dBm itself, and refuses just below it.
+    assert parse_numeric("-30", "DBM", minimum=-30, maximum=10) == -30
+    assert parse_numeric("-10", "DBM", minimum=-40, maximum=-10) == -10
+    with pytest.raises(ScpiError) as info:
+        parse_numeric("-30.001", "DBM", minimum=-30, maximum=10)
+    assert info.value.code == -222
+
+
 def test_other_parameter_readers():
     assert parse_boolean("ON") and parse_boolean("1") and not parse_boolean("off")
     assert parse_choice("log", ("LINear", "LOGarithmic")) == "LOGARITHMIC"

@@ -12,8 +12,8 @@ import numpy as np
 from bench.core.impedance import impedance_from_reflection, impedance_from_series_through
 from tests.simulator.test_instruments import drain_errors
 
-PART = "PL470N/s1"
-BEAD = "FB120/s1"
+PART = "PL530N/s1"
+BEAD = "FB137/s1"
 
 
 def test_nodes_move_cables_and_fill_the_mounts(sim_bench, open_instrument):

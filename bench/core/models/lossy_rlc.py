@@ -37,7 +37,7 @@ from bench.core.models.network import (
 # The loss elements reach this far beyond the measured band (factors on f_lo and f_hi):
 # the continuous Debye and skin forms flatten near their band edges.
 DIELECTRIC_MARGIN = (10.0, 10.0)
-SKIN_MARGIN = (100.0, 10.0)
+SKIN_MARGIN = (100.0, 100.0)
 # Band of a circuit built without data (only for element names and orders).
 DEFAULT_BAND = (1e2, 1e9)
 

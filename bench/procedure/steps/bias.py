@@ -3,6 +3,7 @@ output switched off whatever happened."""
 
 from __future__ import annotations
 
+import sys
 from collections.abc import Callable
 from typing import Any
 
@@ -39,24 +40,83 @@ def largest_limit(ctx: RunContext) -> float:
     return max([v for v in limits if v > 0] or [1.0])
 
 
-def dc_source(ctx: RunContext, limit: float) -> Any:
+def dc_commands(ctx: RunContext) -> Any:
+    """The DC source's commands, from the map the procedure names (``default``)."""
+    from drivers.instrument_maps import load_instrument_map
+
+    return load_instrument_map("dc_source", ctx.plan.instruments["dc_source"].command_map)
+
+
+def dc_source(ctx: RunContext, limit: float, transport: Any = None) -> Any:
     from drivers.dc_source import DcSource
 
     inst = ctx.plan.instruments["dc_source"]
+    # `check` requires dc_source.max_current of a biased plan; the fallback is the
+    # plan's own limit, never more.
     max_current = min(v for v in (inst.max_current, ctx.plan.bias.current_limit) if v is not None)
     return DcSource(
-        ctx.inst.dc_transport, max_voltage=limit, max_current=max_current, sleep=ctx.sleep
+        transport if transport is not None else ctx.inst.dc_transport,
+        max_voltage=limit,
+        max_current=max_current,
+        commands=dc_commands(ctx),
+        sleep=ctx.sleep,
     )
 
 
+#: How far (relative) the instrument's reported maximum may differ from the stated one.
+MAX_VOLTAGE_AGREEMENT = 0.02
+
+
 def ensure_off_at_start(ctx: RunContext) -> None:
+    """Before any sweep: a source left on is reported and switched off (asked first when a
+    person is at the bench), its reported maximum is checked against the procedure's
+    statement, and its own over-voltage protection is set at the run's limit."""
     if ctx.inst.dc_transport is None:
         return
     source = dc_source(ctx, largest_limit(ctx))
     if source.output_is_on():
+        volts = source.setpoint()
+        found = (
+            f"the DC source at {source.resource_name} was found with its output ON "
+            f"(set to {volts:g} V): a part may be charged"
+        )
+        ctx.store.log(found)
+        ctx.display.message("WARNING: " + found)
+        if not ctx.assume_yes:
+            with ctx.pause():
+                agreed = ctx.operator.confirm("switch it off now (ramp down, output off)?")
+            if not agreed:
+                raise SafetyError(
+                    f"{found}; the run does not start with it on. Switch it off by hand "
+                    "and let the part discharge, then run again"
+                )
         b = ctx.plan.bias
         source.shut_down(b.ramp_step, b.ramp_dwell_s, b.discharge_s)
+        ctx.note("the DC source's output was found on at the start and was switched off")
     source.output_off()
+    check_stated_maximum(ctx, source)
+    if ctx.plan.biased:
+        inst = ctx.plan.instruments["dc_source"]
+        done = source.set_protection(largest_limit(ctx), inst.max_current or source.max_current)
+        if done:
+            ctx.store.log("instrument protection set: " + ", ".join(done))
+            ctx.store.update("dc_protection", done)
+
+
+def check_stated_maximum(ctx: RunContext, source: Any) -> None:
+    """The procedure's ``dc_source.max_voltage`` against what the instrument reports."""
+    stated = ctx.plan.instruments["dc_source"].max_voltage
+    reported = source.reported_max_voltage()
+    if reported is None or stated is None:
+        return
+    ctx.store.update("dc_source_reported_max_voltage", reported)
+    if abs(reported - stated) > MAX_VOLTAGE_AGREEMENT * max(stated, reported):
+        raise SafetyError(
+            f"the procedure states dc_source.max_voltage {stated:g} V, but the source at "
+            f"{source.resource_name} reports a maximum of {reported:g} V: a different "
+            "source, or a wrong statement. Correct dc_source.max_voltage (or connect the "
+            "source the procedure was written for); nothing was applied"
+        )
 
 
 def biased(ctx: RunContext, part: Any, bias_v: float, label: str, action: Callable[[], None]):
@@ -112,27 +172,35 @@ def confirm_discharged(ctx: RunContext, source: Any, label: str) -> None:
     ctx.display.message(message)
 
 
-def bias_off(ctx: RunContext) -> None:
-    """Output off, whatever happened: on the open link, else on a fresh connection."""
+def bias_off(ctx: RunContext) -> str | None:
+    """Output off, whatever happened: on the open link, else on a fresh connection.
+
+    Returns None when the output is confirmed off, else the message to give (also
+    written to the log and to stderr): the caller ends with its own exit status.
+    """
     if ctx.inst is None or ctx.inst.dc_transport is None:
-        return
+        return None
     try:
         dc_source(ctx, largest_limit(ctx)).output_off()
-        return
+        return None
     except Exception as exc:  # the link may be gone: try a new one below
         ctx.store.log(f"output off on the open link failed ({exc}); reconnecting")
-    from drivers.dc_source import DcSource
     from drivers.transport import VisaTransport
 
     inst = ctx.plan.instruments["dc_source"]
     try:
         with VisaTransport.open(inst.resource, timeout_s=inst.timeout_s) as link:
-            DcSource(link, max_voltage=largest_limit(ctx), max_current=1.0).output_off()
-        ctx.store.log("DC output switched off on a new connection")
+            # The set-point too: left at the bias voltage, it would come back the
+            # moment someone switched the output on again.
+            dc_source(ctx, largest_limit(ctx), transport=link).zero_and_off()
+        ctx.store.log("DC output switched off and set to 0 V on a new connection")
+        return None
     except Exception as exc:
         message = (
             f"could not confirm the DC source output is off ({exc}); switch it off by hand "
             "and let the part discharge before touching it"
         )
         ctx.store.log(message)
-        ctx.display.message("WARNING: " + message)
+        ctx.store.update("dc_output_unconfirmed", message)
+        print(f"zbench: WARNING: {message}", file=sys.stderr, flush=True)
+        return message

@@ -135,7 +135,10 @@ def reuse_problem(ctx: RunContext) -> str | None:
         old = RunStore.open(path)
     except InputError as exc:
         return f"{path}: {str(exc).splitlines()[0]}"
-    problems = calibration_mismatch(old.manifest["procedure"], ctx.plan.resolved)
+    try:
+        problems = calibration_mismatch(old.manifest["procedure"], ctx.plan.resolved)
+    except (KeyError, TypeError, ValueError, AttributeError):
+        return f"{path}: its manifest does not describe a zbench calibration"
     if problems:
         return "; ".join(problems)
     times = []
