@@ -109,6 +109,20 @@ def series_r_from_comments(comments: str) -> float | None:
     return None
 
 
+_UNIT_WORD = re.compile(r"^[kMGTmunpµ]?(?:Hz|ohms?|Ω|F|H|V|dB|dBm|%)$")
+
+
+def check_stray_units(files: tuple[str, ...]) -> None:
+    """Refuse a FILE that is the unit of an unquoted option value (``--fmin 10 MHz``)."""
+    for name in files:
+        if _UNIT_WORD.match(name) and not Path(name).exists():
+            raise InputError(
+                f"{name!r} is not a file: it looks like the unit of an option's value",
+                hint=f"quote the value with its unit, e.g. --fmin '10 {name}', or join "
+                f"them: --fmin 10{name}",
+            )
+
+
 _NO_RESISTORS = re.compile(r"\bno (?:port )?(?:series )?resistors?\b", re.I)
 
 
@@ -524,6 +538,7 @@ def command(
     """
     from bench import api
 
+    check_stray_units(files)
     model = model.strip().lower()
     api.check_model_name(model)
     if method is not None:

@@ -361,3 +361,10 @@ def test_series_r_against_the_files_comment_warns(tmp_path, capsys):
     assert "--series-r 499 ohm contradicts the file's comments, which state 0 ohm" in err
     _, _, err = run(capsys, path)
     assert "contradicts" not in err
+
+
+def test_an_unquoted_unit_is_named_not_read_as_a_file(capsys):
+    code, _, err = run(capsys, BULK, "--fmin", "10", "MHz")
+    assert code == 2
+    assert "'MHz' is not a file: it looks like the unit of an option's value" in err
+    assert "--fmin '10 MHz'" in err
