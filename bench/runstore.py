@@ -35,6 +35,8 @@ MANIFEST = "manifest.json"
 PROCEDURE_COPY = "procedure.yaml"
 FORMAT_VERSION = 1
 DONE, PENDING, RUNNING, FAILED, SKIPPED = "done", "pending", "running", "failed", "skipped"
+#: A step the operator stopped (or interrupted with Ctrl-C): not a failure; it resumes.
+STOPPED = "stopped"
 
 
 def now_iso() -> str:

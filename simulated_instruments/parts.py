@@ -125,8 +125,9 @@ class Mlcc:
 
     Main branch: ``esr·sqrt(1 + j f/skin_corner) + jω·esl + 1/(jωC(V)(1 − j·tanδ))``;
     in parallel a weak second branch with capacitance ``mode_c_ratio·C``, inductance
-    ``mode_l_ratio·esl`` and resistance ``mode_r_ratio·esr`` (set ``mode_c_ratio`` to 0
-    for none); across the dielectric an insulation resistance.
+    ``mode_l_ratio·esl`` and resistance ``mode_r_ratio·esr`` (``mode_c_ratio`` is 0 by
+    default: a single mounted part shows no second mode unless it is invented with one);
+    across the dielectric an insulation resistance.
 
     Units: F, H, Ω, Hz, V. ``dielectric`` is ``"X5R"``, ``"X7R"`` (class II, DC-bias
     dependent) or ``"C0G"`` (class I, no bias dependence). ``v50`` (V) defaults to a
@@ -144,7 +145,7 @@ class Mlcc:
     v50: float | None = None
     loss_tangent: float | None = None
     skin_corner: float = 20e6
-    mode_c_ratio: float = 0.003
+    mode_c_ratio: float = 0.0
     mode_l_ratio: float = 5.0
     mode_r_ratio: float = 10.0
     insulation_resistance: float = 1e9
@@ -188,12 +189,14 @@ class Mlcc:
         """Main-branch capacitance (F) under ``bias_v`` volts of DC bias."""
         if self.dielectric == "C0G":
             return self.capacitance
-        v50 = (
-            self.v50
-            if self.v50 is not None
-            else _V50_FRACTION[self.dielectric] * self.rated_voltage
-        )
-        return self.capacitance / (1.0 + (bias_v / v50) ** 2)
+        return self.capacitance / (1.0 + (bias_v / self.v50_volts) ** 2)
+
+    @property
+    def v50_volts(self) -> float:
+        """The bias (V) at which a class II part has lost half its capacitance."""
+        if self.v50 is not None:
+            return self.v50
+        return _V50_FRACTION.get(self.dielectric, 1e9) * self.rated_voltage
 
     def impedance(self, f: Any, bias_v: float = 0.0) -> np.ndarray:
         """Complex impedance (Ω) at ``f`` (Hz, > 0) under ``bias_v`` volts of DC bias."""
@@ -485,7 +488,8 @@ def part_from_dict(d: Mapping[str, Any]) -> Part:
 # Relative lot spread (one sigma, lognormal) of each field: invented but of the size seen
 # on the bench for parts of one reel (capacitance within its tolerance band, ESR wider).
 DEFAULT_SPREAD: dict[str, dict[str, float]] = {
-    "mlcc": {"capacitance": 0.03, "esl": 0.03, "esr": 0.08},
+    # v50: parts of one reel lose different shares of their capacitance under bias.
+    "mlcc": {"capacitance": 0.03, "esl": 0.03, "esr": 0.08, "v50": 0.06},
     "bulk": {"capacitance": 0.04, "esr": 0.08, "line_resistance": 0.1, "esl": 0.04},
     "inductor": {"inductance": 0.04, "r_dc": 0.05, "winding_capacitance": 0.06},
     "bead": {"inductance": 0.05, "resistance": 0.08, "capacitance": 0.06, "r_dc": 0.05},
@@ -525,6 +529,8 @@ def with_spread(part: Part, rng: np.random.Generator, spread: Mapping[str, Any])
         if sigma < 0:
             raise PartError(f"spread of {key!r} must be 0 or more, got {sigma!r}")
         value = getattr(part, key)
+        if value is None and key == "v50" and hasattr(part, "v50_volts"):
+            value = part.v50_volts  # the dielectric's default, spread like a given one
         if value is None:
             continue
         changes[key] = float(value) * float(np.exp(rng.normal(0.0, sigma)))

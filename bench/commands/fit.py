@@ -38,6 +38,7 @@ from pathlib import Path
 from typing import Any
 
 import click
+import numpy as np
 
 from bench.errors import FitError, InputError, ZbenchError
 from bench.exports import LANDMARK_UNITS
@@ -105,6 +106,64 @@ def series_r_from_comments(comments: str) -> float | None:
                 return float(match.group(1))
             except ValueError:
                 return None
+    return None
+
+
+_UNIT_WORD = re.compile(r"^[kMGTmunpµ]?(?:Hz|ohms?|Ω|F|H|V|dB|dBm|%)$")
+
+
+def check_stray_units(files: tuple[str, ...]) -> None:
+    """Refuse a FILE that is the unit of an unquoted option value (``--fmin 10 MHz``)."""
+    for name in files:
+        if _UNIT_WORD.match(name) and not Path(name).exists():
+            raise InputError(
+                f"{name!r} is not a file: it looks like the unit of an option's value",
+                hint=f"quote the value with its unit, e.g. --fmin '10 {name}', or join "
+                f"them: --fmin 10{name}",
+            )
+
+
+_NO_RESISTORS = re.compile(r"\bno (?:port )?(?:series )?resistors?\b", re.I)
+
+
+def series_r_contradiction(comments: str, series_r: float) -> str | None:
+    """Why ``--series-r`` disagrees with the resistors a file's comments state, or None."""
+    stated = series_r_from_comments(comments)
+    if stated is None and _NO_RESISTORS.search(comments or ""):
+        stated = 0.0
+    if stated is None or math.isclose(stated, series_r, rel_tol=1e-6, abs_tol=1e-9):
+        return None
+    return (
+        f"--series-r {series_r:g} ohm contradicts the file's comments, which state "
+        f"{stated:g} ohm at each port; the impedance scales with Z0 + Rs, so check which "
+        "is right"
+    )
+
+
+def unnormalised_hint(f: Any, s: Any) -> str | None:
+    """A hint when a two-port file looks never normalised to the through.
+
+    Normalised shunt-through data obey 1/S21 = 1 + Z0/(2Z), so Re(1/S21) = 1 + Z0·R/(2|Z|²),
+    which is 1 wherever the part's impedance is high and mostly reactive (a capacitor at
+    the low end; derived from the shunt-through relation, docs/references.md §1). Data
+    scaled by k (cable loss, an uncorrected analyser) read Re(1/S21) = 1/k there. The hint
+    is given when the high-impedance points at the lowest frequencies read k < 0.93
+    (common practice, no source).
+    """
+    f = np.asarray(f, dtype=float)
+    s21 = np.asarray(s, dtype=complex)[:, 1, 0]
+    order = np.argsort(f)
+    low = s21[order[: max(5, f.size // 20)]]
+    low = low[np.isfinite(low) & (np.abs(low) > 0.3)]
+    if low.size < 3:
+        return None
+    k = 1.0 / float(np.median((1.0 / low).real))
+    if 0.3 < k < 0.93:
+        return (
+            f"|S21| reads about {k:.2f} of what a shunt-through of a high impedance gives at "
+            "the lowest frequencies: was the file normalised to the through (or "
+            "calibrated)? Un-normalised data read the capacitance high"
+        )
     return None
 
 
@@ -307,7 +366,15 @@ def _impedance_of(
                 f"{name}: port series resistors {format_si(stated, 'Ω')} each, as its "
                 "comments state (give --series-r to override)"
             )
-    elif series_r and measurement.kind == "impedance" and measurement.method is None:
+    elif series_r is not None and measurement.kind == "s2p":
+        contradiction = series_r_contradiction(measurement.comments, series_r)
+        if contradiction:
+            outcome.notes.append(f"{name}: warning: {contradiction}")
+    if measurement.kind == "s2p" and measurement.s is not None:
+        hint = unnormalised_hint(measurement.f, measurement.s)
+        if hint:
+            outcome.notes.append(f"{name}: hint: {hint}")
+    if series_r and measurement.kind == "impedance" and measurement.method is None:
         outcome.notes.append(
             f"{name}: --series-r sets a window only with --method; this impedance is taken as given"
         )
@@ -471,6 +538,7 @@ def command(
     """
     from bench import api
 
+    check_stray_units(files)
     model = model.strip().lower()
     api.check_model_name(model)
     if method is not None:

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import contextlib
 import dataclasses
+import shutil
 from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
@@ -209,10 +210,9 @@ def finished_text(store: RunStore) -> str:
 )
 @click.option(
     "--time-scale",
-    type=float,
+    type=click.FloatRange(min=0.0, min_open=True, max=1.0),
     default=None,
-    hidden=True,
-    help="With --sim: compress the simulated instruments' time by this factor.",
+    help="With --sim: run the simulated instruments' time this much faster (0.01 = 100x).",
 )
 @click.option(
     "--seed",
@@ -248,6 +248,13 @@ def command(
                 hint="a resumed run uses the procedure stored in its folder",
             )
         store, plan = resumed(resume)
+        if store.manifest.get("state") == "complete":
+            click.echo(
+                f"the run in {store.root} is already complete: nothing to resume "
+                "(zbench report rebuilds its report, zbench reprocess makes a new result set)"
+            )
+            click.echo(finished_text(store))
+            return
         check_plan_unchanged(store, plan, accept_changed_plan=accept_changed_plan)
         simulated = store.manifest.get("simulated")
         if isinstance(simulated, dict) and seed is None and simulated.get("seed") is not None:
@@ -269,7 +276,25 @@ def command(
         store = new_store(plan, procedure, out)
     click.echo(f"run folder: {store.root}")
     scale = SIM_TIME_SCALE if time_scale is None else time_scale
-    if seed is not None and sim is None:
-        raise InputError("--seed goes with --sim", hint="real instruments have no seed")
-    execute(plan, store, sim=sim, assume_yes=assume_yes, time_scale=scale, seed=seed, quiet=quiet)
+    try:
+        if seed is not None and sim is None:
+            raise InputError("--seed goes with --sim", hint="real instruments have no seed")
+        execute(
+            plan, store, sim=sim, assume_yes=assume_yes, time_scale=scale, seed=seed, quiet=quiet
+        )
+    except BaseException:
+        if resume is None and never_started(store):
+            # Nothing was measured (unknown scenario, bad map, refused connection): no
+            # folder is left behind to advise a resume.
+            shutil.rmtree(store.root, ignore_errors=True)
+            click.echo(f"nothing was measured; run folder {store.root} removed", err=True)
+        raise
     click.echo(finished_text(store))
+
+
+def never_started(store: RunStore) -> bool:
+    """Whether a new run stored nothing: every step pending, no raw sweep written."""
+    raw = store.root / "raw"
+    if raw.is_dir() and any(raw.iterdir()):
+        return False
+    return all(entry.get("state") == "pending" for entry in store.manifest.get("steps", []))

@@ -34,7 +34,7 @@ from bench.procedure.steps.calibrate import (
 )
 from bench.procedure.steps.mount import GROUND_LOOP_ADVICE
 from bench.results import RunSummary
-from bench.runstore import DONE, FAILED, RUNNING, SKIPPED, RunStore
+from bench.runstore import DONE, FAILED, RUNNING, SKIPPED, STOPPED, RunStore
 
 __all__ = ["CAUTION", "GROUND_LOOP_ADVICE", "Runner", "calibration_mismatch"]
 
@@ -123,10 +123,10 @@ class Runner:
             store.log("run complete")
             return self.summary
         except OperatorStop as exc:
-            self._stopped(current, f"stopped by the operator: {exc}")
+            self._stopped(current, f"stopped by the operator: {exc}", STOPPED)
             raise RunError(self._resume_text(f"stopped: {exc}")) from None
         except KeyboardInterrupt:
-            self._stopped(current, "interrupted (Ctrl-C)")
+            self._stopped(current, "interrupted (Ctrl-C)", STOPPED)
             raise RunError(self._resume_text("interrupted")) from None
         except RunError as exc:
             self._stopped(current, str(exc))
@@ -155,10 +155,11 @@ class Runner:
             f"  continue it with: zbench run --resume {self.store.root}"
         )
 
-    def _stopped(self, step: Step | None, message: str) -> None:
+    def _stopped(self, step: Step | None, message: str, state: str = FAILED) -> None:
+        """Record where the run ended: the step ``failed``, or ``stopped`` by a person."""
         with contextlib.suppress(Exception):
             if step is not None and self.store.step_state(step.id) == RUNNING:
-                self.store.mark(step.id, FAILED, message=message)
+                self.store.mark(step.id, state, message=message)
             self.store.set_state("stopped", message)
             self.store.log(f"stopped at {step.id if step else '-'}: {message}")
 

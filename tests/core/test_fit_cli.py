@@ -105,9 +105,10 @@ def test_series_r_stated_in_the_file_comments_is_used(capsys, tmp_path):
     _, given, _ = run(capsys, INDUCTOR, "--series-r", "499", "--json")
     assert json_lines(stated)[0]["landmarks"] == json_lines(given)[0]["landmarks"]
     assert "port series resistors 499 Ω each, as its comments state" in err
-    # An explicit --series-r wins over the comments (and says nothing about them).
+    # An explicit --series-r wins over the comments, with a warning that they disagree.
     _, plain, err = run(capsys, INDUCTOR, "--series-r", "0", "--json")
-    assert "comments" not in err
+    assert "as its comments state" not in err
+    assert "--series-r 0 ohm contradicts the file's comments, which state 499 ohm" in err
     # Derived: the same S21 read with Ze = 50 Ω instead of 549 Ω scales Z by 50/549.
     ratio = json_lines(plain)[0]["landmarks"]["l_low"] / json_lines(given)[0]["landmarks"]["l_low"]
     assert ratio == pytest.approx(50.0 / 549.0, rel=0.05)
@@ -327,3 +328,43 @@ def test_one_port_z_file_round_trip(capsys, tmp_path):
     # (REFERENCES §3, derived check value for 10 µF / 0.5 nH / 5 mΩ).
     assert landmarks["c_low"] == pytest.approx(10e-6, rel=0.02)
     assert landmarks["srf"] == pytest.approx(2.2508e6, rel=0.01)
+
+
+# ----------------------------------------------------------------------------- hints
+
+
+def test_an_unnormalised_file_gets_a_hint(tmp_path, capsys):
+    f = np.logspace(2, 8, 121)
+    path = shunt_s2p(tmp_path / "good.s2p", f, rlc(f))
+    _, _, err = run(capsys, path)
+    assert "hint:" not in err
+    # An inductor (low impedance at the low end) gives no false hint either.
+    _, _, err = run(capsys, INDUCTOR)
+    assert "hint:" not in err
+    # The same capacitor never divided by the through: cable loss leaves |S21| ≈ 0.85.
+    s = skrf.Network(str(path)).s * 0.85
+    raw = write_touchstone_s(tmp_path / "raw.s2p", f, s)
+    _, _, err = run(capsys, raw)
+    assert re.search(r"hint: \|S21\| reads about 0\.85 of what a shunt-through", err), err
+    assert "normalised to the through" in err
+
+
+def test_series_r_against_the_files_comment_warns(tmp_path, capsys):
+    f = np.logspace(2, 8, 121)
+    s = np.empty((f.size, 2, 2), dtype=complex)
+    z = rlc(f)
+    s21 = 2 * z / (2 * z + 50.0)
+    s[:, 0, 0] = s[:, 1, 1] = s21 - 1
+    s[:, 0, 1] = s[:, 1, 0] = s21
+    path = write_touchstone_s(tmp_path / "c.s2p", f, s, comments=["no resistors fitted"])
+    _, _, err = run(capsys, path, "--series-r", "499")
+    assert "--series-r 499 ohm contradicts the file's comments, which state 0 ohm" in err
+    _, _, err = run(capsys, path)
+    assert "contradicts" not in err
+
+
+def test_an_unquoted_unit_is_named_not_read_as_a_file(capsys):
+    code, _, err = run(capsys, BULK, "--fmin", "10", "MHz")
+    assert code == 2
+    assert "'MHz' is not a file: it looks like the unit of an option's value" in err
+    assert "--fmin '10 MHz'" in err

@@ -128,16 +128,48 @@ def biased(ctx: RunContext, part: Any, bias_v: float, label: str, action: Callab
     ctx.display.step(f"{label}: ramping and settling")
     source = dc_source(ctx, limit)
     b = ctx.plan.bias
-    with source.biased(
-        bias_v,
-        current_limit=min(b.current_limit, source.max_current),
-        step_v=b.ramp_step,
-        dwell_s=b.ramp_dwell_s,
-        discharge_s=b.discharge_s,
-    ):
-        if b.settle_s:
-            ctx.sleep(b.settle_s)
-        action()
+    try:
+        with source.biased(
+            bias_v,
+            current_limit=min(b.current_limit, source.max_current),
+            step_v=b.ramp_step,
+            dwell_s=b.ramp_dwell_s,
+            discharge_s=b.discharge_s,
+        ):
+            if b.settle_s:
+                ctx.sleep(b.settle_s)
+            action()
+    except BaseException:
+        # A stop, Ctrl-C or error under bias: the context has ramped down, switched off
+        # and waited; tell the person at the bench what the source now reports.
+        confirm_discharged(ctx, source, label)
+        raise
+
+
+def confirm_discharged(ctx: RunContext, source: Any, label: str) -> None:
+    """Say on the console whether the output is off and the part discharged."""
+    wait = ctx.plan.bias.discharge_s
+    try:
+        on = source.output_is_on()
+        volts = source.measure_voltage()
+    except Exception as exc:  # the link may be gone; say so rather than reassure
+        message = (
+            f"WARNING: {label}: could not confirm the DC source output is off ({exc}); "
+            "switch it off by hand and let the part discharge before touching it"
+        )
+    else:
+        if on:
+            message = (
+                f"WARNING: {label}: the DC source output still reads ON ({volts:.3g} V); "
+                "switch it off by hand and let the part discharge before touching it"
+            )
+        else:
+            message = (
+                f"{label}: DC bias output is OFF (reads {volts:.3g} V) and the part was "
+                f"discharged for {wait:g} s"
+            )
+    ctx.store.log(message)
+    ctx.display.message(message)
 
 
 def bias_off(ctx: RunContext) -> str | None:

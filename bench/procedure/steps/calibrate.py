@@ -12,10 +12,10 @@ import numpy as np
 
 from bench.errors import InputError
 from bench.files import atomic_write_bytes
-from bench.procedure.operators import REPEAT
+from bench.procedure.operators import REPEAT, SKIP
 from bench.procedure.plan import Step
 from bench.procedure.steps.context import RunContext
-from bench.procedure.steps.sweep import cables_to, decide, sweeps
+from bench.procedure.steps.sweep import cables_to, decide, implausible, keep_implausible, sweeps
 from bench.runstore import DONE, LAST_CALIBRATION, RUNNING, RunStore, parse_iso
 from bench.units import format_si
 
@@ -26,11 +26,19 @@ def calibrate(ctx: RunContext, step: Step) -> None:
     while True:
         cables_to(ctx, step.standard)
         sweeps(ctx, step, f"calibration: {step.standard}")
-        _, s = ctx.last_average()
+        f, s = ctx.last_average()
         s21 = s[:, 1, 0]
         result = f"|S21| {20 * np.log10(np.median(np.abs(s21)) + 1e-300):.2f} dB (median)"
-        if decide(ctx, step, f"calibration {step.standard}", result) != REPEAT:
+        problem = check_standard(ctx, step.standard, f, s)
+        what = f"calibration {step.standard}"
+        result = implausible(ctx, step, what, problem, result)
+        choice = decide(ctx, step, what, result)
+        if choice != REPEAT:
+            if choice != SKIP:
+                keep_implausible(ctx, what, problem)
             break
+        if problem is not None:
+            ctx.cables = None  # the hands are asked to connect the standard again
     if step.standard == plan.calibration.standards[-1]:
         store.update(
             "calibration",
@@ -44,6 +52,21 @@ def calibrate(ctx: RunContext, step: Step) -> None:
                 "time": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
             },
         )
+
+
+def check_standard(ctx: RunContext, standard: str, f: np.ndarray, s: np.ndarray) -> str | None:
+    """Whether a calibration standard's raw capture looks like that standard."""
+    from bench.plausibility import check_reflection, check_through
+
+    fixture = ctx.plan.fixture
+    if standard == "through":
+        return check_through(f, s, z0=fixture.z0, series_r=fixture.series_r)
+    if standard in ("short", "open", "load"):
+        load = ctx.plan.calibration.kit.load_resistance or fixture.z0
+        return check_reflection(
+            standard, f, s, z0=fixture.z0, series_r=fixture.series_r, load_ohm=load
+        )
+    return None
 
 
 def maybe_reuse(ctx: RunContext) -> None:

@@ -52,6 +52,8 @@ class RunContext:
     quick_opens: dict[int, Any] = dataclasses.field(default_factory=dict)
     #: (f, mean S) of the sweeps the last step took.
     last: tuple[np.ndarray, np.ndarray] | None = None
+    #: Impedance data of the sample just measured (quick correction), for its checks.
+    last_live: Any = None
     #: Ground-loop corner per position, Hz, where the fit must start above it.
     loops: dict[int, float] = dataclasses.field(default_factory=dict)
     #: Main landmark (c_low F, l_low H, a bead's |Z| Ω at its stated frequency) of each

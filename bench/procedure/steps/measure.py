@@ -7,6 +7,7 @@ from typing import Any
 
 import numpy as np
 
+from bench.plausibility import check_part
 from bench.procedure.display import result_line
 from bench.procedure.operators import REPEAT
 from bench.procedure.plan import SINGLE_MOUNT_METHODS, Step
@@ -50,7 +51,15 @@ def measure(ctx: RunContext, step: Step) -> None:
             bias.biased(ctx, part, step.bias_v, label, lambda: sweeps(ctx, step, where))
         else:
             sweeps(ctx, step, where)
+        ctx.last_live = None
         result = live_result(ctx, step, part)
+        if ctx.last_live is not None:
+            # At the floor: said here and in the verdict (CHECK); the lot goes on.
+            problem = check_part(ctx.last_live.inside_window, label)
+            if problem is not None:
+                result += f"\n    IMPLAUSIBLE: {problem}" + (
+                    " Repeat (r) once it is fixed." if ctx.operator.guided else ""
+                )
         if not ctx.operator.guided:
             ctx.display.result(result)
         if decide(ctx, step, label, result) != REPEAT:
@@ -74,6 +83,7 @@ def live_result(ctx: RunContext, step: Step, part: Any) -> str:
         marks, data = live_landmarks(ctx, placement, part, f, s)
     except Exception as exc:  # the live line is information; the fit step decides
         return f"{label}: no landmarks ({exc})"
+    ctx.last_live = data
     z_nominal = z_at_nominal(part.spec, data)
     main = main_value(part.spec, marks, data)
     reference = None

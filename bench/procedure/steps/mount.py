@@ -8,7 +8,8 @@ from pathlib import Path
 import numpy as np
 
 from bench.errors import RunError
-from bench.procedure.operators import REPEAT
+from bench.plausibility import check_mount_short
+from bench.procedure.operators import REPEAT, SKIP
 from bench.procedure.plan import SINGLE_MOUNT_METHODS, Step
 from bench.procedure.processing import (
     ground_loop,
@@ -19,7 +20,14 @@ from bench.procedure.processing import (
 )
 from bench.procedure.steps import single_mount
 from bench.procedure.steps.context import RunContext
-from bench.procedure.steps.sweep import cables_to, decide, select, sweeps
+from bench.procedure.steps.sweep import (
+    cables_to,
+    decide,
+    implausible,
+    keep_implausible,
+    select,
+    sweeps,
+)
 from bench.units import format_si
 
 GROUND_LOOP_ADVICE = (
@@ -83,8 +91,16 @@ def mount_short(ctx: RunContext, step: Step) -> None:
         result = f"|Z| {format_si(float(np.median(np.abs(z_short))), 'Ω', 3)} (median)"
         if loop.detected:
             result += f"; ground loop below {format_si(loop.valid_above_hz, 'Hz')}"
-        if decide(ctx, step, f"mount short {pos}", result) != REPEAT:
+        problem = check_mount_short(f, z_short, pos)
+        what = f"mount short {pos}"
+        result = implausible(ctx, step, what, problem, result)
+        choice = decide(ctx, step, what, result)
+        if choice != REPEAT:
+            if choice != SKIP:
+                keep_implausible(ctx, what, problem)
             break
+        if problem is not None:
+            ctx.strapped.discard(pos)  # the hands are asked to fit the strap again
     loops = dict(store.manifest.get("ground_loop", {}))
     loops[str(pos)] = {
         "detected": loop.detected,

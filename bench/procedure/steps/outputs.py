@@ -19,6 +19,7 @@ from bench.runstore import DONE, SKIPPED, file_stem
 def fit(ctx: RunContext, step: Step) -> None:
     ctx.display.step("fitting models")
     from bench.exports import main_landmark, zero_bias_values
+    from bench.verdicts import kind_of, shown_landmarks
 
     summary = build_summary(ctx.store, ctx.plan)
     references = zero_bias_values(summary)
@@ -37,7 +38,9 @@ def fit(ctx: RunContext, step: Step) -> None:
                 result_line(
                     "fit " + sample.label,
                     part.spec.kind,
-                    dict(sample.fit.landmarks),
+                    # The same values as summary.csv and the report: from the data where
+                    # they hold, else the model's.
+                    shown_landmarks(sample, kind_of(part.spec)),
                     nominal=part.spec.nominal,
                     tolerance=part.spec.tolerance,
                     bias_v=sample.bias_v,

@@ -112,3 +112,29 @@ def decide(ctx: RunContext, step: Step, label: str, result: str) -> str:
         ctx.store.log(f"{step.id}: sweep repeated at the operator's request")
         return REPEAT
     return "continue"
+
+
+def implausible(ctx: RunContext, step: Step, what: str, problem: str | None, result: str) -> str:
+    """The result line of a capture, marked when a plausibility check failed.
+
+    Unattended, a failed check stops the run with a clear message (the sweep is moved
+    aside, so a resume takes it again). Guided, the operator sees the reason with the
+    advice to repeat; :func:`keep_implausible` records it if they go on regardless.
+    """
+    if problem is None:
+        return result
+    if not ctx.operator.guided:
+        for relative in ctx.store.step_files(step.id):
+            ctx.store.reject_raw(step.id, Path(relative).stem)
+        from bench.errors import RunError
+
+        raise RunError(f"implausible {what}: {problem}")
+    return f"IMPLAUSIBLE: {problem} Repeat (r) once it is fixed. [{result}]"
+
+
+def keep_implausible(ctx: RunContext, what: str, problem: str | None) -> None:
+    """A guided operator went on past a failed check: the run's results say so."""
+    if problem is not None:
+        from bench.verdicts import PLAUSIBILITY_PREFIX
+
+        ctx.note(f"{PLAUSIBILITY_PREFIX}{what}, kept by the operator: {problem}")

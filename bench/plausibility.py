@@ -1,0 +1,119 @@
+"""Plausibility checks on what the bench just captured: is this what was asked for?
+
+Pure functions on arrays (no I/O); each returns ``None`` when the capture is plausible,
+else a short text saying what is wrong, for the operator. The runner asks a guided
+operator to repeat, and stops an unattended run, on a standard or a mount short that
+fails; a part reading at the floor is noted (its verdict becomes CHECK) and the run goes
+on, so one empty position does not stop a lot.
+
+The bounds are deliberately loose (a plausibility check catches a wrong or missing
+connection, not a marginal one); all are common practice, no source.
+
+- through: the median raw |S21| over the lowest quarter of the sweep lies within
+  :data:`THROUGH_DB` of 20·log10(Z0/(Z0 + Rs)), the through seen through the port
+  series resistors (docs/references.md §1: a matched through reads 0 dB);
+- short, open, load: the median raw |reflection| over the lowest tenth of the sweep at
+  both ports lies within :data:`REFLECTION_DISTANCE` of the kit's |Γ| seen through the
+  resistors, Γ = (Rs + Zk − Z0)/(Rs + Zk + Z0) with Zk = 0, ∞ or the load resistance
+  (magnitude only: the raw phase turns with the cables' delay; a load in place of a
+  short or open, or nothing in place of a load, is caught);
+- mount short: its median |Z| over the lowest fifth of the sweep is below
+  :data:`MOUNT_SHORT_MAX_OHM` (a fitted strap reads milliohms; an empty mount kiloohms);
+- a part: at least :data:`FLOOR_SHARE` of its points lie outside the measurable window.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+
+THROUGH_DB = 6.0
+REFLECTION_DISTANCE = 0.4
+MOUNT_SHORT_MAX_OHM = 0.5
+FLOOR_SHARE = 0.9
+
+
+def _low(f: Any, values: Any, share: float) -> np.ndarray:
+    f = np.asarray(f, dtype=float)
+    values = np.asarray(values)
+    count = max(3, math.ceil(share * f.size))
+    order = np.argsort(f)[:count]
+    return values[order]
+
+
+def check_through(f: Any, s: Any, *, z0: float = 50.0, series_r: float = 0.0) -> str | None:
+    """The through standard: |S21| (and |S12|) near 20·log10(Z0/(Z0 + Rs))."""
+    s = np.asarray(s, dtype=complex)
+    expected = 20 * math.log10(z0 / (z0 + series_r))
+    for name, trace in (("S21", s[:, 1, 0]), ("S12", s[:, 0, 1])):
+        level = 20 * math.log10(float(np.median(np.abs(_low(f, trace, 0.25)))) + 1e-300)
+        if abs(level - expected) > THROUGH_DB:
+            return (
+                f"the through reads |{name}| {level:.1f} dB at low frequency where about "
+                f"{expected:.1f} dB is expected: are the two cable ends joined by the "
+                "through adapter, and the cables on the analyser's ports?"
+            )
+    return None
+
+
+def kit_reflection(
+    standard: str, *, z0: float = 50.0, series_r: float = 0.0, load_ohm: float = 50.0
+) -> complex:
+    """The reflection a short, open or load shows through the port series resistor."""
+    if standard == "open":
+        return 1.0 + 0j
+    z = series_r + (0.0 if standard == "short" else load_ohm)
+    return complex((z - z0) / (z + z0))
+
+
+def check_reflection(
+    standard: str,
+    f: Any,
+    s: Any,
+    *,
+    z0: float = 50.0,
+    series_r: float = 0.0,
+    load_ohm: float = 50.0,
+) -> str | None:
+    """A short, open or load: raw |S11| and |S22| near the kit's |Γ| at low frequency."""
+    s = np.asarray(s, dtype=complex)
+    expected = kit_reflection(standard, z0=z0, series_r=series_r, load_ohm=load_ohm)
+    for port, trace in ((1, s[:, 0, 0]), (2, s[:, 1, 1])):
+        level = float(np.median(np.abs(_low(f, trace, 0.1))))
+        if abs(level - abs(expected)) > REFLECTION_DISTANCE:
+            return (
+                f"port {port} does not look like a {standard}: |reflection| {level:.2f} "
+                f"where about {abs(expected):.2f} is expected; is the {standard} on that "
+                "cable end?"
+            )
+    return None
+
+
+def check_mount_short(f: Any, z_short: Any, position: int) -> str | None:
+    """The mount short: |Z| at low frequency below :data:`MOUNT_SHORT_MAX_OHM`."""
+    z = np.asarray(z_short, dtype=complex)
+    level = float(np.median(np.abs(_low(f, z, 0.2))))
+    if not math.isfinite(level) or level > MOUNT_SHORT_MAX_OHM:
+        return (
+            f"the mount short at position {position} reads {level:.3g} Ω at low frequency, "
+            f"more than {MOUNT_SHORT_MAX_OHM:g} Ω: is the shorting strap fitted and pressed "
+            "down in that position?"
+        )
+    return None
+
+
+def check_part(inside_window: Any, label: str) -> str | None:
+    """A part reading at the set-up's floor or ceiling (most points outside the window)."""
+    inside = np.asarray(inside_window, dtype=bool)
+    if inside.size == 0:
+        return None
+    share = 1.0 - float(inside.mean())
+    if share >= FLOOR_SHARE:
+        return (
+            f"{label} reads at the limits of the set-up ({100 * share:.0f} % of its points "
+            "outside the measurable window): is the part seated, and the right part for "
+            "this set-up?"
+        )
+    return None
