@@ -1,0 +1,135 @@
+"""The work a plan implies: fixture batches, the ordered resumable steps, the plan as
+stored in the run manifest, and the rough duration of the whole."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict
+from typing import Any
+
+from bench.procedure.plan_types import (
+    SHUNT,
+    SINGLE_MOUNT_METHODS,
+    SWEEP_STEPS,
+    PartPlan,
+    Placement,
+    Plan,
+    Step,
+    bias_tag,
+)
+
+
+def batches(
+    parts: tuple[PartPlan, ...], positions: tuple[int, ...]
+) -> tuple[tuple[Placement, ...], ...]:
+    batches: list[tuple[Placement, ...]] = []
+    current: list[Placement] = []
+    for part in parts:
+        if SHUNT not in part.methods:
+            continue
+        for sample in part.samples:
+            if len(current) == len(positions):
+                batches.append(tuple(current))
+                current = []
+            current.append(Placement(part.name, sample, positions[len(current)], len(batches)))
+    if current:
+        batches.append(tuple(current))
+    return tuple(batches)
+
+
+def steps(plan: Plan) -> tuple[Step, ...]:
+    steps: list[Step] = []
+    names = plan.step_names
+    if "calibrate" in names:
+        for std in plan.calibration.standards:
+            steps.append(Step(id=f"calibrate/{std}", kind="calibrate", standard=std))
+    used = sorted({p.position for batch in plan.batches for p in batch})
+    for kind in ("mount_open", "mount_short"):
+        if kind in names:
+            for pos in used:
+                steps.append(Step(id=f"{kind}/p{pos}", kind=kind, position=pos))
+    if "measure" in names:
+        for batch in plan.batches:
+            for placement in batch:
+                part = plan.part(placement.part)
+                for volts in part.bias:
+                    steps.append(
+                        Step(
+                            id=f"measure/{placement.part}/{placement.sample}/{bias_tag(volts)}",
+                            kind="measure",
+                            position=placement.position,
+                            placement=placement,
+                            bias_v=volts,
+                        )
+                    )
+    # Each single mount in turn: its own captures (the empty gap or open, then the strap),
+    # then every sample measured on it, one at a time.
+    for method in SINGLE_MOUNT_METHODS:
+        parts = [p for p in plan.parts if method in p.methods]
+        if not parts:
+            continue
+        for kind in ("mount_open", "mount_short"):
+            if "mount_short" in names or "mount_open" in names:
+                steps.append(Step(id=f"{kind}/{method}", kind=kind, method=method))
+        if "measure" in names:
+            for part in parts:
+                for sample in part.samples:
+                    steps.append(
+                        Step(
+                            id=f"measure/{part.name}/{sample}/{method}",
+                            kind="measure",
+                            placement=Placement(part.name, sample, 0, -1),
+                            method=method,
+                        )
+                    )
+    for name in ("fit", "export", "report"):
+        if name in names:
+            steps.append(Step(id=name, kind=name))
+    return tuple(steps)
+
+
+def resolved(plan: Plan) -> dict[str, Any]:
+    """The plan in plain SI numbers, as stored in the run manifest."""
+    return {
+        "name": plan.name,
+        "source": plan.source,
+        "description": plan.description,
+        "mode": plan.mode,
+        "instruments": {k: asdict(v) for k, v in plan.instruments.items()},
+        "sweep": asdict(plan.sweep),
+        "fixture": asdict(plan.fixture),
+        "calibration": asdict(plan.calibration),
+        "analysis": asdict(plan.analysis),
+        "bias": asdict(plan.bias),
+        "parts": [
+            {
+                **asdict(p.spec),
+                "samples": list(p.samples),
+                "bias": list(p.bias),
+                "methods": list(p.methods),
+            }
+            for p in plan.parts
+        ],
+        "steps": list(plan.step_names),
+    }
+
+
+def estimated_seconds(plan: Plan) -> float:
+    """Rough duration of the whole plan (s), for ``zbench check`` and progress bars."""
+    sweep = plan.sweep.sweep_seconds() * plan.sweep.averages
+    total = 0.0
+    handling = 20.0 if plan.mode == "guided" else 0.0  # a person's hands per action
+    for step in plan.steps:
+        if step.kind in SWEEP_STEPS:
+            total += sweep + 0.2
+            if step.kind == "calibrate" or plan.mode == "guided":
+                total += handling
+            if step.bias_v:
+                ramp = math.ceil(abs(step.bias_v) / plan.bias.ramp_step) * plan.bias.ramp_dwell_s
+                total += 2 * ramp + plan.bias.settle_s + plan.bias.discharge_s
+        elif step.kind == "fit":
+            total += 0.3 * sum(len(p.samples) * len(p.bias) for p in plan.parts)
+        else:
+            total += 1.0
+    total += handling * len(plan.batches)
+    return total
