@@ -63,6 +63,13 @@ class RunError(ZbenchError):
     exit_code = 1
 
 
+class RunFolderError(RunError):
+    """A run that stopped because its folder could not be written: a full disk, a
+    read-only or not writable folder (exit 2: the fix is the user's, then resume)."""
+
+    exit_code = 2
+
+
 class BiasNotConfirmedOffError(RunError):
     """The DC source's output could not be confirmed off after a biased run (exit 4).
 

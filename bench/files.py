@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import os
 import tempfile
 from pathlib import Path
@@ -18,8 +19,12 @@ def _default_mode() -> int:
 def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> Path:
     """Write ``data`` to ``path`` through a temporary file in the same folder and a rename."""
     target = Path(path)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
+    try:
+        target.parent.mkdir(parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
+    except OSError as exc:
+        _name_target(exc, target)
+        raise
     try:
         # mkstemp makes the file owner-only; run files are meant to be shared like any other.
         os.fchmod(fd, _default_mode())
@@ -28,10 +33,20 @@ def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> Path:
             handle.flush()
             os.fsync(handle.fileno())
         os.replace(tmp, target)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
+    except BaseException as exc:
+        with contextlib.suppress(OSError):  # keep the first error, not the clean-up's
+            Path(tmp).unlink(missing_ok=True)
+        if isinstance(exc, OSError):
+            _name_target(exc, target)
         raise
     return target
+
+
+def _name_target(exc: OSError, target: Path) -> None:
+    """Name the file being written in ``exc`` (a failed write names none, a failed
+    temporary file names itself): the message then says which file could not be saved."""
+    if exc.filename is None or Path(str(exc.filename)).name.startswith(f".{target.name}."):
+        exc.filename = str(target)
 
 
 def atomic_write_text(path: str | os.PathLike[str], text: str, encoding: str = "utf-8") -> Path:

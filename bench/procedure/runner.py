@@ -17,11 +17,13 @@ from __future__ import annotations
 
 import contextlib
 import datetime as _dt
+import errno
 import time
 from collections.abc import Callable
+from pathlib import Path
 from typing import Any
 
-from bench.errors import BiasNotConfirmedOffError, RunError, SafetyError
+from bench.errors import BiasNotConfirmedOffError, RunError, RunFolderError, SafetyError
 from bench.procedure.display import PlainDisplay
 from bench.procedure.operators import Operator, OperatorStop
 from bench.procedure.plan import SWEEP_STEPS, Plan, Step
@@ -37,6 +39,16 @@ from bench.results import RunSummary
 from bench.runstore import DONE, FAILED, RUNNING, SKIPPED, STOPPED, RunStore
 
 __all__ = ["CAUTION", "GROUND_LOOP_ADVICE", "Runner", "calibration_mismatch"]
+
+#: What to do when the run folder cannot be written, by the error's number.
+FOLDER_FIXES = {
+    errno.ENOSPC: "free space on the disk that holds the run folder",
+    errno.EDQUOT: "free space within your disk quota (or have it raised)",
+    errno.EROFS: "the file system is read-only: remount it writable, or copy the run "
+    "folder to a writable disk and resume the copy",
+    errno.EACCES: "make the run folder and its files writable for this user",
+    errno.EPERM: "make the run folder and its files writable for this user",
+}
 
 
 def _driver_errors() -> tuple[type[BaseException], ...]:
@@ -97,11 +109,11 @@ class Runner:
     def run(self) -> RunSummary | None:
         """Execute every step not yet done; returns the summary when a fit step ran."""
         store, plan, ctx = self.store, self.plan, self.ctx
-        store.begin_session("resume" if store.manifest["sessions"] else "start")
-        store.log(f"session start, plan {plan.name}, first step {store.first_incomplete()}")
         pending = [s for s in plan.steps if store.step_state(s.id) not in (DONE, SKIPPED)]
         current: Step | None = None
         try:
+            store.begin_session("resume" if store.manifest["sessions"] else "start")
+            store.log(f"session start, plan {plan.name}, first step {store.first_incomplete()}")
             if plan.biased and any(s.bias_v for s in pending):
                 bias.caution(ctx)
             self._prepare_instruments()
@@ -137,6 +149,14 @@ class Runner:
         except SafetyError as exc:
             self._stopped(current, f"safety: {exc}")
             raise RunError(self._resume_text(f"safety: {exc}")) from None
+        except OSError as exc:
+            fix = self._folder_fix(exc)
+            if fix is None:  # not the run folder's fault: an internal error (below)
+                self._stopped(current, f"internal error: {exc!r}")
+                raise
+            reason = f"cannot write {exc.filename or self.store.root}: {exc.strerror or exc}"
+            self._stopped(current, f"run folder: {reason}", STOPPED)
+            raise RunFolderError(self._resume_text(f"{reason}\n  fix: {fix}")) from None
         except Exception as exc:
             # A fault of zbench itself: record it so the run stays resumable, then let
             # the command line report it as an internal error.
@@ -155,12 +175,31 @@ class Runner:
             f"  continue it with: zbench run --resume {self.store.root}"
         )
 
+    def _folder_fix(self, exc: OSError) -> str | None:
+        """The fix when ``exc`` is the run folder refusing a write (full, read-only, not
+        writable), else None. A full disk is the folder's whatever file it names; a
+        refused permission only when the file is inside the run folder."""
+        fix = FOLDER_FIXES.get(exc.errno or 0)
+        if fix is None or exc.errno in (errno.ENOSPC, errno.EDQUOT):
+            return fix
+        if exc.filename is None:
+            return None
+        root = self.store.root.resolve()
+        path = Path(str(exc.filename)).resolve()
+        return fix if path == root or root in path.parents else None
+
     def _stopped(self, step: Step | None, message: str, state: str = FAILED) -> None:
-        """Record where the run ended: the step ``failed``, or ``stopped`` by a person."""
+        """Record where the run ended: the step ``failed``, or ``stopped`` by a person.
+
+        Each record is tried on its own: on a full disk or a read-only folder any of them
+        may fail, and the manifest already on disk stays as it was (written atomically).
+        """
         with contextlib.suppress(Exception):
             if step is not None and self.store.step_state(step.id) == RUNNING:
                 self.store.mark(step.id, state, message=message)
+        with contextlib.suppress(Exception):
             self.store.set_state("stopped", message)
+        with contextlib.suppress(Exception):
             self.store.log(f"stopped at {step.id if step else '-'}: {message}")
 
     def _prepare_instruments(self) -> None:

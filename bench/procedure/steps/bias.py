@@ -3,6 +3,7 @@ output switched off whatever happened."""
 
 from __future__ import annotations
 
+import contextlib
 import sys
 from collections.abc import Callable
 from typing import Any
@@ -184,7 +185,7 @@ def bias_off(ctx: RunContext) -> str | None:
         dc_source(ctx, largest_limit(ctx)).output_off()
         return None
     except Exception as exc:  # the link may be gone: try a new one below
-        ctx.store.log(f"output off on the open link failed ({exc}); reconnecting")
+        _note(ctx, f"output off on the open link failed ({exc}); reconnecting")
     from drivers.transport import VisaTransport
 
     inst = ctx.plan.instruments["dc_source"]
@@ -193,14 +194,22 @@ def bias_off(ctx: RunContext) -> str | None:
             # The set-point too: left at the bias voltage, it would come back the
             # moment someone switched the output on again.
             dc_source(ctx, largest_limit(ctx), transport=link).zero_and_off()
-        ctx.store.log("DC output switched off and set to 0 V on a new connection")
+        _note(ctx, "DC output switched off and set to 0 V on a new connection")
         return None
     except Exception as exc:
         message = (
             f"could not confirm the DC source output is off ({exc}); switch it off by hand "
             "and let the part discharge before touching it"
         )
-        ctx.store.log(message)
-        ctx.store.update("dc_output_unconfirmed", message)
+        _note(ctx, message)
+        with contextlib.suppress(OSError):
+            ctx.store.update("dc_output_unconfirmed", message)
         print(f"zbench: WARNING: {message}", file=sys.stderr, flush=True)
         return message
+
+
+def _note(ctx: RunContext, message: str) -> None:
+    """Log ``message``; a run folder that cannot be written (full, read-only) must not
+    keep the output from being switched off, nor hide why the run stopped."""
+    with contextlib.suppress(OSError):
+        ctx.store.log(message)
