@@ -421,8 +421,42 @@ def _rms_text(fit: Any) -> str:
 _REPEATED_LABELS = frozenset({"measured Re Z", "model − measured", "outside window"})
 
 
-def sample_figure(data: Any, fit: Any = None, *, title: str = "") -> Figure:
+#: Colours of the set-ups a stitched curve came from: apart from the measured curve, the
+#: model, the window's shading and the ±1σ band.
+SETUP_COLOURS = ("tab:green", "tab:purple", "tab:orange", "tab:olive")
+
+
+def _draw_setups(ax: Axes, setups: Sequence[tuple[str, Any]]) -> None:
+    """Each set-up of a stitched curve on the |Z| panel: its points inside its own window
+    (a thin line in its colour) and that window's floor and ceiling (dotted)."""
+    for i, (label, data) in enumerate(setups):
+        colour = SETUP_COLOURS[i % len(SETUP_COLOURS)]
+        f = np.asarray(data.f, dtype=float)
+        z = np.abs(np.asarray(data.z, dtype=complex))
+        inside = np.asarray(data.inside_window, dtype=bool)
+        window = data.window
+        span = f"{format_si(window.z_min, 'Ω', 3)} to {format_si(window.z_max, 'Ω', 3)}"
+        ax.plot(
+            f,
+            np.where(inside & (z > 0), z, np.nan),
+            color=colour,
+            linewidth=1.0,
+            alpha=0.85,
+            label=f"{label}, window {span}",
+        )
+        for edge in (window.z_min, window.z_max):
+            if math.isfinite(edge) and edge > 0:
+                ax.axhline(edge, color=colour, linestyle=":", linewidth=0.9)
+
+
+def sample_figure(
+    data: Any, fit: Any = None, *, title: str = "", setups: Sequence[tuple[str, Any]] = ()
+) -> Figure:
     """One figure per measured sample: |Z|, ESR and, with a fit, the fit residuals.
+
+    ``setups`` (``(method, ImpedanceData)`` pairs) are the set-ups a stitched ``data``
+    came from: each is drawn on the |Z| panel inside its own window, with that window's
+    limits dotted in its colour.
 
     Four panels on one frequency axis (Hz, log): |Z| with the measurable window shaded
     (Ω, ``data.window.z_min`` … ``z_max``), ESR = Re Z (Ω), the model's magnitude error
@@ -440,6 +474,8 @@ def sample_figure(data: Any, fit: Any = None, *, title: str = "") -> Figure:
         ax_mag, ax_esr = axes[:2]
     with matplotlib.rc_context(STYLE):
         _draw_impedance(ax_mag, ax_esr, data, fit, legends=False)
+        if len(setups) > 1:
+            _draw_setups(ax_mag, setups)
         if fit is not None:
             _draw_residuals(axes[2], axes[3], data, fit, legends=False)
             axes[2].set_title(

@@ -235,6 +235,16 @@ def _table(
     return f"{opening}<thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
 
 
+def _setup_text(label: str, data: Any) -> str:
+    """``series-through: window 13.2 Ω to 993 kΩ, 39 of 81 points inside``."""
+    inside = int(np.count_nonzero(np.asarray(data.inside_window, dtype=bool)))
+    w = data.window
+    return (
+        f"{label}: window {format_si(w.z_min, 'Ω', 3)} to {format_si(w.z_max, 'Ω', 3)}, "
+        f"{inside} of {np.size(data.f)} points inside"
+    )
+
+
 def _si(value: float | None, unit: str, digits: int = 4) -> str:
     if value is None or not math.isfinite(value):
         return "—"
@@ -577,6 +587,11 @@ def _sample_section(
     drive = verdicts.sample_drive(summary, sample)
     facts = {
         "position": sample.position,
+        **(
+            {"set-ups": "; ".join(_setup_text(label, d) for label, d in sample.setups)}
+            if sample.setups
+            else {}
+        ),
         "raw file": sample.raw_file or "(not recorded)",
         "model": sample.fit.model if sample.fit is not None else "no fit",
         "drive across the part": "not recorded"
@@ -620,9 +635,15 @@ def _sample_section(
         )
     if _fit_range_is_narrower(sample):
         caption += "; hatched: ends of the sweep the fit left out"
+    if len(sample.setups) > 1:
+        caption += (
+            "; black: the set-ups stitched into one curve, each weighted by its own "
+            "uncertainty; coloured: each set-up inside its own window, whose limits are "
+            "dotted in the same colour"
+        )
     parts.append(
         figs.embed(
-            plots.sample_figure(sample.data, sample.fit, title=heading),
+            plots.sample_figure(sample.data, sample.fit, title=heading, setups=sample.setups),
             f"{sample.label}_impedance",
             caption + ".",
         )

@@ -50,6 +50,10 @@ class SampleResult:
     corrected_s: Any = None  # (nfreq, 2, 2) calibrated S-parameters, when kept
     fit_error: str | None = None
     warnings: tuple[str, ...] = ()
+    #: Each set-up the sample was measured with, ``(method, data)`` with the data's own
+    #: window, when it was measured on a single mount or several ways (then ``data`` is
+    #: the stitched curve); empty for a sample measured shunt-through alone.
+    setups: tuple[tuple[str, ImpedanceData], ...] = ()
 
     @property
     def label(self) -> str:

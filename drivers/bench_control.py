@@ -48,6 +48,32 @@ class BenchControl(ScpiInstrument):
         """Connect the cables to the fixture (the switch selects the position)."""
         self.write_checked("OPERator:CABLes FIXTure")
 
+    def connect_mount(self, method: str) -> None:
+        """Move the cables to the ``series-through`` or the ``reflection`` mount."""
+        self.write_checked(f"OPERator:CABLes {_MOUNT_WORDS[_mount_key(method)]}")
+
+    def mount(self, method: str, item: str) -> None:
+        """Fit ``item`` in the ``series-through`` or ``reflection`` mount: ``"empty"`` (the
+        empty gap or open), ``"strap"`` (the zero-ohm strap) or ``"<part>/<sample>"``."""
+        key = item.strip().lower()
+        if key == "empty":
+            argument = "GAP"
+        elif key == "strap":
+            argument = "STRAp"
+        else:
+            if '"' in item or item.count("/") != 1 or item.startswith("/") or item.endswith("/"):
+                raise PlanError(
+                    f"item {item!r} must be 'empty', 'strap' or '<part>/<sample>' "
+                    "(one slash, no quotes)"
+                )
+            argument = f'"{item}"'
+        self.write_checked(f"OPERator:MOUNt {_MOUNT_WORDS[_mount_key(method)]},{argument}")
+
+    def mounted(self, method: str) -> str:
+        """What the ``series-through`` or ``reflection`` mount holds (quotes removed)."""
+        word = _MOUNT_WORDS[_mount_key(method)]
+        return self.transport.query(f"OPERator:MOUNt? {word}").strip().strip('"')
+
     def cables(self) -> str:
         """What the cables are connected to, as the bench reports it."""
         return self.transport.query("OPERator:CABLes?").strip()
@@ -148,6 +174,16 @@ class BenchControl(ScpiInstrument):
     def faults(self) -> str:
         """A one-line description of the active faults."""
         return self.transport.query("FAULt:LIST?").strip().strip('"')
+
+
+_MOUNT_WORDS = {"series-through": "SERies", "reflection": "REFLection"}
+
+
+def _mount_key(method: str) -> str:
+    key = method.strip().lower()
+    if key not in _MOUNT_WORDS:
+        raise PlanError(f"mount must be 'series-through' or 'reflection', got {method!r}")
+    return key
 
 
 def _fault_target(instrument: str) -> str:

@@ -65,6 +65,7 @@ def describe_plan(plan: Plan) -> str:
     )
     if cal.reuse_run:
         text += f"; reuse {cal.reuse_run} if younger than {_duration(cal.max_age_s)}"
+    text += "; standards " + ", ".join(cal.standards)
     lines.append(f"  calibrate  {text}")
     lines.append("  parts")
     nominals = [_nominal_text(part.spec) for part in plan.parts]
@@ -74,6 +75,12 @@ def describe_plan(plan: Plan) -> str:
         lines.append(
             f"    {spec.name:<14} {spec.kind:<8} {nominal:<{width}} model {spec.model:<10} "
             f"samples {', '.join(part.samples)}"
+        )
+        methods = " + ".join(part.methods)
+        lines.append(
+            " " * 19
+            + f"method {methods}"
+            + (" (stitched into one curve)" if len(part.methods) > 1 else "")
         )
         if part.bias != (0.0,):
             bias = ", ".join(f"{v:g}" for v in part.bias) + " V"
@@ -115,6 +122,21 @@ def describe_plan(plan: Plan) -> str:
         lines.extend(
             textwrap.wrap(where, width=88, initial_indent=f"    {i}  ", subsequent_indent=" " * 7)
         )
+    for method in ("series-through", "reflection"):
+        on = [
+            f"{s.placement.part}/{s.placement.sample}"
+            for s in plan.steps
+            if s.kind == "measure" and s.method == method and s.placement is not None
+        ]
+        if on:
+            lines.extend(
+                textwrap.wrap(
+                    ", ".join(on),
+                    width=88,
+                    initial_indent=f"  {method + ' mount':<22} ",
+                    subsequent_indent=" " * 25,
+                )
+            )
     counts: dict[str, int] = {}
     for step in plan.steps:
         counts[step.kind] = counts.get(step.kind, 0) + 1

@@ -57,7 +57,9 @@ def command(
         click.echo(f"{STATUS[check.status]}  {check.key}: {check.detail}")
     failed = report.failed
     if draft is not None:
-        raw = yaml.safe_load(Path(cmap.path).read_text(encoding="utf-8"))
+        from drivers.safe_yaml import load_text, read_text
+
+        raw = load_text(read_text(cmap.path))  # already validated by load_command_map
         header = [
             f"# Draft command map written by zbench probe from {resource}.",
             f"# Identity: {report.identity or '(none)'}",

@@ -613,3 +613,38 @@ def check_calibration_settings(
             hint="calibrate again with the plan's settings, or change the plan to the "
             "calibration's settings",
         )
+
+
+def one_port(
+    f: ArrayLike,
+    raw_s11: ArrayLike,
+    standards: RawStandards,
+    *,
+    ideals: Mapping[str, ArrayLike] | None = None,
+    z0: float = 50.0,
+) -> ComplexArray:
+    """Three-term (directivity, source match, reflection tracking) correction of a raw
+    port-1 reflection ``raw_s11`` (nf,) from the short, open and load measured on port 1,
+    with :class:`skrf.calibration.OnePort`. ``ideals`` as for :func:`solt` (the port-1
+    term of each two-port ideal is used). Returns the corrected Γ (nf,)."""
+    from skrf.calibration import OnePort
+
+    ff = np.asarray(f, dtype=float)
+    names = ("short", "open", "load")
+    missing = [n for n in names if getattr(standards, n) is None]
+    if missing:
+        raise ValueError(f"a one-port calibration needs the raw {', '.join(missing)} standard(s)")
+    if ff.shape != standards.f.shape or not np.allclose(ff, standards.f, rtol=1e-12, atol=0):
+        raise ValueError(
+            "the measurement and the standards are on different frequency grids; "
+            "calibrate with the same sweep settings as the measurement"
+        )
+    model = ideal_standards(ff)
+    for name, value in (ideals or {}).items():
+        if name in model:
+            model[name] = _as_two_port(f"ideal {name}", value, ff.size)
+    measured = [_network(ff, getattr(standards, n)[:, :1, :1], z0) for n in names]
+    ideal = [_network(ff, model[n][:, :1, :1], z0) for n in names]
+    cal = OnePort(measured=measured, ideals=ideal)
+    dut = np.asarray(raw_s11, dtype=complex).reshape(-1, 1, 1)
+    return cal.apply_cal(_network(ff, dut, z0)).s[:, 0, 0]

@@ -937,6 +937,15 @@ def _model_landmarks(kind: str, f: NDArray[np.float64], trial: _Trial) -> Landma
     return out
 
 
+# A landmark of the model within this fraction of the same landmark read from the
+# measured points is given as the model's: it agrees with the data and uses the whole
+# band, so it is steadier than a reading from a few noisy points (a low-Q resonance, say).
+# A model further off misses the data there, and the data's value is given: a landmark
+# never follows a poor model choice (common practice, no source).
+MODEL_AGREEMENT = 0.05
+# Landmarks read from the measured points over a whole low decade, with noise well
+# averaged: the measured value is always given where there is one.
+DATA_FIRST = ("c_low", "l_low")
 # Landmarks read at the bottom or the top of the sweep (``bench.core.landmarks``): when
 # the screening cut that edge off, the measured points no longer hold them.
 BOTTOM_LANDMARKS = ("c_low", "l_low", "r_dc")
@@ -946,15 +955,24 @@ TOP_LANDMARKS = ("esl",)
 def _merge_landmarks(
     data: Landmarks, model: Landmarks, cut: tuple[bool, bool] = (False, False)
 ) -> tuple[Landmarks, dict[str, str | None]]:
-    """Each landmark from the measured points where they give it, else from the model;
-    with its source (``"data"``, ``"model"``, or None where neither gives one). ``cut``
-    says whether the bottom and the top of the band were left out as band edges."""
+    """Each landmark with its source (``"data"``, ``"model"``, or None where neither gives
+    one): the model's where the measured points give none, or where it agrees with theirs
+    within :data:`MODEL_AGREEMENT`; else the measured points'. ``cut`` says whether the
+    bottom and the top of the band were left out as band edges (the points then no longer
+    hold the landmarks read there)."""
     order = list(model) + [k for k in data if k not in model]
     lost = (BOTTOM_LANDMARKS if cut[0] else ()) + (TOP_LANDMARKS if cut[1] else ())
     marks: Landmarks = {}
     sources: dict[str, str | None] = {}
     for key in order:
-        if data.get(key) is not None and not (key in lost and model.get(key) is not None):
+        d, m = data.get(key), model.get(key)
+        agrees = (
+            key not in DATA_FIRST
+            and m is not None
+            and d is not None
+            and abs(m / d - 1) <= MODEL_AGREEMENT
+        )
+        if d is not None and not (key in lost and m is not None) and not agrees:
             marks[key], sources[key] = data[key], "data"
         elif model.get(key) is not None:
             marks[key], sources[key] = model[key], "model"

@@ -37,6 +37,13 @@ def _positions(positions: Sequence[int], *, mount: bool = False) -> str:
     return f"strap{'s' if many else ''} in {mount_word}position{'s' if many else ''} {where}"
 
 
+#: What each single mount is, in the operator's words.
+MOUNT_WORDS = {
+    "series-through": "the SERIES-THROUGH mount",
+    "reflection": "the REFLECTION mount",
+}
+
+
 class OperatorStop(Exception):  # noqa: N818 (a request, not a failure)
     """The operator chose to stop; the run stays resumable."""
 
@@ -76,6 +83,16 @@ class Operator(ABC):
     @abstractmethod
     def load_parts(self, placements: Sequence[Placement]) -> None:
         """Place each sample in its position (removing any strap there)."""
+
+    def connect_mount(self, method: str) -> None:
+        """Move the cables to the ``series-through`` mount (both cables) or the
+        ``reflection`` mount (port 1; port 2 left open)."""
+        raise NotImplementedError(f"{type(self).__name__} cannot connect {MOUNT_WORDS[method]}")
+
+    def fill_mount(self, method: str, item: str | Placement) -> None:
+        """Leave that mount empty (``"empty"``: the gap, or the open), fit its zero-ohm
+        strap (``"strap"``), or fit a sample (a :class:`Placement`)."""
+        raise NotImplementedError(f"{type(self).__name__} cannot fill {MOUNT_WORDS[method]}")
 
     @abstractmethod
     def caution(self, text: str) -> None:
@@ -158,6 +175,19 @@ class ScriptedOperator(Operator):
         for p in placements:
             self.bench.place(p.position, f"{p.part}/{p.sample}")
         self._did("placed " + ", ".join(f"{p.part}/{p.sample}@{p.position}" for p in placements))
+
+    def connect_mount(self, method: str) -> None:
+        self.bench.connect_mount(method)
+        self._did(f"cables: on {MOUNT_WORDS[method]}")
+
+    def fill_mount(self, method: str, item: str | Placement) -> None:
+        if isinstance(item, Placement):
+            self.bench.mount(method, f"{item.part}/{item.sample}")
+            self._did(f"placed {item.part}/{item.sample} in {MOUNT_WORDS[method]}")
+        else:
+            self.bench.mount(method, item)
+            what = "zero-ohm strap fitted in" if item == "strap" else "emptied"
+            self._did(f"{what} {MOUNT_WORDS[method]}")
 
     def caution(self, text: str) -> None:
         if self._acknowledge is not None:
@@ -248,6 +278,36 @@ class ConsoleOperator(Operator):
     def load_parts(self, placements: Sequence[Placement]) -> None:
         lines = [f"  position {p.position}: {p.part} sample {p.sample}" for p in placements]
         self._action("Remove the straps and place:\n" + "\n".join(lines))
+
+    def connect_mount(self, method: str) -> None:
+        if method == "reflection":
+            self._action(
+                "Connect the port-1 cable to the REFLECTION mount; leave the port-2 cable "
+                "unconnected."
+            )
+        else:
+            self._action(
+                "Connect both cables to the SERIES-THROUGH mount (the part sits in series "
+                "between them)."
+            )
+
+    def fill_mount(self, method: str, item: str | Placement) -> None:
+        where = MOUNT_WORDS[method]
+        if isinstance(item, Placement):
+            self._action(f"Fit {item.part} sample {item.sample} in {where}.")
+        elif item == "strap":
+            across = "across the gap of" if method == "series-through" else "in"
+            self._action(f"Fit the zero-ohm strap {across} {where} (no part).")
+        elif method == "series-through":
+            self._action(
+                f"Leave the gap of {where} EMPTY: no strap, no part (the capture measures "
+                "the gap's capacitance)."
+            )
+        else:
+            self._action(
+                f"Leave {where} OPEN: no strap, no part (the capture measures the pad's "
+                "capacitance)."
+            )
 
     def caution(self, text: str) -> None:
         self._say(text)

@@ -22,6 +22,17 @@ from bench.units import QuantityError, format_si, parse_quantity
 
 NOMINAL_UNIT = {"mlcc": "F", "bulk": "F", "inductor": "H", "bead": "ohm"}
 DEFAULT_MODEL = {"mlcc": "auto", "bulk": "auto", "inductor": "auto", "bead": "auto"}
+#: How each kind is measured unless the part says otherwise: low impedances shunt across
+#: the line, high ones in series with it.
+DEFAULT_METHOD = {
+    "mlcc": "shunt-through",
+    "bulk": "shunt-through",
+    "inductor": "series-through",
+    "bead": "series-through",
+}
+SHUNT = "shunt-through"
+#: Methods measured on a single hand-loaded mount (one sample at a time, no switch).
+SINGLE_MOUNT_METHODS = ("series-through", "reflection")
 
 #: Step kinds that take sweeps (the rest compute from stored ones).
 SWEEP_STEPS = ("calibrate", "mount_open", "mount_short", "measure")
@@ -83,13 +94,21 @@ class Calibration:
     reuse_run: str | None = None
     max_age_s: float = 8 * 3600.0
     kit: CalibrationKit = field(default_factory=CalibrationKit)
+    #: Whether a two-port method (shunt- or series-through) is used: it needs the through.
+    two_port: bool = True
+    #: Whether reflection is used: it needs short, open and load on port 1.
+    one_port: bool = False
 
     @property
     def standards(self) -> tuple[str, ...]:
-        """Standards to sweep: the through always, short/open/load for SOLT."""
-        if self.method == "through":
-            return ("through",)
-        return ("short", "open", "load", "through")
+        """Standards to sweep: the through for the two-port methods (with short, open and
+        load for SOLT and hybrid), short, open and load for reflection."""
+        two = ("through",) if self.method == "through" else ("short", "open", "load", "through")
+        if not self.two_port:
+            return ("short", "open", "load")
+        if self.one_port and "short" not in two:
+            return ("short", "open", "load", *two)
+        return two
 
 
 @dataclass(frozen=True)
@@ -114,6 +133,8 @@ class PartPlan:
     spec: PartSpec
     samples: tuple[str, ...]
     bias: tuple[float, ...] = (0.0,)
+    #: How the part is measured, in the procedure's order (several are stitched).
+    methods: tuple[str, ...] = (SHUNT,)
 
     @property
     def name(self) -> str:
@@ -122,7 +143,8 @@ class PartPlan:
 
 @dataclass(frozen=True)
 class Placement:
-    """A sample in a fixture position, in a batch of parts loaded together."""
+    """A sample in a fixture position, in a batch of parts loaded together (on a single
+    mount, series-through or reflection: position 0 and batch -1)."""
 
     part: str
     sample: str
@@ -134,8 +156,9 @@ class Placement:
 class Step:
     """One resumable unit of work.
 
-    ``kind`` is ``calibrate`` (one standard), ``mount_open`` or ``mount_short`` (one position),
-    ``measure`` (one sample at one bias point), ``fit``, ``export`` or ``report``.
+    ``kind`` is ``calibrate`` (one standard), ``mount_open`` or ``mount_short`` (one position,
+    or a single mount's empty gap/open and strap), ``measure`` (one sample at one bias point,
+    or on a single mount), ``fit``, ``export`` or ``report``. ``method`` says which mount.
     """
 
     id: str
@@ -144,6 +167,7 @@ class Step:
     position: int | None = None
     placement: Placement | None = None
     bias_v: float = 0.0
+    method: str = SHUNT
 
 
 @dataclass(frozen=True)
@@ -585,10 +609,25 @@ def build_plan(doc: SourceDocument) -> Plan:
                 continue
             tags[tag] = j
             bias_points.append(value)
-        part = PartPlan(spec=spec, samples=samples, bias=tuple(bias_points))
+        stated = p.get("method", DEFAULT_METHOD[kind])
+        methods = (stated,) if isinstance(stated, str) else tuple(stated)
+        if kind not in ("mlcc", "bulk"):
+            bias_points_checked: list[float] = []  # _check_bias refuses them already
+        else:
+            bias_points_checked = bias_points
+        _check_methods(doc, i, methods, bias_points_checked, series_r, errors, "method" in p)
+        part = PartPlan(spec=spec, samples=samples, bias=tuple(bias_points), methods=methods)
         parts.append(part)
 
     plan_parts = tuple(parts)
+    used = {m for part in plan_parts for m in part.methods}
+    calibration = Calibration(
+        **{
+            **calibration.__dict__,
+            "two_port": bool(used - {"reflection"}) or not used,
+            "one_port": "reflection" in used,
+        }
+    )
     steps_list = tuple(data.get("steps", DEFAULT_STEPS))
     _check_steps(doc, steps_list, errors)
     mode = data.get("mode", "guided")
@@ -721,12 +760,49 @@ def _check_bias(doc: SourceDocument, plan: Plan, errors: list[ProcedureError]) -
                 )
 
 
+def _check_methods(
+    doc: SourceDocument,
+    i: int,
+    methods: tuple[str, ...],
+    bias: list[float],
+    series_r: float,
+    errors: list[ProcedureError],
+    stated: bool = True,
+) -> None:
+    """A part's methods against its bias points and the port resistors."""
+    single = [m for m in methods if m in SINGLE_MOUNT_METHODS]
+    if not single:
+        return
+    named = single[0] if stated else f"{single[0]} (the default for this kind of part)"
+    where = ("parts", i, "method") if stated else ("parts", i, "kind")
+    if any(v != 0.0 for v in bias):
+        errors.append(
+            doc.error(
+                where,
+                f"DC bias reaches a part only on the shunt-through fixture, not by {named}",
+                hint="measure a biased part shunt-through, or remove its bias points",
+            )
+        )
+    if series_r > 0:
+        errors.append(
+            doc.error(
+                where,
+                f"{named} is measured without port series resistors, but "
+                f"fixture.series_resistor is {format_si(series_r, 'Ω')}",
+                hint="add 'method: shunt-through' to measure the part on the resistor "
+                "board, or use a separate procedure for the series-through mount",
+            )
+        )
+
+
 def _batches(
     parts: tuple[PartPlan, ...], positions: tuple[int, ...]
 ) -> tuple[tuple[Placement, ...], ...]:
     batches: list[tuple[Placement, ...]] = []
     current: list[Placement] = []
     for part in parts:
+        if SHUNT not in part.methods:
+            continue
         for sample in part.samples:
             if len(current) == len(positions):
                 batches.append(tuple(current))
@@ -767,6 +843,26 @@ def _steps(plan: Plan) -> tuple[Step, ...]:
                             bias_v=volts,
                         )
                     )
+    # Each single mount in turn: its own captures (the empty gap or open, then the strap),
+    # then every sample measured on it, one at a time.
+    for method in SINGLE_MOUNT_METHODS:
+        parts = [p for p in plan.parts if method in p.methods]
+        if not parts:
+            continue
+        for kind in ("mount_open", "mount_short"):
+            if "mount_short" in names or "mount_open" in names:
+                steps.append(Step(id=f"{kind}/{method}", kind=kind, method=method))
+        if "measure" in names:
+            for part in parts:
+                for sample in part.samples:
+                    steps.append(
+                        Step(
+                            id=f"measure/{part.name}/{sample}/{method}",
+                            kind="measure",
+                            placement=Placement(part.name, sample, 0, -1),
+                            method=method,
+                        )
+                    )
     for name in ("fit", "export", "report"):
         if name in names:
             steps.append(Step(id=name, kind=name))
@@ -787,7 +883,13 @@ def _resolved(plan: Plan) -> dict[str, Any]:
         "analysis": asdict(plan.analysis),
         "bias": asdict(plan.bias),
         "parts": [
-            {**asdict(p.spec), "samples": list(p.samples), "bias": list(p.bias)} for p in plan.parts
+            {
+                **asdict(p.spec),
+                "samples": list(p.samples),
+                "bias": list(p.bias),
+                "methods": list(p.methods),
+            }
+            for p in plan.parts
         ],
         "steps": list(plan.step_names),
     }

@@ -26,7 +26,7 @@ from bench.core.impedance import ImpedanceData, impedance_from_shunt_through
 from bench.core.window import floor_on_through_db
 from bench.errors import FitError, RunError
 from bench.parallel import ordered_map
-from bench.procedure.plan import Analysis, Plan, Step
+from bench.procedure.plan import SHUNT, SINGLE_MOUNT_METHODS, Analysis, Plan, Step
 from bench.results import RunSummary, SampleResult
 from bench.runstore import DONE, RunStore
 from bench.units import format_si
@@ -100,7 +100,7 @@ class Corrector:
     ):
         self.plan = plan
         self.standards = standards
-        self.f = standards["through"][0]
+        self.f = next(iter(standards.values()))[0]
         #: What a hybrid calibration does below its crossover (``"match"`` or
         #: ``"through"``, see :func:`bench.core.calibration.calibrate`).
         self.low_band = low_band or self.default_low_band(plan)
@@ -214,6 +214,27 @@ class Corrector:
         solt = ~self.through_band(f)
         s21[solt] = shunt_through_rereference(s21[solt], z0, z0 + series_r)
         return s21
+
+    def one_port(self, f: np.ndarray, s_raw: np.ndarray) -> np.ndarray:
+        """Port-1 reflection Γ (nf,) of a raw sweep, corrected by the short, open and load
+        (three-term one-port calibration with the procedure's kit definitions)."""
+        from bench.core.calibration import one_port
+
+        self._check_grid(f)
+        raw = {k: v[1] for k, v in self.standards.items() if k in ("short", "open", "load")}
+        missing = [k for k in ("short", "open", "load") if k not in raw]
+        if missing:
+            raise RunError(
+                f"a reflection needs the short, open and load standards; {', '.join(missing)} "
+                "not measured"
+            )
+        return one_port(
+            f,
+            s_raw[:, 0, 0],
+            RawStandards(f=self.f, **raw),
+            ideals=self.ideals,
+            z0=self.plan.fixture.z0,
+        )
 
     def quick(self, f: np.ndarray, s_raw: np.ndarray) -> np.ndarray:
         """Through-response correction only: a fast first look (live results), not the
@@ -473,7 +494,20 @@ def build_summary(
         if result.mount_open is None:
             warnings.append(result.message)
     pads = {pos: r.mount_open for pos, r in opens.items() if r.mount_open is not None}
-    unfitted: list[tuple[SampleResult, tuple[str, ImpedanceData, float]]] = []
+    from bench.procedure import methods as single
+
+    mounts = {
+        m: single.captures(plan, corrector, store, m)
+        for m in SINGLE_MOUNT_METHODS
+        if any(s.method == m for s in plan.steps)
+    }
+    for m, captured in mounts.items():
+        for kind, value in (("mount_open", captured.open), ("mount_short", captured.short)):
+            if value is None:
+                warnings.append(
+                    f"no {single.CAPTURE_WORDS[(m, kind)]} capture of the {m} mount; not removed"
+                )
+    groups: dict[tuple[str, str, float], list[Step]] = {}
     for step in plan.steps:
         if step.kind != "measure":
             continue
@@ -481,9 +515,24 @@ def build_summary(
         if state != DONE:
             warnings.append(f"{step.id}: {state}, not in the results")
             continue
-        unfitted.append(
-            _sample(store, plan, analysis, corrector, step, shorts, pads, loops, model_override)
-        )
+        assert step.placement is not None
+        key = (step.placement.part, step.placement.sample, step.bias_v)
+        groups.setdefault(key, []).append(step)
+    unfitted: list[tuple[SampleResult, tuple[str, ImpedanceData, float]]] = []
+    shunt = {"shorts": shorts, "pads": pads, "loops": loops}
+    for steps in groups.values():
+        if len(steps) == 1 and steps[0].method == SHUNT:
+            unfitted.append(
+                _sample(
+                    store, plan, analysis, corrector, steps[0], shorts, pads, loops, model_override
+                )
+            )
+        else:
+            unfitted.append(
+                _setups_sample(
+                    store, plan, analysis, corrector, steps, shunt, mounts, model_override
+                )
+            )
     samples = [sample for sample, _ in unfitted]
     if fit:
         # The fits run on up to `jobs` processes (all cores by default), in sample order.
@@ -533,6 +582,11 @@ def build_summary(
                 "mount": analysis.mount,
             },
             "fixture_removal": fixture_removal_text(bool(shorts), bool(pads)),
+            **(
+                {"single_mounts": {m: c.removal_text() for m, c in mounts.items()}}
+                if mounts
+                else {}
+            ),
             **({"mount_open": {str(p): r.record() for p, r in opens.items()}} if opens else {}),
             "instruments": manifest.get("instruments", {}),
             "created": manifest.get("created"),
@@ -617,3 +671,68 @@ def _fit_task(task: tuple[str, ImpedanceData, float]) -> tuple[Any, str | None]:
 def with_analysis(plan: Plan, **changes: Any) -> Analysis:
     """The plan's analysis settings with some replaced (None values are ignored)."""
     return replace(plan.analysis, **{k: v for k, v in changes.items() if v is not None})
+
+
+def _setups_sample(
+    store: RunStore,
+    plan: Plan,
+    analysis: Analysis,
+    corrector: Corrector,
+    steps: list[Step],
+    shunt: dict[str, Any],
+    mounts: dict[str, Any],
+    model_override: str | None,
+) -> tuple[SampleResult, tuple[str, ImpedanceData, float]]:
+    """One sample measured on a single mount, or several ways and stitched into one curve
+    (before its fit, and the fit's task); each set-up's data, with its own window, is
+    kept in ``setups``."""
+    from bench.procedure import methods as single
+
+    first = steps[0]
+    assert first.placement is not None
+    setups: list[tuple[str, ImpedanceData]] = []
+    notes: list[str] = []
+    position: int | None = None
+    corrected = None
+    raw_file = None
+    for step in steps:
+        files = store.step_files(step.id)
+        raw_file = raw_file or (files[0] if files else None)
+        if step.method == SHUNT:
+            r, _ = _sample(
+                store,
+                plan,
+                analysis,
+                corrector,
+                step,
+                shunt["shorts"],
+                shunt["pads"],
+                shunt["loops"],
+                None,
+            )
+            setups.append((SHUNT, r.data))
+            notes.extend(r.warnings)
+            position, corrected = r.position, r.corrected_s
+            continue
+        f, s_raw = averaged(store, step.id)
+        data = single.single_mount_impedance(
+            plan, analysis, corrector, step.method, f, s_raw, mounts[step.method]
+        )
+        setups.append((step.method, data))
+    data, disagreements = single.stitch_setups(setups)
+    notes.extend(disagreements)
+    part = plan.part(first.placement.part)
+    model = model_override or part.spec.model
+    sample = SampleResult(
+        part=first.placement.part,
+        sample=first.placement.sample,
+        data=data,
+        fit=None,
+        bias_v=first.bias_v,
+        position=position,
+        raw_file=raw_file,
+        corrected_s=corrected if len(setups) == 1 else None,
+        warnings=tuple(dict.fromkeys(notes)),
+        setups=tuple(setups),
+    )
+    return sample, (model, data, 0.0)

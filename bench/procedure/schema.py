@@ -34,7 +34,12 @@ The keys, in brief (``procedures/*.yaml`` are worked examples):
 - ``parts`` (required): ``name``, ``kind`` (``mlcc``, ``bulk``, ``inductor``, ``bead``),
   ``nominal`` (F, H, or Ω for a bead at ``nominal_at`` Hz), ``tolerance`` (``10 %``),
   ``rated_voltage`` (V), ``model`` (a family or ``auto``), ``samples`` (a count or
-  names), ``bias`` (list of V, capacitors only).
+  names), ``bias`` (list of V, capacitors only, shunt-through only), ``method``
+  (``shunt-through``, ``series-through``, ``reflection``, or a list of them, stitched
+  into one curve; default: capacitors shunt-through, inductors and beads
+  series-through). Shunt-through parts go in the switched fixture's positions; the
+  series-through and reflection mounts take one sample at a time, and their own
+  captures (the empty gap or open, the zero-ohm strap) remove them.
 - ``steps``: a subset, in order, of calibrate, mount_open, mount_short, measure, fit,
   export, report (default: all but the optional mount_open). ``mount_open`` captures
   each used position's empty mount, so the pads' capacitance is removed from the parts
@@ -56,6 +61,8 @@ from bench.units import QuantityError, parse_quantity
 STEP_NAMES = ("calibrate", "mount_open", "mount_short", "measure", "fit", "export", "report")
 #: The steps of a procedure that lists none: every step but the optional open capture.
 DEFAULT_STEPS = tuple(name for name in STEP_NAMES if name != "mount_open")
+#: The ways a part is measured (each with its mount, calibration and fixture removal).
+METHOD_NAMES = ("shunt-through", "series-through", "reflection")
 #: ``auto`` and every family of the one registry of model families.
 MODEL_NAMES = ("auto", *FAMILY_NAMES)
 PART_KINDS = ("mlcc", "bulk", "inductor", "bead")
@@ -108,6 +115,18 @@ _PART = {
         "nominal_at": _quantity("Hz", "frequency of a bead's nominal impedance"),
         "rated_voltage": _quantity("V", "the part's rated DC voltage"),
         "model": {"enum": list(MODEL_NAMES)},
+        "method": {
+            "description": "how the part is measured; several are stitched into one curve",
+            "oneOf": [
+                {"enum": list(METHOD_NAMES)},
+                {
+                    "type": "array",
+                    "minItems": 1,
+                    "uniqueItems": True,
+                    "items": {"enum": list(METHOD_NAMES)},
+                },
+            ],
+        },
         "description": {"type": "string"},
         "samples": {
             "oneOf": [

@@ -148,7 +148,9 @@ def _samples(name: str) -> list[tuple[str, str, str, float]]:
     for step in plan.steps:
         if step.kind == "measure" and step.placement is not None:
             p = step.placement
-            out.append((name, p.part, p.sample, step.bias_v))
+            case = (name, p.part, p.sample, step.bias_v)
+            if case not in out:  # a part measured several ways is one stitched sample
+                out.append(case)
     return out
 
 
@@ -176,7 +178,8 @@ def _truth(result: Outcome, sample: Any) -> tuple[np.ndarray, np.ndarray, str]:
     part = result.scenario.parts[f"{sample.part}/{sample.sample}"]
     f = sample.data.f
     z = part.impedance(f, sample.bias_v)
-    if _pads_removed(result, sample.position):
+    # A single mount (series-through, reflection) is removed by its own empty capture.
+    if sample.position is None or _pads_removed(result, sample.position):
         return z, z, part.kind
     pad = result.scenario.mounts[sample.position - 1].open_capacitance
     mounted = 1.0 / (1.0 / z + 2j * np.pi * f * pad)
@@ -219,8 +222,10 @@ def test_fitted_landmarks_match_the_true_part(outcome, procedure, part, sample, 
         _close(fit.landmarks["r_dc"], true_marks["r_dc"], "r_dc")
     expected_marks = landmarks_for(kind, f, z_expected)
     if expected_marks["srf"] is None:
-        # The bead resonates above 200 MHz: no SRF in the truth, none made up by the fit.
-        assert fit.landmarks["srf"] is None
+        # The bead resonates above 200 MHz: no SRF in the truth; the fit's is the model's
+        # extrapolation beyond the sweep, and says so.
+        assert fit.landmark_sources["srf"] == "model"
+        assert fit.landmarks["srf"] > f[-1]
         # Instead |Z| at the frequency the bead is specified at, to the Z-at-SRF target.
         spec = next(p for p in result.summary.parts if p.name == part)
         at = np.array([spec.nominal_at_hz])
@@ -231,7 +236,9 @@ def test_fitted_landmarks_match_the_true_part(outcome, procedure, part, sample, 
         _close(fit.landmarks[key], expected_marks[key], key)
 
 
-INDUCTORS = [c for c in CASES if c[1] == "PL530N"]
+# The inductor on the switched fixture's pads (the demo's is on the series-through and
+# reflection mounts, which their own captures remove: see test_methods.py).
+INDUCTORS = [c for c in CASES if c[1] == "PL530N" and c[0] == "series_resistors.yaml"]
 
 
 @pytest.mark.parametrize(
@@ -282,7 +289,9 @@ def test_impedance_inside_the_window_follows_the_true_part(outcome, procedure):
     for s in result.summary.samples:
         _, z_expected, _ = _truth(result, s)
         inside = np.asarray(s.data.inside_window, dtype=bool)
-        assert np.count_nonzero(inside) > len(inside) // 2
+        # An inductor's lowest decades (its milliohms) lie below every method's floor.
+        share = 3 if s.setups else 2
+        assert np.count_nonzero(inside) > len(inside) // share
         error = np.abs(np.log(s.data.z[inside] / z_expected[inside]))
         assert float(np.median(error)) < s.data.window.tolerance, (s.part, s.sample)
 
@@ -318,7 +327,8 @@ fixture: {positions: 8, series_resistor: 499 ohm, isolation_transformer: true}
 calibration: {method: hybrid, crossover: 1 MHz}
 analysis: {noise_floor: -120 dB, mount: fitted}
 parts:
-  - {name: FB137, kind: bead, nominal: 137 ohm, nominal_at: 100 MHz, samples: 1}
+  - {name: FB137, kind: bead, nominal: 137 ohm, nominal_at: 100 MHz, samples: 1,
+     method: shunt-through}
 steps: [calibrate, mount_short, measure]
 """
 

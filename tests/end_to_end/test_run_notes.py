@@ -71,7 +71,7 @@ def test_a_bead_line_leads_with_its_impedance_at_the_stated_frequency(tmp_path, 
         "  - {name: MC22-6V3, kind: mlcc, nominal: 22u, tolerance: 20 %, rated_voltage: 6.3 V, "
         "samples: 1}",
         "  - {name: FB137, kind: bead, nominal: 137 ohm, tolerance: 25 %, nominal_at: 100 MHz, "
-        "samples: 1}",
+        "samples: 1, method: shunt-through}",
     ).replace("stop: 100 MHz, points: 101", "stop: 200 MHz, points: 121")
     plan, store = kit.start_run(tmp_path, text)
     lines: list[str] = []
@@ -204,8 +204,12 @@ def test_points_left_out_for_a_ground_loop_are_not_counted_outside_the_window(tm
     assert below > 0, "the loop's corner lies inside the sweep"
     quality = sample.fit.quality
     assert quality.points_outside_window == sample.data.points_outside_window
-    # Every point is accounted for once: used, outside the window, or below the corner.
-    assert quality.points_used + quality.points_outside_window + below == f.size
+    # Every point is accounted for once: used, outside the window, below the corner, or
+    # left out by the fitter's screening (negative resistance, a glitch).
+    assert (
+        quality.points_used + quality.points_outside_window + below + quality.points_excluded
+        == f.size
+    )
     counts = [w for w in sample.fit.warnings if "outside the measurable window and" in w]
     outside = sample.data.points_outside_window
     assert counts == (

@@ -175,8 +175,10 @@ fixture: {positions: 8, series_resistor: 499 ohm, isolation_transformer: true}
 calibration: {method: through}
 analysis: {mount: fitted}
 parts:
-  - {name: PL530N, kind: inductor, nominal: 530n, tolerance: 20 %, samples: 1}
-  - {name: FB137, kind: bead, nominal: 137 ohm, nominal_at: 100 MHz, samples: 1}
+  - {name: PL530N, kind: inductor, nominal: 530n, tolerance: 20 %, samples: 1,
+     method: shunt-through}
+  - {name: FB137, kind: bead, nominal: 137 ohm, nominal_at: 100 MHz, samples: 1,
+     method: shunt-through}
 steps: [calibrate, mount_short, measure]
 """
 

@@ -41,6 +41,10 @@ class RunContext:
     emptied: set[int] = dataclasses.field(default_factory=set)
     batch: int | None = None
     selected: int | None = None
+    #: What each single mount holds in this session (``empty``, ``strap``, or a sample).
+    mounted: dict[str, str] = dataclasses.field(default_factory=dict)
+    #: The single mounts' captures with the quick correction, for the live lines.
+    quick_mounts: dict[str, Any] = dataclasses.field(default_factory=dict)
     caution_done: bool = False
     # Processing kept between steps.
     corrector: Corrector | None = None

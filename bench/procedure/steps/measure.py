@@ -10,7 +10,7 @@ import numpy as np
 from bench.plausibility import check_part
 from bench.procedure.display import result_line
 from bench.procedure.operators import REPEAT
-from bench.procedure.plan import Step
+from bench.procedure.plan import SINGLE_MOUNT_METHODS, Step
 from bench.procedure.processing import (
     averaged,
     main_value,
@@ -19,13 +19,16 @@ from bench.procedure.processing import (
     sample_impedance,
     z_at_nominal,
 )
-from bench.procedure.steps import bias
+from bench.procedure.steps import bias, single_mount
 from bench.procedure.steps.context import RunContext
 from bench.procedure.steps.sweep import cables_to, decide, select, sweeps
 from bench.runstore import DONE
 
 
 def measure(ctx: RunContext, step: Step) -> None:
+    if step.method in SINGLE_MOUNT_METHODS:
+        single_mount.measure(ctx, step)
+        return
     placement = step.placement
     assert placement is not None
     plan = ctx.plan

@@ -10,7 +10,7 @@ import numpy as np
 from bench.errors import RunError
 from bench.plausibility import check_mount_short
 from bench.procedure.operators import REPEAT, SKIP
-from bench.procedure.plan import Step
+from bench.procedure.plan import SINGLE_MOUNT_METHODS, Step
 from bench.procedure.processing import (
     ground_loop,
     ground_loop_note,
@@ -18,6 +18,7 @@ from bench.procedure.processing import (
     mount_short_impedance,
     open_fit,
 )
+from bench.procedure.steps import single_mount
 from bench.procedure.steps.context import RunContext
 from bench.procedure.steps.sweep import (
     cables_to,
@@ -36,6 +37,9 @@ GROUND_LOOP_ADVICE = (
 
 
 def mount_open(ctx: RunContext, step: Step) -> None:
+    if step.method in SINGLE_MOUNT_METHODS:
+        single_mount.capture(ctx, step)
+        return
     assert step.position is not None
     pos = step.position
     while True:
@@ -65,6 +69,9 @@ def mount_open(ctx: RunContext, step: Step) -> None:
 
 
 def mount_short(ctx: RunContext, step: Step) -> None:
+    if step.method in SINGLE_MOUNT_METHODS:
+        single_mount.capture(ctx, step)
+        return
     assert step.position is not None
     pos = step.position
     plan, store = ctx.plan, ctx.store

@@ -26,7 +26,10 @@ def fit(ctx: RunContext, step: Step) -> None:
     models = ctx.store.root / "models"
     for sample in summary.samples:
         if sample.fit is not None:
-            text = json.dumps(sample.fit.to_json(), indent=2, default=_plain)
+            record = sample.fit.to_json()
+            if sample.setups:
+                record["setups"] = setups_json(sample.setups)
+            text = json.dumps(record, indent=2, default=_plain)
             atomic_write_text(models / f"{file_stem(sample.label)}.fit.json", text + "\n")
             part = ctx.plan.part(sample.part)
             name, value = main_landmark(part.spec, sample)
@@ -84,6 +87,25 @@ def report(ctx: RunContext, step: Step) -> None:
     relative = str(Path(path).relative_to(ctx.store.root))
     ctx.store.mark(step.id, DONE, files=[relative])
     ctx.store.update("report", relative)
+
+
+def setups_json(setups: Any) -> list[dict[str, Any]]:
+    """Each set-up of a stitched sample: its method, window (Ω) and points inside it."""
+    out = []
+    for label, data in setups:
+        inside = np.asarray(data.inside_window, dtype=bool)
+        f = np.asarray(data.f, dtype=float)
+        out.append(
+            {
+                "method": label,
+                "window": {"z_min": data.window.z_min, "z_max": data.window.z_max},
+                "points_inside": int(np.count_nonzero(inside)),
+                "f_inside_hz": [float(f[inside].min()), float(f[inside].max())]
+                if inside.any()
+                else None,
+            }
+        )
+    return out
 
 
 def _plain(value: Any) -> Any:

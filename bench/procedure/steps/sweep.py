@@ -9,7 +9,7 @@ from pathlib import Path
 import numpy as np
 
 from bench.procedure.operators import REPEAT, SKIP, STOP, OperatorStop
-from bench.procedure.plan import Step
+from bench.procedure.plan import SINGLE_MOUNT_METHODS, Step
 from bench.procedure.steps.context import RunContext
 from bench.runstore import SKIPPED, file_stem
 
@@ -34,6 +34,8 @@ def cables_to(ctx: RunContext, target: str) -> None:
     with ctx.pause():
         if target == "fixture":
             ctx.operator.connect_fixture()
+        elif target in SINGLE_MOUNT_METHODS:
+            ctx.operator.connect_mount(target)
         else:
             ctx.operator.connect_standard(target)
     ctx.cables = target
