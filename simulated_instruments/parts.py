@@ -11,7 +11,7 @@ real test of the fitter:
 - :class:`Mlcc`: series R-L-C with a skin-effect conductor impedance above a corner, a
   constant dielectric loss tangent, a weak second branch (a higher mode of the stack) and,
   for class II dielectrics, loss of capacitance under DC bias,
-  ``C(V) = C0 / (1 + (V/V50)^2)`` (heuristic of REFERENCES §5).
+  ``C(V) = C0 / (1 + (V/V50)^2)`` (heuristic of docs/references.md §5).
 - :class:`BulkCapacitor`: series ESR and ESL with a porous-electrode (de Levie) line
   ``Z = sqrt(R/(jωC))·coth(sqrt(jωRC))`` shunted by a leakage resistance.
 - :class:`PowerInductor`: winding with skin-effect resistance, inductance, a core-loss
@@ -113,7 +113,7 @@ def _non_negative(obj: Any, names: tuple[str, ...]) -> None:
 
 
 # Capacitance voltage at which class II dielectrics have lost half their capacitance, as
-# a fraction of the rated voltage. X7R: 8.22 V / 16 V from REFERENCES §5 (derived from a
+# a fraction of the rated voltage. X7R: 8.22 V / 16 V from docs/references.md §5 (derived from a
 # published 0805 measurement); X5R a little worse (invented for the simulator).
 _V50_FRACTION = {"X7R": 0.51, "X5R": 0.42}
 _DEFAULT_TAN_DELTA = {"X7R": 0.025, "X5R": 0.03, "C0G": 0.0005}
@@ -336,7 +336,7 @@ class FerriteBead:
     normalised to 1 at DC and ``α = cole_alpha`` (0 is a single Debye relaxation, larger
     spreads it over more decades): ``jωL·μn`` turns from inductive to resistive above
     ``fr`` as μ'' takes over, as ferrite permeability spectra do (Cole and Cole, J. Chem.
-    Phys. 9, 341 (1941), the dispersion form, cited from memory; docs/references.md).
+    Phys. 9, 341 (1941), the dispersion form, cited from memory; docs/references.md §9).
     """
 
     name: str = "bead"

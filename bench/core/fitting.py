@@ -1,7 +1,7 @@
 """Fitting equivalent circuits to a measured impedance.
 
 ``fit_impedance(f, z, model=..., rel_uncertainty=..., valid=...)`` returns a frozen
-:class:`FitResult`. The method (DESIGN §4):
+:class:`FitResult`. The method (docs/design.md §4):
 
 - residuals are the real and imaginary parts of ``ln Zmodel − ln Zmeasured`` (the complex
   log counts magnitude and phase alike over many decades of |Z|), each divided by the
@@ -93,7 +93,7 @@ class ModelMismatchError(FitError):
 
 @dataclass(frozen=True)
 class FitQuality:
-    """How well a model follows the measurement (DESIGN §3).
+    """How well a model follows the measurement (docs/design.md §3).
 
     ``rms_log_error``: RMS over used points of ``|ln Zmodel − ln Zmeasured|`` (0.01 is
     about 1 % in magnitude and 0.6° in phase); ``max_abs_log_error`` its maximum.

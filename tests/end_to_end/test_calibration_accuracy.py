@@ -10,7 +10,7 @@ stay within the numeric core's 2 % recovery target on every seed.
 
 The truth is the invented part of the demo scenario (``simulated_instruments.parts``),
 read with ``bench.core.landmarks`` on the same grid, noise-free; the link between the
-two is the shunt-through relation (DESIGN §4, REFERENCES §1, derived).
+two is the shunt-through relation (docs/design.md §4, docs/references.md §1, derived).
 """
 
 from __future__ import annotations

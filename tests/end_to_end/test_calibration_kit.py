@@ -12,8 +12,8 @@ The sweeps are noise-free (the demo scenario with its noise floor and trace nois
 to nothing), so what remains is the calibration's own error, not the scatter of one
 sweep. The truth is ``bench.state.position_impedance``: the impedance the cable ends
 see at the position, mount and ground loop included, which is what the corrected S21
-of the part's sweep converts to with the shunt-through relation (DESIGN §4, REFERENCES
-§1, derived).
+of the part's sweep converts to with the shunt-through relation (docs/design.md §4,
+docs/references.md §1, derived).
 """
 
 from __future__ import annotations

@@ -58,7 +58,7 @@ def test_resistive_load_runs_into_the_current_limit(sim_bench, bench_client):
 
 
 def test_bias_lowers_the_capacitance_of_a_class_ii_mlcc(sim_bench, bench_client):
-    """C(V) = C0/(1 + (V/V50)²) (REFERENCES §5 simulator heuristic, derived from a
+    """C(V) = C0/(1 + (V/V50)²) (docs/references.md §5 simulator heuristic, derived from a
     published 0805 X7R measurement); V50 = 0.51 × 10 V rated for the X7R part, so at
     5.1 V the capacitance halves."""
     client = bench_client(sim_bench)
@@ -75,7 +75,7 @@ def test_bias_lowers_the_capacitance_of_a_class_ii_mlcc(sim_bench, bench_client)
         assert wait_for(lambda: abs(float(client.dc.query("MEAS:CURR?"))) < 1e-4)
         f, s = client.sweep()
         s21n = s[:, 1, 0] / through[:, 1, 0]
-        z = 25 * s21n / (1 - s21n)  # shunt-through, DESIGN §4
+        z = 25 * s21n / (1 - s21n)  # shunt-through, docs/design.md §4
         return float(np.median(-1 / (2 * np.pi * f * z.imag)))
 
     part = sim_bench.scenario.parts["MC4U7-10V/s1"]
