@@ -209,6 +209,12 @@ def test_fitted_landmarks_match_the_true_part(outcome, procedure, part, sample, 
     f = s.data.f
     true_marks = landmarks_for(kind, f, z_true)
     if kind == "capacitor":
+        # A causal dielectric's capacitance falls slowly with frequency (docs/references.md
+        # §9), so c_low depends on the band it is read over: read the truth on the points
+        # the fit read its own from.
+        used = np.asarray(fit.point_status) == "used"
+        assert used.shape == f.shape
+        true_marks = landmarks_for(kind, f, z_true, used)
         for key in CAPACITOR_MARKS:
             _close(fit.landmarks[key], true_marks[key], key)
         return

@@ -74,7 +74,10 @@ def test_capacitance_within_target_on_every_error_box_draw(tmp_path, seed):
         part = scenario.parts[f"{s.part}/{s.sample}"]
         f = s.data.f
         z_true = part.impedance(f, s.bias_v)
-        true_marks = landmarks_for("capacitor", f, z_true)
+        # Read on the points the fit used: a causal dielectric's capacitance falls slowly
+        # with frequency (docs/references.md §9), so c_low depends on the band.
+        used = np.asarray(s.fit.point_status) == "used"
+        true_marks = landmarks_for("capacitor", f, z_true, used)
         for key, tol in TOLERANCE.items():
             error = s.fit.landmarks[key] / true_marks[key] - 1
             assert abs(error) <= tol, f"seed {seed}, {s.part}: {key} {error:+.2%}"
