@@ -31,6 +31,10 @@ DEFAULT_METHOD = {
     "bead": "series-through",
 }
 SHUNT = "shunt-through"
+#: Measured by a low-frequency gain-phase analyser on a fixture position (0 V only).
+GAIN_PHASE = "gain-phase"
+#: Methods whose parts sit in the switched fixture's positions.
+FIXTURE_METHODS = (SHUNT, GAIN_PHASE)
 #: Methods measured on a single hand-loaded mount (one sample at a time, no switch).
 SINGLE_MOUNT_METHODS = ("series-through", "reflection")
 
@@ -71,6 +75,44 @@ class Sweep:
     def sweep_seconds(self) -> float:
         """Rough sweep time (s): 1.2/IFBW per point plus set-up (common practice, no source)."""
         return self.points * 1.2 / self.if_bandwidth + 0.05
+
+
+@dataclass(frozen=True)
+class GainPhaseSweep:
+    """The gain-phase analyser's own sweep and its set-up: the reference resistor between
+    receiver A's node and the part, receiver B's input (``input_resistance`` None: ideal),
+    and the ratio's noise floor relative to a ratio of 1 (dB)."""
+
+    start: float
+    stop: float
+    points: int
+    reference_resistor: float
+    spacing: str = "log"
+    bandwidth: float = 100.0
+    level: float = 0.0
+    input_resistance: float | None = None
+    input_capacitance: float = 0.0
+    noise_floor_db: float = -110.0
+
+    def sweep_seconds(self) -> float:
+        """Rough sweep time (s): three periods of the lower of each point's frequency and
+        the bandwidth, plus set-up (common practice, no source)."""
+        import numpy as np
+
+        if self.spacing == "log":
+            f = np.geomspace(self.start, self.stop, self.points)
+        else:
+            f = np.linspace(self.start, self.stop, self.points)
+        return float(np.sum(3.0 / np.minimum(f, self.bandwidth))) + 0.05
+
+    def input_impedance(self, f: Any) -> Any:
+        """Receiver B's input impedance (Ω) at ``f`` (Hz); None for an ideal input."""
+        import numpy as np
+
+        if self.input_resistance is None and not self.input_capacitance:
+            return None
+        g = 0.0 if self.input_resistance is None else 1.0 / self.input_resistance
+        return 1.0 / (g + 2j * np.pi * np.asarray(f, dtype=float) * self.input_capacitance)
 
 
 @dataclass(frozen=True)
@@ -187,6 +229,8 @@ class Plan:
     steps: tuple[Step, ...]
     step_names: tuple[str, ...]
     resolved: dict[str, Any] = field(default_factory=dict)
+    #: The gain-phase analyser's sweep and set-up, when a part is measured with it.
+    gain_phase: GainPhaseSweep | None = None
 
     def part(self, name: str) -> PartPlan:
         for part in self.parts:
@@ -216,7 +260,10 @@ class Plan:
         handling = 20.0 if self.mode == "guided" else 0.0  # a person's hands per action
         for step in self.steps:
             if step.kind in SWEEP_STEPS:
-                total += sweep + 0.2
+                if step.method == GAIN_PHASE and self.gain_phase is not None:
+                    total += self.gain_phase.sweep_seconds() * self.sweep.averages + 0.2
+                else:
+                    total += sweep + 0.2
                 if step.kind == "calibrate" or self.mode == "guided":
                     total += handling
                 if step.bias_v:
@@ -356,6 +403,7 @@ def _command_map_errors(
         "analyzer": load_command_map,
         "switch": lambda name: load_instrument_map("switch", name),
         "dc_source": lambda name: load_instrument_map("dc_source", name),
+        "gain_phase": load_command_map,
     }
     errors = []
     for role, load in loaders.items():
@@ -392,12 +440,14 @@ def build_plan(doc: SourceDocument) -> Plan:
 
     inst_data = data.get("instruments", {})
     instruments: dict[str, Instrument] = {}
-    for role in ("analyzer", "switch", "dc_source", "bench"):
+    for role in ("analyzer", "switch", "dc_source", "bench", "gain_phase"):
         entry = inst_data.get(role, {})
         instruments[role] = Instrument(
             role=role,
             resource=entry.get("resource", ""),
-            command_map=entry.get("command_map", "default"),
+            command_map=entry.get(
+                "command_map", "gain_phase" if role == "gain_phase" else "default"
+            ),
             timeout_s=attempt(_number, doc, ("instruments", role, "timeout"), "duration", 10.0)
             or 10.0,
             max_voltage=attempt(_number, doc, ("instruments", role, "max_voltage"), "V", None),
@@ -621,10 +671,11 @@ def build_plan(doc: SourceDocument) -> Plan:
 
     plan_parts = tuple(parts)
     used = {m for part in plan_parts for m in part.methods}
+    gain_phase = _gain_phase(doc, plan_parts, instruments, errors)
     calibration = Calibration(
         **{
             **calibration.__dict__,
-            "two_port": bool(used - {"reflection"}) or not used,
+            "two_port": bool(used - {"reflection", GAIN_PHASE}) or not used,
             "one_port": "reflection" in used,
         }
     )
@@ -648,6 +699,7 @@ def build_plan(doc: SourceDocument) -> Plan:
         batches=batches,
         steps=(),
         step_names=steps_list,
+        gain_phase=gain_phase,
     )
     _check_bias(doc, provisional, errors)
     if errors:
@@ -770,6 +822,14 @@ def _check_methods(
     stated: bool = True,
 ) -> None:
     """A part's methods against its bias points and the port resistors."""
+    if GAIN_PHASE in methods and any(v != 0.0 for v in bias):
+        errors.append(
+            doc.error(
+                ("parts", i, "method"),
+                "the gain-phase analyser measures a part at 0 V only (no bias path)",
+                hint="remove the bias points, or measure the biased part shunt-through alone",
+            )
+        )
     single = [m for m in methods if m in SINGLE_MOUNT_METHODS]
     if not single:
         return
@@ -801,7 +861,7 @@ def _batches(
     batches: list[tuple[Placement, ...]] = []
     current: list[Placement] = []
     for part in parts:
-        if SHUNT not in part.methods:
+        if not set(FIXTURE_METHODS) & set(part.methods):
             continue
         for sample in part.samples:
             if len(current) == len(positions):
@@ -811,6 +871,96 @@ def _batches(
     if current:
         batches.append(tuple(current))
     return tuple(batches)
+
+
+def _gain_phase(
+    doc: SourceDocument,
+    parts: tuple[PartPlan, ...],
+    instruments: dict[str, Instrument],
+    errors: list[ProcedureError],
+) -> GainPhaseSweep | None:
+    """The ``gain_phase`` section, checked against its analyser's command map; None when
+    no part is measured with it."""
+    users = [i for i, p in enumerate(parts) if GAIN_PHASE in p.methods]
+    g = doc.data.get("gain_phase")
+    if not users:
+        return None
+    if g is None:
+        errors.append(
+            doc.error(
+                ("parts", users[0], "method"),
+                "a part measured gain-phase needs the gain-phase analyser's sweep and set-up",
+                hint="add a 'gain_phase:' section with start, stop, points and reference_resistor",
+            )
+        )
+        return None
+
+    def num(key: str, unit: str, default: Any) -> Any:
+        try:
+            return _number(doc, ("gain_phase", key), unit, default)
+        except ProcedureError as exc:
+            errors.append(exc)
+            return default
+
+    sweep = GainPhaseSweep(
+        start=num("start", "Hz", 0.0) or 0.0,
+        stop=num("stop", "Hz", 0.0) or 0.0,
+        points=int(g["points"]),
+        reference_resistor=num("reference_resistor", "ohm", 0.0) or 0.0,
+        spacing=g.get("spacing", "log"),
+        bandwidth=num("bandwidth", "Hz", 100.0) or 100.0,
+        level=num("level", "dBm", 0.0) or 0.0,
+        input_resistance=num("input_resistance", "ohm", None),
+        input_capacitance=num("input_capacitance", "F", 0.0) or 0.0,
+        noise_floor_db=num("noise_floor", "dB", -110.0) or -110.0,
+    )
+    if sweep.reference_resistor <= 0:
+        errors.append(
+            doc.error(
+                ("gain_phase", "reference_resistor"),
+                "must be above 0 Ω",
+                hint="give the set-up's reference resistor, e.g. 1 ohm",
+            )
+        )
+    limits = analyzer_limits(instruments["gain_phase"].command_map)
+    if not limits["min_hz"] <= sweep.start < sweep.stop <= limits["max_hz"]:
+        errors.append(
+            doc.error(
+                ("gain_phase", "start"),
+                f"{format_si(sweep.start, 'Hz')} to {format_si(sweep.stop, 'Hz')} is not an "
+                f"increasing band inside the analyser's {format_si(limits['min_hz'], 'Hz')} "
+                f"… {format_si(limits['max_hz'], 'Hz')}",
+                hint="choose start below stop, both inside the gain-phase analyser's range",
+            )
+        )
+    if sweep.points > limits["max_points"]:
+        errors.append(
+            doc.error(
+                ("gain_phase", "points"),
+                f"{sweep.points} points is more than the analyser allows ({limits['max_points']})",
+                hint=f"use at most {limits['max_points']} points",
+            )
+        )
+    low, high = limits["power"]
+    if not low <= sweep.level <= high:
+        errors.append(
+            doc.error(
+                ("gain_phase", "level"),
+                f"{sweep.level:g} dBm is outside the analyser's {low:g} … {high:g} dBm",
+                hint="choose a source level the gain-phase analyser offers",
+            )
+        )
+    ifbw_low, ifbw_high = limits.get("ifbw", (1e-3, 1e9))
+    if not ifbw_low <= sweep.bandwidth <= ifbw_high:
+        errors.append(
+            doc.error(
+                ("gain_phase", "bandwidth"),
+                f"{format_si(sweep.bandwidth, 'Hz')} is outside the analyser's "
+                f"{format_si(ifbw_low, 'Hz')} … {format_si(ifbw_high, 'Hz')}",
+                hint="choose a receiver bandwidth the gain-phase analyser offers",
+            )
+        )
+    return sweep
 
 
 def bias_tag(volts: float) -> str:
@@ -825,14 +975,46 @@ def _steps(plan: Plan) -> tuple[Step, ...]:
         for std in plan.calibration.standards:
             steps.append(Step(id=f"calibrate/{std}", kind="calibrate", standard=std))
     used = sorted({p.position for batch in plan.batches for p in batch})
+    gained = sorted(
+        {
+            p.position
+            for batch in plan.batches
+            for p in batch
+            if GAIN_PHASE in plan.part(p.part).methods
+        }
+    )
     for kind in ("mount_open", "mount_short"):
         if kind in names:
             for pos in used:
                 steps.append(Step(id=f"{kind}/p{pos}", kind=kind, position=pos))
+            # The gain-phase analyser's own sweep of each strapped position it uses.
+            if kind == "mount_short":
+                for pos in gained:
+                    steps.append(
+                        Step(
+                            id=f"mount_short/{GAIN_PHASE}/p{pos}",
+                            kind=kind,
+                            position=pos,
+                            method=GAIN_PHASE,
+                        )
+                    )
     if "measure" in names:
         for batch in plan.batches:
             for placement in batch:
                 part = plan.part(placement.part)
+                if GAIN_PHASE in part.methods:
+                    # Swept where it sits, before the network analyser's sweeps.
+                    steps.append(
+                        Step(
+                            id=f"measure/{placement.part}/{placement.sample}/{GAIN_PHASE}",
+                            kind="measure",
+                            position=placement.position,
+                            placement=placement,
+                            method=GAIN_PHASE,
+                        )
+                    )
+                if SHUNT not in part.methods:
+                    continue
                 for volts in part.bias:
                     steps.append(
                         Step(
@@ -871,7 +1053,9 @@ def _steps(plan: Plan) -> tuple[Step, ...]:
 
 def _resolved(plan: Plan) -> dict[str, Any]:
     """The plan in plain SI numbers, as stored in the run manifest."""
+    extra = {"gain_phase": asdict(plan.gain_phase)} if plan.gain_phase is not None else {}
     return {
+        **extra,
         "name": plan.name,
         "source": plan.source,
         "description": plan.description,
@@ -906,6 +1090,7 @@ __all__ = [
     "Bias",
     "Calibration",
     "Fixture",
+    "GainPhaseSweep",
     "Instrument",
     "PartPlan",
     "Placement",
