@@ -1,4 +1,4 @@
-"""The ``zbench`` command line (contract: DESIGN §3).
+"""The ``zbench`` command line (contract: docs/design.md §3).
 
 Each sub-command lives in its own module under :mod:`bench.commands` and is imported
 only when called, so ``zbench fit`` does not pay for the simulator or the drivers.

@@ -172,7 +172,7 @@ def drive_voltage(
     Shunt-through: the part sits across the port-2 termination Ze, fed through Ze,
     V = E·(Zp‖Ze)/(Ze + Zp‖Ze). Series-through: V = E·Zp/(Zp + 2·Ze). Reflection:
     V = E·Zp/(Zp + Ze). (Derived: voltage dividers of a Thevenin source; standard
-    circuit analysis, docs/references.md §3 for the shunt-through relation.)
+    circuit analysis, docs/references.md §1 for the shunt-through relation.)
     """
     zp = np.asarray(z_part, dtype=complex)
     emf = math.sqrt(4.0 * z0 * 10.0 ** (power_dbm / 10.0) * 1e-3)

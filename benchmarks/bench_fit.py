@@ -8,7 +8,7 @@ Run on purpose, not by the test suite:
 Part 1 times one fit per family (fixed model and ``auto``) at 801 and 1601 points.
 Part 2 fits a batch of 20 generated measurements (5 samples of each of 4 invented parts,
 with lot spread) with zbench ``auto`` and with VectorFitting on the same one-port Z
-(REFERENCES §8: fitting Z behaves better than the two-port S of a shunt element), in the
+(docs/references.md §8: fitting Z behaves better than the two-port S of a shunt element), in the
 same run, and reports time, accuracy and passivity.
 
 Measurements are simulated the way the bench measures: the true part's impedance
@@ -16,7 +16,7 @@ Measurements are simulated the way the bench measures: the true part's impedance
 with 0.01 dB trace noise and a -120 dB noise floor, then back to Z with per-point
 uncertainty and window marks (``bench.core.impedance``).
 
-Accuracy is the RMS over points of |ln Zmodel - ln Z| (DESIGN §3), against the noisy
+Accuracy is the RMS over points of |ln Zmodel - ln Z| (docs/design.md §3), against the noisy
 measurement and against the noise-free truth. Passivity: Re Z >= 0 on a dense grid
 from a decade below to a decade above the sweep (and, for VectorFitting, stable poles).
 Times are CPU time of this process (``time.process_time``), so other load on the

@@ -1,13 +1,13 @@
 """DC bias source with hard limits that no request can pass.
 
 The caller gives the limits: the lowest of the part's rated voltage and the bias tee's
-and DC blocks' ratings, and a current limit (design notes §7). A request beyond them
+and DC blocks' ratings, and a current limit (docs/design.md §7). A request beyond them
 raises :class:`~drivers.errors.SafetyLimitError` before anything is sent. Voltage is
 changed in ramps; :meth:`DcSource.biased` ramps up, yields, and on any exit (normal or
 an exception) ramps down and switches the output off, then waits for the part to
 discharge.
 
-Commands (design notes §8): ``SOURce:VOLTage[:LEVel][:IMMediate][:AMPLitude] <V>``,
+Commands (docs/design.md §8): ``SOURce:VOLTage[:LEVel][:IMMediate][:AMPLitude] <V>``,
 ``SOURce:CURRent[:LEVel] <A>``, ``OUTPut[:STATe] ON|OFF``, ``MEASure:VOLTage?``,
 ``MEASure:CURRent?``.
 """

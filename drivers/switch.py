@@ -1,6 +1,6 @@
 """Fixture switch: one of N fixture positions onto the analyser's ports.
 
-Commands (SCPI-99 ROUTe subsystem, the forms of the design notes §8):
+Commands (SCPI-99 ROUTe subsystem, the forms of docs/design.md §8):
 ``ROUTe:OPEN:ALL``, ``ROUTe:CLOSe (@<n>)``, ``ROUTe:CLOSe? (@<n>)`` (answers 1 or 0).
 Selection is break-before-make: every path is opened before the new one is closed, so
 two parts are never on the line together; ``*OPC?`` then waits for the relay to settle.

@@ -3,7 +3,7 @@
 Each file is what a calibrated shunt-through measurement of an invented part would
 store: the part's true impedance (from :mod:`simulated_instruments.parts`, richer than
 any fit model) plus the mount it sits on, turned into the through-normalised
-transmission of DESIGN §4, ``S21n = 2Z / (2Z + Ze)`` with ``Ze = Z0 + Rs``, and
+transmission of docs/design.md §4, ``S21n = 2Z / (2Z + Ze)`` with ``Ze = Z0 + Rs``, and
 seeded noise: a multiplicative trace noise and an additive noise floor relative to the
 through. S11 and S22 are those of the same ideal shunt element, ``S21n − 1``; zbench
 reads only S21. The output is the same on every run (fixed seeds).
@@ -50,7 +50,7 @@ def mount(f: np.ndarray) -> np.ndarray:
 def measured_s21(z: np.ndarray, series_r: float, rng: np.random.Generator) -> np.ndarray:
     """Through-normalised S21 of a shunt impedance ``z`` with seeded noise."""
     ze = Z0 + series_r
-    s21 = 2 * z / (2 * z + ze)  # DESIGN §4
+    s21 = 2 * z / (2 * z + ze)  # docs/design.md §4
     sigma_m = 10 ** (TRACE_NOISE_DB / 20) - 1
     floor = 10 ** (NOISE_FLOOR_DB / 20)
     n = z.size
@@ -116,7 +116,7 @@ def main() -> list[Path]:
     f = grid(100e3, 1e9, 401)
     ze = Z0 + 499.0
     s21 = measured_s21(bead.impedance(f), 499.0, np.random.default_rng(15))
-    z = (ze / 2) * s21 / (1 - s21)  # DESIGN §4, inverted
+    z = (ze / 2) * s21 / (1 - s21)  # docs/design.md §4, inverted
     written.append(
         write_touchstone_z(
             HERE / "bead_600r.s1p",

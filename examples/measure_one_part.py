@@ -2,7 +2,7 @@
 
 Starts the simulated bench on loopback, normalises to a through, places an invented
 22 µF MLCC in fixture position 1, sweeps, and computes Z with the shunt-through
-formula Z = (Z0/2)·S21n/(1 − S21n) (design notes §4). Run: python examples/measure_one_part.py
+formula Z = (Z0/2)·S21n/(1 − S21n) (docs/design.md §4). Run: python examples/measure_one_part.py
 """
 
 import numpy as np

@@ -9,9 +9,10 @@ The circuits hold effects that the fit models only approximate, so a fit to them
 real test of the fitter:
 
 - :class:`Mlcc`: series R-L-C with a skin-effect conductor impedance above a corner, a
-  constant dielectric loss tangent, a weak second branch (a higher mode of the stack) and,
+  causal constant dielectric loss tangent (the capacitance falls slowly with frequency,
+  as it must with a constant loss), a weak second branch (a higher mode of the stack) and,
   for class II dielectrics, loss of capacitance under DC bias,
-  ``C(V) = C0 / (1 + (V/V50)^2)`` (heuristic of REFERENCES §5).
+  ``C(V) = C0 / (1 + (V/V50)^2)`` (heuristic of docs/references.md §5).
 - :class:`BulkCapacitor`: series ESR and ESL with a porous-electrode (de Levie) line
   ``Z = sqrt(R/(jωC))·coth(sqrt(jωRC))`` shunted by a leakage resistance.
 - :class:`PowerInductor`: winding with skin-effect resistance, inductance, a core-loss
@@ -89,6 +90,26 @@ def de_levie_line(f: Any, r_line: float, c_line: float) -> np.ndarray:
     return np.sqrt(r_line / (jw * c_line)) * _coth(np.sqrt(jw * r_line * c_line))
 
 
+def constant_loss_capacitance(f: Any, c: float, tan_d: float, f_ref: float) -> np.ndarray:
+    """Complex capacitance (F) of a dielectric with the same loss tangent at every frequency.
+
+    ``Ĉ(f) = c·(1 − j·tan_d)·(f/f_ref)^(−n)`` with ``n = (2/π)·atan(tan_d)``. Derivation
+    (docs/references.md §9, derived): a causal, passive dielectric whose loss tangent is
+    constant is the constant-phase element ``Y = K·(jω)^(1−n)``; its phase
+    ``(1 − n)·π/2`` gives ``tan δ = Re Y/Im Y = tan(nπ/2)``, so ``n = 2δ/π``. Writing
+    ``Y = jω·Ĉ`` gives ``Ĉ ∝ (jω)^(−n) = ω^(−n)·e^(−jδ) ∝ ω^(−n)·(1 − j·tanδ)``, and the
+    real factor is fixed by ``Re Ĉ(f_ref) = c``. ``Ĉ`` is analytic in the right half of
+    the s-plane (``s^(−n)``), so it is causal, unlike a constant ``c·(1 − j·tanδ)``, which
+    breaks Kramers-Kronig; its real part falls by ``(2/π)·tanδ·ln 10`` ≈ 4.4 % per decade
+    at tanδ = 0.03. The fitter's element ``D`` is the band-limited ladder of the same
+    response (the wideband Debye idea of Djordjevic et al., IEEE Trans. EMC 43(4), 2001,
+    from memory).
+    """
+    f = np.asarray(f, dtype=float)
+    n = (2.0 / np.pi) * math.atan(tan_d)
+    return c * (1.0 - 1j * tan_d) * (f / f_ref) ** (-n)
+
+
 def _positive(obj: Any, names: tuple[str, ...]) -> None:
     for name in names:
         value = getattr(obj, name)
@@ -113,7 +134,7 @@ def _non_negative(obj: Any, names: tuple[str, ...]) -> None:
 
 
 # Capacitance voltage at which class II dielectrics have lost half their capacitance, as
-# a fraction of the rated voltage. X7R: 8.22 V / 16 V from REFERENCES §5 (derived from a
+# a fraction of the rated voltage. X7R: 8.22 V / 16 V from docs/references.md §5 (derived from a
 # published 0805 measurement); X5R a little worse (invented for the simulator).
 _V50_FRACTION = {"X7R": 0.51, "X5R": 0.42}
 _DEFAULT_TAN_DELTA = {"X7R": 0.025, "X5R": 0.03, "C0G": 0.0005}
@@ -123,8 +144,13 @@ _DEFAULT_TAN_DELTA = {"X7R": 0.025, "X5R": 0.03, "C0G": 0.0005}
 class Mlcc:
     """A multilayer ceramic capacitor.
 
-    Main branch: ``esr·sqrt(1 + j f/skin_corner) + jω·esl + 1/(jωC(V)(1 − j·tanδ))``;
-    in parallel a weak second branch with capacitance ``mode_c_ratio·C``, inductance
+    Main branch: ``esr·sqrt(1 + j f/skin_corner) + jω·esl + 1/(jω·Ĉ(ω))`` with the
+    dielectric's complex capacitance (see :func:`constant_loss_capacitance`)
+    ``Ĉ(ω) = C(V)·(1 − j·tanδ)·(f/c_reference_frequency)^(−n)``, ``n = (2/π)·atan(tanδ)``:
+    the loss tangent is the same at every frequency, the capacitance falls by a factor
+    ``10^(−n)`` per decade, and at ``c_reference_frequency`` (1 kHz, where capacitance is
+    usually read) the capacitance is the nominal one; in parallel a weak second branch
+    with capacitance ``mode_c_ratio·C``, inductance
     ``mode_l_ratio·esl`` and resistance ``mode_r_ratio·esr`` (``mode_c_ratio`` is 0 by
     default: a single mounted part shows no second mode unless it is invented with one);
     across the dielectric an insulation resistance.
@@ -132,6 +158,7 @@ class Mlcc:
     Units: F, H, Ω, Hz, V. ``dielectric`` is ``"X5R"``, ``"X7R"`` (class II, DC-bias
     dependent) or ``"C0G"`` (class I, no bias dependence). ``v50`` (V) defaults to a
     fraction of ``rated_voltage``. ``loss_tangent`` defaults by dielectric.
+    ``c_reference_frequency`` (Hz) is where ``capacitance`` holds.
     Note the skin term adds an internal inductance ``esr/(4π·skin_corner)`` at low
     frequency, so the apparent ESL is slightly above ``esl``.
     """
@@ -149,6 +176,7 @@ class Mlcc:
     mode_l_ratio: float = 5.0
     mode_r_ratio: float = 10.0
     insulation_resistance: float = 1e9
+    c_reference_frequency: float = 1e3
 
     def __post_init__(self) -> None:
         if self.dielectric not in ("X5R", "X7R", "C0G"):
@@ -168,6 +196,7 @@ class Mlcc:
                 "mode_l_ratio",
                 "mode_r_ratio",
                 "insulation_resistance",
+                "c_reference_frequency",
             ),
         )
         _non_negative(self, ("mode_c_ratio",))
@@ -204,13 +233,15 @@ class Mlcc:
         w = 2 * np.pi * f
         c = self.capacitance_at(bias_v)
         tan_d = self.tan_delta
+        f_ref = self.c_reference_frequency
         # Dielectric admittance with constant loss tangent and insulation leakage.
-        y_diel = 1j * w * c * (1 - 1j * tan_d) + 1.0 / self.insulation_resistance
+        y_diel = 1j * w * constant_loss_capacitance(f, c, tan_d, f_ref)
+        y_diel = y_diel + 1.0 / self.insulation_resistance
         z_main = self.esr * _skin(f, self.skin_corner) + 1j * w * self.esl + 1.0 / y_diel
         if self.mode_c_ratio <= 0:
             return z_main
         c2 = self.mode_c_ratio * c
-        y2 = 1j * w * c2 * (1 - 1j * tan_d)
+        y2 = 1j * w * constant_loss_capacitance(f, c2, tan_d, f_ref)
         z_mode = (
             self.mode_r_ratio * self.esr * _skin(f, self.skin_corner)
             + 1j * w * self.mode_l_ratio * self.esl
@@ -336,7 +367,7 @@ class FerriteBead:
     normalised to 1 at DC and ``α = cole_alpha`` (0 is a single Debye relaxation, larger
     spreads it over more decades): ``jωL·μn`` turns from inductive to resistive above
     ``fr`` as μ'' takes over, as ferrite permeability spectra do (Cole and Cole, J. Chem.
-    Phys. 9, 341 (1941), the dispersion form, cited from memory; docs/references.md).
+    Phys. 9, 341 (1941), the dispersion form, cited from memory; docs/references.md §9).
     """
 
     name: str = "bead"
@@ -435,6 +466,7 @@ _FIELD_UNITS: dict[str, str | None] = {
     "skin_corner": "Hz",
     "loss_corner": "Hz",
     "relaxation_frequency": "Hz",
+    "c_reference_frequency": "Hz",
     "cole_alpha": None,
     "loss_tangent": None,
     "mode_c_ratio": None,

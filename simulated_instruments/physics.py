@@ -7,7 +7,7 @@ shape ``(nfreq, 2, 2)``; S-parameters are referred to a real ``z0`` (Ω). A shun
 (Pozar, *Microwave Engineering*, table 4.1 [from memory]); cascades multiply ABCD
 matrices, which numpy does for every frequency at once.
 
-Noise model (documented for the measurable window, REFERENCES §1):
+Noise model (documented for the measurable window, docs/references.md §1):
 - an additive complex Gaussian floor on every raw S-parameter, with RMS magnitude
   ``10^(floor_db/20)·sqrt(IFBW/1 kHz)·10^(−(P − 0 dBm)/20)`` times the raw through
   level: receiver noise power grows with the IF bandwidth and is fixed in absolute
@@ -283,7 +283,7 @@ def ground_loop_impedance(
 
     Identical shields of resistance ``shield_resistance`` (Ω) and cut-off
     ``shield_cutoff`` (Hz, fc = R/(2πL)): Zerr = R1R2/(R1 + R2 + jω(L1 + L2 + Lcm)),
-    which is (Rsh/2)/(1 + j f/fc) without a choke (REFERENCES §2, derived from the
+    which is (Rsh/2)/(1 + j f/fc) without a choke (docs/references.md §2, derived from the
     EDI CON 2018 ground-loop paper and Ott 2009). A common-mode choke or isolation
     transformer of ``choke_inductance`` (H) adds jωLcm to the loop.
     """

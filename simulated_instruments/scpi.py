@@ -8,7 +8,7 @@ Pure parsing (no sockets): :func:`split_message_units`, :func:`parse_header`,
 client connection (error queue, status bytes, current header path, data format), so one
 client's mistakes never show up in another client's answers.
 
-Rules followed (SCPI-99 vol. 1 ch. 6 and IEEE 488.2 ch. 7; see REFERENCES §7):
+Rules followed (SCPI-99 vol. 1 ch. 6 and IEEE 488.2 ch. 7; see docs/references.md §7):
 
 - mnemonics match their short form (the upper-case letters of ``FREQuency``) or their
   long form, case-insensitively; nodes in brackets are optional;

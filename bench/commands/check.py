@@ -1,4 +1,4 @@
-"""``zbench check PROCEDURE``: validate a procedure and print its plan (DESIGN §3)."""
+"""``zbench check PROCEDURE``: validate a procedure and print its plan (docs/design.md §3)."""
 
 from __future__ import annotations
 

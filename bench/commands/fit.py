@@ -1,4 +1,4 @@
-"""``zbench fit FILE...``: fit equivalent circuits to stored measurements (DESIGN §3).
+"""``zbench fit FILE...``: fit equivalent circuits to stored measurements (docs/design.md §3).
 
 Each FILE is a Touchstone file or an impedance analyser's CSV (docs/design.md §9):
 a 2-port S file is a shunt-through measurement unless ``--method series-through`` says

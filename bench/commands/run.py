@@ -1,4 +1,4 @@
-"""``zbench run PROCEDURE [--sim [SCENARIO]] [--out DIR] [--resume RUNDIR] [--yes]`` (DESIGN §3).
+"""``zbench run PROCEDURE [--sim [SCENARIO]] [--resume RUNDIR] [--yes] ...`` (docs/design.md §3).
 
 Guided by default (the procedure's mode), unattended with ``--yes``, a dry run against the
 simulated bench with ``--sim``. The same runner does all three; only the operator and the

@@ -2,7 +2,7 @@
 
 The analyser sweeps with its own correction off and zbench corrects in software, so
 the raw sweeps of every standard can be stored and any run re-processed later.
-Three methods (DESIGN §4):
+Three methods (docs/design.md §4):
 
 * ``"through"``: through-response normalisation. S21 and S12 are divided by the
   through; this removes the transmission tracking (cable loss and delay, the fall of

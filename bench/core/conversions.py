@@ -153,7 +153,7 @@ def shunt_through_rereference(s21: ArrayLike, from_ze: ArrayLike, to_ze: ArrayLi
 # with its own input impedance ``z_in`` (e.g. 1 MΩ ‖ 30 pF) in parallel. The ratio is the
 # voltage divider H = B/A = Zp / (Zp + r_ref) with Zp = Z ‖ z_in, so
 # Zp = r_ref·H/(1 − H) and Z = Zp·z_in/(z_in − Zp). The source impedance sets the level
-# at A, not the ratio. (Divider and ABCD algebra: docs/references.md §1 [derived].)
+# at A, not the ratio. (Divider and ABCD algebra: docs/references.md §13 [derived].)
 
 
 def gain_phase_z(h: ArrayLike, *, r_ref: float, z_in: ArrayLike | None = None) -> ComplexArray:

@@ -1,7 +1,7 @@
 """Fitting equivalent circuits to a measured impedance.
 
 ``fit_impedance(f, z, model=..., rel_uncertainty=..., valid=...)`` returns a frozen
-:class:`FitResult`. The method (DESIGN §4):
+:class:`FitResult`. The method (docs/design.md §4):
 
 - residuals are the real and imaginary parts of ``ln Zmodel − ln Zmeasured`` (the complex
   log counts magnitude and phase alike over many decades of |Z|), each divided by the
@@ -93,7 +93,7 @@ class ModelMismatchError(FitError):
 
 @dataclass(frozen=True)
 class FitQuality:
-    """How well a model follows the measurement (DESIGN §3).
+    """How well a model follows the measurement (docs/design.md §3).
 
     ``rms_log_error``: RMS over used points of ``|ln Zmodel − ln Zmeasured|`` (0.01 is
     about 1 % in magnitude and 0.6° in phase); ``max_abs_log_error`` its maximum.
@@ -943,6 +943,9 @@ def _model_landmarks(kind: str, f: NDArray[np.float64], trial: _Trial) -> Landma
 # A model further off misses the data there, and the data's value is given: a landmark
 # never follows a poor model choice (common practice, no source).
 MODEL_AGREEMENT = 0.05
+# Values at resonance are read from a few points of a small real part: noisier, so a
+# model within this much of them agrees with them.
+MODEL_AGREEMENT_AT_RESONANCE = {"esr_at_srf": 0.15, "z_at_srf": 0.15}
 # Landmarks read from the measured points over a whole low decade, with noise well
 # averaged: the measured value is always given where there is one.
 DATA_FIRST = ("c_low", "l_low")
@@ -970,7 +973,7 @@ def _merge_landmarks(
             key not in DATA_FIRST
             and m is not None
             and d is not None
-            and abs(m / d - 1) <= MODEL_AGREEMENT
+            and abs(m / d - 1) <= MODEL_AGREEMENT_AT_RESONANCE.get(key, MODEL_AGREEMENT)
         )
         if d is not None and not (key in lost and m is not None) and not agrees:
             marks[key], sources[key] = data[key], "data"

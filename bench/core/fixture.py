@@ -3,7 +3,7 @@ optionally, its shunt admittance (from an empty, open mount).
 
 In shunt-through the mount sits in series with the part, so a short in the mount
 measures the mount alone, ``Zs``; with an open-mount admittance ``Yo`` the part is
-``Zdut = (Zm − Zs) / (1 − (Zm − Zs)·Yo)`` (impedance-measurement handbooks; REFERENCES
+``Zdut = (Zm − Zs) / (1 − (Zm − Zs)·Yo)`` (derived from the circuit; docs/references.md
 §4), and without it ``Zdut = Zm − Zs``. The short may be used point by point, or as a
 fitted ``Rm + jωLm`` that carries no measurement noise into the part's data. The open,
 a fraction of a pF across the pads, is a very high impedance that a shunt-through
@@ -223,7 +223,7 @@ def fit_open(
     the window; None weighs every point alike and uses them all), ``z_short`` the mount's
     series impedance (Ω on the same grid, or a fitted :class:`Mount`; None: negligible),
     ``valid`` an optional mask of points allowed. ``Yo = 1/(Zopen − Zshort)``
-    (impedance-measurement handbooks, REFERENCES §4).
+    (derived from the circuit, docs/references.md §4).
 
     A fraction of a pF is a very high impedance, near the ceiling of a shunt-through
     window or above it, so only points whose uncertainty is at most ``max_uncertainty``

@@ -3,7 +3,7 @@
 Below a few tens of kHz the shields of the two cables form a loop and part of the test
 current returns through the receive cable's shield; the braid resistances then appear
 in parallel with each other and in series with the part ("The 2-Port Shunt-Thru
-Measurement and the Inherent Ground Loop", EDI CON USA 2018; REFERENCES §2). The
+Measurement and the Inherent Ground Loop", EDI CON USA 2018; docs/references.md §2). The
 first-order model used here is ``Zerr = R1·R2 / (R1 + R2 + jω(L1 + L2 + Lcm))``; for
 identical cables without a choke ``Zerr = (Rsh/2) / (1 + j f/fc)`` with the shield
 cut-off ``fc = Rsh / (2π·Lsh)`` (Ott 2009, ch. 2).
@@ -35,7 +35,7 @@ def ground_loop_error(
     ``r_shield`` is each cable's shield resistance (Ω, > 0), ``corner_hz`` its cut-off
     ``Rsh/(2π·Lsh)`` (Hz, > 0), ``choke_h`` a common-mode choke or isolation transformer
     in the loop (H, >= 0). ``R²/(2R + jω(2Lsh + Lcm))``, which is ``(R/2)/(1 + j f/fc)``
-    without a choke (REFERENCES §2, derived).
+    without a choke (docs/references.md §2, derived).
     """
     if r_shield <= 0 or corner_hz <= 0 or choke_h < 0:
         raise ValueError(

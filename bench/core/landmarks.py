@@ -8,12 +8,12 @@ few points in a band) is ``None``.
 
 Every figure comes from a band of points, never from one point, so noise averages out:
 - capacitance: least squares of the elastance ``-ωX`` (ESL-corrected) over the lowest
-  decade of valid capacitive points (REFERENCES §3: C = -1/(ωX) well below f0);
+  decade of valid capacitive points (docs/references.md §3: C = -1/(ωX) well below f0);
 - inductance: the same on ``Im(1/Y')/ω`` over the lowest decade where the reactance
   dominates, with the parallel capacitance taken out of ``Y``;
 - resonances: the sign change of the reactance (admittance for parallel resonance) in a
   lightly smoothed trace, then a local least-squares line of ``ω·X`` against ``ω²``
-  (exact for a series R-L-C, REFERENCES §3) over the points around it;
+  (exact for a series R-L-C, docs/references.md §3) over the points around it;
 - values at resonance: a quadratic in ``log f`` through the neighbouring points, of
   Re Z at a series resonance and of Re(1/Z) at a parallel one (both vary slowly there);
 - a sign change across a gap in the valid points is no resonance: it was not measured;

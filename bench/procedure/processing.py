@@ -365,7 +365,7 @@ def sample_impedance(
 
     ``s21n`` is on the set-up's scale (:meth:`Corrector.setup_s21`); ``z_short`` the
     shorted mount on the same grid (Ω) or None; ``mount_open`` the fitted pads, whose
-    shunt admittance is removed too (REFERENCES §4), or None. The procedure's
+    shunt admittance is removed too (docs/references.md §4), or None. The procedure's
     noise floor is the analyser's own (relative to a through without resistors); on the
     through-normalised scale it stands higher by the through level the port series
     resistors take away (:func:`bench.core.window.floor_on_through_db`).
@@ -392,7 +392,7 @@ def loop_removed_with_short(analysis: Analysis) -> bool:
     """Whether the cable-shield ground loop's error leaves with the mount short.
 
     The loop adds a series error ``R1R2/(R1 + R2 + jω(L1 + L2 + Lcm))`` that does not
-    depend on what is in the mount (REFERENCES §2, first-order model), so it is in the
+    depend on what is in the mount (docs/references.md §2, first-order model), so it is in the
     shorted-mount capture as much as in the part's: subtracting the measured short point
     by point removes it, and the points below the loop's corner stay good. A fitted
     ``Rm + jωLm`` mount cannot follow it, so then those points are not used.

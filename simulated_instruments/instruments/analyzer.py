@@ -1,4 +1,4 @@
-"""The simulated two-port network analyser (SCPI nodes of DESIGN §8).
+"""The simulated two-port network analyser (SCPI nodes of docs/design.md §8).
 
 Single sweeps only: ``INITiate[:IMMediate]`` takes the four S-parameters of the state
 the bench is in at that moment and the sweep then lasts ``SWEep:TIME?`` (times

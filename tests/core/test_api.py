@@ -33,10 +33,10 @@ def rlc(f, r=5e-3, l=0.5e-9, c=10e-6):  # noqa: E741
 def test_shunt_through_check_values(tmp_path):
     f = np.logspace(3, 8, 20)
     path = shunt_s2p(tmp_path / "half.s2p", f, np.full(f.size, 0.5 + 0j))
-    # REFERENCES §1 [derived]: S21 = 0.5 <-> Z = 25 Ω on plain 50 Ω ports,
+    # docs/references.md §1 [derived]: S21 = 0.5 <-> Z = 25 Ω on plain 50 Ω ports,
     # Z = (Z0/2)·S21/(1 − S21) = 25·0.5/0.5 = 25 Ω.
     np.testing.assert_allclose(api.impedance(path).z, 25.0, rtol=1e-12)
-    # REFERENCES §1 [derived]: Rs = 450 Ω at each port, S21n = 0.5 <-> Z = 250 Ω,
+    # docs/references.md §1 [derived]: Rs = 450 Ω at each port, S21n = 0.5 <-> Z = 250 Ω,
     # ((50 + 450)/2)·0.5/0.5 = 250 Ω.
     np.testing.assert_allclose(api.impedance(path, series_r="450").z, 250.0, rtol=1e-12)
     np.testing.assert_allclose(api.load(path, series_r=450).z, 250.0, rtol=1e-12)
@@ -45,7 +45,7 @@ def test_shunt_through_check_values(tmp_path):
 def test_z_file_and_s_file_of_one_part_agree(tmp_path):
     f = np.logspace(2, 8, 120)
     z = rlc(f)
-    s21 = 2 * z / (2 * z + 50.0)  # DESIGN §4
+    s21 = 2 * z / (2 * z + 50.0)  # docs/design.md §4
     from_s = api.impedance(shunt_s2p(tmp_path / "p.s2p", f, s21))
     # A Z file is taken as given unless told the method whose window applies.
     from_z = api.impedance(write_touchstone_z(tmp_path / "p.s1p", f, z), method="shunt-through")

@@ -73,7 +73,7 @@ def _bench(seed: int, mismatch: float = 0.1):
 def test_solt_recovers_the_dut(seed: int) -> None:
     standards, raw, dut, z, _ = _bench(seed)
     corrected = solt(F, raw, standards)
-    # Published method (scikit-rf calibration tests; REFERENCES §8 measured ~1e-15).
+    # Published method (scikit-rf calibration tests; docs/references.md §8 measured ~1e-15).
     np.testing.assert_allclose(corrected, dut, atol=1e-9)
     np.testing.assert_allclose(shunt_through_z(corrected[:, 1, 0]), z, rtol=1e-6)
 
@@ -101,7 +101,7 @@ def test_through_response_removes_tracking_only() -> None:
     standards, raw, dut, _, _ = _bench(7, mismatch=0.0)
     corrected = through_response(raw, standards.thru)
     np.testing.assert_allclose(corrected[:, 1, 0], dut[:, 1, 0], rtol=1e-9)
-    # With mismatch (REFERENCES §8: Normalization removes tracking only), an error
+    # With mismatch (docs/references.md §8: Normalization removes tracking only), an error
     # remains in S21 that SOLT removes.
     standards, raw, dut, _, _ = _bench(7, mismatch=0.1)
     s21 = through_response(raw, standards.thru)[:, 1, 0]
@@ -183,7 +183,7 @@ def test_match_correction_removes_the_bias_a_through_normalisation_leaves() -> N
     s21n = through_response(raw, standards.thru)[:, 1, 0]
     plain = shunt_through_z(s21n)
     # Published: with unequal source and load impedances, Z = (Zs‖Zl)·S21′/(1 − S21′),
-    # S21′ normalised to the through (O. Duffy, REFERENCES §1). With Zs, Zl from the
+    # S21′ normalised to the through (O. Duffy, docs/references.md §1). With Zs, Zl from the
     # source and load match, (Zs‖Zl) = (Z0/2)(1 + ESF)(1 + ELF)/(1 − ESF·ELF) [derived:
     # Zs = Z0(1 + a)/(1 − a), Zl = Z0(1 + b)/(1 − b), ZsZl/(Zs + Zl) simplifies to it].
     zs_zl = terms.source_load_impedance(50.0)
@@ -258,7 +258,7 @@ def test_through_mismatch_bias_bound() -> None:
     # 499 Ω resistors the analyser's match is diluted to 0.02·50/549 = 0.182 %.
     assert through_mismatch_bias(-40.0) == pytest.approx(0.02, rel=1e-12)
     assert through_mismatch_bias(-40.0, 50.0, 499.0) == pytest.approx(0.02 * 50 / 549, rel=1e-12)
-    # Against the exact source-load impedance (REFERENCES §1, Duffy): Γ = 0.01 in phase
+    # Against the exact source-load impedance (docs/references.md §1, Duffy): Γ = 0.01 in phase
     # at both ports, Zs = Zl = Rs + 50·1.01/0.99; Zs‖Zl against (Z0 + Rs)/2.
     for series_r in (0.0, 499.0):
         zs = series_r + 50.0 * 1.01 / 0.99

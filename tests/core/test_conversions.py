@@ -1,5 +1,5 @@
 """Shunt-through, series-through and reflection conversions, checked against
-scikit-rf's own network algebra and the worked values of REFERENCES §1."""
+scikit-rf's own network algebra and the worked values of docs/references.md §1."""
 
 from __future__ import annotations
 
@@ -38,7 +38,7 @@ def test_shunt_element_against_scikit_rf_abcd() -> None:
     s = _s_from_abcd(abcd, 50.0)
     s21 = shunt_through_s21(Z, 50.0)
     np.testing.assert_allclose(s[:, 1, 0], s21, rtol=1e-12, atol=1e-15)
-    # Derived (REFERENCES §1): an ideal shunt element has S11 = S21 - 1.
+    # Derived (docs/references.md §1): an ideal shunt element has S11 = S21 - 1.
     np.testing.assert_allclose(s[:, 0, 0], s21 - 1.0, rtol=1e-12, atol=1e-15)
     np.testing.assert_allclose(shunt_through_z(s[:, 1, 0], 50.0), Z, rtol=1e-9)
 
@@ -66,7 +66,7 @@ def test_shunt_through_with_series_resistors_against_scikit_rf_cascade() -> None
     shunt[:, 1, 0] = 1.0 / Z
     dut = _s_from_abcd(series @ shunt @ series, 50.0)[:, 1, 0]
     thru = _s_from_abcd(np.broadcast_to(series @ series, (n, 2, 2)).copy(), 50.0)[:, 1, 0]
-    # Derived (REFERENCES §1): the raw through falls to Z0/(Z0 + Rs) = 50/500 = 0.1.
+    # Derived (docs/references.md §1): the raw through falls to Z0/(Z0 + Rs) = 50/500 = 0.1.
     np.testing.assert_allclose(thru, 0.1, rtol=1e-12)
     s21n = through_normalise(dut, thru)
     np.testing.assert_allclose(s21n, shunt_through_s21(Z, 50.0, rs), rtol=1e-12)
@@ -76,7 +76,7 @@ def test_shunt_through_with_series_resistors_against_scikit_rf_cascade() -> None
 @pytest.mark.parametrize(
     ("z", "s21", "db"),
     [
-        # Derived (REFERENCES §1): S21 = 2Z/(2Z + 50).
+        # Derived (docs/references.md §1): S21 = 2Z/(2Z + 50).
         (1e-3, 3.99984e-5, -87.959),  # 2e-3/50.002
         (1.0, 0.0384615, -28.299),  # 2/52
         (25.0, 0.5, None),  # 50/100
@@ -92,20 +92,21 @@ def test_reference_check_values(z: float, s21: float, db: float | None) -> None:
 
 
 def test_plain_25_ohm_approximation_is_low_by_3_85_percent() -> None:
-    # Derived (REFERENCES §1): for 1 ohm, 25·S21 = 0.9615 ohm, 3.85 % low.
+    # Derived (docs/references.md §1): for 1 ohm, 25·S21 = 0.9615 ohm, 3.85 % low.
     s21 = shunt_through_s21(1.0, 50.0).real
     assert 25 * s21 == pytest.approx(0.9615, abs=1e-4)
     assert 1 - 25 * s21 == pytest.approx(0.0385, abs=1e-4)
 
 
 def test_series_resistor_check_value() -> None:
-    # Derived (REFERENCES §1): Rs = 450 ohm, S21n = 0.5 <-> Z = ((50+450)/2)·0.5/0.5 = 250 ohm.
+    # Derived (docs/references.md §1): Rs = 450 ohm, S21n = 0.5 <->
+    # Z = ((50+450)/2)·0.5/0.5 = 250 ohm.
     assert shunt_through_z(0.5, 50.0, 450.0) == pytest.approx(250.0, rel=1e-12)
     assert shunt_through_s21(250.0, 50.0, 450.0) == pytest.approx(0.5, rel=1e-12)
 
 
 def test_noise_floor_of_minus_120_db_is_25_micro_ohm() -> None:
-    # Derived (REFERENCES §1): S21 = 1e-6 (-120 dB) -> Z = 25·1e-6/(1 - 1e-6) = 25 µΩ.
+    # Derived (docs/references.md §1): S21 = 1e-6 (-120 dB) -> Z = 25·1e-6/(1 - 1e-6) = 25 µΩ.
     assert shunt_through_z(1e-6, 50.0).real == pytest.approx(25e-6, rel=1e-5)
 
 

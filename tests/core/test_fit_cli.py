@@ -1,4 +1,4 @@
-"""The ``zbench fit`` contract (DESIGN §3): JSON keys in SI units, JSON Lines for several
+"""The ``zbench fit`` contract (docs/design.md §3): JSON keys in SI units, JSON Lines for several
 files, SPICE output, exit codes, and a clear message without a traceback for each bad
 input the command must refuse."""
 
@@ -40,7 +40,7 @@ def json_lines(text: str) -> list[dict]:
 
 
 def shunt_s2p(path: Path, f: np.ndarray, z: np.ndarray, series_r: float = 0.0) -> Path:
-    """A calibrated shunt-through file of impedance ``z`` (DESIGN §4 relation)."""
+    """A calibrated shunt-through file of impedance ``z`` (docs/design.md §4 relation)."""
     s21 = 2 * z / (2 * z + 50.0 + series_r)
     s = np.empty((f.size, 2, 2), dtype=complex)
     s[:, 0, 0] = s[:, 1, 1] = s21 - 1
@@ -325,7 +325,7 @@ def test_one_port_z_file_round_trip(capsys, tmp_path):
     assert code in (0, 3), err
     landmarks = json_lines(out)[0]["landmarks"]
     # Invented noiseless truth of this test: 10 µF, 0.5 nH; f0 = 1/(2π√(LC)) = 2.2508 MHz
-    # (REFERENCES §3, derived check value for 10 µF / 0.5 nH / 5 mΩ).
+    # (docs/references.md §3, derived check value for 10 µF / 0.5 nH / 5 mΩ).
     assert landmarks["c_low"] == pytest.approx(10e-6, rel=0.02)
     assert landmarks["srf"] == pytest.approx(2.2508e6, rel=0.01)
 

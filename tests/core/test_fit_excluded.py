@@ -11,7 +11,7 @@ from bench.errors import InputError
 
 
 def _series_rlc(f):
-    # 10 µF / 0.5 nH / 5 mΩ (REFERENCES §3 check part, derived: f0 = 2.2508 MHz)
+    # 10 µF / 0.5 nH / 5 mΩ (docs/references.md §3 check part, derived: f0 = 2.2508 MHz)
     w = 2 * np.pi * f
     return 5e-3 + 1j * w * 0.5e-9 + 1 / (1j * w * 10e-6)
 

@@ -120,7 +120,7 @@ def test_ladder_follows_distributed_line_better_than_series_rlc():
     assert ladder.order >= 2
     assert ladder.quality.rms_log_error < 0.5 * simple.quality.rms_log_error
     # The ladder's low-frequency resistance carries the line's R/3 (de Levie limit,
-    # REFERENCES §3, derived): ESR + R/3 = 8 + 10 = 18 mΩ at 1 kHz.
+    # docs/references.md §3, derived): ESR + R/3 = 8 + 10 = 18 mΩ at 1 kHz.
     assert ladder.impedance(np.array([1e3]))[0].real == pytest.approx(18e-3, rel=0.1)
 
 
@@ -155,7 +155,7 @@ def test_auto_chooses_kind_and_family(part, kind, models):
 
 def test_peak_above_window_is_counted_and_warned():
     # Invented inductor whose parallel resonance peak (several kΩ) is above the ceiling
-    # of a plain 50 Ω set-up (about 225 Ω, REFERENCES §1, common practice).
+    # of a plain 50 Ω set-up (about 225 Ω, docs/references.md §1, common practice).
     part = PowerInductor(name="PL2U2", inductance=2.2e-6, core_loss_resistance=3e3)
     data = measure(part, 31)
     assert data.points_outside_window > 0

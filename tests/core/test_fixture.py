@@ -1,4 +1,4 @@
-"""Mount-short and open removal, the fitted mount and the fitted open, against REFERENCES §4."""
+"""Mount-short and open removal, the fitted mount and the fitted open (docs/references.md §4)."""
 
 from __future__ import annotations
 
@@ -22,7 +22,7 @@ TWO_PI = 2 * np.pi
 
 
 def test_handbook_compensation_check_at_10_mhz() -> None:
-    # Published in impedance-measurement handbooks, check values derived (REFERENCES §4):
+    # Derived from the mount's circuit, with its check values (docs/references.md §4):
     # 10 MHz, Zs = 1 mΩ + 100 pH, Yo = 0.5 pF, DUT = 0.01 + j0.0125664 Ω gives
     # Zm = 0.0110000079 + j0.0188495577, and the formula recovers the DUT to ~1e-13.
     f = 10e6
@@ -43,7 +43,7 @@ def _zero_crossing(f: np.ndarray, x: np.ndarray) -> float:
 
 
 def test_apparent_srf_of_a_capacitor_on_its_mount() -> None:
-    # Derived (REFERENCES §4): a 10 nF / 0.5 nH / 5 mΩ part on a 0.2 mΩ + 150 pH mount
+    # Derived (docs/references.md §4): a 10 nF / 0.5 nH / 5 mΩ part on a 0.2 mΩ + 150 pH mount
     # shows 1/(2π·sqrt(0.65 nH·10 nF)) = 62.43 MHz; the part alone 1/(2π·sqrt(0.5n·10n))
     # = 71.18 MHz.
     f = np.linspace(50e6, 90e6, 40001)
@@ -154,7 +154,7 @@ def test_fitted_open_finds_a_real_conductance() -> None:
 
 
 def test_open_out_of_reach_of_a_plain_50_ohm_set_up() -> None:
-    # Without resistors the window ends near 190 ohm (REFERENCES §1, derived): a
+    # Without resistors the window ends near 190 ohm (docs/references.md §1, derived): a
     # 0.27 pF open is at best ~120 % uncertain per point, so it is not used at all.
     open_data = _measured(_empty_mount(), 0.0, np.random.default_rng(4))
     with pytest.raises(OpenNotMeasurableError, match="out of this set-up's reach"):
@@ -170,7 +170,7 @@ def test_open_capture_with_the_strap_left_in_is_refused() -> None:
 
 
 def test_open_removal_restores_an_inductor_on_a_simulated_mount() -> None:
-    # Derived from REFERENCES §4: the mount presents Zs + (Zdut ‖ Yo), so
+    # Derived from docs/references.md §4: the mount presents Zs + (Zdut ‖ Yo), so
     # (Zm − Zs)/(1 − (Zm − Zs)·Yo) returns Zdut. A 470 nH / 1.7 pF inductor has its
     # parallel resonance at 1/(2π·sqrt(470n·1.7p)) = 178.0 MHz; with 0.27 pF of pads
     # across it, 1/(2π·sqrt(470n·1.97p)) = 165.4 MHz (7 % low).
@@ -197,7 +197,7 @@ def test_open_removal_restores_an_inductor_on_a_simulated_mount() -> None:
 
 
 def test_handbook_check_with_a_fitted_open() -> None:
-    # REFERENCES §4 check (10 MHz; Zs = 1 mΩ + 100 pH; Yo = 0.5 pF) with the open given
+    # docs/references.md §4 check (10 MHz; Zs = 1 mΩ + 100 pH; Yo = 0.5 pF) with the open given
     # as a MountOpen of 0.5 pF: the formula recovers the DUT to ~1e-13.
     f = np.array([10e6])
     zs = Mount(r=1e-3, l=100e-12)

@@ -1,4 +1,4 @@
-"""Cable-shield ground-loop model and check, against the derived values of REFERENCES §2."""
+"""Cable-shield ground-loop model and check, against the derived values of docs/references.md §2."""
 
 from __future__ import annotations
 
@@ -12,7 +12,7 @@ from bench.core.ground_loop import check_ground_loop, ground_loop_error
 F = np.logspace(2, 8.3, 401)
 MOUNT = Mount(r=0.2e-3, l=150e-12)
 
-# From memory (REFERENCES §2): Rsh = 13 mΩ per metre of RG-58; published (Ott 2009):
+# From memory (docs/references.md §2): Rsh = 13 mΩ per metre of RG-58; published (Ott 2009):
 # fc ≈ 2 kHz for RG-58C.
 RSH, FC = 13e-3, 2e3
 
@@ -20,7 +20,8 @@ RSH, FC = 13e-3, 2e3
 @pytest.mark.parametrize(
     ("f", "expected"),
     [
-        # Derived (REFERENCES §2): |Zerr| = (Rsh/2)/sqrt(1 + (f/fc)^2) = 6.5 mΩ/sqrt(1 + (f/2k)^2).
+        # Derived (docs/references.md §2): |Zerr| = (Rsh/2)/sqrt(1 + (f/fc)^2)
+        # = 6.5 mΩ/sqrt(1 + (f/2k)^2).
         (1e-3, 6.5e-3),  # DC: 13/2 mΩ
         (1e3, 5.81e-3),  # 6.5/sqrt(1.25)
         (2e3, 4.60e-3),  # 6.5/sqrt(2)
@@ -34,13 +35,13 @@ def test_loop_error_check_values(f: float, expected: float) -> None:
 
 @pytest.mark.parametrize(("f", "expected"), [(100.0, 268e-6), (1e3, 26.8e-6)])
 def test_loop_error_with_a_1_mh_choke(f: float, expected: float) -> None:
-    # Derived (REFERENCES §2): R²/|2R + jω(2·Rsh/(2π·fc) + 1 mH)|; at 100 Hz
+    # Derived (docs/references.md §2): R²/|2R + jω(2·Rsh/(2π·fc) + 1 mH)|; at 100 Hz
     # 1.69e-4/|0.026 + j·628.3·1.00207e-3| = 1.69e-4/0.6301 = 268 µΩ.
     assert abs(ground_loop_error(f, RSH, FC, choke_h=1e-3)) == pytest.approx(expected, rel=3e-3)
 
 
 def test_a_1_milliohm_part_reads_7_5_milliohm_at_dc() -> None:
-    # Derived (REFERENCES §2): the 6.5 mΩ DC error lifts a 1 mΩ part to 7.5 mΩ.
+    # Derived (docs/references.md §2): the 6.5 mΩ DC error lifts a 1 mΩ part to 7.5 mΩ.
     assert (1e-3 + ground_loop_error(0.0, RSH, FC)).real == pytest.approx(7.5e-3)
 
 

@@ -58,7 +58,7 @@ def test_open_admittance_is_applied() -> None:
     part = _capacitor(F, 1e-6, 0.8e-9, 10e-3)
     zs = Mount(1e-3, 100e-12).impedance(F)
     yo = 1j * 2 * np.pi * F * 0.5e-12
-    # REFERENCES §4 (derived): Zm = Zs + Zdut/(1 + Zdut·Yo) inverts the removal formula.
+    # docs/references.md §4 (derived): Zm = Zs + Zdut/(1 + Zdut·Yo) inverts the removal formula.
     zm = zs + part / (1 + part * yo)
     data = impedance_from_shunt_through(
         F, shunt_through_s21(zm), mount_short=zs, open_admittance=yo

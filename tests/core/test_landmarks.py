@@ -24,7 +24,7 @@ def noisy(z, rel, seed):
 
 
 def test_series_rlc_landmarks_are_exact():
-    # REFERENCES §3 [derived]: 10 µF / 0.5 nH / 5 mΩ -> f0 = 1/(2π√(LC)) = 2.2508 MHz,
+    # docs/references.md §3 [derived]: 10 µF / 0.5 nH / 5 mΩ -> f0 = 1/(2π√(LC)) = 2.2508 MHz,
     # |Z(f0)| = ESR; C = -1/(ωX) well below f0, L = X/ω well above.
     z = series_rlc(F, 5e-3, 0.5e-9, 10e-6)
     marks = capacitor_landmarks(F, z)
@@ -35,7 +35,7 @@ def test_series_rlc_landmarks_are_exact():
 
 
 def test_parallel_resonance_landmarks_are_exact():
-    # REFERENCES §3 [derived]: 1 µH with 10 pF -> SRF 50.33 MHz.
+    # docs/references.md §3 [derived]: 1 µH with 10 pF -> SRF 50.33 MHz.
     values = {"Rdc": 10e-3, "L": 1e-6, "Rp": 5e3, "Cp": 10e-12}
     z = FAMILIES["inductor"].impedance(F, values)
     marks = inductor_landmarks(F, z)

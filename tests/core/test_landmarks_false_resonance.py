@@ -31,11 +31,11 @@ SEEDS = range(40)
 
 def behind_resistors(f, seed: int, *, floor_db: float = -99.0):
     """The bead measured with 499 Ω at each port: the analyser's -120 dB floor is about
-    -99 dB on the through's scale (20·log10(549/50) = 20.8 dB higher, DESIGN §4)."""
+    -99 dB on the through's scale (20·log10(549/50) = 20.8 dB higher, docs/design.md §4)."""
     rng = np.random.default_rng(seed)
     ze = 50.0 + 499.0
     z = BEAD.impedance(f)
-    s21 = 2 * z / (2 * z + ze)  # DESIGN §4
+    s21 = 2 * z / (2 * z + ze)  # docs/design.md §4
     trace = 10 ** (0.01 / 20) - 1
     floor = 10 ** (floor_db / 20)
     n = f.size

@@ -88,7 +88,7 @@ IDS = [f"{c[0]}-{len(c[1])}" for c in CASES]
 
 
 def test_registry_has_the_design_names():
-    # DESIGN §3 names the families; "auto" is the fitter's choice among them.
+    # docs/design.md §3 names the families; "auto" is the fitter's choice among them.
     # lossy-rlc is the series R-L-C with loss across the band (docs/references.md §9).
     assert set(MODEL_NAMES) == {
         "series-rlc",

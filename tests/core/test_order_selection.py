@@ -5,7 +5,7 @@ elements are not determined (one-sigma uncertainty above 100 %), has more elemen
 the data can tell apart. The fitter must not choose it; it must take the lower order,
 and the lower order must be as good as the pinned fit (the pinned fit is the lower
 order with a section that dropped out). The measurements are built here: invented parts
-of the simulator (richer than the models), the shunt-through relation of DESIGN §4 and
+of the simulator (richer than the models), the shunt-through relation of docs/design.md §4 and
 seeded noise, as the example files are made.
 """
 
@@ -28,13 +28,13 @@ def measured_z(part, f, *, series_r: float, seed: int, noise_floor_db: float = -
     rng = np.random.default_rng(seed)
     ze = Z0 + series_r
     z = part.impedance(f)
-    s21 = 2 * z / (2 * z + ze)  # DESIGN §4
+    s21 = 2 * z / (2 * z + ze)  # docs/design.md §4
     trace = 10 ** (0.01 / 20) - 1
     floor = 10 ** (noise_floor_db / 20)
     n = f.size
     s21 = s21 * (1 + trace / np.sqrt(2) * (rng.standard_normal(n) + 1j * rng.standard_normal(n)))
     s21 = s21 + floor / np.sqrt(2) * (rng.standard_normal(n) + 1j * rng.standard_normal(n))
-    return (ze / 2) * s21 / (1 - s21)  # DESIGN §4, inverted
+    return (ze / 2) * s21 / (1 - s21)  # docs/design.md §4, inverted
 
 
 def assert_determined(result) -> None:

@@ -39,8 +39,8 @@ def test_parts_are_passive_and_finite(part):
 
 
 def test_mlcc_dc_bias_matches_published_0805_point():
-    # REFERENCES §5 [published]: a 4.7 µF 16 V X7R 0805 keeps 1.5 µF at 12 V (EE Times 2012).
-    # [derived] heuristic C0/(1+(V/V50)^2) with V50 = 8.22 V: 4.7/(1+(12/8.22)^2) = 1.501 µF.
+    # docs/references.md §5 [published]: a 4.7 µF 16 V X7R 0805 keeps 1.5 µF at 12 V (EE Times
+    # 2012). [derived] heuristic C0/(1+(V/V50)^2) with V50 = 8.22 V: 4.7/(1+(12/8.22)^2) = 1.501 µF.
     part = Mlcc(capacitance=4.7e-6, dielectric="X7R", rated_voltage=16.0)
     assert part.capacitance_at(12.0) == pytest.approx(1.5e-6, rel=0.01)
     assert part.capacitance_at(0.0) == pytest.approx(4.7e-6)
@@ -59,7 +59,7 @@ def test_mlcc_bias_lowers_low_frequency_capacitance():
 
 
 def test_simple_mlcc_is_a_series_rlc_at_resonance():
-    # REFERENCES §3 [derived]: f0 = 1/(2π√(LC)); 10 µF / 0.5 nH -> 2.2508 MHz.
+    # docs/references.md §3 [derived]: f0 = 1/(2π√(LC)); 10 µF / 0.5 nH -> 2.2508 MHz.
     part = Mlcc(
         capacitance=10e-6,
         esl=0.5e-9,
@@ -76,7 +76,7 @@ def test_simple_mlcc_is_a_series_rlc_at_resonance():
 
 
 def test_de_levie_line_check_values():
-    # REFERENCES §3 [derived] for R = 0.3 Ω, C = 100 µF (RC = 30 µs):
+    # docs/references.md §3 [derived] for R = 0.3 Ω, C = 100 µF (RC = 30 µs):
     # ωRC = 1e-3 -> Re Z = 0.100000 (R/3); ωRC = 1 -> Re Z = 0.09937, Ceff = 97.85 µF;
     # ωRC = 100 -> Re Z = 0.02121, Ceff = 14.14 µF, phase -45.00°.
     r, c = 0.3, 100e-6
@@ -91,7 +91,7 @@ def test_de_levie_line_check_values():
 def test_bulk_capacitor_low_frequency_resistance_is_esr_plus_third_of_line():
     part = BulkCapacitor(esr=8e-3, line_resistance=30e-3, leakage_resistance=1e12)
     z = part.impedance(np.array([10.0]))
-    # de Levie low-frequency limit R/3 (REFERENCES §3, derived): 8 mΩ + 30/3 mΩ = 18 mΩ.
+    # de Levie low-frequency limit R/3 (docs/references.md §3, derived): 8 mΩ + 30/3 mΩ = 18 mΩ.
     assert z[0].real == pytest.approx(18e-3, rel=1e-3)
 
 
@@ -100,7 +100,7 @@ def test_inductor_parallel_resonance_near_lc():
     f = np.linspace(45e6, 55e6, 20001)
     z = part.impedance(f)
     f_peak = f[np.argmax(np.abs(z))]
-    # REFERENCES §3 [derived]: 1 µH with 10 pF -> 50.33 MHz; losses move it slightly.
+    # docs/references.md §3 [derived]: 1 µH with 10 pF -> 50.33 MHz; losses move it slightly.
     assert f_peak == pytest.approx(50.33e6, rel=0.01)
 
 
@@ -111,7 +111,7 @@ def test_inductor_skin_effect_raises_resistance_as_sqrt_f():
     )
     z = part.impedance(np.array([1.0, 1e6, 4e6]))
     assert z[0].real == pytest.approx(10e-3, rel=1e-6)
-    # Skin effect (REFERENCES §3: δ ∝ 1/√f): quadrupling f far above the corner doubles R.
+    # Skin effect (docs/references.md §3: δ ∝ 1/√f): quadrupling f far above the corner doubles R.
     assert z[2].real / z[1].real == pytest.approx(2.0, rel=1e-2)
 
 

@@ -1,4 +1,4 @@
-"""zbench's models, parts and landmarks against the worked values of REFERENCES §3.
+"""zbench's models, parts and landmarks against the worked values of docs/references.md §3.
 
 Each check names its source and tag as the references list gives it.
 """
@@ -13,11 +13,11 @@ from bench.core.models import FAMILIES
 from simulated_instruments.parts import de_levie_line
 
 MU0 = 4e-7 * np.pi
-RHO_COPPER = 1.72e-8  # Ω·m, REFERENCES §3
+RHO_COPPER = 1.72e-8  # Ω·m, docs/references.md §3
 
 
 def test_series_rlc_resonance_and_reactances():
-    # REFERENCES §3 [derived]: 10 µF / 0.5 nH / 5 mΩ -> f0 = 2.2508 MHz,
+    # docs/references.md §3 [derived]: 10 µF / 0.5 nH / 5 mΩ -> f0 = 2.2508 MHz,
     # X(1 kHz) = -15.9155 Ω, X(100 MHz) = 0.31400 Ω; |Z(f0)| = ESR.
     # Arithmetic: X = ωL - 1/(ωC); at 1 kHz 3.14e-6 - 15.9155 = -15.9155 Ω;
     # at 100 MHz 0.314159 - 0.000159 = 0.314000 Ω.
@@ -34,14 +34,14 @@ def test_series_rlc_resonance_and_reactances():
 
 
 def test_small_capacitor_resonance():
-    # REFERENCES §3 [derived]: 100 nF / 0.4 nH -> f0 = 25.16 MHz.
+    # docs/references.md §3 [derived]: 100 nF / 0.4 nH -> f0 = 25.16 MHz.
     f = np.logspace(5, 9, 401)
     z = FAMILIES["series-rlc"].impedance(f, {"R": 10e-3, "L": 0.4e-9, "C": 100e-9})
     assert capacitor_landmarks(f, z)["srf"] == pytest.approx(25.16e6, rel=2e-4)
 
 
 def test_mlcc_near_50_mhz_implies_about_one_nanohenry():
-    # REFERENCES §3 [published, via summary]: a 0.01 µF surface-mount part resonates near
+    # docs/references.md §3 [published, via summary]: a 0.01 µF surface-mount part resonates near
     # 50 MHz (Ott 2009); [derived] L = 1/((2π·50 MHz)²·10 nF) = 1.013 nH.
     f = np.logspace(6, 9, 301)
     z = FAMILIES["series-rlc"].impedance(f, {"R": 50e-3, "L": 1.013e-9, "C": 10e-9})
@@ -53,7 +53,7 @@ def test_mlcc_near_50_mhz_implies_about_one_nanohenry():
 
 
 def test_de_levie_line_limits_and_check_values():
-    # REFERENCES §3 [derived]: porous-electrode line, low-frequency Re Z -> R/3, phase
+    # docs/references.md §3 [derived]: porous-electrode line, low-frequency Re Z -> R/3, phase
     # -> -45° at high frequency. R = 0.3 Ω, C = 100 µF: ωRC = 1e-3 -> Re Z = 0.100000 Ω;
     # ωRC = 1 -> Re Z = 0.09937 Ω, Ceff = 97.85 µF; ωRC = 100 -> Re Z = 0.02121 Ω,
     # Ceff = 14.14 µF, phase -45.00°.
@@ -89,7 +89,7 @@ def test_ladder_sections_reproduce_the_de_levie_line():
 
 
 def test_parallel_resonance_1uh_10pf():
-    # REFERENCES §3 [derived]: 1 µH with 10 pF -> SRF 50.33 MHz.
+    # docs/references.md §3 [derived]: 1 µH with 10 pF -> SRF 50.33 MHz.
     f = np.logspace(6, 9, 401)
     values = {"Rdc": 1e-3, "L": 1e-6, "Rp": 1e6, "Cp": 10e-12}
     marks = inductor_landmarks(f, FAMILIES["inductor"].impedance(f, values))
@@ -117,7 +117,7 @@ def test_bead_check_values():
 
 @pytest.mark.parametrize(("f", "delta_um"), [(1e6, 66.0), (100e3, 208.7), (10e6, 20.9)])
 def test_copper_skin_depth(f, delta_um):
-    # REFERENCES §3 [derived]: δ = √(ρ/(π f μ0)), ρ = 1.72e-8 Ω·m -> 66.0 µm at 1 MHz,
+    # docs/references.md §3 [derived]: δ = √(ρ/(π f μ0)), ρ = 1.72e-8 Ω·m -> 66.0 µm at 1 MHz,
     # 208.7 µm at 100 kHz, 20.9 µm at 10 MHz. The parts' skin terms grow as √f, as
     # R ∝ 1/δ does.
     delta = np.sqrt(RHO_COPPER / (np.pi * f * MU0))
@@ -125,7 +125,7 @@ def test_copper_skin_depth(f, delta_um):
 
 
 def test_skin_resistance_scales_as_inverse_skin_depth():
-    # R ∝ 1/δ ∝ √f above the corner (REFERENCES §3, derived from the skin depth):
+    # R ∝ 1/δ ∝ √f above the corner (docs/references.md §3, derived from the skin depth):
     # the inductor family's R-L section does the same only approximately, the true part
     # exactly: Re sqrt(1 + j f/fc) -> sqrt(f/(2 fc)).
     from simulated_instruments.parts import PowerInductor

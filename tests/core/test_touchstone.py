@@ -32,7 +32,7 @@ def _shunt_s(z: np.ndarray, z0: float = 50.0, rs: float = 0.0) -> np.ndarray:
 def test_z_file_round_trip(tmp_path: Path) -> None:
     path = write_touchstone_z(tmp_path / "part.s1p", F, Z, comments=["invented part ZC10U"])
     text = path.read_text()
-    # Published (Touchstone 1.1 spec, REFERENCES §6): option line with an integer R.
+    # Common practice (docs/references.md §6): an integer R, as in the spec's examples.
     assert "# Hz Z RI R 50" in text
     assert "R 50.0" not in text
     assert "!invented part ZC10U" in text
@@ -43,7 +43,7 @@ def test_z_file_round_trip(tmp_path: Path) -> None:
 
 
 def test_z_file_is_normalised_to_r_in_version_1(tmp_path: Path) -> None:
-    # Published (Touchstone 1.1 spec example, REFERENCES §6): '# MHz Z MA R 75' with
+    # Published (Touchstone 1.1 spec example, docs/references.md §6): '# MHz Z MA R 75' with
     # 0.99 at -4 degrees is 0.99·75 = 74.25 Ω in magnitude.
     lines = ["# MHz Z MA R 75"] + [f"{k + 1} 0.99 -4" for k in range(12)]
     path = tmp_path / "spec.s1p"
@@ -146,7 +146,7 @@ def test_interpolate_refuses_to_extrapolate() -> None:
 
 def test_scikit_rf_still_misreads_version_1_y_files(tmp_path: Path) -> None:
     # Published (Touchstone 1.1 spec): v1 Y data is normalised, so 0.5 with R 50 means
-    # 0.5/50 = 0.01 S. Measured here (REFERENCES §6): scikit-rf 2.2 multiplies by R and
+    # 0.5/50 = 0.01 S. Measured here (docs/references.md §6): scikit-rf 2.2 multiplies by R and
     # reads 25 S. This pins the reason load_measurement refuses v1 Y, G and H files;
     # when it fails, scikit-rf has changed and the refusal can be revisited.
     path = _write(tmp_path, "y.s1p", "# Hz Y RI R 50\n1 0.5 0\n2 0.5 0\n")

@@ -1,5 +1,5 @@
 """Measurable window and per-point uncertainty against the trade's rule of thumb and
-the derived sensitivity relations of REFERENCES §1."""
+the derived sensitivity relations of docs/references.md §1."""
 
 from __future__ import annotations
 
@@ -18,7 +18,7 @@ from bench.errors import InputError
 
 def test_plain_50_ohm_window_matches_rule_of_thumb() -> None:
     w = measurable_window()
-    # Common practice, no single source (REFERENCES §1): a plain 50 ohm set-up with
+    # Common practice, no single source (docs/references.md §1): a plain 50 ohm set-up with
     # about 100 dB of dynamic range measures about 1 mΩ to about 225 Ω. "About" is
     # taken as within a factor of 3 at the floor and 25 % at the ceiling.
     assert 1e-3 / 3 < w.z_min < 3e-3
@@ -27,7 +27,7 @@ def test_plain_50_ohm_window_matches_rule_of_thumb() -> None:
 
 
 def test_ceiling_hand_check_0_1_db_and_10_percent() -> None:
-    # Derived (REFERENCES §1): eps = 10**(0.1/20) - 1 = 1.16 %; dZ/Z = eps·(1 + 2Z/50)
+    # Derived (docs/references.md §1): eps = 10**(0.1/20) - 1 = 1.16 %; dZ/Z = eps·(1 + 2Z/50)
     # = 0.1 gives 1 + 2Z/50 = 8.6, Z ≈ 190 Ω. Only the multiplicative error acts there.
     assert db_to_relative(0.1) == pytest.approx(0.0116, abs=1e-4)
     w = measurable_window(trace_noise_db=0.1, through_drift_db=0.0, noise_floor_db=-160.0)
@@ -40,14 +40,14 @@ def test_floor_follows_the_noise_floor() -> None:
     # multiplicative error is negligible: -100 dB, 10 % -> 1e-5·25/0.1 = 2.5 mΩ.
     w = measurable_window(trace_noise_db=0.0, through_drift_db=0.0, noise_floor_db=-100.0)
     assert w.z_min == pytest.approx(2.5e-3, rel=1e-3)
-    # Derived (REFERENCES §1): a -120 dB floor corresponds to 25 µΩ at SNR 1, so at 10 %
+    # Derived (docs/references.md §1): a -120 dB floor corresponds to 25 µΩ at SNR 1, so at 10 %
     # the floor is ten times that.
     w120 = measurable_window(trace_noise_db=0.0, through_drift_db=0.0, noise_floor_db=-120.0)
     assert w120.z_min == pytest.approx(250e-6, rel=1e-3)
 
 
 def test_series_resistors_scale_the_window_by_549_over_50() -> None:
-    # Derived (REFERENCES §1): the window scales by (Z0 + Rs)/Z0 = 549/50 = 10.98 for
+    # Derived (docs/references.md §1): the window scales by (Z0 + Rs)/Z0 = 549/50 = 10.98 for
     # 499 Ω at each port. Common practice: about 11 mΩ to about 2.5 kΩ.
     plain = measurable_window()
     w = measurable_window(series_r=499.0)
@@ -62,7 +62,8 @@ def test_uncertainty_equals_sensitivity_relations() -> None:
     w = measurable_window(noise_floor_db=-90.0, trace_noise_db=0.05, through_drift_db=0.02)
     z = np.array([1e-3, 0.1, 3.0, 50.0, 400.0]) * np.exp(1j * np.array([0, 0.3, -1.2, 1.5, 0]))
     s = shunt_through_s21(z, 50.0)
-    # Derived (REFERENCES §1): dZ/Z = dS21/(S21(1 - S21)); eps multiplicative -> eps/(1 - S21).
+    # Derived (docs/references.md §1): dZ/Z = dS21/(S21(1 - S21));
+    # eps multiplicative -> eps/(1 - S21).
     additive = 10 ** (-90 / 20) / np.abs(s * (1 - s))
     multiplicative = w.multiplicative_error / np.abs(1 - s)
     np.testing.assert_allclose(relative_uncertainty(z, w), np.hypot(additive, multiplicative))

@@ -15,7 +15,7 @@ def test_json_for_a_plain_50_ohm_set_up(capsys: pytest.CaptureFixture[str]) -> N
     for key in ("z_min", "z_max", "z0", "series_r", "noise_floor_db", "tolerance"):
         assert key in data
     assert data["z0"] == 50.0 and data["series_r"] == 0.0
-    # Common practice, no single source (REFERENCES §1): about 1 mΩ to about 225 Ω.
+    # Common practice, no single source (docs/references.md §1): about 1 mΩ to about 225 Ω.
     assert 1e-3 / 3 < data["z_min"] < 3e-3
     assert 150 < data["z_max"] < 260
 
@@ -28,7 +28,7 @@ def test_si_prefixed_values_and_the_549_over_50_scaling(
     assert main(["window", "--series-r", "0.499k", "--z0", "50 ohm", "--json"]) == 0
     scaled = json.loads(capsys.readouterr().out)
     assert scaled["series_r"] == pytest.approx(499.0)
-    # Derived (REFERENCES §1): (50 + 499)/50 = 10.98.
+    # Derived (docs/references.md §1): (50 + 499)/50 = 10.98.
     assert scaled["z_min"] / plain["z_min"] == pytest.approx(10.98, rel=1e-6)
     assert scaled["z_max"] / plain["z_max"] == pytest.approx(10.98, rel=1e-6)
 

@@ -29,7 +29,7 @@ def winding_behind_resistors():
     rng = np.random.default_rng(7)
     ze = 50.0 + 499.0
     z = part.impedance(f)
-    s21 = 2 * z / (2 * z + ze)  # DESIGN §4
+    s21 = 2 * z / (2 * z + ze)  # docs/design.md §4
     noise = rng.standard_normal(f.size) + 1j * rng.standard_normal(f.size)
     s21 = s21 * (1 + 1.2e-3 * noise / np.sqrt(2))
     s21 = s21 + 10 ** (-99 / 20) / np.sqrt(2) * (

@@ -69,7 +69,7 @@ def test_through_then_part_gives_the_capacitor_reactance(links, sim_bench):
     np.testing.assert_allclose(data.f[[0, -1]], [1e3, 10e6])
     assert np.all(np.isfinite(data.s))
 
-    # Z = (Z0/2)·S21n/(1 − S21n), DESIGN §4 / REFERENCES §1 [derived]
+    # Z = (Z0/2)·S21n/(1 − S21n), docs/design.md §4 / docs/references.md §1 [derived]
     s21n = data["S21"] / through["S21"]
     z = 25.0 * s21n / (1 - s21n)
     truth = sim_bench.state.position_impedance(2, data.f)

@@ -145,7 +145,7 @@ def interleave(z: np.ndarray) -> np.ndarray:
 def test_sweep_exchange_and_data(expected_protocol):
     f = np.geomspace(100.0, 1e6, 5)
     s21 = np.array([0.1 + 0.2j, 0.3 - 0.1j, 0.5 + 0j, 0.7 + 0.05j, 0.9 - 0.3j])
-    s11 = s21 - 1  # an ideal shunt element: S11 = S21 - 1 (REFERENCES §1 [derived])
+    s11 = s21 - 1  # an ideal shunt element: S11 = S21 - 1 (docs/references.md §1 [derived])
     script = sweep_script(f, {"S11": interleave(s11), "S21": interleave(s21)})
     with expected_protocol(script) as link:
         data = NetworkAnalyzer(link).sweep(("S11", "S21"))

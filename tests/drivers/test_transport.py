@@ -21,7 +21,8 @@ from drivers.transport import VisaTransport
 
 
 def ieee_block(values: np.ndarray, big_endian: bool = True) -> bytes:
-    """A definite-length block '#<n><len><bytes>' (IEEE 488.2 §8.7.9), built by hand."""
+    """A definite-length block '#<n><len><bytes>' (IEEE Std 488.2 §8.7.9, clause
+    number from memory; docs/references.md §7), built by hand."""
     payload = struct.pack((">" if big_endian else "<") + f"{values.size}d", *values)
     length = str(len(payload)).encode()
     return b"#" + str(len(length)).encode() + length + payload
@@ -59,8 +60,8 @@ def test_query_and_write_round_trip_and_traffic_log(loopback_server, caplog):
 @pytest.mark.parametrize("big_endian", [True, False])
 def test_binary_block_with_newline_bytes_inside(loopback_server, big_endian):
     # 201 complex points as REAL,64: 2*201*8 = 3216 bytes -> header '#43216'
-    # (REFERENCES §7, IEEE 488.2 §8.7.9 definite-length block [published]; arithmetic
-    # derived here).
+    # (docs/references.md §7: IEEE Std 488.2 §8.7.9 definite-length block [published, clause
+    # number from memory]; arithmetic derived here).
     rng = np.random.default_rng(4)
     values = rng.normal(size=402)
     # 0x0a0a0a0a0a0a0a0a as a float64: a value whose bytes are all '\n', so a reader that

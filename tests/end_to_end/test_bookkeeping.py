@@ -99,3 +99,10 @@ def test_console_summary_and_report_give_the_same_landmarks(tmp_path, sim, kit):
             assert f"{name} {shown}" in " ".join(line.split()), (line, key, shown)
         if report is not None:
             assert format_si(row["srf"], "Hz", 4) in report
+    # The drive across each part: in the manifest as in summary.csv. At 0 dBm the source
+    # EMF is sqrt(4·50 Ω·1 mW) = 0.447 V rms (derived), so a part never sees more.
+    manifest = json.loads((store.root / "manifest.json").read_text())
+    for row in exports.summary_rows(runner.summary):
+        label = f"{row['part']}_{row['sample']}"
+        assert manifest["drive_v_rms_max"][label] == pytest.approx(row["drive_v"])
+        assert 0 < row["drive_v"] < 0.448

@@ -12,8 +12,8 @@ The sweeps are noise-free (the demo scenario with its noise floor and trace nois
 to nothing), so what remains is the calibration's own error, not the scatter of one
 sweep. The truth is ``bench.state.position_impedance``: the impedance the cable ends
 see at the position, mount and ground loop included, which is what the corrected S21
-of the part's sweep converts to with the shunt-through relation (DESIGN §4, REFERENCES
-§1, derived).
+of the part's sweep converts to with the shunt-through relation (docs/design.md §4,
+docs/references.md §1, derived).
 """
 
 from __future__ import annotations
@@ -132,7 +132,7 @@ def test_ideal_kit_reads_low_by_the_load_error(noise_free_run, tmp_path):
 
 def test_with_noise_the_hand_over_adds_nothing_to_one_sweeps_scatter(tmp_path):
     # The demo as it runs (its noise, one average): near 1 MHz the 22 µF part is a few
-    # mΩ (its series resonance is at 1.58 MHz), S21 ≈ −80 dB against a −100 dB floor, so
+    # mΩ (its series resonance is at 1.69 MHz), S21 ≈ −80 dB against a −100 dB floor, so
     # one sweep scatters by a few percent per point and the fixed scenario seed draws the
     # same excursion on every run. The hybrid's two bands cannot be told apart on the
     # same sweeps: below the crossover its match-corrected S21 equals full SOLT to far

@@ -182,7 +182,7 @@ def test_check_describes_a_bias_procedure_in_plain_words():
     text = re.sub(r"\n +", " ", result.output)  # wrapped lines joined
     assert "no series resistors" in text and "ohm" not in text
     assert "no averaging" in text and "(s)" not in text
-    # DESIGN §7: ramp, output off with a discharge wait, a caution that defers to local
+    # docs/design.md §7: ramp, output off with a discharge wait, a caution that defers to local
     # safety rules and the instruments' manuals.
     assert "ramped in 0.5\u00a0V steps" in text
     assert "output off and a 2\u00a0s discharge wait" in text

@@ -141,8 +141,13 @@ def test_no_procedure_values_pass_a_bias_limit(rated, tee, block, source, points
     try:
         plan = build_plan(doc)
     except ProcedureError as exc:
-        # Rejected: some point is negative or above the lowest rating, and it says which.
-        assert any(float(f"{p:.6g}") > limit or p < 0 for p in points), str(exc)
+        # Rejected: some point is negative or above the lowest rating, or repeats another
+        # (one step per bias point), and it says which.
+        written = [f"{p:.6g}" for p in points]
+        repeated = len(set(written)) < len(written)
+        assert repeated or any(
+            float(w) > limit or p < 0 for w, p in zip(written, points, strict=True)
+        ), str(exc)
         return
     for step in plan.steps:
         assert 0.0 <= step.bias_v <= limit

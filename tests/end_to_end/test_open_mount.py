@@ -90,7 +90,7 @@ steps: [calibrate, mount_short, measure, fit]
 @pytest.mark.parametrize("mount", ["measured", "fitted"])
 def test_ground_loop_notes_agree_with_processing(tmp_path, sim, kit, mount):
     # The cable-shield loop's error is in series in both the short and the part
-    # (REFERENCES §2, first-order model), so a measured short removes it and every
+    # (docs/references.md §2, first-order model), so a measured short removes it and every
     # point is kept; a fitted Rm + jωLm cannot follow it, so those points are dropped.
     # The run's note, the live line and processing must say the same.
     plan, store = kit.start_run(tmp_path, LOOP.replace("MOUNT", mount))

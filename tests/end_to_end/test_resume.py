@@ -141,7 +141,7 @@ def test_open_mount_step_resumes_with_its_sweeps_kept(tmp_path, sim, kit):
     assert all(after[k] == v for k, v in kept.items()), "stored sweeps are not taken again"
     assert any(a.startswith("emptied mount") and "2" in a for a in hands[0].actions)
     assert set(store2.manifest["mount_open"]) == {"1", "2", "3"}
-    # A plain 50 ohm set-up cannot reach a fraction of a pF (REFERENCES §1: its window
+    # A plain 50 ohm set-up cannot reach a fraction of a pF (docs/references.md §1: its window
     # ends near 200 ohm): the open is recorded as not used, and said so, not guessed.
     summary = runner.summary
     assert summary is not None

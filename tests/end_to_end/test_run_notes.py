@@ -163,7 +163,7 @@ def _loop_notes(warnings) -> list[str]:
 
 @pytest.mark.parametrize("mount", ["measured", "fitted"])
 def test_one_ground_loop_note_per_position_saying_what_happened(tmp_path, sim, kit, mount):
-    # REFERENCES §2 (first-order model): the loop's series error is in the short as much
+    # docs/references.md §2 (first-order model): the loop's series error is in the short as much
     # as in the part, so a measured short removes it; a fitted Rm + jωLm cannot.
     text = LOOP.replace(
         "calibration: {method: through}",

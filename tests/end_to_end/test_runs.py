@@ -122,7 +122,7 @@ def test_bias_sweep_keeps_limits_and_leaves_output_off(tmp_path, sim, kit):
     assert max(seen) == pytest.approx(6.3)
     summary = runner.summary
     c = {s.bias_v: s.fit.landmarks["c_low"] for s in summary.samples if s.sample == "s1"}
-    # Class II ceramics lose capacitance under DC bias (REFERENCES §5, published: Fortunato
+    # Class II ceramics lose capacitance under DC bias (docs/references.md §5, published: Fortunato
     # 2012; Prymak et al. 2010): C must fall monotonically with bias.
     assert c[0.0] > c[3.0] > c[6.3]
     assert (store.root / "models" / "MC22-6V3_bias.csv").is_file()
@@ -188,7 +188,7 @@ def test_series_resistors_raise_the_window_and_keep_the_impedance(tmp_path, sim,
     kit.run_on(sim, plan, store)
     summary = build_summary(store, plan, fit=False)
     window = summary.samples[0].data.window
-    # Window floor and ceiling scale by (Z0 + Rs)/Z0 = 549/50 (REFERENCES §1, derived):
+    # Window floor and ceiling scale by (Z0 + Rs)/Z0 = 549/50 (docs/references.md §1, derived):
     # about 1 mΩ … 225 Ω at 50 Ω becomes about 11 mΩ … 2.5 kΩ (common practice).
     assert 1.5e3 < window.z_max < 4e3
     inductor = next(s for s in summary.samples if s.part == "PL530N")

@@ -1,7 +1,7 @@
 """A small run built in memory for the export and report tests.
 
 Invented parts from :mod:`simulated_instruments.parts`, turned into noisy shunt-through
-measurements (DESIGN §4), through the real impedance chain and the real fitter, into a
+measurements (docs/design.md §4), through the real impedance chain and the real fitter, into a
 :class:`bench.results.RunSummary`. ``conftest.py`` imports it by file path and builds
 the run once per test session.
 """

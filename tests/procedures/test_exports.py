@@ -58,7 +58,7 @@ def test_every_fitted_sample_gets_a_subcircuit_that_parses(summary, run_dir):
         assert list(blocks) == [exports.sample_spice_name(sample)]
         for line in blocks[exports.sample_spice_name(sample)]:
             assert ELEMENT.match(line), line
-        # Provenance of DESIGN §4: run, part, sample, bias, raw file, software, date.
+        # Provenance of docs/design.md §4: run, part, sample, bias, raw file, software, date.
         for needle in (summary.run_id, sample.part, f"bias: {sample.bias_v:g} V", sample.raw_file):
             assert needle in text
         assert "zbench 0.1.0" in text and "date: 2026-01-01T12:00:00Z" in text

@@ -18,7 +18,7 @@ def open_instrument() -> Iterator[
     Callable[[RunningBench, str], pyvisa.resources.MessageBasedResource]
 ]:
     """``open_instrument(bench, "analyzer")``: a pyvisa-py SOCKET session with ``\\n``
-    read and write termination (REFERENCES §7), closed after the test."""
+    read and write termination (docs/references.md §7), closed after the test."""
     rm = pyvisa.ResourceManager("@py")
     opened: list = []
 

@@ -58,7 +58,7 @@ def test_resistive_load_runs_into_the_current_limit(sim_bench, bench_client):
 
 
 def test_bias_lowers_the_capacitance_of_a_class_ii_mlcc(sim_bench, bench_client):
-    """C(V) = C0/(1 + (V/V50)²) (REFERENCES §5 simulator heuristic, derived from a
+    """C(V) = C0/(1 + (V/V50)²) (docs/references.md §5 simulator heuristic, derived from a
     published 0805 X7R measurement); V50 = 0.51 × 10 V rated for the X7R part, so at
     5.1 V the capacitance halves."""
     client = bench_client(sim_bench)
@@ -69,16 +69,20 @@ def test_bias_lowers_the_capacitance_of_a_class_ii_mlcc(sim_bench, bench_client)
     client.do("OPER:CABL FIXT")
     client.do('OPER:PLAC 2,"MC4U7-10V/s1"')
     client.select(2)
+    part = sim_bench.scenario.parts["MC4U7-10V/s1"]
+    truth: list[float] = []
 
     def capacitance(volts: float) -> float:
         client.dc.write(f"SOUR:VOLT {volts};:OUTP ON")
         assert wait_for(lambda: abs(float(client.dc.query("MEAS:CURR?"))) < 1e-4)
         f, s = client.sweep()
         s21n = s[:, 1, 0] / through[:, 1, 0]
-        z = 25 * s21n / (1 - s21n)  # shunt-through, DESIGN §4
+        z = 25 * s21n / (1 - s21n)  # shunt-through, docs/design.md §4
+        # The true part read the same way: its causal dielectric's capacitance is the
+        # nominal one at 1 kHz and falls slowly with frequency (docs/references.md §9).
+        truth.append(float(np.median(-1 / (2 * np.pi * f * part.impedance(f, volts).imag))))
         return float(np.median(-1 / (2 * np.pi * f * z.imag)))
 
-    part = sim_bench.scenario.parts["MC4U7-10V/s1"]
     # Each sample of the lot has its own half-capacitance voltage (spread about the
     # dielectric's 0.51 × 10 V = 5.1 V).
     v50 = part.v50_volts
@@ -87,7 +91,8 @@ def test_bias_lowers_the_capacitance_of_a_class_ii_mlcc(sim_bench, bench_client)
     c_half = capacitance(v50)
     c_rated = capacitance(10.0)
     client.dc.write("OUTP OFF")
-    assert c0 == pytest.approx(part.capacitance, rel=0.05)
+    assert c0 == pytest.approx(truth[0], rel=0.05)
+    assert truth[0] == pytest.approx(part.capacitance, rel=0.1)
     assert c_half / c0 == pytest.approx(0.5, rel=0.02)
     # At the rated 10 V: 1/(1 + (10/v50)²), about 0.21 for 5.1 V (derived); "up to 70 %
     # loss at rated voltage" (Prymak et al., CARTS 2010, docs/references.md §5) is the

@@ -90,7 +90,7 @@ def test_sweep_ascii_and_binary_agree_in_both_byte_orders(sim_bench, open_instru
     ascii_f = np.array([float(x) for x in vna.query("FREQ:DATA?").split(",")])
     ascii_s21 = np.array([float(x) for x in vna.query("TRAC? S21").split(",")])
     # Definite-length block of 201 complex REAL,64 points: 3216 bytes, header #43216
-    # (REFERENCES §7, IEEE 488.2 §8.7.9).
+    # (docs/references.md §7; IEEE Std 488.2 §8.7.9, clause from memory).
     vna.write("FORM REAL,64;BORD NORM")
     big = vna.query_binary_values(
         "TRAC:DATA? S21", datatype="d", is_big_endian=True, container=np.array
@@ -108,7 +108,7 @@ def test_sweep_ascii_and_binary_agree_in_both_byte_orders(sim_bench, open_instru
     np.testing.assert_array_equal(big, ascii_s21)  # ASCII has full precision
     np.testing.assert_array_equal(little, ascii_s21)
     # The raw bytes, read off a plain socket (a VISA read would stop at a 0x0A byte
-    # inside the block, REFERENCES §7).
+    # inside the block, docs/references.md §7).
     with socket.create_connection(("127.0.0.1", sim_bench.ports["analyzer"]), timeout=5) as sock:
         sock.sendall(b"FORM REAL,64;BORD NORM;:TRAC? S11\n")
         raw = b""

@@ -2,8 +2,8 @@
 
 Every measurement here goes over real sockets with pyvisa-py; the truth comes from the
 bench's own state (the circuits it simulates), and the checks use relations from
-outside the project: scikit-rf's SOLT, the shunt-through relation of DESIGN §4 /
-REFERENCES §1, the ground-loop model and values of REFERENCES §2.
+outside the project: scikit-rf's SOLT, the shunt-through relation of docs/design.md §4 /
+docs/references.md §1, the ground-loop model and values of docs/references.md §2.
 """
 
 from __future__ import annotations
@@ -55,13 +55,13 @@ def solt(raw, kit: CalibrationKit) -> SOLT:
 
 
 def shunt_impedance(s21n: np.ndarray, ze: float | np.ndarray = Z0) -> np.ndarray:
-    # Shunt-through: Z = (Ze/2)·S21n/(1 − S21n) (DESIGN §4; REFERENCES §1, derived).
+    # Shunt-through: Z = (Ze/2)·S21n/(1 − S21n) (docs/design.md §4; docs/references.md §1, derived).
     return (ze / 2) * s21n / (1 - s21n)
 
 
 def relative_noise(s21n: np.ndarray, floor_db: float, trace_db: float) -> np.ndarray:
     """Expected relative error of Z from noise: |δS21| / |S21n (1 − S21n)|
-    (REFERENCES §1 sensitivity, derived), δS21 = floor + trace·|S21n|."""
+    (docs/references.md §1 sensitivity, derived), δS21 = floor + trace·|S21n|."""
     ds = 10 ** (floor_db / 20) + (10 ** (trace_db / 20) - 1) * np.abs(s21n)
     return ds / np.abs(s21n * (1 - s21n))
 
@@ -91,7 +91,7 @@ def test_solt_on_raw_standards_recovers_the_true_part(sim_bench, bench_client):
 
 def test_shunt_through_impedance_matches_the_part_inside_the_window(sim_bench, bench_client):
     """Through-normalised S21 through Z = (Z0/2)·S21n/(1 − S21n) gives the part's true
-    impedance wherever the noise-limited window says it should (DESIGN §4)."""
+    impedance wherever the noise-limited window says it should (docs/design.md §4)."""
     client = bench_client(sim_bench)
     client.configure(1e3, 100e6, 401)
     client.do("OPERator:TRANsformer ON")
@@ -159,7 +159,7 @@ def test_noise_floor_and_trace_noise_follow_bandwidth_and_power(sim_bench, bench
 
 
 def test_ground_loop_appears_without_transformer_and_goes_with_it(sim_bench, bench_client):
-    """Ground loop (REFERENCES §2, derived from the EDI CON 2018 paper and Ott 2009 with
+    """Ground loop (docs/references.md §2, derived from the EDI CON 2018 paper and Ott 2009 with
     Rsh = 13 mΩ, fc = 2 kHz): |Zerr| = 5.81 mΩ at 1 kHz, 4.60 mΩ at 2 kHz, 0.647 mΩ at
     20 kHz; with a 1 mH choke 26.8 µΩ at 1 kHz."""
     sc = sim_bench.scenario

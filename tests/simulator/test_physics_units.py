@@ -27,19 +27,19 @@ def test_abcd_conversions_agree_with_scikit_rf():
 
 @pytest.mark.parametrize(
     ("z", "s21"),
-    # REFERENCES §1 check values [derived]: S21 = 2Z/(2Z + Z0).
+    # docs/references.md §1 check values [derived]: S21 = 2Z/(2Z + Z0).
     [(1e-3, 3.99984e-5), (1.0, 0.0384615), (25.0, 0.5), (250.0, 0.90909)],
 )
 def test_shunt_element_check_values(z, s21):
     s = physics.abcd_to_s(physics.shunt_abcd(np.array([z], dtype=complex)))
     assert s[0, 1, 0].real == pytest.approx(s21, rel=1e-5)
-    # For an ideal shunt element S11 = S21 − 1 (REFERENCES §1, derived).
+    # For an ideal shunt element S11 = S21 − 1 (docs/references.md §1, derived).
     assert s[0, 0, 0] == pytest.approx(s[0, 1, 0] - 1, abs=1e-15)
 
 
 def test_series_resistors_through_level_and_window_scaling():
     """Rs = 450 Ω at each port: the raw through falls to 0.1 (−20 dB) and S21n = 0.5
-    means Z = 250 Ω (REFERENCES §1, derived)."""
+    means Z = 250 Ω (docs/references.md §1, derived)."""
     r = physics.series_abcd(np.array([450.0 + 0j]))
     through = physics.abcd_to_s(physics.cascade(r, r))[0, 1, 0]
     assert through.real == pytest.approx(0.1, rel=1e-12)
@@ -48,7 +48,7 @@ def test_series_resistors_through_level_and_window_scaling():
 
 
 def test_ground_loop_check_values():
-    """REFERENCES §2 [derived; Rsh = 13 mΩ, fc = 2 kHz]: 5.81 mΩ at 1 kHz, 4.60 mΩ at
+    """docs/references.md §2 [derived; Rsh = 13 mΩ, fc = 2 kHz]: 5.81 mΩ at 1 kHz, 4.60 mΩ at
     2 kHz, 0.647 mΩ at 20 kHz, 0.130 mΩ at 100 kHz, 6.5 mΩ at DC; with a 1 mH choke
     268 µΩ at 100 Hz and 26.8 µΩ at 1 kHz."""
     f = np.array([1e3, 2e3, 20e3, 100e3, 1e-3])
@@ -59,7 +59,7 @@ def test_ground_loop_check_values():
 
 
 def test_fixture_check_value():
-    """REFERENCES §4 [derived]: 10 MHz, Zs = 1 mΩ + 100 pH, Yo = 0.5 pF,
+    """docs/references.md §4 [derived]: 10 MHz, Zs = 1 mΩ + 100 pH, Yo = 0.5 pF,
     DUT = 0.01 + j0.0125664 Ω (10 mΩ + 200 pH) gives Zm = 0.0110000079 + j0.0188495577 Ω."""
     mount = physics.Mount(resistance=1e-3, inductance=100e-12, open_capacitance=0.5e-12)
     f = np.array([10e6])

@@ -254,7 +254,7 @@ def test_faults_from_the_scenario(sim_bench_factory, open_instrument):
 
 def test_new_message_interrupts_a_waiting_opc_query(sim_bench_factory):
     # 1601 points at 10 Hz IFBW: a 384 s sweep, 3.8 s at this time scale; the client
-    # does not wait for *OPC? and sends another query (IEEE 488.2 §6.3.2.3: -410).
+    # does not wait for *OPC? and sends another query (IEEE Std 488.2 §6.3.2.3, from memory: -410).
     bench = sim_bench_factory("demo", time_scale=0.01)
     sock = raw_client(bench, "analyzer")
     sock.sendall(b"SWE:POIN 1601;:BAND 10;:INIT;*OPC?\n")

@@ -96,7 +96,8 @@ def test_semicolon_keeps_the_path_and_colon_resets_it():
     assert not session.errors, list(session.errors)
     assert toy.values == {"start": 10.0, "stop": 20.0, "power": -5.0, "points": 11.0}
     responses, _ = run(toy, "FREQ:STAR?;STOP?;*IDN?;STAR?")
-    # A common command does not change the path (IEEE 488.2 §7.6.1.2 / SCPI-99 §6.2.5).
+    # A common command does not change the path (IEEE Std 488.2 §7.6.1.2 / SCPI-99 §6.2.5,
+    # clause numbers from memory; docs/references.md §7).
     assert responses == ["10.0", "20.0", "zbench,toy,0,1", "10.0"]
 
 
@@ -117,7 +118,8 @@ def test_optional_nodes_in_the_middle():
 @pytest.mark.parametrize(
     ("text", "unit", "value"),
     [
-        # IEEE 488.2 §7.7.3 suffix multipliers: M is milli, MA mega, but MHZ is mega.
+        # IEEE Std 488.2 §7.7.3 suffix multipliers (clause from memory; docs/references.md §7):
+        # M is milli, MA mega, but MHZ is mega.
         ("1.5MHZ", "HZ", 1.5e6),
         ("1.5 MHz", "HZ", 1.5e6),
         ("10KHZ", "HZ", 1e4),
@@ -210,7 +212,7 @@ def test_header_suffix_out_of_range_and_undefined():
 
 
 def test_blocks_ieee_488_2():
-    # 201 complex REAL,64 points -> 3216 bytes -> header #43216 (REFERENCES §7).
+    # 201 complex REAL,64 points -> 3216 bytes -> header #43216 (docs/references.md §7).
     payload = struct.pack(">402d", *range(402))
     block = format_block(payload)
     assert block.startswith(b"#43216")
@@ -223,9 +225,9 @@ def test_error_queue_overflow_and_status():
     for _ in range(ERROR_QUEUE_SIZE + 5):
         session.push_error(-113, "x")
     assert len(session.errors) == ERROR_QUEUE_SIZE
-    assert session.errors[-1][0] == -350  # SCPI-99: the last entry says the queue overflowed
+    assert session.errors[-1][0] == -350  # SCPI-99, docs/references.md §7: last entry = overflow
     assert session.status_byte() & 0x04
-    assert session.esr & 0x20  # command error bit (IEEE 488.2 §11.5.1)
+    assert session.esr & 0x20  # command error bit (IEEE Std 488.2 §11.5.1, from memory)
     assert error_string(-222, 'too "big"') == "-222,\"Data out of range;too 'big'\""
 
 

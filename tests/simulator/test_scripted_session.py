@@ -46,7 +46,7 @@ def calibrate(client, kit):
 
 
 def noise_limited(s21n, floor_rel, trace_db=0.01):
-    """Relative noise of Z from |δS21| / |S21n (1 − S21n)| (REFERENCES §1, derived).
+    """Relative noise of Z from |δS21| / |S21n (1 − S21n)| (docs/references.md §1, derived).
 
     δS21: the floor plus the trace noise (complex RMS √2 × its per-component RMS) times
     |S21|, and √2 more because the through of the calibration carries the same noise.
@@ -73,8 +73,8 @@ def test_calibrate_and_measure_every_position(sim_bench, bench_client):
         client.do(f'OPERator:PLACe {position},"{name}"')
         f, s = client.sweep()
         s21 = cal.apply_cal(network(f, s)).s[:, 1, 0]
-        # Shunt-through Z = (Z0/2)·S21/(1 − S21) (DESIGN §4, REFERENCES §1), minus the
-        # mount short (DESIGN §4 fixture removal).
+        # Shunt-through Z = (Z0/2)·S21/(1 − S21) (docs/design.md §4, docs/references.md §1), minus
+        # the mount short (docs/design.md §4 fixture removal).
         z = 25 * s21 / (1 - s21) - z_short
         # The truth of that difference: (part ‖ pads) − (strap ‖ pads); the strap's 8 pH
         # is the mount short's own error, which near a 15 mΩ resonance is 10 %.
@@ -89,12 +89,12 @@ def test_calibrate_and_measure_every_position(sim_bench, bench_client):
         checked += 1
 
     # Inductor and bead with 499 Ω series resistors and a through normalisation that
-    # includes them: Z = ((Z0 + Rs)/2)·S21n/(1 − S21n) (REFERENCES §1, derived).
+    # includes them: Z = ((Z0 + Rs)/2)·S21n/(1 − S21n) (docs/references.md §1, derived).
     client.configure(1e3, 100e6, 401, ifbw=1e3)
     client.do("OPERator:RESistors 499")
     client.do("OPERator:CABLes THRough")
     f, through = client.sweep()
-    # Raw through level falls to Z0/(Z0 + Rs) = 0.0911 (REFERENCES §1, derived), here on
+    # Raw through level falls to Z0/(Z0 + Rs) = 0.0911 (docs/references.md §1, derived), here on
     # top of the analyser's own tracking, so compare with the through without resistors.
     client.do("OPERator:RESistors 0")
     _, plain = client.sweep()

@@ -34,7 +34,7 @@ CROSS = re.compile(
 )
 # The old form, written in pieces so this file does not match itself.
 _OLD_NAMES = "REFER" + "ENCES|DES" + "IGN"
-OLD_FORM = re.compile(rf"\b(?:{_OLD_NAMES})(?:\.md\b|{BREAK}§)")
+OLD_FORM = re.compile(rf"\b(?:{_OLD_NAMES})(?:\.md\b|{BREAK}§)|\bdesign notes \(?§")
 SKIP_SUFFIXES = {".s1p", ".s2p", ".z1p", ".png", ".ico", ".gz", ".zip"}
 
 
@@ -82,7 +82,10 @@ def line_of(text: str, index: int) -> int:
 
 @pytest.fixture(scope="module")
 def corpus() -> dict[Path, str]:
-    texts = {p: read_text(p) for p in tracked_files()}
+    """Text of every tracked file but this one, whose examples of the patterns cite
+    sections that need not exist."""
+    here = Path(__file__).resolve()
+    texts = {p: read_text(p) for p in tracked_files() if p.resolve() != here}
     return {p: t for p, t in texts.items() if t is not None}
 
 
@@ -93,6 +96,23 @@ def test_both_documents_exist_with_numbered_sections():
         # The numbering the code was written against: design §1-§8, references §1-§9.
         expected = range(1, 9) if doc == "design" else range(1, 10)
         assert {str(k) for k in expected} <= found, (doc, sorted(found))
+
+
+def test_every_citation_lands_on_a_section(corpus):
+    known = {doc: sections(doc) for doc in DOCS}
+    cited = 0
+    missing = []
+    for path, text in corpus.items():
+        for match in CITATION.finditer(text):
+            doc = match.group(1)
+            for number in numbers(match.group(2)):
+                cited += 1
+                if number not in known[doc]:
+                    where = f"{path.relative_to(ROOT)}:{line_of(text, match.start())}"
+                    missing.append(f"{where}: docs/{doc}.md §{number}")
+    assert not missing, "citations of sections that do not exist:\n" + "\n".join(missing)
+    # The code cites both documents widely; finding none means the pattern is broken.
+    assert cited > 50
 
 
 def test_the_documents_cite_each_other_by_existing_sections():
@@ -106,6 +126,15 @@ def test_the_documents_cite_each_other_by_existing_sections():
                 if number not in known[doc]:
                     missing.append(f"{path.name}:{line_of(text, match.start())}: {doc} §{number}")
     assert not missing, "\n".join(missing)
+
+
+def test_no_file_cites_the_old_documents(corpus):
+    hits = [
+        f"{path.relative_to(ROOT)}:{line_of(text, m.start())}: {m.group(0)!r}"
+        for path, text in corpus.items()
+        for m in OLD_FORM.finditer(text)
+    ]
+    assert not hits, "cite docs/design.md §n or docs/references.md §n instead:\n" + "\n".join(hits)
 
 
 @pytest.mark.parametrize(
@@ -133,3 +162,5 @@ def test_old_form_pattern():
     assert OLD_FORM.search(f"handbooks; {old}\n# §4")
     assert not OLD_FORM.search("docs/references.md §4")
     assert not OLD_FORM.search("DEVELOPERS.md")
+    assert OLD_FORM.search("the design notes (§8)")
+    assert not OLD_FORM.search("the design notes, [docs/design.md](docs/design.md)")

@@ -1,4 +1,4 @@
-"""The command-line entry point: exit codes and messages (contract: DESIGN §3)."""
+"""The command-line entry point: exit codes and messages (contract: docs/design.md §3)."""
 
 import click
 

@@ -1,6 +1,6 @@
 """``bead``: a ferrite bead, ``Rdc + (L ‖ R ‖ C)``, optionally ``+ Σ (Lk ‖ Rk)``.
 
-The parallel L-R-C is the common-practice bead model (REFERENCES §3): below the peak the
+The parallel L-R-C is the common-practice bead model (docs/references.md §3): below the peak the
 ferrite is inductive, at the peak resistive (``R``), above it the winding capacitance
 takes over. Further L‖R sections (orders 2 and 3) are the Foster form of the ferrite's
 permeability dispersion: a first-order relaxation ``μ(f) = μ0/(1 + j f/fr)`` gives

@@ -4,7 +4,7 @@ The R-L sections model the winding's frequency-dependent resistance (skin and pr
 effect): each adds inductance ``Ls_k`` below its corner ``Rs_k/(2π·Ls_k)`` and resistance
 ``Rs_k`` above it, so resistance rises and inductance falls with frequency. ``Rp`` is the
 core loss and ``Cp`` the winding capacitance that sets the parallel resonance (SRF);
-(Grandi et al. 2004, REFERENCES §3). The number of sections (0..2) is chosen by the
+(Grandi et al. 2004, docs/references.md §3). The number of sections (0..2) is chosen by the
 fitter. The winding gives the DC path.
 """
 

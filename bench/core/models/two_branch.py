@@ -2,7 +2,7 @@
 
 Branch 1 carries the capacitance and the main resonance; branch 2, smaller, places a
 second resonance and anti-resonance above the first, as the stack's higher modes do
-(two parallel branches for MLCCs are common practice, REFERENCES §3).
+(two parallel branches for MLCCs are common practice, docs/references.md §3).
 """
 
 from __future__ import annotations

@@ -55,6 +55,11 @@ def fit(ctx: RunContext, step: Step) -> None:
             )
         else:
             ctx.display.result(f"fit {sample.label}: no model ({sample.fit_error})")
+    # The AC drive across each part (class II ceramics depend on it), for the record.
+    from bench.verdicts import sample_drive
+
+    drives = {s.label: sample_drive(summary, s) for s in summary.samples}
+    ctx.store.update("drive_v_rms_max", {k: v for k, v in drives.items() if v is not None})
     ctx.summary = summary
 
 
