@@ -73,7 +73,7 @@ def test_the_stitched_bulk_capacitor_recovers_its_true_capacitance(stitched):
         assert d.f[0] == pytest.approx(10.0) and d.f[-1] == pytest.approx(100e6)
         part = truth[f"PB345-7V1/{sample.sample}"]
         true = landmarks_for("capacitor", d.f, part.impedance(d.f, 0.0), d.inside_window)
-        # 2 %: the accuracy the method issue asks of C (a project target), against the
+        # 2 %: the project's accuracy target for C (no outside source), against the
         # invented part's own impedance on the same points.
         name, value = exports.main_landmark(summary.part(sample.part), sample)
         assert name == "c_low"
