@@ -60,6 +60,26 @@ def describe_plan(plan: Plan) -> str:
         f"  fixture    {positions}; {resistors}; isolation transformer "
         f"{'fitted' if fx.isolation_transformer else 'not fitted'}",
     ]
+    g = plan.gain_phase
+    if g is not None:
+        z_in = (
+            f"receiver B {format_si(g.input_resistance, 'Ω')} ∥ "
+            f"{format_si(g.input_capacitance, 'F')}"
+            if g.input_resistance is not None
+            else "receiver B ideal"
+        )
+        lines.extend(
+            textwrap.wrap(
+                f"gain-phase analyser {format_si(g.start, 'Hz')} to {format_si(g.stop, 'Hz')}, "
+                f"{g.points} points {g.spacing}, bandwidth {format_si(g.bandwidth, 'Hz')}, "
+                f"{g.level:g} dBm; reference resistor {format_si(g.reference_resistor, 'Ω')}, "
+                f"{z_in}; sweeps each gain-phase part where it sits in the fixture, and each "
+                "used position's strap",
+                width=88,
+                initial_indent="  gain-phase ",
+                subsequent_indent=" " * 13,
+            )
+        )
     text = cal.method + (
         f" (crossover {format_si(cal.crossover_hz, 'Hz')})" if cal.crossover_hz else ""
     )

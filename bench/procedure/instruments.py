@@ -13,17 +13,24 @@ from bench.procedure.plan import Plan
 
 @dataclass
 class BenchInstruments:
-    """The opened instruments of a run; ``switch``, ``dc_transport``, ``bench`` may be None."""
+    """The opened instruments of a run; ``switch``, ``dc_transport``, ``bench`` and
+    ``gain_phase`` may be None."""
 
     analyzer: Any
     switch: Any = None
     dc_transport: Any = None
     bench: Any = None
     transports: list[Any] = field(default_factory=list)
+    gain_phase: Any = None
 
     def snapshot(self) -> dict[str, Any]:
         """Identities and settings for the manifest (best effort per instrument)."""
         info: dict[str, Any] = {"analyzer": self.analyzer.snapshot()}
+        if self.gain_phase is not None:
+            try:
+                info["gain_phase"] = self.gain_phase.snapshot()
+            except Exception as exc:  # provenance, not a reason to stop
+                info["gain_phase"] = {"error": str(exc)}
         for role, inst in (("switch", self.switch), ("bench", self.bench)):
             if inst is not None:
                 try:
@@ -38,8 +45,11 @@ class BenchInstruments:
 def needed_roles(plan: Plan, *, scripted: bool) -> list[str]:
     """The instruments a plan needs: the analyser, the fixture switch (a fixture of more
     than one position, or whenever a switch resource is named), a DC source for biased
-    parts, and the bench-control port when a scripted operator does the hands."""
+    parts, the gain-phase analyser for parts measured with it, and the bench-control port
+    when a scripted operator does the hands."""
     roles = ["analyzer"]
+    if plan.gain_phase is not None:
+        roles.append("gain_phase")
     if plan.fixture.positions > 1 or plan.instruments["switch"].resource:
         roles.append("switch")
     if plan.biased:
@@ -54,6 +64,7 @@ def open_instruments(plan: Plan, *, scripted: bool) -> Iterator[BenchInstruments
     """Open every needed instrument of ``plan``; close them all on the way out."""
     from drivers.analyzer import NetworkAnalyzer
     from drivers.bench_control import BenchControl
+    from drivers.gain_phase import GainPhaseAnalyzer
     from drivers.instrument_maps import load_instrument_map
     from drivers.switch import FixtureSwitch
     from drivers.transport import VisaTransport
@@ -83,7 +94,12 @@ def open_instruments(plan: Plan, *, scripted: bool) -> Iterator[BenchInstruments
             switch = FixtureSwitch(link("switch"), plan.fixture.positions, commands=commands)
         dc = link("dc_source") if "dc_source" in roles else None
         bench = BenchControl(link("bench")) if "bench" in roles else None
-        yield BenchInstruments(analyzer, switch, dc, bench, transports)
+        gain_phase = None
+        if "gain_phase" in roles:
+            gain_phase = GainPhaseAnalyzer(
+                link("gain_phase"), plan.instruments["gain_phase"].command_map
+            )
+        yield BenchInstruments(analyzer, switch, dc, bench, transports, gain_phase)
     finally:
         for transport in reversed(transports):
             with contextlib.suppress(Exception):

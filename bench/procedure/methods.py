@@ -132,6 +132,47 @@ def capture_result(method: str, kind: str, f: np.ndarray, z: np.ndarray) -> str:
     return f"{CAPTURE_WORDS[(method, kind)]}: {format_si(capacitance, 'F', 3)} (upper decade)"
 
 
+def gain_phase_short(plan: Plan, store: RunStore, position: int) -> np.ndarray | None:
+    """The gain-phase analyser's reading of ``position``'s strap (Ω, receiver B's input
+    removed, on its own sweep's grid), or None when it was not captured."""
+    from bench.core.conversions import gain_phase_z
+    from bench.procedure.plan import GAIN_PHASE
+    from bench.procedure.processing import averaged
+
+    step_id = f"mount_short/{GAIN_PHASE}/p{position}"
+    g = plan.gain_phase
+    if g is None or step_id not in {s.id for s in plan.steps}:
+        return None
+    if store.step_state(step_id) != DONE:
+        return None
+    f, s = averaged(store, step_id)
+    return gain_phase_z(s[:, 1, 0], r_ref=g.reference_resistor, z_in=g.input_impedance(f))
+
+
+def gain_phase_impedance(
+    plan: Plan, analysis: Analysis, f: np.ndarray, ratio: np.ndarray, z_short: Any
+) -> ImpedanceData:
+    """A part's impedance from the gain-phase analyser's ratio B/A, receiver B's input
+    and the position's strap removed, with the set-up's window (the divider's, on twice
+    the reference resistor: :func:`bench.core.gain_phase.impedance_from_gain_phase`)."""
+    from bench.core.gain_phase import impedance_from_gain_phase
+
+    g = plan.gain_phase
+    if g is None:
+        raise ValueError("the procedure has no gain_phase section")
+    if z_short is not None and np.shape(z_short) != np.shape(f):
+        z_short = None  # a strap swept on another grid (an edited sweep) is not used
+    return impedance_from_gain_phase(
+        f,
+        ratio,
+        r_ref=g.reference_resistor,
+        z_in=g.input_impedance(f),
+        mount_short=z_short,
+        noise_floor_db=g.noise_floor_db,
+        tolerance=analysis.tolerance,
+    )
+
+
 def stitch_setups(setups: list[tuple[str, ImpedanceData]]) -> tuple[ImpedanceData, tuple[str, ...]]:
     """One curve from a part's set-ups (inverse-variance weighted where they overlap) and
     the sentences naming any band where they disagree beyond their uncertainties."""

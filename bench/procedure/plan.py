@@ -22,6 +22,7 @@ from bench.errors import ProcedureError
 from bench.procedure import plan_steps
 from bench.procedure.loader import ProcedureErrors, SourceDocument, load_document
 from bench.procedure.plan_checks import check_methods, check_steps, command_map_errors
+from bench.procedure.plan_gain_phase import gain_phase_sweep
 from bench.procedure.plan_limits import (
     DEFAULT_LIMITS,
     DEFAULT_MAX_POWER_DBM,
@@ -33,6 +34,8 @@ from bench.procedure.plan_steps import estimated_seconds
 from bench.procedure.plan_types import (
     DEFAULT_METHOD,
     DEFAULT_MODEL,
+    FIXTURE_METHODS,
+    GAIN_PHASE,
     NOMINAL_UNIT,
     SHUNT,
     SINGLE_MOUNT_METHODS,
@@ -41,6 +44,7 @@ from bench.procedure.plan_types import (
     Bias,
     Calibration,
     Fixture,
+    GainPhaseSweep,
     Instrument,
     PartPlan,
     Placement,
@@ -71,12 +75,14 @@ def build_plan(doc: SourceDocument) -> Plan:
 
     inst_data = data.get("instruments", {})
     instruments: dict[str, Instrument] = {}
-    for role in ("analyzer", "switch", "dc_source", "bench"):
+    for role in ("analyzer", "switch", "dc_source", "bench", "gain_phase"):
         entry = inst_data.get(role, {})
         instruments[role] = Instrument(
             role=role,
             resource=entry.get("resource", ""),
-            command_map=entry.get("command_map", "default"),
+            command_map=entry.get(
+                "command_map", "gain_phase" if role == "gain_phase" else "default"
+            ),
             timeout_s=attempt(number, doc, ("instruments", role, "timeout"), "duration", 10.0)
             or 10.0,
             max_voltage=attempt(number, doc, ("instruments", role, "max_voltage"), "V", None),
@@ -242,10 +248,11 @@ def build_plan(doc: SourceDocument) -> Plan:
 
     plan_parts = tuple(parts)
     used = {m for part in plan_parts for m in part.methods}
+    gain_phase = gain_phase_sweep(doc, plan_parts, instruments, errors)
     calibration = Calibration(
         **{
             **calibration.__dict__,
-            "two_port": bool(used - {"reflection"}) or not used,
+            "two_port": bool(used - {"reflection", GAIN_PHASE}) or not used,
             "one_port": "reflection" in used,
         }
     )
@@ -269,6 +276,7 @@ def build_plan(doc: SourceDocument) -> Plan:
         batches=plan_batches,
         steps=(),
         step_names=steps_list,
+        gain_phase=gain_phase,
     )
     check_bias(doc, provisional, errors)
     if errors:
@@ -299,6 +307,8 @@ __all__ = [
     "DEFAULT_MAX_POWER_DBM",
     "DEFAULT_METHOD",
     "DEFAULT_MODEL",
+    "FIXTURE_METHODS",
+    "GAIN_PHASE",
     "NOMINAL_UNIT",
     "SHUNT",
     "SINGLE_MOUNT_METHODS",
@@ -307,6 +317,7 @@ __all__ = [
     "Bias",
     "Calibration",
     "Fixture",
+    "GainPhaseSweep",
     "Instrument",
     "PartPlan",
     "Placement",

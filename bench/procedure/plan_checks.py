@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from bench.errors import ProcedureError
 from bench.procedure.loader import SourceDocument
-from bench.procedure.plan_types import SINGLE_MOUNT_METHODS, Instrument
+from bench.procedure.plan_types import GAIN_PHASE, SINGLE_MOUNT_METHODS, Instrument
 from bench.procedure.schema import STEP_NAMES
 from bench.units import format_si
 
@@ -26,6 +26,7 @@ def command_map_errors(
         "analyzer": load_command_map,
         "switch": lambda name: load_instrument_map("switch", name),
         "dc_source": lambda name: load_instrument_map("dc_source", name),
+        "gain_phase": load_command_map,
     }
     errors = []
     for role, load in loaders.items():
@@ -85,6 +86,14 @@ def check_methods(
     stated: bool = True,
 ) -> None:
     """A part's methods against its bias points and the port resistors."""
+    if GAIN_PHASE in methods and any(v != 0.0 for v in bias):
+        errors.append(
+            doc.error(
+                ("parts", i, "method"),
+                "the gain-phase analyser measures a part at 0 V only (no bias path)",
+                hint="remove the bias points, or measure the biased part shunt-through alone",
+            )
+        )
     single = [m for m in methods if m in SINGLE_MOUNT_METHODS]
     if not single:
         return

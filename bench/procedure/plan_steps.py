@@ -8,6 +8,8 @@ from dataclasses import asdict
 from typing import Any
 
 from bench.procedure.plan_types import (
+    FIXTURE_METHODS,
+    GAIN_PHASE,
     SHUNT,
     SINGLE_MOUNT_METHODS,
     SWEEP_STEPS,
@@ -25,7 +27,7 @@ def batches(
     batches: list[tuple[Placement, ...]] = []
     current: list[Placement] = []
     for part in parts:
-        if SHUNT not in part.methods:
+        if not set(FIXTURE_METHODS) & set(part.methods):
             continue
         for sample in part.samples:
             if len(current) == len(positions):
@@ -44,14 +46,46 @@ def steps(plan: Plan) -> tuple[Step, ...]:
         for std in plan.calibration.standards:
             steps.append(Step(id=f"calibrate/{std}", kind="calibrate", standard=std))
     used = sorted({p.position for batch in plan.batches for p in batch})
+    gained = sorted(
+        {
+            p.position
+            for batch in plan.batches
+            for p in batch
+            if GAIN_PHASE in plan.part(p.part).methods
+        }
+    )
     for kind in ("mount_open", "mount_short"):
         if kind in names:
             for pos in used:
                 steps.append(Step(id=f"{kind}/p{pos}", kind=kind, position=pos))
+            # The gain-phase analyser's own sweep of each strapped position it uses.
+            if kind == "mount_short":
+                for pos in gained:
+                    steps.append(
+                        Step(
+                            id=f"mount_short/{GAIN_PHASE}/p{pos}",
+                            kind=kind,
+                            position=pos,
+                            method=GAIN_PHASE,
+                        )
+                    )
     if "measure" in names:
         for batch in plan.batches:
             for placement in batch:
                 part = plan.part(placement.part)
+                if GAIN_PHASE in part.methods:
+                    # Swept where it sits, before the network analyser's sweeps.
+                    steps.append(
+                        Step(
+                            id=f"measure/{placement.part}/{placement.sample}/{GAIN_PHASE}",
+                            kind="measure",
+                            position=placement.position,
+                            placement=placement,
+                            method=GAIN_PHASE,
+                        )
+                    )
+                if SHUNT not in part.methods:
+                    continue
                 for volts in part.bias:
                     steps.append(
                         Step(
@@ -90,7 +124,9 @@ def steps(plan: Plan) -> tuple[Step, ...]:
 
 def resolved(plan: Plan) -> dict[str, Any]:
     """The plan in plain SI numbers, as stored in the run manifest."""
+    extra = {"gain_phase": asdict(plan.gain_phase)} if plan.gain_phase is not None else {}
     return {
+        **extra,
         "name": plan.name,
         "source": plan.source,
         "description": plan.description,
@@ -121,7 +157,10 @@ def estimated_seconds(plan: Plan) -> float:
     handling = 20.0 if plan.mode == "guided" else 0.0  # a person's hands per action
     for step in plan.steps:
         if step.kind in SWEEP_STEPS:
-            total += sweep + 0.2
+            if step.method == GAIN_PHASE and plan.gain_phase is not None:
+                total += plan.gain_phase.sweep_seconds() * plan.sweep.averages + 0.2
+            else:
+                total += sweep + 0.2
             if step.kind == "calibrate" or plan.mode == "guided":
                 total += handling
             if step.bias_v:

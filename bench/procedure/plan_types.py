@@ -25,6 +25,10 @@ DEFAULT_METHOD = {
     "bead": "series-through",
 }
 SHUNT = "shunt-through"
+#: Measured by a low-frequency gain-phase analyser on a fixture position (0 V only).
+GAIN_PHASE = "gain-phase"
+#: Methods whose parts sit in the switched fixture's positions.
+FIXTURE_METHODS = (SHUNT, GAIN_PHASE)
 #: Methods measured on a single hand-loaded mount (one sample at a time, no switch).
 SINGLE_MOUNT_METHODS = ("series-through", "reflection")
 
@@ -58,6 +62,44 @@ class Sweep:
     def sweep_seconds(self) -> float:
         """Rough sweep time (s): 1.2/IFBW per point plus set-up (common practice, no source)."""
         return self.points * 1.2 / self.if_bandwidth + 0.05
+
+
+@dataclass(frozen=True)
+class GainPhaseSweep:
+    """The gain-phase analyser's own sweep and its set-up: the reference resistor between
+    receiver A's node and the part, receiver B's input (``input_resistance`` None: ideal),
+    and the ratio's noise floor relative to a ratio of 1 (dB)."""
+
+    start: float
+    stop: float
+    points: int
+    reference_resistor: float
+    spacing: str = "log"
+    bandwidth: float = 100.0
+    level: float = 0.0
+    input_resistance: float | None = None
+    input_capacitance: float = 0.0
+    noise_floor_db: float = -110.0
+
+    def sweep_seconds(self) -> float:
+        """Rough sweep time (s): three periods of the lower of each point's frequency and
+        the bandwidth, plus set-up (common practice, no source)."""
+        import numpy as np
+
+        if self.spacing == "log":
+            f = np.geomspace(self.start, self.stop, self.points)
+        else:
+            f = np.linspace(self.start, self.stop, self.points)
+        return float(np.sum(3.0 / np.minimum(f, self.bandwidth))) + 0.05
+
+    def input_impedance(self, f: Any) -> Any:
+        """Receiver B's input impedance (Ω) at ``f`` (Hz); None for an ideal input."""
+        import numpy as np
+
+        if self.input_resistance is None and not self.input_capacitance:
+            return None
+        g = 0.0 if self.input_resistance is None else 1.0 / self.input_resistance
+        return 1.0 / (g + 2j * np.pi * np.asarray(f, dtype=float) * self.input_capacitance)
 
 
 @dataclass(frozen=True)
@@ -174,6 +216,8 @@ class Plan:
     steps: tuple[Step, ...]
     step_names: tuple[str, ...]
     resolved: dict[str, Any] = field(default_factory=dict)
+    #: The gain-phase analyser's sweep and set-up, when a part is measured with it.
+    gain_phase: GainPhaseSweep | None = None
 
     def part(self, name: str) -> PartPlan:
         for part in self.parts:

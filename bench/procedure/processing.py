@@ -34,7 +34,7 @@ from bench.procedure.corrections import (
     open_fit,
     sample_impedance,
 )
-from bench.procedure.plan import SHUNT, SINGLE_MOUNT_METHODS, Analysis, Plan, Step
+from bench.procedure.plan import GAIN_PHASE, SHUNT, SINGLE_MOUNT_METHODS, Analysis, Plan, Step
 from bench.results import RunSummary, SampleResult
 from bench.runstore import DONE, RunStore
 from bench.units import format_si
@@ -109,8 +109,20 @@ def build_summary(
     warnings: list[str] = list(corrector.warnings)
     shorts: dict[int, np.ndarray] = {}
     loops: dict[int, GroundLoopResult] = {}
+    from bench.procedure import methods as single_methods
+
+    gain_phase_shorts: dict[int, np.ndarray | None] = {}
     for step in plan.steps:
         if step.kind != "mount_short" or step.position is None:
+            continue
+        if step.method == GAIN_PHASE:
+            z_gp = single_methods.gain_phase_short(plan, store, step.position)
+            gain_phase_shorts[step.position] = z_gp
+            if z_gp is None:
+                warnings.append(
+                    f"no gain-phase capture of the mount short at position {step.position}; "
+                    "not removed from the gain-phase sweeps"
+                )
             continue
         if store.step_state(step.id) != DONE:
             warnings.append(f"no mount short for position {step.position}; not removed")
@@ -159,7 +171,7 @@ def build_summary(
         key = (step.placement.part, step.placement.sample, step.bias_v)
         groups.setdefault(key, []).append(step)
     unfitted: list[tuple[SampleResult, tuple[str, ImpedanceData, float]]] = []
-    shunt = {"shorts": shorts, "pads": pads, "loops": loops}
+    shunt = {"shorts": shorts, "pads": pads, "loops": loops, "gain_phase": gain_phase_shorts}
     for steps in groups.values():
         if len(steps) == 1 and steps[0].method == SHUNT:
             unfitted.append(
@@ -355,6 +367,12 @@ def _setups_sample(
             position, corrected = r.position, r.corrected_s
             continue
         f, s_raw = averaged(store, step.id)
+        if step.method == GAIN_PHASE:
+            z_short = shunt["gain_phase"].get(step.position or 0)
+            data = single.gain_phase_impedance(plan, analysis, f, s_raw[:, 1, 0], z_short)
+            setups.append((GAIN_PHASE, data))
+            position = position if position is not None else step.position
+            continue
         data = single.single_mount_impedance(
             plan, analysis, corrector, step.method, f, s_raw, mounts[step.method]
         )

@@ -218,6 +218,11 @@ class Runner:
         analyzer.configure(wanted)
         # zbench corrects in software from the stored raw standards.
         analyzer.set_correction(False)
+        g = self.plan.gain_phase
+        if g is not None and self.ctx.inst.gain_phase is not None:
+            self.ctx.inst.gain_phase.configure(
+                SweepPlan(g.start, g.stop, g.points, g.spacing, g.bandwidth, g.level)
+            )
         bias.ensure_off_at_start(self.ctx)
         snapshot = self.ctx.inst.snapshot()
         sessions = self.store.manifest.get("instrument_sessions", [])

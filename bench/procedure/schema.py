@@ -12,12 +12,18 @@ The keys, in brief (``procedures/*.yaml`` are worked examples):
 
 - ``name`` (required), ``description``, ``mode``: ``guided`` (default) or ``unattended``.
 - ``instruments``: ``analyzer``, ``switch``, ``dc_source``, ``bench`` (the simulated
-  bench's hands), each with ``resource`` (VISA), ``command_map`` (analyser; ``default``),
+  bench's hands), ``gain_phase`` (a low-frequency gain-phase analyser, map
+  ``gain_phase``), each with ``resource`` (VISA), ``command_map`` (analyser; ``default``),
   ``timeout``; ``analyzer.max_power`` (dBm, default 10 dBm); ``dc_source.max_voltage``
   and ``max_current`` (the source's own hard limits).
 - ``sweep`` (required): ``start``, ``stop`` (Hz), ``points`` (≥ 10, ≤ the command
   map's limit), ``spacing`` ``log``/``linear``, ``if_bandwidth`` (Hz), ``power`` (dBm),
   ``averages`` (sweeps averaged per measurement, each stored).
+- ``gain_phase`` (needed by a part measured ``gain-phase``): the gain-phase analyser's own
+  sweep ``start``, ``stop``, ``points``, ``spacing``, ``bandwidth`` (Hz), ``level`` (dBm),
+  and its set-up: ``reference_resistor`` (Ω, required), receiver B's
+  ``input_resistance`` (Ω) and ``input_capacitance`` (F), ``noise_floor`` (dB, the
+  ratio's noise relative to 1).
 - ``fixture``: ``positions`` (count), ``use_positions`` (subset), ``series_resistor``
   (Ω at each port), ``isolation_transformer`` (bool), ``bias_tee_rating`` and
   ``dc_block_rating`` (V), ``z0`` (Ω).
@@ -35,11 +41,13 @@ The keys, in brief (``procedures/*.yaml`` are worked examples):
   ``nominal`` (F, H, or Ω for a bead at ``nominal_at`` Hz), ``tolerance`` (``10 %``),
   ``rated_voltage`` (V), ``model`` (a family or ``auto``), ``samples`` (a count or
   names), ``bias`` (list of V, capacitors only, shunt-through only), ``method``
-  (``shunt-through``, ``series-through``, ``reflection``, or a list of them, stitched
-  into one curve; default: capacitors shunt-through, inductors and beads
+  (``shunt-through``, ``series-through``, ``reflection``, ``gain-phase``, or a list of
+  them, stitched into one curve; default: capacitors shunt-through, inductors and beads
   series-through). Shunt-through parts go in the switched fixture's positions; the
   series-through and reflection mounts take one sample at a time, and their own
-  captures (the empty gap or open, the zero-ohm strap) remove them.
+  captures (the empty gap or open, the zero-ohm strap) remove them. A ``gain-phase``
+  part sits in a fixture position too (at 0 V): the gain-phase analyser sweeps it there,
+  and its own sweep of the position's strap removes the mount.
 - ``steps``: a subset, in order, of calibrate, mount_open, mount_short, measure, fit,
   export, report (default: all but the optional mount_open). ``mount_open`` captures
   each used position's empty mount, so the pads' capacitance is removed from the parts
@@ -62,7 +70,7 @@ STEP_NAMES = ("calibrate", "mount_open", "mount_short", "measure", "fit", "expor
 #: The steps of a procedure that lists none: every step but the optional open capture.
 DEFAULT_STEPS = tuple(name for name in STEP_NAMES if name != "mount_open")
 #: The ways a part is measured (each with its mount, calibration and fixture removal).
-METHOD_NAMES = ("shunt-through", "series-through", "reflection")
+METHOD_NAMES = ("shunt-through", "series-through", "reflection", "gain-phase")
 #: ``auto`` and every family of the one registry of model families.
 MODEL_NAMES = ("auto", *FAMILY_NAMES)
 PART_KINDS = ("mlcc", "bulk", "inductor", "bead")
@@ -172,6 +180,25 @@ PROCEDURE_SCHEMA: dict[str, Any] = {
                 "switch": _INSTRUMENT,
                 "dc_source": _DC_SOURCE,
                 "bench": _INSTRUMENT,
+                "gain_phase": _INSTRUMENT,
+            },
+        },
+        "gain_phase": {
+            "type": "object",
+            "additionalProperties": False,
+            "required": ["start", "stop", "points", "reference_resistor"],
+            "description": "the gain-phase analyser's own sweep and its set-up",
+            "properties": {
+                "start": _quantity("Hz", "first frequency"),
+                "stop": _quantity("Hz", "last frequency"),
+                "points": {"type": "integer", "minimum": 10},
+                "spacing": {"enum": ["log", "linear"]},
+                "bandwidth": _quantity("Hz", "receiver bandwidth"),
+                "level": _quantity("dBm", "source level into a matched 50 ohm load"),
+                "reference_resistor": _quantity("ohm", "resistor between receiver A and the part"),
+                "input_resistance": _quantity("ohm", "receiver B's input resistance"),
+                "input_capacitance": _quantity("F", "receiver B's input capacitance"),
+                "noise_floor": _quantity("dB", "ratio noise relative to a ratio of 1"),
             },
         },
         "sweep": {

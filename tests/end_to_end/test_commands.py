@@ -157,8 +157,10 @@ def test_demo_command_writes_the_report(tmp_path):
     assert manifest["state"] == "complete"
     assert manifest["calibration"]["method"] == "hybrid"
     # 4 standards + 8 mount shorts + 11 samples, three of them at 3 bias points; then an
-    # inductor and a bead on each single mount (its empty and strap captures first).
-    assert len(list((root / "raw").glob("*.s2p"))) == 4 + 8 + 11 + 6 + 2 * (2 + 2)
+    # inductor and a bead on each single mount (its empty and strap captures first); the
+    # gain-phase analyser on the bulk capacitor's two positions' straps and two samples.
+    assert len(list((root / "raw").glob("*.s2p"))) == 4 + 8 + 11 + 6 + 2 * (2 + 2) + 2 + 2
+    assert len(list((root / "raw").glob("*gain-phase*.s2p"))) == 4
     for name in ("summary.csv", "report.html", "log", "procedure.yaml"):
         assert (root / name).is_file(), name
     assert list((root / "models").glob("*.lib"))
@@ -220,7 +222,7 @@ def test_demo_runs_on_the_second_dialect(tmp_path):
     assert "SIM-VNA-0002" in manifest["instruments"]["analyzer"]["identity"]
     # the stored procedure names the map, so a resume speaks the same dialect
     assert "command_map: meas_stim" in (root / "procedure.yaml").read_text(encoding="utf-8")
-    assert len(list((root / "raw").glob("*.s2p"))) == 4 + 8 + 11 + 6 + 2 * (2 + 2)
+    assert len(list((root / "raw").glob("*.s2p"))) == 4 + 8 + 11 + 6 + 2 * (2 + 2) + 2 + 2
 
 
 def test_reprocess_reads_options_with_units_and_refuses_nonsense(tmp_path):

@@ -330,7 +330,8 @@ def test_check_command_prints_plan_and_exit_codes(tmp_path):
     runner = CliRunner()
     result = runner.invoke(cli, ["check", str(REPO / "procedures" / "demo.yaml")])
     assert result.exit_code == 0, result.output
-    for words in ("batches", "MC4U7-10V", "0, 2.5, 5 V", "estimated", "mount_short ×10"):
+    # mount_short: 8 positions, the two single mounts, the gain-phase analyser's two.
+    for words in ("batches", "MC4U7-10V", "0, 2.5, 5 V", "estimated", "mount_short ×12"):
         assert words in result.output
 
     from bench.cli import main

@@ -10,7 +10,7 @@ import numpy as np
 from bench.plausibility import check_part
 from bench.procedure.display import result_line
 from bench.procedure.operators import REPEAT
-from bench.procedure.plan import SINGLE_MOUNT_METHODS, Step
+from bench.procedure.plan import GAIN_PHASE, SHUNT, SINGLE_MOUNT_METHODS, Step
 from bench.procedure.processing import (
     averaged,
     main_value,
@@ -25,9 +25,28 @@ from bench.procedure.steps.sweep import cables_to, decide, select, sweeps
 from bench.runstore import DONE
 
 
+def place(ctx: RunContext, placement: Any) -> None:
+    """Cables on the fixture, ``placement``'s batch loaded and its position selected."""
+    plan = ctx.plan
+    cables_to(ctx, "fixture")
+    if ctx.batch != placement.batch:
+        batch = plan.batches[placement.batch]
+        with ctx.pause():
+            ctx.operator.load_parts(batch)
+        ctx.batch = placement.batch
+        ctx.strapped.difference_update(p.position for p in batch)
+        ctx.emptied.difference_update(p.position for p in batch)
+    select(ctx, placement.position)
+
+
 def measure(ctx: RunContext, step: Step) -> None:
     if step.method in SINGLE_MOUNT_METHODS:
         single_mount.measure(ctx, step)
+        return
+    if step.method == GAIN_PHASE:
+        from bench.procedure.steps import gain_phase
+
+        gain_phase.measure(ctx, step)
         return
     placement = step.placement
     assert placement is not None
@@ -38,15 +57,7 @@ def measure(ctx: RunContext, step: Step) -> None:
     )
     where = f"{label}, position {placement.position}"
     while True:
-        cables_to(ctx, "fixture")
-        if ctx.batch != placement.batch:
-            batch = plan.batches[placement.batch]
-            with ctx.pause():
-                ctx.operator.load_parts(batch)
-            ctx.batch = placement.batch
-            ctx.strapped.difference_update(p.position for p in batch)
-            ctx.emptied.difference_update(p.position for p in batch)
-        select(ctx, placement.position)
+        place(ctx, placement)
         if step.bias_v:
             bias.biased(ctx, part, step.bias_v, label, lambda: sweeps(ctx, step, where))
         else:
@@ -140,6 +151,7 @@ def zero_bias_reference(ctx: RunContext, step: Step, part: Any) -> float | None:
         there = other.placement
         if (
             other.kind == "measure"
+            and other.method == SHUNT
             and not other.bias_v
             and there is not None
             and (there.part, there.sample) == key

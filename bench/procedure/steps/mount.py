@@ -10,7 +10,7 @@ import numpy as np
 from bench.errors import RunError
 from bench.plausibility import check_mount_short
 from bench.procedure.operators import REPEAT, SKIP
-from bench.procedure.plan import SINGLE_MOUNT_METHODS, Step
+from bench.procedure.plan import GAIN_PHASE, SINGLE_MOUNT_METHODS, Step
 from bench.procedure.processing import (
     ground_loop,
     ground_loop_note,
@@ -71,6 +71,11 @@ def mount_open(ctx: RunContext, step: Step) -> None:
 def mount_short(ctx: RunContext, step: Step) -> None:
     if step.method in SINGLE_MOUNT_METHODS:
         single_mount.capture(ctx, step)
+        return
+    if step.method == GAIN_PHASE:
+        from bench.procedure.steps import gain_phase
+
+        gain_phase.capture(ctx, step)
         return
     assert step.position is not None
     pos = step.position

@@ -5,11 +5,12 @@ from __future__ import annotations
 
 import time
 from pathlib import Path
+from typing import NamedTuple
 
 import numpy as np
 
 from bench.procedure.operators import REPEAT, SKIP, STOP, OperatorStop
-from bench.procedure.plan import SINGLE_MOUNT_METHODS, Step
+from bench.procedure.plan import GAIN_PHASE, SINGLE_MOUNT_METHODS, Step
 from bench.procedure.steps.context import RunContext
 from bench.runstore import SKIPPED, file_stem
 
@@ -52,7 +53,8 @@ def sweeps(ctx: RunContext, step: Step, label: str) -> None:
     """Take the step's sweeps (the procedure's average count), writing each at once.
 
     Sweeps already stored for this step (an interrupted earlier session) are kept and
-    not taken again.
+    not taken again. A gain-phase step's sweeps are the gain-phase analyser's receiver
+    ratio B/A, stored as S21 and S12 of the raw file (its comment says so).
     """
     store = ctx.store
     n = ctx.plan.sweep.averages
@@ -66,7 +68,18 @@ def sweeps(ctx: RunContext, step: Step, label: str) -> None:
             continue
         ctx.display.step(f"{label} sweep {k}/{n}" if n > 1 else label)
         t0 = time.perf_counter()
-        data = ctx.inst.analyzer.sweep(PARAMETERS)
+        comment = f"raw, analyser correction off, sweep {k} of {n}"
+        if step.method == GAIN_PHASE:
+            f_gp, ratio = ctx.inst.gain_phase.ratio()
+            s_gp = np.zeros((len(f_gp), 2, 2), dtype=complex)
+            s_gp[:, 1, 0] = s_gp[:, 0, 1] = ratio
+            data = _Sweep(np.asarray(f_gp, dtype=float), s_gp)
+            comment = (
+                f"gain-phase analyser, receiver ratio B/A stored as S21 and S12 (not an "
+                f"S-parameter), sweep {k} of {n}"
+            )
+        else:
+            data = ctx.inst.analyzer.sweep(PARAMETERS)
         spent = time.perf_counter() - t0
         ctx.sweep_seconds += spent
         ctx.step_sweep_seconds[step.id] = ctx.step_sweep_seconds.get(step.id, 0.0) + spent
@@ -78,7 +91,7 @@ def sweeps(ctx: RunContext, step: Step, label: str) -> None:
             data.f,
             data.s,
             z0=ctx.plan.fixture.z0,
-            comments=(f"raw, analyser correction off, sweep {k} of {n}",),
+            comments=(comment,),
             save=False,
         )
         taken.append((np.asarray(data.f, dtype=float), np.asarray(data.s, dtype=complex)))
@@ -86,6 +99,11 @@ def sweeps(ctx: RunContext, step: Step, label: str) -> None:
     ctx.counted.add(step.id)
     f = taken[0][0]
     ctx.last = (f, sum(s for _, s in taken) / len(taken))
+
+
+class _Sweep(NamedTuple):
+    f: np.ndarray
+    s: np.ndarray
 
 
 def advance(ctx: RunContext, step: Step) -> None:
