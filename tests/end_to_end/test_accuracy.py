@@ -367,3 +367,23 @@ def test_hybrid_calibration_with_resistors_keeps_the_impedance(tmp_path):
         error = np.abs(np.log(sample.data.z[use] / z_mounted[use]))
         assert float(np.median(error)) < 0.05
     assert any("SOLT with port series resistors" in w for w in summary.warnings)
+
+
+def test_demo_mlcc_esr_is_followed_from_the_lowest_point_to_resonance(outcome):
+    # The run's own fits of the 22 µF part at 0 V: the model's ESR (Re Z) within 20 % of
+    # the true part's over the points the fit used below the series resonance, where the
+    # dielectric's constant loss tangent makes it fall as 1/f (docs/references.md §9;
+    # the 20 % is the recovery target, common practice, no source).
+    result = outcome("demo.yaml")
+    checked = 0
+    for s in result.summary.samples:
+        if s.part != "MC22-6V3" or s.bias_v != 0 or s.fit is None:
+            continue
+        z_true, _, _ = _truth(result, s)
+        used = np.asarray(s.fit.point_status) == "used"
+        below = used & (s.data.f < s.fit.landmarks["srf"])
+        assert s.data.f[below][0] < 300.0  # the band reaches down to the lossy region
+        ratio = s.fit.impedance(s.data.f[below]).real / z_true[below].real
+        assert np.max(np.abs(ratio - 1)) < 0.2, (s.sample, ratio.min(), ratio.max())
+        checked += 1
+    assert checked >= 2
