@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import contextlib
 import dataclasses
+import errno
 import shutil
 from collections.abc import Iterator
 from pathlib import Path
@@ -45,13 +46,27 @@ def with_resources(plan: Plan, resources: dict[str, str]) -> Plan:
 
 
 def new_store(plan: Plan, procedure_path: Path, out: Path) -> RunStore:
-    return RunStore.create(
-        out,
-        plan_name=plan.name,
-        resolved=plan.resolved,
-        procedure_text=procedure_path.read_text(encoding="utf-8"),
-        step_ids=[(s.id, s.kind) for s in plan.steps],
-    )
+    text = procedure_path.read_text(encoding="utf-8")
+    try:
+        return RunStore.create(
+            out,
+            plan_name=plan.name,
+            resolved=plan.resolved,
+            procedure_text=text,
+            step_ids=[(s.id, s.kind) for s in plan.steps],
+        )
+    except OSError as exc:
+        if exc.errno in (errno.ENOSPC, errno.EDQUOT):
+            fix = "free space on that disk"
+        elif exc.errno in (errno.EROFS, errno.EACCES, errno.EPERM):
+            fix = "make the folder writable"
+        else:
+            raise
+        raise InputError(
+            f"cannot make the run folder: {exc.strerror or exc}",
+            path=str(exc.filename or out),
+            hint=f"{fix}, or give another folder with --out",
+        ) from None
 
 
 def resumed(run_dir: Path) -> tuple[RunStore, Plan]:

@@ -12,6 +12,7 @@ from pathlib import Path
 import pytest
 
 import bench.files
+import bench.runstore
 from bench.cli import main
 from bench.errors import RunFolderError
 from bench.runstore import STOPPED
@@ -127,3 +128,19 @@ def test_stopped_is_recorded_and_a_read_only_folder_is_refused(tmp_path, sim, ki
     after = kit.raw_files(store3)
     assert len(after) == 7
     assert all(after[name] == data for name, data in kept.items()), "a stored sweep changed"
+
+
+def test_a_read_only_output_folder_is_refused_with_exit_2(tmp_path, kit, monkeypatch, capsys):
+    path = kit.write_procedure(tmp_path, kit.SMALL)
+    out = tmp_path / "runs"
+
+    def read_only(cls, root, **kwargs):
+        raise OSError(errno.EROFS, os.strerror(errno.EROFS), str(root))
+
+    monkeypatch.setattr(bench.runstore.RunStore, "create", classmethod(read_only))
+    code = main(["run", str(path), "--sim", "--out", str(out), "--quiet"])
+    err = capsys.readouterr().err
+    assert code == 2, err
+    assert "Traceback" not in err
+    assert f"{out}: cannot make the run folder: Read-only file system" in err
+    assert "give another folder with --out" in err
