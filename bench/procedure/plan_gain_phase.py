@@ -7,7 +7,7 @@ from typing import Any
 
 from bench.errors import ProcedureError
 from bench.procedure.loader import SourceDocument
-from bench.procedure.plan_limits import analyzer_limits
+from bench.procedure.plan_limits import analyzer_limits, check_bandwidth, check_points
 from bench.procedure.plan_types import GAIN_PHASE, GainPhaseSweep, Instrument, PartPlan
 from bench.procedure.plan_values import number
 from bench.units import format_si
@@ -73,14 +73,7 @@ def gain_phase_sweep(
                 hint="choose start below stop, both inside the gain-phase analyser's range",
             )
         )
-    if sweep.points > limits["max_points"]:
-        errors.append(
-            doc.error(
-                ("gain_phase", "points"),
-                f"{sweep.points} points is more than the analyser allows ({limits['max_points']})",
-                hint=f"use at most {limits['max_points']} points",
-            )
-        )
+    check_points(doc, "gain_phase", sweep.points, limits, errors)
     low, high = limits["power"]
     if not low <= sweep.level <= high:
         errors.append(
@@ -90,14 +83,12 @@ def gain_phase_sweep(
                 hint="choose a source level the gain-phase analyser offers",
             )
         )
-    ifbw_low, ifbw_high = limits.get("ifbw", (1e-3, 1e9))
-    if not ifbw_low <= sweep.bandwidth <= ifbw_high:
-        errors.append(
-            doc.error(
-                ("gain_phase", "bandwidth"),
-                f"{format_si(sweep.bandwidth, 'Hz')} is outside the analyser's "
-                f"{format_si(ifbw_low, 'Hz')} … {format_si(ifbw_high, 'Hz')}",
-                hint="choose a receiver bandwidth the gain-phase analyser offers",
-            )
-        )
+    check_bandwidth(
+        doc,
+        ("gain_phase", "bandwidth"),
+        sweep.bandwidth,
+        limits,
+        errors,
+        hint="choose a receiver bandwidth the gain-phase analyser offers",
+    )
     return sweep

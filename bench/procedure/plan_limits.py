@@ -73,14 +73,7 @@ def check_sweep(
                 hint="lower stop",
             )
         )
-    if sweep.points > limits["max_points"]:
-        errors.append(
-            doc.error(
-                ("sweep", "points"),
-                f"{sweep.points} points is more than the analyser allows ({limits['max_points']})",
-                hint=f"use at most {limits['max_points']} points",
-            )
-        )
+    check_points(doc, "sweep", sweep.points, limits, errors)
     low, high = limits["power"]
     max_power = instruments["analyzer"].max_power
     ceiling = min(high, max_power if max_power is not None else DEFAULT_MAX_POWER_DBM)
@@ -92,14 +85,52 @@ def check_sweep(
                 hint="choose a source power inside the analyser's and the procedure's limits",
             )
         )
-    ifbw_low, ifbw_high = limits.get("ifbw", (1e-3, 1e9))
-    if not ifbw_low <= sweep.if_bandwidth <= ifbw_high:
+    check_bandwidth(
+        doc,
+        ("sweep", "if_bandwidth"),
+        sweep.if_bandwidth,
+        limits,
+        errors,
+        hint="choose an IF bandwidth the analyser offers",
+    )
+
+
+def check_points(
+    doc: SourceDocument,
+    section: str,
+    points: int,
+    limits: dict[str, Any],
+    errors: list[ProcedureError],
+) -> None:
+    """``section.points`` against the analyser's most points."""
+    if points > limits["max_points"]:
         errors.append(
             doc.error(
-                ("sweep", "if_bandwidth"),
-                f"{format_si(sweep.if_bandwidth, 'Hz')} is outside the analyser's "
-                f"{format_si(ifbw_low, 'Hz')} … {format_si(ifbw_high, 'Hz')}",
-                hint="choose an IF bandwidth the analyser offers",
+                (section, "points"),
+                f"{points} points is more than the analyser allows ({limits['max_points']})",
+                hint=f"use at most {limits['max_points']} points",
+            )
+        )
+
+
+def check_bandwidth(
+    doc: SourceDocument,
+    key: tuple[str, str],
+    bandwidth: float,
+    limits: dict[str, Any],
+    errors: list[ProcedureError],
+    *,
+    hint: str,
+) -> None:
+    """A receiver bandwidth (Hz) against the analyser's range."""
+    low, high = limits.get("ifbw", (1e-3, 1e9))
+    if not low <= bandwidth <= high:
+        errors.append(
+            doc.error(
+                key,
+                f"{format_si(bandwidth, 'Hz')} is outside the analyser's "
+                f"{format_si(low, 'Hz')} … {format_si(high, 'Hz')}",
+                hint=hint,
             )
         )
 
