@@ -39,6 +39,14 @@ from numpy.typing import NDArray
 from scipy.optimize import least_squares, leastsq
 
 from bench.core import robust
+from bench.core.fit_landmarks import (
+    landmark_uncertainties,
+    low_frequency_warnings,
+    merge_landmarks,
+    model_landmarks,
+    resonance_warnings,
+)
+from bench.core.fit_select import Trial, select
 from bench.core.landmarks import Landmarks, classify, landmarks_for
 from bench.core.model_registry import MODEL_NAMES, auto_candidates
 from bench.core.models import FAMILIES, ModelFamily
@@ -66,12 +74,8 @@ MIN_POINTS = 10
 MAX_FIT_POINTS = 4000
 # Points of the thinned grid on which every start is first run to convergence.
 SCOUT_POINTS = 160
-BIC_MARGIN = 6.0
 # A family whose fit leaves this many times the best χ² so far gets no higher orders.
 HOPELESS_FACTOR = 10.0
-# An element whose one-sigma uncertainty exceeds its value (100 %) is not determined by
-# the data: its confidence interval reaches from nothing to double.
-UNDETERMINED = 1.0
 # An element within this distance (natural log) of a bound is pinned at it.
 PINNED_LOG = 1e-3
 
@@ -80,9 +84,6 @@ PINNED_LOG = 1e-3
 # within a few sigma count as in least squares, beyond it their pull grows only linearly
 # (scipy's ``least_squares(loss="soft_l1")``; the scale is common practice, no source).
 ROBUST_SCALE = 3.0
-# Decades beyond the measured band over which the model's landmarks are still looked
-# for when the data cannot give them.
-LANDMARK_REACH = 2.0
 
 
 class ModelMismatchError(FitError):
@@ -215,34 +216,6 @@ class FitResult:
         }
 
 
-@dataclass(frozen=True)
-class _Trial:
-    family: ModelFamily
-    order: int
-    node: Node
-    values: dict[str, float]
-    q: NDArray[np.float64]
-    chi2: float
-    bic: float
-    rms: float
-    at_bound: tuple[str, ...]
-    pinned: tuple[str, ...] = ()
-    rel_sigma: dict[str, float] = field(default_factory=dict)
-
-    @property
-    def undetermined(self) -> tuple[str, ...]:
-        return tuple(n for n, s in self.rel_sigma.items() if not s <= UNDETERMINED)
-
-    @property
-    def supported(self) -> bool:
-        return not self.pinned and not self.undetermined
-
-    @property
-    def weakness(self) -> dict[str, float]:
-        """Relative one-sigma uncertainty of each element, ``inf`` where it is pinned."""
-        return {n: (math.inf if n in self.pinned else s) for n, s in self.rel_sigma.items()}
-
-
 def _check_inputs(f: Any, z: Any, rel_uncertainty: Any, valid: Any):
     f = np.asarray(f, dtype=float)
     z = np.asarray(z, dtype=complex)
@@ -352,7 +325,7 @@ def _fit_order(
     landmarks: Landmarks,
     previous: Mapping[str, float] | None,
     starts: list[dict[str, float]] | None = None,
-) -> _Trial:
+) -> Trial:
     node = family.circuit_for(order, f)
     names = family.element_names(order)
     limits = family.element_bounds(order, f, landmarks)
@@ -394,7 +367,7 @@ def _fit_order(
     return _make_trial(family, order, node, best[1], lo, hi, f, z, weight)
 
 
-def _make_trial(family, order, node, q, lo, hi, f, z, weight) -> _Trial:
+def _make_trial(family, order, node, q, lo, hi, f, z, weight) -> Trial:
     """The trial of ``family``/``order`` at log values ``q``, with its criterion, the
     elements at a bound and the relative uncertainty of every element."""
     names = family.element_names(order)
@@ -421,7 +394,7 @@ def _make_trial(family, order, node, q, lo, hi, f, z, weight) -> _Trial:
         for n, qi, a, b in zip(names, q, lo, hi, strict=True)
         if qi - a < PINNED_LOG or b - qi < PINNED_LOG
     )
-    trial = _Trial(
+    trial = Trial(
         family,
         order,
         node,
@@ -436,12 +409,12 @@ def _make_trial(family, order, node, q, lo, hi, f, z, weight) -> _Trial:
     cov = _covariance(trial, f, z, weight)
     sigma_log = np.sqrt(np.clip(np.diag(cov), 0.0, None))
     rel = {n: float(s) for n, s in zip(names, sigma_log, strict=True)}
-    return _Trial(
+    return Trial(
         family, order, node, values, q, chi2, bic, trial.rms, at_bound, pinned, rel_sigma=rel
     )
 
 
-def _robust_refine(trial: _Trial, f, z, weight, landmarks: Landmarks) -> _Trial:
+def _robust_refine(trial: Trial, f, z, weight, landmarks: Landmarks) -> Trial:
     """The chosen trial solved once more with a soft-L1 loss (scipy's ``least_squares``,
     scale :data:`ROBUST_SCALE` in units of a point's uncertainty), so that a few points
     the screening let through cannot pull the fit; kept only when it stays as good in
@@ -477,47 +450,7 @@ def _robust_refine(trial: _Trial, f, z, weight, landmarks: Landmarks) -> _Trial:
     return refined
 
 
-def _lowest_bic(trials: list[_Trial]) -> _Trial:
-    """The trial with the lowest BIC, except that more elements must earn their place.
-
-    A candidate with more elements replaces a simpler one only when it lowers the BIC by
-    more than :data:`BIC_MARGIN` ("strong" evidence on the usual BIC scale, common
-    practice, no source); otherwise near-equal fits would pick redundant elements.
-    """
-    ordered = sorted(trials, key=lambda t: (t.q.size, t.bic))
-    best = ordered[0]
-    for trial in ordered[1:]:
-        margin = 0.0 if trial.q.size == best.q.size else BIC_MARGIN
-        if trial.bic < best.bic - margin:
-            best = trial
-    return best
-
-
-def _select(trials: list[_Trial], quality_bound: float) -> tuple[_Trial, bool]:
-    """The chosen trial: :func:`_lowest_bic` among the trials the data support.
-
-    A trial with an element pinned at a bound or not determined (see
-    :attr:`Candidate.supported`) has more elements than the data can tell apart, however
-    low its criterion; the simplest trials (fewest elements) stay eligible whatever their
-    state, as the base the others must improve on. Only when no eligible trial meets the
-    quality bound is an unsupported one that meets it taken (its undetermined elements
-    are then named in the warnings). Returns the trial and whether it is such a one.
-    """
-    fewest = min(t.q.size for t in trials)
-    eligible = [t for t in trials if t.supported or t.q.size == fewest]
-    best = _lowest_bic(eligible)
-    if best.rms <= quality_bound:
-        return best, False
-    good = [t for t in eligible if t.rms <= quality_bound]
-    if good:
-        return _lowest_bic(good), False
-    good = [t for t in trials if t.rms <= quality_bound]
-    if good:
-        return _lowest_bic(good), True
-    return best, False
-
-
-def _covariance(trial: _Trial, f, z, weight) -> NDArray[np.float64]:
+def _covariance(trial: Trial, f, z, weight) -> NDArray[np.float64]:
     """Covariance of the log element values, from the Jacobian at the solution, scaled by
     the residual variance χ²/(m − k)."""
     zm, jac = impedance_and_jacobian(trial.node, f, trial.values)
@@ -528,34 +461,10 @@ def _covariance(trial: _Trial, f, z, weight) -> NDArray[np.float64]:
         return np.linalg.pinv(jm.T @ jm) * (trial.chi2 / max(m - k, 1))
 
 
-def _uncertainties(trial: _Trial, cov: NDArray[np.float64]) -> dict[str, float]:
+def _uncertainties(trial: Trial, cov: NDArray[np.float64]) -> dict[str, float]:
     names = trial.family.element_names(trial.order)
     sigma_log = np.sqrt(np.clip(np.diag(cov), 0.0, None))
     return {n: float(trial.values[n] * s) for n, s in zip(names, sigma_log, strict=True)}
-
-
-def _landmark_uncertainties(
-    trial: _Trial, cov: NDArray[np.float64], kind: str, f, marks: Landmarks
-) -> dict[str, float | None]:
-    """One-sigma uncertainty of each model landmark, propagated from the element
-    covariance through the landmark's derivatives (finite differences in log values)."""
-    names = trial.family.element_names(trial.order)
-    node = trial.node
-    step = 1e-4
-    grads = []
-    for name in names:
-        values = dict(trial.values)
-        values[name] *= math.exp(step)
-        moved = landmarks_for(kind, f, network_impedance(node, f, values))
-        grads.append(moved)
-    out: dict[str, float | None] = {}
-    for key, value in marks.items():
-        if value is None or any(g.get(key) is None for g in grads):
-            out[key] = None
-            continue
-        g = np.array([(moved[key] - value) / step for moved in grads])
-        out[key] = float(np.sqrt(max(float(g @ cov @ g), 0.0)))
-    return out
 
 
 def _candidates(
@@ -574,90 +483,6 @@ def _candidates(
     return [(family, family.orders)]
 
 
-def _resonance_warnings(
-    kind: str,
-    f: NDArray[np.float64],
-    inside: NDArray[np.bool_],
-    model_marks: Landmarks,
-    data_marks: Landmarks,
-) -> list[str]:
-    srf = model_marks.get("srf")
-    what = "series resonance" if kind == "capacitor" else "parallel resonance"
-    out = []
-    if srf is None or not f[0] <= srf <= f[-1]:
-        out.append(
-            f"the model's {what} lies outside the sweep "
-            f"({format_si(f[0], 'Hz')} to {format_si(f[-1], 'Hz')}); "
-            + (
-                "srf is not given"
-                if srf is None
-                else f"srf ({format_si(srf, 'Hz')}) is the model's extrapolation"
-            )
-        )
-        return out
-    nearest = int(np.argmin(np.abs(np.log(f / srf))))
-    if not inside[nearest] or data_marks.get("srf") is None:
-        out.append(
-            f"the {what} near {format_si(srf, 'Hz')} lies outside the measurable window; "
-            "srf and the value at resonance come from the model, not from measured points"
-        )
-    return out
-
-
-def _low_frequency_warnings(
-    kind: str,
-    f: NDArray[np.float64],
-    z: NDArray[np.complex128],
-    sigma: NDArray[np.float64],
-    used: NDArray[np.bool_],
-    model_marks: Landmarks,
-    some_excluded: bool = False,
-) -> list[str]:
-    """Say so when the DC resistance of an inductor or bead was not measured.
-
-    ``r_dc`` is read over the lowest third of a decade of the sweep (see
-    :func:`bench.core.landmarks.inductor_landmarks`). When most of those points lie
-    outside the measurable window, or the resistance is lost in the uncertainty of the
-    (reactive) impedance there, the value is the model's extrapolation, not a
-    measurement: a 1.5 mΩ winding behind 499 Ω port resistors, for example.
-    """
-    r_dc = model_marks.get("r_dc")
-    if kind != "inductor" or r_dc is None or f.size < 2:
-        return []
-    band = f <= f[0] * 10 ** (1 / 3)
-    if np.count_nonzero(band) < 3:
-        band = np.arange(f.size) < 3
-    seen = band & used
-    note = (
-        f"r_dc ({format_si(r_dc, 'Ω', 3)}) comes from the model, not from measured points: "
-        f"{{why}}; measure it with a set-up whose window reaches it (no series "
-        f"resistors, a narrower IF bandwidth) or with a DC ohmmeter"
-    )
-    if np.count_nonzero(seen) < max(3, np.count_nonzero(band) // 2):
-        return [
-            note.format(
-                why=f"the points below {format_si(f[band][-1], 'Hz')} "
-                + (
-                    "were not used (outside the measurable window or left out)"
-                    if some_excluded
-                    else "lie outside the measurable window"
-                )
-            )
-        ]
-    # Standard error of the band's median of Re Z: about 1.25·σ/√n, with σ the RMS of
-    # one component of the complex error, |Z|·u/√2.
-    spread = np.abs(z[seen]) * sigma[seen] / np.sqrt(2.0)
-    standard_error = 1.25 * float(np.median(spread)) / np.sqrt(np.count_nonzero(seen))
-    if r_dc < 3.0 * standard_error:
-        return [
-            note.format(
-                why="it is below three times its standard error there "
-                f"({format_si(standard_error, 'Ω', 2)})"
-            )
-        ]
-    return []
-
-
 def _spread_in_log(f: NDArray[np.float64], most: int) -> NDArray[np.intp] | slice:
     """Indices of at most about ``most`` points of the increasing grid ``f``, spread evenly
     in log f (every point of a sparse stretch is kept); all points when there are few."""
@@ -674,9 +499,9 @@ def _fit_family(
     z: NDArray[np.complex128],
     weight: NDArray[np.float64],
     data_marks: Landmarks,
-    others: list[_Trial],
+    others: list[Trial],
     n_used: int,
-) -> list[_Trial]:
+) -> list[Trial]:
     """Fit the orders of one family, lowest first, until a higher one stops paying.
 
     An order the data do not support (an element pinned or not determined) ends the
@@ -685,7 +510,7 @@ def _fit_family(
     which finds that order's best valley when its own starts missed it (a section that
     dropped out to a bound leaves a better lower-order fit behind).
     """
-    out: list[_Trial] = []
+    out: list[Trial] = []
     previous = None
     best_bic = math.inf
     for o in orders:
@@ -790,12 +615,12 @@ def fit_impedance(
         # The fit runs on at most MAX_FIT_POINTS of the points (all of them, usually).
         pick = _spread_in_log(fu, MAX_FIT_POINTS)
         fs, zs, ws = fu[pick], zu[pick], weight[pick]
-        trials: list[_Trial] = []
+        trials: list[Trial] = []
         for family, orders in _candidates(model, kind, order):
             trials += _fit_family(family, orders, fs, zs, ws, marks, trials, n)
         if not trials:
             raise FitError(f"too few points ({n}) for any order of model {model!r}")
-        return trials, marks, _select(trials, quality_bound)
+        return trials, marks, select(trials, quality_bound)
 
     trials, data_marks, (best, unsupported) = choose(used)
     glitch, edge = _screen(f, z, candidates_ok, negative, all_weight, best)
@@ -812,7 +637,7 @@ def fit_impedance(
             _fit_order(t.family, t.order, fs, zs, ws, data_marks, None, starts=[t.values])
             for t in trials
         ]
-        best, unsupported = _select(trials, quality_bound)
+        best, unsupported = select(trials, quality_bound)
     else:
         glitch[:] = False
         edge[:] = False
@@ -855,11 +680,11 @@ def fit_impedance(
         chi2_reduced=float(np.sum((err / u) ** 2) / max(n_used - k / 2, 1.0)),
         points_excluded=int(sum(e.count for e in excluded)),
     )
-    model_marks = _model_landmarks(kind, f, best)
+    model_marks = model_landmarks(kind, f, best)
     cut = (bool(np.any(edge & (f < fu[0]))), bool(np.any(edge & (f > fu[-1]))))
-    marks, sources = _merge_landmarks(data_marks, model_marks, cut)
-    warnings += _resonance_warnings(kind, f, used, model_marks, data_marks)
-    warnings += _low_frequency_warnings(kind, f, z, sigma, used, marks, left_out.any())
+    marks, sources = merge_landmarks(data_marks, model_marks, cut)
+    warnings += resonance_warnings(kind, f, used, model_marks, data_marks)
+    warnings += low_frequency_warnings(kind, f, z, sigma, used, marks, left_out.any())
     if best.at_bound:
         warnings.append(
             f"elements {', '.join(best.at_bound)} ended at the edge of their allowed range; "
@@ -883,7 +708,7 @@ def fit_impedance(
         kind=kind,
         elements=dict(best.values),
         uncertainties=_uncertainties(best, cov),
-        landmark_uncertainties=_landmark_uncertainties(best, cov, kind, f, model_marks),
+        landmark_uncertainties=landmark_uncertainties(best, cov, kind, f, model_marks),
         landmarks=marks,
         landmark_sources=sources,
         quality=quality,
@@ -900,7 +725,7 @@ def fit_impedance(
     )
 
 
-def _screen(f, z, candidates, negative, weight, best: _Trial):
+def _screen(f, z, candidates, negative, weight, best: Trial):
     """Glitches and band edges (``bench.core.robust``) on the residuals of ``best`` over
     the ``candidates`` points (negative-resistance points count as infinitely far off)."""
     idx = np.flatnonzero(candidates)
@@ -913,72 +738,3 @@ def _screen(f, z, candidates, negative, weight, best: _Trial):
     edge[idx] = robust.band_edges(np.where(neg, np.inf, residual), neg)
     glitch[idx] = robust.glitches(np.where(neg, 0.0, residual)) & ~neg
     return glitch & ~edge, edge
-
-
-def _model_landmarks(kind: str, f: NDArray[np.float64], trial: _Trial) -> Landmarks:
-    """Landmarks of the fitted model: on the measured grid, and where the grid cannot
-    give one, on a grid reaching :data:`LANDMARK_REACH` decades beyond it; a capacitance
-    or inductance still missing is the model's low-frequency value (the slope of its
-    reactance far below the band)."""
-    marks = landmarks_for(kind, f, network_impedance(trial.node, f, trial.values))
-    if all(v is not None for v in marks.values()):
-        return marks
-    reach = 10**LANDMARK_REACH
-    wide = np.geomspace(f[0] / reach, f[-1] * reach, 60 * int(2 * LANDMARK_REACH + 1) + f.size)
-    more = landmarks_for(kind, wide, network_impedance(trial.node, wide, trial.values))
-    out = {key: (value if value is not None else more.get(key)) for key, value in marks.items()}
-    f_low = np.array([f[0] / reach])
-    z_low = network_impedance(trial.node, f_low, trial.values)[0]
-    w_low = 2 * np.pi * float(f_low[0])
-    if kind == "capacitor" and out.get("c_low") is None and z_low.imag < 0:
-        out["c_low"] = float(-1.0 / (w_low * z_low.imag))
-    if kind == "inductor" and out.get("l_low") is None and z_low.imag > 0:
-        out["l_low"] = float(z_low.imag / w_low)
-    return out
-
-
-# A landmark of the model within this fraction of the same landmark read from the
-# measured points is given as the model's: it agrees with the data and uses the whole
-# band, so it is steadier than a reading from a few noisy points (a low-Q resonance, say).
-# A model further off misses the data there, and the data's value is given: a landmark
-# never follows a poor model choice (common practice, no source).
-MODEL_AGREEMENT = 0.05
-# Values at resonance are read from a few points of a small real part: noisier, so a
-# model within this much of them agrees with them.
-MODEL_AGREEMENT_AT_RESONANCE = {"esr_at_srf": 0.15, "z_at_srf": 0.15}
-# Landmarks read from the measured points over a whole low decade, with noise well
-# averaged: the measured value is always given where there is one.
-DATA_FIRST = ("c_low", "l_low")
-# Landmarks read at the bottom or the top of the sweep (``bench.core.landmarks``): when
-# the screening cut that edge off, the measured points no longer hold them.
-BOTTOM_LANDMARKS = ("c_low", "l_low", "r_dc")
-TOP_LANDMARKS = ("esl",)
-
-
-def _merge_landmarks(
-    data: Landmarks, model: Landmarks, cut: tuple[bool, bool] = (False, False)
-) -> tuple[Landmarks, dict[str, str | None]]:
-    """Each landmark with its source (``"data"``, ``"model"``, or None where neither gives
-    one): the model's where the measured points give none, or where it agrees with theirs
-    within :data:`MODEL_AGREEMENT`; else the measured points'. ``cut`` says whether the
-    bottom and the top of the band were left out as band edges (the points then no longer
-    hold the landmarks read there)."""
-    order = list(model) + [k for k in data if k not in model]
-    lost = (BOTTOM_LANDMARKS if cut[0] else ()) + (TOP_LANDMARKS if cut[1] else ())
-    marks: Landmarks = {}
-    sources: dict[str, str | None] = {}
-    for key in order:
-        d, m = data.get(key), model.get(key)
-        agrees = (
-            key not in DATA_FIRST
-            and m is not None
-            and d is not None
-            and abs(m / d - 1) <= MODEL_AGREEMENT_AT_RESONANCE.get(key, MODEL_AGREEMENT)
-        )
-        if d is not None and not (key in lost and m is not None) and not agrees:
-            marks[key], sources[key] = data[key], "data"
-        elif model.get(key) is not None:
-            marks[key], sources[key] = model[key], "model"
-        else:
-            marks[key], sources[key] = None, None
-    return marks, sources
