@@ -2,10 +2,12 @@
 
 Nodes (DEVELOPERS.md, bench-control table; FAULt nodes in the simulator's README):
 
-- ``OPERator:CABLes STANdard,SHORt|OPEN|LOAD``, ``THRough``, ``FIXTure``, ``SERies`` (both
-  cables on the series-through mount), ``REFLection`` (the port-1 cable on the reflection
-  mount, the port-2 cable left open); ``OPERator:CABLes?`` answers ``STAN,SHOR``,
-  ``STAN,OPEN``, ``STAN,LOAD``, ``THR``, ``FIXT``, ``SER`` or ``REFL``;
+- ``OPERator:CABLes STANdard,SHORt|OPEN|LOAD``, ``THRough``, ``FIXTure``, ``SERies``
+  (both cables on the series-through mount), ``REFLection`` (the port-1 cable on the
+  reflection mount, the port-2 cable left open), ``GAINphase`` (the network analyser's
+  cables off the fixture, left open, and the gain-phase analyser on it);
+  ``OPERator:CABLes?`` answers ``STAN,SHOR``, ``STAN,OPEN``, ``STAN,LOAD``, ``THR``,
+  ``FIXT``, ``SER``, ``REFL`` or ``GAIN``;
 - ``OPERator:MOUNt SERies|REFLection,GAP|STRAp|"<part>/<sample>"``: leave the mount empty
   (the series mount's empty gap, the reflection mount's open; ``EMPTy`` and ``OPEN`` are
   read too), fit its zero-ohm strap (``SHORt`` read too), or mount a part;
@@ -50,6 +52,7 @@ _CABLE_ANSWERS = {
     "FIXTURE": "FIXT",
     "SERIES": "SER",
     "REFLECTION": "REFL",
+    "GAINPHASE": "GAIN",
 }
 
 
@@ -86,7 +89,9 @@ class BenchControl(Instrument):
             if not p:
                 raise ScpiError(-109, "cables")
             what = parse_choice(
-                p[0], ("STANdard", "THRough", "FIXTure", "SERies", "REFLection"), name="cables"
+                p[0],
+                ("STANdard", "THRough", "FIXTure", "SERies", "REFLection", "GAINphase"),
+                name="cables",
             )
             if what == "STANDARD":
                 if len(p) != 2:
