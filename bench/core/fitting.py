@@ -39,6 +39,7 @@ from numpy.typing import NDArray
 from scipy.optimize import least_squares, leastsq
 
 from bench.core import robust
+from bench.core.fit_network import CompiledNetwork
 from bench.core.fit_landmarks import (
     landmark_uncertainties,
     low_frequency_warnings,
@@ -53,7 +54,6 @@ from bench.core.models import FAMILIES, ModelFamily
 from bench.core.models.network import (
     Node,
     clip_to_bounds,
-    impedance_and_jacobian,
     network_impedance,
     spice_lines,
     vanishing_sides,
@@ -252,34 +252,49 @@ def _check_inputs(f: Any, z: Any, rel_uncertainty: Any, valid: Any):
     return f, z, sigma, inside
 
 
-def _objective(node, names, f, z, weight):
-    """Residual and Jacobian functions of the log parameters for one grid.
+def log_ratio(zm: NDArray[np.complex128], z: NDArray[np.complex128]) -> NDArray[np.complex128]:
+    """``ln(zm/z)`` (principal value), computed as ``ln|ρ|`` and ``atan2``: numpy's complex
+    log takes a slow, careful path for arguments near 1, which a fit's residuals are."""
+    rho = zm / z
+    re, im = rho.real, rho.imag
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        return 0.5 * np.log(re * re + im * im) + 1j * np.arctan2(im, re)
 
-    One pass of the network gives Z and its derivatives; the optimiser asks for the
-    Jacobian at the point it has just evaluated, so the last pass is kept for it.
+
+class _Objective:
+    """Residuals and Jacobian of the log parameters on one grid.
+
+    The network is compiled for the grid (``bench.core.fit_network``); the Jacobian is
+    asked for at the point whose residuals were just evaluated, which the compiled
+    network keeps. Residuals are ``[Re, Im]`` of ``ln(Zmodel/Zmeasured)·weight``.
     """
-    cache: dict[str, Any] = {}
 
-    def evaluate(q: NDArray[np.float64]):
-        if cache.get("q") is None or not np.array_equal(cache["q"], q):
-            zm, jac = impedance_and_jacobian(node, f, dict(zip(names, np.exp(q), strict=True)))
-            cache.update(q=q.copy(), zm=zm, jac=jac)
-        return cache["zm"], cache["jac"]
+    def __init__(self, node, f, z, weight):
+        self.net = CompiledNetwork(node, f)
+        self.inv_z = 1.0 / z
+        self.weight = weight
+        self.n = f.size
 
-    def residuals(q: NDArray[np.float64]) -> NDArray[np.float64]:
-        zm, _ = evaluate(q)
-        r = np.log(zm / z) * weight
-        return np.concatenate([r.real, r.imag])
+    def residuals(self, q: NDArray[np.float64]) -> NDArray[np.float64]:
+        rho = self.net.impedance(q) * self.inv_z
+        re, im = rho.real, rho.imag
+        out = np.empty(2 * self.n)
+        np.multiply(np.log(re * re + im * im), 0.5 * self.weight, out=out[: self.n])
+        np.multiply(np.arctan2(im, re), self.weight, out=out[self.n :])
+        return out
 
-    def jacobian(q: NDArray[np.float64]) -> NDArray[np.float64]:
-        zm, jac = evaluate(q)
-        d = jac / zm * weight
-        return np.concatenate([d.real.T, d.imag.T])
+    def jacobian_rows(self, q: NDArray[np.float64]) -> NDArray[np.float64]:
+        """The Jacobian transposed: one row of ``2n`` per parameter (MINPACK's column
+        order, no copy)."""
+        zm = self.net.impedance(q)
+        d = self.net.jacobian(q) * (self.weight / zm)
+        return np.concatenate([d.real, d.imag], axis=1)
 
-    return residuals, jacobian
+    def jacobian(self, q: NDArray[np.float64]) -> NDArray[np.float64]:
+        return self.jacobian_rows(q).T
 
 
-def _solve(residuals, jacobian, q0, lo, hi, max_nfev: int) -> tuple[float, NDArray[np.float64]]:
+def _solve(obj: _Objective, q0, lo, hi, max_nfev: int) -> tuple[float, NDArray[np.float64]]:
     """Levenberg-Marquardt (MINPACK) in log parameters, kept inside the bounds.
 
     MINPACK's loop runs in compiled code, cheaper per step than the bounded
@@ -289,12 +304,14 @@ def _solve(residuals, jacobian, q0, lo, hi, max_nfev: int) -> tuple[float, NDArr
     """
 
     def fun(q):
-        return residuals(np.clip(q, lo, hi))
+        return obj.residuals(np.minimum(np.maximum(q, lo), hi))
 
     def jac(q):
-        qc = np.clip(q, lo, hi)
-        out = jacobian(qc)
-        return np.where((q > lo) & (q < hi), out, 0.0)
+        out = obj.jacobian_rows(np.minimum(np.maximum(q, lo), hi))
+        outside = (q <= lo) | (q >= hi)
+        if outside.any():
+            out[outside] = 0.0
+        return out
 
     # scipy's MINPACK driver called directly: the same iterations as
     # ``least_squares(method="lm", x_scale=1.0)`` without its per-call wrapping, which
@@ -302,9 +319,10 @@ def _solve(residuals, jacobian, q0, lo, hi, max_nfev: int) -> tuple[float, NDArr
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
         x = leastsq(
             fun,
-            np.clip(q0, lo, hi),
+            np.minimum(np.maximum(q0, lo), hi),
             Dfun=jac,
             full_output=True,
+            col_deriv=True,
             ftol=1e-7,
             xtol=1e-7,
             gtol=1e-7,
@@ -312,8 +330,9 @@ def _solve(residuals, jacobian, q0, lo, hi, max_nfev: int) -> tuple[float, NDArr
             factor=100.0,
             diag=np.ones(np.size(q0)),
         )[0]
-    q = np.clip(x, lo, hi)
-    return float(np.sum(residuals(q) ** 2)), q
+        q = np.minimum(np.maximum(x, lo), hi)
+        r = obj.residuals(q)
+    return float(r @ r), q
 
 
 def _fit_order(
@@ -337,18 +356,18 @@ def _fit_order(
     # SCOUT_POINTS), which finds the right valley at a fraction of the cost; the two best
     # distinct results are then refined on the full grid.
     step = max(1, int(np.ceil(f.size / SCOUT_POINTS)))
-    coarse = _objective(node, names, f[::step], z[::step], weight[::step])
-    fine = coarse if step == 1 else _objective(node, names, f, z, weight)
+    coarse = _Objective(node, f[::step], z[::step], weight[::step])
+    fine = coarse if step == 1 else _Objective(node, f, z, weight)
     scouts = []
     if starts is None:
         starts = family.starts(order, f, z, landmarks, previous)
     for start in starts:
         q0 = np.log([clip_to_bounds(start, limits)[n] for n in names])
         with np.errstate(all="ignore"):
-            r0 = coarse[0](q0)
+            r0 = coarse.residuals(q0)
         if not np.all(np.isfinite(r0)):
             continue
-        result = _solve(*coarse, q0, lo, hi, 20 * (k + 1))
+        result = _solve(coarse, q0, lo, hi, 20 * (k + 1))
         if np.isfinite(result[0]):
             scouts.append(result)
     if not scouts:
@@ -359,7 +378,7 @@ def _fit_order(
     else:
         # The runner-up too, unless it sits in the same valley (costs within 1 %).
         chosen = scouts[:1] + [t for t in scouts[1:2] if t[0] > 1.01 * scouts[0][0]]
-        refined = [_solve(*fine, q_scout, lo, hi, 20 * (k + 1)) for _, q_scout in chosen]
+        refined = [_solve(fine, q_scout, lo, hi, 20 * (k + 1)) for _, q_scout in chosen]
         refined = [r for r in refined if np.isfinite(r[0])]
         if not refined:
             raise FitError(f"model {family.name} (order {order}): the fit did not converge")
@@ -375,7 +394,7 @@ def _make_trial(family, order, node, q, lo, hi, f, z, weight) -> Trial:
     k = len(names)
     values = dict(zip(names, (float(v) for v in np.exp(q)), strict=True))
     zm = network_impedance(node, f, values)
-    err = np.abs(np.log(zm / z))
+    err = np.abs(log_ratio(zm, z))
     chi2 = float(np.sum((err * weight) ** 2))
     # Known-variance form: the weights are the points' uncertainties (with the model-error
     # floor), so χ² is on an absolute scale and each element must lower it by ln(m).
@@ -424,7 +443,8 @@ def _robust_refine(trial: Trial, f, z, weight, landmarks: Landmarks) -> Trial:
     limits = family.element_bounds(order, f, landmarks)
     lo = np.log([limits[n][0] for n in names])
     hi = np.log([limits[n][1] for n in names])
-    residuals, jacobian = _objective(trial.node, names, f, z, weight)
+    obj = _Objective(trial.node, f, z, weight)
+    residuals, jacobian = obj.residuals, obj.jacobian
     span = hi - lo
     q0 = np.clip(trial.q, lo + 1e-9 * span, hi - 1e-9 * span)
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
@@ -453,12 +473,10 @@ def _robust_refine(trial: Trial, f, z, weight, landmarks: Landmarks) -> Trial:
 def _covariance(trial: Trial, f, z, weight) -> NDArray[np.float64]:
     """Covariance of the log element values, from the Jacobian at the solution, scaled by
     the residual variance χ²/(m − k)."""
-    zm, jac = impedance_and_jacobian(trial.node, f, trial.values)
-    d = jac / zm * weight
-    jm = np.concatenate([d.real.T, d.imag.T])
-    m, k = jm.shape
     with np.errstate(all="ignore"):
-        return np.linalg.pinv(jm.T @ jm) * (trial.chi2 / max(m - k, 1))
+        rows = _Objective(trial.node, f, z, weight).jacobian_rows(trial.q)
+        k, m = rows.shape
+        return np.linalg.pinv(rows @ rows.T) * (trial.chi2 / max(m - k, 1))
 
 
 def _uncertainties(trial: Trial, cov: NDArray[np.float64]) -> dict[str, float]:
@@ -668,7 +686,7 @@ def fit_impedance(
         )
 
     zm = network_impedance(best.node, fu, best.values)
-    err = np.abs(np.log(zm / zu))
+    err = np.abs(log_ratio(zm, zu))
     u = u_all[used]
     k = best.q.size
     quality = FitQuality(
@@ -731,7 +749,7 @@ def _screen(f, z, candidates, negative, weight, best: Trial):
     idx = np.flatnonzero(candidates)
     with np.errstate(all="ignore"):
         zm = network_impedance(best.node, f[idx], best.values)
-        residual = np.abs(np.log(zm / z[idx])) * weight[idx]
+        residual = np.abs(log_ratio(zm, z[idx])) * weight[idx]
     neg = negative[idx]
     glitch = np.zeros(f.size, bool)
     edge = np.zeros(f.size, bool)
