@@ -39,7 +39,6 @@ from numpy.typing import NDArray
 from scipy.optimize import least_squares, leastsq
 
 from bench.core import robust
-from bench.core.fit_network import CompiledNetwork
 from bench.core.fit_landmarks import (
     landmark_uncertainties,
     low_frequency_warnings,
@@ -47,6 +46,7 @@ from bench.core.fit_landmarks import (
     model_landmarks,
     resonance_warnings,
 )
+from bench.core.fit_network import CompiledNetwork
 from bench.core.fit_select import Trial, select
 from bench.core.landmarks import Landmarks, classify, landmarks_for
 from bench.core.model_registry import MODEL_NAMES, auto_candidates
