@@ -16,14 +16,13 @@ import numpy as np
 
 from bench.plausibility import check_gain_phase_short
 from bench.procedure import methods
-from bench.procedure.operators import REPEAT
 from bench.procedure.plan import GAIN_PHASE, Step
 from bench.procedure.steps.context import RunContext
 from bench.procedure.steps.live import landmark_line, part_landmarks
 from bench.procedure.steps.sweep import (
     checked_capture_done,
-    decide,
     prepare_capture,
+    sample_done,
     sweeps,
 )
 from bench.units import format_si
@@ -78,9 +77,7 @@ def measure(ctx: RunContext, step: Step) -> None:
         place(ctx, placement, cables=GAIN_PHASE)
         sweeps(ctx, step, f"{label}, position {placement.position}")
         result = live_result(ctx, step, part, label)
-        if not ctx.operator.guided:
-            ctx.display.result(result)
-        if decide(ctx, step, label, result) != REPEAT:
+        if sample_done(ctx, step, label, result):
             break
 
 

@@ -8,7 +8,6 @@ from typing import Any
 import numpy as np
 
 from bench.plausibility import check_part
-from bench.procedure.operators import REPEAT
 from bench.procedure.plan import GAIN_PHASE, SHUNT, SINGLE_MOUNT_METHODS, Step
 from bench.procedure.processing import (
     averaged,
@@ -20,7 +19,7 @@ from bench.procedure.processing import (
 from bench.procedure.steps import bias, single_mount
 from bench.procedure.steps.context import RunContext
 from bench.procedure.steps.live import landmark_line, part_landmarks
-from bench.procedure.steps.sweep import cables_to, decide, select, sweeps
+from bench.procedure.steps.sweep import cables_to, sample_done, select, sweeps
 from bench.runstore import DONE
 
 
@@ -71,9 +70,7 @@ def measure(ctx: RunContext, step: Step) -> None:
                 result += f"\n    IMPLAUSIBLE: {problem}" + (
                     " Repeat (r) once it is fixed." if ctx.operator.guided else ""
                 )
-        if not ctx.operator.guided:
-            ctx.display.result(result)
-        if decide(ctx, step, label, result) != REPEAT:
+        if sample_done(ctx, step, label, result):
             break
 
 

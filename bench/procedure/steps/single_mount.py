@@ -10,7 +10,7 @@ from bench.procedure.operators import REPEAT
 from bench.procedure.plan import Step
 from bench.procedure.steps.context import RunContext
 from bench.procedure.steps.live import landmark_line, part_landmarks
-from bench.procedure.steps.sweep import cables_to, decide, sweeps
+from bench.procedure.steps.sweep import cables_to, decide, sample_done, sweeps
 
 
 def _fill(ctx: RunContext, method: str, item: Any, key: str) -> None:
@@ -58,9 +58,7 @@ def measure(ctx: RunContext, step: Step) -> None:
         _fill(ctx, method, placement, f"{placement.part}/{placement.sample}")
         sweeps(ctx, step, label)
         result = live_result(ctx, step, part, label)
-        if not ctx.operator.guided:
-            ctx.display.result(result)
-        if decide(ctx, step, label, result) != REPEAT:
+        if sample_done(ctx, step, label, result):
             break
 
 

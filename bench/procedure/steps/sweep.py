@@ -161,6 +161,14 @@ def decide(ctx: RunContext, step: Step, label: str, result: str) -> str:
     return "continue"
 
 
+def sample_done(ctx: RunContext, step: Step, label: str, result: str) -> bool:
+    """A sample's live line: shown at once when unattended, and the operator's choice in a
+    guided session. True when the step is done, False when the operator repeats it."""
+    if not ctx.operator.guided:
+        ctx.display.result(result)
+    return decide(ctx, step, label, result) != REPEAT
+
+
 def implausible(ctx: RunContext, step: Step, what: str, problem: str | None, result: str) -> str:
     """The result line of a capture, marked when a plausibility check failed.
 
