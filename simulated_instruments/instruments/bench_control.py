@@ -65,6 +65,15 @@ def parse_instrument(text: str) -> str:
     return _INSTRUMENT_WORDS[long]
 
 
+def _item_answer(item: str, short: str, empty: str) -> str:
+    """What a mount holds, as a query answers it: ``short``, ``empty`` or the quoted part."""
+    if item == SHORT:
+        return short
+    if item == EMPTY:
+        return empty
+    return f'"{item}"'
+
+
 class BenchControl(Instrument):
     name = "bench"
 
@@ -81,6 +90,15 @@ class BenchControl(Instrument):
     def position(self, text: str) -> int:
         n = self.state.scenario.positions
         return parse_integer(text, minimum=1, maximum=n, name="position")
+
+    def part(self, name: str) -> str:
+        """``name`` if it is a ``part/sample`` of the scenario, else ``-224``."""
+        st = self.state
+        if name not in st.scenario.parts:
+            raise ScpiError(
+                -224, f"no part {name[:40]!r} in scenario {st.scenario.name}; see OPERator:PARTs?"
+            )
+        return name
 
     def build(self, tree: CommandTree) -> None:
         st = self.state
@@ -123,20 +141,11 @@ class BenchControl(Instrument):
                     item = EMPTY
                 else:
                     item = text
-            if item not in (SHORT, EMPTY) and item not in st.scenario.parts:
-                raise ScpiError(
-                    -224,
-                    f"no part {item[:40]!r} in scenario {st.scenario.name}; see OPERator:PARTs?",
-                )
-            st.place(pos, item)
+            st.place(pos, item if item in (SHORT, EMPTY) else self.part(item))
 
         def placed(s: Session, p: list[str]) -> str:
             item = st.placements[self.position(one(p, "position"))]
-            if item == SHORT:
-                return "SHOR"
-            if item == EMPTY:
-                return "EMPT"
-            return f'"{item}"'
+            return _item_answer(item, "SHOR", "EMPT")
 
         tree.add("OPERator:PLACe", set=place, query=placed)
 
@@ -149,25 +158,14 @@ class BenchControl(Instrument):
             which = which_mount(p[0])
             text = p[1].strip()
             if text[:1] in "\"'":
-                item = parse_string(text, name="part")
-                if item not in st.scenario.parts:
-                    raise ScpiError(
-                        -224,
-                        f"no part {item[:40]!r} in scenario {st.scenario.name}; "
-                        "see OPERator:PARTs?",
-                    )
+                item = self.part(parse_string(text, name="part"))
             else:
                 word = parse_choice(text, ("GAP", "STRAp", "EMPTy", "OPEN", "SHORt"), name="item")
                 item = SHORT if word in ("STRAP", "SHORT") else EMPTY
             st.mount(which, item)
 
         def mounted(s: Session, p: list[str]) -> str:
-            item = st.mounted[which_mount(one(p, "mount"))]
-            if item == SHORT:
-                return "STRA"
-            if item == EMPTY:
-                return "GAP"
-            return f'"{item}"'
+            return _item_answer(st.mounted[which_mount(one(p, "mount"))], "STRA", "GAP")
 
         tree.add("OPERator:MOUNt", set=mount, query=mounted)
 
