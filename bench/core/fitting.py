@@ -39,13 +39,21 @@ from numpy.typing import NDArray
 from scipy.optimize import least_squares, leastsq
 
 from bench.core import robust
+from bench.core.fit_landmarks import (
+    landmark_uncertainties,
+    low_frequency_warnings,
+    merge_landmarks,
+    model_landmarks,
+    resonance_warnings,
+)
+from bench.core.fit_network import CompiledNetwork
+from bench.core.fit_select import Trial, select
 from bench.core.landmarks import Landmarks, classify, landmarks_for
 from bench.core.model_registry import MODEL_NAMES, auto_candidates
 from bench.core.models import FAMILIES, ModelFamily
 from bench.core.models.network import (
     Node,
     clip_to_bounds,
-    impedance_and_jacobian,
     network_impedance,
     spice_lines,
     vanishing_sides,
@@ -66,12 +74,15 @@ MIN_POINTS = 10
 MAX_FIT_POINTS = 4000
 # Points of the thinned grid on which every start is first run to convergence.
 SCOUT_POINTS = 160
-BIC_MARGIN = 6.0
+# Relative tolerances (sum of squares, parameters) of the scouts on the thinned grid and
+# of the refinement on every point: a scout need only find its valley, and the chosen
+# fit is solved once more to the end (:func:`_robust_refine`).
+SCOUT_TOLERANCE = 1e-5
+REFINE_TOLERANCE = 1e-6
+# Two scouts whose costs agree this closely ended in the same valley.
+SAME_VALLEY = 1e-3
 # A family whose fit leaves this many times the best χ² so far gets no higher orders.
 HOPELESS_FACTOR = 10.0
-# An element whose one-sigma uncertainty exceeds its value (100 %) is not determined by
-# the data: its confidence interval reaches from nothing to double.
-UNDETERMINED = 1.0
 # An element within this distance (natural log) of a bound is pinned at it.
 PINNED_LOG = 1e-3
 
@@ -80,9 +91,6 @@ PINNED_LOG = 1e-3
 # within a few sigma count as in least squares, beyond it their pull grows only linearly
 # (scipy's ``least_squares(loss="soft_l1")``; the scale is common practice, no source).
 ROBUST_SCALE = 3.0
-# Decades beyond the measured band over which the model's landmarks are still looked
-# for when the data cannot give them.
-LANDMARK_REACH = 2.0
 
 
 class ModelMismatchError(FitError):
@@ -215,34 +223,6 @@ class FitResult:
         }
 
 
-@dataclass(frozen=True)
-class _Trial:
-    family: ModelFamily
-    order: int
-    node: Node
-    values: dict[str, float]
-    q: NDArray[np.float64]
-    chi2: float
-    bic: float
-    rms: float
-    at_bound: tuple[str, ...]
-    pinned: tuple[str, ...] = ()
-    rel_sigma: dict[str, float] = field(default_factory=dict)
-
-    @property
-    def undetermined(self) -> tuple[str, ...]:
-        return tuple(n for n, s in self.rel_sigma.items() if not s <= UNDETERMINED)
-
-    @property
-    def supported(self) -> bool:
-        return not self.pinned and not self.undetermined
-
-    @property
-    def weakness(self) -> dict[str, float]:
-        """Relative one-sigma uncertainty of each element, ``inf`` where it is pinned."""
-        return {n: (math.inf if n in self.pinned else s) for n, s in self.rel_sigma.items()}
-
-
 def _check_inputs(f: Any, z: Any, rel_uncertainty: Any, valid: Any):
     f = np.asarray(f, dtype=float)
     z = np.asarray(z, dtype=complex)
@@ -279,34 +259,51 @@ def _check_inputs(f: Any, z: Any, rel_uncertainty: Any, valid: Any):
     return f, z, sigma, inside
 
 
-def _objective(node, names, f, z, weight):
-    """Residual and Jacobian functions of the log parameters for one grid.
+def log_ratio(zm: NDArray[np.complex128], z: NDArray[np.complex128]) -> NDArray[np.complex128]:
+    """``ln(zm/z)`` (principal value), computed as ``ln|ρ|`` and ``atan2``: numpy's complex
+    log takes a slow, careful path for arguments near 1, which a fit's residuals are."""
+    rho = zm / z
+    re, im = rho.real, rho.imag
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        return 0.5 * np.log(re * re + im * im) + 1j * np.arctan2(im, re)
 
-    One pass of the network gives Z and its derivatives; the optimiser asks for the
-    Jacobian at the point it has just evaluated, so the last pass is kept for it.
+
+class _Objective:
+    """Residuals and Jacobian of the log parameters on one grid.
+
+    The network is compiled for the grid (``bench.core.fit_network``); the Jacobian is
+    asked for at the point whose residuals were just evaluated, which the compiled
+    network keeps. Residuals are ``[Re, Im]`` of ``ln(Zmodel/Zmeasured)·weight``.
     """
-    cache: dict[str, Any] = {}
 
-    def evaluate(q: NDArray[np.float64]):
-        if cache.get("q") is None or not np.array_equal(cache["q"], q):
-            zm, jac = impedance_and_jacobian(node, f, dict(zip(names, np.exp(q), strict=True)))
-            cache.update(q=q.copy(), zm=zm, jac=jac)
-        return cache["zm"], cache["jac"]
+    def __init__(self, node, f, z, weight):
+        self.net = CompiledNetwork(node, f)
+        self.inv_z = 1.0 / z
+        self.weight = weight
+        self.n = f.size
 
-    def residuals(q: NDArray[np.float64]) -> NDArray[np.float64]:
-        zm, _ = evaluate(q)
-        r = np.log(zm / z) * weight
-        return np.concatenate([r.real, r.imag])
+    def residuals(self, q: NDArray[np.float64]) -> NDArray[np.float64]:
+        rho = self.net.impedance(q) * self.inv_z
+        re, im = rho.real, rho.imag
+        out = np.empty(2 * self.n)
+        np.multiply(np.log(re * re + im * im), 0.5 * self.weight, out=out[: self.n])
+        np.multiply(np.arctan2(im, re), self.weight, out=out[self.n :])
+        return out
 
-    def jacobian(q: NDArray[np.float64]) -> NDArray[np.float64]:
-        zm, jac = evaluate(q)
-        d = jac / zm * weight
-        return np.concatenate([d.real.T, d.imag.T])
+    def jacobian_rows(self, q: NDArray[np.float64]) -> NDArray[np.float64]:
+        """The Jacobian transposed: one row of ``2n`` per parameter (MINPACK's column
+        order, no copy)."""
+        zm = self.net.impedance(q)
+        d = self.net.jacobian(q) * (self.weight / zm)
+        return np.concatenate([d.real, d.imag], axis=1)
 
-    return residuals, jacobian
+    def jacobian(self, q: NDArray[np.float64]) -> NDArray[np.float64]:
+        return self.jacobian_rows(q).T
 
 
-def _solve(residuals, jacobian, q0, lo, hi, max_nfev: int) -> tuple[float, NDArray[np.float64]]:
+def _solve(
+    obj: _Objective, q0, lo, hi, max_nfev: int, tolerance: float = 1e-7
+) -> tuple[float, NDArray[np.float64]]:
     """Levenberg-Marquardt (MINPACK) in log parameters, kept inside the bounds.
 
     MINPACK's loop runs in compiled code, cheaper per step than the bounded
@@ -316,12 +313,14 @@ def _solve(residuals, jacobian, q0, lo, hi, max_nfev: int) -> tuple[float, NDArr
     """
 
     def fun(q):
-        return residuals(np.clip(q, lo, hi))
+        return obj.residuals(np.minimum(np.maximum(q, lo), hi))
 
     def jac(q):
-        qc = np.clip(q, lo, hi)
-        out = jacobian(qc)
-        return np.where((q > lo) & (q < hi), out, 0.0)
+        out = obj.jacobian_rows(np.minimum(np.maximum(q, lo), hi))
+        outside = (q <= lo) | (q >= hi)
+        if outside.any():
+            out[outside] = 0.0
+        return out
 
     # scipy's MINPACK driver called directly: the same iterations as
     # ``least_squares(method="lm", x_scale=1.0)`` without its per-call wrapping, which
@@ -329,18 +328,20 @@ def _solve(residuals, jacobian, q0, lo, hi, max_nfev: int) -> tuple[float, NDArr
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
         x = leastsq(
             fun,
-            np.clip(q0, lo, hi),
+            np.minimum(np.maximum(q0, lo), hi),
             Dfun=jac,
             full_output=True,
-            ftol=1e-7,
-            xtol=1e-7,
+            col_deriv=True,
+            ftol=tolerance,
+            xtol=tolerance,
             gtol=1e-7,
             maxfev=max_nfev,
             factor=100.0,
             diag=np.ones(np.size(q0)),
         )[0]
-    q = np.clip(x, lo, hi)
-    return float(np.sum(residuals(q) ** 2)), q
+        q = np.minimum(np.maximum(x, lo), hi)
+        r = obj.residuals(q)
+    return float(r @ r), q
 
 
 def _fit_order(
@@ -352,7 +353,7 @@ def _fit_order(
     landmarks: Landmarks,
     previous: Mapping[str, float] | None,
     starts: list[dict[str, float]] | None = None,
-) -> _Trial:
+) -> Trial:
     node = family.circuit_for(order, f)
     names = family.element_names(order)
     limits = family.element_bounds(order, f, landmarks)
@@ -362,22 +363,28 @@ def _fit_order(
 
     # Every start runs to convergence on a thinned grid (every few points, at most
     # SCOUT_POINTS), which finds the right valley at a fraction of the cost; the two best
-    # distinct results are then refined on the full grid.
+    # distinct results are then refined on the full grid. The starts come best guess
+    # first: once two of them end in the same lowest valley, the rest are not run.
     step = max(1, int(np.ceil(f.size / SCOUT_POINTS)))
-    coarse = _objective(node, names, f[::step], z[::step], weight[::step])
-    fine = coarse if step == 1 else _objective(node, names, f, z, weight)
-    scouts = []
+    coarse = _Objective(node, f[::step], z[::step], weight[::step])
+    fine = coarse if step == 1 else _Objective(node, f, z, weight)
+    scouts: list[tuple[float, NDArray[np.float64]]] = []
     if starts is None:
         starts = family.starts(order, f, z, landmarks, previous)
     for start in starts:
-        q0 = np.log([clip_to_bounds(start, limits)[n] for n in names])
+        clipped = clip_to_bounds(start, limits)
+        q0 = np.log([clipped[n] for n in names])
         with np.errstate(all="ignore"):
-            r0 = coarse[0](q0)
+            r0 = coarse.residuals(q0)
         if not np.all(np.isfinite(r0)):
             continue
-        result = _solve(*coarse, q0, lo, hi, 20 * (k + 1))
-        if np.isfinite(result[0]):
-            scouts.append(result)
+        result = _solve(coarse, q0, lo, hi, 20 * (k + 1), SCOUT_TOLERANCE)
+        if not np.isfinite(result[0]):
+            continue
+        lowest = min((c for c, _ in scouts), default=math.inf)
+        scouts.append(result)
+        if abs(result[0] - lowest) <= SAME_VALLEY * lowest:
+            break  # a second start confirms the lowest valley
     if not scouts:
         raise FitError(f"model {family.name} (order {order}): no start value gave a finite model")
     scouts.sort(key=lambda t: t[0])
@@ -386,24 +393,28 @@ def _fit_order(
     else:
         # The runner-up too, unless it sits in the same valley (costs within 1 %).
         chosen = scouts[:1] + [t for t in scouts[1:2] if t[0] > 1.01 * scouts[0][0]]
-        refined = [_solve(*fine, q_scout, lo, hi, 20 * (k + 1)) for _, q_scout in chosen]
+        refined = [
+            _solve(fine, q_scout, lo, hi, 20 * (k + 1), REFINE_TOLERANCE) for _, q_scout in chosen
+        ]
         refined = [r for r in refined if np.isfinite(r[0])]
         if not refined:
             raise FitError(f"model {family.name} (order {order}): the fit did not converge")
         best = min(refined, key=lambda r: r[0])
-    return _make_trial(family, order, node, best[1], lo, hi, f, z, weight)
+    return _make_trial(family, order, node, best[1], lo, hi, fine)
 
 
-def _make_trial(family, order, node, q, lo, hi, f, z, weight) -> _Trial:
-    """The trial of ``family``/``order`` at log values ``q``, with its criterion, the
-    elements at a bound and the relative uncertainty of every element."""
+def _make_trial(family, order, node, q, lo, hi, obj: _Objective) -> Trial:
+    """The trial of ``family``/``order`` at log values ``q`` (fitted with the objective
+    ``obj``), with its criterion, the elements at a bound and the relative uncertainty
+    of every element."""
     names = family.element_names(order)
-    m = 2 * f.size
+    m = 2 * obj.n
     k = len(names)
     values = dict(zip(names, (float(v) for v in np.exp(q)), strict=True))
-    zm = network_impedance(node, f, values)
-    err = np.abs(np.log(zm / z))
-    chi2 = float(np.sum((err * weight) ** 2))
+    with np.errstate(all="ignore"):
+        r = obj.residuals(q)
+        chi2 = float(r @ r)
+        err = np.hypot(r[: obj.n], r[obj.n :]) / obj.weight
     # Known-variance form: the weights are the points' uncertainties (with the model-error
     # floor), so χ² is on an absolute scale and each element must lower it by ln(m).
     bic = chi2 + k * math.log(m)
@@ -421,27 +432,14 @@ def _make_trial(family, order, node, q, lo, hi, f, z, weight) -> _Trial:
         for n, qi, a, b in zip(names, q, lo, hi, strict=True)
         if qi - a < PINNED_LOG or b - qi < PINNED_LOG
     )
-    trial = _Trial(
-        family,
-        order,
-        node,
-        values,
-        q,
-        chi2,
-        bic,
-        float(np.sqrt(np.mean(err**2))),
-        at_bound,
-        pinned,
-    )
-    cov = _covariance(trial, f, z, weight)
+    cov = _covariance(obj, q, chi2)
     sigma_log = np.sqrt(np.clip(np.diag(cov), 0.0, None))
     rel = {n: float(s) for n, s in zip(names, sigma_log, strict=True)}
-    return _Trial(
-        family, order, node, values, q, chi2, bic, trial.rms, at_bound, pinned, rel_sigma=rel
-    )
+    rms = float(np.sqrt(np.mean(err**2)))
+    return Trial(family, order, node, values, q, chi2, bic, rms, at_bound, pinned, rel_sigma=rel)
 
 
-def _robust_refine(trial: _Trial, f, z, weight, landmarks: Landmarks) -> _Trial:
+def _robust_refine(trial: Trial, f, z, weight, landmarks: Landmarks) -> Trial:
     """The chosen trial solved once more with a soft-L1 loss (scipy's ``least_squares``,
     scale :data:`ROBUST_SCALE` in units of a point's uncertainty), so that a few points
     the screening let through cannot pull the fit; kept only when it stays as good in
@@ -451,7 +449,8 @@ def _robust_refine(trial: _Trial, f, z, weight, landmarks: Landmarks) -> _Trial:
     limits = family.element_bounds(order, f, landmarks)
     lo = np.log([limits[n][0] for n in names])
     hi = np.log([limits[n][1] for n in names])
-    residuals, jacobian = _objective(trial.node, names, f, z, weight)
+    obj = _Objective(trial.node, f, z, weight)
+    residuals, jacobian = obj.residuals, obj.jacobian
     span = hi - lo
     q0 = np.clip(trial.q, lo + 1e-9 * span, hi - 1e-9 * span)
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
@@ -470,92 +469,33 @@ def _robust_refine(trial: _Trial, f, z, weight, landmarks: Landmarks) -> _Trial:
         )
     if not np.all(np.isfinite(sol.x)):
         return trial
-    refined = _make_trial(family, order, trial.node, sol.x, lo, hi, f, z, weight)
+    refined = _make_trial(family, order, trial.node, sol.x, lo, hi, obj)
     # A sanity bound only: on clean data the two solutions agree to the noise.
     if not np.isfinite(refined.chi2) or refined.rms > 1.5 * trial.rms + 1e-12:
         return trial
     return refined
 
 
-def _lowest_bic(trials: list[_Trial]) -> _Trial:
-    """The trial with the lowest BIC, except that more elements must earn their place.
-
-    A candidate with more elements replaces a simpler one only when it lowers the BIC by
-    more than :data:`BIC_MARGIN` ("strong" evidence on the usual BIC scale, common
-    practice, no source); otherwise near-equal fits would pick redundant elements.
-    """
-    ordered = sorted(trials, key=lambda t: (t.q.size, t.bic))
-    best = ordered[0]
-    for trial in ordered[1:]:
-        margin = 0.0 if trial.q.size == best.q.size else BIC_MARGIN
-        if trial.bic < best.bic - margin:
-            best = trial
-    return best
-
-
-def _select(trials: list[_Trial], quality_bound: float) -> tuple[_Trial, bool]:
-    """The chosen trial: :func:`_lowest_bic` among the trials the data support.
-
-    A trial with an element pinned at a bound or not determined (see
-    :attr:`Candidate.supported`) has more elements than the data can tell apart, however
-    low its criterion; the simplest trials (fewest elements) stay eligible whatever their
-    state, as the base the others must improve on. Only when no eligible trial meets the
-    quality bound is an unsupported one that meets it taken (its undetermined elements
-    are then named in the warnings). Returns the trial and whether it is such a one.
-    """
-    fewest = min(t.q.size for t in trials)
-    eligible = [t for t in trials if t.supported or t.q.size == fewest]
-    best = _lowest_bic(eligible)
-    if best.rms <= quality_bound:
-        return best, False
-    good = [t for t in eligible if t.rms <= quality_bound]
-    if good:
-        return _lowest_bic(good), False
-    good = [t for t in trials if t.rms <= quality_bound]
-    if good:
-        return _lowest_bic(good), True
-    return best, False
-
-
-def _covariance(trial: _Trial, f, z, weight) -> NDArray[np.float64]:
-    """Covariance of the log element values, from the Jacobian at the solution, scaled by
-    the residual variance χ²/(m − k)."""
-    zm, jac = impedance_and_jacobian(trial.node, f, trial.values)
-    d = jac / zm * weight
-    jm = np.concatenate([d.real.T, d.imag.T])
-    m, k = jm.shape
+def _covariance(obj: _Objective, q: NDArray[np.float64], chi2: float) -> NDArray[np.float64]:
+    """Covariance of the log element values, from the Jacobian at ``q``, scaled by the
+    residual variance χ²/(m − k). The normal matrix is symmetric, so its pseudo-inverse
+    comes from its eigen-decomposition (as ``numpy.linalg.pinv`` would give, cheaper)."""
     with np.errstate(all="ignore"):
-        return np.linalg.pinv(jm.T @ jm) * (trial.chi2 / max(m - k, 1))
+        rows = obj.jacobian_rows(q)
+        k, m = rows.shape
+        normal = rows @ rows.T
+        if not np.all(np.isfinite(normal)):
+            return np.full((k, k), np.inf)
+        w, v = np.linalg.eigh(normal)
+        keep = np.abs(w) > 1e-15 * np.max(np.abs(w))
+        inv = np.where(keep, 1.0 / np.where(keep, w, 1.0), 0.0)
+        return (v * inv) @ v.T * (chi2 / max(m - k, 1))
 
 
-def _uncertainties(trial: _Trial, cov: NDArray[np.float64]) -> dict[str, float]:
+def _uncertainties(trial: Trial, cov: NDArray[np.float64]) -> dict[str, float]:
     names = trial.family.element_names(trial.order)
     sigma_log = np.sqrt(np.clip(np.diag(cov), 0.0, None))
     return {n: float(trial.values[n] * s) for n, s in zip(names, sigma_log, strict=True)}
-
-
-def _landmark_uncertainties(
-    trial: _Trial, cov: NDArray[np.float64], kind: str, f, marks: Landmarks
-) -> dict[str, float | None]:
-    """One-sigma uncertainty of each model landmark, propagated from the element
-    covariance through the landmark's derivatives (finite differences in log values)."""
-    names = trial.family.element_names(trial.order)
-    node = trial.node
-    step = 1e-4
-    grads = []
-    for name in names:
-        values = dict(trial.values)
-        values[name] *= math.exp(step)
-        moved = landmarks_for(kind, f, network_impedance(node, f, values))
-        grads.append(moved)
-    out: dict[str, float | None] = {}
-    for key, value in marks.items():
-        if value is None or any(g.get(key) is None for g in grads):
-            out[key] = None
-            continue
-        g = np.array([(moved[key] - value) / step for moved in grads])
-        out[key] = float(np.sqrt(max(float(g @ cov @ g), 0.0)))
-    return out
 
 
 def _candidates(
@@ -574,90 +514,6 @@ def _candidates(
     return [(family, family.orders)]
 
 
-def _resonance_warnings(
-    kind: str,
-    f: NDArray[np.float64],
-    inside: NDArray[np.bool_],
-    model_marks: Landmarks,
-    data_marks: Landmarks,
-) -> list[str]:
-    srf = model_marks.get("srf")
-    what = "series resonance" if kind == "capacitor" else "parallel resonance"
-    out = []
-    if srf is None or not f[0] <= srf <= f[-1]:
-        out.append(
-            f"the model's {what} lies outside the sweep "
-            f"({format_si(f[0], 'Hz')} to {format_si(f[-1], 'Hz')}); "
-            + (
-                "srf is not given"
-                if srf is None
-                else f"srf ({format_si(srf, 'Hz')}) is the model's extrapolation"
-            )
-        )
-        return out
-    nearest = int(np.argmin(np.abs(np.log(f / srf))))
-    if not inside[nearest] or data_marks.get("srf") is None:
-        out.append(
-            f"the {what} near {format_si(srf, 'Hz')} lies outside the measurable window; "
-            "srf and the value at resonance come from the model, not from measured points"
-        )
-    return out
-
-
-def _low_frequency_warnings(
-    kind: str,
-    f: NDArray[np.float64],
-    z: NDArray[np.complex128],
-    sigma: NDArray[np.float64],
-    used: NDArray[np.bool_],
-    model_marks: Landmarks,
-    some_excluded: bool = False,
-) -> list[str]:
-    """Say so when the DC resistance of an inductor or bead was not measured.
-
-    ``r_dc`` is read over the lowest third of a decade of the sweep (see
-    :func:`bench.core.landmarks.inductor_landmarks`). When most of those points lie
-    outside the measurable window, or the resistance is lost in the uncertainty of the
-    (reactive) impedance there, the value is the model's extrapolation, not a
-    measurement: a 1.5 mΩ winding behind 499 Ω port resistors, for example.
-    """
-    r_dc = model_marks.get("r_dc")
-    if kind != "inductor" or r_dc is None or f.size < 2:
-        return []
-    band = f <= f[0] * 10 ** (1 / 3)
-    if np.count_nonzero(band) < 3:
-        band = np.arange(f.size) < 3
-    seen = band & used
-    note = (
-        f"r_dc ({format_si(r_dc, 'Ω', 3)}) comes from the model, not from measured points: "
-        f"{{why}}; measure it with a set-up whose window reaches it (no series "
-        f"resistors, a narrower IF bandwidth) or with a DC ohmmeter"
-    )
-    if np.count_nonzero(seen) < max(3, np.count_nonzero(band) // 2):
-        return [
-            note.format(
-                why=f"the points below {format_si(f[band][-1], 'Hz')} "
-                + (
-                    "were not used (outside the measurable window or left out)"
-                    if some_excluded
-                    else "lie outside the measurable window"
-                )
-            )
-        ]
-    # Standard error of the band's median of Re Z: about 1.25·σ/√n, with σ the RMS of
-    # one component of the complex error, |Z|·u/√2.
-    spread = np.abs(z[seen]) * sigma[seen] / np.sqrt(2.0)
-    standard_error = 1.25 * float(np.median(spread)) / np.sqrt(np.count_nonzero(seen))
-    if r_dc < 3.0 * standard_error:
-        return [
-            note.format(
-                why="it is below three times its standard error there "
-                f"({format_si(standard_error, 'Ω', 2)})"
-            )
-        ]
-    return []
-
-
 def _spread_in_log(f: NDArray[np.float64], most: int) -> NDArray[np.intp] | slice:
     """Indices of at most about ``most`` points of the increasing grid ``f``, spread evenly
     in log f (every point of a sparse stretch is kept); all points when there are few."""
@@ -667,6 +523,33 @@ def _spread_in_log(f: NDArray[np.float64], most: int) -> NDArray[np.intp] | slic
     return np.unique(np.clip(np.searchsorted(f, targets), 0, f.size - 1))
 
 
+def cannot_win(k: int, m: int, trials: list[Trial], quality_bound: float) -> bool:
+    """True when a candidate of ``k`` elements on ``m`` residuals cannot be chosen by
+    :func:`bench.core.fit_select.select` beside ``trials``, whatever its fit.
+
+    Its criterion is at least its penalty ``k·ln m`` (χ² ≥ 0). A supported trial ``T``
+    of no more elements that meets the quality bound stays eligible, and the choice
+    (:func:`~bench.core.fit_select.lowest_bic`, larger models by a margin) takes a
+    larger candidate only when its criterion is below ``T``'s; a criterion that cannot
+    fall below ``T``'s leaves the choice as it is.
+    """
+    floor = min(
+        (t.bic for t in trials if t.supported and t.q.size <= k and t.rms <= quality_bound),
+        default=math.inf,
+    )
+    return k * math.log(m) >= floor
+
+
+@dataclass
+class _Climb:
+    """Where the order climb of a family stopped because the next order could not win:
+    the order it would have tried next and the fit below it (None at the lowest)."""
+
+    family: ModelFamily
+    orders: tuple[int, ...]
+    lower: Trial | None
+
+
 def _fit_family(
     family: ModelFamily,
     orders: tuple[int, ...],
@@ -674,23 +557,32 @@ def _fit_family(
     z: NDArray[np.complex128],
     weight: NDArray[np.float64],
     data_marks: Landmarks,
-    others: list[_Trial],
+    others: list[Trial],
     n_used: int,
-) -> list[_Trial]:
+    quality_bound: float,
+    lower: Trial | None = None,
+) -> tuple[list[Trial], _Climb | None]:
     """Fit the orders of one family, lowest first, until a higher one stops paying.
 
     An order the data do not support (an element pinned or not determined) ends the
     climb: a higher order adds elements to a circuit that already has too many. Its fit
     is not wasted: without the unsupported section it starts the next lower order again,
     which finds that order's best valley when its own starts missed it (a section that
-    dropped out to a bound leaves a better lower-order fit behind).
+    dropped out to a bound leaves a better lower-order fit behind). An order whose
+    penalty alone puts it out of reach (:func:`cannot_win`) is not fitted, nor any above
+    it; the returned :class:`_Climb` says where to go on should the others fare worse
+    (on screened points). ``lower``, when given, is this family's fit of the order below
+    ``orders``, which the climb goes on from (returned first, maybe replaced).
     """
-    out: list[_Trial] = []
-    previous = None
-    best_bic = math.inf
-    for o in orders:
-        if 2 * n_used <= len(family.element_names(o)) + 1:
+    out: list[Trial] = [] if lower is None else [lower]
+    previous = None if lower is None else lower.values
+    best_bic = math.inf if lower is None else lower.bic
+    for i, o in enumerate(orders):
+        k = len(family.element_names(o))
+        if 2 * n_used <= k + 1:
             break
+        if cannot_win(k, 2 * f.size, [*others, *out], quality_bound):
+            return out, _Climb(family, orders[i:], out[-1] if out else None)
         trial = _fit_order(family, o, f, z, weight, data_marks, previous)
         out.append(trial)
         previous = trial.values
@@ -712,6 +604,55 @@ def _fit_family(
         overall = min(t.chi2 for t in [*others, *out] if t.q.size <= trial.q.size)
         if trial.chi2 > HOPELESS_FACTOR * overall:
             break  # another family fits far better; more orders of this one will not catch up
+    return out, None
+
+
+def _refit(
+    trials: list[Trial],
+    climbs: list[_Climb],
+    f: NDArray[np.float64],
+    z: NDArray[np.complex128],
+    weight: NDArray[np.float64],
+    data_marks: Landmarks,
+    n_used: int,
+    quality_bound: float,
+) -> list[Trial]:
+    """The candidates again on screened points, each from where it ended (one start),
+    smallest first, leaving out those that can no longer win; then the climbs that
+    stopped short go on where the others now fare worse."""
+    done: dict[int, Trial] = {}
+    for i in sorted(range(len(trials)), key=lambda i: trials[i].q.size):
+        t = trials[i]
+        if cannot_win(t.q.size, 2 * f.size, list(done.values()), quality_bound):
+            continue
+        done[i] = _fit_order(t.family, t.order, f, z, weight, data_marks, None, starts=[t.values])
+    out = [done[i] for i in sorted(done)]
+    for climb in climbs:
+        k = len(climb.family.element_names(climb.orders[0]))
+        if cannot_win(k, 2 * f.size, out, quality_bound):
+            continue
+        lower = None
+        if climb.lower is not None:
+            lower = next(
+                (t for t in out if (t.family, t.order) == (climb.family, climb.lower.order)),
+                None,
+            )
+            if lower is None:
+                continue  # the order below can no longer win, so neither can this one
+            out.remove(lower)
+        more, _ = _fit_family(
+            climb.family,
+            climb.orders,
+            f,
+            z,
+            weight,
+            data_marks,
+            out,
+            n_used,
+            quality_bound,
+            lower=lower,
+        )
+        out += more
     return out
 
 
@@ -790,29 +731,30 @@ def fit_impedance(
         # The fit runs on at most MAX_FIT_POINTS of the points (all of them, usually).
         pick = _spread_in_log(fu, MAX_FIT_POINTS)
         fs, zs, ws = fu[pick], zu[pick], weight[pick]
-        trials: list[_Trial] = []
+        trials: list[Trial] = []
+        climbs: list[_Climb] = []
         for family, orders in _candidates(model, kind, order):
-            trials += _fit_family(family, orders, fs, zs, ws, marks, trials, n)
+            more, climb = _fit_family(family, orders, fs, zs, ws, marks, trials, n, quality_bound)
+            trials += more
+            if climb is not None:
+                climbs.append(climb)
         if not trials:
             raise FitError(f"too few points ({n}) for any order of model {model!r}")
-        return trials, marks, _select(trials, quality_bound)
+        return trials, climbs, marks, select(trials, quality_bound)
 
-    trials, data_marks, (best, unsupported) = choose(used)
+    trials, climbs, data_marks, (best, unsupported) = choose(used)
     glitch, edge = _screen(f, z, candidates_ok, negative, all_weight, best)
     screened = used & ~glitch & ~edge
     if np.count_nonzero(screened) < n_used and np.count_nonzero(screened) >= MIN_POINTS:
-        # Every candidate again on the screened points, from where it ended: one start.
+        # The candidates again on the screened points, from where they ended: one start.
         used = screened
         n_used = int(np.count_nonzero(used))
         fu, zu, weight = f[used], z[used], all_weight[used]
         data_marks = landmarks_for(kind, fu, zu)
         pick = _spread_in_log(fu, MAX_FIT_POINTS)
         fs, zs, ws = fu[pick], zu[pick], weight[pick]
-        trials = [
-            _fit_order(t.family, t.order, fs, zs, ws, data_marks, None, starts=[t.values])
-            for t in trials
-        ]
-        best, unsupported = _select(trials, quality_bound)
+        trials = _refit(trials, climbs, fs, zs, ws, data_marks, n_used, quality_bound)
+        best, unsupported = select(trials, quality_bound)
     else:
         glitch[:] = False
         edge[:] = False
@@ -843,7 +785,7 @@ def fit_impedance(
         )
 
     zm = network_impedance(best.node, fu, best.values)
-    err = np.abs(np.log(zm / zu))
+    err = np.abs(log_ratio(zm, zu))
     u = u_all[used]
     k = best.q.size
     quality = FitQuality(
@@ -855,11 +797,11 @@ def fit_impedance(
         chi2_reduced=float(np.sum((err / u) ** 2) / max(n_used - k / 2, 1.0)),
         points_excluded=int(sum(e.count for e in excluded)),
     )
-    model_marks = _model_landmarks(kind, f, best)
+    model_marks = model_landmarks(kind, f, best)
     cut = (bool(np.any(edge & (f < fu[0]))), bool(np.any(edge & (f > fu[-1]))))
-    marks, sources = _merge_landmarks(data_marks, model_marks, cut)
-    warnings += _resonance_warnings(kind, f, used, model_marks, data_marks)
-    warnings += _low_frequency_warnings(kind, f, z, sigma, used, marks, left_out.any())
+    marks, sources = merge_landmarks(data_marks, model_marks, cut)
+    warnings += resonance_warnings(kind, f, used, model_marks, data_marks)
+    warnings += low_frequency_warnings(kind, f, z, sigma, used, marks, left_out.any())
     if best.at_bound:
         warnings.append(
             f"elements {', '.join(best.at_bound)} ended at the edge of their allowed range; "
@@ -877,13 +819,13 @@ def fit_impedance(
             f"rms log error {quality.rms_log_error:.3g} exceeds the quality bound "
             f"{quality_bound:.3g}; try another model or check the measurement"
         )
-    cov = _covariance(best, fs, zs, ws)
+    cov = _covariance(_Objective(best.node, fs, zs, ws), best.q, best.chi2)
     return FitResult(
         model=best.family.name,
         kind=kind,
         elements=dict(best.values),
         uncertainties=_uncertainties(best, cov),
-        landmark_uncertainties=_landmark_uncertainties(best, cov, kind, f, model_marks),
+        landmark_uncertainties=landmark_uncertainties(best, cov, kind, f, model_marks),
         landmarks=marks,
         landmark_sources=sources,
         quality=quality,
@@ -900,85 +842,16 @@ def fit_impedance(
     )
 
 
-def _screen(f, z, candidates, negative, weight, best: _Trial):
+def _screen(f, z, candidates, negative, weight, best: Trial):
     """Glitches and band edges (``bench.core.robust``) on the residuals of ``best`` over
     the ``candidates`` points (negative-resistance points count as infinitely far off)."""
     idx = np.flatnonzero(candidates)
     with np.errstate(all="ignore"):
         zm = network_impedance(best.node, f[idx], best.values)
-        residual = np.abs(np.log(zm / z[idx])) * weight[idx]
+        residual = np.abs(log_ratio(zm, z[idx])) * weight[idx]
     neg = negative[idx]
     glitch = np.zeros(f.size, bool)
     edge = np.zeros(f.size, bool)
     edge[idx] = robust.band_edges(np.where(neg, np.inf, residual), neg)
     glitch[idx] = robust.glitches(np.where(neg, 0.0, residual)) & ~neg
     return glitch & ~edge, edge
-
-
-def _model_landmarks(kind: str, f: NDArray[np.float64], trial: _Trial) -> Landmarks:
-    """Landmarks of the fitted model: on the measured grid, and where the grid cannot
-    give one, on a grid reaching :data:`LANDMARK_REACH` decades beyond it; a capacitance
-    or inductance still missing is the model's low-frequency value (the slope of its
-    reactance far below the band)."""
-    marks = landmarks_for(kind, f, network_impedance(trial.node, f, trial.values))
-    if all(v is not None for v in marks.values()):
-        return marks
-    reach = 10**LANDMARK_REACH
-    wide = np.geomspace(f[0] / reach, f[-1] * reach, 60 * int(2 * LANDMARK_REACH + 1) + f.size)
-    more = landmarks_for(kind, wide, network_impedance(trial.node, wide, trial.values))
-    out = {key: (value if value is not None else more.get(key)) for key, value in marks.items()}
-    f_low = np.array([f[0] / reach])
-    z_low = network_impedance(trial.node, f_low, trial.values)[0]
-    w_low = 2 * np.pi * float(f_low[0])
-    if kind == "capacitor" and out.get("c_low") is None and z_low.imag < 0:
-        out["c_low"] = float(-1.0 / (w_low * z_low.imag))
-    if kind == "inductor" and out.get("l_low") is None and z_low.imag > 0:
-        out["l_low"] = float(z_low.imag / w_low)
-    return out
-
-
-# A landmark of the model within this fraction of the same landmark read from the
-# measured points is given as the model's: it agrees with the data and uses the whole
-# band, so it is steadier than a reading from a few noisy points (a low-Q resonance, say).
-# A model further off misses the data there, and the data's value is given: a landmark
-# never follows a poor model choice (common practice, no source).
-MODEL_AGREEMENT = 0.05
-# Values at resonance are read from a few points of a small real part: noisier, so a
-# model within this much of them agrees with them.
-MODEL_AGREEMENT_AT_RESONANCE = {"esr_at_srf": 0.15, "z_at_srf": 0.15}
-# Landmarks read from the measured points over a whole low decade, with noise well
-# averaged: the measured value is always given where there is one.
-DATA_FIRST = ("c_low", "l_low")
-# Landmarks read at the bottom or the top of the sweep (``bench.core.landmarks``): when
-# the screening cut that edge off, the measured points no longer hold them.
-BOTTOM_LANDMARKS = ("c_low", "l_low", "r_dc")
-TOP_LANDMARKS = ("esl",)
-
-
-def _merge_landmarks(
-    data: Landmarks, model: Landmarks, cut: tuple[bool, bool] = (False, False)
-) -> tuple[Landmarks, dict[str, str | None]]:
-    """Each landmark with its source (``"data"``, ``"model"``, or None where neither gives
-    one): the model's where the measured points give none, or where it agrees with theirs
-    within :data:`MODEL_AGREEMENT`; else the measured points'. ``cut`` says whether the
-    bottom and the top of the band were left out as band edges (the points then no longer
-    hold the landmarks read there)."""
-    order = list(model) + [k for k in data if k not in model]
-    lost = (BOTTOM_LANDMARKS if cut[0] else ()) + (TOP_LANDMARKS if cut[1] else ())
-    marks: Landmarks = {}
-    sources: dict[str, str | None] = {}
-    for key in order:
-        d, m = data.get(key), model.get(key)
-        agrees = (
-            key not in DATA_FIRST
-            and m is not None
-            and d is not None
-            and abs(m / d - 1) <= MODEL_AGREEMENT_AT_RESONANCE.get(key, MODEL_AGREEMENT)
-        )
-        if d is not None and not (key in lost and m is not None) and not agrees:
-            marks[key], sources[key] = data[key], "data"
-        elif model.get(key) is not None:
-            marks[key], sources[key] = model[key], "model"
-        else:
-            marks[key], sources[key] = None, None
-    return marks, sources

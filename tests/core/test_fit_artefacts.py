@@ -24,7 +24,8 @@ import numpy as np
 import pytest
 
 from bench.core.conversions import shunt_through_s21
-from bench.core.fitting import MODEL_AGREEMENT, MODEL_AGREEMENT_AT_RESONANCE, fit_impedance
+from bench.core.fit_landmarks import MODEL_AGREEMENT, MODEL_AGREEMENT_AT_RESONANCE
+from bench.core.fitting import fit_impedance
 from bench.core.impedance import impedance_from_shunt_through
 from bench.core.landmarks import landmarks_for
 

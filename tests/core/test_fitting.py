@@ -18,7 +18,8 @@ import numpy as np
 import pytest
 
 from bench.core.conversions import shunt_through_s21
-from bench.core.fitting import BIC_MARGIN, FitResult, ModelMismatchError, fit_impedance
+from bench.core.fit_select import BIC_MARGIN
+from bench.core.fitting import FitResult, ModelMismatchError, fit_impedance
 from bench.core.impedance import impedance_from_shunt_through
 from bench.core.landmarks import landmarks_for
 from bench.errors import FitError, InputError

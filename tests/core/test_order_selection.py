@@ -14,7 +14,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from bench.core.fitting import UNDETERMINED, fit_impedance
+from bench.core.fit_select import UNDETERMINED
+from bench.core.fitting import fit_impedance
 from bench.core.landmarks import landmarks_for
 from bench.core.models import FAMILIES
 from bench.core.models.network import WIDE_BOUNDS, drop_section

@@ -1,0 +1,201 @@
+"""Landmarks of a fit: the model's, merged with the measured points' (docs/design.md §4).
+
+Every landmark the model defines is given, with its source: from the measured points
+where they hold it, from the fitted model otherwise (:func:`merge_landmarks`); the
+model's are looked for up to :data:`LANDMARK_REACH` decades beyond the sweep
+(:func:`model_landmarks`). Also the warnings that say where a landmark is the model's
+extrapolation rather than a measurement. No I/O.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from numpy.typing import NDArray
+
+from bench.core.fit_select import Trial
+from bench.core.landmarks import Landmarks, landmarks_for
+from bench.core.models.network import network_impedance
+from bench.units import format_si
+
+# Decades beyond the measured band over which the model's landmarks are still looked
+# for when the data cannot give them.
+LANDMARK_REACH = 2.0
+
+
+def landmark_uncertainties(
+    trial: Trial, cov: NDArray[np.float64], kind: str, f, marks: Landmarks
+) -> dict[str, float | None]:
+    """One-sigma uncertainty of each model landmark, propagated from the element
+    covariance through the landmark's derivatives (finite differences in log values)."""
+    names = trial.family.element_names(trial.order)
+    node = trial.node
+    step = 1e-4
+    grads = []
+    for name in names:
+        values = dict(trial.values)
+        values[name] *= math.exp(step)
+        moved = landmarks_for(kind, f, network_impedance(node, f, values))
+        grads.append(moved)
+    out: dict[str, float | None] = {}
+    for key, value in marks.items():
+        if value is None or any(g.get(key) is None for g in grads):
+            out[key] = None
+            continue
+        g = np.array([(moved[key] - value) / step for moved in grads])
+        out[key] = float(np.sqrt(max(float(g @ cov @ g), 0.0)))
+    return out
+
+
+def resonance_warnings(
+    kind: str,
+    f: NDArray[np.float64],
+    inside: NDArray[np.bool_],
+    model_marks: Landmarks,
+    data_marks: Landmarks,
+) -> list[str]:
+    srf = model_marks.get("srf")
+    what = "series resonance" if kind == "capacitor" else "parallel resonance"
+    out = []
+    if srf is None or not f[0] <= srf <= f[-1]:
+        out.append(
+            f"the model's {what} lies outside the sweep "
+            f"({format_si(f[0], 'Hz')} to {format_si(f[-1], 'Hz')}); "
+            + (
+                "srf is not given"
+                if srf is None
+                else f"srf ({format_si(srf, 'Hz')}) is the model's extrapolation"
+            )
+        )
+        return out
+    nearest = int(np.argmin(np.abs(np.log(f / srf))))
+    if not inside[nearest] or data_marks.get("srf") is None:
+        out.append(
+            f"the {what} near {format_si(srf, 'Hz')} lies outside the measurable window; "
+            "srf and the value at resonance come from the model, not from measured points"
+        )
+    return out
+
+
+def low_frequency_warnings(
+    kind: str,
+    f: NDArray[np.float64],
+    z: NDArray[np.complex128],
+    sigma: NDArray[np.float64],
+    used: NDArray[np.bool_],
+    model_marks: Landmarks,
+    some_excluded: bool = False,
+) -> list[str]:
+    """Say so when the DC resistance of an inductor or bead was not measured.
+
+    ``r_dc`` is read over the lowest third of a decade of the sweep (see
+    :func:`bench.core.landmarks.inductor_landmarks`). When most of those points lie
+    outside the measurable window, or the resistance is lost in the uncertainty of the
+    (reactive) impedance there, the value is the model's extrapolation, not a
+    measurement: a 1.5 mΩ winding behind 499 Ω port resistors, for example.
+    """
+    r_dc = model_marks.get("r_dc")
+    if kind != "inductor" or r_dc is None or f.size < 2:
+        return []
+    band = f <= f[0] * 10 ** (1 / 3)
+    if np.count_nonzero(band) < 3:
+        band = np.arange(f.size) < 3
+    seen = band & used
+    note = (
+        f"r_dc ({format_si(r_dc, 'Ω', 3)}) comes from the model, not from measured points: "
+        f"{{why}}; measure it with a set-up whose window reaches it (no series "
+        f"resistors, a narrower IF bandwidth) or with a DC ohmmeter"
+    )
+    if np.count_nonzero(seen) < max(3, np.count_nonzero(band) // 2):
+        return [
+            note.format(
+                why=f"the points below {format_si(f[band][-1], 'Hz')} "
+                + (
+                    "were not used (outside the measurable window or left out)"
+                    if some_excluded
+                    else "lie outside the measurable window"
+                )
+            )
+        ]
+    # Standard error of the band's median of Re Z: about 1.25·σ/√n, with σ the RMS of
+    # one component of the complex error, |Z|·u/√2.
+    spread = np.abs(z[seen]) * sigma[seen] / np.sqrt(2.0)
+    standard_error = 1.25 * float(np.median(spread)) / np.sqrt(np.count_nonzero(seen))
+    if r_dc < 3.0 * standard_error:
+        return [
+            note.format(
+                why="it is below three times its standard error there "
+                f"({format_si(standard_error, 'Ω', 2)})"
+            )
+        ]
+    return []
+
+
+def model_landmarks(kind: str, f: NDArray[np.float64], trial: Trial) -> Landmarks:
+    """Landmarks of the fitted model: on the measured grid, and where the grid cannot
+    give one, on a grid reaching :data:`LANDMARK_REACH` decades beyond it; a capacitance
+    or inductance still missing is the model's low-frequency value (the slope of its
+    reactance far below the band)."""
+    marks = landmarks_for(kind, f, network_impedance(trial.node, f, trial.values))
+    if all(v is not None for v in marks.values()):
+        return marks
+    reach = 10**LANDMARK_REACH
+    wide = np.geomspace(f[0] / reach, f[-1] * reach, 60 * int(2 * LANDMARK_REACH + 1) + f.size)
+    more = landmarks_for(kind, wide, network_impedance(trial.node, wide, trial.values))
+    out = {key: (value if value is not None else more.get(key)) for key, value in marks.items()}
+    f_low = np.array([f[0] / reach])
+    z_low = network_impedance(trial.node, f_low, trial.values)[0]
+    w_low = 2 * np.pi * float(f_low[0])
+    if kind == "capacitor" and out.get("c_low") is None and z_low.imag < 0:
+        out["c_low"] = float(-1.0 / (w_low * z_low.imag))
+    if kind == "inductor" and out.get("l_low") is None and z_low.imag > 0:
+        out["l_low"] = float(z_low.imag / w_low)
+    return out
+
+
+# A landmark of the model within this fraction of the same landmark read from the
+# measured points is given as the model's: it agrees with the data and uses the whole
+# band, so it is steadier than a reading from a few noisy points (a low-Q resonance, say).
+# A model further off misses the data there, and the data's value is given: a landmark
+# never follows a poor model choice (common practice, no source).
+MODEL_AGREEMENT = 0.05
+# Values at resonance are read from a few points of a small real part: noisier, so a
+# model within this much of them agrees with them.
+MODEL_AGREEMENT_AT_RESONANCE = {"esr_at_srf": 0.15, "z_at_srf": 0.15}
+# Landmarks read from the measured points over a whole low decade, with noise well
+# averaged: the measured value is always given where there is one.
+DATA_FIRST = ("c_low", "l_low")
+# Landmarks read at the bottom or the top of the sweep (``bench.core.landmarks``): when
+# the screening cut that edge off, the measured points no longer hold them.
+BOTTOM_LANDMARKS = ("c_low", "l_low", "r_dc")
+TOP_LANDMARKS = ("esl",)
+
+
+def merge_landmarks(
+    data: Landmarks, model: Landmarks, cut: tuple[bool, bool] = (False, False)
+) -> tuple[Landmarks, dict[str, str | None]]:
+    """Each landmark with its source (``"data"``, ``"model"``, or None where neither gives
+    one): the model's where the measured points give none, or where it agrees with theirs
+    within :data:`MODEL_AGREEMENT`; else the measured points'. ``cut`` says whether the
+    bottom and the top of the band were left out as band edges (the points then no longer
+    hold the landmarks read there)."""
+    order = list(model) + [k for k in data if k not in model]
+    lost = (BOTTOM_LANDMARKS if cut[0] else ()) + (TOP_LANDMARKS if cut[1] else ())
+    marks: Landmarks = {}
+    sources: dict[str, str | None] = {}
+    for key in order:
+        d, m = data.get(key), model.get(key)
+        agrees = (
+            key not in DATA_FIRST
+            and m is not None
+            and d is not None
+            and abs(m / d - 1) <= MODEL_AGREEMENT_AT_RESONANCE.get(key, MODEL_AGREEMENT)
+        )
+        if d is not None and not (key in lost and m is not None) and not agrees:
+            marks[key], sources[key] = data[key], "data"
+        elif model.get(key) is not None:
+            marks[key], sources[key] = model[key], "model"
+        else:
+            marks[key], sources[key] = None, None
+    return marks, sources
