@@ -4,8 +4,8 @@
 out in different families (one two-branch, one ladder) although they are the same
 circuit. After the per-sample fits, each part fitted with ``auto`` gets the lot's family:
 the one most of its fitted samples chose; a tie goes to the family with the lower
-criterion summed over the lot (each sample's best order of that family, from the
-candidates its own ``auto`` fit tried), then to registry order. Every sample whose own
+criterion summed over the lot (each sample's own fit for its own family, a refit for the
+others), then to registry order. Every sample whose own
 family differs is refitted with the lot's family, its order chosen by the criterion
 within that family, and keeps a record of its own choice (``SampleResult.own_family``).
 
@@ -29,29 +29,12 @@ from bench.results import SampleResult
 Refit = Callable[[Sequence[Any]], Iterable[tuple[Any, str | None]]]
 
 
-def lot_family(samples: Sequence[SampleResult]) -> tuple[str, str] | None:
-    """The family of a lot's fitted ``samples`` (one part) and how it was chosen, or None
-    when they already agree (or none was fitted)."""
-    fitted = [s for s in samples if s.fit is not None]
-    counts = Counter(s.fit.model for s in fitted)
-    if len(counts) < 2:
-        return None
-    top = max(counts.values())
-    tied = [name for name, n in counts.items() if n == top]
-    listed = ", ".join(f"{name} ×{n}" for name, n in counts.most_common())
-    if len(tied) == 1:
-        return tied[0], f"the majority of the lot's fits ({listed})"
-
-    def summed(name: str) -> float:
-        total = 0.0
-        for s in fitted:
-            bics = [c.bic for c in s.fit.candidates if c.model == name and math.isfinite(c.bic)]
-            total += min(bics) if bics else math.inf
-        return total
-
-    rank = {name: i for i, name in enumerate(FAMILY_NAMES)}
-    family = min(tied, key=lambda name: (summed(name), rank.get(name, len(rank))))
-    return family, f"a tie ({listed}) settled by the lower summed criterion"
+def _criterion(fit: Any, family: str) -> float:
+    """The lowest criterion among ``fit``'s candidates of ``family`` (inf if none)."""
+    if fit is None:
+        return math.inf
+    values = [c.bic for c in fit.candidates if c.model == family and math.isfinite(c.bic)]
+    return min(values) if values else math.inf
 
 
 def one_family_per_lot(
@@ -63,43 +46,75 @@ def one_family_per_lot(
 
     ``tasks[i]`` is sample ``i``'s fit task ``(model, data, valid_above_hz)``; ``refit``
     runs a list of such tasks (e.g. on a process pool) and yields ``(fit, error)``.
+    A tie is settled on each tied family's criterion summed over the lot: a sample's own
+    fit gives it for its own family, a refit with the other family (made anyway, as the
+    sample is refitted if that family wins) for the others.
     """
     out = list(samples)
-    parts = dict.fromkeys(s.part for s in samples)
-    todo: list[tuple[int, str, str]] = []
-    for part in parts:
-        index = [i for i, s in enumerate(samples) if s.part == part and tasks[i][0] == "auto"]
-        chosen = lot_family([samples[i] for i in index])
-        if chosen is None:
+    lots: list[tuple[list[int], list[str], str]] = []
+    wanted: list[tuple[int, str]] = []
+    for part in dict.fromkeys(s.part for s in samples):
+        index = [
+            i
+            for i, s in enumerate(samples)
+            if s.part == part and tasks[i][0] == "auto" and s.fit is not None
+        ]
+        counts = Counter(samples[i].fit.model for i in index)
+        if len(counts) < 2:
             continue
-        family, why = chosen
-        for i in index:
-            fit = samples[i].fit
-            if fit is not None and fit.model != family:
-                todo.append((i, family, why))
-    if not todo:
+        top = max(counts.values())
+        tied = [name for name, n in counts.items() if n == top]
+        listed = ", ".join(f"{name} ×{n}" for name, n in counts.most_common())
+        lots.append((index, tied, listed))
+        wanted += [(i, family) for family in tied for i in index if out[i].fit.model != family]
+    if not wanted:
         return out
-    jobs = [(family, tasks[i][1], tasks[i][2]) for i, family, _ in todo]
-    for (i, family, why), (new, error) in zip(todo, refit(jobs), strict=True):
-        sample = out[i]
-        own = sample.fit
-        assert own is not None
-        if new is None or (own.meets_quality and not new.meets_quality):
-            reason = f"failed ({error})" if new is None else "misses the quality bound its own met"
-            note = (
-                f"lot family {family} ({why}) not used for {sample.label}: its refit "
-                f"{reason}; kept its own choice {own.model}"
+    jobs = [(family, tasks[i][1], tasks[i][2]) for i, family in wanted]
+    refits = dict(zip(wanted, refit(jobs), strict=True))
+    rank = {name: k for k, name in enumerate(FAMILY_NAMES)}
+    for index, tied, listed in lots:
+
+        def summed(family: str, index: list[int] = index) -> float:
+            return sum(
+                _criterion(samples[i].fit, family)
+                if samples[i].fit.model == family
+                else _criterion(refits[(i, family)][0], family)
+                for i in index
             )
-            out[i] = replace(sample, warnings=(*sample.warnings, note))
-            continue
-        note = (
-            f"family {family} set by the lot ({why}); the sample's own choice was "
-            f"{own.model} (order {own.order})"
-        )
-        # The own fit's warnings give way to the refit's (added where the fit is shown).
-        kept = tuple(w for w in sample.warnings if w not in (own.warnings or ()))
-        out[i] = replace(sample, fit=new, own_family=own.model, warnings=(*kept, note))
+
+        if len(tied) == 1:
+            family, why = tied[0], f"the majority of the lot's fits ({listed})"
+        else:
+            family = min(tied, key=lambda name: (summed(name), rank.get(name, len(rank))))
+            why = f"a tie ({listed}) settled by the lower summed criterion"
+        for i in index:
+            if samples[i].fit.model != family:
+                new, error = refits[(i, family)]
+                out[i] = _lot_fit(samples[i], family, why, new, error)
     return out
+
+
+def _lot_fit(
+    sample: SampleResult, family: str, why: str, new: Any, error: str | None
+) -> SampleResult:
+    """``sample`` with the lot's refit, or with its own fit and a warning when the refit
+    failed or misses the quality bound its own fit met."""
+    own = sample.fit
+    assert own is not None
+    if new is None or (own.meets_quality and not new.meets_quality):
+        reason = f"failed ({error})" if new is None else "misses the quality bound its own met"
+        note = (
+            f"lot family {family} ({why}) not used for {sample.label}: its refit "
+            f"{reason}; kept its own choice {own.model}"
+        )
+        return replace(sample, warnings=(*sample.warnings, note))
+    note = (
+        f"family {family} set by the lot ({why}); the sample's own choice was "
+        f"{own.model} (order {own.order})"
+    )
+    # The own fit's warnings give way to the refit's (added where the fit is shown).
+    kept = tuple(w for w in sample.warnings if w not in (own.warnings or ()))
+    return replace(sample, fit=new, own_family=own.model, warnings=(*kept, note))
 
 
 def family_record(sample: SampleResult) -> dict[str, Any]:

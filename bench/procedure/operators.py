@@ -387,41 +387,32 @@ class RehearsalOperator(ConsoleOperator):
         elif act is not None:
             act()
 
-    def _asking(self, act: Callable[[], None]) -> None:
-        self._act = act
 
-    def fit_resistors(self, ohms: float) -> None:
-        self._setup.append(lambda: self.hands.fit_resistors(ohms))
-        super().fit_resistors(ohms)
+#: The operator's answers and notices; every other public method of :class:`Operator` is
+#: a physical action, which a rehearsal's hands carry out once the person confirms it.
+NOT_ACTIONS = ("caution", "after_sweep", "advise", "confirm")
+#: Set-up actions asked together with the next prompt (always carried out with it).
+SETUP_ACTIONS = ("fit_resistors", "fit_transformer")
+PHYSICAL_ACTIONS = tuple(
+    name
+    for name, value in vars(Operator).items()
+    if callable(value) and not name.startswith("_") and name not in NOT_ACTIONS
+)
 
-    def fit_transformer(self, on: bool) -> None:
-        self._setup.append(lambda: self.hands.fit_transformer(on))
-        super().fit_transformer(on)
 
-    def connect_standard(self, standard: str) -> None:
-        self._asking(lambda: self.hands.connect_standard(standard))
-        super().connect_standard(standard)
+def _rehearsed(name: str) -> Callable[..., None]:
+    def action(self: RehearsalOperator, *args: Any) -> None:
+        act = lambda: getattr(self.hands, name)(*args)  # noqa: E731
+        if name in SETUP_ACTIONS:
+            self._setup.append(act)
+        else:
+            self._act = act
+        getattr(ConsoleOperator, name)(self, *args)
 
-    def connect_fixture(self) -> None:
-        self._asking(self.hands.connect_fixture)
-        super().connect_fixture()
+    action.__name__ = name
+    action.__doc__ = getattr(Operator, name).__doc__
+    return action
 
-    def strap_mounts(self, positions: Sequence[int]) -> None:
-        self._asking(lambda: self.hands.strap_mounts(positions))
-        super().strap_mounts(positions)
 
-    def empty_mounts(self, positions: Sequence[int]) -> None:
-        self._asking(lambda: self.hands.empty_mounts(positions))
-        super().empty_mounts(positions)
-
-    def load_parts(self, placements: Sequence[Placement]) -> None:
-        self._asking(lambda: self.hands.load_parts(placements))
-        super().load_parts(placements)
-
-    def connect_mount(self, method: str) -> None:
-        self._asking(lambda: self.hands.connect_mount(method))
-        super().connect_mount(method)
-
-    def fill_mount(self, method: str, item: str | Placement) -> None:
-        self._asking(lambda: self.hands.fill_mount(method, item))
-        super().fill_mount(method, item)
+for _name in PHYSICAL_ACTIONS:
+    setattr(RehearsalOperator, _name, _rehearsed(_name))

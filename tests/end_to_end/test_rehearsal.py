@@ -9,7 +9,12 @@ import pytest
 from click.testing import CliRunner
 
 from bench.cli import cli, main
-from bench.procedure.operators import OperatorStop, RehearsalOperator
+from bench.procedure.operators import (
+    PHYSICAL_ACTIONS,
+    ConsoleOperator,
+    OperatorStop,
+    RehearsalOperator,
+)
 
 TINY = """\
 name: tiny
@@ -49,6 +54,10 @@ def test_the_hands_act_only_on_a_confirmed_prompt():
     with pytest.raises(OperatorStop):
         person.strap_mounts([1])
     assert "strap_mounts" not in hands.done
+    # Every physical action the runner can ask for is rehearsed, including new ones.
+    assert {"connect_standard", "load_parts", "fill_mount"} <= set(PHYSICAL_ACTIONS)
+    for name in PHYSICAL_ACTIONS:
+        assert getattr(RehearsalOperator, name) is not getattr(ConsoleOperator, name), name
 
 
 def test_a_forgotten_through_is_caught_and_repeated(tmp_path):

@@ -8,7 +8,7 @@ import numpy as np
 
 from bench import exports
 from bench.core.impedance import impedance_as_given
-from bench.procedure.lot_family import family_record, lot_family, one_family_per_lot
+from bench.procedure.lot_family import family_record, one_family_per_lot
 from bench.procedure.processing import _fit_task
 from bench.results import PartSpec, RunSummary, SampleResult
 from bench.verdicts import landmark_sources, shown_landmarks
@@ -80,9 +80,17 @@ def test_a_mixed_lot_is_refitted_to_its_majority_family():
 
 
 def test_a_tie_goes_to_the_lower_summed_criterion():
-    samples, _ = _lot()
-    # One two-branch and one series-rlc sample: the series-rlc circuit cannot follow the
-    # second branch, so its summed criterion is far higher.
-    family, why = lot_family([samples[0], samples[2]])
-    assert family == "two-branch" and "tie" in why
-    assert lot_family([samples[0], samples[1]]) is None  # already one family
+    samples, tasks = _lot()
+    # One two-branch and one series-rlc sample: each is refitted with the other's family;
+    # series-rlc cannot follow the second branch, so its summed criterion is far higher.
+    pair, pair_tasks = [samples[0], samples[2]], [tasks[0], tasks[2]]
+    out = one_family_per_lot(pair, pair_tasks, lambda jobs: map(_fit_task, jobs))
+    assert [s.fit.model for s in out] == ["two-branch", "two-branch"]
+    assert out[0] is pair[0] and out[1].own_family == "series-rlc"
+    assert any("a tie (" in w and "summed criterion" in w for w in out[1].warnings)
+    # A lot already of one family is left alone, and nothing is refitted.
+    assert one_family_per_lot(samples[:2], tasks[:2], _never) == samples[:2]
+
+
+def _never(jobs):
+    raise AssertionError(f"refitted {list(jobs)} in a lot of one family")
