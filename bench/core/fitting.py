@@ -46,7 +46,7 @@ from bench.core.fit_landmarks import (
     model_landmarks,
     resonance_warnings,
 )
-from bench.core.fit_select import Trial, select
+from bench.core.fit_select import Trial, covariance, dropped_elements, select
 from bench.core.landmarks import Landmarks, classify, landmarks_for
 from bench.core.model_registry import MODEL_NAMES, auto_candidates
 from bench.core.models import FAMILIES, ModelFamily
@@ -369,17 +369,14 @@ def _fit_order(
 
 def _make_trial(family, order, node, q, lo, hi, f, z, weight) -> Trial:
     """The trial of ``family``/``order`` at log values ``q``, with its criterion, the
-    elements at a bound and the relative uncertainty of every element."""
+    elements at a bound, those the data do not see (:func:`fit_select.dropped_elements`)
+    and the relative uncertainty of every element."""
     names = family.element_names(order)
     m = 2 * f.size
-    k = len(names)
     values = dict(zip(names, (float(v) for v in np.exp(q)), strict=True))
-    zm = network_impedance(node, f, values)
+    zm, jac = impedance_and_jacobian(node, f, values)
     err = np.abs(np.log(zm / z))
     chi2 = float(np.sum((err * weight) ** 2))
-    # Known-variance form: the weights are the points' uncertainties (with the model-error
-    # floor), so χ² is on an absolute scale and each element must lower it by ln(m).
-    bic = chi2 + k * math.log(m)
     vanish = vanishing_sides(node)
     at_bound = tuple(
         n
@@ -387,14 +384,22 @@ def _make_trial(family, order, node, q, lo, hi, f, z, weight) -> Trial:
         if (qi - a < PINNED_LOG and "low" not in vanish[n])
         or (b - qi < PINNED_LOG and "high" not in vanish[n])
     )
-    # Pinned at any bound, also where the element harmlessly drops out: a section that
-    # drops out was not needed, so this order is not supported by the data.
+    # Pinned at any bound, also where the element harmlessly drops out.
     pinned = tuple(
         n
         for n, qi, a, b in zip(names, q, lo, hi, strict=True)
         if qi - a < PINNED_LOG or b - qi < PINNED_LOG
     )
-    trial = Trial(
+    jm = _weighted_jacobian(zm, jac, weight)
+    dropped = dropped_elements(names, jm, chi2, pinned, at_bound)
+    # Known-variance form: the weights are the points' uncertainties (with the model-error
+    # floor), so χ² is on an absolute scale and each element the data see must lower it
+    # by ln(m); an element that dropped out is not counted (the circuit is the smaller one).
+    bic = chi2 + (len(names) - len(dropped)) * math.log(m)
+    cov = covariance(jm, chi2, names, dropped)
+    sigma_log = np.sqrt(np.clip(np.diag(cov), 0.0, None))
+    rel = {n: float(s) for n, s in zip(names, sigma_log, strict=True)}
+    return Trial(
         family,
         order,
         node,
@@ -405,13 +410,15 @@ def _make_trial(family, order, node, q, lo, hi, f, z, weight) -> Trial:
         float(np.sqrt(np.mean(err**2))),
         at_bound,
         pinned,
+        rel_sigma=rel,
+        dropped=dropped,
     )
-    cov = _covariance(trial, f, z, weight)
-    sigma_log = np.sqrt(np.clip(np.diag(cov), 0.0, None))
-    rel = {n: float(s) for n, s in zip(names, sigma_log, strict=True)}
-    return Trial(
-        family, order, node, values, q, chi2, bic, trial.rms, at_bound, pinned, rel_sigma=rel
-    )
+
+
+def _weighted_jacobian(zm, jac, weight) -> NDArray[np.float64]:
+    """Jacobian of the weighted residuals (real parts over imaginary) in log elements."""
+    d = jac / zm * weight
+    return np.concatenate([d.real.T, d.imag.T])
 
 
 def _robust_refine(trial: Trial, f, z, weight, landmarks: Landmarks) -> Trial:
@@ -452,13 +459,10 @@ def _robust_refine(trial: Trial, f, z, weight, landmarks: Landmarks) -> Trial:
 
 def _covariance(trial: Trial, f, z, weight) -> NDArray[np.float64]:
     """Covariance of the log element values, from the Jacobian at the solution, scaled by
-    the residual variance χ²/(m − k)."""
+    the residual variance χ²/(m − k) (see :func:`fit_select.covariance`)."""
     zm, jac = impedance_and_jacobian(trial.node, f, trial.values)
-    d = jac / zm * weight
-    jm = np.concatenate([d.real.T, d.imag.T])
-    m, k = jm.shape
-    with np.errstate(all="ignore"):
-        return np.linalg.pinv(jm.T @ jm) * (trial.chi2 / max(m - k, 1))
+    jm = _weighted_jacobian(zm, jac, weight)
+    return covariance(jm, trial.chi2, trial.family.element_names(trial.order), trial.dropped)
 
 
 def _uncertainties(trial: Trial, cov: NDArray[np.float64]) -> dict[str, float]:
@@ -670,7 +674,7 @@ def fit_impedance(
     zm = network_impedance(best.node, fu, best.values)
     err = np.abs(np.log(zm / zu))
     u = u_all[used]
-    k = best.q.size
+    k = best.size
     quality = FitQuality(
         rms_log_error=float(np.sqrt(np.mean(err**2))),
         max_abs_log_error=float(np.max(err)),
@@ -689,6 +693,15 @@ def fit_impedance(
         warnings.append(
             f"elements {', '.join(best.at_bound)} ended at the edge of their allowed range; "
             "the data may not determine them"
+        )
+    # Elements that dropped out: a resistor of an optional part is simply absent, a
+    # capacitor or inductor the data cannot see leaves its landmarks to a placeholder.
+    unseen = [n for n in best.dropped if n not in best.family.optional or n[0] in "LC"]
+    if unseen:
+        warnings.append(
+            f"elements {', '.join(unseen)} have no effect the data can see (they dropped "
+            "out of the fit); their values are placeholders"
+            + ("; no model with fewer elements met the quality bound" if unsupported else "")
         )
     loose = [n for n in best.undetermined if n not in best.at_bound]
     if loose:

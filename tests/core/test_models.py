@@ -73,14 +73,16 @@ CASES = [
     ),
     (
         "bead",
-        {"Rdc": 40e-3, "L": 1.2e-6, "R": 600.0, "C": 1e-12},
-        lambda v: zr(v["Rdc"]) + par(zl(v["L"]), zr(v["R"]), zc(v["C"])),
+        {"Rdc": 40e-3, "L": 1.2e-6, "R": 600.0, "C": 1e-12, "Rc": 30.0},
+        lambda v: zr(v["Rdc"]) + par(zl(v["L"]), zr(v["R"]), zc(v["C"]) + zr(v["Rc"])),
     ),
     (
         "bead",
-        {"Rdc": 40e-3, "L": 1.2e-6, "R": 600.0, "C": 1e-12, "L2": 0.3e-6, "R2": 100.0},
+        {"Rdc": 40e-3, "L": 1.2e-6, "R": 600.0, "C": 1e-12, "Rc": 30.0, "L2": 0.3e-6, "R2": 100.0},
         lambda v: (
-            zr(v["Rdc"]) + par(zl(v["L"]), zr(v["R"]), zc(v["C"])) + par(zl(v["L2"]), zr(v["R2"]))
+            zr(v["Rdc"])
+            + par(zl(v["L"]), zr(v["R"]), zc(v["C"]) + zr(v["Rc"]))
+            + par(zl(v["L2"]), zr(v["R2"]))
         ),
     ),
 ]

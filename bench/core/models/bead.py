@@ -1,13 +1,17 @@
-"""``bead``: a ferrite bead, ``Rdc + (L ‖ R ‖ C)``, optionally ``+ Σ (Lk ‖ Rk)``.
+"""``bead``: a ferrite bead, ``Rdc + (L ‖ R ‖ (C + Rc))``, optionally
+``+ Σ (Lk ‖ Rk)``.
 
 The parallel L-R-C is the common-practice bead model (docs/references.md §3): below the peak the
 ferrite is inductive, at the peak resistive (``R``), above it the winding capacitance
-takes over. Further L‖R sections (orders 2 and 3) are the Foster form of the ferrite's
-permeability dispersion: a first-order relaxation ``μ(f) = μ0/(1 + j f/fr)`` gives
-``Z = jωL0/(1 + jω/ωr)``, which is exactly ``L0 ‖ R`` with ``R = 2π·fr·L0``
-[derived]; a spread of relaxation times (the Cole-Cole form
-``μ0/(1 + (j f/fr)^(1−α))``, from memory) is a sum of such sections with spread
-corners. Rdc and the inductors give the DC path.
+takes over. ``Rc`` is the loss of that capacitance (the ferrite between the turns is a
+lossy dielectric): above the peak the bead's resistance then falls less steeply than
+``R ‖ C`` alone gives, toward ``R ‖ Rc`` [derived]; where the data do not show it, it
+drops out (a short in series with C), and the fitter counts it as absent. Further L‖R
+sections (orders 2 and 3) are the Foster form of the ferrite's permeability dispersion:
+a first-order relaxation ``μ(f) = μ0/(1 + j f/fr)`` gives ``Z = jωL0/(1 + jω/ωr)``,
+which is exactly ``L0 ‖ R`` with ``R = 2π·fr·L0`` [derived]; a spread of relaxation
+times (the Cole-Cole form ``μ0/(1 + (j f/fr)^(1−α))``, from memory) is a sum of such
+sections with spread corners. Rdc and the inductors give the DC path.
 """
 
 from __future__ import annotations
@@ -21,7 +25,7 @@ from bench.core.models.network import C, L, ModelFamily, R, landmark, parallel, 
 
 
 def circuit(order: int = 1):
-    parts = [R("Rdc"), parallel(L("L"), R("R"), C("C"))]
+    parts = [R("Rdc"), parallel(L("L"), R("R"), series(C("C"), R("Rc")))]
     for k in range(2, order + 1):
         parts.append(parallel(L(f"L{k}"), R(f"R{k}")))
     return series(*parts)
@@ -35,9 +39,9 @@ def starts(order, f, z, landmarks: Mapping[str, Any], previous=None) -> list[dic
     srf = landmark(landmarks, "srf", f[-1] * 3)
     c_par = landmark(landmarks, "c_par", 1.0 / ((2 * np.pi * srf) ** 2 * l_low))
     z_srf = landmark(landmarks, "z_at_srf", float(np.max(np.abs(z))))
-    base = {"Rdc": r_dc, "L": l_low, "R": z_srf, "C": c_par}
+    base = {"Rdc": r_dc, "L": l_low, "R": z_srf, "C": c_par, "Rc": 0.03 * z_srf}
     if order == 1:
-        return [base, {**base, "R": z_srf * 1.5, "C": c_par * 0.8}]
+        return [base, {**base, "R": z_srf * 1.5, "C": c_par * 0.8, "Rc": 0.003 * z_srf}]
     out = []
     if order == 3:
         if previous is not None:
@@ -74,7 +78,9 @@ FAMILY = ModelFamily(
     name="bead",
     kind="inductor",
     orders=(1, 2, 3),
-    description="Rdc in series with L ‖ R ‖ C, optionally one or two further L ‖ R",
+    description="Rdc in series with L ‖ R ‖ (C + Rc), optionally one or two further L ‖ R",
     circuit=circuit,
     starts=starts,
+    # The winding capacitance and its loss may sit above the measured band, unseen.
+    optional=("C", "Rc"),
 )

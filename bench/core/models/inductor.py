@@ -83,4 +83,6 @@ FAMILY = ModelFamily(
     circuit=circuit,
     starts=starts,
     reduce=reduce,
+    # The winding capacitance may sit above the measured band, where the data cannot see it.
+    optional=("Cp",),
 )

@@ -277,15 +277,18 @@ _OPEN = {"R": "high", "L": "high", "C": "low", "D": "low", "S": "high"}
 def vanishing_sides(node: Node, context: tuple[str, ...] = ("pins",)) -> dict[str, set[str]]:
     """For each element, the bounds (``"low"``, ``"high"``) at which it harmlessly drops out.
 
-    In series an element drops out as a short (R, L low; C high); in a parallel group as
-    an open (R, L high; C low), and also as a short when that group itself sits in series
-    (the group then just vanishes). An element ending at such a bound was not needed by
-    the data; any other bound means the model is strained.
+    In series an element drops out as a short (R, L low; C high), and also as an open
+    when that series branch sits in a parallel group (the branch then just vanishes); in
+    a parallel group as an open (R, L high; C low), and also as a short when that group
+    itself sits in series (the group then just vanishes). An element ending at such a
+    bound was not needed by the data; any other bound means the model is strained.
     """
     if isinstance(node, Element):
         sides = set()
         if context[-1] in ("series", "pins"):
             sides.add(_SHORT[node.kind])
+            if len(context) >= 2 and context[-2] == "parallel":
+                sides.add(_OPEN[node.kind])  # the whole branch opens and vanishes
         else:
             sides.add(_OPEN[node.kind])
             if len(context) >= 2 and context[-2] == "series":
@@ -374,6 +377,10 @@ class ModelFamily:
     ``network(order, band)``, when given, builds the circuit for a measured band (Hz)
     (families with ``D`` or ``S`` elements); ``circuit(order)`` is then the circuit of a
     default band, good for names and orders only.
+    ``optional`` names elements that may drop out without the order losing the data's
+    support (a part of the circuit the measured band may not show, such as a bead's
+    winding capacitance above the sweep); an element of a section that drops out means
+    the order has one section too many.
     ``reduce(order, values, weakness)``, when given, turns a fit of ``order`` into start
     values of the next lower order by dropping the part of the circuit the data did not
     support (``weakness``: each element's relative one-sigma uncertainty, ``inf`` for an
@@ -389,6 +396,7 @@ class ModelFamily:
     bounds: Bounds | None = None
     reduce: Reduce | None = None
     network: Callable[[int, tuple[float, float]], Node] | None = None
+    optional: tuple[str, ...] = ()
 
     def circuit_for(self, order: int, f: NDArray[np.float64]) -> Node:
         """The circuit of ``order`` fitted on the frequencies ``f`` (Hz): families with
