@@ -4,7 +4,7 @@ Each family and order fitted is a :class:`Trial`. :func:`select` takes the one w
 lowest Bayesian information criterion among those the data support: a trial with an
 element pinned at a bound of its range or not determined (one sigma above 100 %) has more
 elements than the data can tell apart and is passed over for a simpler one. An element
-that drops out (pinned where it harmlessly vanishes, or with no effect the data can see)
+that drops out (pinned where it harmlessly vanishes, or not determined even on its own)
 is not counted: the trial is then the smaller circuit without it, and still supported
 when the family marks that element optional (a bead's winding capacitance above the
 measured band, say); a section that dropped out was not needed. No I/O.
@@ -128,7 +128,7 @@ def lowest_bic(trials: list[Trial]) -> Trial:
     more than :data:`BIC_MARGIN` ("strong" evidence on the usual BIC scale, common
     practice, no source); otherwise near-equal fits would pick redundant elements.
     """
-    ordered = sorted(trials, key=lambda t: (t.size, t.bic))
+    ordered = sorted(trials, key=lambda t: (t.size, t.bic, t.q.size))
     best = ordered[0]
     for trial in ordered[1:]:
         margin = 0.0 if trial.size == best.size else BIC_MARGIN
@@ -147,9 +147,16 @@ def select(trials: list[Trial], quality_bound: float) -> tuple[Trial, bool]:
     quality bound is an unsupported one that meets it taken (its undetermined elements
     are then named in the warnings). Returns the trial and whether it is such a one.
     """
-    fewest = min(t.size for t in trials)
-    eligible = [t for t in trials if t.supported or t.size == fewest]
+    fewest = min(t.q.size for t in trials)
+    eligible = [t for t in trials if t.supported or t.q.size == fewest]
     best = lowest_bic(eligible)
+    if not best.supported:
+        # Nothing the data support beats the simplest, which they do not support either
+        # (its inductance beyond the measured band, say): then no trial is better
+        # founded than another, and the criterion decides among those not strained at a
+        # bound; the warnings name what is not determined.
+        unstrained = [t for t in trials if not t.at_bound]
+        best = lowest_bic(unstrained) if unstrained else best
     if best.rms <= quality_bound:
         return best, False
     good = [t for t in eligible if t.rms <= quality_bound]

@@ -699,8 +699,9 @@ def fit_impedance(
     unseen = [n for n in best.dropped if n not in best.family.optional or n[0] in "LC"]
     if unseen:
         warnings.append(
-            f"elements {', '.join(unseen)} have no effect the data can see (they dropped "
-            "out of the fit); their values are placeholders"
+            f"elements {', '.join(unseen)} are not seen by the data (not determined even "
+            "with every other element held: they dropped out of the fit); their values "
+            "are placeholders"
             + ("; no model with fewer elements met the quality bound" if unsupported else "")
         )
     loose = [n for n in best.undetermined if n not in best.at_bound]
