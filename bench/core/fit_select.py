@@ -102,23 +102,35 @@ def covariance(
     """Covariance of the log element values from the weighted Jacobian ``jm``, scaled by
     the residual variance χ²/(m − k) (k the elements the data see). The elements the data
     see are taken on their own, so one that dropped out (whose log value the data leave
-    free) does not spread its freedom into theirs; a dropped element keeps its own large
+    free) does not spread its freedom into theirs; a dropped element keeps its own
     variance, that of its own column with the others held (huge: the data leave it
     free)."""
     m = jm.shape[0]
     keep = [i for i, n in enumerate(names) if n not in dropped]
     scale = chi2 / max(m - len(keep), 1)
-    with np.errstate(all="ignore"):
-        if len(keep) == len(names):
-            return np.linalg.pinv(jm.T @ jm) * scale
-        out = np.zeros((len(names), len(names)))
-        sub = jm[:, keep]
-        out[np.ix_(keep, keep)] = np.linalg.pinv(sub.T @ sub) * scale
-    seen = np.sum(jm**2, axis=0)
-    for i, n in enumerate(names):
-        if n in dropped:
-            out[i, i] = scale / max(float(seen[i]), 1e-300)
+    out = np.zeros((len(names), len(names)))
+    if keep:
+        out[np.ix_(keep, keep)] = _pseudo_inverse(jm[:, keep]) * scale
+    if len(keep) < len(names):
+        seen = np.sum(jm**2, axis=0)
+        for i, n in enumerate(names):
+            if n in dropped:
+                out[i, i] = scale / max(float(seen[i]), 1e-300)
     return out
+
+
+def _pseudo_inverse(jm: NDArray[np.float64]) -> NDArray[np.float64]:
+    """Pseudo-inverse of the normal matrix ``jmᵀ·jm``: symmetric, so from its
+    eigen-decomposition (as ``numpy.linalg.pinv`` would give, cheaper)."""
+    k = jm.shape[1]
+    with np.errstate(all="ignore"):
+        normal = jm.T @ jm
+        if not np.all(np.isfinite(normal)):
+            return np.full((k, k), np.inf)
+        w, v = np.linalg.eigh(normal)
+        keep = np.abs(w) > 1e-15 * np.max(np.abs(w))
+        inv = np.where(keep, 1.0 / np.where(keep, w, 1.0), 0.0)
+        return (v * inv) @ v.T
 
 
 def lowest_bic(trials: list[Trial]) -> Trial:

@@ -46,6 +46,7 @@ from bench.core.fit_landmarks import (
     model_landmarks,
     resonance_warnings,
 )
+from bench.core.fit_network import CompiledNetwork
 from bench.core.fit_select import Trial, covariance, dropped_elements, select
 from bench.core.landmarks import Landmarks, classify, landmarks_for
 from bench.core.model_registry import MODEL_NAMES, auto_candidates
@@ -53,7 +54,6 @@ from bench.core.models import FAMILIES, ModelFamily
 from bench.core.models.network import (
     Node,
     clip_to_bounds,
-    impedance_and_jacobian,
     network_impedance,
     spice_lines,
     vanishing_sides,
@@ -74,6 +74,13 @@ MIN_POINTS = 10
 MAX_FIT_POINTS = 4000
 # Points of the thinned grid on which every start is first run to convergence.
 SCOUT_POINTS = 160
+# Relative tolerances (sum of squares, parameters) of the scouts on the thinned grid and
+# of the refinement on every point: a scout need only find its valley, and the chosen
+# fit is solved once more to the end (:func:`_robust_refine`).
+SCOUT_TOLERANCE = 1e-5
+REFINE_TOLERANCE = 1e-6
+# Two scouts whose costs agree this closely ended in the same valley.
+SAME_VALLEY = 1e-3
 # A family whose fit leaves this many times the best χ² so far gets no higher orders.
 HOPELESS_FACTOR = 10.0
 # An element within this distance (natural log) of a bound is pinned at it.
@@ -252,34 +259,51 @@ def _check_inputs(f: Any, z: Any, rel_uncertainty: Any, valid: Any):
     return f, z, sigma, inside
 
 
-def _objective(node, names, f, z, weight):
-    """Residual and Jacobian functions of the log parameters for one grid.
+def log_ratio(zm: NDArray[np.complex128], z: NDArray[np.complex128]) -> NDArray[np.complex128]:
+    """``ln(zm/z)`` (principal value), computed as ``ln|ρ|`` and ``atan2``: numpy's complex
+    log takes a slow, careful path for arguments near 1, which a fit's residuals are."""
+    rho = zm / z
+    re, im = rho.real, rho.imag
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        return 0.5 * np.log(re * re + im * im) + 1j * np.arctan2(im, re)
 
-    One pass of the network gives Z and its derivatives; the optimiser asks for the
-    Jacobian at the point it has just evaluated, so the last pass is kept for it.
+
+class _Objective:
+    """Residuals and Jacobian of the log parameters on one grid.
+
+    The network is compiled for the grid (``bench.core.fit_network``); the Jacobian is
+    asked for at the point whose residuals were just evaluated, which the compiled
+    network keeps. Residuals are ``[Re, Im]`` of ``ln(Zmodel/Zmeasured)·weight``.
     """
-    cache: dict[str, Any] = {}
 
-    def evaluate(q: NDArray[np.float64]):
-        if cache.get("q") is None or not np.array_equal(cache["q"], q):
-            zm, jac = impedance_and_jacobian(node, f, dict(zip(names, np.exp(q), strict=True)))
-            cache.update(q=q.copy(), zm=zm, jac=jac)
-        return cache["zm"], cache["jac"]
+    def __init__(self, node, f, z, weight):
+        self.net = CompiledNetwork(node, f)
+        self.inv_z = 1.0 / z
+        self.weight = weight
+        self.n = f.size
 
-    def residuals(q: NDArray[np.float64]) -> NDArray[np.float64]:
-        zm, _ = evaluate(q)
-        r = np.log(zm / z) * weight
-        return np.concatenate([r.real, r.imag])
+    def residuals(self, q: NDArray[np.float64]) -> NDArray[np.float64]:
+        rho = self.net.impedance(q) * self.inv_z
+        re, im = rho.real, rho.imag
+        out = np.empty(2 * self.n)
+        np.multiply(np.log(re * re + im * im), 0.5 * self.weight, out=out[: self.n])
+        np.multiply(np.arctan2(im, re), self.weight, out=out[self.n :])
+        return out
 
-    def jacobian(q: NDArray[np.float64]) -> NDArray[np.float64]:
-        zm, jac = evaluate(q)
-        d = jac / zm * weight
-        return np.concatenate([d.real.T, d.imag.T])
+    def jacobian_rows(self, q: NDArray[np.float64]) -> NDArray[np.float64]:
+        """The Jacobian transposed: one row of ``2n`` per parameter (MINPACK's column
+        order, no copy)."""
+        zm = self.net.impedance(q)
+        d = self.net.jacobian(q) * (self.weight / zm)
+        return np.concatenate([d.real, d.imag], axis=1)
 
-    return residuals, jacobian
+    def jacobian(self, q: NDArray[np.float64]) -> NDArray[np.float64]:
+        return self.jacobian_rows(q).T
 
 
-def _solve(residuals, jacobian, q0, lo, hi, max_nfev: int) -> tuple[float, NDArray[np.float64]]:
+def _solve(
+    obj: _Objective, q0, lo, hi, max_nfev: int, tolerance: float = 1e-7
+) -> tuple[float, NDArray[np.float64]]:
     """Levenberg-Marquardt (MINPACK) in log parameters, kept inside the bounds.
 
     MINPACK's loop runs in compiled code, cheaper per step than the bounded
@@ -289,12 +313,14 @@ def _solve(residuals, jacobian, q0, lo, hi, max_nfev: int) -> tuple[float, NDArr
     """
 
     def fun(q):
-        return residuals(np.clip(q, lo, hi))
+        return obj.residuals(np.minimum(np.maximum(q, lo), hi))
 
     def jac(q):
-        qc = np.clip(q, lo, hi)
-        out = jacobian(qc)
-        return np.where((q > lo) & (q < hi), out, 0.0)
+        out = obj.jacobian_rows(np.minimum(np.maximum(q, lo), hi))
+        outside = (q <= lo) | (q >= hi)
+        if outside.any():
+            out[outside] = 0.0
+        return out
 
     # scipy's MINPACK driver called directly: the same iterations as
     # ``least_squares(method="lm", x_scale=1.0)`` without its per-call wrapping, which
@@ -302,18 +328,20 @@ def _solve(residuals, jacobian, q0, lo, hi, max_nfev: int) -> tuple[float, NDArr
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
         x = leastsq(
             fun,
-            np.clip(q0, lo, hi),
+            np.minimum(np.maximum(q0, lo), hi),
             Dfun=jac,
             full_output=True,
-            ftol=1e-7,
-            xtol=1e-7,
+            col_deriv=True,
+            ftol=tolerance,
+            xtol=tolerance,
             gtol=1e-7,
             maxfev=max_nfev,
             factor=100.0,
             diag=np.ones(np.size(q0)),
         )[0]
-    q = np.clip(x, lo, hi)
-    return float(np.sum(residuals(q) ** 2)), q
+        q = np.minimum(np.maximum(x, lo), hi)
+        r = obj.residuals(q)
+    return float(r @ r), q
 
 
 def _fit_order(
@@ -335,22 +363,28 @@ def _fit_order(
 
     # Every start runs to convergence on a thinned grid (every few points, at most
     # SCOUT_POINTS), which finds the right valley at a fraction of the cost; the two best
-    # distinct results are then refined on the full grid.
+    # distinct results are then refined on the full grid. The starts come best guess
+    # first: once two of them end in the same lowest valley, the rest are not run.
     step = max(1, int(np.ceil(f.size / SCOUT_POINTS)))
-    coarse = _objective(node, names, f[::step], z[::step], weight[::step])
-    fine = coarse if step == 1 else _objective(node, names, f, z, weight)
-    scouts = []
+    coarse = _Objective(node, f[::step], z[::step], weight[::step])
+    fine = coarse if step == 1 else _Objective(node, f, z, weight)
+    scouts: list[tuple[float, NDArray[np.float64]]] = []
     if starts is None:
         starts = family.starts(order, f, z, landmarks, previous)
     for start in starts:
-        q0 = np.log([clip_to_bounds(start, limits)[n] for n in names])
+        clipped = clip_to_bounds(start, limits)
+        q0 = np.log([clipped[n] for n in names])
         with np.errstate(all="ignore"):
-            r0 = coarse[0](q0)
+            r0 = coarse.residuals(q0)
         if not np.all(np.isfinite(r0)):
             continue
-        result = _solve(*coarse, q0, lo, hi, 20 * (k + 1))
-        if np.isfinite(result[0]):
-            scouts.append(result)
+        result = _solve(coarse, q0, lo, hi, 20 * (k + 1), SCOUT_TOLERANCE)
+        if not np.isfinite(result[0]):
+            continue
+        lowest = min((c for c, _ in scouts), default=math.inf)
+        scouts.append(result)
+        if abs(result[0] - lowest) <= SAME_VALLEY * lowest:
+            break  # a second start confirms the lowest valley
     if not scouts:
         raise FitError(f"model {family.name} (order {order}): no start value gave a finite model")
     scouts.sort(key=lambda t: t[0])
@@ -359,24 +393,27 @@ def _fit_order(
     else:
         # The runner-up too, unless it sits in the same valley (costs within 1 %).
         chosen = scouts[:1] + [t for t in scouts[1:2] if t[0] > 1.01 * scouts[0][0]]
-        refined = [_solve(*fine, q_scout, lo, hi, 20 * (k + 1)) for _, q_scout in chosen]
+        refined = [
+            _solve(fine, q_scout, lo, hi, 20 * (k + 1), REFINE_TOLERANCE) for _, q_scout in chosen
+        ]
         refined = [r for r in refined if np.isfinite(r[0])]
         if not refined:
             raise FitError(f"model {family.name} (order {order}): the fit did not converge")
         best = min(refined, key=lambda r: r[0])
-    return _make_trial(family, order, node, best[1], lo, hi, f, z, weight)
+    return _make_trial(family, order, node, best[1], lo, hi, fine)
 
 
-def _make_trial(family, order, node, q, lo, hi, f, z, weight) -> Trial:
-    """The trial of ``family``/``order`` at log values ``q``, with its criterion, the
-    elements at a bound, those the data do not see (:func:`fit_select.dropped_elements`)
-    and the relative uncertainty of every element."""
+def _make_trial(family, order, node, q, lo, hi, obj: _Objective) -> Trial:
+    """The trial of ``family``/``order`` at log values ``q`` (fitted with the objective
+    ``obj``), with its criterion, the elements at a bound, those the data do not see
+    (:func:`fit_select.dropped_elements`) and the relative uncertainty of every element."""
     names = family.element_names(order)
-    m = 2 * f.size
+    m = 2 * obj.n
     values = dict(zip(names, (float(v) for v in np.exp(q)), strict=True))
-    zm, jac = impedance_and_jacobian(node, f, values)
-    err = np.abs(np.log(zm / z))
-    chi2 = float(np.sum((err * weight) ** 2))
+    with np.errstate(all="ignore"):
+        r = obj.residuals(q)
+        chi2 = float(r @ r)
+        err = np.hypot(r[: obj.n], r[obj.n :]) / obj.weight
     vanish = vanishing_sides(node)
     at_bound = tuple(
         n
@@ -390,7 +427,8 @@ def _make_trial(family, order, node, q, lo, hi, f, z, weight) -> Trial:
         for n, qi, a, b in zip(names, q, lo, hi, strict=True)
         if qi - a < PINNED_LOG or b - qi < PINNED_LOG
     )
-    jm = _weighted_jacobian(zm, jac, weight)
+    with np.errstate(all="ignore"):
+        jm = obj.jacobian(q)
     dropped = dropped_elements(names, jm, chi2, pinned, at_bound)
     # Known-variance form: the weights are the points' uncertainties (with the model-error
     # floor), so χ² is on an absolute scale and each element the data see must lower it
@@ -399,6 +437,7 @@ def _make_trial(family, order, node, q, lo, hi, f, z, weight) -> Trial:
     cov = covariance(jm, chi2, names, dropped)
     sigma_log = np.sqrt(np.clip(np.diag(cov), 0.0, None))
     rel = {n: float(s) for n, s in zip(names, sigma_log, strict=True)}
+    rms = float(np.sqrt(np.mean(err**2)))
     return Trial(
         family,
         order,
@@ -407,18 +446,12 @@ def _make_trial(family, order, node, q, lo, hi, f, z, weight) -> Trial:
         q,
         chi2,
         bic,
-        float(np.sqrt(np.mean(err**2))),
+        rms,
         at_bound,
         pinned,
         rel_sigma=rel,
         dropped=dropped,
     )
-
-
-def _weighted_jacobian(zm, jac, weight) -> NDArray[np.float64]:
-    """Jacobian of the weighted residuals (real parts over imaginary) in log elements."""
-    d = jac / zm * weight
-    return np.concatenate([d.real.T, d.imag.T])
 
 
 def _robust_refine(trial: Trial, f, z, weight, landmarks: Landmarks) -> Trial:
@@ -431,7 +464,8 @@ def _robust_refine(trial: Trial, f, z, weight, landmarks: Landmarks) -> Trial:
     limits = family.element_bounds(order, f, landmarks)
     lo = np.log([limits[n][0] for n in names])
     hi = np.log([limits[n][1] for n in names])
-    residuals, jacobian = _objective(trial.node, names, f, z, weight)
+    obj = _Objective(trial.node, f, z, weight)
+    residuals, jacobian = obj.residuals, obj.jacobian
     span = hi - lo
     q0 = np.clip(trial.q, lo + 1e-9 * span, hi - 1e-9 * span)
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
@@ -450,19 +484,20 @@ def _robust_refine(trial: Trial, f, z, weight, landmarks: Landmarks) -> Trial:
         )
     if not np.all(np.isfinite(sol.x)):
         return trial
-    refined = _make_trial(family, order, trial.node, sol.x, lo, hi, f, z, weight)
+    refined = _make_trial(family, order, trial.node, sol.x, lo, hi, obj)
     # A sanity bound only: on clean data the two solutions agree to the noise.
     if not np.isfinite(refined.chi2) or refined.rms > 1.5 * trial.rms + 1e-12:
         return trial
     return refined
 
 
-def _covariance(trial: Trial, f, z, weight) -> NDArray[np.float64]:
-    """Covariance of the log element values, from the Jacobian at the solution, scaled by
-    the residual variance χ²/(m − k) (see :func:`fit_select.covariance`)."""
-    zm, jac = impedance_and_jacobian(trial.node, f, trial.values)
-    jm = _weighted_jacobian(zm, jac, weight)
-    return covariance(jm, trial.chi2, trial.family.element_names(trial.order), trial.dropped)
+def _covariance(obj: _Objective, trial: Trial) -> NDArray[np.float64]:
+    """Covariance of the log element values of ``trial``, from the Jacobian at its
+    solution, scaled by the residual variance χ²/(m − k) (:func:`fit_select.covariance`)."""
+    with np.errstate(all="ignore"):
+        jm = obj.jacobian(trial.q)
+    names = trial.family.element_names(trial.order)
+    return covariance(jm, trial.chi2, names, trial.dropped)
 
 
 def _uncertainties(trial: Trial, cov: NDArray[np.float64]) -> dict[str, float]:
@@ -496,6 +531,33 @@ def _spread_in_log(f: NDArray[np.float64], most: int) -> NDArray[np.intp] | slic
     return np.unique(np.clip(np.searchsorted(f, targets), 0, f.size - 1))
 
 
+def cannot_win(k: int, m: int, trials: list[Trial], quality_bound: float) -> bool:
+    """True when a candidate of ``k`` elements on ``m`` residuals cannot be chosen by
+    :func:`bench.core.fit_select.select` beside ``trials``, whatever its fit.
+
+    Its criterion is at least its penalty ``k·ln m`` (χ² ≥ 0). A supported trial ``T``
+    of no more elements that meets the quality bound stays eligible, and the choice
+    (:func:`~bench.core.fit_select.lowest_bic`, larger models by a margin) takes a
+    larger candidate only when its criterion is below ``T``'s; a criterion that cannot
+    fall below ``T``'s leaves the choice as it is.
+    """
+    floor = min(
+        (t.bic for t in trials if t.supported and t.q.size <= k and t.rms <= quality_bound),
+        default=math.inf,
+    )
+    return k * math.log(m) >= floor
+
+
+@dataclass
+class _Climb:
+    """Where the order climb of a family stopped because the next order could not win:
+    the order it would have tried next and the fit below it (None at the lowest)."""
+
+    family: ModelFamily
+    orders: tuple[int, ...]
+    lower: Trial | None
+
+
 def _fit_family(
     family: ModelFamily,
     orders: tuple[int, ...],
@@ -505,21 +567,30 @@ def _fit_family(
     data_marks: Landmarks,
     others: list[Trial],
     n_used: int,
-) -> list[Trial]:
+    quality_bound: float,
+    lower: Trial | None = None,
+) -> tuple[list[Trial], _Climb | None]:
     """Fit the orders of one family, lowest first, until a higher one stops paying.
 
     An order the data do not support (an element pinned or not determined) ends the
     climb: a higher order adds elements to a circuit that already has too many. Its fit
     is not wasted: without the unsupported section it starts the next lower order again,
     which finds that order's best valley when its own starts missed it (a section that
-    dropped out to a bound leaves a better lower-order fit behind).
+    dropped out to a bound leaves a better lower-order fit behind). An order whose
+    penalty alone puts it out of reach (:func:`cannot_win`) is not fitted, nor any above
+    it; the returned :class:`_Climb` says where to go on should the others fare worse
+    (on screened points). ``lower``, when given, is this family's fit of the order below
+    ``orders``, which the climb goes on from (returned first, maybe replaced).
     """
-    out: list[Trial] = []
-    previous = None
-    best_bic = math.inf
-    for o in orders:
-        if 2 * n_used <= len(family.element_names(o)) + 1:
+    out: list[Trial] = [] if lower is None else [lower]
+    previous = None if lower is None else lower.values
+    best_bic = math.inf if lower is None else lower.bic
+    for i, o in enumerate(orders):
+        k = len(family.element_names(o))
+        if 2 * n_used <= k + 1:
             break
+        if cannot_win(k, 2 * f.size, [*others, *out], quality_bound):
+            return out, _Climb(family, orders[i:], out[-1] if out else None)
         trial = _fit_order(family, o, f, z, weight, data_marks, previous)
         out.append(trial)
         previous = trial.values
@@ -541,6 +612,55 @@ def _fit_family(
         overall = min(t.chi2 for t in [*others, *out] if t.q.size <= trial.q.size)
         if trial.chi2 > HOPELESS_FACTOR * overall:
             break  # another family fits far better; more orders of this one will not catch up
+    return out, None
+
+
+def _refit(
+    trials: list[Trial],
+    climbs: list[_Climb],
+    f: NDArray[np.float64],
+    z: NDArray[np.complex128],
+    weight: NDArray[np.float64],
+    data_marks: Landmarks,
+    n_used: int,
+    quality_bound: float,
+) -> list[Trial]:
+    """The candidates again on screened points, each from where it ended (one start),
+    smallest first, leaving out those that can no longer win; then the climbs that
+    stopped short go on where the others now fare worse."""
+    done: dict[int, Trial] = {}
+    for i in sorted(range(len(trials)), key=lambda i: trials[i].q.size):
+        t = trials[i]
+        if cannot_win(t.q.size, 2 * f.size, list(done.values()), quality_bound):
+            continue
+        done[i] = _fit_order(t.family, t.order, f, z, weight, data_marks, None, starts=[t.values])
+    out = [done[i] for i in sorted(done)]
+    for climb in climbs:
+        k = len(climb.family.element_names(climb.orders[0]))
+        if cannot_win(k, 2 * f.size, out, quality_bound):
+            continue
+        lower = None
+        if climb.lower is not None:
+            lower = next(
+                (t for t in out if (t.family, t.order) == (climb.family, climb.lower.order)),
+                None,
+            )
+            if lower is None:
+                continue  # the order below can no longer win, so neither can this one
+            out.remove(lower)
+        more, _ = _fit_family(
+            climb.family,
+            climb.orders,
+            f,
+            z,
+            weight,
+            data_marks,
+            out,
+            n_used,
+            quality_bound,
+            lower=lower,
+        )
+        out += more
     return out
 
 
@@ -620,27 +740,28 @@ def fit_impedance(
         pick = _spread_in_log(fu, MAX_FIT_POINTS)
         fs, zs, ws = fu[pick], zu[pick], weight[pick]
         trials: list[Trial] = []
+        climbs: list[_Climb] = []
         for family, orders in _candidates(model, kind, order):
-            trials += _fit_family(family, orders, fs, zs, ws, marks, trials, n)
+            more, climb = _fit_family(family, orders, fs, zs, ws, marks, trials, n, quality_bound)
+            trials += more
+            if climb is not None:
+                climbs.append(climb)
         if not trials:
             raise FitError(f"too few points ({n}) for any order of model {model!r}")
-        return trials, marks, select(trials, quality_bound)
+        return trials, climbs, marks, select(trials, quality_bound)
 
-    trials, data_marks, (best, unsupported) = choose(used)
+    trials, climbs, data_marks, (best, unsupported) = choose(used)
     glitch, edge = _screen(f, z, candidates_ok, negative, all_weight, best)
     screened = used & ~glitch & ~edge
     if np.count_nonzero(screened) < n_used and np.count_nonzero(screened) >= MIN_POINTS:
-        # Every candidate again on the screened points, from where it ended: one start.
+        # The candidates again on the screened points, from where they ended: one start.
         used = screened
         n_used = int(np.count_nonzero(used))
         fu, zu, weight = f[used], z[used], all_weight[used]
         data_marks = landmarks_for(kind, fu, zu)
         pick = _spread_in_log(fu, MAX_FIT_POINTS)
         fs, zs, ws = fu[pick], zu[pick], weight[pick]
-        trials = [
-            _fit_order(t.family, t.order, fs, zs, ws, data_marks, None, starts=[t.values])
-            for t in trials
-        ]
+        trials = _refit(trials, climbs, fs, zs, ws, data_marks, n_used, quality_bound)
         best, unsupported = select(trials, quality_bound)
     else:
         glitch[:] = False
@@ -672,7 +793,7 @@ def fit_impedance(
         )
 
     zm = network_impedance(best.node, fu, best.values)
-    err = np.abs(np.log(zm / zu))
+    err = np.abs(log_ratio(zm, zu))
     u = u_all[used]
     k = best.size
     quality = FitQuality(
@@ -716,7 +837,7 @@ def fit_impedance(
             f"rms log error {quality.rms_log_error:.3g} exceeds the quality bound "
             f"{quality_bound:.3g}; try another model or check the measurement"
         )
-    cov = _covariance(best, fs, zs, ws)
+    cov = _covariance(_Objective(best.node, fs, zs, ws), best)
     return FitResult(
         model=best.family.name,
         kind=kind,
@@ -745,7 +866,7 @@ def _screen(f, z, candidates, negative, weight, best: Trial):
     idx = np.flatnonzero(candidates)
     with np.errstate(all="ignore"):
         zm = network_impedance(best.node, f[idx], best.values)
-        residual = np.abs(np.log(zm / z[idx])) * weight[idx]
+        residual = np.abs(log_ratio(zm, z[idx])) * weight[idx]
     neg = negative[idx]
     glitch = np.zeros(f.size, bool)
     edge = np.zeros(f.size, bool)

@@ -1,0 +1,164 @@
+"""A network of ``bench.core.models.network`` compiled for one frequency grid.
+
+The fitter evaluates one circuit on one grid hundreds of times. Every element kind whose
+impedance is its value (or its inverse) times a fixed shape of frequency (R: 1, L: jω,
+C: 1/jω, the loss ladders D and S: their ladder shapes) is ``Ze = exp(σ·q)·B(ω)`` with
+``q`` the log value and ``σ = ±1``; so one broadcast product gives every element's
+impedance, and ``σ·Ze`` its derivative in ``q``. The elements of any subtree are
+consecutive in :func:`~bench.core.models.network.element_names` order, so series sums run
+over slices, and the Jacobian is ``σ·Ze·G`` with ``G`` the product of ``(Z_P/Z_c)²`` over
+the parallel groups ``P`` above the element (``c`` the child of ``P`` holding it), the
+chain rule of ``Z = 1/ΣYi``. A circuit holding an element kind outside this form is
+evaluated by the general tree walk (``impedance_and_jacobian``). No I/O.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from bench.core.models.network import (
+    Element,
+    Node,
+    Parallel,
+    Series,
+    _element_impedance,
+    element_names,
+    impedance_and_jacobian,
+)
+
+# σ of each kind whose impedance is value**σ times a shape of frequency.
+_POWER = {"R": 1.0, "L": 1.0, "S": 1.0, "C": -1.0, "D": -1.0}
+
+
+@dataclass
+class _Group:
+    """A series or parallel group: its element rows ``[start, stop)``, the runs of
+    element children (row ranges) and the child groups."""
+
+    parallel: bool
+    start: int
+    stop: int
+    runs: list[tuple[int, int]]
+    groups: list[_Group]
+
+
+def _elements(node: Node) -> list[Element]:
+    if isinstance(node, Element):
+        return [node]
+    return [e for part in node.parts for e in _elements(part)]
+
+
+def _group(node: Series | Parallel, start: int) -> _Group:
+    runs: list[tuple[int, int]] = []
+    groups: list[_Group] = []
+    row = start
+    for part in node.parts:
+        if isinstance(part, Element):
+            if runs and runs[-1][1] == row:
+                runs[-1] = (runs[-1][0], row + 1)
+            else:
+                runs.append((row, row + 1))
+            row += 1
+        else:
+            child = _group(part, row)
+            groups.append(child)
+            row = child.stop
+    return _Group(isinstance(node, Parallel), start, row, runs, groups)
+
+
+class CompiledNetwork:
+    """``node`` on the grid ``f`` (Hz): ``impedance(q)`` and ``jacobian(q)`` for the log
+    element values ``q`` in :attr:`names` order; ``jacobian`` gives ``dZ/dq`` of shape
+    ``(n_elements, nf)`` (``p·dZ/dp``), reusing the last ``impedance`` at the same ``q``."""
+
+    def __init__(self, node: Node, f: NDArray[np.float64]):
+        self.node = node
+        self.f = np.asarray(f, dtype=float)
+        self.names: tuple[str, ...] = element_names(node)
+        elements = _elements(node)
+        self.general = any(e.kind not in _POWER for e in elements)
+        jw = 2j * np.pi * self.f
+        if not self.general:
+            self._sign = np.array([_POWER[e.kind] for e in elements])
+            self._basis = np.array([_element_impedance(e, jw, 1.0) for e in elements])
+            self._root = None if isinstance(node, Element) else _group(node, 0)
+        self._q: NDArray[np.float64] | None = None
+
+    def _values(self, q: NDArray[np.float64]) -> dict[str, float]:
+        return dict(zip(self.names, np.exp(q), strict=True))
+
+    def impedance(self, q: NDArray[np.float64]) -> NDArray[np.complex128]:
+        """Impedance (Ω) at the log element values ``q``."""
+        if self._q is not None and np.array_equal(self._q, q):
+            return self._z
+        if self.general:
+            self._z, self._jac = impedance_and_jacobian(self.node, self.f, self._values(q))
+        else:
+            self._ze = np.exp(self._sign * q)[:, None] * self._basis
+            self._inv: dict[int, NDArray[np.complex128]] = {}
+            self._zg: dict[int, NDArray[np.complex128]] = {}
+            self._z = self._ze[0] if self._root is None else self._group_z(self._root)
+            self._jac = None
+        self._q = np.array(q, dtype=float)
+        return self._z
+
+    def jacobian(self, q: NDArray[np.float64]) -> NDArray[np.complex128]:
+        """``dZ/dq`` (``p·dZ/dp`` per element) at the log element values ``q``."""
+        self.impedance(q)
+        if self._jac is None:
+            jac = self._sign[:, None] * self._ze
+            if self._root is not None:
+                self._apply_factors(self._root, jac)
+            self._jac = jac
+        return self._jac
+
+    def _group_z(self, g: _Group) -> NDArray[np.complex128]:
+        ze = self._ze
+        if not g.parallel:
+            total = None
+            for s, e in g.runs:
+                part = ze[s] if e - s == 1 else ze[s:e].sum(axis=0)
+                total = part if total is None else total + part
+            for child in g.groups:
+                zc = self._group_z(child)
+                total = zc if total is None else total + zc
+            z = total
+        else:
+            y = None
+            for s, e in g.runs:
+                inv = 1.0 / ze[s:e]
+                self._inv[s] = inv
+                part = inv[0] if e - s == 1 else inv.sum(axis=0)
+                y = part if y is None else y + part
+            for child in g.groups:
+                part = 1.0 / self._group_z(child)
+                y = part if y is None else y + part
+            z = 1.0 / y
+        self._zg[id(g)] = z
+        return z
+
+    def _apply_factors(self, g: _Group, jac: NDArray[np.complex128]) -> None:
+        if g.parallel:
+            z = self._zg[id(g)]
+            for s, e in g.runs:
+                ratio = z * self._inv[s]
+                jac[s:e] *= ratio * ratio
+            for child in g.groups:
+                ratio = z / self._zg[id(child)]
+                jac[child.start : child.stop] *= ratio * ratio
+        for child in g.groups:
+            self._apply_factors(child, jac)
+
+
+def compiled(node: Node, f: Sequence[float] | NDArray[np.float64]) -> CompiledNetwork:
+    """``node`` compiled for the grid ``f`` (Hz)."""
+    return CompiledNetwork(node, np.asarray(f, dtype=float))
+
+
+def values_to_q(names: Sequence[str], values: Mapping[str, float]) -> NDArray[np.float64]:
+    """Log element values in ``names`` order."""
+    return np.log([float(values[n]) for n in names])
