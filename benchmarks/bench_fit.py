@@ -97,13 +97,36 @@ def dense_grid(f):
     return np.logspace(np.log10(f[0]) - 1, np.log10(f[-1]) + 1, 4000)
 
 
-def timed(fn, repeats):
+def timed(fn, repeats, clock=time.process_time):
+    """(median time of ``repeats`` calls of ``fn`` by ``clock``, s; the last result)."""
     times, out = [], None
     for _ in range(repeats):
-        t = time.process_time()
+        t = clock()
         out = fn()
-        times.append(time.process_time() - t)
+        times.append(clock() - t)
     return statistics.median(times), out
+
+
+def family_fits(repeats, clock=time.process_time):
+    """Each family's part at 801 and 1601 points, fitted by its own model and by ``auto``:
+    yields (family, points, model, median time s by ``clock``, the FitResult)."""
+    for n in (801, 1601):
+        f = np.geomspace(F_START, F_STOP, n)
+        for family, (part, series_r) in PARTS.items():
+            data = measure(part, f, 1, series_r)
+            for model in (family, "auto"):
+                dt, res = timed(
+                    lambda data=data, model=model: fit_impedance(
+                        data.f,
+                        data.z,
+                        model=model,
+                        rel_uncertainty=data.rel_uncertainty,
+                        valid=data.inside_window,
+                    ),
+                    repeats,
+                    clock,
+                )
+                yield family, n, model, dt, res
 
 
 def vf_fit(f, z):
@@ -137,26 +160,12 @@ def vf_fit(f, z):
 def part1(repeats):
     print("\nPart 1: one fit per family (median CPU time of", repeats, "runs)")
     print(f"{'family':<12}{'points':>7}{'model':>12}{'ms':>9}{'rms log err':>13}{'chosen':>16}")
-    for n in (801, 1601):
-        f = np.logspace(np.log10(F_START), np.log10(F_STOP), n)
-        for family, (part, series_r) in PARTS.items():
-            data = measure(part, f, 1, series_r)
-            for model in (family, "auto"):
-                dt, res = timed(
-                    lambda data=data, model=model: fit_impedance(
-                        data.f,
-                        data.z,
-                        model=model,
-                        rel_uncertainty=data.rel_uncertainty,
-                        valid=data.inside_window,
-                    ),
-                    repeats,
-                )
-                chosen = f"{res.model}/{res.order}"
-                print(
-                    f"{family:<12}{n:>7}{model:>12}{dt * 1e3:>9.1f}"
-                    f"{res.quality.rms_log_error:>13.4f}{chosen:>16}"
-                )
+    for family, n, model, dt, res in family_fits(repeats):
+        chosen = f"{res.model}/{res.order}"
+        print(
+            f"{family:<12}{n:>7}{model:>12}{dt * 1e3:>9.1f}"
+            f"{res.quality.rms_log_error:>13.4f}{chosen:>16}"
+        )
 
 
 def part2():

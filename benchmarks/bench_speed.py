@@ -51,23 +51,13 @@ REPO = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(REPO))
 sys.path.insert(0, str(REPO / "benchmarks"))
 
-from bench_fit import F_START, F_STOP, PARTS, measure, vf_fit  # noqa: E402
+from bench_fit import F_START, F_STOP, PARTS, family_fits, measure, vf_fit  # noqa: E402
 
-from bench.core.fitting import fit_impedance  # noqa: E402
 from bench.touchstone import write_touchstone_s  # noqa: E402
 
 PYTHON = sys.executable
 ZBENCH = str(Path(PYTHON).with_name("zbench"))
 EXAMPLE = REPO / "examples" / "mlcc_22u.s2p"
-
-
-def wall(fn, repeats):
-    times, out = [], None
-    for _ in range(repeats):
-        t = time.perf_counter()
-        out = fn()
-        times.append(time.perf_counter() - t)
-    return statistics.median(times), out
 
 
 def run_timed(args, **kwargs) -> tuple[float, subprocess.CompletedProcess]:
@@ -80,25 +70,11 @@ def fits(repeats: int) -> None:
     print(f"\n1. One fit per family (median wall time of {repeats})")
     print(f"{'family':<12}{'points':>7}{'model':>12}{'ms':>9}{'chosen':>16}")
     autos = {}
-    for n in (801, 1601):
-        f = np.geomspace(F_START, F_STOP, n)
-        for family, (part, series_r) in PARTS.items():
-            data = measure(part, f, 1, series_r)
-            for model in (family, "auto"):
-                dt, res = wall(
-                    lambda data=data, model=model: fit_impedance(
-                        data.f,
-                        data.z,
-                        model=model,
-                        rel_uncertainty=data.rel_uncertainty,
-                        valid=data.inside_window,
-                    ),
-                    repeats,
-                )
-                if model == "auto":
-                    autos.setdefault(n, []).append(dt)
-                chosen = f"{res.model}/{res.order}"
-                print(f"{family:<12}{n:>7}{model:>12}{dt * 1e3:>9.1f}{chosen:>16}")
+    for family, n, model, dt, res in family_fits(repeats, clock=time.perf_counter):
+        if model == "auto":
+            autos.setdefault(n, []).append(dt)
+        chosen = f"{res.model}/{res.order}"
+        print(f"{family:<12}{n:>7}{model:>12}{dt * 1e3:>9.1f}{chosen:>16}")
     for n, times in autos.items():
         print(f"median auto fit at {n} points: {statistics.median(times) * 1e3:.1f} ms")
 

@@ -16,6 +16,13 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from simulated_instruments.instruments.nodes import (
+    Nodes,
+    none,
+    one,
+    sweep_frequencies,
+    wait_for_sweep,
+)
 from simulated_instruments.scpi import (
     CommandTree,
     Instrument,
@@ -23,28 +30,12 @@ from simulated_instruments.scpi import (
     Session,
     format_block,
     format_number,
-    parse_boolean,
     parse_choice,
     parse_integer,
-    parse_numeric,
 )
 from simulated_instruments.state import BenchState, SweepPlan
 
 PARAMETERS = {"S11": (0, 0), "S21": (1, 0), "S12": (0, 1), "S22": (1, 1)}
-
-
-def one(params: list[str], name: str) -> str:
-    """The single parameter of a command (-109 if missing, -108 if more)."""
-    if not params:
-        raise ScpiError(-109, name)
-    if len(params) > 1:
-        raise ScpiError(-108, f"{name}: {params[1][:40]}")
-    return params[0]
-
-
-def none(params: list[str]) -> None:
-    if params:
-        raise ScpiError(-108, params[0][:40])
 
 
 @dataclass
@@ -105,9 +96,7 @@ class Analyzer(Instrument):
 
     # --- sweep plan --------------------------------------------------------------------
     def frequencies(self) -> np.ndarray:
-        if self.spacing == "LOGARITHMIC":
-            return np.geomspace(self.start, self.stop, self.points)
-        return np.linspace(self.start, self.stop, self.points)
+        return sweep_frequencies(self.start, self.stop, self.points, self.spacing)
 
     def sweep_time(self) -> float:
         """Modelled sweep time (s): overhead + 2 directions × points × (per-point time +
@@ -129,104 +118,45 @@ class Analyzer(Instrument):
 
     def wait_idle(self, session: Session) -> None:
         sweep = self.last
-        if sweep is None:
-            return
-        while True:
-            left = sweep.done_at - time.monotonic()
-            if left <= 0:
-                return
-            if self.state.stopping.is_set():
-                raise ScpiError(-200, "the bench is stopping; the sweep will not finish")
-            if session.input_pending():
-                raise ScpiError(-410, "new message while waiting for the sweep")
-            time.sleep(min(left, 0.005))
+        if sweep is not None:
+            wait_for_sweep(sweep.done_at, self.state.stopping, session)
+
+    def abort(self) -> None:
+        """End the wait for the running sweep now."""
+        if self.last is not None:
+            self.last.done_at = min(self.last.done_at, time.monotonic())
 
     # --- nodes --------------------------------------------------------------------------
     def build(self, tree: CommandTree) -> None:
         spec = self.spec
-
-        def numeric_setting(pattern: str, attr: str, unit: str | None, lo, hi, default):
-            def set_(s: Session, p: list[str]) -> None:
-                value = parse_numeric(
-                    one(p, pattern), unit, minimum=lo, maximum=hi, default=default, name=attr
-                )
-                with self.lock:
-                    setattr(self, attr, value)
-                    # Keep start ≤ stop as analysers do: moving one past the other drags it.
-                    if attr == "start" and self.stop < value:
-                        self.stop = value
-                    if attr == "stop" and self.start > value:
-                        self.start = value
-
-            def query(s: Session, p: list[str]) -> str:
-                none(p)
-                return format_number(getattr(self, attr))
-
-            tree.add(pattern, set=set_, query=query)
-
-        numeric_setting(
-            "[SENSe:]FREQuency:STARt", "start", "HZ", spec.f_min, spec.f_max, spec.f_min
+        nodes = Nodes(tree, self)
+        nodes.numeric(
+            "[SENSe:]FREQuency:STARt", "start", "HZ", spec.f_min, spec.f_max, default=spec.f_min
         )
-        numeric_setting("[SENSe:]FREQuency:STOP", "stop", "HZ", spec.f_min, spec.f_max, spec.f_max)
-        numeric_setting(
+        nodes.numeric(
+            "[SENSe:]FREQuency:STOP", "stop", "HZ", spec.f_min, spec.f_max, default=spec.f_max
+        )
+        nodes.numeric(
             "[SENSe:]BANDwidth[:RESolution]",
             "if_bandwidth",
             "HZ",
             spec.ifbw_min,
             spec.ifbw_max,
-            1e3,
+            default=1e3,
         )
-        numeric_setting(
+        nodes.numeric(
             "SOURce:POWer[:LEVel][:IMMediate][:AMPLitude]",
             "power",
             "DBM",
             spec.power_min,
             spec.power_max,
-            0.0,
+            default=0.0,
         )
-
-        def set_points(s: Session, p: list[str]) -> None:
-            n = parse_integer(
-                one(p, "points"), minimum=spec.points_min, maximum=spec.points_max, name="points"
-            )
-            with self.lock:
-                self.points = n
-
-        tree.add(
-            "[SENSe:]SWEep:POINts",
-            set=set_points,
-            query=lambda s, p: (none(p), str(self.points))[1],
-        )
-
-        def set_spacing(s: Session, p: list[str]) -> None:
-            value = parse_choice(one(p, "spacing"), ("LINear", "LOGarithmic"), name="spacing")
-            with self.lock:
-                self.spacing = value
-
-        tree.add(
-            "[SENSe:]SWEep:SPACing",
-            set=set_spacing,
-            query=lambda s, p: (none(p), self.spacing[:3])[1],
-        )
-        tree.add(
-            "[SENSe:]SWEep:TIME",
-            query=lambda s, p: (none(p), format_number(self.sweep_time()))[1],
-        )
-
-        def set_correction(s: Session, p: list[str]) -> None:
-            self.corrected = parse_boolean(one(p, "correction"), name="correction")
-
-        tree.add(
-            "[SENSe:]CORRection[:STATe]",
-            set=set_correction,
-            query=lambda s, p: (none(p), "1" if self.corrected else "0")[1],
-        )
-
-        def initiate(s: Session, p: list[str]) -> None:
-            none(p)
-            self.trigger()
-
-        tree.add("INITiate[:IMMediate]", set=initiate)
+        nodes.integer("[SENSe:]SWEep:POINts", "points", spec.points_min, spec.points_max)
+        nodes.choice("[SENSe:]SWEep:SPACing", "spacing", ("LINear", "LOGarithmic"), name="spacing")
+        nodes.query("[SENSe:]SWEep:TIME", lambda: format_number(self.sweep_time()))
+        nodes.boolean("[SENSe:]CORRection[:STATe]", "corrected", name="correction")
+        nodes.action("INITiate[:IMMediate]", self.trigger)
 
         def set_format(s: Session, p: list[str]) -> None:
             if not p:
@@ -277,9 +207,4 @@ class Analyzer(Instrument):
 
         tree.add("TRACe[:DATA]", query=trace)
 
-        def abort(s: Session, p: list[str]) -> None:
-            none(p)
-            if self.last is not None:
-                self.last.done_at = min(self.last.done_at, time.monotonic())
-
-        tree.add("ABORt", set=abort)
+        nodes.action("ABORt", self.abort)

@@ -22,17 +22,15 @@ from __future__ import annotations
 
 import time
 
-from simulated_instruments.instruments.analyzer import PARAMETERS, Analyzer, none, one
+from simulated_instruments.instruments.analyzer import PARAMETERS, Analyzer
+from simulated_instruments.instruments.nodes import Nodes, none, one
 from simulated_instruments.scpi import (
     ERROR_TEXTS,
     CommandTree,
     ScpiError,
     Session,
     format_number,
-    parse_boolean,
     parse_choice,
-    parse_integer,
-    parse_numeric,
 )
 
 MEASUREMENTS = 4
@@ -65,83 +63,38 @@ class MeasStimAnalyzer(Analyzer):
         value, self.events = self.events, 0
         return value
 
+    def run_single(self) -> None:
+        """Start a sweep; the event register reports its end once."""
+        self.trigger()
+        self._reported = False
+
+    def clear_events(self) -> None:
+        self.events = 0
+
+    def sweep_condition(self) -> int:
+        """The condition register: bit 0 while a sweep runs."""
+        sweep = self.last
+        busy = sweep is not None and time.monotonic() < sweep.done_at
+        return SWEEPING if busy else 0
+
     def build(self, tree: CommandTree) -> None:
         spec = self.spec
         self._reported = True
 
-        def numeric(pattern: str, attr: str, unit: str | None, lo, hi):
-            def set_(s: Session, p: list[str]) -> None:
-                value = parse_numeric(one(p, pattern), unit, minimum=lo, maximum=hi, name=attr)
-                with self.lock:
-                    setattr(self, attr, value)
-                    if attr == "start" and self.stop < value:
-                        self.stop = value
-                    if attr == "stop" and self.start > value:
-                        self.start = value
+        nodes = Nodes(tree, self)
+        nodes.numeric("STIMulus:FSTart", "start", "HZ", spec.f_min, spec.f_max)
+        nodes.numeric("STIMulus:FSTOp", "stop", "HZ", spec.f_min, spec.f_max)
+        nodes.numeric("STIMulus:LEVel", "power", "DBM", spec.power_min, spec.power_max)
+        nodes.numeric("RECeiver:IFBW", "if_bandwidth", "HZ", spec.ifbw_min, spec.ifbw_max)
+        nodes.integer("STIMulus:NPOints", "points", spec.points_min, spec.points_max)
+        nodes.choice("STIMulus:SCALe", "spacing", ("LINear", "LOGarithmic"), name="scale")
+        nodes.query("RECeiver:DURation", lambda: format_number(self.sweep_time()))
+        nodes.boolean("CORRection:APPLy", "corrected", name="correction", answers=("OFF", "ON"))
+        nodes.action("RUN:SINGle", self.run_single)
 
-            def query(s: Session, p: list[str]) -> str:
-                none(p)
-                return format_number(getattr(self, attr))
-
-            tree.add(pattern, set=set_, query=query)
-
-        numeric("STIMulus:FSTart", "start", "HZ", spec.f_min, spec.f_max)
-        numeric("STIMulus:FSTOp", "stop", "HZ", spec.f_min, spec.f_max)
-        numeric("STIMulus:LEVel", "power", "DBM", spec.power_min, spec.power_max)
-        numeric("RECeiver:IFBW", "if_bandwidth", "HZ", spec.ifbw_min, spec.ifbw_max)
-
-        def set_points(s: Session, p: list[str]) -> None:
-            n = parse_integer(
-                one(p, "points"), minimum=spec.points_min, maximum=spec.points_max, name="points"
-            )
-            with self.lock:
-                self.points = n
-
-        tree.add(
-            "STIMulus:NPOints", set=set_points, query=lambda s, p: (none(p), str(self.points))[1]
-        )
-
-        def set_scale(s: Session, p: list[str]) -> None:
-            value = parse_choice(one(p, "scale"), ("LINear", "LOGarithmic"), name="scale")
-            with self.lock:
-                self.spacing = value
-
-        tree.add("STIMulus:SCALe", set=set_scale, query=lambda s, p: (none(p), self.spacing[:3])[1])
-        tree.add(
-            "RECeiver:DURation",
-            query=lambda s, p: (none(p), format_number(self.sweep_time()))[1],
-        )
-
-        def set_correction(s: Session, p: list[str]) -> None:
-            self.corrected = parse_boolean(one(p, "correction"), name="correction")
-
-        tree.add(
-            "CORRection:APPLy",
-            set=set_correction,
-            query=lambda s, p: (none(p), "ON" if self.corrected else "OFF")[1],
-        )
-
-        def run_single(s: Session, p: list[str]) -> None:
-            none(p)
-            self.trigger()
-            self._reported = False
-
-        tree.add("RUN:SINGle", set=run_single)
-
-        def clear_events(s: Session, p: list[str]) -> None:
-            none(p)
-            self.events = 0
-
-        tree.add("STATus:SWEep:CLEar", set=clear_events)
-        tree.add("STATus:SWEep:EVENt", query=lambda s, p: (none(p), str(self.sweep_events()))[1])
-
-        def condition(s: Session, p: list[str]) -> str:
-            none(p)
-            sweep = self.last
-            busy = sweep is not None and time.monotonic() < sweep.done_at
-            return str(SWEEPING if busy else 0)
-
-        tree.add("STATus:SWEep:CONDition", query=condition)
+        nodes.action("STATus:SWEep:CLEar", self.clear_events)
+        nodes.query("STATus:SWEep:EVENt", lambda: str(self.sweep_events()))
+        nodes.query("STATus:SWEep:CONDition", lambda: str(self.sweep_condition()))
 
         def set_encoding(s: Session, p: list[str]) -> None:
             kind = parse_choice(one(p, "encoding"), ("ASCii", "FLOat32"), name="encoding")
@@ -194,13 +147,7 @@ class MeasStimAnalyzer(Analyzer):
             return s.pop_error()
 
         tree.add("DIAGnostic:ERRor", query=error_next)
-
-        def abort(s: Session, p: list[str]) -> None:
-            none(p)
-            if self.last is not None:
-                self.last.done_at = min(self.last.done_at, time.monotonic())
-
-        tree.add("RUN:ABORt", set=abort)
+        nodes.action("RUN:ABORt", self.abort)
 
     def wait_idle(self, session: Session) -> None:
         # *OPC? and *WAI do not wait for a sweep here: it is not an overlapped command in

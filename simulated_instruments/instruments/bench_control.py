@@ -21,7 +21,7 @@ Nodes (DEVELOPERS.md, bench-control table; FAULt nodes in the simulator's README
 
 from __future__ import annotations
 
-from simulated_instruments.instruments.analyzer import none, one
+from simulated_instruments.instruments.nodes import Nodes, none, one
 from simulated_instruments.scpi import (
     CommandTree,
     Instrument,
@@ -166,15 +166,8 @@ class BenchControl(Instrument):
 
         tree.add("OPERator:MOUNt", set=mount, query=mounted)
 
-        def set_transformer(s: Session, p: list[str]) -> None:
-            with st.lock:
-                st.transformer = parse_boolean(one(p, "transformer"), name="transformer")
-
-        tree.add(
-            "OPERator:TRANsformer",
-            set=set_transformer,
-            query=lambda s, p: (none(p), "1" if st.transformer else "0")[1],
-        )
+        nodes = Nodes(tree, st)
+        nodes.boolean("OPERator:TRANsformer", "transformer", name="transformer")
 
         def set_resistors(s: Session, p: list[str]) -> None:
             value = parse_numeric(
@@ -193,14 +186,8 @@ class BenchControl(Instrument):
             set=set_resistors,
             query=lambda s, p: (none(p), format_number(st.resistors))[1],
         )
-        tree.add(
-            "OPERator:POSitions",
-            query=lambda s, p: (none(p), str(st.scenario.positions))[1],
-        )
-        tree.add(
-            "OPERator:PARTs",
-            query=lambda s, p: (none(p), '"' + ",".join(st.scenario.parts) + '"')[1],
-        )
+        nodes.query("OPERator:POSitions", lambda: str(st.scenario.positions))
+        nodes.query("OPERator:PARTs", lambda: '"' + ",".join(st.scenario.parts) + '"')
 
         # --- faults ----------------------------------------------------------------------
         faults = st.faults
@@ -258,7 +245,4 @@ class BenchControl(Instrument):
         tree.add("FAULt:ERRor", set=fault_error)
         tree.add("FAULt:MISSing", set=fault_missing, query=fault_missing_query)
         tree.add("FAULt:CLEar", set=fault_clear)
-        tree.add(
-            "FAULt:LIST",
-            query=lambda s, p: (none(p), '"' + faults.describe() + '"')[1],
-        )
+        nodes.query("FAULt:LIST", lambda: '"' + faults.describe() + '"')

@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from simulated_instruments.instruments.analyzer import none, one
+from simulated_instruments.instruments.nodes import none, one
 from simulated_instruments.scpi import (
     CommandTree,
     Instrument,

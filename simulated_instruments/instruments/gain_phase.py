@@ -23,7 +23,13 @@ import time
 
 import numpy as np
 
-from simulated_instruments.instruments.analyzer import none, one
+from simulated_instruments.instruments.nodes import (
+    Nodes,
+    none,
+    one,
+    sweep_frequencies,
+    wait_for_sweep,
+)
 from simulated_instruments.scenario import GainPhaseSpec
 from simulated_instruments.scpi import (
     CommandTree,
@@ -31,10 +37,7 @@ from simulated_instruments.scpi import (
     ScpiError,
     Session,
     format_number,
-    parse_boolean,
     parse_choice,
-    parse_integer,
-    parse_numeric,
 )
 from simulated_instruments.state import BenchState
 
@@ -67,9 +70,7 @@ class GainPhaseAnalyzer(Instrument):
             self.corrected = False
 
     def frequencies(self) -> np.ndarray:
-        if self.mode == "LOGARITHMIC":
-            return np.geomspace(self.start, self.stop, self.points)
-        return np.linspace(self.start, self.stop, self.points)
+        return sweep_frequencies(self.start, self.stop, self.points, self.mode)
 
     def sweep_time(self) -> float:
         """Each point waits a few periods of the lower of its frequency and bandwidth."""
@@ -107,74 +108,31 @@ class GainPhaseAnalyzer(Instrument):
 
     def wait_idle(self, session: Session) -> None:
         last = self.last
-        while last is not None:
-            left = last[2] - time.monotonic()
-            if left <= 0:
-                return
-            if self.state.stopping.is_set():
-                raise ScpiError(-200, "the bench is stopping; the sweep will not finish")
-            if session.input_pending():
-                raise ScpiError(-410, "new message while waiting for the sweep")
-            time.sleep(min(left, 0.005))
+        if last is not None:
+            wait_for_sweep(last[2], self.state.stopping, session)
+
+    def run(self) -> None:
+        """Start a sweep of the selected position; it lasts ``SWEep:DURation?``."""
+        with self.lock:
+            f = self.frequencies()
+            duration = self.state.real_seconds(self.sweep_time())
+        self.last = (f, self.measure(f), time.monotonic() + duration)
 
     def build(self, tree: CommandTree) -> None:
         spec = self.spec
 
-        def numeric(pattern: str, attr: str, unit: str | None, lo: float, hi: float) -> None:
-            def set_(s: Session, p: list[str]) -> None:
-                value = parse_numeric(one(p, pattern), unit, minimum=lo, maximum=hi, name=attr)
-                with self.lock:
-                    setattr(self, attr, value)
-                    if attr == "start" and self.stop < value:
-                        self.stop = value
-                    if attr == "stop" and self.start > value:
-                        self.start = value
-
-            def query(s: Session, p: list[str]) -> str:
-                none(p)
-                return format_number(getattr(self, attr))
-
-            tree.add(pattern, set=set_, query=query)
-
-        numeric("SWEep:STARt", "start", "HZ", spec.f_min, spec.f_max)
-        numeric("SWEep:STOP", "stop", "HZ", spec.f_min, spec.f_max)
-        numeric("RECeiver:BANDwidth", "bandwidth", "HZ", spec.bandwidth_min, spec.bandwidth_max)
-        numeric("OUTPut:LEVel", "level", "DBM", spec.level_min, spec.level_max)
-
-        def set_points(s: Session, p: list[str]) -> None:
-            n = parse_integer(one(p, "points"), minimum=2, maximum=spec.points_max, name="points")
-            with self.lock:
-                self.points = n
-
-        tree.add("SWEep:POINts", set=set_points, query=lambda s, p: (none(p), str(self.points))[1])
-
-        def set_mode(s: Session, p: list[str]) -> None:
-            value = parse_choice(one(p, "mode"), ("LINear", "LOGarithmic"), name="mode")
-            with self.lock:
-                self.mode = value
-
-        tree.add("SWEep:MODE", set=set_mode, query=lambda s, p: (none(p), self.mode[:3])[1])
-        tree.add(
-            "SWEep:DURation", query=lambda s, p: (none(p), format_number(self.sweep_time()))[1]
+        nodes = Nodes(tree, self)
+        nodes.numeric("SWEep:STARt", "start", "HZ", spec.f_min, spec.f_max)
+        nodes.numeric("SWEep:STOP", "stop", "HZ", spec.f_min, spec.f_max)
+        nodes.numeric(
+            "RECeiver:BANDwidth", "bandwidth", "HZ", spec.bandwidth_min, spec.bandwidth_max
         )
-
-        def set_correction(s: Session, p: list[str]) -> None:
-            self.corrected = parse_boolean(one(p, "correction"), name="correction")
-
-        tree.add(
-            "RECeiver:CORRection",
-            set=set_correction,
-            query=lambda s, p: (none(p), "1" if self.corrected else "0")[1],
-        )
-
-        def run(s: Session, p: list[str]) -> None:
-            none(p)
-            with self.lock:
-                f = self.frequencies()
-                duration = self.state.real_seconds(self.sweep_time())
-            self.last = (f, self.measure(f), time.monotonic() + duration)
-
-        tree.add("SWEep:RUN", set=run)
+        nodes.numeric("OUTPut:LEVel", "level", "DBM", spec.level_min, spec.level_max)
+        nodes.integer("SWEep:POINts", "points", 2, spec.points_max)
+        nodes.choice("SWEep:MODE", "mode", ("LINear", "LOGarithmic"), name="mode")
+        nodes.query("SWEep:DURation", lambda: format_number(self.sweep_time()))
+        nodes.boolean("RECeiver:CORRection", "corrected", name="correction")
+        nodes.action("SWEep:RUN", self.run)
 
         def set_format(s: Session, p: list[str]) -> None:
             parse_choice(one(p, "format"), ("ASCii",), name="format")

@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 import skrf
 
-import bench.touchstone as touchstone
+import bench.touchstone_scan as touchstone_scan
 from bench.cli import main
 from bench.core.conversions import series_through_s21, shunt_through_s21
 from bench.errors import InputError
@@ -219,7 +219,7 @@ def _catch(caught: list[BaseException], path: Path) -> None:
 
 def test_size_bound_refuses_a_huge_file_before_reading(monkeypatch, tmp_path: Path) -> None:
     path = _write(tmp_path, "big.s2p", "# Hz S RI R 50\n" + _rows(200, "0 0 0.5 0 0.5 0 0 0"))
-    monkeypatch.setattr(touchstone, "MAX_FILE_BYTES", 1000)
+    monkeypatch.setattr(touchstone_scan, "MAX_FILE_BYTES", 1000)
     with pytest.raises(InputError, match="zbench reads") as info:
         load_measurement(path)
     assert "fix:" in str(info.value)

@@ -11,7 +11,7 @@ import re
 import pytest
 from PIL import Image
 
-from bench import exports, report
+from bench import exports, report, report_html, report_sample
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948), file signature
 
@@ -135,11 +135,11 @@ def test_landmarks_verdicts_spice_lot_and_bias(summary, written):
 
 
 def test_value_formatting_by_key_suffix():
-    assert report._value_text("stop_hz", 200e6) == "200 MHz"
-    assert report._value_text("series_r_ohm", 499.0) == "499 Ω"
-    assert report._value_text("calibration_age_s", 90000) == "25.0 h"
-    assert report._value_text("power_dbm", -10) == "-10 dBm"
-    assert report._value_text("transformer", True) == "yes"
+    assert report_html.value_text("stop_hz", 200e6) == "200 MHz"
+    assert report_html.value_text("series_r_ohm", 499.0) == "499 Ω"
+    assert report_html.value_text("calibration_age_s", 90000) == "25.0 h"
+    assert report_html.value_text("power_dbm", -10) == "-10 dBm"
+    assert report_html.value_text("transformer", True) == "yes"
 
 
 def test_bias_points_give_the_change_from_zero_volts(summary, written):
@@ -169,7 +169,7 @@ def test_fit_quality_counts_points_used_and_why_others_were_not(summary, written
             continue
         total = sample.data.f.size
         outside = int((~sample.data.inside_window).sum())
-        line = report._quality_text(sample)
+        line = report_sample.quality_text(sample)
         assert f"{sample.fit.quality.points_used} of {total} points used" in line
         assert (f"{outside} outside the measurable window" in line) == (outside > 0)
         assert f"Fit quality: {report.esc(line)}." in text

@@ -1,0 +1,251 @@
+"""One sample's section of the run report, and the figures it embeds.
+
+The |Z|/ESR figure with the model and window, the residuals, landmarks and elements with
+their uncertainties, the verdict against tolerance, and the SPICE text. Each figure is
+saved under ``plots/`` and embedded as a base64 PNG (:class:`Figures`).
+"""
+
+from __future__ import annotations
+
+import base64
+import math
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from bench import exports, plots, verdicts
+from bench.report_html import (
+    esc,
+    kv_table,
+    percent,
+    si,
+    table,
+    verdict_html,
+    warnings_list,
+)
+from bench.results import PartSpec, RunSummary, SampleResult
+from bench.units import format_si
+
+
+class Figures:
+    """Saves each figure under ``plots/`` and returns its embedded ``<figure>``."""
+
+    def __init__(self, run_dir: Path):
+        self.folder = run_dir / "plots"
+        self.paths: list[Path] = []
+
+    def embed(self, fig: Any, name: str, caption: str) -> str:
+        path = self.folder / f"{exports.safe_filename(name)}.png"
+        data = plots.save_png(fig, path)
+        self.paths.append(path)
+        encoded = base64.b64encode(data).decode("ascii")
+        return (
+            f'<figure><img alt="{esc(caption)}" src="data:image/png;base64,{encoded}">'
+            f"<figcaption>{esc(caption)}</figcaption></figure>"
+        )
+
+
+def _setup_text(label: str, data: Any) -> str:
+    """``series-through: window 13.2 Ω to 993 kΩ, 39 of 81 points inside``."""
+    inside = int(np.count_nonzero(np.asarray(data.inside_window, dtype=bool)))
+    w = data.window
+    return (
+        f"{label}: window {format_si(w.z_min, 'Ω', 3)} to {format_si(w.z_max, 'Ω', 3)}, "
+        f"{inside} of {np.size(data.f)} points inside"
+    )
+
+
+def landmark_label(spec: PartSpec, name: str) -> str:
+    """A landmark's name for a reader: ``|Z| at 100 MHz`` for a bead's stated point."""
+    if name == "z_at_nominal_hz" and spec.nominal_at_hz:
+        return f"|Z| at {format_si(spec.nominal_at_hz, 'Hz', 4)}"
+    return name
+
+
+def points_text(sample: SampleResult) -> tuple[int, int, int | None]:
+    """(points in the sweep, points outside the window, points the fit used or None)."""
+    total = int(np.size(sample.data.f))
+    outside = int(np.count_nonzero(~np.asarray(sample.data.inside_window, dtype=bool)))
+    used = sample.fit.quality.points_used if sample.fit is not None else None
+    return total, outside, used
+
+
+def _measured_landmarks(sample: SampleResult) -> dict[str, float | None]:
+    """Landmarks read straight from the points inside the window (empty if they cannot be)."""
+    from bench.core.landmarks import landmarks_for
+
+    try:
+        return dict(
+            landmarks_for(sample.fit.kind, sample.data.f, sample.data.z, sample.data.inside_window)
+        )
+    except ValueError:
+        return {}
+
+
+def _landmark_table(sample: SampleResult) -> str:
+    fit = sample.fit
+    sigma = dict(getattr(fit, "uncertainties", {}) or {})
+    sigma_marks = {**sigma, **dict(getattr(fit, "landmark_uncertainties", {}) or {})}
+    measured = _measured_landmarks(sample)
+    # A ±1σ column only when the fit states landmark uncertainties.
+    with_sigma = any(sigma_marks.get(key) is not None for key in fit.landmarks)
+    rows = []
+    for key, value in fit.landmarks.items():
+        unit = exports.LANDMARK_UNITS.get(key, "")
+        direct = measured.get(key)
+        difference = (
+            percent(value / direct - 1.0)
+            if value is not None and direct and math.isfinite(direct)
+            else "—"
+        )
+        row = [esc(key), si(value, unit)]
+        if with_sigma:
+            row.append(si(sigma_marks.get(key), unit, 3))
+        rows.append([*row, si(direct, unit), difference])
+    headers = ["landmark", "model", *(["±1σ"] if with_sigma else []), "read from the data"]
+    landmarks = table([*headers, "model vs data"], rows, numeric=set(range(1, len(headers) + 1)))
+    rows = []
+    for key, value in fit.elements.items():
+        unit = _element_unit(key)
+        error = sigma.get(key)
+        relative = (
+            f"{100 * error / value:.2g} %"
+            if error is not None and value and math.isfinite(error)
+            else "—"
+        )
+        rows.append([esc(key), si(value, unit), si(error, unit, 3), esc(relative)])
+    elements = table(["element", "value", "±1σ", "±1σ (relative)"], rows, numeric={1, 2, 3})
+    return (
+        '<div class="pair">'
+        f"<div><h4>Landmarks</h4>{landmarks}</div>"
+        f"<div><h4>Model elements</h4>{elements}</div></div>"
+    )
+
+
+def _element_unit(name: str) -> str:
+    head = name.lstrip("_")[:1].upper()
+    return {"R": "Ω", "L": "H", "C": "F"}.get(head, "")
+
+
+def quality_text(sample: SampleResult) -> str:
+    q = sample.fit.quality
+    total, outside, used = points_text(sample)
+    text = (
+        f"RMS complex-log error {q.rms_log_error:.3g}, largest {q.max_abs_log_error:.3g}; "
+        f"{used} of {total} points used"
+    )
+    other = total - used - outside
+    if outside or other > 0:
+        reasons = [f"{outside} outside the measurable window"] if outside else []
+        if other > 0:
+            # Below a ground-loop corner, or outside a frequency range the fit was given.
+            reasons.append(f"{other} outside the fit's frequency range")
+        text += " (" + ", ".join(reasons) + ")"
+    return text
+
+
+def _fit_range_is_narrower(sample: SampleResult) -> bool:
+    """Whether the fit left out an end of the sweep (``fit.f_range``, Hz): it is hatched."""
+    f_range = getattr(sample.fit, "f_range", None)
+    f = np.asarray(sample.data.f, dtype=float)
+    if f_range is None or f.size < 2:
+        return False
+    lo, hi = (float(v) for v in f_range)
+    return lo > f[0] * (1 + 1e-9) or hi < f[-1] * (1 - 1e-9)
+
+
+def sample_section(summary: RunSummary, spec: PartSpec, sample: SampleResult, figs: Figures) -> str:
+    from bench.core.spice import subckt_text
+
+    heading = f"{sample.part} / {sample.sample}" + (
+        f" at {sample.bias_v:g} V" if sample.bias_v else ""
+    )
+    parts = [f'<section class="sample"><h4>{esc(heading)}</h4>']
+    name, value = exports.main_landmark(spec, sample)
+    deviation, judged = verdicts.judge(
+        spec, sample, value, summary.warnings, verdicts.plausibility_notes(summary.warnings)
+    )
+    unit = exports.LANDMARK_UNITS.get(name, "")
+    label = esc(landmark_label(spec, name))
+    drive = verdicts.sample_drive(summary, sample)
+    facts = {
+        "position": sample.position,
+        **(
+            {"set-ups": "; ".join(_setup_text(label, d) for label, d in sample.setups)}
+            if sample.setups
+            else {}
+        ),
+        "raw file": sample.raw_file or "(not recorded)",
+        "model": sample.fit.model if sample.fit is not None else "no fit",
+        "drive across the part": "not recorded"
+        if drive is None
+        else f"{format_si(drive, 'V', 3)} rms at most",
+    }
+    parts.append(kv_table(facts))
+    if sample.bias_v and value is not None:
+        reference = exports.zero_bias_values(summary).get((sample.part, sample.sample))
+        change = None if not reference else value / reference - 1.0
+        if change is not None:
+            parts.append(
+                f"<p>{label} = {si(value, unit)} at {esc(f'{sample.bias_v:g}')} V: "
+                f"{percent(change)} from the same sample at 0 V ({si(reference, unit)}). "
+                '<span class="note">Not judged under bias: the nominal value is stated '
+                "at 0 V.</span></p>"
+            )
+        else:
+            parts.append(
+                f"<p>{label} = {si(value, unit)} at {esc(f'{sample.bias_v:g}')} V "
+                '<span class="note">(no 0 V measurement to compare with; not judged under '
+                "bias)</span></p>"
+            )
+    elif spec.nominal:
+        tol = f" ± {100 * spec.tolerance:g} %" if spec.tolerance is not None else ""
+        parts.append(
+            f"<p>{label} = {si(value, unit)} against {si(spec.nominal, unit)}{esc(tol)}: "
+            f"deviation {percent(deviation)}, "
+            f"{verdict_html(judged.result, sample.bias_v, reason=judged.reason)}</p>"
+        )
+    if judged.result == "CHECK" and (sample.bias_v or not spec.nominal):
+        parts.append(f"<p>{verdict_html(judged.result, reason=judged.reason)}</p>")
+    caption = (
+        f"{heading}: |Z| and ESR versus frequency; shaded band: measurable window; "
+        "crosses: points outside it; dashed: fitted model"
+    )
+    if sample.fit is not None:
+        caption += (
+            "; lower panels: model minus measurement (complex log, magnitude in % and "
+            "phase in degrees) with the ±1σ measurement band"
+        )
+    if _fit_range_is_narrower(sample):
+        caption += "; hatched: ends of the sweep the fit left out"
+    if len(sample.setups) > 1:
+        caption += (
+            "; black: the set-ups stitched into one curve, each weighted by its own "
+            "uncertainty; coloured: each set-up inside its own window, whose limits are "
+            "dotted in the same colour"
+        )
+    parts.append(
+        figs.embed(
+            plots.sample_figure(sample.data, sample.fit, title=heading, setups=sample.setups),
+            f"{sample.label}_impedance",
+            caption + ".",
+        )
+    )
+    if sample.fit is None:
+        parts.append(
+            f"<p><strong>No model:</strong> {esc(sample.fit_error or 'the fit failed')}</p>"
+        )
+        parts.append(warnings_list(sample.warnings))
+        parts.append("</section>")
+        return "".join(parts)
+    parts.append(f"<p>Fit quality: {esc(quality_text(sample))}.</p>")
+    parts.append(_landmark_table(sample))
+    parts.append(warnings_list([*sample.warnings, *sample.fit.warnings]))
+    spice = subckt_text(
+        sample.fit,
+        exports.sample_spice_name(sample),
+        provenance=exports.provenance(summary, sample),
+    )
+    parts.append(f"<h4>SPICE subcircuit</h4><pre>{esc(spice)}</pre></section>")
+    return "".join(parts)
