@@ -9,6 +9,7 @@ from __future__ import annotations
 import pytest
 
 from bench.errors import RunError
+from bench.procedure import estimate
 from bench.procedure.operators import ConsoleOperator, ScriptedOperator
 from bench.runstore import DONE
 from tests.end_to_end.conftest import GAIN_PHASE
@@ -58,6 +59,8 @@ def test_the_hands_move_the_fixture_to_the_gain_phase_analyser_and_back(tmp_path
         "cables: on the fixture",
     ]
     assert all(store.step_state(s.id) == DONE for s in plan.steps)
+    # The time estimate allows a person one connection for each of these moves.
+    assert estimate.actions(plan, plan.steps)[0] == len(actions)
 
 
 def test_the_console_asks_for_the_gain_phase_analyser_and_back():
