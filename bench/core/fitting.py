@@ -36,7 +36,12 @@ from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
-from scipy.optimize import least_squares, leastsq
+from scipy.optimize import leastsq
+
+try:  # MINPACK's driver as scipy's leastsq calls it (see _levenberg_marquardt)
+    from scipy.optimize._minpack import _lmder
+except ImportError:  # pragma: no cover - a scipy without it uses leastsq
+    _lmder = None
 
 from bench.core import robust
 from bench.core.fit_landmarks import (
@@ -47,7 +52,7 @@ from bench.core.fit_landmarks import (
     resonance_warnings,
 )
 from bench.core.fit_network import CompiledNetwork
-from bench.core.fit_select import Trial, select
+from bench.core.fit_select import Trial, covariance, dropped_elements, select
 from bench.core.landmarks import Landmarks, classify, landmarks_for
 from bench.core.model_registry import MODEL_NAMES, auto_candidates
 from bench.core.models import FAMILIES, ModelFamily
@@ -79,8 +84,6 @@ SCOUT_POINTS = 160
 # fit is solved once more to the end (:func:`_robust_refine`).
 SCOUT_TOLERANCE = 1e-5
 REFINE_TOLERANCE = 1e-6
-# Two scouts whose costs agree this closely ended in the same valley.
-SAME_VALLEY = 1e-3
 # A family whose fit leaves this many times the best χ² so far gets no higher orders.
 HOPELESS_FACTOR = 10.0
 # An element within this distance (natural log) of a bound is pinned at it.
@@ -301,6 +304,47 @@ class _Objective:
         return self.jacobian_rows(q).T
 
 
+def _levenberg_marquardt(fun, jac, x0, max_nfev: int, tolerance: float) -> NDArray[np.float64]:
+    """MINPACK's ``lmder`` on ``fun`` with the Jacobian ``jac`` in column order.
+
+    scipy's compiled driver is called as ``leastsq`` calls it, without ``leastsq``'s
+    checks (two extra model evaluations) and covariance, which cost as much as the
+    solve on these small problems; should its private signature change, ``leastsq``
+    does the same.
+    """
+    if _lmder is not None:
+        try:
+            return _lmder(
+                fun,
+                jac,
+                x0,
+                (),
+                0,
+                1,
+                tolerance,
+                tolerance,
+                1e-7,
+                max_nfev,
+                100.0,
+                np.ones(x0.size),
+            )[0]
+        except TypeError:
+            pass
+    return leastsq(
+        fun,
+        x0,
+        Dfun=jac,
+        full_output=True,
+        col_deriv=True,
+        ftol=tolerance,
+        xtol=tolerance,
+        gtol=1e-7,
+        maxfev=max_nfev,
+        factor=100.0,
+        diag=np.ones(x0.size),
+    )[0]
+
+
 def _solve(
     obj: _Objective, q0, lo, hi, max_nfev: int, tolerance: float = 1e-7
 ) -> tuple[float, NDArray[np.float64]]:
@@ -322,23 +366,8 @@ def _solve(
             out[outside] = 0.0
         return out
 
-    # scipy's MINPACK driver called directly: the same iterations as
-    # ``least_squares(method="lm", x_scale=1.0)`` without its per-call wrapping, which
-    # cost as much as the model itself on these small problems.
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-        x = leastsq(
-            fun,
-            np.minimum(np.maximum(q0, lo), hi),
-            Dfun=jac,
-            full_output=True,
-            col_deriv=True,
-            ftol=tolerance,
-            xtol=tolerance,
-            gtol=1e-7,
-            maxfev=max_nfev,
-            factor=100.0,
-            diag=np.ones(np.size(q0)),
-        )[0]
+        x = _levenberg_marquardt(fun, jac, np.minimum(np.maximum(q0, lo), hi), max_nfev, tolerance)
         q = np.minimum(np.maximum(x, lo), hi)
         r = obj.residuals(q)
     return float(r @ r), q
@@ -363,8 +392,7 @@ def _fit_order(
 
     # Every start runs to convergence on a thinned grid (every few points, at most
     # SCOUT_POINTS), which finds the right valley at a fraction of the cost; the two best
-    # distinct results are then refined on the full grid. The starts come best guess
-    # first: once two of them end in the same lowest valley, the rest are not run.
+    # distinct results are then refined on the full grid.
     step = max(1, int(np.ceil(f.size / SCOUT_POINTS)))
     coarse = _Objective(node, f[::step], z[::step], weight[::step])
     fine = coarse if step == 1 else _Objective(node, f, z, weight)
@@ -381,10 +409,7 @@ def _fit_order(
         result = _solve(coarse, q0, lo, hi, 20 * (k + 1), SCOUT_TOLERANCE)
         if not np.isfinite(result[0]):
             continue
-        lowest = min((c for c, _ in scouts), default=math.inf)
         scouts.append(result)
-        if abs(result[0] - lowest) <= SAME_VALLEY * lowest:
-            break  # a second start confirms the lowest valley
     if not scouts:
         raise FitError(f"model {family.name} (order {order}): no start value gave a finite model")
     scouts.sort(key=lambda t: t[0])
@@ -405,19 +430,15 @@ def _fit_order(
 
 def _make_trial(family, order, node, q, lo, hi, obj: _Objective) -> Trial:
     """The trial of ``family``/``order`` at log values ``q`` (fitted with the objective
-    ``obj``), with its criterion, the elements at a bound and the relative uncertainty
-    of every element."""
+    ``obj``), with its criterion, the elements at a bound, those the data do not see
+    (:func:`fit_select.dropped_elements`) and the relative uncertainty of every element."""
     names = family.element_names(order)
     m = 2 * obj.n
-    k = len(names)
     values = dict(zip(names, (float(v) for v in np.exp(q)), strict=True))
     with np.errstate(all="ignore"):
         r = obj.residuals(q)
         chi2 = float(r @ r)
         err = np.hypot(r[: obj.n], r[obj.n :]) / obj.weight
-    # Known-variance form: the weights are the points' uncertainties (with the model-error
-    # floor), so χ² is on an absolute scale and each element must lower it by ln(m).
-    bic = chi2 + k * math.log(m)
     vanish = vanishing_sides(node)
     at_bound = tuple(
         n
@@ -425,23 +446,75 @@ def _make_trial(family, order, node, q, lo, hi, obj: _Objective) -> Trial:
         if (qi - a < PINNED_LOG and "low" not in vanish[n])
         or (b - qi < PINNED_LOG and "high" not in vanish[n])
     )
-    # Pinned at any bound, also where the element harmlessly drops out: a section that
-    # drops out was not needed, so this order is not supported by the data.
+    # Pinned at any bound, also where the element harmlessly drops out.
     pinned = tuple(
         n
         for n, qi, a, b in zip(names, q, lo, hi, strict=True)
         if qi - a < PINNED_LOG or b - qi < PINNED_LOG
     )
-    cov = _covariance(obj, q, chi2)
+    with np.errstate(all="ignore"):
+        jm = obj.jacobian(q)
+    dropped = dropped_elements(names, jm, chi2, pinned, at_bound)
+    # Known-variance form: the weights are the points' uncertainties (with the model-error
+    # floor), so χ² is on an absolute scale and each element the data see must lower it
+    # by ln(m); an element that dropped out is not counted (the circuit is the smaller one).
+    bic = chi2 + (len(names) - len(dropped)) * math.log(m)
+    cov = covariance(jm, chi2, names, dropped)
     sigma_log = np.sqrt(np.clip(np.diag(cov), 0.0, None))
     rel = {n: float(s) for n, s in zip(names, sigma_log, strict=True)}
     rms = float(np.sqrt(np.mean(err**2)))
-    return Trial(family, order, node, values, q, chi2, bic, rms, at_bound, pinned, rel_sigma=rel)
+    return Trial(
+        family,
+        order,
+        node,
+        values,
+        q,
+        chi2,
+        bic,
+        rms,
+        at_bound,
+        pinned,
+        rel_sigma=rel,
+        dropped=dropped,
+    )
+
+
+class _SoftL1:
+    """The residuals of ``obj`` under a soft-L1 loss of scale ``s``, as plain least squares.
+
+    scipy's soft-L1 cost is ``Σ s²·ρ(r²/s²)`` with ``ρ(x) = 2(√(1 + x) − 1)``; the
+    residuals ``g(r) = sign(r)·s·√ρ(r²/s²)`` have the same sum of squares, so MINPACK
+    minimises the very same cost (``g(r) ≈ r`` for small ``r``, ``√(2|r|s)`` for large).
+    Their Jacobian is ``g'(r)·J`` with ``g'(r) = |r|·ρ'(r²/s²)/(s·√ρ)``, 1 at ``r = 0``.
+    """
+
+    def __init__(self, obj: _Objective, scale: float):
+        self.obj = obj
+        self.scale = scale
+        self.n = obj.n
+
+    def _parts(self, q):
+        r = self.obj.residuals(q)
+        x = (r / self.scale) ** 2
+        root = np.sqrt(1.0 + x)
+        rho = 2.0 * (root - 1.0)
+        sqrt_rho = np.sqrt(rho)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            slope = np.where(x > 1e-12, np.abs(r) / (self.scale * sqrt_rho * root), 1.0)
+        return r, sqrt_rho, slope
+
+    def residuals(self, q):
+        r, sqrt_rho, _ = self._parts(q)
+        return np.copysign(self.scale * sqrt_rho, r)
+
+    def jacobian_rows(self, q):
+        _, _, slope = self._parts(q)
+        return self.obj.jacobian_rows(q) * slope
 
 
 def _robust_refine(trial: Trial, f, z, weight, landmarks: Landmarks) -> Trial:
-    """The chosen trial solved once more with a soft-L1 loss (scipy's ``least_squares``,
-    scale :data:`ROBUST_SCALE` in units of a point's uncertainty), so that a few points
+    """The chosen trial solved once more with a soft-L1 loss (:class:`_SoftL1`, scale
+    :data:`ROBUST_SCALE` in units of a point's uncertainty), so that a few points
     the screening let through cannot pull the fit; kept only when it stays as good in
     plain least squares within the noise (χ² up by less than the number of elements)."""
     family, order = trial.family, trial.order
@@ -450,46 +523,23 @@ def _robust_refine(trial: Trial, f, z, weight, landmarks: Landmarks) -> Trial:
     lo = np.log([limits[n][0] for n in names])
     hi = np.log([limits[n][1] for n in names])
     obj = _Objective(trial.node, f, z, weight)
-    residuals, jacobian = obj.residuals, obj.jacobian
-    span = hi - lo
-    q0 = np.clip(trial.q, lo + 1e-9 * span, hi - 1e-9 * span)
-    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-        sol = least_squares(
-            residuals,
-            q0,
-            jac=jacobian,
-            bounds=(lo, hi),
-            method="trf",
-            loss="soft_l1",
-            f_scale=ROBUST_SCALE,
-            max_nfev=20 * (len(names) + 1),
-            ftol=1e-7,
-            xtol=1e-7,
-            gtol=1e-7,
-        )
-    if not np.all(np.isfinite(sol.x)):
+    cost, q = _solve(_SoftL1(obj, ROBUST_SCALE), trial.q, lo, hi, 20 * (len(names) + 1))
+    if not np.isfinite(cost) or not np.all(np.isfinite(q)):
         return trial
-    refined = _make_trial(family, order, trial.node, sol.x, lo, hi, obj)
+    refined = _make_trial(family, order, trial.node, q, lo, hi, obj)
     # A sanity bound only: on clean data the two solutions agree to the noise.
     if not np.isfinite(refined.chi2) or refined.rms > 1.5 * trial.rms + 1e-12:
         return trial
     return refined
 
 
-def _covariance(obj: _Objective, q: NDArray[np.float64], chi2: float) -> NDArray[np.float64]:
-    """Covariance of the log element values, from the Jacobian at ``q``, scaled by the
-    residual variance χ²/(m − k). The normal matrix is symmetric, so its pseudo-inverse
-    comes from its eigen-decomposition (as ``numpy.linalg.pinv`` would give, cheaper)."""
+def _covariance(obj: _Objective, trial: Trial) -> NDArray[np.float64]:
+    """Covariance of the log element values of ``trial``, from the Jacobian at its
+    solution, scaled by the residual variance χ²/(m − k) (:func:`fit_select.covariance`)."""
     with np.errstate(all="ignore"):
-        rows = obj.jacobian_rows(q)
-        k, m = rows.shape
-        normal = rows @ rows.T
-        if not np.all(np.isfinite(normal)):
-            return np.full((k, k), np.inf)
-        w, v = np.linalg.eigh(normal)
-        keep = np.abs(w) > 1e-15 * np.max(np.abs(w))
-        inv = np.where(keep, 1.0 / np.where(keep, w, 1.0), 0.0)
-        return (v * inv) @ v.T * (chi2 / max(m - k, 1))
+        jm = obj.jacobian(trial.q)
+    names = trial.family.element_names(trial.order)
+    return covariance(jm, trial.chi2, names, trial.dropped)
 
 
 def _uncertainties(trial: Trial, cov: NDArray[np.float64]) -> dict[str, float]:
@@ -787,7 +837,7 @@ def fit_impedance(
     zm = network_impedance(best.node, fu, best.values)
     err = np.abs(log_ratio(zm, zu))
     u = u_all[used]
-    k = best.q.size
+    k = best.size
     quality = FitQuality(
         rms_log_error=float(np.sqrt(np.mean(err**2))),
         max_abs_log_error=float(np.max(err)),
@@ -807,6 +857,16 @@ def fit_impedance(
             f"elements {', '.join(best.at_bound)} ended at the edge of their allowed range; "
             "the data may not determine them"
         )
+    # Elements that dropped out: a resistor of an optional part is simply absent, a
+    # capacitor or inductor the data cannot see leaves its landmarks to a placeholder.
+    unseen = [n for n in best.dropped if n not in best.family.optional or n[0] in "LC"]
+    if unseen:
+        warnings.append(
+            f"elements {', '.join(unseen)} are not seen by the data (not determined even "
+            "with every other element held: they dropped out of the fit); their values "
+            "are placeholders"
+            + ("; no model with fewer elements met the quality bound" if unsupported else "")
+        )
     loose = [n for n in best.undetermined if n not in best.at_bound]
     if loose:
         warnings.append(
@@ -819,7 +879,7 @@ def fit_impedance(
             f"rms log error {quality.rms_log_error:.3g} exceeds the quality bound "
             f"{quality_bound:.3g}; try another model or check the measurement"
         )
-    cov = _covariance(_Objective(best.node, fs, zs, ws), best.q, best.chi2)
+    cov = _covariance(_Objective(best.node, fs, zs, ws), best)
     return FitResult(
         model=best.family.name,
         kind=kind,

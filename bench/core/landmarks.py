@@ -89,8 +89,13 @@ def _smooth(y: NDArray[np.float64], width: int) -> NDArray[np.float64]:
         from scipy.ndimage import median_filter
 
         return median_filter(y, size=2 * half + 1, mode="nearest")
-    padded = np.pad(y, half, mode="edge")
-    return np.median(np.lib.stride_tricks.sliding_window_view(padded, 2 * half + 1), axis=1)
+    padded = np.concatenate([np.full(half, y[0]), y, np.full(half, y[-1])])
+    # The middle of each sorted window: the median of an odd window, without np.median's
+    # general machinery (several times slower on these small windows).
+    windows = np.lib.stride_tricks.as_strided(
+        padded, (y.size, 2 * half + 1), (padded.strides[0], padded.strides[0]), writeable=False
+    )
+    return np.sort(windows, axis=1)[:, half]
 
 
 def _points_per_decade(f: NDArray[np.float64]) -> float:
@@ -118,9 +123,7 @@ def _crossings(f: NDArray[np.float64], y: NDArray[np.float64], rising: bool):
     hold = max(2, width // 2)
     steps = np.diff(np.log(f))
     typical_step = np.median(steps)
-    for idx in range(1, f.size):
-        if not (sign[idx - 1] < 0 and sign[idx] > 0):
-            continue
+    for idx in np.flatnonzero((sign[:-1] < 0) & (sign[1:] > 0)) + 1:
         after = sign[idx : idx + hold]
         before = sign[max(0, idx - hold) : idx]
         if not (np.all(after > 0) and np.all(before < 0)):
@@ -272,7 +275,9 @@ def capacitor_landmarks(f: Any, z: Any, valid: Any = None) -> Landmarks:
 
 def inductor_landmarks(f: Any, z: Any, valid: Any = None) -> Landmarks:
     """Landmarks of an inductor or bead: ``l_low`` (H), ``r_dc`` (Ω), ``srf`` (Hz, parallel
-    resonance), ``z_at_srf`` (Ω, magnitude) and ``c_par`` (F, from ``srf`` and ``l_low``).
+    resonance), ``z_at_srf`` (Ω, magnitude) and ``c_par`` (F, from the capacitive slope of
+    the points well above the resonance, :func:`_capacitive_slope`; None where the sweep
+    stops short of that).
 
     ``f`` in Hz, ``z`` complex Ω, ``valid`` an optional bool mask of points inside the
     measurable window.
@@ -315,9 +320,38 @@ def inductor_landmarks(f: Any, z: Any, valid: Any = None) -> Landmarks:
         # there, unlike |Z| at a sharp peak, so it is the one interpolated.
         conductance = _value_at(f, (1.0 / z).real, srf)
         out["z_at_srf"] = float(1.0 / conductance) if conductance and conductance > 0 else None
-        if out["l_low"] is not None:
-            out["c_par"] = 1.0 / ((2 * np.pi * srf) ** 2 * out["l_low"])
+        out["c_par"] = _capacitive_slope(w, z, srf, out["l_low"])
     return out
+
+
+# The parallel capacitance is read where the points lie at least this factor above the
+# parallel resonance: there the winding capacitance carries most of the susceptance.
+C_PAR_ABOVE_SRF = 3.0
+
+
+def _capacitive_slope(w, z, srf: float, l_low: float | None) -> float | None:
+    """Parallel capacitance (F) from the capacitive slope of the points above the SRF.
+
+    Over the top third of a decade of the points at least :data:`C_PAR_ABOVE_SRF` times
+    above ``srf`` and capacitive, the median of ``Im(1/Z)/ω + 1/(ω²·l_low)``: the
+    susceptance per radian of the capacitance, with the inductance's own ``−1/(ωL)``
+    put back [derived]. Not from ``srf`` and ``l_low`` (``1/((2π·srf)²·L)``): a
+    dispersive ferrite's inductance has fallen well below ``l_low`` by its resonance,
+    which that formula would read as a smaller capacitance. None where the points do
+    not reach far enough above the resonance.
+    """
+    b = (1.0 / z).imag
+    above = (w >= 2 * np.pi * srf * C_PAR_ABOVE_SRF) & (b > 0)
+    if np.count_nonzero(above) < 3:
+        return None
+    top = above & (w >= w[above][-1] / 10 ** (1 / 3))
+    if np.count_nonzero(top) < 3:
+        top = above & (w >= np.sort(w[above])[-3])
+    c = b[top] / w[top]
+    if l_low is not None and l_low > 0:
+        c = c + 1.0 / (w[top] ** 2 * l_low)
+    value = float(np.median(c))
+    return value if value > 0 else None
 
 
 def landmarks_for(kind: str, f: Any, z: Any, valid: Any = None) -> Landmarks:

@@ -46,6 +46,10 @@ MOUNT_WORDS = {
 }
 
 
+#: The gain-phase analyser's set-up on the fixture, in the operator's words.
+GAIN_PHASE_WORDS = "the gain-phase analyser"
+
+
 class OperatorStop(Exception):  # noqa: N818 (a request, not a failure)
     """The operator chose to stop; the run stays resumable."""
 
@@ -97,6 +101,11 @@ class Operator(ABC):
         """Leave that mount empty (``"empty"``: the gap, or the open), fit its zero-ohm
         strap (``"strap"``), or fit a sample (a :class:`Placement`)."""
         raise NotImplementedError(f"{type(self).__name__} cannot fill {MOUNT_WORDS[method]}")
+
+    def connect_gain_phase(self) -> None:
+        """Move the fixture from the network analyser's cables to the gain-phase analyser;
+        the next cable action (:meth:`connect_fixture`, ...) moves it back."""
+        raise NotImplementedError(f"{type(self).__name__} cannot connect {GAIN_PHASE_WORDS}")
 
     @abstractmethod
     def caution(self, text: str) -> None:
@@ -186,6 +195,10 @@ class ScriptedOperator(Operator):
         self.bench.connect_mount(method)
         self._did(f"cables: on {MOUNT_WORDS[method]}")
 
+    def connect_gain_phase(self) -> None:
+        self.bench.connect_gain_phase()
+        self._did(f"fixture: on {GAIN_PHASE_WORDS}")
+
     def fill_mount(self, method: str, item: str | Placement) -> None:
         if isinstance(item, Placement):
             self.bench.mount(method, f"{item.part}/{item.sample}")
@@ -230,6 +243,7 @@ class ConsoleOperator(Operator):
         self._ask = ask or input
         self._say = say or print
         self._pending: list[str] = []
+        self._gain_phase_on = False
 
     def confirm(self, question: str) -> bool:
         answer = self._ask(f"{question} [Y/n] ").strip().lower()
@@ -268,14 +282,30 @@ class ConsoleOperator(Operator):
         else:
             self._later("remove the isolation transformer from port 2 (cable connected directly)")
 
+    def _cables(self, text: str) -> None:
+        """A cable action; after the gain-phase analyser, it comes off the fixture first."""
+        if self._gain_phase_on:
+            text = "Disconnect the gain-phase analyser from the fixture. " + text
+            self._gain_phase_on = False
+        self._action(text)
+
     def connect_standard(self, standard: str) -> None:
         if standard == "through":
-            self._action("Join the two cable ends with the THROUGH adapter.")
+            self._cables("Join the two cable ends with the THROUGH adapter.")
         else:
-            self._action(f"Connect {STANDARD_WORDS[standard]}.")
+            self._cables(f"Connect {STANDARD_WORDS[standard]}.")
 
     def connect_fixture(self) -> None:
-        self._action("Connect both cables to the fixture.")
+        self._cables("Connect both network-analyser cables to the fixture.")
+
+    def connect_gain_phase(self) -> None:
+        self._action(
+            "Disconnect the network analyser's cables from the fixture and connect the "
+            "GAIN-PHASE ANALYSER to it: its source through the reference resistor to the "
+            "fixture (receiver A on the source side of the resistor), receiver B across the "
+            "fixture. The fixture switch still selects the position."
+        )
+        self._gain_phase_on = True
 
     def strap_mounts(self, positions: Sequence[int]) -> None:
         self._action(f"Fit the shorting {_positions(positions, mount=True)}.")
@@ -294,12 +324,12 @@ class ConsoleOperator(Operator):
 
     def connect_mount(self, method: str) -> None:
         if method == "reflection":
-            self._action(
+            self._cables(
                 "Connect the port-1 cable to the REFLECTION mount; leave the port-2 cable "
                 "unconnected."
             )
         else:
-            self._action(
+            self._cables(
                 "Connect both cables to the SERIES-THROUGH mount (the part sits in series "
                 "between them)."
             )

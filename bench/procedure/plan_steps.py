@@ -69,10 +69,10 @@ def steps(plan: Plan) -> tuple[Step, ...]:
                     )
     if "measure" in names:
         for batch in plan.batches:
+            # The batch's gain-phase sweeps first, each sample where it sits, then the
+            # network analyser's: the fixture moves between the two once per batch.
             for placement in batch:
-                part = plan.part(placement.part)
-                if GAIN_PHASE in part.methods:
-                    # Swept where it sits, before the network analyser's sweeps.
+                if GAIN_PHASE in plan.part(placement.part).methods:
                     steps.append(
                         Step(
                             id=f"measure/{placement.part}/{placement.sample}/{GAIN_PHASE}",
@@ -82,6 +82,8 @@ def steps(plan: Plan) -> tuple[Step, ...]:
                             method=GAIN_PHASE,
                         )
                     )
+            for placement in batch:
+                part = plan.part(placement.part)
                 if SHUNT not in part.methods:
                     continue
                 for volts in part.bias:
