@@ -200,8 +200,8 @@ def actions(plan: Plan, steps: Sequence[Step]) -> tuple[int, int, int]:
         decisions += 1
         if step.kind == "calibrate":
             target = step.standard
-        elif step.method in SINGLE_MOUNT_METHODS:
-            target = step.method
+        elif step.method in (*SINGLE_MOUNT_METHODS, GAIN_PHASE):
+            target = step.method  # a single mount, or the fixture on the gain-phase analyser
         else:
             target = "fixture"
         if target != cables:
