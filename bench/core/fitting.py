@@ -152,16 +152,17 @@ class Candidate:
 class FitResult:
     """A fitted equivalent circuit.
 
-    ``elements`` and ``uncertainties`` (one sigma) in SI units (Ω, H, F; ``D`` in F and
-    ``S`` in Ω at 1 MHz, see ``bench.core.models.network``); ``landmarks`` read from the
-    measured points where they hold them and from the fitted model otherwise, as
-    ``landmark_sources`` says (``"data"`` or ``"model"``); ``landmark_uncertainties``
-    their one-sigma uncertainties propagated from the elements (None where a landmark
-    is undefined); ``f_range`` (Hz) the span of the points used; ``candidates`` every
-    family and order tried, with its criterion; ``excluded`` the points the screening
-    left out (reason, count, band) and ``point_status`` the fate of every input point
-    (``used``, ``outside-window``, ``left-out``, ``unusable``, ``negative-resistance``,
-    ``glitch``, ``band-edge``). ``meets_quality`` is ``rms_log_error <= quality_bound``.
+    ``elements`` and ``uncertainties`` (one sigma) in SI units (Ω, H, F; ``D`` in F, ``S``
+    in Ω at 1 MHz, a loss tangent ``tan<name>`` a plain number, see
+    ``bench.core.models.network``); ``landmarks`` read from the measured points where they
+    hold them and from the fitted model otherwise, as ``landmark_sources`` says (``"data"``
+    or ``"model"``); ``landmark_uncertainties`` their one-sigma uncertainties propagated
+    from the elements (None where a landmark is undefined); ``f_range`` (Hz) the span of the
+    points used; ``candidates`` every family and order tried, with its criterion;
+    ``excluded`` the points the screening left out (reason, count, band) and
+    ``point_status`` the fate of every input point (``used``, ``outside-window``,
+    ``left-out``, ``unusable``, ``negative-resistance``, ``glitch``, ``band-edge``).
+    ``meets_quality`` is ``rms_log_error <= quality_bound``.
     """
 
     model: str
