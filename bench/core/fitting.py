@@ -162,7 +162,9 @@ class FitResult:
     ``excluded`` the points the screening left out (reason, count, band) and
     ``point_status`` the fate of every input point (``used``, ``outside-window``,
     ``left-out``, ``unusable``, ``negative-resistance``, ``glitch``, ``band-edge``).
-    ``meets_quality`` is ``rms_log_error <= quality_bound``.
+    ``meets_quality`` is ``rms_log_error <= quality_bound``. ``dropped`` names the
+    elements that dropped out of the fit (not seen by the data; their values are
+    placeholders and their uncertainties unbounded).
     """
 
     model: str
@@ -181,6 +183,7 @@ class FitResult:
     excluded: tuple[Exclusion, ...] = ()
     point_status: tuple[str, ...] = ()
     circuit: Node | None = None
+    dropped: tuple[str, ...] = ()
 
     @property
     def meets_quality(self) -> bool:
@@ -220,6 +223,7 @@ class FitResult:
             "excluded": [e.to_dict() for e in self.excluded],
             "quality_bound": self.quality_bound,
             "meets_quality": self.meets_quality,
+            "dropped": list(self.dropped),
             "warnings": list(self.warnings),
         }
 
@@ -858,6 +862,7 @@ def fit_impedance(
         excluded=excluded,
         point_status=tuple(str(x) for x in status),
         circuit=best.node,
+        dropped=best.dropped,
     )
 
 
