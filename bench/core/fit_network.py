@@ -86,14 +86,15 @@ class CompiledNetwork:
             self._sign = np.array([_POWER[e.kind] for e in elements])
             self._basis = np.array([_element_impedance(e, jw, 1.0) for e in elements])
             self._root = None if isinstance(node, Element) else _group(node, 0)
-        self._q: NDArray[np.float64] | None = None
+        self._key = b""
 
     def _values(self, q: NDArray[np.float64]) -> dict[str, float]:
         return dict(zip(self.names, np.exp(q), strict=True))
 
     def impedance(self, q: NDArray[np.float64]) -> NDArray[np.complex128]:
         """Impedance (Ω) at the log element values ``q``."""
-        if self._q is not None and np.array_equal(self._q, q):
+        key = np.asarray(q, dtype=float).tobytes()
+        if key == self._key:
             return self._z
         if self.general:
             self._z, self._jac = impedance_and_jacobian(self.node, self.f, self._values(q))
@@ -103,7 +104,7 @@ class CompiledNetwork:
             self._zg: dict[int, NDArray[np.complex128]] = {}
             self._z = self._ze[0] if self._root is None else self._group_z(self._root)
             self._jac = None
-        self._q = np.array(q, dtype=float)
+        self._key = key
         return self._z
 
     def jacobian(self, q: NDArray[np.float64]) -> NDArray[np.complex128]:

@@ -36,7 +36,12 @@ from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
-from scipy.optimize import least_squares, leastsq
+from scipy.optimize import leastsq
+
+try:  # MINPACK's driver as scipy's leastsq calls it (see _levenberg_marquardt)
+    from scipy.optimize._minpack import _lmder
+except ImportError:  # pragma: no cover - a scipy without it uses leastsq
+    _lmder = None
 
 from bench.core import robust
 from bench.core.fit_landmarks import (
@@ -79,8 +84,6 @@ SCOUT_POINTS = 160
 # fit is solved once more to the end (:func:`_robust_refine`).
 SCOUT_TOLERANCE = 1e-5
 REFINE_TOLERANCE = 1e-6
-# Two scouts whose costs agree this closely ended in the same valley.
-SAME_VALLEY = 1e-3
 # A family whose fit leaves this many times the best χ² so far gets no higher orders.
 HOPELESS_FACTOR = 10.0
 # An element within this distance (natural log) of a bound is pinned at it.
@@ -306,6 +309,47 @@ class _Objective:
         return self.jacobian_rows(q).T
 
 
+def _levenberg_marquardt(fun, jac, x0, max_nfev: int, tolerance: float) -> NDArray[np.float64]:
+    """MINPACK's ``lmder`` on ``fun`` with the Jacobian ``jac`` in column order.
+
+    scipy's compiled driver is called as ``leastsq`` calls it, without ``leastsq``'s
+    checks (two extra model evaluations) and covariance, which cost as much as the
+    solve on these small problems; should its private signature change, ``leastsq``
+    does the same.
+    """
+    if _lmder is not None:
+        try:
+            return _lmder(
+                fun,
+                jac,
+                x0,
+                (),
+                0,
+                1,
+                tolerance,
+                tolerance,
+                1e-7,
+                max_nfev,
+                100.0,
+                np.ones(x0.size),
+            )[0]
+        except TypeError:
+            pass
+    return leastsq(
+        fun,
+        x0,
+        Dfun=jac,
+        full_output=True,
+        col_deriv=True,
+        ftol=tolerance,
+        xtol=tolerance,
+        gtol=1e-7,
+        maxfev=max_nfev,
+        factor=100.0,
+        diag=np.ones(x0.size),
+    )[0]
+
+
 def _solve(
     obj: _Objective, q0, lo, hi, max_nfev: int, tolerance: float = 1e-7
 ) -> tuple[float, NDArray[np.float64]]:
@@ -327,23 +371,8 @@ def _solve(
             out[outside] = 0.0
         return out
 
-    # scipy's MINPACK driver called directly: the same iterations as
-    # ``least_squares(method="lm", x_scale=1.0)`` without its per-call wrapping, which
-    # cost as much as the model itself on these small problems.
     with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-        x = leastsq(
-            fun,
-            np.minimum(np.maximum(q0, lo), hi),
-            Dfun=jac,
-            full_output=True,
-            col_deriv=True,
-            ftol=tolerance,
-            xtol=tolerance,
-            gtol=1e-7,
-            maxfev=max_nfev,
-            factor=100.0,
-            diag=np.ones(np.size(q0)),
-        )[0]
+        x = _levenberg_marquardt(fun, jac, np.minimum(np.maximum(q0, lo), hi), max_nfev, tolerance)
         q = np.minimum(np.maximum(x, lo), hi)
         r = obj.residuals(q)
     return float(r @ r), q
@@ -368,8 +397,7 @@ def _fit_order(
 
     # Every start runs to convergence on a thinned grid (every few points, at most
     # SCOUT_POINTS), which finds the right valley at a fraction of the cost; the two best
-    # distinct results are then refined on the full grid. The starts come best guess
-    # first: once two of them end in the same lowest valley, the rest are not run.
+    # distinct results are then refined on the full grid.
     step = max(1, int(np.ceil(f.size / SCOUT_POINTS)))
     coarse = _Objective(node, f[::step], z[::step], weight[::step])
     fine = coarse if step == 1 else _Objective(node, f, z, weight)
@@ -386,10 +414,7 @@ def _fit_order(
         result = _solve(coarse, q0, lo, hi, 20 * (k + 1), SCOUT_TOLERANCE)
         if not np.isfinite(result[0]):
             continue
-        lowest = min((c for c, _ in scouts), default=math.inf)
         scouts.append(result)
-        if abs(result[0] - lowest) <= SAME_VALLEY * lowest:
-            break  # a second start confirms the lowest valley
     if not scouts:
         raise FitError(f"model {family.name} (order {order}): no start value gave a finite model")
     scouts.sort(key=lambda t: t[0])
@@ -459,9 +484,42 @@ def _make_trial(family, order, node, q, lo, hi, obj: _Objective) -> Trial:
     )
 
 
+class _SoftL1:
+    """The residuals of ``obj`` under a soft-L1 loss of scale ``s``, as plain least squares.
+
+    scipy's soft-L1 cost is ``Σ s²·ρ(r²/s²)`` with ``ρ(x) = 2(√(1 + x) − 1)``; the
+    residuals ``g(r) = sign(r)·s·√ρ(r²/s²)`` have the same sum of squares, so MINPACK
+    minimises the very same cost (``g(r) ≈ r`` for small ``r``, ``√(2|r|s)`` for large).
+    Their Jacobian is ``g'(r)·J`` with ``g'(r) = |r|·ρ'(r²/s²)/(s·√ρ)``, 1 at ``r = 0``.
+    """
+
+    def __init__(self, obj: _Objective, scale: float):
+        self.obj = obj
+        self.scale = scale
+        self.n = obj.n
+
+    def _parts(self, q):
+        r = self.obj.residuals(q)
+        x = (r / self.scale) ** 2
+        root = np.sqrt(1.0 + x)
+        rho = 2.0 * (root - 1.0)
+        sqrt_rho = np.sqrt(rho)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            slope = np.where(x > 1e-12, np.abs(r) / (self.scale * sqrt_rho * root), 1.0)
+        return r, sqrt_rho, slope
+
+    def residuals(self, q):
+        r, sqrt_rho, _ = self._parts(q)
+        return np.copysign(self.scale * sqrt_rho, r)
+
+    def jacobian_rows(self, q):
+        _, _, slope = self._parts(q)
+        return self.obj.jacobian_rows(q) * slope
+
+
 def _robust_refine(trial: Trial, f, z, weight, landmarks: Landmarks) -> Trial:
-    """The chosen trial solved once more with a soft-L1 loss (scipy's ``least_squares``,
-    scale :data:`ROBUST_SCALE` in units of a point's uncertainty), so that a few points
+    """The chosen trial solved once more with a soft-L1 loss (:class:`_SoftL1`, scale
+    :data:`ROBUST_SCALE` in units of a point's uncertainty), so that a few points
     the screening let through cannot pull the fit; kept only when it stays as good in
     plain least squares within the noise (χ² up by less than the number of elements)."""
     family, order = trial.family, trial.order
@@ -470,26 +528,10 @@ def _robust_refine(trial: Trial, f, z, weight, landmarks: Landmarks) -> Trial:
     lo = np.log([limits[n][0] for n in names])
     hi = np.log([limits[n][1] for n in names])
     obj = _Objective(trial.node, f, z, weight)
-    residuals, jacobian = obj.residuals, obj.jacobian
-    span = hi - lo
-    q0 = np.clip(trial.q, lo + 1e-9 * span, hi - 1e-9 * span)
-    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-        sol = least_squares(
-            residuals,
-            q0,
-            jac=jacobian,
-            bounds=(lo, hi),
-            method="trf",
-            loss="soft_l1",
-            f_scale=ROBUST_SCALE,
-            max_nfev=20 * (len(names) + 1),
-            ftol=1e-7,
-            xtol=1e-7,
-            gtol=1e-7,
-        )
-    if not np.all(np.isfinite(sol.x)):
+    cost, q = _solve(_SoftL1(obj, ROBUST_SCALE), trial.q, lo, hi, 20 * (len(names) + 1))
+    if not np.isfinite(cost) or not np.all(np.isfinite(q)):
         return trial
-    refined = _make_trial(family, order, trial.node, sol.x, lo, hi, obj)
+    refined = _make_trial(family, order, trial.node, q, lo, hi, obj)
     # A sanity bound only: on clean data the two solutions agree to the noise.
     if not np.isfinite(refined.chi2) or refined.rms > 1.5 * trial.rms + 1e-12:
         return trial
