@@ -428,11 +428,15 @@ class Typical:
 
 
 def poorly_determined(fit: Any, limit: float = TYPICAL_MAX_UNCERTAINTY) -> list[str]:
-    """Elements of ``fit`` whose one-sigma uncertainty exceeds ``limit`` of their value."""
+    """Elements of ``fit`` whose one-sigma uncertainty exceeds ``limit`` of their value
+    (not those that dropped out of the fit: the circuit is the one without them)."""
     out = []
     sigma = dict(getattr(fit, "uncertainties", {}) or {})
+    dropped = set(getattr(fit, "dropped", ()) or ())
     for key, value in fit.elements.items():
         error = sigma.get(key)
+        if key in dropped:
+            continue
         if error is None or not value or not math.isfinite(error):
             continue
         if error / abs(value) > limit:

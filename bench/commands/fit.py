@@ -210,7 +210,9 @@ def _summary_text(outcome: _Outcome) -> str:
     sigma = dict(getattr(result, "uncertainties", {}) or {})
     elements = []
     for key, value in result.elements.items():
-        text = f"{key} {format_si(float(value), _element_unit(key))}"
+        # A loss tangent (tan<name>) is a plain number, not a quantity with a prefix.
+        shown = f"{value:.4g}" if key.startswith("tan") else format_si(value, _element_unit(key))
+        text = f"{key} {shown}"
         error = sigma.get(key)
         if error is not None and value and math.isfinite(error):
             relative = error / value

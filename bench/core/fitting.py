@@ -155,16 +155,19 @@ class Candidate:
 class FitResult:
     """A fitted equivalent circuit.
 
-    ``elements`` and ``uncertainties`` (one sigma) in SI units (Ω, H, F; ``D`` in F and
-    ``S`` in Ω at 1 MHz, see ``bench.core.models.network``); ``landmarks`` read from the
-    measured points where they hold them and from the fitted model otherwise, as
-    ``landmark_sources`` says (``"data"`` or ``"model"``); ``landmark_uncertainties``
-    their one-sigma uncertainties propagated from the elements (None where a landmark
-    is undefined); ``f_range`` (Hz) the span of the points used; ``candidates`` every
-    family and order tried, with its criterion; ``excluded`` the points the screening
-    left out (reason, count, band) and ``point_status`` the fate of every input point
-    (``used``, ``outside-window``, ``left-out``, ``unusable``, ``negative-resistance``,
-    ``glitch``, ``band-edge``). ``meets_quality`` is ``rms_log_error <= quality_bound``.
+    ``elements`` and ``uncertainties`` (one sigma) in SI units (Ω, H, F; ``D`` in F, ``S``
+    in Ω at 1 MHz, a loss tangent ``tan<name>`` a plain number, see
+    ``bench.core.models.network``); ``landmarks`` read from the measured points where they
+    hold them and from the fitted model otherwise, as ``landmark_sources`` says (``"data"``
+    or ``"model"``); ``landmark_uncertainties`` their one-sigma uncertainties propagated
+    from the elements (None where a landmark is undefined); ``f_range`` (Hz) the span of the
+    points used; ``candidates`` every family and order tried, with its criterion;
+    ``excluded`` the points the screening left out (reason, count, band) and
+    ``point_status`` the fate of every input point (``used``, ``outside-window``,
+    ``left-out``, ``unusable``, ``negative-resistance``, ``glitch``, ``band-edge``).
+    ``meets_quality`` is ``rms_log_error <= quality_bound``. ``dropped`` names the
+    elements that dropped out of the fit (not seen by the data; their values are
+    placeholders and their uncertainties unbounded).
     """
 
     model: str
@@ -183,6 +186,7 @@ class FitResult:
     excluded: tuple[Exclusion, ...] = ()
     point_status: tuple[str, ...] = ()
     circuit: Node | None = None
+    dropped: tuple[str, ...] = ()
 
     @property
     def meets_quality(self) -> bool:
@@ -222,6 +226,7 @@ class FitResult:
             "excluded": [e.to_dict() for e in self.excluded],
             "quality_bound": self.quality_bound,
             "meets_quality": self.meets_quality,
+            "dropped": list(self.dropped),
             "warnings": list(self.warnings),
         }
 
@@ -899,6 +904,7 @@ def fit_impedance(
         excluded=excluded,
         point_status=tuple(str(x) for x in status),
         circuit=best.node,
+        dropped=best.dropped,
     )
 
 

@@ -167,7 +167,8 @@ def _subckt(result: FitResult, sub: str, provenance, mount: tuple[float, float] 
     for key, value in result.elements.items():
         sigma = result.uncertainties.get(key)
         unit = _ELEMENT_UNITS.get(key[0], "")
-        text = format_si(value, unit)
+        # A loss tangent (tan<name>) is a plain number, not a quantity with a prefix.
+        text = f"{value:.4g}" if key.startswith("tan") else format_si(value, unit)
         if sigma is not None and value > 0:
             text += f" +/- {100 * sigma / value:.2g} %"
         elements.append(f"{key} = {text}")

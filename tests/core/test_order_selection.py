@@ -19,6 +19,7 @@ from bench.core.fitting import fit_impedance
 from bench.core.landmarks import landmarks_for
 from bench.core.models import FAMILIES
 from bench.core.models.network import WIDE_BOUNDS, drop_section
+from bench.exports import poorly_determined
 from simulated_instruments.parts import BulkCapacitor, FerriteBead
 
 Z0 = 50.0
@@ -161,6 +162,9 @@ def test_an_optional_element_the_band_does_not_show_leaves_the_order_supported()
     # Without C the model is Rdc + L ‖ R: L is the part's within 2 % (the project's L
     # tolerance, common practice, no source).
     assert result.elements["L"] == pytest.approx(BEAD.inductance, rel=0.02)
+    assert set(result.dropped) == {"C", "Rc"} and result.to_json()["dropped"] == ["C", "Rc"]
+    # The lot's typical model does not count the dropped elements as poorly determined.
+    assert poorly_determined(result) == []
 
 
 def test_dropping_a_section_renumbers_the_rest():
