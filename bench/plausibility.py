@@ -18,7 +18,9 @@ connection, not a marginal one); all are common practice, no source.
   (magnitude only: the raw phase turns with the cables' delay; a load in place of a
   short or open, or nothing in place of a load, is caught);
 - mount short: its median |Z| over the lowest fifth of the sweep is below
-  :data:`MOUNT_SHORT_MAX_OHM` (a fitted strap reads milliohms; an empty mount kiloohms);
+  :data:`MOUNT_SHORT_MAX_OHM` (a fitted strap reads milliohms; an empty mount kiloohms),
+  on the network analyser's capture and on the gain-phase analyser's (where a fixture
+  left on the network analyser's cables reads as an open);
 - a part: at least :data:`FLOOR_SHARE` of its points lie outside the measurable window.
 """
 
@@ -91,17 +93,41 @@ def check_reflection(
     return None
 
 
-def check_mount_short(f: Any, z_short: Any, position: int) -> str | None:
-    """The mount short: |Z| at low frequency below :data:`MOUNT_SHORT_MAX_OHM`."""
+def _short_level(f: Any, z_short: Any) -> float | None:
+    """The median |Z| (Ω) of a strap capture over the lowest fifth of its sweep, when it
+    is above :data:`MOUNT_SHORT_MAX_OHM` (or not a number); None when it is plausible."""
     z = np.asarray(z_short, dtype=complex)
     level = float(np.median(np.abs(_low(f, z, 0.2))))
     if not math.isfinite(level) or level > MOUNT_SHORT_MAX_OHM:
-        return (
-            f"the mount short at position {position} reads {level:.3g} Ω at low frequency, "
-            f"more than {MOUNT_SHORT_MAX_OHM:g} Ω: is the shorting strap fitted and pressed "
-            "down in that position?"
-        )
+        return level
     return None
+
+
+def check_mount_short(f: Any, z_short: Any, position: int) -> str | None:
+    """The mount short: |Z| at low frequency below :data:`MOUNT_SHORT_MAX_OHM`."""
+    level = _short_level(f, z_short)
+    if level is None:
+        return None
+    return (
+        f"the mount short at position {position} reads {level:.3g} Ω at low frequency, "
+        f"more than {MOUNT_SHORT_MAX_OHM:g} Ω: is the shorting strap fitted and pressed "
+        "down in that position?"
+    )
+
+
+def check_gain_phase_short(f: Any, z_short: Any, position: int) -> str | None:
+    """The gain-phase analyser's sweep of a mount short (its receiver ratio as an
+    impedance, receiver B's input removed): |Z| at low frequency below
+    :data:`MOUNT_SHORT_MAX_OHM`, as for the network analyser's."""
+    level = _short_level(f, z_short)
+    if level is None:
+        return None
+    return (
+        f"the gain-phase analyser reads the mount short at position {position} as "
+        f"{level:.3g} Ω at low frequency, more than {MOUNT_SHORT_MAX_OHM:g} Ω: is the "
+        "gain-phase analyser connected to the fixture, and the shorting strap fitted and "
+        "pressed down in that position?"
+    )
 
 
 def check_part(inside_window: Any, label: str) -> str | None:

@@ -46,6 +46,15 @@ class Figures:
         )
 
 
+def _model_text(sample: Any) -> str:
+    """The sample's model family, and its own choice when the lot's family replaced it."""
+    if sample.fit is None:
+        return "no fit"
+    if sample.own_family:
+        return f"{sample.fit.model} (set by the lot; the sample's own choice: {sample.own_family})"
+    return sample.fit.model
+
+
 def _setup_text(label: str, data: Any) -> str:
     """``series-through: window 13.2 Ω to 993 kΩ, 39 of 81 points inside``."""
     inside = int(np.count_nonzero(np.asarray(data.inside_window, dtype=bool)))
@@ -177,7 +186,7 @@ def sample_section(summary: RunSummary, spec: PartSpec, sample: SampleResult, fi
             else {}
         ),
         "raw file": sample.raw_file or "(not recorded)",
-        "model": sample.fit.model if sample.fit is not None else "no fit",
+        "model": _model_text(sample),
         "drive across the part": "not recorded"
         if drive is None
         else f"{format_si(drive, 'V', 3)} rms at most",

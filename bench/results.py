@@ -54,6 +54,9 @@ class SampleResult:
     #: window, when it was measured on a single mount or several ways (then ``data`` is
     #: the stitched curve); empty for a sample measured shunt-through alone.
     setups: tuple[tuple[str, ImpedanceData], ...] = ()
+    #: The family the sample's own ``auto`` fit chose, when the lot's family replaced it
+    #: (``bench.procedure.lot_family``); None when ``fit`` is the sample's own choice.
+    own_family: str | None = None
 
     @property
     def label(self) -> str:

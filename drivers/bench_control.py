@@ -52,21 +52,15 @@ class BenchControl(ScpiInstrument):
         """Move the cables to the ``series-through`` or the ``reflection`` mount."""
         self.write_checked(f"OPERator:CABLes {_MOUNT_WORDS[_mount_key(method)]}")
 
+    def connect_gain_phase(self) -> None:
+        """Move the fixture to the gain-phase analyser: the network analyser's cables come
+        off it (the switch still selects the position)."""
+        self.write_checked("OPERator:CABLes GAINphase")
+
     def mount(self, method: str, item: str) -> None:
         """Fit ``item`` in the ``series-through`` or ``reflection`` mount: ``"empty"`` (the
         empty gap or open), ``"strap"`` (the zero-ohm strap) or ``"<part>/<sample>"``."""
-        key = item.strip().lower()
-        if key == "empty":
-            argument = "GAP"
-        elif key == "strap":
-            argument = "STRAp"
-        else:
-            if '"' in item or item.count("/") != 1 or item.startswith("/") or item.endswith("/"):
-                raise PlanError(
-                    f"item {item!r} must be 'empty', 'strap' or '<part>/<sample>' "
-                    "(one slash, no quotes)"
-                )
-            argument = f'"{item}"'
+        argument = _item_argument(item, {"empty": "GAP", "strap": "STRAp"})
         self.write_checked(f"OPERator:MOUNt {_MOUNT_WORDS[_mount_key(method)]},{argument}")
 
     def mounted(self, method: str) -> str:
@@ -88,18 +82,7 @@ class BenchControl(ScpiInstrument):
         """
         if isinstance(position, bool) or not isinstance(position, int) or position < 1:
             raise PlanError(f"fixture position must be an integer ≥ 1, got {position!r}")
-        key = item.strip().lower()
-        if key == "short":
-            argument = "SHORt"
-        elif key == "empty":
-            argument = "EMPTy"
-        else:
-            if '"' in item or item.count("/") != 1 or item.startswith("/") or item.endswith("/"):
-                raise PlanError(
-                    f"item {item!r} must be 'short', 'empty' or '<part>/<sample>' "
-                    "(one slash, no quotes)"
-                )
-            argument = f'"{item}"'
+        argument = _item_argument(item, {"short": "SHORt", "empty": "EMPTy"})
         self.write_checked(f"OPERator:PLACe {position},{argument}")
 
     def placed(self, position: int) -> str:
@@ -177,6 +160,20 @@ class BenchControl(ScpiInstrument):
 
 
 _MOUNT_WORDS = {"series-through": "SERies", "reflection": "REFLection"}
+
+
+def _item_argument(item: str, words: dict[str, str]) -> str:
+    """The SCPI argument for what goes in a mount: one of ``words`` (by its key) or a
+    quoted ``"<part>/<sample>"``."""
+    key = item.strip().lower()
+    if key in words:
+        return words[key]
+    if '"' in item or item.count("/") != 1 or item.startswith("/") or item.endswith("/"):
+        names = "', '".join(words)
+        raise PlanError(
+            f"item {item!r} must be '{names}' or '<part>/<sample>' (one slash, no quotes)"
+        )
+    return f'"{item}"'
 
 
 def _mount_key(method: str) -> str:

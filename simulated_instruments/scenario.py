@@ -318,7 +318,7 @@ def _read_one(scenario: str | Path | Mapping[str, Any]) -> tuple[dict[str, Any],
     if isinstance(scenario, Mapping):
         return dict(scenario), "<scenario>"
     path = Path(scenario)
-    if not path.suffix and not path.exists():
+    if not path.suffix and not path.is_file():
         path = SCENARIO_DIR / f"{scenario}.yaml"
     if not path.is_file():
         names = sorted(p.stem for p in SCENARIO_DIR.glob("*.yaml"))

@@ -5,17 +5,17 @@ the DC bias, the isolation transformer and the series resistors; all of it lives
 behind one lock. :meth:`BenchState.sweep` composes the physics of
 :mod:`simulated_instruments.physics` into the raw S-parameters of one sweep.
 
-Signal path, port 1 to port 2:
-``error box 1 · resistor board · [what the cables meet] · resistor board · error box 2``
-where the cables meet a calibration standard on each end, the through adapter, the
-series-through mount (``traces + (element ‖ gap capacitance)`` in series between the
-cable ends), the reflection mount (port 1 only: ``pad + (element ‖ pad capacitance)`` to
-ground, the port-2 cable left open), or the switched fixture: the selected position's
-shunt element, ``mount pads + (part ‖ pad capacitance)
-+ ground-loop error`` (the ground-loop term only for the fixture, which is where the two
-cable shields close a loop through the DUT's ground). The analyser's ``CORRection ON``
-returns the same path without its error boxes (as if its own calibration had been made
-at the cable ends).
+Signal path, port 1 to port 2: ``error box 1 · resistor board · [what the cables meet] ·
+resistor board · error box 2`` where the cables meet a calibration standard on each end,
+the through adapter, the series-through mount (``traces + (element ‖ gap capacitance)``
+in series between the cable ends), the reflection mount (port 1 only: ``pad + (element ‖
+pad capacitance)`` to ground, the port-2 cable left open), or the switched fixture: the
+selected position's shunt element, ``mount pads + (part ‖ pad capacitance) + ground-loop
+error`` (the ground-loop term only for the fixture, which is where the two cable shields
+close a loop through the DUT's ground). While the fixture is on the gain-phase analyser
+(cables ``GAINPHASE``) the network analyser's cable ends are open. The analyser's
+``CORRection ON`` returns the same path without its error boxes (as if its own
+calibration had been made at the cable ends).
 """
 
 from __future__ import annotations
@@ -37,7 +37,18 @@ from simulated_instruments.scpi import Session
 
 SHORT = "SHORT"
 EMPTY = "EMPTY"
-CABLE_STATES = ("SHORT", "OPEN", "LOAD", "THROUGH", "FIXTURE", "SERIES", "REFLECTION")
+CABLE_STATES = (
+    "SHORT",
+    "OPEN",
+    "LOAD",
+    "THROUGH",
+    "FIXTURE",
+    "SERIES",
+    "REFLECTION",
+    "GAINPHASE",
+)
+#: The fixture on the gain-phase analyser: the network analyser's cables are off it (open).
+GAIN_PHASE_CABLES = "GAINPHASE"
 #: The single mounts the cables can be moved to, besides the switched shunt fixture.
 SINGLE_MOUNTS = ("SERIES", "REFLECTION")
 
@@ -282,7 +293,7 @@ class BenchState:
             g1 = physics.reflection(self.mount_impedance("REFLECTION", f))
             c = self.scenario.open_line_capacitance
             return "reflect", (g1, physics.reflection(1 / (2j * np.pi * f * c)))
-        if self.closed is None:
+        if self.closed is None or self.cables == GAIN_PHASE_CABLES:
             c = self.scenario.open_line_capacitance
             g = physics.reflection(1 / (2j * np.pi * f * c))
             return "reflect", (g, g)

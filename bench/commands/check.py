@@ -9,22 +9,13 @@ from typing import Any
 import click
 
 from bench.errors import InputError
+from bench.procedure.estimate import duration as _duration
+from bench.procedure.estimate import estimate
 from bench.procedure.plan import SWEEP_STEPS, Plan, load_plan
 from bench.units import format_si
 
 # Keeps a number with its unit when a line is wrapped (textwrap breaks at spaces only).
 NBSP = "\u00a0"
-
-
-def _duration(seconds: float) -> str:
-    seconds = round(seconds)
-    hours, rest = divmod(seconds, 3600)
-    minutes, secs = divmod(rest, 60)
-    if hours:
-        return f"{hours} h {minutes:02d} min"
-    if minutes:
-        return f"{minutes} min {secs:02d} s"
-    return f"{secs} s"
 
 
 def _nominal_text(spec: Any) -> str:
@@ -165,7 +156,12 @@ def describe_plan(plan: Plan) -> str:
     )
     sweeps = sum(counts.get(k, 0) for k in SWEEP_STEPS)
     lines.append(f"  sweeps     {sweeps * s.averages}")
-    lines.append(f"  estimated  {_duration(plan.estimated_seconds())}")
+    guess = estimate(plan)
+    lines.append(f"  estimated  {_duration(guess.total)} with a person at the bench")
+    parts = guess.text().split(": ", 1)[1]
+    lines.append(
+        textwrap.fill(parts, width=100, initial_indent=" " * 13, subsequent_indent=" " * 13)
+    )
     return "\n".join(lines)
 
 

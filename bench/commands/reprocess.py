@@ -43,13 +43,15 @@ def write_outputs(root: Path, summary: Any) -> dict[str, Any]:
     """Fit JSON per sample, the exports and the report into ``root``; returns the paths."""
     from bench.exports import write_exports
     from bench.files import atomic_write_text
+    from bench.procedure.lot_family import family_record
     from bench.report import write_report
     from bench.runstore import file_stem
 
     root = Path(root)
     for sample in summary.samples:
         if sample.fit is not None:
-            text = json.dumps(sample.fit.to_json(), indent=2, default=str)
+            record = {**sample.fit.to_json(), **family_record(sample)}
+            text = json.dumps(record, indent=2, default=str)
             atomic_write_text(root / "models" / f"{file_stem(sample.label)}.fit.json", text)
     return {"exports": write_exports(root, summary), "report": write_report(root, summary)}
 

@@ -11,6 +11,7 @@ import contextlib
 import dataclasses
 import errno
 import shutil
+import time
 from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
@@ -123,11 +124,16 @@ def execute(
     seed: int | None = None,
     console: Any = None,
     quiet: bool = False,
+    manual: bool = False,
 ) -> Any:
-    """Run (or resume) ``plan`` into ``store``; returns the runner when it finished."""
+    """Run (or resume) ``plan`` into ``store``; returns the runner when it finished.
+
+    ``manual`` (with ``sim``): a rehearsal, the simulated hands act only when the person
+    at the console confirms each prompt (:class:`~bench.procedure.operators.RehearsalOperator`).
+    """
     from bench.procedure.display import PlainDisplay, RichDisplay
     from bench.procedure.instruments import open_instruments
-    from bench.procedure.operators import ConsoleOperator, ScriptedOperator
+    from bench.procedure.operators import ConsoleOperator, RehearsalOperator, ScriptedOperator
     from bench.procedure.runner import Runner
 
     display = PlainDisplay(click.echo) if quiet else RichDisplay(console)
@@ -142,13 +148,25 @@ def execute(
             # starts the simulator with it again, so its noise continues the run's.
             store.update(
                 "simulated",
-                {"scenario": sim, "time_scale": time_scale, "seed": bench.scenario.seed},
+                {
+                    "scenario": sim,
+                    "time_scale": time_scale,
+                    "seed": bench.scenario.seed,
+                    **({"manual": True} if manual else {}),
+                },
             )
             plan = with_resources(plan, bench.resources)
         instruments = stack.enter_context(open_instruments(plan, scripted=sim is not None))
         person = ConsoleOperator(guided=guided, ask=_ask, say=say)
-        if sim is not None:
-            operator: Any = ScriptedOperator(
+        if sim is not None and manual:
+            # A rehearsal: the person answers every prompt; the simulated hands act only
+            # on what was confirmed.
+            hands = ScriptedOperator(
+                instruments.bench, say=lambda text: say(f"  simulated hands: {text}")
+            )
+            operator: Any = RehearsalOperator(hands, guided=guided, ask=_ask, say=say)
+        elif sim is not None:
+            operator = ScriptedOperator(
                 instruments.bench,
                 guided=guided,
                 decide=person.after_sweep if guided else None,
@@ -157,7 +175,19 @@ def execute(
             )
         else:
             operator = person
-        runner = Runner(plan, store, instruments, operator, display, assume_yes=assume_yes)
+        scale = time_scale if sim is not None else 1.0
+        runner = Runner(
+            plan,
+            store,
+            instruments,
+            operator,
+            display,
+            assume_yes=assume_yes,
+            # On the simulated bench zbench's own waits (ramp dwell, settle, discharge)
+            # run on the bench's compressed clock, as the simulated part charges on it.
+            sleep=(lambda seconds: time.sleep(seconds * scale)),
+            time_scale=scale,
+        )
         runner.run()
         return runner
 
@@ -240,6 +270,12 @@ def finished_text(store: RunStore) -> str:
     is_flag=True,
     help="With --resume: go on although the run folder's procedure.yaml was changed.",
 )
+@click.option(
+    "--manual",
+    is_flag=True,
+    help="With --sim: rehearse a real session; you answer every prompt and the simulated "
+    "hands act only on what you confirm ('forget' at a prompt: they do nothing).",
+)
 @click.option("--quiet", is_flag=True, help="Plain lines instead of live progress.")
 def command(
     procedure: Path | None,
@@ -250,6 +286,7 @@ def command(
     time_scale: float | None,
     seed: int | None,
     accept_changed_plan: bool,
+    manual: bool,
     quiet: bool,
 ) -> None:
     """Run PROCEDURE on the instruments it names, or against the simulator with --sim."""
@@ -294,8 +331,20 @@ def command(
     try:
         if seed is not None and sim is None:
             raise InputError("--seed goes with --sim", hint="real instruments have no seed")
+        if manual and sim is None:
+            raise InputError(
+                "--manual goes with --sim",
+                hint="on real instruments every prompt is already yours to answer",
+            )
         execute(
-            plan, store, sim=sim, assume_yes=assume_yes, time_scale=scale, seed=seed, quiet=quiet
+            plan,
+            store,
+            sim=sim,
+            assume_yes=assume_yes,
+            time_scale=scale,
+            seed=seed,
+            quiet=quiet,
+            manual=manual,
         )
     except BaseException:
         if resume is None and never_started(store):

@@ -250,6 +250,33 @@ def through_response(raw_dut: ArrayLike, raw_thru: ArrayLike) -> ComplexArray:
     return out
 
 
+def _check_same_grid(ff: NDArray[np.float64], standards: RawStandards) -> None:
+    """Refuse standards measured on another frequency grid than the measurement."""
+    if ff.shape != standards.f.shape or not np.allclose(ff, standards.f, rtol=1e-12, atol=0):
+        raise ValueError(
+            "the measurement and the standards are on different frequency grids; "
+            "calibrate with the same sweep settings as the measurement"
+        )
+
+
+def _standard_models(
+    ff: NDArray[np.float64], ideals: Mapping[str, ArrayLike] | None, *, strict: bool
+) -> dict[str, ComplexArray]:
+    """The standards' own responses (nf, 2, 2) by name: ideal flush standards, replaced by
+    ``ideals`` where given. ``strict`` refuses a name that is no standard; otherwise the
+    names a calibration does not use are passed over."""
+    model = ideal_standards(ff)
+    for name, value in (ideals or {}).items():
+        if name not in model:
+            if strict:
+                raise ValueError(
+                    f"unknown standard {name!r}; use one of {', '.join(STANDARD_NAMES)}"
+                )
+            continue
+        model[name] = _as_two_port(f"ideal {name}", value, ff.size)
+    return model
+
+
 def _solt_calibration(
     f: ArrayLike,
     standards: RawStandards,
@@ -262,16 +289,8 @@ def _solt_calibration(
     missing = standards.missing("solt")
     if missing:
         raise ValueError(f"SOLT needs the raw {', '.join(missing)} standard(s); measure them")
-    if ff.shape != standards.f.shape or not np.allclose(ff, standards.f, rtol=1e-12, atol=0):
-        raise ValueError(
-            "the measurement and the standards are on different frequency grids; "
-            "calibrate with the same sweep settings as the measurement"
-        )
-    model = ideal_standards(ff)
-    for name, value in (ideals or {}).items():
-        if name not in model:
-            raise ValueError(f"unknown standard {name!r}; use one of {', '.join(STANDARD_NAMES)}")
-        model[name] = _as_two_port(f"ideal {name}", value, ff.size)
+    _check_same_grid(ff, standards)
+    model = _standard_models(ff, ideals, strict=True)
     measured = [_network(ff, getattr(standards, name), z0) for name in STANDARD_NAMES]
     ideal = [_network(ff, model[name], z0) for name in STANDARD_NAMES]
     kwargs: dict[str, Any] = {}
@@ -634,15 +653,8 @@ def one_port(
     missing = [n for n in names if getattr(standards, n) is None]
     if missing:
         raise ValueError(f"a one-port calibration needs the raw {', '.join(missing)} standard(s)")
-    if ff.shape != standards.f.shape or not np.allclose(ff, standards.f, rtol=1e-12, atol=0):
-        raise ValueError(
-            "the measurement and the standards are on different frequency grids; "
-            "calibrate with the same sweep settings as the measurement"
-        )
-    model = ideal_standards(ff)
-    for name, value in (ideals or {}).items():
-        if name in model:
-            model[name] = _as_two_port(f"ideal {name}", value, ff.size)
+    _check_same_grid(ff, standards)
+    model = _standard_models(ff, ideals, strict=False)
     measured = [_network(ff, getattr(standards, n)[:, :1, :1], z0) for n in names]
     ideal = [_network(ff, model[n][:, :1, :1], z0) for n in names]
     cal = OnePort(measured=measured, ideals=ideal)

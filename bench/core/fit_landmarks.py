@@ -19,6 +19,8 @@ from bench.core.landmarks import Landmarks, landmarks_for
 from bench.core.models.network import network_impedance
 from bench.units import format_si
 
+# The element holding an inductor's or bead's parallel (winding) capacitance, by family.
+PARALLEL_CAPACITANCE = ("Cp", "C")
 # Decades beyond the measured band over which the model's landmarks are still looked
 # for when the data cannot give them.
 LANDMARK_REACH = 2.0
@@ -40,6 +42,12 @@ def landmark_uncertainties(
         grads.append(moved)
     out: dict[str, float | None] = {}
     for key, value in marks.items():
+        if key == "c_par" and value is not None and kind == "inductor":
+            # The fitted element itself (model_landmarks): its own one-sigma error.
+            cp = next((n for n in PARALLEL_CAPACITANCE if n in trial.values), None)
+            i = names.index(cp) if cp is not None else None
+            out[key] = None if i is None else float(value * np.sqrt(max(cov[i, i], 0.0)))
+            continue
         if value is None or any(g.get(key) is None for g in grads):
             out[key] = None
             continue
@@ -136,14 +144,21 @@ def model_landmarks(kind: str, f: NDArray[np.float64], trial: Trial) -> Landmark
     """Landmarks of the fitted model: on the measured grid, and where the grid cannot
     give one, on a grid reaching :data:`LANDMARK_REACH` decades beyond it; a capacitance
     or inductance still missing is the model's low-frequency value (the slope of its
-    reactance far below the band)."""
+    reactance far below the band). An inductor's ``c_par`` is its fitted parallel
+    capacitance element (None when that element dropped out: the data do not see it)."""
     marks = landmarks_for(kind, f, network_impedance(trial.node, f, trial.values))
+    if kind == "inductor":
+        cp = next((n for n in PARALLEL_CAPACITANCE if n in trial.values), None)
+        marks["c_par"] = None if cp is None or cp in trial.dropped else trial.values[cp]
     if all(v is not None for v in marks.values()):
         return marks
     reach = 10**LANDMARK_REACH
     wide = np.geomspace(f[0] / reach, f[-1] * reach, 60 * int(2 * LANDMARK_REACH + 1) + f.size)
     more = landmarks_for(kind, wide, network_impedance(trial.node, wide, trial.values))
-    out = {key: (value if value is not None else more.get(key)) for key, value in marks.items()}
+    out = {
+        key: (value if value is not None or key == "c_par" else more.get(key))
+        for key, value in marks.items()
+    }
     f_low = np.array([f[0] / reach])
     z_low = network_impedance(trial.node, f_low, trial.values)[0]
     w_low = 2 * np.pi * float(f_low[0])

@@ -3,7 +3,11 @@
 Each family and order fitted is a :class:`Trial`. :func:`select` takes the one with the
 lowest Bayesian information criterion among those the data support: a trial with an
 element pinned at a bound of its range or not determined (one sigma above 100 %) has more
-elements than the data can tell apart and is passed over for a simpler one. No I/O.
+elements than the data can tell apart and is passed over for a simpler one. An element
+that drops out (pinned where it harmlessly vanishes, or not determined even on its own)
+is not counted: the trial is then the smaller circuit without it, and still supported
+when the family marks that element optional (a bead's winding capacitance above the
+measured band, say); a section that dropped out was not needed. No I/O.
 """
 
 from __future__ import annotations
@@ -26,7 +30,8 @@ UNDETERMINED = 1.0
 @dataclass(frozen=True)
 class Trial:
     """One family and order fitted: its elements (``values``, log values ``q``), χ², criterion,
-    rms log error, elements at a bound and each element's relative one-sigma uncertainty."""
+    rms log error, elements at a bound, each element's relative one-sigma uncertainty and
+    the elements that dropped out (``dropped``: not seen by the data)."""
 
     family: ModelFamily
     order: int
@@ -39,19 +44,93 @@ class Trial:
     at_bound: tuple[str, ...]
     pinned: tuple[str, ...] = ()
     rel_sigma: dict[str, float] = field(default_factory=dict)
+    dropped: tuple[str, ...] = ()
+
+    @property
+    def size(self) -> int:
+        """The number of elements the data see (those that dropped out not counted)."""
+        return self.q.size - len(self.dropped)
 
     @property
     def undetermined(self) -> tuple[str, ...]:
-        return tuple(n for n, s in self.rel_sigma.items() if not s <= UNDETERMINED)
+        return tuple(
+            n for n, s in self.rel_sigma.items() if not s <= UNDETERMINED and n not in self.dropped
+        )
 
     @property
     def supported(self) -> bool:
-        return not self.pinned and not self.undetermined
+        """No element strained at a bound of its range, none the data see undetermined,
+        and only elements the family marks optional dropped out (a section of the
+        order that dropped out was not needed)."""
+        return (
+            not self.at_bound
+            and not self.undetermined
+            and set(self.dropped) <= set(self.family.optional)
+        )
 
     @property
     def weakness(self) -> dict[str, float]:
         """Relative one-sigma uncertainty of each element, ``inf`` where it is pinned."""
         return {n: (math.inf if n in self.pinned else s) for n, s in self.rel_sigma.items()}
+
+
+def dropped_elements(
+    names: tuple[str, ...],
+    jm: NDArray[np.float64],
+    chi2: float,
+    pinned: tuple[str, ...],
+    at_bound: tuple[str, ...],
+) -> tuple[str, ...]:
+    """The elements that dropped out: pinned at a bound where they harmlessly vanish
+    (in ``pinned`` but not in ``at_bound``), or not determined even with every other
+    element held (their own column of the weighted Jacobian ``jm``, residuals by log
+    elements, gives a one-sigma error above :data:`UNDETERMINED` at the residual
+    variance χ²/(m − k)): the data do not see them."""
+    m, k = jm.shape
+    scale = chi2 / max(m - k, 1)
+    seen = np.sum(jm**2, axis=0)
+    return tuple(
+        n
+        for n, s in zip(names, seen, strict=True)
+        if (n in pinned and n not in at_bound) or not s * UNDETERMINED**2 > scale
+    )
+
+
+def covariance(
+    jm: NDArray[np.float64], chi2: float, names: tuple[str, ...], dropped: tuple[str, ...]
+) -> NDArray[np.float64]:
+    """Covariance of the log element values from the weighted Jacobian ``jm``, scaled by
+    the residual variance χ²/(m − k) (k the elements the data see). The elements the data
+    see are taken on their own, so one that dropped out (whose log value the data leave
+    free) does not spread its freedom into theirs; a dropped element keeps its own
+    variance, that of its own column with the others held (huge: the data leave it
+    free)."""
+    m = jm.shape[0]
+    keep = [i for i, n in enumerate(names) if n not in dropped]
+    scale = chi2 / max(m - len(keep), 1)
+    out = np.zeros((len(names), len(names)))
+    if keep:
+        out[np.ix_(keep, keep)] = _pseudo_inverse(jm[:, keep]) * scale
+    if len(keep) < len(names):
+        seen = np.sum(jm**2, axis=0)
+        for i, n in enumerate(names):
+            if n in dropped:
+                out[i, i] = scale / max(float(seen[i]), 1e-300)
+    return out
+
+
+def _pseudo_inverse(jm: NDArray[np.float64]) -> NDArray[np.float64]:
+    """Pseudo-inverse of the normal matrix ``jmᵀ·jm``: symmetric, so from its
+    eigen-decomposition (as ``numpy.linalg.pinv`` would give, cheaper)."""
+    k = jm.shape[1]
+    with np.errstate(all="ignore"):
+        normal = jm.T @ jm
+        if not np.all(np.isfinite(normal)):
+            return np.full((k, k), np.inf)
+        w, v = np.linalg.eigh(normal)
+        keep = np.abs(w) > 1e-15 * np.max(np.abs(w))
+        inv = np.where(keep, 1.0 / np.where(keep, w, 1.0), 0.0)
+        return (v * inv) @ v.T
 
 
 def lowest_bic(trials: list[Trial]) -> Trial:
@@ -61,10 +140,10 @@ def lowest_bic(trials: list[Trial]) -> Trial:
     more than :data:`BIC_MARGIN` ("strong" evidence on the usual BIC scale, common
     practice, no source); otherwise near-equal fits would pick redundant elements.
     """
-    ordered = sorted(trials, key=lambda t: (t.q.size, t.bic))
+    ordered = sorted(trials, key=lambda t: (t.size, t.bic, t.q.size))
     best = ordered[0]
     for trial in ordered[1:]:
-        margin = 0.0 if trial.q.size == best.q.size else BIC_MARGIN
+        margin = 0.0 if trial.size == best.size else BIC_MARGIN
         if trial.bic < best.bic - margin:
             best = trial
     return best
@@ -74,7 +153,7 @@ def select(trials: list[Trial], quality_bound: float) -> tuple[Trial, bool]:
     """The chosen trial: :func:`lowest_bic` among the trials the data support.
 
     A trial with an element pinned at a bound or not determined (see
-    :attr:`Candidate.supported`) has more elements than the data can tell apart, however
+    :attr:`Trial.supported`) has more elements than the data can tell apart, however
     low its criterion; the simplest trials (fewest elements) stay eligible whatever their
     state, as the base the others must improve on. Only when no eligible trial meets the
     quality bound is an unsupported one that meets it taken (its undetermined elements
@@ -83,6 +162,13 @@ def select(trials: list[Trial], quality_bound: float) -> tuple[Trial, bool]:
     fewest = min(t.q.size for t in trials)
     eligible = [t for t in trials if t.supported or t.q.size == fewest]
     best = lowest_bic(eligible)
+    if not best.supported:
+        # Nothing the data support beats the simplest, which they do not support either
+        # (its inductance beyond the measured band, say): then no trial is better
+        # founded than another, and the criterion decides among those not strained at a
+        # bound; the warnings name what is not determined.
+        unstrained = [t for t in trials if not t.at_bound]
+        best = lowest_bic(unstrained) if unstrained else best
     if best.rms <= quality_bound:
         return best, False
     good = [t for t in eligible if t.rms <= quality_bound]

@@ -52,7 +52,7 @@ from bench.core.fit_landmarks import (
     resonance_warnings,
 )
 from bench.core.fit_network import CompiledNetwork
-from bench.core.fit_select import Trial, select
+from bench.core.fit_select import Trial, covariance, dropped_elements, select
 from bench.core.landmarks import Landmarks, classify, landmarks_for
 from bench.core.model_registry import MODEL_NAMES, auto_candidates
 from bench.core.models import FAMILIES, ModelFamily
@@ -430,19 +430,15 @@ def _fit_order(
 
 def _make_trial(family, order, node, q, lo, hi, obj: _Objective) -> Trial:
     """The trial of ``family``/``order`` at log values ``q`` (fitted with the objective
-    ``obj``), with its criterion, the elements at a bound and the relative uncertainty
-    of every element."""
+    ``obj``), with its criterion, the elements at a bound, those the data do not see
+    (:func:`fit_select.dropped_elements`) and the relative uncertainty of every element."""
     names = family.element_names(order)
     m = 2 * obj.n
-    k = len(names)
     values = dict(zip(names, (float(v) for v in np.exp(q)), strict=True))
     with np.errstate(all="ignore"):
         r = obj.residuals(q)
         chi2 = float(r @ r)
         err = np.hypot(r[: obj.n], r[obj.n :]) / obj.weight
-    # Known-variance form: the weights are the points' uncertainties (with the model-error
-    # floor), so χ² is on an absolute scale and each element must lower it by ln(m).
-    bic = chi2 + k * math.log(m)
     vanish = vanishing_sides(node)
     at_bound = tuple(
         n
@@ -450,18 +446,37 @@ def _make_trial(family, order, node, q, lo, hi, obj: _Objective) -> Trial:
         if (qi - a < PINNED_LOG and "low" not in vanish[n])
         or (b - qi < PINNED_LOG and "high" not in vanish[n])
     )
-    # Pinned at any bound, also where the element harmlessly drops out: a section that
-    # drops out was not needed, so this order is not supported by the data.
+    # Pinned at any bound, also where the element harmlessly drops out.
     pinned = tuple(
         n
         for n, qi, a, b in zip(names, q, lo, hi, strict=True)
         if qi - a < PINNED_LOG or b - qi < PINNED_LOG
     )
-    cov = _covariance(obj, q, chi2)
+    with np.errstate(all="ignore"):
+        jm = obj.jacobian(q)
+    dropped = dropped_elements(names, jm, chi2, pinned, at_bound)
+    # Known-variance form: the weights are the points' uncertainties (with the model-error
+    # floor), so χ² is on an absolute scale and each element the data see must lower it
+    # by ln(m); an element that dropped out is not counted (the circuit is the smaller one).
+    bic = chi2 + (len(names) - len(dropped)) * math.log(m)
+    cov = covariance(jm, chi2, names, dropped)
     sigma_log = np.sqrt(np.clip(np.diag(cov), 0.0, None))
     rel = {n: float(s) for n, s in zip(names, sigma_log, strict=True)}
     rms = float(np.sqrt(np.mean(err**2)))
-    return Trial(family, order, node, values, q, chi2, bic, rms, at_bound, pinned, rel_sigma=rel)
+    return Trial(
+        family,
+        order,
+        node,
+        values,
+        q,
+        chi2,
+        bic,
+        rms,
+        at_bound,
+        pinned,
+        rel_sigma=rel,
+        dropped=dropped,
+    )
 
 
 class _SoftL1:
@@ -518,20 +533,13 @@ def _robust_refine(trial: Trial, f, z, weight, landmarks: Landmarks) -> Trial:
     return refined
 
 
-def _covariance(obj: _Objective, q: NDArray[np.float64], chi2: float) -> NDArray[np.float64]:
-    """Covariance of the log element values, from the Jacobian at ``q``, scaled by the
-    residual variance χ²/(m − k). The normal matrix is symmetric, so its pseudo-inverse
-    comes from its eigen-decomposition (as ``numpy.linalg.pinv`` would give, cheaper)."""
+def _covariance(obj: _Objective, trial: Trial) -> NDArray[np.float64]:
+    """Covariance of the log element values of ``trial``, from the Jacobian at its
+    solution, scaled by the residual variance χ²/(m − k) (:func:`fit_select.covariance`)."""
     with np.errstate(all="ignore"):
-        rows = obj.jacobian_rows(q)
-        k, m = rows.shape
-        normal = rows @ rows.T
-        if not np.all(np.isfinite(normal)):
-            return np.full((k, k), np.inf)
-        w, v = np.linalg.eigh(normal)
-        keep = np.abs(w) > 1e-15 * np.max(np.abs(w))
-        inv = np.where(keep, 1.0 / np.where(keep, w, 1.0), 0.0)
-        return (v * inv) @ v.T * (chi2 / max(m - k, 1))
+        jm = obj.jacobian(trial.q)
+    names = trial.family.element_names(trial.order)
+    return covariance(jm, trial.chi2, names, trial.dropped)
 
 
 def _uncertainties(trial: Trial, cov: NDArray[np.float64]) -> dict[str, float]:
@@ -829,7 +837,7 @@ def fit_impedance(
     zm = network_impedance(best.node, fu, best.values)
     err = np.abs(log_ratio(zm, zu))
     u = u_all[used]
-    k = best.q.size
+    k = best.size
     quality = FitQuality(
         rms_log_error=float(np.sqrt(np.mean(err**2))),
         max_abs_log_error=float(np.max(err)),
@@ -849,6 +857,16 @@ def fit_impedance(
             f"elements {', '.join(best.at_bound)} ended at the edge of their allowed range; "
             "the data may not determine them"
         )
+    # Elements that dropped out: a resistor of an optional part is simply absent, a
+    # capacitor or inductor the data cannot see leaves its landmarks to a placeholder.
+    unseen = [n for n in best.dropped if n not in best.family.optional or n[0] in "LC"]
+    if unseen:
+        warnings.append(
+            f"elements {', '.join(unseen)} are not seen by the data (not determined even "
+            "with every other element held: they dropped out of the fit); their values "
+            "are placeholders"
+            + ("; no model with fewer elements met the quality bound" if unsupported else "")
+        )
     loose = [n for n in best.undetermined if n not in best.at_bound]
     if loose:
         warnings.append(
@@ -861,7 +879,7 @@ def fit_impedance(
             f"rms log error {quality.rms_log_error:.3g} exceeds the quality bound "
             f"{quality_bound:.3g}; try another model or check the measurement"
         )
-    cov = _covariance(_Objective(best.node, fs, zs, ws), best.q, best.chi2)
+    cov = _covariance(_Objective(best.node, fs, zs, ws), best)
     return FitResult(
         model=best.family.name,
         kind=kind,

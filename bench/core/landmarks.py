@@ -275,7 +275,9 @@ def capacitor_landmarks(f: Any, z: Any, valid: Any = None) -> Landmarks:
 
 def inductor_landmarks(f: Any, z: Any, valid: Any = None) -> Landmarks:
     """Landmarks of an inductor or bead: ``l_low`` (H), ``r_dc`` (Ω), ``srf`` (Hz, parallel
-    resonance), ``z_at_srf`` (Ω, magnitude) and ``c_par`` (F, from ``srf`` and ``l_low``).
+    resonance), ``z_at_srf`` (Ω, magnitude) and ``c_par`` (F, from the capacitive slope of
+    the points well above the resonance, :func:`_capacitive_slope`; None where the sweep
+    stops short of that).
 
     ``f`` in Hz, ``z`` complex Ω, ``valid`` an optional bool mask of points inside the
     measurable window.
@@ -318,9 +320,38 @@ def inductor_landmarks(f: Any, z: Any, valid: Any = None) -> Landmarks:
         # there, unlike |Z| at a sharp peak, so it is the one interpolated.
         conductance = _value_at(f, (1.0 / z).real, srf)
         out["z_at_srf"] = float(1.0 / conductance) if conductance and conductance > 0 else None
-        if out["l_low"] is not None:
-            out["c_par"] = 1.0 / ((2 * np.pi * srf) ** 2 * out["l_low"])
+        out["c_par"] = _capacitive_slope(w, z, srf, out["l_low"])
     return out
+
+
+# The parallel capacitance is read where the points lie at least this factor above the
+# parallel resonance: there the winding capacitance carries most of the susceptance.
+C_PAR_ABOVE_SRF = 3.0
+
+
+def _capacitive_slope(w, z, srf: float, l_low: float | None) -> float | None:
+    """Parallel capacitance (F) from the capacitive slope of the points above the SRF.
+
+    Over the top third of a decade of the points at least :data:`C_PAR_ABOVE_SRF` times
+    above ``srf`` and capacitive, the median of ``Im(1/Z)/ω + 1/(ω²·l_low)``: the
+    susceptance per radian of the capacitance, with the inductance's own ``−1/(ωL)``
+    put back [derived]. Not from ``srf`` and ``l_low`` (``1/((2π·srf)²·L)``): a
+    dispersive ferrite's inductance has fallen well below ``l_low`` by its resonance,
+    which that formula would read as a smaller capacitance. None where the points do
+    not reach far enough above the resonance.
+    """
+    b = (1.0 / z).imag
+    above = (w >= 2 * np.pi * srf * C_PAR_ABOVE_SRF) & (b > 0)
+    if np.count_nonzero(above) < 3:
+        return None
+    top = above & (w >= w[above][-1] / 10 ** (1 / 3))
+    if np.count_nonzero(top) < 3:
+        top = above & (w >= np.sort(w[above])[-3])
+    c = b[top] / w[top]
+    if l_low is not None and l_low > 0:
+        c = c + 1.0 / (w[top] ** 2 * l_low)
+    value = float(np.median(c))
+    return value if value > 0 else None
 
 
 def landmarks_for(kind: str, f: Any, z: Any, valid: Any = None) -> Landmarks:

@@ -1,11 +1,13 @@
 """The operator: whoever does what the instruments cannot (connect a standard, place a part).
 
-One interface, two implementations, one runner code path:
+One interface, one runner code path:
 
 - :class:`ConsoleOperator`: a person at the bench, prompted in plain words. In a guided
   session they also decide after each sweep (repeat it, skip the part, or stop).
 - :class:`ScriptedOperator`: the hands of the simulated bench, through its bench-control
   port (:class:`drivers.bench_control.BenchControl`); decisions come from a script.
+- :class:`RehearsalOperator`: a rehearsal on the simulated bench: a person answers the
+  console's prompts, and the simulated hands do each action once the person confirms it.
 
 Answers after a sweep are one of :data:`DECISIONS`.
 """
@@ -44,6 +46,10 @@ MOUNT_WORDS = {
 }
 
 
+#: The gain-phase analyser's set-up on the fixture, in the operator's words.
+GAIN_PHASE_WORDS = "the gain-phase analyser"
+
+
 class OperatorStop(Exception):  # noqa: N818 (a request, not a failure)
     """The operator chose to stop; the run stays resumable."""
 
@@ -55,6 +61,8 @@ class Operator(ABC):
     guided: bool = False
     #: Whether a person answers at the console (the live display pauses for prompts).
     interactive: bool = False
+    #: Whether a person's hands do the physical actions (the estimate allows them time).
+    person: bool = True
 
     @abstractmethod
     def fit_resistors(self, ohms: float) -> None:
@@ -94,6 +102,11 @@ class Operator(ABC):
         strap (``"strap"``), or fit a sample (a :class:`Placement`)."""
         raise NotImplementedError(f"{type(self).__name__} cannot fill {MOUNT_WORDS[method]}")
 
+    def connect_gain_phase(self) -> None:
+        """Move the fixture from the network analyser's cables to the gain-phase analyser;
+        the next cable action (:meth:`connect_fixture`, ...) moves it back."""
+        raise NotImplementedError(f"{type(self).__name__} cannot connect {GAIN_PHASE_WORDS}")
+
     @abstractmethod
     def caution(self, text: str) -> None:
         """Show a caution; return when it is acknowledged, raise :class:`OperatorStop` if not."""
@@ -116,6 +129,8 @@ class ScriptedOperator(Operator):
     ``decisions`` answers :meth:`after_sweep` in turn (then ``continue``); a callable
     ``decide(label, result)`` may be given instead, e.g. to ask a person at a console.
     """
+
+    person = False
 
     def __init__(
         self,
@@ -180,6 +195,10 @@ class ScriptedOperator(Operator):
         self.bench.connect_mount(method)
         self._did(f"cables: on {MOUNT_WORDS[method]}")
 
+    def connect_gain_phase(self) -> None:
+        self.bench.connect_gain_phase()
+        self._did(f"fixture: on {GAIN_PHASE_WORDS}")
+
     def fill_mount(self, method: str, item: str | Placement) -> None:
         if isinstance(item, Placement):
             self.bench.mount(method, f"{item.part}/{item.sample}")
@@ -224,6 +243,7 @@ class ConsoleOperator(Operator):
         self._ask = ask or input
         self._say = say or print
         self._pending: list[str] = []
+        self._gain_phase_on = False
 
     def confirm(self, question: str) -> bool:
         answer = self._ask(f"{question} [Y/n] ").strip().lower()
@@ -234,14 +254,21 @@ class ConsoleOperator(Operator):
         # asks for them once, up front.
         self._pending.append(text)
 
+    #: The answer asked for after each physical action.
+    ACTION_PROMPT = "  press Enter when done, or type 'stop': "
+
     def _action(self, text: str) -> None:
         if self._pending:
             text = "\n".join(["Before the run:", *(f"  - {t}" for t in self._pending), text])
             self._pending = []
         self._say(text)
-        answer = self._ask("  press Enter when done, or type 'stop': ").strip().lower()
+        answer = self._ask(self.ACTION_PROMPT).strip().lower()
         if answer in ("stop", "q", "quit"):
             raise OperatorStop("stopped by the operator")
+        self._done(answer)
+
+    def _done(self, answer: str) -> None:
+        """The person confirmed the action just asked (a rehearsal's hands act here)."""
 
     def fit_resistors(self, ohms: float) -> None:
         if ohms:
@@ -255,14 +282,30 @@ class ConsoleOperator(Operator):
         else:
             self._later("remove the isolation transformer from port 2 (cable connected directly)")
 
+    def _cables(self, text: str) -> None:
+        """A cable action; after the gain-phase analyser, it comes off the fixture first."""
+        if self._gain_phase_on:
+            text = "Disconnect the gain-phase analyser from the fixture. " + text
+            self._gain_phase_on = False
+        self._action(text)
+
     def connect_standard(self, standard: str) -> None:
         if standard == "through":
-            self._action("Join the two cable ends with the THROUGH adapter.")
+            self._cables("Join the two cable ends with the THROUGH adapter.")
         else:
-            self._action(f"Connect {STANDARD_WORDS[standard]}.")
+            self._cables(f"Connect {STANDARD_WORDS[standard]}.")
 
     def connect_fixture(self) -> None:
-        self._action("Connect both cables to the fixture.")
+        self._cables("Connect both network-analyser cables to the fixture.")
+
+    def connect_gain_phase(self) -> None:
+        self._action(
+            "Disconnect the network analyser's cables from the fixture and connect the "
+            "GAIN-PHASE ANALYSER to it: its source through the reference resistor to the "
+            "fixture (receiver A on the source side of the resistor), receiver B across the "
+            "fixture. The fixture switch still selects the position."
+        )
+        self._gain_phase_on = True
 
     def strap_mounts(self, positions: Sequence[int]) -> None:
         self._action(f"Fit the shorting {_positions(positions, mount=True)}.")
@@ -281,12 +324,12 @@ class ConsoleOperator(Operator):
 
     def connect_mount(self, method: str) -> None:
         if method == "reflection":
-            self._action(
+            self._cables(
                 "Connect the port-1 cable to the REFLECTION mount; leave the port-2 cable "
                 "unconnected."
             )
         else:
-            self._action(
+            self._cables(
                 "Connect both cables to the SERIES-THROUGH mount (the part sits in series "
                 "between them)."
             )
@@ -337,3 +380,69 @@ class ConsoleOperator(Operator):
 
     def advise(self, text: str) -> None:
         self._say(text)
+
+
+#: Rehearsal answers that confirm a prompt while the simulated hands do nothing.
+FORGET = ("forget", "f")
+
+
+class RehearsalOperator(ConsoleOperator):
+    """A rehearsal on the simulated bench (``zbench run --sim --manual``): the person at
+    the terminal answers every prompt as at a real bench, and the simulated ``hands``
+    (a :class:`ScriptedOperator`) carry out what the prompt asked only once the person
+    confirms it. Answering ``forget`` confirms without the hands acting, as an operator
+    who presses Enter without having done it: the run meets the bench as it was.
+    Set-up actions asked before the run (resistors, transformer) are always carried out
+    with the prompt they were asked with; ``forget`` leaves out that prompt's own action.
+    """
+
+    ACTION_PROMPT = (
+        "  press Enter when done, or type 'stop' (rehearsal: 'forget' leaves the simulated "
+        "bench as it is): "
+    )
+
+    def __init__(self, hands: ScriptedOperator, **kwargs: Any):
+        super().__init__(**kwargs)
+        self.hands = hands
+        self._setup: list[Callable[[], None]] = []
+        self._act: Callable[[], None] | None = None
+
+    def _done(self, answer: str) -> None:
+        setup, self._setup = self._setup, []
+        act, self._act = self._act, None
+        for do in setup:
+            do()
+        if answer in FORGET:
+            self._say("  (rehearsal: the simulated hands did nothing)")
+        elif act is not None:
+            act()
+
+
+#: The operator's answers and notices; every other public method of :class:`Operator` is
+#: a physical action, which a rehearsal's hands carry out once the person confirms it.
+NOT_ACTIONS = ("caution", "after_sweep", "advise", "confirm")
+#: Set-up actions asked together with the next prompt (always carried out with it).
+SETUP_ACTIONS = ("fit_resistors", "fit_transformer")
+PHYSICAL_ACTIONS = tuple(
+    name
+    for name, value in vars(Operator).items()
+    if callable(value) and not name.startswith("_") and name not in NOT_ACTIONS
+)
+
+
+def _rehearsed(name: str) -> Callable[..., None]:
+    def action(self: RehearsalOperator, *args: Any) -> None:
+        act = lambda: getattr(self.hands, name)(*args)  # noqa: E731
+        if name in SETUP_ACTIONS:
+            self._setup.append(act)
+        else:
+            self._act = act
+        getattr(ConsoleOperator, name)(self, *args)
+
+    action.__name__ = name
+    action.__doc__ = getattr(Operator, name).__doc__
+    return action
+
+
+for _name in PHYSICAL_ACTIONS:
+    setattr(RehearsalOperator, _name, _rehearsed(_name))

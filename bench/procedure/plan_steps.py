@@ -3,7 +3,6 @@ stored in the run manifest, and the rough duration of the whole."""
 
 from __future__ import annotations
 
-import math
 from dataclasses import asdict
 from typing import Any
 
@@ -12,7 +11,6 @@ from bench.procedure.plan_types import (
     GAIN_PHASE,
     SHUNT,
     SINGLE_MOUNT_METHODS,
-    SWEEP_STEPS,
     PartPlan,
     Placement,
     Plan,
@@ -71,10 +69,10 @@ def steps(plan: Plan) -> tuple[Step, ...]:
                     )
     if "measure" in names:
         for batch in plan.batches:
+            # The batch's gain-phase sweeps first, each sample where it sits, then the
+            # network analyser's: the fixture moves between the two once per batch.
             for placement in batch:
-                part = plan.part(placement.part)
-                if GAIN_PHASE in part.methods:
-                    # Swept where it sits, before the network analyser's sweeps.
+                if GAIN_PHASE in plan.part(placement.part).methods:
                     steps.append(
                         Step(
                             id=f"measure/{placement.part}/{placement.sample}/{GAIN_PHASE}",
@@ -84,6 +82,8 @@ def steps(plan: Plan) -> tuple[Step, ...]:
                             method=GAIN_PHASE,
                         )
                     )
+            for placement in batch:
+                part = plan.part(placement.part)
                 if SHUNT not in part.methods:
                     continue
                 for volts in part.bias:
@@ -151,24 +151,9 @@ def resolved(plan: Plan) -> dict[str, Any]:
 
 
 def estimated_seconds(plan: Plan) -> float:
-    """Rough duration of the whole plan (s), for ``zbench check`` and progress bars."""
-    sweep = plan.sweep.sweep_seconds() * plan.sweep.averages
-    total = 0.0
-    handling = 20.0 if plan.mode == "guided" else 0.0  # a person's hands per action
-    for step in plan.steps:
-        if step.kind in SWEEP_STEPS:
-            if step.method == GAIN_PHASE and plan.gain_phase is not None:
-                total += plan.gain_phase.sweep_seconds() * plan.sweep.averages + 0.2
-            else:
-                total += sweep + 0.2
-            if step.kind == "calibrate" or plan.mode == "guided":
-                total += handling
-            if step.bias_v:
-                ramp = math.ceil(abs(step.bias_v) / plan.bias.ramp_step) * plan.bias.ramp_dwell_s
-                total += 2 * ramp + plan.bias.settle_s + plan.bias.discharge_s
-        elif step.kind == "fit":
-            total += 0.3 * sum(len(p.samples) * len(p.bias) for p in plan.parts)
-        else:
-            total += 1.0
-    total += handling * len(plan.batches)
-    return total
+    """Duration of the whole plan (s) with a person at the bench, by the model of
+    :mod:`bench.procedure.estimate` (the runner refines it with the analyser's own sweep
+    time)."""
+    from bench.procedure.estimate import estimate
+
+    return estimate(plan).total

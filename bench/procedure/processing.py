@@ -198,6 +198,14 @@ def build_summary(
             )
             for sample, (result, error) in zip(samples, fits, strict=True)
         ]
+        # One family per lot: samples of an `auto` part refitted with the lot's family.
+        from bench.procedure.lot_family import one_family_per_lot
+
+        samples = one_family_per_lot(
+            samples,
+            [task for _, task in unfitted],
+            lambda tasks: ordered_map(_fit_task, tasks, jobs),
+        )
     loop_info = {
         str(pos): {
             "detected": r.detected,

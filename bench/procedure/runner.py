@@ -25,6 +25,7 @@ from typing import Any
 
 from bench.errors import BiasNotConfirmedOffError, RunError, RunFolderError, SafetyError
 from bench.procedure.display import PlainDisplay
+from bench.procedure.estimate import BENCH_KINDS, Estimate, duration, estimate
 from bench.procedure.operators import Operator, OperatorStop
 from bench.procedure.plan import SWEEP_STEPS, Plan, Step
 from bench.procedure.steps import STEPS, RunContext, bias
@@ -70,6 +71,7 @@ class Runner:
         *,
         assume_yes: bool = False,
         sleep: Callable[[float], None] = time.sleep,
+        time_scale: float = 1.0,
     ):
         self.ctx = RunContext(
             plan=plan,
@@ -85,6 +87,11 @@ class Runner:
         self.display = self.ctx.display
         #: Wall time per step id, s (benchmarks read it).
         self.step_seconds: dict[str, float] = {}
+        #: The simulated bench's clock compression (1 on real instruments): the
+        #: estimate's instrument times are scaled by it.
+        self.time_scale = time_scale
+        #: The estimate of this session's pending steps (set once the instruments answer).
+        self.estimate: Estimate | None = None
 
     @property
     def summary(self) -> RunSummary | None:
@@ -111,6 +118,7 @@ class Runner:
         store, plan, ctx = self.store, self.plan, self.ctx
         pending = [s for s in plan.steps if store.step_state(s.id) not in (DONE, SKIPPED)]
         current: Step | None = None
+        started = time.perf_counter()
         try:
             store.begin_session("resume" if store.manifest["sessions"] else "start")
             store.log(f"session start, plan {plan.name}, first step {store.first_incomplete()}")
@@ -124,7 +132,10 @@ class Runner:
                 for s in plan.steps
                 if s.kind in SWEEP_STEPS and store.step_state(s.id) not in (DONE, SKIPPED)
             )
-            self.display.start(sweeps * plan.sweep.averages, plan.estimated_seconds())
+            self.estimate = self._estimate()
+            self.display.start(sweeps * plan.sweep.averages, self.estimate.total)
+            self.display.message(self.estimate.text())
+            self._record_timing(None)
             for step in plan.steps:
                 if store.step_state(step.id) in (DONE, SKIPPED):
                     continue
@@ -164,10 +175,81 @@ class Runner:
             raise
         finally:
             unconfirmed = bias.bias_off(ctx)
+            self._took(time.perf_counter() - started)
             self.display.stop()
             if unconfirmed is not None:
                 # Its own exit status (4): the part may still be charged.
                 raise BiasNotConfirmedOffError(self._resume_text(unconfirmed))
+
+    def _estimate(self) -> Estimate:
+        """The pending steps' duration, with the analysers' own sweep times (as read at
+        the start, in the manifest's ``instruments``) where they report them."""
+        store, plan, ctx = self.store, self.plan, self.ctx
+        pending = [s for s in plan.steps if store.step_state(s.id) not in (DONE, SKIPPED)]
+        reported = store.manifest.get("instruments") or {}
+
+        def sweep_time(role: str) -> float | None:
+            value = (reported.get(role) or {}).get("sweep_time_s")
+            return float(value) if isinstance(value, (int, float)) and value > 0 else None
+
+        return estimate(
+            plan,
+            pending,
+            sweep_s=sweep_time("analyzer"),
+            gain_phase_sweep_s=sweep_time("gain_phase"),
+            time_scale=self.time_scale,
+            person=getattr(ctx.operator, "person", True),
+            guided=ctx.operator.guided,
+            caution=plan.biased and not ctx.assume_yes and any(s.bias_v for s in pending),
+        )
+
+    def measured(self, total: float) -> dict[str, float]:
+        """This session's real duration (s): the swept steps less the time with the
+        operator (the instruments' part), the operator's, processing, and the total."""
+        kinds = {s.id: s.kind for s in self.plan.steps}
+        bench_s = sum(t for sid, t in self.step_seconds.items() if kinds[sid] in BENCH_KINDS)
+        operator = self.ctx.operator_seconds
+        processing = sum(self.step_seconds.values()) - bench_s
+        return {
+            "instruments": round(max(bench_s - operator, 0.0), 3),
+            "operator": round(operator, 3),
+            "processing": round(processing, 3),
+            "total": round(total, 3),
+        }
+
+    def _record_timing(self, measured: dict[str, float] | None) -> None:
+        """This session's entry in the manifest's ``timing``: the estimate, and once the
+        session ends what it really took."""
+        if self.estimate is None:
+            return
+        timing = list(self.store.manifest.get("timing", []))
+        entry = {
+            "session": len(self.store.manifest["sessions"]),
+            "time_scale": self.time_scale,
+            "estimated": self.estimate.record(),
+        }
+        if measured is not None:
+            entry["measured"] = measured
+        if timing and timing[-1].get("session") == entry["session"]:
+            timing[-1] = entry
+        else:
+            timing.append(entry)
+        self.store.update("timing", timing)
+
+    def _took(self, total: float) -> None:
+        """Say and record how long the session took beside the estimate."""
+        if self.estimate is None:
+            return
+        took = self.measured(total)
+        est = self.estimate
+        self.display.message(
+            f"took {duration(took['total'])} (estimated {duration(est.total)}): instruments "
+            f"{duration(took['instruments'])} (estimated {duration(est.instruments)}), "
+            f"operator {duration(took['operator'])} (estimated {duration(est.operator)}), "
+            f"fit and report {duration(took['processing'])}"
+        )
+        with contextlib.suppress(OSError):  # a full disk must not hide why the run stopped
+            self._record_timing(took)
 
     def _resume_text(self, reason: str) -> str:
         return (

@@ -2,10 +2,12 @@
 
 Nodes (DEVELOPERS.md, bench-control table; FAULt nodes in the simulator's README):
 
-- ``OPERator:CABLes STANdard,SHORt|OPEN|LOAD``, ``THRough``, ``FIXTure``, ``SERies`` (both
-  cables on the series-through mount), ``REFLection`` (the port-1 cable on the reflection
-  mount, the port-2 cable left open); ``OPERator:CABLes?`` answers ``STAN,SHOR``,
-  ``STAN,OPEN``, ``STAN,LOAD``, ``THR``, ``FIXT``, ``SER`` or ``REFL``;
+- ``OPERator:CABLes STANdard,SHORt|OPEN|LOAD``, ``THRough``, ``FIXTure``, ``SERies``
+  (both cables on the series-through mount), ``REFLection`` (the port-1 cable on the
+  reflection mount, the port-2 cable left open), ``GAINphase`` (the network analyser's
+  cables off the fixture, left open, and the gain-phase analyser on it);
+  ``OPERator:CABLes?`` answers ``STAN,SHOR``, ``STAN,OPEN``, ``STAN,LOAD``, ``THR``,
+  ``FIXT``, ``SER``, ``REFL`` or ``GAIN``;
 - ``OPERator:MOUNt SERies|REFLection,GAP|STRAp|"<part>/<sample>"``: leave the mount empty
   (the series mount's empty gap, the reflection mount's open; ``EMPTy`` and ``OPEN`` are
   read too), fit its zero-ohm strap (``SHORt`` read too), or mount a part;
@@ -50,6 +52,7 @@ _CABLE_ANSWERS = {
     "FIXTURE": "FIXT",
     "SERIES": "SER",
     "REFLECTION": "REFL",
+    "GAINPHASE": "GAIN",
 }
 
 
@@ -60,6 +63,15 @@ def parse_instrument(text: str) -> str:
         return "dc_source"
     long = parse_choice(word, ("ANALyzer", "SWITch", "DCSource", "BENCh"), name="instrument")
     return _INSTRUMENT_WORDS[long]
+
+
+def _item_answer(item: str, short: str, empty: str) -> str:
+    """What a mount holds, as a query answers it: ``short``, ``empty`` or the quoted part."""
+    if item == SHORT:
+        return short
+    if item == EMPTY:
+        return empty
+    return f'"{item}"'
 
 
 class BenchControl(Instrument):
@@ -79,6 +91,15 @@ class BenchControl(Instrument):
         n = self.state.scenario.positions
         return parse_integer(text, minimum=1, maximum=n, name="position")
 
+    def part(self, name: str) -> str:
+        """``name`` if it is a ``part/sample`` of the scenario, else ``-224``."""
+        st = self.state
+        if name not in st.scenario.parts:
+            raise ScpiError(
+                -224, f"no part {name[:40]!r} in scenario {st.scenario.name}; see OPERator:PARTs?"
+            )
+        return name
+
     def build(self, tree: CommandTree) -> None:
         st = self.state
 
@@ -86,7 +107,9 @@ class BenchControl(Instrument):
             if not p:
                 raise ScpiError(-109, "cables")
             what = parse_choice(
-                p[0], ("STANdard", "THRough", "FIXTure", "SERies", "REFLection"), name="cables"
+                p[0],
+                ("STANdard", "THRough", "FIXTure", "SERies", "REFLection", "GAINphase"),
+                name="cables",
             )
             if what == "STANDARD":
                 if len(p) != 2:
@@ -118,20 +141,11 @@ class BenchControl(Instrument):
                     item = EMPTY
                 else:
                     item = text
-            if item not in (SHORT, EMPTY) and item not in st.scenario.parts:
-                raise ScpiError(
-                    -224,
-                    f"no part {item[:40]!r} in scenario {st.scenario.name}; see OPERator:PARTs?",
-                )
-            st.place(pos, item)
+            st.place(pos, item if item in (SHORT, EMPTY) else self.part(item))
 
         def placed(s: Session, p: list[str]) -> str:
             item = st.placements[self.position(one(p, "position"))]
-            if item == SHORT:
-                return "SHOR"
-            if item == EMPTY:
-                return "EMPT"
-            return f'"{item}"'
+            return _item_answer(item, "SHOR", "EMPT")
 
         tree.add("OPERator:PLACe", set=place, query=placed)
 
@@ -144,25 +158,14 @@ class BenchControl(Instrument):
             which = which_mount(p[0])
             text = p[1].strip()
             if text[:1] in "\"'":
-                item = parse_string(text, name="part")
-                if item not in st.scenario.parts:
-                    raise ScpiError(
-                        -224,
-                        f"no part {item[:40]!r} in scenario {st.scenario.name}; "
-                        "see OPERator:PARTs?",
-                    )
+                item = self.part(parse_string(text, name="part"))
             else:
                 word = parse_choice(text, ("GAP", "STRAp", "EMPTy", "OPEN", "SHORt"), name="item")
                 item = SHORT if word in ("STRAP", "SHORT") else EMPTY
             st.mount(which, item)
 
         def mounted(s: Session, p: list[str]) -> str:
-            item = st.mounted[which_mount(one(p, "mount"))]
-            if item == SHORT:
-                return "STRA"
-            if item == EMPTY:
-                return "GAP"
-            return f'"{item}"'
+            return _item_answer(st.mounted[which_mount(one(p, "mount"))], "STRA", "GAP")
 
         tree.add("OPERator:MOUNt", set=mount, query=mounted)
 

@@ -4,11 +4,13 @@ It returns the ratio of its two receivers, B/A, not a calibrated S21. Its set-up
 bench (scenario key ``gain_phase``): the source (EMF set by ``OUTPut:LEVel`` in dBm into
 a matched load, source impedance ``source_impedance``) drives receiver A's node; a
 reference resistor ``reference_resistor`` joins that node to the fixture position the
-switch has selected; receiver B sits across the position, its input impedance
-(``input_resistance`` ‖ ``input_capacitance``) in parallel with the part. Its inputs are
-isolated, so the cable shields' ground loop is not in its path. Each receiver adds its
-own noise (``receiver_floor``, volts RMS at a 1 kHz bandwidth, scaling with √bandwidth);
-the ratio of the noisy voltages is what it reports. A command tree of our own:
+switch has selected, once the hands have moved the fixture to it (``OPERator:CABLes
+GAINphase``; in any other cable state it sees an open); receiver B sits across the
+position, its input impedance (``input_resistance`` ‖ ``input_capacitance``) in parallel
+with the part. Its inputs are isolated, so the cable shields' ground loop is not in its
+path. Each receiver adds its own noise (``receiver_floor``, volts RMS at a 1 kHz
+bandwidth, scaling with √bandwidth); the ratio of the noisy voltages is what it reports.
+A command tree of our own:
 
 ``SWEep:STARt|STOP|POINts|MODE LINear|LOGarithmic|DURation?|RUN``,
 ``RECeiver:BANDwidth``, ``RECeiver:CORRection ON|OFF`` (kept, has no effect here),
@@ -39,7 +41,7 @@ from simulated_instruments.scpi import (
     format_number,
     parse_choice,
 )
-from simulated_instruments.state import BenchState
+from simulated_instruments.state import GAIN_PHASE_CABLES, BenchState
 
 REFERENCE_BANDWIDTH = 1e3
 
@@ -86,8 +88,8 @@ class GainPhaseAnalyzer(Instrument):
         s, state = self.spec, self.state
         with state.lock:
             pos = state.closed
-            if state.cables != "FIXTURE" or pos is None:
-                z = np.full(f.shape, 1e12 + 0j)  # nothing connected: an open
+            if state.cables != GAIN_PHASE_CABLES or pos is None:
+                z = np.full(f.shape, 1e12 + 0j)  # not connected to the fixture: an open
             else:
                 bias = state.bias.load_voltage(state.now())
                 z = state.position_impedance(pos, f, bias) - state.ground_loop(f)

@@ -178,3 +178,30 @@ def test_a_negative_resistance_beyond_the_uncertainty_is_left_out():
     result = fit_impedance(F_IND, z, rel_uncertainty=u)
     assert result.point_status[40] == "negative-resistance"
     assert {e.reason for e in result.excluded} == {"negative-resistance"}
+
+
+def dispersive_bead(f, alpha=0.6):
+    """50 mΩ, 2 µH core relaxing at 40 MHz with a wide Cole-Cole spread, 1 pF across."""
+    w = 2 * np.pi * f
+    core = 1j * w * 2e-6 / (1 + (1j * f / 40e6) ** (1 - alpha))
+    return 0.05 + 1 / (1 / core + 1j * w * 1e-12)
+
+
+@pytest.mark.parametrize(("f_top", "source"), [(3e9, "data"), (4e8, "model")])
+def test_parallel_capacitance_of_a_dispersive_bead(f_top, source):
+    # The ferrite's inductance has fallen far below l_low by the resonance, so the
+    # textbook 1/((2π·srf)²·l_low) misses the winding capacitance by half; c_par comes
+    # from the capacitive slope above the resonance where the points reach it (within
+    # the project's 3 % for a fitted C, common practice, no source), else the fitted Cp.
+    f = np.logspace(5, np.log10(f_top), 301)
+    z, u = noisy(dispersive_bead(f))
+    marks = landmarks_for("inductor", f, z)
+    assert 1 / ((2 * np.pi * marks["srf"]) ** 2 * marks["l_low"]) < 0.6e-12  # the trap
+    result = fit_impedance(f, z, rel_uncertainty=u)
+    assert result.quality.noise_ratio <= NOISE_RATIO
+    assert result.landmarks["c_par"] == pytest.approx(1e-12, rel=0.03)
+    if source == "data":
+        assert marks["c_par"] == pytest.approx(1e-12, rel=0.03)
+    else:
+        assert marks["c_par"] is None  # the sweep stops below three times the SRF
+        assert result.landmark_sources["c_par"] == "model"

@@ -34,7 +34,8 @@ TOLERANCE = {
     "l_low": 0.03,
     "r_dc": 0.10,
     "z_at_srf": 0.20,
-    # c_par = 1/((2π·srf)²·l_low) inherits 2 × 3 % (srf) + 3 % (L) = 9 %, rounded up.
+    # c_par: the part's winding capacitance, 10 % (the looser end of the resonance
+    # landmarks, common practice, no source).
     "c_par": 0.10,
 }
 
@@ -55,6 +56,10 @@ def measure(part, seed: int, *, f=F, series_r: float = 0.0, noise_floor_db: floa
 
 def check_landmarks(result: FitResult, part, f=F, keys=None) -> None:
     truth = landmarks_for(part.kind, f, part.impedance(f))
+    if truth.get("c_par", 0) is None:
+        # The grid stops short of the capacitive slope well above the SRF: the truth is
+        # the part's own winding capacitance.
+        truth["c_par"] = getattr(part, "capacitance", None) or part.winding_capacitance
     for key in keys or truth:
         assert truth[key] is not None, f"true {key} undefined on this grid"
         assert result.landmarks[key] is not None, f"fitted {key} missing"
@@ -112,6 +117,13 @@ def test_recovery_of_landmarks_under_noise(part, model, seed, series_r):
     check_landmarks(result, part)
     assert all(v > 0 for v in result.elements.values())
     assert all(np.isfinite(v) and v >= 0 for v in result.uncertainties.values())
+    # The fit error within 1.5 times the noise (the project's target, common practice, no
+    # source), where the named family holds the part's loss: two-branch has no dielectric
+    # loss for the MLCC's causal constant-loss dielectric (lossy-rlc does, see
+    # test_fit_artefacts), and the inductor family's constant Rp cannot follow this
+    # part's core loss, which grows with frequency (it ends near 1.6).
+    if model not in ("two-branch", "inductor"):
+        assert result.quality.noise_ratio <= 1.5, result.quality
 
 
 def test_ladder_follows_distributed_line_better_than_series_rlc():

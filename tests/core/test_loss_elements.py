@@ -1,12 +1,14 @@
-"""Loss across the band: the D (dielectric) and S (conductor) elements, their published
-check values, their SPICE ladders in ngspice, and the two exports of a part.
+"""Loss across the band: the D and Q (dielectric) and S (conductor) elements, their
+published check values, their SPICE ladders in ngspice, and the two exports of a part.
 
 Sources (docs/references.md §9): constant loss tangent ``ESR ≈ tanδ/(ωC)`` below
 resonance, check 10 µF with tanδ = 0.05 → 0.796 Ω at 1 kHz and 79.6 mΩ at 10 kHz
 [derived, published check values of the references]; the wideband Debye form
 (Djordjevic, Biljić, Likar-Smiljanić, Sarkar, IEEE Trans. EMC 43(4), 2001, from memory);
 the skin-effect R-L ladder (Kim and Neikirk, 1996, from memory); conductor loss √f with
-Im Z = Re Z above the skin corner [derived, the surface impedance (1 + j)·Rs].
+Im Z = Re Z above the skin corner [derived, the surface impedance (1 + j)·Rs]; the
+constant-phase capacitance and its power-law ladder (docs/references.md §16: Jonscher
+1977, from memory; check values derived there).
 """
 
 from __future__ import annotations
@@ -22,8 +24,11 @@ from bench.core.fitting import fit_impedance
 from bench.core.models.network import (
     C,
     D,
+    Q,
     R,
     S,
+    constant_phase_continuum,
+    constant_phase_ladder,
     dielectric_continuum,
     dielectric_ladder,
     network_impedance,
@@ -126,14 +131,49 @@ def test_ladders_are_passive_and_sized_from_the_element():
     np.testing.assert_allclose(np.diff(np.log10(taus)), -0.5, rtol=1e-9)
 
 
+# A Q element whose band is centred on 1 kHz, so that its C is the capacitance at 1 kHz.
+Q_BAND = (1.0, 1e6)
+
+
+@pytest.mark.parametrize(("f", "esr", "c"), [(1e3, 0.7938, 10e-6), (10e3, 85.41e-3, 9.294e-6)])
+def test_constant_phase_check_values(f, esr, c):
+    # docs/references.md §16 [derived]: 10 µF at 1 kHz, tanδ = 0.05 -> ESR 0.7938 Ω at
+    # 1 kHz; at 10 kHz the capacitance has fallen by 10^(−n) to 9.294 µF, ESR 85.41 mΩ.
+    values = {"C": 10e-6, "tanC": 0.05}
+    z = network_impedance(Q("C", Q_BAND), np.array([f]), values)[0]
+    assert z.real == pytest.approx(esr, rel=0.005)
+    y = 1 / z
+    assert y.imag / (2 * np.pi * f) == pytest.approx(c, rel=0.005)
+    assert y.real / y.imag == pytest.approx(0.05, rel=0.005)  # the loss tangent itself
+
+
+@pytest.mark.parametrize("tan_delta", [0.003, 0.05, 0.3])
+def test_constant_phase_ladder_follows_its_limit_inside_the_band(tan_delta):
+    # The ladder against the continuous constant-phase form, over the band a decade
+    # inside the element's (as the fitter places it): 0.3 % in ESR and in |Y|
+    # (docs/references.md §16).
+    band = (10.0, 2e9)
+    f = np.logspace(2, np.log10(2e8), 241)
+    values = {"C": 1.0, "tanC": tan_delta}
+    y = 1 / network_impedance(Q("C", band), f, values)
+    exact = constant_phase_continuum(2j * np.pi * f, tan_delta, band)
+    np.testing.assert_allclose(np.abs(y), np.abs(exact), rtol=3e-3)
+    np.testing.assert_allclose((1 / y).real, (1 / exact).real, rtol=3e-3)
+    c_par, branches = constant_phase_ladder(1e-6, tan_delta, band)
+    assert c_par > 0 and all(r > 0 and c > 0 for r, c in branches)
+
+
 @needs_ngspice
 @pytest.mark.ngspice
-@pytest.mark.parametrize("element", ["D", "S"])
+@pytest.mark.parametrize("element", ["D", "S", "Q"])
 def test_each_ladder_element_in_ngspice_matches_its_impedance(tmp_path, element):
     if element == "D":
         node, values = lossy_capacitor(10e-6, 1e3, 0.05, band=(10.0, 1e8))
         node = series(R("R"), node)
         values["R"] = 1e-3
+    elif element == "Q":
+        node = series(R("R"), Ind("L"), Q("C", (10.0, 1e9)))
+        values = {"R": 2e-3, "L": 0.5e-9, "C": 10e-6, "tanC": 0.05}
     else:
         node = series(R("R"), S("S", (10.0, 1e9)), Ind("L"))
         values = {"R": 2e-3, "S": 5e-3, "L": 1e-9}

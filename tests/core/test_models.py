@@ -73,14 +73,16 @@ CASES = [
     ),
     (
         "bead",
-        {"Rdc": 40e-3, "L": 1.2e-6, "R": 600.0, "C": 1e-12},
-        lambda v: zr(v["Rdc"]) + par(zl(v["L"]), zr(v["R"]), zc(v["C"])),
+        {"Rdc": 40e-3, "L": 1.2e-6, "R": 600.0, "C": 1e-12, "Rc": 30.0},
+        lambda v: zr(v["Rdc"]) + par(zl(v["L"]), zr(v["R"]), zc(v["C"]) + zr(v["Rc"])),
     ),
     (
         "bead",
-        {"Rdc": 40e-3, "L": 1.2e-6, "R": 600.0, "C": 1e-12, "L2": 0.3e-6, "R2": 100.0},
+        {"Rdc": 40e-3, "L": 1.2e-6, "R": 600.0, "C": 1e-12, "Rc": 30.0, "L2": 0.3e-6, "R2": 100.0},
         lambda v: (
-            zr(v["Rdc"]) + par(zl(v["L"]), zr(v["R"]), zc(v["C"])) + par(zl(v["L2"]), zr(v["R2"]))
+            zr(v["Rdc"])
+            + par(zl(v["L"]), zr(v["R"]), zc(v["C"]) + zr(v["Rc"]))
+            + par(zl(v["L2"]), zr(v["R2"]))
         ),
     ),
 ]
@@ -131,7 +133,14 @@ def test_analytic_jacobian_matches_finite_differences(name, values, formula):
 
 
 # Decades of random element values by kind letter (D in F, S in Ω at 1 MHz).
-RANDOM_DECADES = {"R": (-4, 3), "L": (-10, -5), "C": (-12, -3), "D": (-14, -5), "S": (-4, 0)}
+RANDOM_DECADES = {
+    "R": (-4, 3),
+    "L": (-10, -5),
+    "C": (-12, -3),
+    "D": (-14, -5),
+    "S": (-4, 0),
+    "t": (-4, -0.2),  # a Q element's loss tangent
+}
 
 
 @pytest.mark.parametrize("name", sorted(FAMILIES))
@@ -155,8 +164,9 @@ def test_element_names_are_spice_ready_and_unique(name):
     for order in family.orders:
         names = family.element_names(order)
         assert len(set(n.lower() for n in names)) == len(names)
-        # R, L, C are SPICE elements; D and S become ladders of them in the export.
-        assert all(n[0] in "RLCDS" for n in names)
+        # R, L, C are SPICE elements; D, S and Q become ladders of them (tan<name> is the
+        # loss tangent of a Q element, one of its values, not an element).
+        assert all(n[0] in "RLCDSQ" or n.startswith("tan") for n in names)
         assert family.order_of(dict.fromkeys(names, 1.0)) == order
         lines = family.spice_lines(dict.fromkeys(names, 1e-6))
         tokens = [line.split()[0] for line in lines]

@@ -14,7 +14,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from bench.core.fit_select import UNDETERMINED
+from bench.core.fit_select import UNDETERMINED, Trial, select
 from bench.core.fitting import fit_impedance
 from bench.core.landmarks import landmarks_for
 from bench.core.models import FAMILIES
@@ -81,8 +81,9 @@ def test_pinned_section_is_not_chosen_and_its_fit_is_kept():
 
 
 # Invented ferrite bead, about 600 Ω near 100 MHz, measured with 499 Ω at each port;
-# its loss resistance falls with frequency, which a second L ‖ R branch follows only
-# with elements the data cannot pin down.
+# its loss resistance falls with frequency, which the loss of the winding capacitance
+# (Rc) follows in order 1; a second L ‖ R branch adds only elements the data cannot pin
+# down.
 BEAD = FerriteBead(
     name="FB600X", r_dc=45e-3, inductance=1.1e-6, resistance=650.0, capacitance=0.9e-12
 )
@@ -105,23 +106,61 @@ def test_undetermined_second_branch_falls_back_to_order_one():
         assert result.landmarks[key] == pytest.approx(truth[key], rel=tolerance), key
 
 
+def _trial(order, rms, *, rel_sigma=None, dropped=()):
+    """A bead trial with invented figures (the selection reads only these)."""
+    family = FAMILIES["bead"]
+    names = family.element_names(order)
+    chi2 = (rms / 0.01) ** 2 * 800
+    return Trial(
+        family,
+        order,
+        family.circuit(order),
+        dict.fromkeys(names, 1.0),
+        np.zeros(len(names)),
+        chi2,
+        chi2 + (len(names) - len(dropped)) * np.log(1600),
+        rms,
+        (),
+        (),
+        rel_sigma={n: 0.01 for n in names} | (rel_sigma or {}),
+        dropped=dropped,
+    )
+
+
 def test_unsupported_order_is_taken_only_when_nothing_simpler_meets_the_bound():
+    simple = _trial(1, 0.05)
+    loose = _trial(2, 0.02, rel_sigma={"L2": 3.0})  # lower error, L2 not determined
+    assert simple.supported and not loose.supported
+    assert select([simple, loose], 0.1) == (simple, False)
+    assert select([simple, loose], 0.03) == (loose, True)
+    # A section that dropped out is as unsupported; an optional element is not.
+    assert not _trial(2, 0.02, dropped=("R2",)).supported
+    seen_less = _trial(2, 0.02, dropped=("C", "Rc"))
+    assert seen_less.supported and seen_less.size == simple.size + 2 - 2
+
+
+def test_the_undetermined_elements_of_a_chosen_unsupported_order_are_named():
     z = measured_z(BEAD, F_BEAD, series_r=499.0, seed=15)
     loose = fit_impedance(F_BEAD, z, model="bead")
-    assert loose.order == 1
-    # A bound tighter than order 1 reaches, but within the second branch's reach.
     second = next(c for c in loose.candidates if c.order == 2)
-    bound = 0.5 * (loose.quality.rms_log_error + second.rms_log_error)
-    strict = fit_impedance(F_BEAD, z, model="bead", quality_bound=bound)
-    assert strict.order == 2
-    assert strict.meets_quality
-    undetermined = [
-        n for n, v in strict.elements.items() if strict.uncertainties[n] / v > UNDETERMINED
-    ]
-    assert undetermined
-    note = [w for w in strict.warnings if "not determined" in w]
-    assert note and all(n in note[0] for n in undetermined)
-    assert "no model with fewer elements met the quality bound" in note[0]
+    assert not second.supported
+    strict = fit_impedance(F_BEAD, z, model="bead", order=2)
+    named = [w for w in strict.warnings if "not determined" in w or "not seen" in w]
+    assert named
+
+
+def test_an_optional_element_the_band_does_not_show_leaves_the_order_supported():
+    # The same bead measured only to 2 MHz, far below its peak: the winding capacitance
+    # and its loss are invisible. They drop out, are not counted, and are named.
+    f = F_BEAD[F_BEAD < 2e6]
+    z = measured_z(BEAD, f, series_r=499.0, seed=15)
+    result = fit_impedance(f, z, model="bead")
+    assert result.candidates[0].supported
+    note = [w for w in result.warnings if "are not seen by the data" in w]
+    assert note and "C" in note[0].split("(")[0] and "Rc" not in note[0]
+    # Without C the model is Rdc + L ‖ R: L is the part's within 2 % (the project's L
+    # tolerance, common practice, no source).
+    assert result.elements["L"] == pytest.approx(BEAD.inductance, rel=0.02)
 
 
 def test_dropping_a_section_renumbers_the_rest():
@@ -142,6 +181,6 @@ def test_dropping_a_section_renumbers_the_rest():
     assert ladder.reduced_start(3, values, weakness) == reduced
     # A family without a reduction keeps the lower order's elements by name.
     bead = FAMILIES["bead"]
-    two = {"Rdc": 0.04, "L": 1e-6, "R": 600.0, "C": 1e-12, "L2": 4e-8, "R2": 40.0}
-    assert bead.reduced_start(2, two, {}) == {"Rdc": 0.04, "L": 1e-6, "R": 600.0, "C": 1e-12}
+    one = {"Rdc": 0.04, "L": 1e-6, "R": 600.0, "C": 1e-12, "Rc": 40.0}
+    assert bead.reduced_start(2, one | {"L2": 4e-8, "R2": 40.0}, {}) == one
     assert bead.reduced_start(1, {}, {}) is None

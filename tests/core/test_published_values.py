@@ -101,7 +101,7 @@ def test_bead_check_values():
     # L = 15 µH, C = 1.2 pF, R = 1.3 kΩ in parallel -> f0 = 1/(2π√(LC)) = 37.51 MHz,
     # |Z|max = R = 1300 Ω resistive; Y = 1/R + j(ωC − 1/(ωL)) gives |Z(10 MHz)| = 799.8 Ω
     # (R 492.1, X +630.5) and |Z(100 MHz)| = 994.3 Ω (X −640.5).
-    values = {"Rdc": 1e-9, "L": 15e-6, "R": 1300.0, "C": 1.2e-12}
+    values = {"Rdc": 1e-9, "L": 15e-6, "R": 1300.0, "C": 1.2e-12, "Rc": 1e-9}
     family = FAMILIES["bead"]
     z = family.impedance(np.array([10e6, 100e6]), values)
     assert abs(z[0]) == pytest.approx(799.8, rel=1e-4)

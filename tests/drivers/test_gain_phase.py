@@ -75,7 +75,8 @@ def test_simulated_gain_phase_analyser_measures_the_bulk_capacitor(sim_bench):
         }
         hands = BenchControl(links["bench"])
         hands.place(4, "PB345-7V1/s1")
-        hands.connect_fixture()
+        hands.connect_gain_phase()
+        assert hands.cables() == "GAIN"
         FixtureSwitch(links["switch"], positions=hands.positions()).select(4)
         gpa = GainPhaseAnalyzer(links["gain_phase"])
         assert "SIM-GPA-0001" in gpa.identify()
@@ -89,3 +90,35 @@ def test_simulated_gain_phase_analyser_measures_the_bulk_capacitor(sim_bench):
     np.testing.assert_allclose(abs(z), abs(truth), rtol=0.02)
     # the ratio is not an S21: at 10 Hz a 345 µF part reads near 1, not near 0
     assert abs(h[0]) > 0.9
+
+
+def test_the_fixture_is_on_one_analyser_at_a_time(sim_bench):
+    """The gain-phase analyser sees the fixture only once the hands have moved it there
+    (before, an open: its ratio B/A near 1); the network analyser's cable ends are then
+    open (no transmission across an empty position)."""
+    with contextlib.ExitStack() as stack:
+        links = {
+            name: stack.enter_context(VisaTransport.open(sim_bench.resources[name]))
+            for name in ("analyzer", "gain_phase", "switch", "bench")
+        }
+        hands = BenchControl(links["bench"])
+        FixtureSwitch(links["switch"], positions=hands.positions()).select(4)
+        gpa = GainPhaseAnalyzer(links["gain_phase"])
+        gpa.configure(SweepPlan(100.0, 10e3, 5, "log", 100.0, 0.0))
+        vna = NetworkAnalyzer(links["analyzer"])
+        vna.configure(SweepPlan(100e3, 10e6, 5, "log", 1e3, 0.0))
+        hands.place(4, "short")
+        hands.connect_fixture()
+        open_ratio = np.median(abs(gpa.ratio()[1]))
+        hands.connect_gain_phase()
+        strap_ratio = np.median(abs(gpa.ratio()[1]))
+        hands.place(4, "empty")
+        away = np.median(abs(vna.sweep(("S21",))["S21"]))
+        hands.connect_fixture()
+        across = np.median(abs(vna.sweep(("S21",))["S21"]))
+    # Ratio zp/(r_ref + zp) with r_ref 1 Ω: near 1 for an open, about 1e-3 for a strap of
+    # milliohms (derived from the divider).
+    assert open_ratio > 0.9 and strap_ratio < 0.05
+    # An empty shunt position passes the line through (|S21| near 1); open cable ends pass
+    # nothing.
+    assert across > 0.5 and away < 0.1

@@ -69,6 +69,9 @@ def test_bench_control_commands(expected_protocol):
         ("OPERator:CABLes THRough", None), OK,
         ("OPERator:CABLes FIXTure", None), OK,
         ("OPERator:CABLes?", "FIXT"),
+        ("OPERator:CABLes GAINphase", None), OK,
+        ("OPERator:MOUNt SERies,STRAp", None), OK,
+        ("OPERator:MOUNt REFLection,\"FB1/s2\"", None), OK,
         ("OPERator:PLACe 2,SHORt", None), OK,
         ("OPERator:PLACe 1,\"MLCC-A/s1\"", None), OK,
         ("OPERator:PLACe 3,EMPTy", None), OK,
@@ -84,6 +87,9 @@ def test_bench_control_commands(expected_protocol):
         hands.connect_through()
         hands.connect_fixture()
         assert hands.cables() == "FIXT"
+        hands.connect_gain_phase()
+        hands.mount("series-through", "strap")
+        hands.mount("reflection", "FB1/s2")
         hands.place(2, "short")
         hands.place(1, "MLCC-A/s1")
         hands.place(3, "empty")
@@ -99,6 +105,9 @@ def test_bench_control_commands(expected_protocol):
         ("connect_standard", ("match",)),
         ("place", (0, "short")),
         ("place", (1, "no-slash")),
+        ("place", (1, "strap")),
+        ("mount", ("series-through", "short")),
+        ("mount", ("series-through", "a/b/c")),
         ("place", (1, 'a"b/c')),
         ("resistors", (-1.0,)),
         ("resistors", (float("inf"),)),

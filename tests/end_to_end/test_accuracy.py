@@ -70,7 +70,7 @@ TOLERANCE = {
     "l_low": 0.03,
     "r_dc": 0.10,
     "z_at_srf": 0.20,
-    "c_par": 0.20,  # follows from srf and l_low; held to the looser of the two families
+    "c_par": 0.20,  # the winding capacitance; held to the looser of the two families
     "z_at_nominal": 0.20,  # a bead's |Z| where it is specified, to the Z-at-SRF target
 }
 CAPACITOR_MARKS = ("c_low", "esl", "srf", "esr_at_srf")
@@ -171,12 +171,12 @@ def _pads_removed(result: Outcome, position: int) -> bool:
     return record.get("capacitance_f") is not None
 
 
-def _truth(result: Outcome, sample: Any) -> tuple[np.ndarray, np.ndarray, str]:
-    """The sample's true impedance on the measured grid; the impedance the flow should
-    deliver (the bare part where the pads were removed, else part ‖ pad capacitance, as
-    the mount presents it); and its kind."""
+def _truth(result: Outcome, sample: Any, f: Any = None) -> tuple[np.ndarray, np.ndarray, str]:
+    """The sample's true impedance on the measured grid (or on ``f``); the impedance the
+    flow should deliver (the bare part where the pads were removed, else part ‖ pad
+    capacitance, as the mount presents it); and its kind."""
     part = result.scenario.parts[f"{sample.part}/{sample.sample}"]
-    f = sample.data.f
+    f = sample.data.f if f is None else f
     z = part.impedance(f, sample.bias_v)
     # A single mount (series-through, reflection) is removed by its own empty capture.
     if sample.position is None or _pads_removed(result, sample.position):
@@ -204,6 +204,9 @@ def test_fitted_landmarks_match_the_true_part(outcome, procedure, part, sample, 
     fit = s.fit
     # Fit quality: the fitter's own bound (docs/design.md §3), on every sample.
     assert fit.quality.rms_log_error <= DEFAULT_QUALITY_BOUND, fit.warnings
+    # And within 1.5 times what the points' noise predicts (the project's target, common
+    # practice, no source): the model misses nothing the data show.
+    assert fit.quality.noise_ratio <= 1.5, fit.quality
     z_true, z_expected, kind = _truth(result, s)
     assert fit.kind == kind
     f = s.data.f
@@ -238,6 +241,11 @@ def test_fitted_landmarks_match_the_true_part(outcome, procedure, part, sample, 
         z_true_at = abs(result.scenario.parts[f"{part}/{sample}"].impedance(at)[0])
         _close(float(abs(fit.impedance(at)[0])), float(z_true_at), "z_at_nominal")
         return
+    if expected_marks["c_par"] is None:
+        # The sweep stops short of the capacitive slope well above the resonance: read
+        # the true c_par on the same curve continued a decade and a half upward.
+        wide = np.geomspace(f[0], f[-1] * 30, 3 * f.size)
+        expected_marks["c_par"] = landmarks_for(kind, wide, _truth(result, s, wide)[1])["c_par"]
     for key in RESONANCE_MARKS:
         _close(fit.landmarks[key], expected_marks[key], key)
 

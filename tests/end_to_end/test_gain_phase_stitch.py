@@ -38,12 +38,15 @@ def test_bulk_capacitor_gain_phase_below_vna_above_stitched(sim_bench):
 
         hands.connect_through()
         through = vna.sweep(("S21",))["S21"]
-        hands.connect_fixture()
         switch.select(POSITION)
         captured = {}
         for item in ("SHORT", PART):
             hands.place(POSITION, item)
-            captured[item] = (vna.sweep(("S21",))["S21"] / through, gpa.ratio())
+            # The fixture on the network analyser's cables, then on the gain-phase analyser.
+            hands.connect_fixture()
+            s21 = vna.sweep(("S21",))["S21"] / through
+            hands.connect_gain_phase()
+            captured[item] = (s21, gpa.ratio())
         f_vna = vna.frequencies()
     f_gpa = captured[PART][1][0]
     z_in = 1 / (1 / spec.input_resistance + 2j * np.pi * f_gpa * spec.input_capacitance)

@@ -107,3 +107,11 @@ def test_correction_on_returns_data_at_the_cable_ends(sim_bench, bench_client):
     # (ε about 1.6e-4 RMS), so a few times 1e-4 at the worst of 404 values.
     assert np.max(np.abs(s - truth)) < 1e-3
     assert np.sqrt(np.mean(np.abs(s - truth) ** 2)) < 2e-4
+
+
+def test_a_folder_named_like_a_scenario_does_not_hide_it(tmp_path, monkeypatch):
+    # `zbench demo --out demo` makes a folder `demo` in the working directory first.
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "demo").mkdir()
+    by_name = load_scenario("demo")
+    assert by_name.parts == load_scenario(SCENARIO_DIR / "demo.yaml").parts

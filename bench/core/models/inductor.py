@@ -83,4 +83,7 @@ FAMILY = ModelFamily(
     circuit=circuit,
     starts=starts,
     reduce=reduce,
+    # The winding capacitance may sit above the measured band, where the data cannot see
+    # it; the core loss may be too small beside the winding's to show (Rp open).
+    optional=("Rp", "Cp"),
 )

@@ -1,17 +1,22 @@
-"""``lossy-rlc``: a capacitor whose loss follows the band: ``R + S + jωL + 1/(jωC + Y_D)``.
+"""``lossy-rlc``: a capacitor whose loss follows the band: ``R + S + jωL + Z_Q(C, tanC)``.
 
-Loss across the band, docs/references.md §9.
+Loss across the band, docs/references.md §9 and §16.
 
-``D`` is the dielectric loss of a constant loss tangent (the wideband Debye model of
+``C`` is a capacitance with a constant loss tangent ``tanC`` (element kind ``Q``, the
+constant-phase element ``Y = jω·C·(jω/ωc)^(−n)/cos(nπ/2)``, ``tan δ = tan(nπ/2)``;
+Jonscher's "universal" dielectric response, from memory): its capacitance falls as
+``ω^(−n)`` and its ESR as ``1/f`` times it below resonance, as class II dielectrics do;
+``C`` is its capacitance at the geometric centre of the element's band. Its SPICE form
+is a Debye ladder whose weights follow that power law (after the wideband Debye model of
 Djordjevic, Biljić, Likar-Smiljanić and Sarkar, IEEE Trans. EMC 43(4), 2001, cited from
-memory): across the capacitor it makes ESR fall as 1/f below resonance, as class II
-dielectrics do, with ``tan δ ≈ D/C``. ``S`` (order ≥ 1) is the conductor loss rising as
-√f (an R-L ladder in the SPICE export, after Kim and Neikirk, 1996, from memory). Order
-2 adds a weak second series R-L-C branch in parallel, for a stack's higher mode. Both
-loss elements span the measured band with a margin, so they are passive and become
-ladders of ideal R, L, C in SPICE (see ``bench.core.models.network``).
+memory, whose equal weights give a constant loss instead of a constant loss tangent).
+``S`` (order ≥ 1) is the conductor loss rising as √f (an R-L ladder in the SPICE export,
+after Kim and Neikirk, 1996, from memory). Order 2 adds a weak second series R-L-C
+branch in parallel, for a stack's higher mode. Both loss elements span the measured
+band with a margin, so they are passive and become ladders of ideal R, L, C in SPICE
+(see ``bench.core.models.network``).
 
-Orders: 0 = R, L, C, D; 1 = + S; 2 = + S and R2, L2, C2.
+Orders: 0 = R, L, C, tanC; 1 = + S; 2 = + S and R2, L2, C2.
 """
 
 from __future__ import annotations
@@ -24,9 +29,9 @@ import numpy as np
 from bench.core.models import two_branch
 from bench.core.models.network import (
     C,
-    D,
     L,
     ModelFamily,
+    Q,
     R,
     S,
     landmark,
@@ -55,7 +60,7 @@ def network(order: int, band: tuple[float, float] = DEFAULT_BAND):
     main = [R("R")]
     if order >= 1:
         main.append(S("S", sband))
-    main += [L("L"), parallel(C("C"), D("D", dband))]
+    main += [L("L"), Q("C", dband)]
     if order < 2:
         return series(*main)
     return parallel(series(*main), series(R("R2"), L("L2"), C("C2")))
@@ -93,12 +98,14 @@ def starts(order, f, z, landmarks: Mapping[str, Any], previous=None) -> list[dic
     esr = landmark(landmarks, "esr_at_srf", float(np.min(np.abs(z))))
     tan_delta, s = _loss_estimates(f, z, c, esr, srf)
     dband, _ = _bands((f[0], f[-1]))
-    # The loss adds (2/π)·D·ln(ω2/ω) to C at low frequency.
-    c_inf = c / (1 + tan_delta * (2 / np.pi) * np.log(dband[1] / f[0]))
-    base = {"R": esr, "L": esl, "C": c_inf, "D": tan_delta * c_inf}
+    # The capacitance falls as ω^(−n) from where c_low is read (the lowest decade) to
+    # the band's centre, where the element's C is given.
+    n = (2 / np.pi) * np.arctan(tan_delta)
+    c_centre = c * (np.sqrt(dband[0] * dband[1]) / (f[0] * np.sqrt(10))) ** (-n)
+    base = {"R": esr, "L": esl, "C": c_centre, "tanC": tan_delta}
     out: list[dict[str, float]] = []
     if order == 0:
-        return [base, {**base, "D": base["D"] * 0.2, "R": esr * 0.8}]
+        return [base, {**base, "tanC": tan_delta * 0.2, "R": esr * 0.8}]
     if order == 1:
         if previous is not None:
             out.append({**previous, "S": s, "R": previous["R"] * 0.7})

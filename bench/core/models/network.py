@@ -49,6 +49,16 @@ class Element:
       1996, cited from memory): ``Z = 2A·√(jω)·[atan(√(ωb/jω)) − atan(√(ωa/jω))]``
       with ``A = S·√2/(π·√ω_ref)``, so that Re Z ≈ ``S·√(f/1 MHz)`` inside the band
       and Im Z ≈ Re Z, as for a conductor well above its skin corner [derived].
+    - ``Q`` (value in F, with a second fitted value, its loss tangent ``tan<name>``): a
+      capacitance whose loss tangent is the same at every frequency, the constant-phase
+      element ``Y = jω·C·(jω/ωc)^(−n)/cos(nπ/2)``, ``tan δ = tan(nπ/2)`` (Jonscher's
+      "universal" dielectric response, from memory; docs/references.md §16), with C the
+      real part of its capacitance at the band's geometric centre ``ωc``. Its
+      capacitance falls as ``ω^(−n)``, its loss with it, so the loss tangent stays put,
+      where ``C ‖ D`` keeps the loss (not the tangent) constant. The ladder
+      (:func:`constant_phase_ladder`) is a Debye ladder whose weights follow the power
+      law ``u^(−n)`` (:func:`constant_phase_continuum` its limit, within 0.3 % in ESR
+      inside the band).
     """
 
     kind: str
@@ -94,6 +104,17 @@ def D(name: str, band: tuple[float, float]) -> Element:
     return Element("D", name, (float(band[0]), float(band[1])))
 
 
+def Q(name: str, band: tuple[float, float]) -> Element:
+    """Capacitance with a constant loss tangent over ``band`` (Hz); values in F and, as
+    ``tan<name>``, the loss tangent."""
+    return Element("Q", name, (float(band[0]), float(band[1])))
+
+
+def loss_tangent_name(name: str) -> str:
+    """The name of the loss-tangent value of the ``Q`` element ``name``."""
+    return f"tan{name}"
+
+
 def S(name: str, band: tuple[float, float]) -> Element:
     """Conductor loss (√f resistance) over ``band`` (Hz); value in Ω at 1 MHz."""
     return Element("S", name, (float(band[0]), float(band[1])))
@@ -116,6 +137,74 @@ def skin_continuum(jw: ComplexArray, band: tuple[float, float]) -> ComplexArray:
     a = np.sqrt(2.0) / (np.pi * np.sqrt(2 * np.pi * SKIN_REFERENCE_HZ))
     root = np.sqrt(jw)
     return 2 * a * root * (np.arctan(np.sqrt(wb) / root) - np.arctan(np.sqrt(wa) / root))
+
+
+def constant_phase_continuum(
+    jw: ComplexArray, tan_delta: float, band: tuple[float, float]
+) -> ComplexArray:
+    """``jω·(jω/ωc)^(−n)/cos(nπ/2)`` with ``n = (2/π)·atan(tan δ)``, ``ωc`` the geometric
+    centre of ``band``: admittance per farad of the ideal constant-phase capacitance
+    (docs/references.md §16, from memory)."""
+    n = (2 / np.pi) * np.arctan(tan_delta)
+    wc = 2 * np.pi * np.sqrt(band[0] * band[1])
+    return jw * (jw / wc) ** (-n) / np.cos(n * np.pi / 2)
+
+
+def _constant_phase_parts(tan_delta: float, band: tuple[float, float]):
+    """The branches of the constant-phase ladder per farad and the derivative of each
+    capacitance's logarithm with respect to ``n``: ``(u, dc, dlog_dn, c_par, dlog_c_par)``
+    with ``u`` the branch corners (rad/s, the last two the band's ends), ``dc`` their
+    capacitances and ``c_par`` the plain capacitor across them.
+
+    ``s^(1−n) = s·(sin nπ/π)·∫ u^(−n)/(u + s) du`` (the Stieltjes form of a power, for
+    0 < n < 1) is a continuum of series R-C branches ``s·dC/(1 + s/u)`` with
+    ``dC = A·u^(−n)·d ln u``, ``A = (2/π)·ωc^n·sin(nπ/2)`` per farad [derived]. Inside
+    ``band`` the midpoint rule on the cells of :func:`_log_cells`; above it (u > ω2) the
+    tail is a capacitor ``A·ω2^(−n)/(n(n+1))`` and a branch at ω2 of ``A·ω2^(−n)/(n+1)``
+    (matching the tail's capacitance and its ω² conductance); below it (u < ω1) a branch
+    at ω1 of ``A·ω1^(−n)/(1 − n)`` (the tail's conductance) [derived]. As n → 0 every
+    branch vanishes and the capacitor tends to 1 F: a lossless capacitance.
+    """
+    n = (2 / np.pi) * np.arctan(tan_delta)
+    w1, w2 = 2 * np.pi * band[0], 2 * np.pi * band[1]
+    wc = np.sqrt(w1 * w2)
+    a = (2 / np.pi) * wc**n * np.sin(n * np.pi / 2)
+    da = np.log(wc) + (np.pi / 2) / np.tan(n * np.pi / 2)  # d ln A / dn
+    centres, width = _log_cells(band)
+    u = np.concatenate([centres, [w2, w1]])
+    dc = np.concatenate([a * centres**-n * width, [a * w2**-n / (n + 1), a * w1**-n / (1 - n)]])
+    dlog = np.concatenate(
+        [da - np.log(centres), [da - np.log(w2) - 1 / (n + 1), da - np.log(w1) + 1 / (1 - n)]]
+    )
+    c_par = a * w2**-n / (n * (n + 1))
+    dlog_c_par = da - np.log(w2) - 1 / n - 1 / (n + 1)
+    return u, dc, dlog, c_par, dlog_c_par
+
+
+def _constant_phase_shape(
+    jw: ComplexArray, tan_delta: float, band: tuple[float, float]
+) -> tuple[ComplexArray, ComplexArray]:
+    """Admittance per farad of a ``Q`` element (its ladder itself) and its derivative with
+    respect to ``ln tan δ``."""
+    u, dc, dlog, c_par, dlog_c_par = _constant_phase_parts(tan_delta, band)
+    branch = jw[None, :] / (1 + jw[None, :] / u[:, None])
+    y = c_par * jw + dc @ branch
+    dy_dn = c_par * dlog_c_par * jw + (dc * dlog) @ branch
+    # n = (2/π)·atan(t): dn/d ln t = (2/π)·t/(1 + t²).
+    dn = (2 / np.pi) * tan_delta / (1 + tan_delta**2)
+    return y, dy_dn * dn
+
+
+def constant_phase_ladder(
+    value: float, tan_delta: float, band: tuple[float, float]
+) -> tuple[float, list[tuple[float, float]]]:
+    """``(C, [(R, C), ...])``: the plain capacitor and the series R-C branches that stand
+    for a ``Q`` element of ``value`` F and loss tangent ``tan_delta`` (see
+    :func:`_constant_phase_parts`); each branch ``R = 1/(u·C)``."""
+    u, dc, _, c_par, _ = _constant_phase_parts(tan_delta, band)
+    return float(value * c_par), [
+        (float(1.0 / (ui * value * ci)), float(value * ci)) for ui, ci in zip(u, dc, strict=True)
+    ]
 
 
 def _dielectric_shape(jw: ComplexArray, band: tuple[float, float]) -> ComplexArray:
@@ -205,7 +294,7 @@ def skin_ladder(value: float, band: tuple[float, float]) -> list[tuple[float, fl
 def element_names(node: Node) -> tuple[str, ...]:
     """Element names in the order they appear in the tree."""
     if isinstance(node, Element):
-        return (node.name,)
+        return (node.name, loss_tangent_name(node.name)) if node.kind == "Q" else (node.name,)
     out: tuple[str, ...] = ()
     for part in node.parts:
         out += element_names(part)
@@ -216,6 +305,11 @@ def _evaluate(
     node: Node, jw: ComplexArray, values: Mapping[str, float]
 ) -> tuple[ComplexArray, dict[str, ComplexArray]]:
     """Impedance of ``node`` and ``p·dZ/dp`` of each element below it (by name)."""
+    if isinstance(node, Element) and node.kind == "Q":
+        tan = loss_tangent_name(node.name)
+        y, dy = _constant_phase_shape(jw, values[tan], node.band)
+        z = 1.0 / (values[node.name] * y)
+        return z, {node.name: -z, tan: -z * dy / y}
     if isinstance(node, Element):
         z = _element_impedance(node, jw, values[node.name])
         return z, {node.name: -z if node.kind in "CD" else z}
@@ -262,6 +356,9 @@ def network_impedance(node: Node, f: Any, values: Mapping[str, float]) -> Comple
 
 
 def _impedance(node: Node, jw: ComplexArray, values: Mapping[str, float]) -> ComplexArray:
+    if isinstance(node, Element) and node.kind == "Q":
+        y, _ = _constant_phase_shape(jw, values[loss_tangent_name(node.name)], node.band)
+        return 1.0 / (values[node.name] * y)
     if isinstance(node, Element):
         return _element_impedance(node, jw, values[node.name])
     zs = [_impedance(part, jw, values) for part in node.parts]
@@ -270,26 +367,32 @@ def _impedance(node: Node, jw: ComplexArray, values: Mapping[str, float]) -> Com
     return 1.0 / sum(1.0 / z for z in zs)
 
 
-_SHORT = {"R": "low", "L": "low", "C": "high", "D": "high", "S": "low"}
-_OPEN = {"R": "high", "L": "high", "C": "low", "D": "low", "S": "high"}
+_SHORT = {"R": "low", "L": "low", "C": "high", "D": "high", "S": "low", "Q": "high"}
+_OPEN = {"R": "high", "L": "high", "C": "low", "D": "low", "S": "high", "Q": "low"}
 
 
 def vanishing_sides(node: Node, context: tuple[str, ...] = ("pins",)) -> dict[str, set[str]]:
     """For each element, the bounds (``"low"``, ``"high"``) at which it harmlessly drops out.
 
-    In series an element drops out as a short (R, L low; C high); in a parallel group as
-    an open (R, L high; C low), and also as a short when that group itself sits in series
-    (the group then just vanishes). An element ending at such a bound was not needed by
-    the data; any other bound means the model is strained.
+    In series an element drops out as a short (R, L low; C high), and also as an open
+    when that series branch sits in a parallel group (the branch then just vanishes); in
+    a parallel group as an open (R, L high; C low), and also as a short when that group
+    itself sits in series (the group then just vanishes). An element ending at such a
+    bound was not needed by the data; any other bound means the model is strained.
     """
     if isinstance(node, Element):
         sides = set()
         if context[-1] in ("series", "pins"):
             sides.add(_SHORT[node.kind])
+            if len(context) >= 2 and context[-2] == "parallel":
+                sides.add(_OPEN[node.kind])  # the whole branch opens and vanishes
         else:
             sides.add(_OPEN[node.kind])
             if len(context) >= 2 and context[-2] == "series":
                 sides.add(_SHORT[node.kind])
+        if node.kind == "Q":
+            # A vanishing loss tangent leaves a lossless capacitance: the loss drops out.
+            return {node.name: sides, loss_tangent_name(node.name): {"low"}}
         return {node.name: sides}
     where = "series" if isinstance(node, Series) else "parallel"
     out: dict[str, set[str]] = {}
@@ -301,7 +404,7 @@ def vanishing_sides(node: Node, context: tuple[str, ...] = ("pins",)) -> dict[st
 def has_dc_path(node: Node) -> bool:
     """True when the network conducts at DC (some path holds no capacitor)."""
     if isinstance(node, Element):
-        return node.kind not in "CD"
+        return node.kind not in "CDQ"
     if isinstance(node, Series):
         return all(has_dc_path(p) for p in node.parts)
     return any(has_dc_path(p) for p in node.parts)
@@ -324,6 +427,16 @@ def spice_lines(node: Node, values: Mapping[str, float], a: str = "1", b: str = 
         if isinstance(n, Element) and n.kind == "D":
             # One series R-C branch per cell, all between x and y.
             for k, (r, c) in enumerate(dielectric_ladder(values[n.name], n.band), start=1):
+                mid = new_node()
+                lines.append(f"R{n.name}{k} {x} {mid} {r:.9g}")
+                lines.append(f"C{n.name}{k} {mid} {y} {c:.9g}")
+        elif isinstance(n, Element) and n.kind == "Q":
+            # A plain capacitor and one series R-C branch per cell, all between x and y.
+            c_par, branches = constant_phase_ladder(
+                values[n.name], values[loss_tangent_name(n.name)], n.band
+            )
+            lines.append(f"C{n.name}0 {x} {y} {c_par:.9g}")
+            for k, (r, c) in enumerate(branches, start=1):
                 mid = new_node()
                 lines.append(f"R{n.name}{k} {x} {mid} {r:.9g}")
                 lines.append(f"C{n.name}{k} {mid} {y} {c:.9g}")
@@ -374,6 +487,10 @@ class ModelFamily:
     ``network(order, band)``, when given, builds the circuit for a measured band (Hz)
     (families with ``D`` or ``S`` elements); ``circuit(order)`` is then the circuit of a
     default band, good for names and orders only.
+    ``optional`` names elements that may drop out without the order losing the data's
+    support (a part of the circuit the measured band may not show, such as a bead's
+    winding capacitance above the sweep); an element of a section that drops out means
+    the order has one section too many.
     ``reduce(order, values, weakness)``, when given, turns a fit of ``order`` into start
     values of the next lower order by dropping the part of the circuit the data did not
     support (``weakness``: each element's relative one-sigma uncertainty, ``inf`` for an
@@ -389,6 +506,7 @@ class ModelFamily:
     bounds: Bounds | None = None
     reduce: Reduce | None = None
     network: Callable[[int, tuple[float, float]], Node] | None = None
+    optional: tuple[str, ...] = ()
 
     def circuit_for(self, order: int, f: NDArray[np.float64]) -> Node:
         """The circuit of ``order`` fitted on the frequencies ``f`` (Hz): families with
@@ -511,6 +629,9 @@ WIDE_BOUNDS = {
     "C": (1e-16, 10.0),
     "D": (1e-18, 10.0),
     "S": (1e-9, 1e4),
+    "Q": (1e-16, 10.0),
+    # A loss tangent (the second value of a Q element, named ``tan<name>``).
+    "t": (1e-5, 1.0),
 }
 
 

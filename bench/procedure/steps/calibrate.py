@@ -12,10 +12,9 @@ import numpy as np
 
 from bench.errors import InputError
 from bench.files import atomic_write_bytes
-from bench.procedure.operators import REPEAT, SKIP
 from bench.procedure.plan import Step
 from bench.procedure.steps.context import RunContext
-from bench.procedure.steps.sweep import cables_to, decide, implausible, keep_implausible, sweeps
+from bench.procedure.steps.sweep import cables_to, checked_capture_done, sweeps
 from bench.runstore import DONE, LAST_CALIBRATION, RUNNING, RunStore, parse_iso
 from bench.units import format_si
 
@@ -30,12 +29,7 @@ def calibrate(ctx: RunContext, step: Step) -> None:
         s21 = s[:, 1, 0]
         result = f"|S21| {20 * np.log10(np.median(np.abs(s21)) + 1e-300):.2f} dB (median)"
         problem = check_standard(ctx, step.standard, f, s)
-        what = f"calibration {step.standard}"
-        result = implausible(ctx, step, what, problem, result)
-        choice = decide(ctx, step, what, result)
-        if choice != REPEAT:
-            if choice != SKIP:
-                keep_implausible(ctx, what, problem)
+        if checked_capture_done(ctx, step, f"calibration {step.standard}", problem, result):
             break
         if problem is not None:
             ctx.cables = None  # the hands are asked to connect the standard again

@@ -10,7 +10,7 @@ from __future__ import annotations
 import contextlib
 import dataclasses
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
 from typing import Any
 
 import numpy as np
@@ -67,12 +67,28 @@ class RunContext:
     sweep_seconds: float = 0.0
     step_sweep_seconds: dict[str, float] = dataclasses.field(default_factory=dict)
     sweeps_done: int = 0
+    #: Time spent with the operator (every physical action, answer and caution), s.
+    operator_seconds: float = 0.0
+    _pausing: bool = False
 
-    def pause(self) -> Any:
-        """Free the console while a person is asked something (not for scripted hands)."""
-        if getattr(self.operator, "interactive", False):
-            return self.display.pause()
-        return contextlib.nullcontext()
+    @contextlib.contextmanager
+    def pause(self) -> Iterator[None]:
+        """Free the console while a person is asked something (not for scripted hands);
+        the time spent inside counts as the operator's."""
+        if self._pausing:  # nested: counted once, by the outer pause
+            yield
+            return
+        started = time.perf_counter()
+        self._pausing = True
+        try:
+            if getattr(self.operator, "interactive", False):
+                with self.display.pause():
+                    yield
+            else:
+                yield
+        finally:
+            self._pausing = False
+            self.operator_seconds += time.perf_counter() - started
 
     def correction(self) -> Corrector:
         if self.corrector is None:

@@ -2,8 +2,10 @@
 strapped position it uses (the mount short it removes) and each sample it measures
 where the sample sits, at 0 V.
 
-It reads the ratio of its two receivers, B/A, across the position through its reference
-resistor; :mod:`bench.procedure.methods` turns that into an impedance with its window.
+The hands move the fixture from the network analyser's cables to the gain-phase analyser
+before these sweeps (and back before the next network-analyser sweep). It reads the
+ratio of its two receivers, B/A, across the position through its reference resistor;
+:mod:`bench.procedure.methods` turns that into an impedance with its window.
 """
 
 from __future__ import annotations
@@ -12,12 +14,17 @@ from typing import Any
 
 import numpy as np
 
+from bench.plausibility import check_gain_phase_short
 from bench.procedure import methods
-from bench.procedure.display import result_line
-from bench.procedure.operators import REPEAT
-from bench.procedure.plan import Step
+from bench.procedure.plan import GAIN_PHASE, Step
 from bench.procedure.steps.context import RunContext
-from bench.procedure.steps.sweep import cables_to, decide, select, sweeps
+from bench.procedure.steps.live import landmark_line, part_landmarks
+from bench.procedure.steps.sweep import (
+    checked_capture_done,
+    prepare_capture,
+    sample_done,
+    sweeps,
+)
 from bench.units import format_si
 
 
@@ -32,29 +39,29 @@ def _ratio_impedance(ctx: RunContext) -> tuple[np.ndarray, np.ndarray]:
 
 
 def capture(ctx: RunContext, step: Step) -> None:
-    """``mount_short/gain-phase/p<n>``: the gain-phase analyser on position n's strap."""
+    """``mount_short/gain-phase/p<n>``: the gain-phase analyser on position n's strap,
+    checked like the network analyser's mount short."""
     assert step.position is not None
     pos = step.position
+    what = f"gain-phase mount short {pos}"
     while True:
-        cables_to(ctx, "fixture")
-        if pos not in ctx.strapped:
-            todo = ctx.pending_positions("mount_short")
-            with ctx.pause():
-                ctx.operator.strap_mounts(todo)
-            ctx.strapped.update(todo)
-            ctx.emptied.difference_update(todo)
-            ctx.batch = None
-        select(ctx, pos)
+        prepare_capture(ctx, "mount_short", pos, cables=GAIN_PHASE)
         sweeps(ctx, step, f"gain-phase, mount short, position {pos}")
+        problem = None
         try:
-            _, z = _ratio_impedance(ctx)
+            f, z = _ratio_impedance(ctx)
             result = f"|Z| {format_si(float(np.median(np.abs(z))), 'Ω', 3)} (median)"
+            problem = check_gain_phase_short(f, z, pos)
         except Exception as exc:  # the live line is information; processing decides
             result = f"no value ({exc})"
-        if not ctx.operator.guided:
+        if not ctx.operator.guided and problem is None:
             ctx.display.message(f"gain-phase, mount short {pos}: {result}")
-        if decide(ctx, step, f"gain-phase mount short {pos}", result) != REPEAT:
+        if checked_capture_done(ctx, step, what, problem, result):
             break
+        if problem is not None:
+            # The hands are asked again for the strap and for the gain-phase analyser.
+            ctx.strapped.discard(pos)
+            ctx.cables = None
     ctx.quick_mounts.pop(f"gain-phase/p{pos}", None)
 
 
@@ -67,20 +74,15 @@ def measure(ctx: RunContext, step: Step) -> None:
     part = ctx.plan.part(placement.part)
     label = f"{placement.part}/{placement.sample} gain-phase"
     while True:
-        place(ctx, placement)
+        place(ctx, placement, cables=GAIN_PHASE)
         sweeps(ctx, step, f"{label}, position {placement.position}")
         result = live_result(ctx, step, part, label)
-        if not ctx.operator.guided:
-            ctx.display.result(result)
-        if decide(ctx, step, label, result) != REPEAT:
+        if sample_done(ctx, step, label, result):
             break
 
 
 def live_result(ctx: RunContext, step: Step, part: Any, label: str) -> str:
     """Landmarks of the sample just swept by the gain-phase analyser (no fit yet)."""
-    from bench.core.landmarks import landmarks_for
-    from bench.procedure.processing import z_at_nominal
-
     assert step.position is not None
     key = f"gain-phase/p{step.position}"
     try:
@@ -90,17 +92,7 @@ def live_result(ctx: RunContext, step: Step, part: Any, label: str) -> str:
         data = methods.gain_phase_impedance(
             ctx.plan, ctx.plan.analysis, f, s[:, 1, 0], ctx.quick_mounts[key]
         )
-        kind = "capacitor" if part.spec.kind in ("mlcc", "bulk") else "inductor"
-        marks = dict(landmarks_for(kind, f, data.z, np.asarray(data.inside_window)))
+        marks = part_landmarks(part, f, data)
     except Exception as exc:  # the live line is information; the fit step decides
         return f"{label}: no landmarks ({exc})"
-    return result_line(
-        label,
-        part.spec.kind,
-        marks,
-        nominal=part.spec.nominal,
-        tolerance=part.spec.tolerance,
-        outside=data.points_outside_window,
-        z_at_nominal=z_at_nominal(part.spec, data),
-        nominal_at_hz=part.spec.nominal_at_hz if part.spec.kind == "bead" else None,
-    )
+    return landmark_line(label, part, marks, data)

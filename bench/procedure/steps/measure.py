@@ -8,8 +8,6 @@ from typing import Any
 import numpy as np
 
 from bench.plausibility import check_part
-from bench.procedure.display import result_line
-from bench.procedure.operators import REPEAT
 from bench.procedure.plan import GAIN_PHASE, SHUNT, SINGLE_MOUNT_METHODS, Step
 from bench.procedure.processing import (
     averaged,
@@ -17,18 +15,19 @@ from bench.procedure.processing import (
     mount_short_impedance,
     open_fit,
     sample_impedance,
-    z_at_nominal,
 )
 from bench.procedure.steps import bias, single_mount
 from bench.procedure.steps.context import RunContext
-from bench.procedure.steps.sweep import cables_to, decide, select, sweeps
+from bench.procedure.steps.live import landmark_line, part_landmarks
+from bench.procedure.steps.sweep import cables_to, sample_done, select, sweeps
 from bench.runstore import DONE
 
 
-def place(ctx: RunContext, placement: Any) -> None:
-    """Cables on the fixture, ``placement``'s batch loaded and its position selected."""
+def place(ctx: RunContext, placement: Any, cables: str = "fixture") -> None:
+    """Cables on the fixture (``cables``: the network analyser's ``fixture``, or
+    ``gain-phase``), ``placement``'s batch loaded and its position selected."""
     plan = ctx.plan
-    cables_to(ctx, "fixture")
+    cables_to(ctx, cables)
     if ctx.batch != placement.batch:
         batch = plan.batches[placement.batch]
         with ctx.pause():
@@ -71,9 +70,7 @@ def measure(ctx: RunContext, step: Step) -> None:
                 result += f"\n    IMPLAUSIBLE: {problem}" + (
                     " Repeat (r) once it is fixed." if ctx.operator.guided else ""
                 )
-        if not ctx.operator.guided:
-            ctx.display.result(result)
-        if decide(ctx, step, label, result) != REPEAT:
+        if sample_done(ctx, step, label, result):
             break
 
 
@@ -95,7 +92,6 @@ def live_result(ctx: RunContext, step: Step, part: Any) -> str:
     except Exception as exc:  # the live line is information; the fit step decides
         return f"{label}: no landmarks ({exc})"
     ctx.last_live = data
-    z_nominal = z_at_nominal(part.spec, data)
     main = main_value(part.spec, marks, data)
     reference = None
     if not step.bias_v:
@@ -103,26 +99,13 @@ def live_result(ctx: RunContext, step: Step, part: Any) -> str:
             ctx.zero_bias[key] = main
     else:
         reference = zero_bias_reference(ctx, step, part)
-    return result_line(
-        label,
-        part.spec.kind,
-        marks,
-        nominal=part.spec.nominal,
-        tolerance=part.spec.tolerance,
-        outside=data.points_outside_window,
-        bias_v=step.bias_v,
-        reference=reference,
-        z_at_nominal=z_nominal,
-        nominal_at_hz=part.spec.nominal_at_hz if part.spec.kind == "bead" else None,
-    )
+    return landmark_line(label, part, marks, data, bias_v=step.bias_v, reference=reference)
 
 
 def live_landmarks(
     ctx: RunContext, placement: Any, part: Any, f: np.ndarray, s: np.ndarray
 ) -> tuple[dict[str, Any], Any]:
     """(landmarks, impedance data) of one sample's raw sweep with the quick correction."""
-    from bench.core.landmarks import landmarks_for
-
     plan, store = ctx.plan, ctx.store
     # A quick through-response correction: the live line is a first look; the fit step
     # applies the run's full calibration.
@@ -135,8 +118,7 @@ def live_landmarks(
         ctx.quick_shorts[placement.position] = z_short
     data = sample_impedance(plan, plan.analysis, f, s21n, z_short, quick_open(ctx, placement))
     valid = np.asarray(data.inside_window) & (f >= ctx.loops.get(placement.position, 0.0))
-    kind = "capacitor" if part.spec.kind in ("mlcc", "bulk") else "inductor"
-    return dict(landmarks_for(kind, f, data.z, valid)), data
+    return part_landmarks(part, f, data, valid), data
 
 
 def zero_bias_reference(ctx: RunContext, step: Step, part: Any) -> float | None:

@@ -9,7 +9,7 @@ import numpy as np
 
 from bench.errors import RunError
 from bench.plausibility import check_mount_short
-from bench.procedure.operators import REPEAT, SKIP
+from bench.procedure.operators import REPEAT
 from bench.procedure.plan import GAIN_PHASE, SINGLE_MOUNT_METHODS, Step
 from bench.procedure.processing import (
     ground_loop,
@@ -21,11 +21,9 @@ from bench.procedure.processing import (
 from bench.procedure.steps import single_mount
 from bench.procedure.steps.context import RunContext
 from bench.procedure.steps.sweep import (
-    cables_to,
+    checked_capture_done,
     decide,
-    implausible,
-    keep_implausible,
-    select,
+    prepare_capture,
     sweeps,
 )
 from bench.units import format_si
@@ -43,16 +41,7 @@ def mount_open(ctx: RunContext, step: Step) -> None:
     assert step.position is not None
     pos = step.position
     while True:
-        cables_to(ctx, "fixture")
-        if pos not in ctx.emptied:
-            # One action for every open still to capture, like the straps.
-            todo = ctx.pending_positions("mount_open")
-            with ctx.pause():
-                ctx.operator.empty_mounts(todo)
-            ctx.emptied.update(todo)
-            ctx.strapped.difference_update(todo)
-            ctx.batch = None
-        select(ctx, pos)
+        prepare_capture(ctx, "mount_open", pos)
         sweeps(ctx, step, f"open mount, position {pos}")
         # The short usually comes later; the mount's series milliohms are nothing beside
         # the pads' kilohms, and processing subtracts the short once it exists.
@@ -81,15 +70,7 @@ def mount_short(ctx: RunContext, step: Step) -> None:
     pos = step.position
     plan, store = ctx.plan, ctx.store
     while True:
-        cables_to(ctx, "fixture")
-        if pos not in ctx.strapped:
-            todo = ctx.pending_positions("mount_short")
-            with ctx.pause():
-                ctx.operator.strap_mounts(todo)
-            ctx.strapped.update(todo)
-            ctx.emptied.difference_update(todo)
-            ctx.batch = None
-        select(ctx, pos)
+        prepare_capture(ctx, "mount_short", pos)
         sweeps(ctx, step, f"mount short, position {pos}")
         f, z_short = mount_short_impedance(plan, ctx.correction(), store, pos)
         loop = ground_loop(f, z_short, pos)
@@ -97,12 +78,7 @@ def mount_short(ctx: RunContext, step: Step) -> None:
         if loop.detected:
             result += f"; ground loop below {format_si(loop.valid_above_hz, 'Hz')}"
         problem = check_mount_short(f, z_short, pos)
-        what = f"mount short {pos}"
-        result = implausible(ctx, step, what, problem, result)
-        choice = decide(ctx, step, what, result)
-        if choice != REPEAT:
-            if choice != SKIP:
-                keep_implausible(ctx, what, problem)
+        if checked_capture_done(ctx, step, f"mount short {pos}", problem, result):
             break
         if problem is not None:
             ctx.strapped.discard(pos)  # the hands are asked to fit the strap again

@@ -19,6 +19,7 @@ from bench.runstore import DONE, SKIPPED, file_stem
 def fit(ctx: RunContext, step: Step) -> None:
     ctx.display.step("fitting models")
     from bench.exports import main_landmark, zero_bias_values
+    from bench.procedure.lot_family import family_record
     from bench.verdicts import kind_of, shown_landmarks
 
     summary = build_summary(ctx.store, ctx.plan)
@@ -26,7 +27,7 @@ def fit(ctx: RunContext, step: Step) -> None:
     models = ctx.store.root / "models"
     for sample in summary.samples:
         if sample.fit is not None:
-            record = sample.fit.to_json()
+            record = {**sample.fit.to_json(), **family_record(sample)}
             if sample.setups:
                 record["setups"] = setups_json(sample.setups)
             text = json.dumps(record, indent=2, default=_plain)

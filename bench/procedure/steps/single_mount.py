@@ -5,14 +5,12 @@ from __future__ import annotations
 
 from typing import Any
 
-import numpy as np
-
 from bench.procedure import methods
-from bench.procedure.display import result_line
 from bench.procedure.operators import REPEAT
 from bench.procedure.plan import Step
 from bench.procedure.steps.context import RunContext
-from bench.procedure.steps.sweep import cables_to, decide, sweeps
+from bench.procedure.steps.live import landmark_line, part_landmarks
+from bench.procedure.steps.sweep import cables_to, decide, sample_done, sweeps
 
 
 def _fill(ctx: RunContext, method: str, item: Any, key: str) -> None:
@@ -60,17 +58,12 @@ def measure(ctx: RunContext, step: Step) -> None:
         _fill(ctx, method, placement, f"{placement.part}/{placement.sample}")
         sweeps(ctx, step, label)
         result = live_result(ctx, step, part, label)
-        if not ctx.operator.guided:
-            ctx.display.result(result)
-        if decide(ctx, step, label, result) != REPEAT:
+        if sample_done(ctx, step, label, result):
             break
 
 
 def live_result(ctx: RunContext, step: Step, part: Any, label: str) -> str:
     """Landmarks of the sample just measured on a single mount (quick correction)."""
-    from bench.core.landmarks import landmarks_for
-    from bench.procedure.processing import z_at_nominal
-
     method = step.method
     try:
         f, s = ctx.last_average()
@@ -81,17 +74,7 @@ def live_result(ctx: RunContext, step: Step, part: Any, label: str) -> str:
         data = methods.single_mount_impedance(
             ctx.plan, ctx.plan.analysis, ctx.correction(), method, f, s, mount, quick=True
         )
-        kind = "capacitor" if part.spec.kind in ("mlcc", "bulk") else "inductor"
-        marks = dict(landmarks_for(kind, f, data.z, np.asarray(data.inside_window)))
+        marks = part_landmarks(part, f, data)
     except Exception as exc:  # the live line is information; the fit step decides
         return f"{label}: no landmarks ({exc})"
-    return result_line(
-        label,
-        part.spec.kind,
-        marks,
-        nominal=part.spec.nominal,
-        tolerance=part.spec.tolerance,
-        outside=data.points_outside_window,
-        z_at_nominal=z_at_nominal(part.spec, data),
-        nominal_at_hz=part.spec.nominal_at_hz if part.spec.kind == "bead" else None,
-    )
+    return landmark_line(label, part, marks, data)

@@ -29,18 +29,47 @@ def setup(ctx: RunContext) -> None:
 
 
 def cables_to(ctx: RunContext, target: str) -> None:
+    """Have the hands connect ``target``: ``fixture`` (the network analyser's cables),
+    ``gain-phase`` (the fixture on the gain-phase analyser), a single mount's method or a
+    calibration standard; nothing when it is connected already in this session."""
     setup(ctx)
     if ctx.cables == target:
         return
     with ctx.pause():
         if target == "fixture":
             ctx.operator.connect_fixture()
+        elif target == GAIN_PHASE:
+            ctx.operator.connect_gain_phase()
         elif target in SINGLE_MOUNT_METHODS:
             ctx.operator.connect_mount(target)
         else:
             ctx.operator.connect_standard(target)
     ctx.cables = target
     ctx.store.log(f"cables: {target}")
+
+
+def prepare_capture(ctx: RunContext, kind: str, position: int, cables: str = "fixture") -> None:
+    """Cables to the fixture (``cables``: ``fixture`` or ``gain-phase``), the mount of
+    ``position`` strapped (``kind`` ``mount_short``) or emptied (``mount_open``), and the
+    position selected.
+
+    The hands strap (or empty) every position whose capture is still to do in one action,
+    so a fixture is prepared once, not position by position.
+    """
+    cables_to(ctx, cables)
+    short = kind == "mount_short"
+    done, undone = (ctx.strapped, ctx.emptied) if short else (ctx.emptied, ctx.strapped)
+    if position not in done:
+        todo = list(dict.fromkeys(ctx.pending_positions(kind)))
+        with ctx.pause():
+            if short:
+                ctx.operator.strap_mounts(todo)
+            else:
+                ctx.operator.empty_mounts(todo)
+        done.update(todo)
+        undone.difference_update(todo)
+        ctx.batch = None
+    select(ctx, position)
 
 
 def select(ctx: RunContext, position: int) -> None:
@@ -132,6 +161,14 @@ def decide(ctx: RunContext, step: Step, label: str, result: str) -> str:
     return "continue"
 
 
+def sample_done(ctx: RunContext, step: Step, label: str, result: str) -> bool:
+    """A sample's live line: shown at once when unattended, and the operator's choice in a
+    guided session. True when the step is done, False when the operator repeats it."""
+    if not ctx.operator.guided:
+        ctx.display.result(result)
+    return decide(ctx, step, label, result) != REPEAT
+
+
 def implausible(ctx: RunContext, step: Step, what: str, problem: str | None, result: str) -> str:
     """The result line of a capture, marked when a plausibility check failed.
 
@@ -148,6 +185,22 @@ def implausible(ctx: RunContext, step: Step, what: str, problem: str | None, res
 
         raise RunError(f"implausible {what}: {problem}")
     return f"IMPLAUSIBLE: {problem} Repeat (r) once it is fixed. [{result}]"
+
+
+def checked_capture_done(
+    ctx: RunContext, step: Step, what: str, problem: str | None, result: str
+) -> bool:
+    """After a capture with a plausibility check (``problem``, None when it passed): the
+    result shown (:func:`implausible`), the operator's choice (:func:`decide`), and a kept
+    failure recorded (:func:`keep_implausible`). True when the step is done (continued or
+    skipped), False when the operator repeats it."""
+    result = implausible(ctx, step, what, problem, result)
+    choice = decide(ctx, step, what, result)
+    if choice == REPEAT:
+        return False
+    if choice != SKIP:
+        keep_implausible(ctx, what, problem)
+    return True
 
 
 def keep_implausible(ctx: RunContext, what: str, problem: str | None) -> None:

@@ -1,0 +1,235 @@
+"""How long a run takes: the estimate given at its start, and what it really took.
+
+The estimate adds up what each pending step costs:
+
+- **instruments**: each sweep (the analyser's own sweep time when it reports one, else
+  the model below) times the averages, the fixture switch's settling per position
+  change, and for each bias point the ramp up and down, the settle wait and the
+  discharge wait; plus zbench's own work per sweep (transfer, storing, the live line);
+- **operator**: a person's allowance per physical action (a cable moved or a standard
+  fitted, a part or strap fitted by hand) and, in a guided session, per result read and
+  answered. The simulated bench's scripted hands take no time;
+- **processing**: the fits, the exports and the report.
+
+On the simulated bench every instrument duration and every wait of zbench's on the
+bench (ramp dwell, settle, discharge) runs ``time_scale`` times faster; the estimate is
+scaled the same way, so it stays comparable with the run's measured time.
+
+The runner records both in the manifest (``timing``: one entry per session, with the
+estimate and the measured ``instruments``, ``operator``, ``processing`` and ``total``
+seconds).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from collections.abc import Sequence
+
+from bench.procedure.plan_types import GAIN_PHASE, SINGLE_MOUNT_METHODS, SWEEP_STEPS, Plan, Step
+
+#: A person's allowance per action (s). Common practice, no source: figures for a
+#: practised operator at a tidy bench; slower hands make the run longer, not wrong.
+CONNECT_S = 30.0  # cables moved, or a calibration standard fitted on both cable ends
+FIT_S = 15.0  # one part or strap fitted in (or removed from) a mount by hand
+DECIDE_S = 5.0  # a guided session: the result line read and answered
+CAUTION_S = 10.0  # the DC-bias caution read and acknowledged
+
+#: zbench's own time per sweep (s, not scaled): reading four traces, storing them, the
+#: live line. Measured on the simulated bench over loopback (about 20-40 ms at 21 points
+#: on an idle machine); the per-point part is the transfer of four ASCII traces.
+SWEEP_OVERHEAD_S = 0.04
+SWEEP_OVERHEAD_PER_POINT_S = 20e-6
+#: One position change of the fixture switch, settling and its confirmation (s, not
+#: scaled: a relay settles in milliseconds, the round trip dominates). Common practice.
+SWITCH_S = 0.02
+#: Processing (s): one fit per sample, bias point and method; exports; the report per part.
+FIT_EACH_S = 0.5
+EXPORT_S = 1.0
+REPORT_S = 2.0
+REPORT_PART_S = 0.5
+
+#: Step kinds whose time is the instruments' (and the hands'); the rest is processing.
+BENCH_KINDS = SWEEP_STEPS
+
+
+def network_sweep_seconds(plan: Plan) -> float:
+    """One sweep of the network analyser by the model (s): the source runs from each
+    port in turn for the four S-parameters, each point waits 1.2 periods of the IF
+    bandwidth, plus 50 ms of set-up (common practice, no source)."""
+    s = plan.sweep
+    return 0.05 + 2 * s.points * 1.2 / s.if_bandwidth
+
+
+@dataclasses.dataclass(frozen=True)
+class Estimate:
+    """The expected duration of the pending steps, by part (s of wall time)."""
+
+    sweeps: int
+    sweep_s: float  # one network-analyser sweep, wall time
+    sweep_source: str  # "the analyser" or "the model"
+    bias_s: float
+    instruments: float
+    connections: int
+    fittings: int
+    decisions: int
+    operator: float
+    processing: float
+
+    @property
+    def total(self) -> float:
+        return self.instruments + self.operator + self.processing
+
+    def record(self) -> dict[str, float | int | str]:
+        return {
+            **{k: round(v, 3) if isinstance(v, float) else v for k, v in vars(self).items()},
+            "total": round(self.total, 3),
+        }
+
+    def text(self) -> str:
+        parts = [
+            f"instruments {duration(self.instruments)} ({self.sweeps} "
+            f"sweep{'' if self.sweeps == 1 else 's'} of "
+            f"{duration(self.sweep_s)} from {self.sweep_source}"
+            + (f", bias ramps and waits {duration(self.bias_s)}" if self.bias_s else "")
+            + ")"
+        ]
+        if self.operator:
+            allowances = [f"{CONNECT_S:g} s per connection ×{self.connections}"]
+            allowances.append(f"{FIT_S:g} s per part or strap fitted ×{self.fittings}")
+            if self.decisions:
+                allowances.append(f"{DECIDE_S:g} s per result answered ×{self.decisions}")
+            shown = ", ".join(allowances)
+            parts.append(f"operator {duration(self.operator)} (allowance {shown})")
+        parts.append(f"fit and report {duration(self.processing)}")
+        return f"estimated {duration(self.total)}: " + "; ".join(parts)
+
+
+def estimate(
+    plan: Plan,
+    steps: Sequence[Step] | None = None,
+    *,
+    sweep_s: float | None = None,
+    gain_phase_sweep_s: float | None = None,
+    time_scale: float = 1.0,
+    person: bool = True,
+    guided: bool | None = None,
+    caution: bool = False,
+) -> Estimate:
+    """The duration of ``steps`` (default: the whole plan).
+
+    ``sweep_s``/``gain_phase_sweep_s``: one sweep as the instrument reports it (its own
+    seconds), else the model. ``time_scale``: the simulated bench's clock compression.
+    ``person``: a person does the physical actions (else the simulated hands, no time);
+    ``guided`` (default: the plan's mode) adds the answer after each sweep.
+    """
+    steps = list(plan.steps if steps is None else steps)
+    guided = plan.mode == "guided" if guided is None else guided
+    source = "the analyser" if sweep_s is not None else "the model"
+    one = (network_sweep_seconds(plan) if sweep_s is None else sweep_s) * time_scale
+    gp = None
+    if plan.gain_phase is not None:
+        gp = gain_phase_sweep_s or plan.gain_phase.sweep_seconds()
+        gp *= time_scale
+    overhead = SWEEP_OVERHEAD_S + 4 * SWEEP_OVERHEAD_PER_POINT_S * plan.sweep.points
+    n_sweeps = 0
+    instruments = bias_total = 0.0
+    switch_at: int | None = None
+    b = plan.bias
+    for step in steps:
+        if step.kind not in SWEEP_STEPS:
+            continue
+        n_sweeps += plan.sweep.averages
+        this = gp if (step.method == GAIN_PHASE and gp is not None) else one
+        instruments += plan.sweep.averages * (this + overhead)
+        on_switch = step.position is not None and step.method not in SINGLE_MOUNT_METHODS
+        if on_switch and step.position != switch_at:
+            instruments += SWITCH_S
+            switch_at = step.position
+        if step.bias_v:
+            ramp = math.ceil(abs(step.bias_v) / b.ramp_step - 1e-9) * b.ramp_dwell_s
+            waits = (2 * ramp + b.settle_s + b.discharge_s) * time_scale
+            bias_total += waits
+            instruments += waits
+    connections, fittings, decisions = actions(plan, steps) if person else (0, 0, 0)
+    if not guided:
+        decisions = 0
+    operator = CONNECT_S * connections + FIT_S * fittings + DECIDE_S * decisions
+    if person and caution:
+        operator += CAUTION_S
+    kinds = {s.kind for s in steps}
+    processing = 0.0
+    if "fit" in kinds:
+        processing += FIT_EACH_S * sum(len(p.samples) * len(p.bias) for p in plan.parts)
+    if "export" in kinds:
+        processing += EXPORT_S
+    if "report" in kinds:
+        processing += REPORT_S + REPORT_PART_S * len(plan.parts)
+    return Estimate(
+        sweeps=n_sweeps,
+        sweep_s=one,
+        sweep_source=source,
+        bias_s=bias_total,
+        instruments=instruments,
+        connections=connections,
+        fittings=fittings,
+        decisions=decisions,
+        operator=operator,
+        processing=processing,
+    )
+
+
+def actions(plan: Plan, steps: Sequence[Step]) -> tuple[int, int, int]:
+    """(connections, fittings, decisions) a person makes for ``steps``: the cables moved
+    or a standard fitted; each part or strap fitted or removed by hand; one answer per
+    swept step. Follows what the steps ask of the hands (the straps and empties of every
+    pending position in one go, a batch of parts at a time)."""
+    connections = fittings = decisions = 0
+    cables: str | None = None
+    strapped: set[int] = set()
+    emptied: set[int] = set()
+    batch: int | None = None
+    for i, step in enumerate(steps):
+        if step.kind not in SWEEP_STEPS:
+            continue
+        decisions += 1
+        if step.kind == "calibrate":
+            target = step.standard
+        elif step.method in SINGLE_MOUNT_METHODS:
+            target = step.method
+        else:
+            target = "fixture"
+        if target != cables:
+            connections += 1
+            cables = target
+        if step.method in SINGLE_MOUNT_METHODS:
+            fittings += 1  # the gap emptied, the strap, or one sample
+        elif step.kind in ("mount_short", "mount_open") and step.method != GAIN_PHASE:
+            done = strapped if step.kind == "mount_short" else emptied
+            if step.position not in done:
+                todo = {
+                    s.position
+                    for s in steps[i:]
+                    if s.kind == step.kind and s.position is not None and s.method == step.method
+                }
+                fittings += len(todo)
+                done.update(todo)
+                (emptied if step.kind == "mount_short" else strapped).difference_update(todo)
+                batch = None
+        elif step.placement is not None and batch != step.placement.batch:
+            batch = step.placement.batch
+            fittings += len(plan.batches[batch])
+    return connections, fittings, decisions
+
+
+def duration(seconds: float) -> str:
+    """``4.2 s``, ``42 s``, ``3 min 05 s``, ``1 h 02 min``."""
+    if seconds < 10:
+        return f"{seconds:.1f} s"
+    hours, rest = divmod(round(seconds), 3600)
+    minutes, secs = divmod(rest, 60)
+    if hours:
+        return f"{hours} h {minutes:02d} min"
+    if minutes:
+        return f"{minutes} min {secs:02d} s"
+    return f"{secs} s"

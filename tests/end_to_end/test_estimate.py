@@ -1,0 +1,82 @@
+"""The run's time estimate against the time the run really takes.
+
+A small procedure runs on the simulated bench through ``zbench run --sim`` with its clock
+compressed (``--time-scale``); sweeps are paced slow enough (narrow IF bandwidth) that
+the instruments' time dominates zbench's own, as on a real bench. The run records its
+estimate and its measured durations in the manifest; the estimate of the instruments'
+part must lie within 20 % of the measured one (the issue's bound).
+"""
+
+from __future__ import annotations
+
+import json
+
+from click.testing import CliRunner
+
+from bench.cli import cli
+from bench.procedure.estimate import actions, estimate
+from bench.procedure.plan import plan_from_text
+
+# 21 points at 2.5 Hz IF bandwidth: about 20 s per sweep on the simulated analyser's
+# clock, 1 s of wall time at time scale 0.05; one bias point with its ramps and waits.
+PACED = """\
+name: paced
+mode: unattended
+instruments:
+  analyzer: {max_power: 0 dBm, timeout: 2 s}
+  dc_source: {max_voltage: 20 V, max_current: 20 mA, timeout: 1 s}
+  switch: {timeout: 1 s}
+  bench: {timeout: 1 s}
+sweep: {start: 1 kHz, stop: 100 MHz, points: 21, if_bandwidth: 2.5 Hz, power: 0 dBm}
+fixture:
+  positions: 8
+  use_positions: [1]
+  isolation_transformer: true
+  bias_tee_rating: 25 V
+  dc_block_rating: 50 V
+calibration: {method: through}
+bias: {ramp_step: 1 V, ramp_dwell: 4 s, settle: 6 s, discharge: 6 s, current_limit: 10 mA}
+parts:
+  - {name: MC22-6V3, kind: mlcc, nominal: 22u, tolerance: 20 %, rated_voltage: 6.3 V,
+     samples: 1, bias: [0 V, 2 V]}
+steps: [calibrate, measure]
+"""
+
+
+def test_estimate_within_20_percent_of_the_measured_run(tmp_path):
+    proc = tmp_path / "paced.yaml"
+    proc.write_text(PACED, encoding="utf-8")
+    args = ["run", str(proc), "--sim", "--time-scale", "0.05", "--yes", "--quiet"]
+    result = CliRunner().invoke(cli, [*args, "--out", str(tmp_path / "runs")])
+    assert result.exit_code == 0, result.output
+    # The estimate is said at the start and the real duration at the end.
+    assert "estimated " in result.output and "took " in result.output
+    (manifest_path,) = (tmp_path / "runs").glob("*-paced/manifest.json")
+    (timing,) = json.loads(manifest_path.read_text(encoding="utf-8"))["timing"]
+    est, took = timing["estimated"], timing["measured"]
+    assert timing["time_scale"] == 0.05
+    assert est["sweeps"] == 3 and est["sweep_source"] == "the analyser"
+    # Ramps of 2 x 4 s up and down, settle 6 s, discharge 6 s, on the compressed clock.
+    assert abs(est["bias_s"] - 0.05 * (2 * 2 * 4 + 6 + 6)) < 1e-6
+    assert est["operator"] == 0  # the simulated hands take no time
+    assert abs(est["instruments"] - took["instruments"]) <= 0.2 * took["instruments"], timing
+
+
+def test_a_person_is_allowed_time_for_each_action():
+    plan = plan_from_text(
+        PACED.replace("mode: unattended", "mode: guided")
+        .replace("samples: 1", "samples: 2")
+        .replace("use_positions: [1]", "use_positions: [1, 2]")
+        .replace("[calibrate, measure]", "[calibrate, mount_short, measure]"),
+        "paced.yaml",
+    )
+    # Cables: the through, then the fixture; straps in both positions, then both
+    # samples placed as one batch; one answer per sweep in a guided session.
+    assert actions(plan, plan.steps) == (2, 4, 1 + 2 + 4)
+    guided = estimate(plan)
+    assert guided.operator > 0 and guided.decisions == 7
+    unattended = estimate(plan, guided=False)
+    assert unattended.decisions == 0 and unattended.operator < guided.operator
+    assert estimate(plan, person=False).operator == 0
+    # The simulated clock compresses the instruments' time, not the person's.
+    assert estimate(plan, time_scale=0.5).instruments < guided.instruments
