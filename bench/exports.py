@@ -44,21 +44,11 @@ import numpy as np
 from bench.errors import ZbenchError
 from bench.files import atomic_write_text
 from bench.results import PartSpec, RunSummary, SampleResult
+from bench.units import LANDMARK_UNITS
 
 CAPACITOR_KINDS = ("mlcc", "bulk")
 CAPACITOR_LANDMARKS = ("c_low", "esl", "srf", "esr_at_srf")
 INDUCTOR_LANDMARKS = ("l_low", "r_dc", "srf", "z_at_srf", "c_par")
-LANDMARK_UNITS = {
-    "c_low": "F",
-    "esl": "H",
-    "srf": "Hz",
-    "esr_at_srf": "Ω",
-    "l_low": "H",
-    "r_dc": "Ω",
-    "z_at_srf": "Ω",
-    "c_par": "F",
-    "z_at_nominal_hz": "Ω",
-}
 #: Units as written in the CSV files (ASCII, so every spreadsheet reads them).
 CSV_UNITS = {key: unit.replace("Ω", "ohm") for key, unit in LANDMARK_UNITS.items()}
 ALL_LANDMARKS = ("c_low", "esl", "srf", "esr_at_srf", "l_low", "r_dc", "z_at_srf", "c_par")

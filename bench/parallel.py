@@ -40,24 +40,35 @@ def worker_count(jobs: int | None, tasks: int) -> int:
     return max(1, min(wanted, tasks))
 
 
-def _context():
+def _context(preload: tuple[str, ...] = ()):
     import multiprocessing
 
+    modules = [*PRELOAD, *preload]
     if threading.active_count() == 1 and "fork" in multiprocessing.get_all_start_methods():
         import importlib
 
-        for name in PRELOAD:  # imported once here, inherited by every worker
+        for name in modules:  # imported once here, inherited by every worker
             importlib.import_module(name)
         return multiprocessing.get_context("fork")
     if "forkserver" in multiprocessing.get_all_start_methods():
         context = multiprocessing.get_context("forkserver")
-        context.set_forkserver_preload(PRELOAD)
+        # Takes effect when the server starts (the first pool of the process).
+        context.set_forkserver_preload(modules)
         return context
     return multiprocessing.get_context("spawn")
 
 
-def ordered_map(fn: Callable[[T], R], items: Iterable[T], jobs: int | None = None) -> Iterator[R]:
-    """``fn`` over ``items`` on up to ``jobs`` processes (all cores when None), in order."""
+def ordered_map(
+    fn: Callable[[T], R],
+    items: Iterable[T],
+    jobs: int | None = None,
+    *,
+    preload: tuple[str, ...] = (),
+) -> Iterator[R]:
+    """``fn`` over ``items`` on up to ``jobs`` processes (all cores when None), in order.
+
+    ``preload`` names modules the workers need besides :data:`PRELOAD` (imported before
+    the first task where the start method allows)."""
     todo = list(items)
     workers = worker_count(jobs, len(todo))
     if workers == 1:
@@ -66,7 +77,7 @@ def ordered_map(fn: Callable[[T], R], items: Iterable[T], jobs: int | None = Non
         return
     from concurrent.futures import ProcessPoolExecutor
 
-    pool = ProcessPoolExecutor(max_workers=workers, mp_context=_context())
+    pool = ProcessPoolExecutor(max_workers=workers, mp_context=_context(preload))
     try:
         futures = [pool.submit(fn, item) for item in todo]
         for future in futures:

@@ -668,7 +668,11 @@ def png_bytes(
     fig.set_dpi(dpi)
     fig.patch.set_facecolor("white")
     canvas.draw()
-    rgb = Image.fromarray(np.asarray(canvas.buffer_rgba())[..., :3])
+    # PIL reads the canvas' RGBA buffer in place and drops alpha itself (a numpy slice of
+    # it would be copied first, several times slower).
+    rgb = Image.frombuffer(
+        "RGBA", canvas.get_width_height(), canvas.buffer_rgba(), "raw", "RGBA", 0, 1
+    ).convert("RGB")
     # No dithering: it would speckle the flat shading and grow the file.
     image = rgb.quantize(colors=colours, method=Image.Quantize.FASTOCTREE, dither=Image.Dither.NONE)
     image.save(buffer, format="png", dpi=(dpi, dpi))

@@ -35,7 +35,7 @@ from bench.report_html import (
     verdict_html,
     warnings_list,
 )
-from bench.report_sample import Figures, landmark_label, points_text, sample_section
+from bench.report_sample import Figures, Plot, landmark_label, points_text, sample_section
 from bench.results import PartSpec, RunSummary, SampleResult
 from bench.units import format_si
 
@@ -222,7 +222,7 @@ def _lot_html(summary: RunSummary, spec: PartSpec, figs: Figures) -> str:
     if len(overlay) > 1:
         out.append(
             figs.embed(
-                plots.lot_figure(spec.name, overlay),
+                Plot(plots.lot_figure, (spec.name, overlay)),
                 f"{spec.name}_lot",
                 f"{spec.name}: every sample at {lowest:g} V overlaid.",
             )
@@ -235,10 +235,10 @@ def _lot_html(summary: RunSummary, spec: PartSpec, figs: Figures) -> str:
                 continue
             out.append(
                 figs.embed(
-                    plots.lot_figure(
-                        spec.name,
-                        curves,
-                        title=f"{spec.name} / {name}: |Z| and ESR at each DC bias",
+                    Plot(
+                        plots.lot_figure,
+                        (spec.name, curves),
+                        {"title": f"{spec.name} / {name}: |Z| and ESR at each DC bias"},
                     ),
                     f"{spec.name}_{name}_bias_overlay",
                     f"{spec.name} / {name}: |Z| and ESR at every DC bias point overlaid.",
@@ -281,7 +281,7 @@ def _lot_html(summary: RunSummary, spec: PartSpec, figs: Figures) -> str:
         out.append("<h4>Capacitance versus DC bias</h4>")
         out.append(
             figs.embed(
-                plots.bias_figure(spec.name, curves, nominal=spec.nominal),
+                Plot(plots.bias_figure, (spec.name, curves), {"nominal": spec.nominal}),
                 f"{spec.name}_bias",
                 f"{spec.name}: c_low versus DC bias, and its change from {reference}"
                 + ("; dotted: the nominal value (stated at 0 V)." if spec.nominal else "."),
@@ -389,7 +389,7 @@ def report_html(summary: RunSummary, run_dir: Path) -> tuple[str, list[Path]]:
         + "\n".join(part for part in body if part)
         + "\n</body></html>\n"
     )
-    return text, figs.paths
+    return figs.render(text), figs.paths
 
 
 def write_report(run_dir: Path, summary: RunSummary) -> Path:

@@ -35,10 +35,9 @@ import warnings
 from collections.abc import Iterable
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Literal
+from typing import TYPE_CHECKING, Literal
 
 import numpy as np
-import skrf
 from numpy.typing import ArrayLike, NDArray
 
 from bench.core.conversions import reflection_z, series_through_z, shunt_through_z
@@ -53,6 +52,9 @@ from bench.touchstone_scan import (
     network_matrix,
     scan_touchstone,
 )
+
+if TYPE_CHECKING:
+    import skrf
 
 __all__ = [
     "MAX_ABS_S",
@@ -253,10 +255,10 @@ def load_measurement(
             method_source="option" if method else "file",
             **common,
         )
-    if parameter == "z":
-        s = skrf.network.z2s(matrix, z0)
-    elif parameter == "y":
-        s = skrf.network.y2s(matrix, z0)
+    if parameter in ("z", "y"):
+        import skrf  # only a Z or Y file of two ports needs the conversion
+
+        s = (skrf.network.z2s if parameter == "z" else skrf.network.y2s)(matrix, z0)
     else:
         s = matrix
     stated = method_from_comments(comments)
@@ -364,6 +366,8 @@ def _network(f: ArrayLike, data: NDArray[np.complex128], z0: float, comments: It
         raise ValueError(f"frequencies {ff.shape} and data {data.shape} do not match")
     if ff.size >= 2 and not np.all(np.diff(ff) > 0):
         raise ValueError("frequencies must be strictly increasing")
+    import skrf  # writing only: reading and fitting an S file do without it
+
     text = "\n".join(str(c) for c in comments)
     return skrf.Network(
         frequency=skrf.Frequency.from_f(ff, unit="Hz"),
@@ -419,6 +423,8 @@ def write_touchstone_z(
     zz = np.asarray(z, dtype=complex).reshape(-1, 1, 1)
     if not np.all(np.isfinite(zz)):
         raise ValueError("impedance values must be finite to be written")
+    import skrf
+
     s = skrf.network.z2s(zz, z0)
     note = (
         f"impedance Z of the part; values normalised to R = {_option_r(z0)} ohm as "

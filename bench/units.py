@@ -137,3 +137,17 @@ def format_si(value: float, unit: str = "", digits: int = 4) -> str:
             return f"{value / scale:.{digits}g} {prefix}{unit}".strip()
     scale, prefix = _FORMAT_PREFIXES[-1]
     return f"{value / scale:.{digits}g} {prefix}{unit}".strip()
+
+
+#: Unit of each landmark a fit reports (SI).
+LANDMARK_UNITS = {
+    "c_low": "F",
+    "esl": "H",
+    "srf": "Hz",
+    "esr_at_srf": "Ω",
+    "l_low": "H",
+    "r_dc": "Ω",
+    "z_at_srf": "Ω",
+    "c_par": "F",
+    "z_at_nominal_hz": "Ω",
+}

@@ -156,7 +156,7 @@ def describe_plan(plan: Plan) -> str:
     )
     sweeps = sum(counts.get(k, 0) for k in SWEEP_STEPS)
     lines.append(f"  sweeps     {sweeps * s.averages}")
-    guess = estimate(plan)
+    guess = estimate(plan, caution=plan.biased)
     lines.append(f"  estimated  {_duration(guess.total)} with a person at the bench")
     parts = guess.text().split(": ", 1)[1]
     lines.append(

@@ -14,7 +14,7 @@ from bench.runstore import RunStore
 
 # The simulated analyser's sweep and settle times are compressed so the demo runs in
 # well under a minute; the physics (noise, window, parts) is unchanged.
-DEMO_TIME_SCALE = 0.02
+DEMO_TIME_SCALE = 0.005
 
 # Analyser dialect -> the simulated scenario that speaks it (command map of the same name).
 DEMO_SCENARIOS = {"default": "demo", "meas_stim": "demo_meas_stim"}

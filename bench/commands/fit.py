@@ -41,10 +41,9 @@ import click
 import numpy as np
 
 from bench.errors import FitError, InputError, ZbenchError
-from bench.exports import LANDMARK_UNITS
 from bench.files import atomic_write_text
 from bench.parallel import ordered_map
-from bench.units import format_si
+from bench.units import LANDMARK_UNITS, format_si
 
 
 class InternalError(ZbenchError):

@@ -52,7 +52,7 @@ from bench.core.fit_landmarks import (
     resonance_warnings,
 )
 from bench.core.fit_network import CompiledNetwork
-from bench.core.fit_select import Trial, covariance, dropped_elements, select
+from bench.core.fit_select import Trial, covariance, dropped_elements, lowest_bic, select
 from bench.core.landmarks import Landmarks, classify, landmarks_for
 from bench.core.model_registry import MODEL_NAMES, auto_candidates
 from bench.core.models import FAMILIES, ModelFamily
@@ -578,21 +578,40 @@ def _spread_in_log(f: NDArray[np.float64], most: int) -> NDArray[np.intp] | slic
     return np.unique(np.clip(np.searchsorted(f, targets), 0, f.size - 1))
 
 
-def cannot_win(k: int, m: int, trials: list[Trial], quality_bound: float) -> bool:
-    """True when a candidate of ``k`` elements on ``m`` residuals cannot be chosen by
+def cannot_win(
+    family: ModelFamily,
+    order: int,
+    m: int,
+    trials: list[Trial],
+    quality_bound: float,
+    fewest: int | None,
+) -> bool:
+    """True when ``family``/``order`` on ``m`` residuals cannot be chosen by
     :func:`bench.core.fit_select.select` beside ``trials``, whatever its fit.
 
-    Its criterion is at least its penalty ``k·ln m`` (χ² ≥ 0). A supported trial ``T``
-    of no more elements that meets the quality bound stays eligible, and the choice
-    (:func:`~bench.core.fit_select.lowest_bic`, larger models by a margin) takes a
-    larger candidate only when its criterion is below ``T``'s; a criterion that cannot
-    fall below ``T``'s leaves the choice as it is.
+    ``fewest`` is the fewest elements of any candidate, None while a candidate of that
+    size is still to be fitted (those stay eligible whatever their state, so they are
+    always fitted). A supported candidate has at least ``k`` elements the data see (its
+    elements less those the family marks optional), so its criterion is at least
+    ``k·ln m`` (χ² ≥ 0). When the choice among ``trials`` so far
+    (:func:`~bench.core.fit_select.lowest_bic` of the eligible) is supported, meets the
+    quality bound, sees no more than ``k`` elements and has a criterion at or below
+    ``k·ln m``, the candidate can never replace it: ``lowest_bic`` takes a later trial
+    only with a lower criterion, an unsupported one is not eligible, and the fall-backs
+    for unsupported or poor choices are not reached.
     """
-    floor = min(
-        (t.bic for t in trials if t.supported and t.q.size <= k and t.rms <= quality_bound),
-        default=math.inf,
+    names = family.element_names(order)
+    if fewest is None or not trials or len(names) <= fewest:
+        return False
+    smallest = min(t.q.size for t in trials)
+    best = lowest_bic([t for t in trials if t.supported or t.q.size == smallest])
+    k = len(names) - len(set(names) & set(family.optional))
+    return (
+        best.supported
+        and best.rms <= quality_bound
+        and best.size <= k
+        and best.bic <= k * math.log(m)
     )
-    return k * math.log(m) >= floor
 
 
 @dataclass
@@ -615,6 +634,7 @@ def _fit_family(
     others: list[Trial],
     n_used: int,
     quality_bound: float,
+    fewest: int | None,
     lower: Trial | None = None,
 ) -> tuple[list[Trial], _Climb | None]:
     """Fit the orders of one family, lowest first, until a higher one stops paying.
@@ -636,7 +656,7 @@ def _fit_family(
         k = len(family.element_names(o))
         if 2 * n_used <= k + 1:
             break
-        if cannot_win(k, 2 * f.size, [*others, *out], quality_bound):
+        if cannot_win(family, o, 2 * f.size, [*others, *out], quality_bound, fewest):
             return out, _Climb(family, orders[i:], out[-1] if out else None)
         trial = _fit_order(family, o, f, z, weight, data_marks, previous)
         out.append(trial)
@@ -675,16 +695,16 @@ def _refit(
     """The candidates again on screened points, each from where it ended (one start),
     smallest first, leaving out those that can no longer win; then the climbs that
     stopped short go on where the others now fare worse."""
+    fewest = min(t.q.size for t in trials)
     done: dict[int, Trial] = {}
     for i in sorted(range(len(trials)), key=lambda i: trials[i].q.size):
         t = trials[i]
-        if cannot_win(t.q.size, 2 * f.size, list(done.values()), quality_bound):
+        if cannot_win(t.family, t.order, 2 * f.size, list(done.values()), quality_bound, fewest):
             continue
         done[i] = _fit_order(t.family, t.order, f, z, weight, data_marks, None, starts=[t.values])
     out = [done[i] for i in sorted(done)]
     for climb in climbs:
-        k = len(climb.family.element_names(climb.orders[0]))
-        if cannot_win(k, 2 * f.size, out, quality_bound):
+        if cannot_win(climb.family, climb.orders[0], 2 * f.size, out, quality_bound, fewest):
             continue
         lower = None
         if climb.lower is not None:
@@ -705,6 +725,7 @@ def _refit(
             out,
             n_used,
             quality_bound,
+            fewest,
             lower=lower,
         )
         out += more
@@ -788,8 +809,14 @@ def fit_impedance(
         fs, zs, ws = fu[pick], zu[pick], weight[pick]
         trials: list[Trial] = []
         climbs: list[_Climb] = []
-        for family, orders in _candidates(model, kind, order):
-            more, climb = _fit_family(family, orders, fs, zs, ws, marks, trials, n, quality_bound)
+        candidates = _candidates(model, kind, order)
+        sizes = [len(family.element_names(orders[0])) for family, orders in candidates]
+        for i, (family, orders) in enumerate(candidates):
+            # Pruning waits until every candidate of the fewest elements is fitted.
+            fewest = None if min(sizes) in sizes[i + 1 :] else min(sizes)
+            more, climb = _fit_family(
+                family, orders, fs, zs, ws, marks, trials, n, quality_bound, fewest
+            )
             trials += more
             if climb is not None:
                 climbs.append(climb)

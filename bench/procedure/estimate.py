@@ -75,6 +75,7 @@ class Estimate:
     decisions: int
     operator: float
     processing: float
+    caution: bool = False
 
     @property
     def total(self) -> float:
@@ -99,6 +100,8 @@ class Estimate:
             allowances.append(f"{FIT_S:g} s per part or strap fitted ×{self.fittings}")
             if self.decisions:
                 allowances.append(f"{DECIDE_S:g} s per result answered ×{self.decisions}")
+            if self.caution:
+                allowances.append(f"{CAUTION_S:g} s for the DC-bias caution")
             shown = ", ".join(allowances)
             parts.append(f"operator {duration(self.operator)} (allowance {shown})")
         parts.append(f"fit and report {duration(self.processing)}")
@@ -155,7 +158,8 @@ def estimate(
     if not guided:
         decisions = 0
     operator = CONNECT_S * connections + FIT_S * fittings + DECIDE_S * decisions
-    if person and caution:
+    caution = person and caution
+    if caution:
         operator += CAUTION_S
     kinds = {s.kind for s in steps}
     processing = 0.0
@@ -176,6 +180,7 @@ def estimate(
         decisions=decisions,
         operator=operator,
         processing=processing,
+        caution=caution,
     )
 
 
@@ -195,8 +200,8 @@ def actions(plan: Plan, steps: Sequence[Step]) -> tuple[int, int, int]:
         decisions += 1
         if step.kind == "calibrate":
             target = step.standard
-        elif step.method in SINGLE_MOUNT_METHODS:
-            target = step.method
+        elif step.method in (*SINGLE_MOUNT_METHODS, GAIN_PHASE):
+            target = step.method  # a single mount, or the fixture on the gain-phase analyser
         else:
             target = "fixture"
         if target != cables:
@@ -223,7 +228,9 @@ def actions(plan: Plan, steps: Sequence[Step]) -> tuple[int, int, int]:
 
 
 def duration(seconds: float) -> str:
-    """``4.2 s``, ``42 s``, ``3 min 05 s``, ``1 h 02 min``."""
+    """``0.25 s``, ``4.2 s``, ``42 s``, ``3 min 05 s``, ``1 h 02 min``."""
+    if seconds < 1:
+        return f"{seconds:.2f} s"
     if seconds < 10:
         return f"{seconds:.1f} s"
     hours, rest = divmod(round(seconds), 3600)

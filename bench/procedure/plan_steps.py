@@ -156,4 +156,4 @@ def estimated_seconds(plan: Plan) -> float:
     time)."""
     from bench.procedure.estimate import estimate
 
-    return estimate(plan).total
+    return estimate(plan, caution=plan.biased).total

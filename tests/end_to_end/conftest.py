@@ -43,6 +43,34 @@ steps: [calibrate, mount_short, measure, fit, export]
 """
 
 
+# A bulk capacitor measured with the gain-phase analyser below 1 MHz and shunt-through above.
+GAIN_PHASE = """\
+name: gain-phase-bulk
+mode: unattended
+instruments:
+  analyzer: {max_power: 0 dBm, timeout: 2 s}
+  switch: {timeout: 1 s}
+  bench: {timeout: 1 s}
+  gain_phase: {command_map: gain_phase, timeout: 2 s}
+sweep: {start: 100 kHz, stop: 100 MHz, points: 61, if_bandwidth: 1 kHz, power: 0 dBm}
+gain_phase:
+  start: 10 Hz
+  stop: 1 MHz
+  points: 41
+  bandwidth: 100 Hz
+  reference_resistor: 1 ohm
+  input_resistance: 1 Mohm
+  input_capacitance: 30 pF
+  noise_floor: -100 dB
+fixture: {positions: 8, isolation_transformer: true}
+calibration: {method: through}
+parts:
+  - {name: PB345-7V1, kind: bulk, nominal: 345u, tolerance: 20 %, samples: 2,
+     method: [gain-phase, shunt-through]}
+steps: [calibrate, mount_short, measure, fit, export, report]
+"""
+
+
 @pytest.fixture
 def sim() -> Iterator[Any]:
     """A fresh simulated demo bench on free loopback ports, stopped afterwards."""
@@ -105,6 +133,7 @@ def kit() -> Any:
 
     return types.SimpleNamespace(
         SMALL=SMALL,
+        GAIN_PHASE=GAIN_PHASE,
         TIME_SCALE=TIME_SCALE,
         write_procedure=write_procedure,
         start_run=start_run,

@@ -9,35 +9,19 @@ from __future__ import annotations
 import pytest
 
 from bench.errors import RunError
+from bench.procedure import estimate
 from bench.procedure.operators import ConsoleOperator, ScriptedOperator
 from bench.runstore import DONE
+from tests.end_to_end.conftest import GAIN_PHASE
 
-# Lean: one bulk capacitor, one sample, few points; no fit.
-GAIN_PHASE_ONE = """\
-name: gain-phase-cabling
-mode: unattended
-instruments:
-  analyzer: {max_power: 0 dBm, timeout: 2 s}
-  switch: {timeout: 1 s}
-  bench: {timeout: 1 s}
-  gain_phase: {command_map: gain_phase, timeout: 2 s}
-sweep: {start: 100 kHz, stop: 100 MHz, points: 21, if_bandwidth: 1 kHz, power: 0 dBm}
-gain_phase:
-  start: 100 Hz
-  stop: 1 MHz
-  points: 11
-  bandwidth: 100 Hz
-  reference_resistor: 1 ohm
-  input_resistance: 1 Mohm
-  input_capacitance: 30 pF
-  noise_floor: -100 dB
-fixture: {positions: 8, use_positions: [1], isolation_transformer: true}
-calibration: {method: through}
-parts:
-  - {name: PB345-7V1, kind: bulk, nominal: 345u, tolerance: 20 %, samples: 1,
-     method: [gain-phase, shunt-through]}
-steps: [calibrate, mount_short, measure]
-"""
+# Lean: one sample in one position, few points; no fit.
+GAIN_PHASE_ONE = (
+    GAIN_PHASE.replace("points: 61", "points: 21")
+    .replace("points: 41", "points: 11")
+    .replace("samples: 2", "samples: 1")
+    .replace("fixture: {positions: 8,", "fixture: {positions: 8, use_positions: [1],")
+    .replace("measure, fit, export, report]", "measure]")
+)
 
 
 class _KeepsTheAnalyser(ScriptedOperator):
@@ -75,6 +59,8 @@ def test_the_hands_move_the_fixture_to_the_gain_phase_analyser_and_back(tmp_path
         "cables: on the fixture",
     ]
     assert all(store.step_state(s.id) == DONE for s in plan.steps)
+    # The time estimate allows a person one connection for each of these moves.
+    assert estimate.actions(plan, plan.steps)[0] == len(actions)
 
 
 def test_the_console_asks_for_the_gain_phase_analyser_and_back():

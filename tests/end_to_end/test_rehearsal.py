@@ -87,6 +87,12 @@ def test_a_forgotten_through_is_caught_and_repeated(tmp_path):
     assert manifest["state"] == "complete"
     assert manifest["simulated"]["manual"] is True
     assert not any(w.startswith("implausible") for w in manifest.get("warnings", []))
+    # The estimate allowed the person the prompts this session asked for, less the repeat:
+    # the through and the fixture connected, one sample placed, two results answered.
+    (timing,) = manifest["timing"]
+    est = timing["estimated"]
+    assert (est["connections"], est["fittings"], est["decisions"]) == (2, 1, 2)
+    assert est["operator"] > 0 and timing["measured"]["operator"] > 0
     log = (manifest_path.parent / "log").read_text(encoding="utf-8")
     assert "calibrate/through: sweep repeated at the operator's request" in log
 

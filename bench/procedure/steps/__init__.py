@@ -9,11 +9,15 @@ are the runner's (:mod:`bench.procedure.runner`).
 | module | steps and helpers |
 | --- | --- |
 | ``context`` | ``RunContext``: plan, store, instruments, hands, and the session's state |
-| ``sweep`` | set-up, cables, switch, sweeps (stored at once), the operator's choice |
+| ``sweep`` | set-up, cables, straps or empty mounts, switch, sweeps (stored at once), the |
+|  | operator's choice, a capture's plausibility check |
+| ``live`` | a sample's live line (landmarks from a quick correction) |
 | ``bias`` | the DC-bias caution, the source within limits, output off whatever happened |
 | ``calibrate`` | ``calibrate``; reuse of an earlier run's calibration |
 | ``mount`` | ``mount_open``, ``mount_short`` (with the ground-loop check) |
 | ``measure`` | ``measure`` and its live line |
+| ``single_mount`` | the series-through and reflection mounts' captures and samples |
+| ``gain_phase`` | the gain-phase analyser's strap captures and samples on the fixture |
 | ``outputs`` | ``fit``, ``export``, ``report`` |
 """
 
