@@ -324,16 +324,19 @@ def lot_statistics(summary: RunSummary) -> dict[str, dict[float, dict[str, Landm
     """Per part and bias point, statistics of each landmark over the fitted samples.
 
     Returns ``{part: {bias_v: {landmark: LandmarkStats}}}``. Landmarks are those of
-    the fits, plus ``z_at_nominal_hz`` for beads with a nominal frequency. Samples
-    without a fit, and non-finite values, are left out of the statistics.
+    the shown ones (:func:`bench.verdicts.shown_landmarks`, as in ``summary.csv``), plus
+    ``z_at_nominal_hz`` for beads with a nominal frequency. Samples without a fit, and
+    non-finite values, are left out of the statistics.
     """
+    from bench.verdicts import shown_landmarks
+
     values: dict[str, dict[float, dict[str, list[float]]]] = {}
     for sample in summary.samples:
         spec = summary.part(sample.part)
         if sample.fit is None:
             continue
         bucket = values.setdefault(sample.part, {}).setdefault(float(sample.bias_v), {})
-        for key, value in sample.fit.landmarks.items():
+        for key, value in shown_landmarks(sample, part_kind(spec)).items():
             finite = _finite(value)
             if finite is not None:
                 bucket.setdefault(key, []).append(finite)
@@ -372,7 +375,7 @@ def bias_table(summary: RunSummary) -> dict[str, tuple[BiasPoint, ...]]:
         spec = summary.part(sample.part)
         if spec.kind not in CAPACITOR_KINDS or sample.fit is None:
             continue
-        c_low = _finite(sample.fit.landmarks.get("c_low"))
+        _, c_low = main_landmark(spec, sample)  # the shown c_low, as summary.csv gives it
         if c_low is None:
             continue
         by_part.setdefault(sample.part, {}).setdefault(sample.sample, {})[float(sample.bias_v)] = (
@@ -664,6 +667,7 @@ def write_exports(run_dir: Path, summary: RunSummary) -> dict[str, list[Path]]:
     failed get Touchstone files and a summary row, but no subcircuit.
     """
     from bench.core.spice import library_text, on_mount_subckt_text, removed_mount, subckt_text
+    from bench.verdicts import shown_fit
 
     run_dir = Path(run_dir)
     written: dict[str, list[Path]] = {
@@ -676,8 +680,10 @@ def write_exports(run_dir: Path, summary: RunSummary) -> dict[str, list[Path]]:
         written["touchstone"].extend(_write_touchstone(run_dir, sample, series_r))
         if sample.fit is None:
             continue
+        # The comments state the run's shown landmarks (bench.verdicts), as every output does.
+        fit = shown_fit(sample, part_kind(summary.part(sample.part)))
         text = subckt_text(
-            sample.fit, sample_spice_name(sample), provenance=provenance(summary, sample, date=date)
+            fit, sample_spice_name(sample), provenance=provenance(summary, sample, date=date)
         )
         path = run_dir / "models" / f"{safe_filename(sample.label)}.sub"
         atomic_write_text(path, text)
@@ -688,7 +694,7 @@ def write_exports(run_dir: Path, summary: RunSummary) -> dict[str, list[Path]]:
         mount = removed_mount(data.f, data.z_measured, data.z, data.inside_window)
         if mount is not None:
             text = on_mount_subckt_text(
-                sample.fit,
+                fit,
                 sample_spice_name(sample),
                 *mount,
                 provenance=provenance(summary, sample, date=date),
@@ -711,7 +717,11 @@ def write_exports(run_dir: Path, summary: RunSummary) -> dict[str, list[Path]]:
             )
             subckts = [
                 *subckts,
-                subckt_text(typical.fit, typical_spice_name(spec.name), provenance=origin),
+                subckt_text(
+                    shown_fit(typical.sample, part_kind(spec), typical.fit),
+                    typical_spice_name(spec.name),
+                    provenance=origin,
+                ),
             ]
         title = f"{spec.name}: {spec.description or spec.kind}, run {summary.run_id}"
         path = run_dir / "models" / f"{safe_filename(spec.name)}.lib"

@@ -69,6 +69,11 @@ class Figures:
         self._pending.append((token, fig, path, caption))
         return token
 
+    @property
+    def queued(self) -> list[Any]:
+        """The figures queued so far (:class:`Plot` recipes or figures), in order."""
+        return [fig for _, fig, _, _ in self._pending]
+
     def render(self, text: str) -> str:
         """``text`` with every queued figure drawn, saved and put in place."""
         from bench.files import atomic_write_bytes
@@ -124,40 +129,51 @@ def points_text(sample: SampleResult) -> tuple[int, int, int | None]:
     return total, outside, used
 
 
-def _measured_landmarks(sample: SampleResult) -> dict[str, float | None]:
-    """Landmarks read straight from the points inside the window (empty if they cannot be)."""
+def _model_landmarks(sample: SampleResult) -> dict[str, float | None]:
+    """The fitted model's own landmarks: the fit's where it took the model's value, else
+    read from the model's curve on the measured grid (empty if they cannot be)."""
     from bench.core.landmarks import landmarks_for
 
+    fit = sample.fit
+    sources = dict(getattr(fit, "landmark_sources", {}) or {})
     try:
-        return dict(
-            landmarks_for(sample.fit.kind, sample.data.f, sample.data.z, sample.data.inside_window)
-        )
-    except ValueError:
-        return {}
+        curve = dict(landmarks_for(fit.kind, sample.data.f, fit.impedance(sample.data.f)))
+    except (ValueError, FloatingPointError):
+        curve = {}
+    return {
+        key: value if sources.get(key) == "model" else curve.get(key)
+        for key, value in fit.landmarks.items()
+    }
 
 
-def _landmark_table(sample: SampleResult) -> str:
+def _landmark_table(sample: SampleResult, kind: str) -> str:
+    """Each landmark as the run shows it (from the data where they give it, else the
+    model: :func:`bench.verdicts.shown`), the model's own value with its ±1σ, and how
+    far the model lies from the data."""
     fit = sample.fit
     sigma = dict(getattr(fit, "uncertainties", {}) or {})
     sigma_marks = {**sigma, **dict(getattr(fit, "landmark_uncertainties", {}) or {})}
-    measured = _measured_landmarks(sample)
+    values, sources = verdicts.shown(sample, kind)
+    model = _model_landmarks(sample)
     # A ±1σ column only when the fit states landmark uncertainties.
-    with_sigma = any(sigma_marks.get(key) is not None for key in fit.landmarks)
+    with_sigma = any(sigma_marks.get(key) is not None for key in values)
     rows = []
-    for key, value in fit.landmarks.items():
+    for key, value in values.items():
         unit = exports.LANDMARK_UNITS.get(key, "")
-        direct = measured.get(key)
+        own = model.get(key)
+        direct = value if sources.get(key) == "data" else None
         difference = (
-            percent(value / direct - 1.0)
-            if value is not None and direct and math.isfinite(direct)
+            percent(own / direct - 1.0)
+            if own is not None and direct and math.isfinite(direct)
             else "—"
         )
-        row = [esc(key), si(value, unit)]
+        row = [esc(key), si(value, unit), esc(sources.get(key, "—")), si(own, unit)]
         if with_sigma:
             row.append(si(sigma_marks.get(key), unit, 3))
-        rows.append([*row, si(direct, unit), difference])
-    headers = ["landmark", "model", *(["±1σ"] if with_sigma else []), "read from the data"]
-    landmarks = table([*headers, "model vs data"], rows, numeric=set(range(1, len(headers) + 1)))
+        rows.append([*row, difference])
+    headers = ["landmark", "value", "from", "model", *(["model ±1σ"] if with_sigma else [])]
+    numeric = set(range(1, len(headers) + 1)) - {2}
+    landmarks = table([*headers, "model vs data"], rows, numeric=numeric)
     rows = []
     for key, value in fit.elements.items():
         unit = _element_unit(key)
@@ -286,7 +302,8 @@ def sample_section(summary: RunSummary, spec: PartSpec, sample: SampleResult, fi
         figs.embed(
             Plot(
                 plots.sample_figure,
-                (sample.data, sample.fit),
+                # The SRF line and label: the run's shown landmarks (bench.verdicts).
+                (sample.data, verdicts.shown_fit(sample, verdicts.kind_of(spec))),
                 {"title": heading, "setups": sample.setups},
             ),
             f"{sample.label}_impedance",
@@ -301,10 +318,10 @@ def sample_section(summary: RunSummary, spec: PartSpec, sample: SampleResult, fi
         parts.append("</section>")
         return "".join(parts)
     parts.append(f"<p>Fit quality: {esc(quality_text(sample))}.</p>")
-    parts.append(_landmark_table(sample))
+    parts.append(_landmark_table(sample, verdicts.kind_of(spec)))
     parts.append(warnings_list([*sample.warnings, *sample.fit.warnings]))
     spice = subckt_text(
-        sample.fit,
+        verdicts.shown_fit(sample, verdicts.kind_of(spec)),
         exports.sample_spice_name(sample),
         provenance=exports.provenance(summary, sample),
     )

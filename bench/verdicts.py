@@ -83,25 +83,61 @@ def data_landmarks(sample: SampleResult, kind: str) -> dict[str, float | None]:
         return {}
 
 
-def shown_landmarks(sample: SampleResult, kind: str) -> dict[str, float | None]:
+def shown(
+    sample: SampleResult, kind: str, fit: Any = None
+) -> tuple[dict[str, float | None], dict[str, str]]:
+    """(values, sources) of the shown landmarks: each from the data where the data give
+    it (source ``"data"``), else from the model (``"model"``). ``fit`` stands in for the
+    sample's own fit (a typical model refitted with the lot's family, say)."""
+    fit = sample.fit if fit is None else fit
+    model = dict(fit.landmarks) if fit is not None else {}
+    data = data_landmarks(sample, kind)
+    values: dict[str, float | None] = {}
+    sources: dict[str, str] = {}
+    for key in dict.fromkeys([*model, *data]):
+        measured = _finite(data.get(key))
+        values[key] = measured if measured is not None else _finite(model.get(key))
+        sources[key] = "data" if measured is not None else "model"
+    return values, sources
+
+
+def shown_landmarks(sample: SampleResult, kind: str, fit: Any = None) -> dict[str, float | None]:
     """Each landmark from the data where the data give it, else from the model."""
-    model = dict(sample.fit.landmarks) if sample.fit is not None else {}
-    data = data_landmarks(sample, kind)
-    keys = list(dict.fromkeys([*model, *data]))
-    return {
-        k: _finite(data.get(k)) if _finite(data.get(k)) is not None else _finite(model.get(k))
-        for k in keys
-    }
+    return shown(sample, kind, fit)[0]
 
 
-def landmark_sources(sample: SampleResult, kind: str) -> dict[str, str]:
+def landmark_sources(sample: SampleResult, kind: str, fit: Any = None) -> dict[str, str]:
     """``"data"`` or ``"model"`` per shown landmark."""
-    data = data_landmarks(sample, kind)
-    model = dict(sample.fit.landmarks) if sample.fit is not None else {}
-    return {
-        k: ("data" if _finite(data.get(k)) is not None else "model")
-        for k in dict.fromkeys([*model, *data])
-    }
+    return shown(sample, kind, fit)[1]
+
+
+def shown_fit(sample: SampleResult, kind: str, fit: Any = None) -> Any:
+    """The sample's fit (or ``fit``) carrying the shown landmarks and their sources.
+
+    What a run hands to everything that prints a fit's landmarks (the figures' SRF line
+    and label, the SPICE comments, the fit JSON), so they state the values the console,
+    ``summary.csv`` and the report state. The fitter's own merge
+    (``bench.core.fit_landmarks.merge_landmarks``, which prefers the model's value where
+    it agrees with the data's within a few per cent) stays on ``sample.fit``."""
+    import dataclasses
+
+    fit = sample.fit if fit is None else fit
+    if fit is None:
+        return None
+    values, sources = shown(sample, kind, fit)
+    return dataclasses.replace(fit, landmarks=values, landmark_sources=sources)
+
+
+def fit_record(sample: SampleResult, kind: str) -> dict[str, Any]:
+    """A run sample's fit JSON (``models/<sample>.fit.json``) without its set-ups.
+
+    ``landmarks`` and ``landmark_sources`` are the shown ones (the values every other
+    output of the run gives); ``fit_landmarks`` and ``fit_landmark_sources`` keep the
+    fitter's merge, which ``zbench fit`` gives as its ``landmarks``."""
+    record = shown_fit(sample, kind).to_json()
+    record["fit_landmarks"] = dict(sample.fit.landmarks)
+    record["fit_landmark_sources"] = dict(sample.fit.landmark_sources)
+    return record
 
 
 def magnitude_at(f: Any, z: Any, at_hz: float, valid: Any = None) -> float | None:

@@ -46,11 +46,13 @@ def write_outputs(root: Path, summary: Any) -> dict[str, Any]:
     from bench.procedure.lot_family import family_record
     from bench.report import write_report
     from bench.runstore import file_stem
+    from bench.verdicts import fit_record, kind_of
 
     root = Path(root)
     for sample in summary.samples:
         if sample.fit is not None:
-            record = {**sample.fit.to_json(), **family_record(sample)}
+            kind = kind_of(summary.part(sample.part))
+            record = {**fit_record(sample, kind), **family_record(sample)}
             text = json.dumps(record, indent=2, default=str)
             atomic_write_text(root / "models" / f"{file_stem(sample.label)}.fit.json", text)
     return {"exports": write_exports(root, summary), "report": write_report(root, summary)}

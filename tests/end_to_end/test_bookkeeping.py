@@ -80,25 +80,50 @@ def test_ctrl_c_under_bias_confirms_output_off_and_discharged(tmp_path, sim, kit
 
 
 def test_console_summary_and_report_give_the_same_landmarks(tmp_path, sim, kit):
+    """Every place a run shows a landmark states the same value: the console's fit line,
+    summary.csv, the report's tables, the SRF label on the sample's figure (read from
+    the figure the report queues, as drawn), the lot statistics, the SPICE comments and
+    the fit JSON (the fitter's own merge kept beside it as ``fit_landmarks``). On this
+    bench the fitter's merge takes the model's SRF of the MLCC samples (about 1 % from
+    the data's), so a figure drawn from it would state another SRF."""
     from bench import exports
+    from bench.report_sample import Figures, Plot, sample_section
     from bench.units import format_si
 
     plan, store = kit.start_run(tmp_path, kit.SMALL)
     lines: list[str] = []
     runner = kit.run_on(sim, plan, store, lines=lines)
-    report = (
-        (store.root / "report.html").read_text(encoding="utf-8")
-        if (store.root / "report.html").exists()
-        else None
-    )
-    for row in exports.summary_rows(runner.summary):
+    summary = runner.summary
+    models = store.root / "models"
+    for row, sample in zip(exports.summary_rows(summary), summary.samples, strict=True):
         label = f"fit {row['part']}_{row['sample']}"
         (line,) = [x for x in lines if x.startswith(label + " ")]
         for key, name, unit in (("c_low", "C", "F"), ("esl", "ESL", "H"), ("srf", "SRF", "Hz")):
             shown = format_si(row[key], unit, 3)
             assert f"{name} {shown}" in " ".join(line.split()), (line, key, shown)
-        if report is not None:
-            assert format_si(row["srf"], "Hz", 4) in report
+        srf = format_si(row["srf"], "Hz", 4)
+        # The report's section of the sample: its landmark table, and its figure's label.
+        figs = Figures(tmp_path / "unused")
+        section = sample_section(summary, summary.part(sample.part), sample, figs)
+        assert f'<td>srf</td><td class="num">{srf}</td>' in section.replace("\n", "")
+        plot = figs.queued[0]
+        assert isinstance(plot, Plot)
+        figure = plot.build(*plot.args, **plot.kwargs)
+        labels = {t.get_text() for ax in figure.axes for t in ax.texts if "SRF" in t.get_text()}
+        assert labels == {f"SRF {srf}"}, labels
+        # The SPICE comment and the fit JSON.
+        sub = (models / f"{sample.label}.sub").read_text(encoding="utf-8")
+        assert f"srf = {format_si(row['srf'], 'Hz')}" in sub
+        record = json.loads((models / f"{sample.label}.fit.json").read_text(encoding="utf-8"))
+        assert record["landmarks"]["srf"] == pytest.approx(row["srf"], rel=1e-12)
+        assert record["fit_landmarks"] == pytest.approx(
+            {k: v for k, v in sample.fit.landmarks.items()}, rel=1e-12
+        )
+    # The lot statistics of a part of one sample: its shown values.
+    (bulk,) = [r for r in exports.summary_rows(summary) if r["part"] == "PB345-7V1"]
+    stats = exports.lot_statistics(summary)["PB345-7V1"][0.0]
+    assert stats["srf"].mean == pytest.approx(bulk["srf"], rel=1e-12)
+    assert stats["c_low"].mean == pytest.approx(bulk["c_low"], rel=1e-12)
     # The drive across each part: in the manifest as in summary.csv. At 0 dBm the source
     # EMF is sqrt(4·50 Ω·1 mW) = 0.447 V rms (derived), so a part never sees more.
     manifest = json.loads((store.root / "manifest.json").read_text())

@@ -207,15 +207,18 @@ def test_verdict_logic_at_the_limits():
 
 
 def test_lot_statistics_against_numpy(summary, run_dir):
+    from bench.verdicts import kind_of, shown_landmarks
+
     stats = exports.lot_statistics(summary)
     for part, by_bias in stats.items():
         for bias, landmarks in by_bias.items():
             for key, got in landmarks.items():
                 if key == "z_at_nominal_hz":
                     continue
+                # The shown landmarks, the values summary.csv gives.
                 values = np.array(
                     [
-                        s.fit.landmarks[key]
+                        shown_landmarks(s, kind_of(summary.part(part)))[key]
                         for s in summary.samples
                         if s.part == part and s.bias_v == bias and s.fit is not None
                     ]

@@ -20,19 +20,19 @@ def fit(ctx: RunContext, step: Step) -> None:
     ctx.display.step("fitting models")
     from bench.exports import main_landmark, zero_bias_values
     from bench.procedure.lot_family import family_record
-    from bench.verdicts import kind_of, shown_landmarks
+    from bench.verdicts import fit_record, kind_of, shown_landmarks
 
     summary = build_summary(ctx.store, ctx.plan)
     references = zero_bias_values(summary)
     models = ctx.store.root / "models"
     for sample in summary.samples:
         if sample.fit is not None:
-            record = {**sample.fit.to_json(), **family_record(sample)}
+            part = ctx.plan.part(sample.part)
+            record = {**fit_record(sample, kind_of(part.spec)), **family_record(sample)}
             if sample.setups:
                 record["setups"] = setups_json(sample.setups)
             text = json.dumps(record, indent=2, default=_plain)
             atomic_write_text(models / f"{file_stem(sample.label)}.fit.json", text + "\n")
-            part = ctx.plan.part(sample.part)
             name, value = main_landmark(part.spec, sample)
             bead_point = name == "z_at_nominal_hz"
             ctx.display.result(
