@@ -8,12 +8,20 @@ Errors a user can cause become a clear message and an exit code, never a traceba
 from __future__ import annotations
 
 import importlib
+import os
 import sys
 
-import click
+# One BLAS thread unless the user says otherwise, set before numpy loads: a fit's
+# matrices are small, so BLAS threads only spin (on a busy machine they cost several
+# times the fit's own work), and zbench uses the other cores through worker processes
+# (bench/parallel.py), which inherit this.
+for _name in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_name, "1")
 
-from bench import __version__
-from bench.errors import ZbenchError
+import click  # noqa: E402
+
+from bench import __version__  # noqa: E402
+from bench.errors import ZbenchError  # noqa: E402
 
 # name -> (module under bench.commands, one-line help)
 COMMANDS: dict[str, tuple[str, str]] = {

@@ -183,7 +183,11 @@ def _landmark_table(sample: SampleResult, kind: str) -> str:
             if error is not None and value and math.isfinite(error)
             else "—"
         )
-        rows.append([esc(key), si(value, unit), si(error, unit, 3), esc(relative)])
+        if key.startswith("tan"):  # a loss tangent: a plain number, not an SI quantity
+            shown = [f"{value:.4g}", "—" if error is None else f"{error:.2g}"]
+        else:
+            shown = [si(value, unit), si(error, unit, 3)]
+        rows.append([esc(key), *shown, esc(relative)])
     elements = table(["element", "value", "±1σ", "±1σ (relative)"], rows, numeric={1, 2, 3})
     return (
         '<div class="pair">'

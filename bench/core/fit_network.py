@@ -14,6 +14,7 @@ evaluated by the general tree walk (``impedance_and_jacobian``). No I/O.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
@@ -25,6 +26,7 @@ from bench.core.models.network import (
     Node,
     Parallel,
     Series,
+    _constant_phase_parts,
     _element_impedance,
     element_names,
     impedance_and_jacobian,
@@ -73,20 +75,39 @@ def _group(node: Series | Parallel, start: int) -> _Group:
 class CompiledNetwork:
     """``node`` on the grid ``f`` (Hz): ``impedance(q)`` and ``jacobian(q)`` for the log
     element values ``q`` in :attr:`names` order; ``jacobian`` gives ``dZ/dq`` of shape
-    ``(n_elements, nf)`` (``p·dZ/dp``), reusing the last ``impedance`` at the same ``q``."""
+    ``(n_values, nf)`` (``p·dZ/dp``), reusing the last ``impedance`` at the same ``q``.
+
+    Elements of a value and a shape (:data:`_POWER`) take one product for all; a ``Q``
+    element (a capacitance and its loss tangent: two values, one impedance) evaluates its
+    ladder from the branch shapes kept for the grid."""
 
     def __init__(self, node: Node, f: NDArray[np.float64]):
         self.node = node
         self.f = np.asarray(f, dtype=float)
         self.names: tuple[str, ...] = element_names(node)
         elements = _elements(node)
-        self.general = any(e.kind not in _POWER for e in elements)
+        self.general = any(e.kind not in _POWER and e.kind != "Q" for e in elements)
         jw = 2j * np.pi * self.f
-        if not self.general:
-            self._sign = np.array([_POWER[e.kind] for e in elements])
-            self._basis = np.array([_element_impedance(e, jw, 1.0) for e in elements])
-            self._root = None if isinstance(node, Element) else _group(node, 0)
         self._key = b""
+        if self.general:
+            return
+        # Each element's first value row (a Q element's loss tangent follows it).
+        rows, row = [], 0
+        for e in elements:
+            rows.append(row)
+            row += 2 if e.kind == "Q" else 1
+        self._power = np.array([i for i, e in enumerate(elements) if e.kind in _POWER], int)
+        self._power_rows = np.array([rows[i] for i in self._power], int)
+        self._sign = np.array([_POWER[elements[i].kind] for i in self._power])
+        self._basis = np.array([_element_impedance(elements[i], jw, 1.0) for i in self._power])
+        self._q_slots = []
+        for i, e in enumerate(elements):
+            if e.kind == "Q":
+                u = _constant_phase_parts(0.1, e.band)[0]  # the corners depend on the band only
+                branch = jw[None, :] / (1 + jw[None, :] / u[:, None])
+                self._q_slots.append((i, rows[i], e.band, branch, jw))
+        self._n_elements = len(elements)
+        self._root = None if isinstance(node, Element) else _group(node, 0)
 
     def _values(self, q: NDArray[np.float64]) -> dict[str, float]:
         return dict(zip(self.names, np.exp(q), strict=True))
@@ -99,23 +120,51 @@ class CompiledNetwork:
         if self.general:
             self._z, self._jac = impedance_and_jacobian(self.node, self.f, self._values(q))
         else:
-            self._ze = np.exp(self._sign * q)[:, None] * self._basis
+            q = np.asarray(q, dtype=float)
+            if not self._q_slots:
+                ze = np.exp(self._sign * q[self._power_rows])[:, None] * self._basis
+            else:
+                ze = np.empty((self._n_elements, self.f.size), dtype=complex)
+                ze[self._power] = np.exp(self._sign * q[self._power_rows])[:, None] * self._basis
+                self._q_slope = {}
+                for i, row, band, branch, jw in self._q_slots:
+                    tan = math.exp(q[row + 1])
+                    _, dc, dlog, c_par, dlog_c_par = _constant_phase_parts(tan, band)
+                    y = c_par * jw + dc @ branch
+                    dy = (c_par * dlog_c_par * jw + (dc * dlog) @ branch) * (
+                        (2 / np.pi) * tan / (1 + tan * tan)
+                    )
+                    ze[i] = 1.0 / (math.exp(q[row]) * y)
+                    self._q_slope[i] = dy / y
+            self._ze = ze
             self._inv: dict[int, NDArray[np.complex128]] = {}
             self._zg: dict[int, NDArray[np.complex128]] = {}
-            self._z = self._ze[0] if self._root is None else self._group_z(self._root)
+            self._z = ze[0] if self._root is None else self._group_z(self._root)
             self._jac = None
         self._key = key
         return self._z
 
     def jacobian(self, q: NDArray[np.float64]) -> NDArray[np.complex128]:
-        """``dZ/dq`` (``p·dZ/dp`` per element) at the log element values ``q``."""
+        """``dZ/dq`` (``p·dZ/dp`` per value) at the log element values ``q``."""
         self.impedance(q)
-        if self._jac is None:
+        if self._jac is not None:
+            return self._jac
+        if not self._q_slots:
             jac = self._sign[:, None] * self._ze
             if self._root is not None:
                 self._apply_factors(self._root, jac)
-            self._jac = jac
-        return self._jac
+        else:
+            factor = np.ones((self._n_elements, self.f.size), dtype=complex)
+            if self._root is not None:
+                self._apply_factors(self._root, factor)
+            dz = self._ze * factor  # dZ/d ln(element impedance), per element
+            jac = np.empty((len(self.names), self.f.size), dtype=complex)
+            jac[self._power_rows] = self._sign[:, None] * dz[self._power]
+            for i, row, *_ in self._q_slots:
+                jac[row] = -dz[i]
+                jac[row + 1] = -dz[i] * self._q_slope[i]
+        self._jac = jac
+        return jac
 
     def _group_z(self, g: _Group) -> NDArray[np.complex128]:
         ze = self._ze

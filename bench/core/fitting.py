@@ -73,6 +73,18 @@ DEFAULT_QUALITY_BOUND = 0.1
 # without it the points with the least noise (far from resonance) would outweigh the
 # resonance, where ESR is read.
 MODEL_ERROR_FLOOR = 0.02
+# The floor adapts to the fit once made: it becomes the error the chosen model leaves
+# beyond the points' own noise (never above MODEL_ERROR_FLOOR, never below this fraction
+# of it), so a model that follows the part far better than 2 % is weighed by the points'
+# own uncertainties and a richer model that removes a real 0.4 % misfit can win; the
+# candidates are then solved again, each from where it ended. Only a floor below
+# MODEL_ERROR_FLOOR / FLOOR_CHANGE, on a fit that misses the noise target, is worth the
+# second pass.
+# A fit within the noise target (1.5 times the noise, common practice, no source) is not
+# weighed again: its excess error is at most sqrt(1.5² − 1) times the noise.
+MIN_FLOOR_FRACTION = 0.1
+FLOOR_CHANGE = 1.5
+NOISE_TARGET_EXCESS = math.sqrt(1.5**2 - 1)
 MIN_POINTS = 10
 # A longer sweep is fitted on this many of its points, spread evenly in log f (quality is
 # still measured on every point): the cost of a fit then stays bounded whatever the file.
@@ -703,6 +715,22 @@ def _refit(
             continue
         done[i] = _fit_order(t.family, t.order, f, z, weight, data_marks, None, starts=[t.values])
     out = [done[i] for i in sorted(done)]
+    return _go_on(out, climbs, f, z, weight, data_marks, n_used, quality_bound, fewest)
+
+
+def _go_on(
+    out: list[Trial],
+    climbs: list[_Climb],
+    f: NDArray[np.float64],
+    z: NDArray[np.complex128],
+    weight: NDArray[np.float64],
+    data_marks: Landmarks,
+    n_used: int,
+    quality_bound: float,
+    fewest: int,
+) -> list[Trial]:
+    """The ``climbs`` that stopped short go on where the trials ``out`` now fare worse."""
+    out = list(out)
     for climb in climbs:
         if cannot_win(climb.family, climb.orders[0], 2 * f.size, out, quality_bound, fewest):
             continue
@@ -840,8 +868,21 @@ def fit_impedance(
     else:
         glitch[:] = False
         edge[:] = False
-    fu, zu, weight = f[used], z[used], all_weight[used]
+    fu, zu = f[used], z[used]
     pick = _spread_in_log(fu, MAX_FIT_POINTS)
+    floor = adapted_floor(best, fu, zu, u_all[used])
+    if floor < MODEL_ERROR_FLOOR / FLOOR_CHANGE and floor > NOISE_TARGET_EXCESS * np.sqrt(
+        np.mean(u_all[used] ** 2)
+    ):
+        all_weight = 1.0 / np.hypot(u_all, floor)
+        ws = all_weight[used][pick]
+        fs, zs = fu[pick], zu[pick]
+        trials = _refit(trials, [], fs, zs, ws, data_marks, n_used, quality_bound)
+        climbs = _open_climbs(trials, _candidates(model, kind, order))
+        fewest = min(t.q.size for t in trials)
+        trials = _go_on(trials, climbs, fs, zs, ws, data_marks, n_used, quality_bound, fewest)
+        best, unsupported = select(trials, quality_bound)
+    weight = all_weight[used]
     fs, zs, ws = fu[pick], zu[pick], weight[pick]
     best = _robust_refine(best, fs, zs, ws, data_marks)
 
@@ -933,6 +974,31 @@ def fit_impedance(
         circuit=best.node,
         dropped=best.dropped,
     )
+
+
+def _open_climbs(trials: list[Trial], candidates) -> list[_Climb]:
+    """Each family's climb from its highest order fitted, where that order has the
+    family's lowest criterion, is supported and has orders above it left to try."""
+    out = []
+    for family, orders in candidates:
+        own = [t for t in trials if t.family is family]
+        if not own:
+            continue
+        top = max(own, key=lambda t: t.order)
+        rest = tuple(o for o in orders if o > top.order)
+        if rest and top.supported and top.bic <= min(t.bic for t in own):
+            out.append(_Climb(family, rest, top))
+    return out
+
+
+def adapted_floor(best: Trial, f, z, u) -> float:
+    """The model-error floor for the weights, from the fit ``best`` on the points ``f``,
+    ``z`` with relative uncertainties ``u``: the RMS error it leaves beyond what the
+    noise predicts, ``sqrt(mean|e|² − mean u²)``, within ``MIN_FLOOR_FRACTION`` ·
+    MODEL_ERROR_FLOOR and MODEL_ERROR_FLOOR."""
+    err = np.abs(log_ratio(network_impedance(best.node, f, best.values), z))
+    excess = math.sqrt(max(float(np.mean(err**2) - np.mean(u**2)), 0.0))
+    return min(max(excess, MIN_FLOOR_FRACTION * MODEL_ERROR_FLOOR), MODEL_ERROR_FLOOR)
 
 
 def _screen(f, z, candidates, negative, weight, best: Trial):

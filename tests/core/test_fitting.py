@@ -118,12 +118,55 @@ def test_recovery_of_landmarks_under_noise(part, model, seed, series_r):
     assert all(v > 0 for v in result.elements.values())
     assert all(np.isfinite(v) and v >= 0 for v in result.uncertainties.values())
     # The fit error within 1.5 times the noise (the project's target, common practice, no
-    # source), where the named family holds the part's loss: two-branch has no dielectric
-    # loss for the MLCC's causal constant-loss dielectric (lossy-rlc does, see
-    # test_fit_artefacts), and the inductor family's constant Rp cannot follow this
-    # part's core loss, which grows with frequency (it ends near 1.6).
+    # source), where the named family holds the part's physics. Two are not held to it:
+    # - two-branch has no dielectric loss for the MLCC's causal constant-loss dielectric
+    #   (it ends near 3.7); the family that has it, lossy-rlc, which auto chooses, meets
+    #   the target on the very same points (test_the_family_with_the_physics_meets_the_noise);
+    # - the inductor's core-loss resistance grows as f^0.15 with no reactance beside it,
+    #   which no finite passive circuit holds exactly: the family's best on the part's
+    #   noise-free impedance already leaves 1.49 times this noise, and 1.56 with it. With
+    #   a constant core loss the same family meets it (test_inductor_meets_the_noise_...).
     if model not in ("two-branch", "inductor"):
         assert result.quality.noise_ratio <= 1.5, result.quality
+
+
+def test_the_family_with_the_physics_meets_the_noise():
+    # The two-branch recovery's points: lossy-rlc holds the dielectric's constant loss
+    # tangent (the Q element) and auto chooses it; its error is within 1.5 times the noise
+    # (the project's target, common practice, no source).
+    data = measure(MLCC, 2)
+    forced = fit_impedance(data.f, data.z, model="two-branch", rel_uncertainty=data.rel_uncertainty)
+    chosen = fit_impedance(data.f, data.z, rel_uncertainty=data.rel_uncertainty)
+    assert chosen.model == "lossy-rlc"
+    assert chosen.quality.noise_ratio <= 1.5, chosen.quality
+    assert forced.quality.noise_ratio > 1.5  # the forced family lacks the loss
+    check_landmarks(chosen, MLCC)
+
+
+def test_inductor_meets_the_noise_where_its_core_loss_is_constant():
+    # The inductor recovery's part with its core loss held constant (exponent 0): the
+    # family's Rp is then the part's own physics, and its error is within 1.5 times the
+    # noise (the project's target, common practice, no source). The part with the
+    # growing core loss misses it by a little (see the recovery test above).
+    part = PowerInductor(
+        name="PL1U0",
+        inductance=1e-6,
+        r_dc=8e-3,
+        skin_corner=300e3,
+        core_loss_resistance=150.0,
+        core_loss_exponent=0.0,
+        winding_capacitance=10e-12,
+    )
+    data = measure(part, 4, series_r=450.0)
+    result = fit_impedance(
+        data.f,
+        data.z,
+        model="inductor",
+        rel_uncertainty=data.rel_uncertainty,
+        valid=data.inside_window,
+    )
+    assert result.quality.noise_ratio <= 1.5, result.quality
+    check_landmarks(result, part)
 
 
 def test_ladder_follows_distributed_line_better_than_series_rlc():
