@@ -167,7 +167,7 @@ def _landmark_table(sample: SampleResult, kind: str) -> str:
             if own is not None and direct and math.isfinite(direct)
             else "—"
         )
-        row = [esc(key), si(value, unit), esc(sources.get(key, "—")), si(own, unit)]
+        row = [esc(key), si(value, unit), esc(sources.get(key) or "—"), si(own, unit)]
         if with_sigma:
             row.append(si(sigma_marks.get(key), unit, 3))
         rows.append([*row, difference])

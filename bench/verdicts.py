@@ -85,7 +85,7 @@ def data_landmarks(sample: SampleResult, kind: str) -> dict[str, float | None]:
 
 def shown(
     sample: SampleResult, kind: str, fit: Any = None
-) -> tuple[dict[str, float | None], dict[str, str]]:
+) -> tuple[dict[str, float | None], dict[str, str | None]]:
     """(values, sources) of the shown landmarks: each from the data where the data give
     it (source ``"data"``), else from the model (``"model"``). ``fit`` stands in for the
     sample's own fit (a typical model refitted with the lot's family, say)."""
@@ -93,11 +93,13 @@ def shown(
     model = dict(fit.landmarks) if fit is not None else {}
     data = data_landmarks(sample, kind)
     values: dict[str, float | None] = {}
-    sources: dict[str, str] = {}
+    sources: dict[str, str | None] = {}
     for key in dict.fromkeys([*model, *data]):
         measured = _finite(data.get(key))
         values[key] = measured if measured is not None else _finite(model.get(key))
         sources[key] = "data" if measured is not None else "model"
+        if values[key] is None:
+            sources[key] = None  # neither gives it (the fitter's convention)
     return values, sources
 
 
@@ -106,8 +108,8 @@ def shown_landmarks(sample: SampleResult, kind: str, fit: Any = None) -> dict[st
     return shown(sample, kind, fit)[0]
 
 
-def landmark_sources(sample: SampleResult, kind: str, fit: Any = None) -> dict[str, str]:
-    """``"data"`` or ``"model"`` per shown landmark."""
+def landmark_sources(sample: SampleResult, kind: str, fit: Any = None) -> dict[str, str | None]:
+    """``"data"`` or ``"model"`` per shown landmark (None where neither gives one)."""
     return shown(sample, kind, fit)[1]
 
 
