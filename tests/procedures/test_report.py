@@ -17,10 +17,8 @@ PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948), file 
 
 
 @pytest.fixture(scope="module")
-def written(summary, tmp_path_factory):
-    folder = tmp_path_factory.mktemp("report")
-    path = report.write_report(folder, summary)
-    return folder, path, path.read_text(encoding="utf-8")
+def written(written_report):
+    return written_report
 
 
 class _TagCounter(html.parser.HTMLParser):
