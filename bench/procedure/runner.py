@@ -132,7 +132,7 @@ class Runner:
                 for s in plan.steps
                 if s.kind in SWEEP_STEPS and store.step_state(s.id) not in (DONE, SKIPPED)
             )
-            self.estimate = self._estimate()
+            self.estimate = self._estimate(started)
             self.display.start(sweeps * plan.sweep.averages, self.estimate.total)
             self.display.message(self.estimate.text())
             self._record_timing(None)
@@ -181,11 +181,23 @@ class Runner:
                 # Its own exit status (4): the part may still be charged.
                 raise BiasNotConfirmedOffError(self._resume_text(unconfirmed))
 
-    def _estimate(self) -> Estimate:
+    def _estimate(self, started: float) -> Estimate:
         """The pending steps' duration, with the analysers' own sweep times (as read at
-        the start, in the manifest's ``instruments``) where they report them."""
+        the start, in the manifest's ``instruments``) where they report them, and
+        zbench's own work timed on this machine now (:mod:`bench.procedure.cost`)."""
+        from bench.procedure import cost
+
         store, plan, ctx = self.store, self.plan, self.ctx
         pending = [s for s in plan.steps if store.step_state(s.id) not in (DONE, SKIPPED)]
+        kinds = {s.kind for s in pending}
+        costs = cost.measure(
+            plan,
+            store.root,
+            store.manifest,
+            sweeps=bool(kinds & set(SWEEP_STEPS)),
+            fits=bool(kinds & {"fit", "export", "report"}),
+            figures="report" in kinds,
+        )
         reported = store.manifest.get("instruments") or {}
 
         def sweep_time(role: str) -> float | None:
@@ -201,6 +213,8 @@ class Runner:
             person=getattr(ctx.operator, "person", True),
             guided=ctx.operator.guided,
             caution=plan.biased and not ctx.assume_yes and any(s.bias_v for s in pending),
+            costs=costs,
+            elapsed=time.perf_counter() - started,
         )
 
     def measured(self, total: float) -> dict[str, float]:
