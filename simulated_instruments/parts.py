@@ -310,9 +310,12 @@ class BulkCapacitor:
 class PowerInductor:
     """A wound power inductor.
 
-    ``Z = 1 / (1/(r_dc·sqrt(1 + j f/skin_corner) + jωL) + 1/Rcore(f) + jω·winding_capacitance)``
-    with ``Rcore(f) = core_loss_resistance·(f/1 MHz)^core_loss_exponent``: the core-loss
-    resistance (Ω) seen in parallel rises slowly with frequency. Units: H, Ω, F, Hz.
+    ``Z = 1 / (1/(r_dc·sqrt(1 + j f/skin_corner) + jωL) + 1/Zcore(f) + jω·winding_capacitance)``
+    with ``Zcore(f) = core_loss_resistance·(j f/1 MHz)^a / cos(aπ/2)``, ``a`` the
+    ``core_loss_exponent``: the core-loss resistance (Ω) seen in parallel rises as f^a, and
+    as any causal impedance whose resistance changes with frequency it carries the
+    reactance Kramers-Kronig asks for (a constant-phase form, phase a·90°; a purely real
+    resistance that rose with f would be no physical part). Units: H, Ω, F, Hz.
     The parallel resonance (SRF) is near ``1/(2π·sqrt(L·Cw))``.
     """
 
@@ -338,6 +341,12 @@ class PowerInductor:
             ),
         )
         _non_negative(self, ("core_loss_exponent",))
+        if self.core_loss_exponent >= 1:
+            raise PartError(
+                f"PowerInductor {self.name!r}: core_loss_exponent must be below 1, "
+                f"got {self.core_loss_exponent!r}",
+                hint="a core-loss resistance rising as f^a with a below 1 (0.1 to 0.5 is usual)",
+            )
 
     @property
     def kind(self) -> str:
@@ -348,8 +357,9 @@ class PowerInductor:
         f = _frequencies(f)
         w = 2 * np.pi * f
         z_wind = self.r_dc * _skin(f, self.skin_corner) + 1j * w * self.inductance
-        r_core = self.core_loss_resistance * (f / 1e6) ** self.core_loss_exponent
-        y = 1.0 / z_wind + 1.0 / r_core + 1j * w * self.winding_capacitance
+        a = self.core_loss_exponent
+        z_core = self.core_loss_resistance * (1j * f / 1e6) ** a / np.cos(a * np.pi / 2)
+        y = 1.0 / z_wind + 1.0 / z_core + 1j * w * self.winding_capacitance
         return 1.0 / y
 
 

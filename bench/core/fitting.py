@@ -31,17 +31,11 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
-from scipy.optimize import leastsq
-
-try:  # MINPACK's driver as scipy's leastsq calls it (see _levenberg_marquardt)
-    from scipy.optimize._minpack import _lmder
-except ImportError:  # pragma: no cover - a scipy without it uses leastsq
-    _lmder = None
 
 from bench.core import robust
 from bench.core.fit_landmarks import (
@@ -51,23 +45,26 @@ from bench.core.fit_landmarks import (
     model_landmarks,
     resonance_warnings,
 )
-from bench.core.fit_network import CompiledNetwork
+from bench.core.fit_result import (
+    DEFAULT_QUALITY_BOUND,
+    Candidate,
+    FitQuality,
+    FitResult,
+    ModelMismatchError,
+)
 from bench.core.fit_select import Trial, covariance, dropped_elements, lowest_bic, select
+from bench.core.fit_solve import Objective, SoftL1, log_ratio, solve
 from bench.core.landmarks import Landmarks, classify, landmarks_for
 from bench.core.model_registry import MODEL_NAMES, auto_candidates
 from bench.core.models import FAMILIES, ModelFamily
 from bench.core.models.network import (
-    Node,
     clip_to_bounds,
     network_impedance,
-    spice_lines,
     vanishing_sides,
 )
-from bench.core.robust import Exclusion
 from bench.errors import FitError, InputError
 from bench.units import format_si
 
-DEFAULT_QUALITY_BOUND = 0.1
 # Relative model-error floor added in quadrature to each point's uncertainty: no circuit
 # of a few elements follows a real part to better than a few per cent everywhere, and
 # without it the points with the least noise (far from resonance) would outweigh the
@@ -108,141 +105,6 @@ PINNED_LOG = 1e-3
 ROBUST_SCALE = 3.0
 
 
-class ModelMismatchError(FitError):
-    """The model asked for describes another kind of part than the data shows (exit 2)."""
-
-    exit_code = 2
-
-
-@dataclass(frozen=True)
-class FitQuality:
-    """How well a model follows the measurement (docs/design.md §3).
-
-    ``rms_log_error``: RMS over used points of ``|ln Zmodel − ln Zmeasured|`` (0.01 is
-    about 1 % in magnitude and 0.6° in phase); ``max_abs_log_error`` its maximum.
-    ``noise_ratio``: ``rms_log_error`` over the RMS of the points' relative uncertainty,
-    the error the noise alone predicts (1 is a fit down to the noise; above about 1.5 the
-    model misses something the data show). ``chi2_reduced``: ``Σ|e|²/u²`` over the
-    degrees of freedom ``n − k/2`` (n points of two components, k elements).
-    ``points_excluded``: points inside the window the screening left out.
-    """
-
-    rms_log_error: float
-    max_abs_log_error: float
-    points_used: int
-    points_outside_window: int
-    noise_ratio: float = math.nan
-    chi2_reduced: float = math.nan
-    points_excluded: int = 0
-
-    def to_dict(self) -> dict[str, float | int | None]:
-        return {
-            "rms_log_error": self.rms_log_error,
-            "max_abs_log_error": self.max_abs_log_error,
-            "noise_ratio": None if math.isnan(self.noise_ratio) else self.noise_ratio,
-            "chi2_reduced": None if math.isnan(self.chi2_reduced) else self.chi2_reduced,
-            "points_used": self.points_used,
-            "points_outside_window": self.points_outside_window,
-            "points_excluded": self.points_excluded,
-        }
-
-
-@dataclass(frozen=True)
-class Candidate:
-    """One family and order tried by the fitter, with its criterion and quality.
-
-    ``supported`` is False when an element of the fit is pinned at a bound or not
-    determined (one sigma above 100 %): the data do not support that many elements, and
-    the selection passes such a candidate over for a simpler one.
-    """
-
-    model: str
-    order: int
-    bic: float
-    rms_log_error: float
-    supported: bool = True
-
-
-@dataclass(frozen=True)
-class FitResult:
-    """A fitted equivalent circuit.
-
-    ``elements`` and ``uncertainties`` (one sigma) in SI units (Ω, H, F; ``D`` in F, ``S``
-    in Ω at 1 MHz, a loss tangent ``tan<name>`` a plain number, see
-    ``bench.core.models.network``); ``landmarks`` read from the measured points where they
-    hold them and from the fitted model otherwise, as ``landmark_sources`` says (``"data"``
-    or ``"model"``); ``landmark_uncertainties`` their one-sigma uncertainties propagated
-    from the elements (None where a landmark is undefined); ``f_range`` (Hz) the span of the
-    points used; ``candidates`` every family and order tried, with its criterion;
-    ``excluded`` the points the screening left out (reason, count, band) and
-    ``point_status`` the fate of every input point (``used``, ``outside-window``,
-    ``left-out``, ``unusable``, ``negative-resistance``, ``glitch``, ``band-edge``).
-    ``meets_quality`` is ``rms_log_error <= quality_bound``. ``dropped`` names the
-    elements that dropped out of the fit (not seen by the data; their values are
-    placeholders and their uncertainties unbounded).
-    """
-
-    model: str
-    kind: str
-    elements: dict[str, float]
-    uncertainties: dict[str, float]
-    landmarks: Landmarks
-    quality: FitQuality
-    warnings: tuple[str, ...] = ()
-    order: int = 1
-    quality_bound: float = DEFAULT_QUALITY_BOUND
-    f_range: tuple[float, float] = (math.nan, math.nan)
-    candidates: tuple[Candidate, ...] = field(default=())
-    landmark_uncertainties: dict[str, float | None] = field(default_factory=dict)
-    landmark_sources: dict[str, str | None] = field(default_factory=dict)
-    excluded: tuple[Exclusion, ...] = ()
-    point_status: tuple[str, ...] = ()
-    circuit: Node | None = None
-    dropped: tuple[str, ...] = ()
-
-    @property
-    def meets_quality(self) -> bool:
-        return bool(self.quality.rms_log_error <= self.quality_bound)
-
-    @property
-    def family(self) -> ModelFamily:
-        return FAMILIES[self.model]
-
-    def impedance(self, f: Any) -> NDArray[np.complex128]:
-        """Model impedance (Ω) at ``f`` (Hz, > 0)."""
-        if self.circuit is None:
-            return self.family.impedance(np.asarray(f, dtype=float), self.elements)
-        f = np.asarray(f, dtype=float)
-        if np.any(~np.isfinite(f)) or np.any(f <= 0):
-            raise ValueError(f"model {self.model}: frequencies must be finite and above 0 Hz")
-        return network_impedance(self.circuit, f, self.elements)
-
-    def spice_lines(self) -> list[str]:
-        """SPICE element lines of the model between pins 1 and 2."""
-        if self.circuit is None:
-            return self.family.spice_lines(self.elements)
-        return spice_lines(self.circuit, self.elements)
-
-    def to_json(self) -> dict[str, Any]:
-        """The object ``zbench fit --json`` prints (without ``spice``); SI units."""
-        return {
-            "model": self.model,
-            "kind": self.kind,
-            "order": self.order,
-            "elements": dict(self.elements),
-            "uncertainties": dict(self.uncertainties),
-            "landmark_uncertainties": dict(self.landmark_uncertainties),
-            "landmarks": dict(self.landmarks),
-            "landmark_sources": dict(self.landmark_sources),
-            "quality": self.quality.to_dict(),
-            "excluded": [e.to_dict() for e in self.excluded],
-            "quality_bound": self.quality_bound,
-            "meets_quality": self.meets_quality,
-            "dropped": list(self.dropped),
-            "warnings": list(self.warnings),
-        }
-
-
 def _check_inputs(f: Any, z: Any, rel_uncertainty: Any, valid: Any):
     f = np.asarray(f, dtype=float)
     z = np.asarray(z, dtype=complex)
@@ -279,117 +141,6 @@ def _check_inputs(f: Any, z: Any, rel_uncertainty: Any, valid: Any):
     return f, z, sigma, inside
 
 
-def log_ratio(zm: NDArray[np.complex128], z: NDArray[np.complex128]) -> NDArray[np.complex128]:
-    """``ln(zm/z)`` (principal value), computed as ``ln|ρ|`` and ``atan2``: numpy's complex
-    log takes a slow, careful path for arguments near 1, which a fit's residuals are."""
-    rho = zm / z
-    re, im = rho.real, rho.imag
-    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        return 0.5 * np.log(re * re + im * im) + 1j * np.arctan2(im, re)
-
-
-class _Objective:
-    """Residuals and Jacobian of the log parameters on one grid.
-
-    The network is compiled for the grid (``bench.core.fit_network``); the Jacobian is
-    asked for at the point whose residuals were just evaluated, which the compiled
-    network keeps. Residuals are ``[Re, Im]`` of ``ln(Zmodel/Zmeasured)·weight``.
-    """
-
-    def __init__(self, node, f, z, weight):
-        self.net = CompiledNetwork(node, f)
-        self.inv_z = 1.0 / z
-        self.weight = weight
-        self.n = f.size
-
-    def residuals(self, q: NDArray[np.float64]) -> NDArray[np.float64]:
-        rho = self.net.impedance(q) * self.inv_z
-        re, im = rho.real, rho.imag
-        out = np.empty(2 * self.n)
-        np.multiply(np.log(re * re + im * im), 0.5 * self.weight, out=out[: self.n])
-        np.multiply(np.arctan2(im, re), self.weight, out=out[self.n :])
-        return out
-
-    def jacobian_rows(self, q: NDArray[np.float64]) -> NDArray[np.float64]:
-        """The Jacobian transposed: one row of ``2n`` per parameter (MINPACK's column
-        order, no copy)."""
-        zm = self.net.impedance(q)
-        d = self.net.jacobian(q) * (self.weight / zm)
-        return np.concatenate([d.real, d.imag], axis=1)
-
-    def jacobian(self, q: NDArray[np.float64]) -> NDArray[np.float64]:
-        return self.jacobian_rows(q).T
-
-
-def _levenberg_marquardt(fun, jac, x0, max_nfev: int, tolerance: float) -> NDArray[np.float64]:
-    """MINPACK's ``lmder`` on ``fun`` with the Jacobian ``jac`` in column order.
-
-    scipy's compiled driver is called as ``leastsq`` calls it, without ``leastsq``'s
-    checks (two extra model evaluations) and covariance, which cost as much as the
-    solve on these small problems; should its private signature change, ``leastsq``
-    does the same.
-    """
-    if _lmder is not None:
-        try:
-            return _lmder(
-                fun,
-                jac,
-                x0,
-                (),
-                0,
-                1,
-                tolerance,
-                tolerance,
-                1e-7,
-                max_nfev,
-                100.0,
-                np.ones(x0.size),
-            )[0]
-        except TypeError:
-            pass
-    return leastsq(
-        fun,
-        x0,
-        Dfun=jac,
-        full_output=True,
-        col_deriv=True,
-        ftol=tolerance,
-        xtol=tolerance,
-        gtol=1e-7,
-        maxfev=max_nfev,
-        factor=100.0,
-        diag=np.ones(x0.size),
-    )[0]
-
-
-def _solve(
-    obj: _Objective, q0, lo, hi, max_nfev: int, tolerance: float = 1e-7
-) -> tuple[float, NDArray[np.float64]]:
-    """Levenberg-Marquardt (MINPACK) in log parameters, kept inside the bounds.
-
-    MINPACK's loop runs in compiled code, cheaper per step than the bounded
-    trust-region method for these small problems (about twice as fast here). The bounds
-    hold by evaluating the model at the clipped parameters: outside them the residuals
-    stop changing, so the step is pushed back, and the result is clipped at the end.
-    """
-
-    def fun(q):
-        return obj.residuals(np.minimum(np.maximum(q, lo), hi))
-
-    def jac(q):
-        out = obj.jacobian_rows(np.minimum(np.maximum(q, lo), hi))
-        outside = (q <= lo) | (q >= hi)
-        if outside.any():
-            out[outside] = 0.0
-        return out
-
-    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
-        x = _levenberg_marquardt(fun, jac, np.minimum(np.maximum(q0, lo), hi), max_nfev, tolerance)
-        q = np.minimum(np.maximum(x, lo), hi)
-        r = obj.residuals(q)
-    return float(r @ r), q
-
-
 def _fit_order(
     family: ModelFamily,
     order: int,
@@ -411,8 +162,8 @@ def _fit_order(
     # SCOUT_POINTS), which finds the right valley at a fraction of the cost; the two best
     # distinct results are then refined on the full grid.
     step = max(1, int(np.ceil(f.size / SCOUT_POINTS)))
-    coarse = _Objective(node, f[::step], z[::step], weight[::step])
-    fine = coarse if step == 1 else _Objective(node, f, z, weight)
+    coarse = Objective(node, f[::step], z[::step], weight[::step])
+    fine = coarse if step == 1 else Objective(node, f, z, weight)
     scouts: list[tuple[float, NDArray[np.float64]]] = []
     if starts is None:
         starts = family.starts(order, f, z, landmarks, previous)
@@ -423,7 +174,7 @@ def _fit_order(
             r0 = coarse.residuals(q0)
         if not np.all(np.isfinite(r0)):
             continue
-        result = _solve(coarse, q0, lo, hi, 20 * (k + 1), SCOUT_TOLERANCE)
+        result = solve(coarse, q0, lo, hi, 20 * (k + 1), SCOUT_TOLERANCE)
         if not np.isfinite(result[0]):
             continue
         scouts.append(result)
@@ -436,7 +187,7 @@ def _fit_order(
         # The runner-up too, unless it sits in the same valley (costs within 1 %).
         chosen = scouts[:1] + [t for t in scouts[1:2] if t[0] > 1.01 * scouts[0][0]]
         refined = [
-            _solve(fine, q_scout, lo, hi, 20 * (k + 1), REFINE_TOLERANCE) for _, q_scout in chosen
+            solve(fine, q_scout, lo, hi, 20 * (k + 1), REFINE_TOLERANCE) for _, q_scout in chosen
         ]
         refined = [r for r in refined if np.isfinite(r[0])]
         if not refined:
@@ -445,7 +196,7 @@ def _fit_order(
     return _make_trial(family, order, node, best[1], lo, hi, fine)
 
 
-def _make_trial(family, order, node, q, lo, hi, obj: _Objective) -> Trial:
+def _make_trial(family, order, node, q, lo, hi, obj: Objective) -> Trial:
     """The trial of ``family``/``order`` at log values ``q`` (fitted with the objective
     ``obj``), with its criterion, the elements at a bound, those the data do not see
     (:func:`fit_select.dropped_elements`) and the relative uncertainty of every element."""
@@ -496,41 +247,8 @@ def _make_trial(family, order, node, q, lo, hi, obj: _Objective) -> Trial:
     )
 
 
-class _SoftL1:
-    """The residuals of ``obj`` under a soft-L1 loss of scale ``s``, as plain least squares.
-
-    scipy's soft-L1 cost is ``Σ s²·ρ(r²/s²)`` with ``ρ(x) = 2(√(1 + x) − 1)``; the
-    residuals ``g(r) = sign(r)·s·√ρ(r²/s²)`` have the same sum of squares, so MINPACK
-    minimises the very same cost (``g(r) ≈ r`` for small ``r``, ``√(2|r|s)`` for large).
-    Their Jacobian is ``g'(r)·J`` with ``g'(r) = |r|·ρ'(r²/s²)/(s·√ρ)``, 1 at ``r = 0``.
-    """
-
-    def __init__(self, obj: _Objective, scale: float):
-        self.obj = obj
-        self.scale = scale
-        self.n = obj.n
-
-    def _parts(self, q):
-        r = self.obj.residuals(q)
-        x = (r / self.scale) ** 2
-        root = np.sqrt(1.0 + x)
-        rho = 2.0 * (root - 1.0)
-        sqrt_rho = np.sqrt(rho)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            slope = np.where(x > 1e-12, np.abs(r) / (self.scale * sqrt_rho * root), 1.0)
-        return r, sqrt_rho, slope
-
-    def residuals(self, q):
-        r, sqrt_rho, _ = self._parts(q)
-        return np.copysign(self.scale * sqrt_rho, r)
-
-    def jacobian_rows(self, q):
-        _, _, slope = self._parts(q)
-        return self.obj.jacobian_rows(q) * slope
-
-
 def _robust_refine(trial: Trial, f, z, weight, landmarks: Landmarks) -> Trial:
-    """The chosen trial solved once more with a soft-L1 loss (:class:`_SoftL1`, scale
+    """The chosen trial solved once more with a soft-L1 loss (:class:`SoftL1`, scale
     :data:`ROBUST_SCALE` in units of a point's uncertainty), so that a few points
     the screening let through cannot pull the fit; kept only when it stays as good in
     plain least squares within the noise (χ² up by less than the number of elements)."""
@@ -539,8 +257,8 @@ def _robust_refine(trial: Trial, f, z, weight, landmarks: Landmarks) -> Trial:
     limits = family.element_bounds(order, f, landmarks)
     lo = np.log([limits[n][0] for n in names])
     hi = np.log([limits[n][1] for n in names])
-    obj = _Objective(trial.node, f, z, weight)
-    cost, q = _solve(_SoftL1(obj, ROBUST_SCALE), trial.q, lo, hi, 20 * (len(names) + 1))
+    obj = Objective(trial.node, f, z, weight)
+    cost, q = solve(SoftL1(obj, ROBUST_SCALE), trial.q, lo, hi, 20 * (len(names) + 1))
     if not np.isfinite(cost) or not np.all(np.isfinite(q)):
         return trial
     refined = _make_trial(family, order, trial.node, q, lo, hi, obj)
@@ -550,7 +268,7 @@ def _robust_refine(trial: Trial, f, z, weight, landmarks: Landmarks) -> Trial:
     return refined
 
 
-def _covariance(obj: _Objective, trial: Trial) -> NDArray[np.float64]:
+def _covariance(obj: Objective, trial: Trial) -> NDArray[np.float64]:
     """Covariance of the log element values of ``trial``, from the Jacobian at its
     solution, scaled by the residual variance χ²/(m − k) (:func:`fit_select.covariance`)."""
     with np.errstate(all="ignore"):
@@ -952,7 +670,7 @@ def fit_impedance(
             f"rms log error {quality.rms_log_error:.3g} exceeds the quality bound "
             f"{quality_bound:.3g}; try another model or check the measurement"
         )
-    cov = _covariance(_Objective(best.node, fs, zs, ws), best)
+    cov = _covariance(Objective(best.node, fs, zs, ws), best)
     return FitResult(
         model=best.family.name,
         kind=kind,

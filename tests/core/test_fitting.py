@@ -118,15 +118,11 @@ def test_recovery_of_landmarks_under_noise(part, model, seed, series_r):
     assert all(v > 0 for v in result.elements.values())
     assert all(np.isfinite(v) and v >= 0 for v in result.uncertainties.values())
     # The fit error within 1.5 times the noise (the project's target, common practice, no
-    # source), where the named family holds the part's physics. Two are not held to it:
-    # - two-branch has no dielectric loss for the MLCC's causal constant-loss dielectric
-    #   (it ends near 3.7); the family that has it, lossy-rlc, which auto chooses, meets
-    #   the target on the very same points (test_the_family_with_the_physics_meets_the_noise);
-    # - the inductor's core-loss resistance grows as f^0.15 with no reactance beside it,
-    #   which no finite passive circuit holds exactly: the family's best on the part's
-    #   noise-free impedance already leaves 1.49 times this noise, and 1.56 with it. With
-    #   a constant core loss the same family meets it (test_inductor_meets_the_noise_...).
-    if model not in ("two-branch", "inductor"):
+    # source), where the named family holds the part's physics. Two-branch is not held to
+    # it: it has no dielectric loss for the MLCC's causal constant-loss dielectric (it ends
+    # near 3.7); the family that has it, lossy-rlc, which auto chooses, meets the target on
+    # the very same points (test_the_family_with_the_physics_meets_the_noise).
+    if model != "two-branch":
         assert result.quality.noise_ratio <= 1.5, result.quality
 
 
@@ -146,8 +142,8 @@ def test_the_family_with_the_physics_meets_the_noise():
 def test_inductor_meets_the_noise_where_its_core_loss_is_constant():
     # The inductor recovery's part with its core loss held constant (exponent 0): the
     # family's Rp is then the part's own physics, and its error is within 1.5 times the
-    # noise (the project's target, common practice, no source). The part with the
-    # growing core loss misses it by a little (see the recovery test above).
+    # noise (the project's target, common practice, no source), as it is with the
+    # recovery test's growing (causal, constant-phase) core loss.
     part = PowerInductor(
         name="PL1U0",
         inductance=1e-6,

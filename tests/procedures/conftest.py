@@ -27,3 +27,14 @@ def summary_data() -> ModuleType:
 def summary(summary_data: ModuleType) -> RunSummary:
     """The small invented run, through the real impedance chain and fitter."""
     return summary_data.build()
+
+
+@pytest.fixture(scope="session")
+def written_report(summary: RunSummary, tmp_path_factory) -> tuple[Path, Path, str]:
+    """The small run's report, written once for every module that reads it: its folder,
+    the path of ``report.html`` and its text (the figures are embedded in it)."""
+    from bench import report
+
+    folder = tmp_path_factory.mktemp("report")
+    path = report.write_report(folder, summary)
+    return folder, path, path.read_text(encoding="utf-8")

@@ -13,8 +13,6 @@ import subprocess
 
 import pytest
 
-from bench import report
-
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 
 pytestmark = pytest.mark.skipif(
@@ -54,13 +52,13 @@ def _chromium(*args: str, timeout: float = 120) -> subprocess.CompletedProcess[s
 
 
 @pytest.fixture(scope="module")
-def rendered(summary, tmp_path_factory):
+def rendered(written_report, tmp_path_factory):
+    # The report written once for the session (its figures are embedded), copied here.
     folder = tmp_path_factory.mktemp("browser")
-    path = report.write_report(folder, summary)
+    path = folder / "report.html"
+    path.write_text(written_report[2], encoding="utf-8")
     probed = folder / "probed.html"
-    probed.write_text(
-        path.read_text(encoding="utf-8").replace("</body>", PROBE + "</body>"), encoding="utf-8"
-    )
+    probed.write_text(written_report[2].replace("</body>", PROBE + "</body>"), encoding="utf-8")
     dom = _chromium("--virtual-time-budget=10000", "--dump-dom", probed.as_uri())
     shot = folder / "report.png"
     screenshot = _chromium(

@@ -1,0 +1,162 @@
+"""The least-squares machinery of the fitter (docs/design.md §4): residuals and Jacobian of
+the log element values on one grid (:class:`Objective`, the network compiled for the
+grid), MINPACK's Levenberg-Marquardt kept inside the bounds (:func:`solve`) and the
+soft-L1 loss as plain least squares (:class:`SoftL1`). No I/O.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from numpy.typing import NDArray
+from scipy.optimize import leastsq
+
+try:  # MINPACK's driver as scipy's leastsq calls it (see levenberg_marquardt)
+    from scipy.optimize._minpack import _lmder
+except ImportError:  # pragma: no cover - a scipy without it uses leastsq
+    _lmder = None
+
+from bench.core.fit_network import CompiledNetwork
+
+
+def log_ratio(zm: NDArray[np.complex128], z: NDArray[np.complex128]) -> NDArray[np.complex128]:
+    """``ln(zm/z)`` (principal value), computed as ``ln|ρ|`` and ``atan2``: numpy's complex
+    log takes a slow, careful path for arguments near 1, which a fit's residuals are."""
+    rho = zm / z
+    re, im = rho.real, rho.imag
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        return 0.5 * np.log(re * re + im * im) + 1j * np.arctan2(im, re)
+
+
+class Objective:
+    """Residuals and Jacobian of the log parameters on one grid.
+
+    The network is compiled for the grid (``bench.core.fit_network``); the Jacobian is
+    asked for at the point whose residuals were just evaluated, which the compiled
+    network keeps. Residuals are ``[Re, Im]`` of ``ln(Zmodel/Zmeasured)·weight``.
+    """
+
+    def __init__(self, node, f, z, weight):
+        self.net = CompiledNetwork(node, f)
+        self.inv_z = 1.0 / z
+        self.weight = weight
+        self.n = f.size
+
+    def residuals(self, q: NDArray[np.float64]) -> NDArray[np.float64]:
+        rho = self.net.impedance(q) * self.inv_z
+        re, im = rho.real, rho.imag
+        out = np.empty(2 * self.n)
+        np.multiply(np.log(re * re + im * im), 0.5 * self.weight, out=out[: self.n])
+        np.multiply(np.arctan2(im, re), self.weight, out=out[self.n :])
+        return out
+
+    def jacobian_rows(self, q: NDArray[np.float64]) -> NDArray[np.float64]:
+        """The Jacobian transposed: one row of ``2n`` per parameter (MINPACK's column
+        order, no copy)."""
+        zm = self.net.impedance(q)
+        d = self.net.jacobian(q) * (self.weight / zm)
+        return np.concatenate([d.real, d.imag], axis=1)
+
+    def jacobian(self, q: NDArray[np.float64]) -> NDArray[np.float64]:
+        return self.jacobian_rows(q).T
+
+
+def levenberg_marquardt(fun, jac, x0, max_nfev: int, tolerance: float) -> NDArray[np.float64]:
+    """MINPACK's ``lmder`` on ``fun`` with the Jacobian ``jac`` in column order.
+
+    scipy's compiled driver is called as ``leastsq`` calls it, without ``leastsq``'s
+    checks (two extra model evaluations) and covariance, which cost as much as the
+    solve on these small problems; should its private signature change, ``leastsq``
+    does the same.
+    """
+    if _lmder is not None:
+        try:
+            return _lmder(
+                fun,
+                jac,
+                x0,
+                (),
+                0,
+                1,
+                tolerance,
+                tolerance,
+                1e-7,
+                max_nfev,
+                100.0,
+                np.ones(x0.size),
+            )[0]
+        except TypeError:
+            pass
+    return leastsq(
+        fun,
+        x0,
+        Dfun=jac,
+        full_output=True,
+        col_deriv=True,
+        ftol=tolerance,
+        xtol=tolerance,
+        gtol=1e-7,
+        maxfev=max_nfev,
+        factor=100.0,
+        diag=np.ones(x0.size),
+    )[0]
+
+
+def solve(
+    obj: Objective, q0, lo, hi, max_nfev: int, tolerance: float = 1e-7
+) -> tuple[float, NDArray[np.float64]]:
+    """Levenberg-Marquardt (MINPACK) in log parameters, kept inside the bounds.
+
+    MINPACK's loop runs in compiled code, cheaper per step than the bounded
+    trust-region method for these small problems (about twice as fast here). The bounds
+    hold by evaluating the model at the clipped parameters: outside them the residuals
+    stop changing, so the step is pushed back, and the result is clipped at the end.
+    """
+
+    def fun(q):
+        return obj.residuals(np.minimum(np.maximum(q, lo), hi))
+
+    def jac(q):
+        out = obj.jacobian_rows(np.minimum(np.maximum(q, lo), hi))
+        outside = (q <= lo) | (q >= hi)
+        if outside.any():
+            out[outside] = 0.0
+        return out
+
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        x = levenberg_marquardt(fun, jac, np.minimum(np.maximum(q0, lo), hi), max_nfev, tolerance)
+        q = np.minimum(np.maximum(x, lo), hi)
+        r = obj.residuals(q)
+    return float(r @ r), q
+
+
+class SoftL1:
+    """The residuals of ``obj`` under a soft-L1 loss of scale ``s``, as plain least squares.
+
+    scipy's soft-L1 cost is ``Σ s²·ρ(r²/s²)`` with ``ρ(x) = 2(√(1 + x) − 1)``; the
+    residuals ``g(r) = sign(r)·s·√ρ(r²/s²)`` have the same sum of squares, so MINPACK
+    minimises the very same cost (``g(r) ≈ r`` for small ``r``, ``√(2|r|s)`` for large).
+    Their Jacobian is ``g'(r)·J`` with ``g'(r) = |r|·ρ'(r²/s²)/(s·√ρ)``, 1 at ``r = 0``.
+    """
+
+    def __init__(self, obj: Objective, scale: float):
+        self.obj = obj
+        self.scale = scale
+        self.n = obj.n
+
+    def _parts(self, q):
+        r = self.obj.residuals(q)
+        x = (r / self.scale) ** 2
+        root = np.sqrt(1.0 + x)
+        rho = 2.0 * (root - 1.0)
+        sqrt_rho = np.sqrt(rho)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            slope = np.where(x > 1e-12, np.abs(r) / (self.scale * sqrt_rho * root), 1.0)
+        return r, sqrt_rho, slope
+
+    def residuals(self, q):
+        r, sqrt_rho, _ = self._parts(q)
+        return np.copysign(self.scale * sqrt_rho, r)
+
+    def jacobian_rows(self, q):
+        _, _, slope = self._parts(q)
+        return self.obj.jacobian_rows(q) * slope
