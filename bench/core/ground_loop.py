@@ -148,11 +148,25 @@ def check_ground_loop(
         d = _model(p, fu) - zu
         return np.concatenate([d.real, d.imag]) / scale
 
+    def jacobian(p: NDArray[np.float64]) -> NDArray[np.float64]:
+        # Analytic derivatives of the model (a fifth of the cost of finite differences).
+        r0, log_fc = p[2], p[3]
+        g = 1.0 + 1j * fu / 10.0**log_fc
+        cols = (
+            np.ones_like(fu, dtype=complex),
+            1j * TWO_PI * fu,
+            1.0 / g,
+            r0 * 1j * fu * math.log(10.0) / 10.0**log_fc / g**2,
+        )
+        jac = np.stack(cols, axis=1)
+        return np.concatenate([jac.real, jac.imag]) / scale
+
     best = None
     for log_fc0 in np.linspace(lo_fc + 0.25, hi_fc - 0.25, 6):
         result = least_squares(
             residual,
             x0=[rm0, lm0, r00, log_fc0],
+            jac=jacobian,
             bounds=([0.0, 0.0, 0.0, lo_fc], [np.inf, np.inf, np.inf, hi_fc]),
             x_scale=[max(rm0, scale), max(lm0, 1e-15), max(r00, scale), 1.0],
             loss="soft_l1",
