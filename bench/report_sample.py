@@ -204,10 +204,13 @@ def _element_unit(name: str) -> str:
 
 
 def quality_text(sample: SampleResult) -> str:
+    from bench.core.fit_result import noise_text
+
     q = sample.fit.quality
     total, outside, used = points_text(sample)
     text = (
-        f"RMS complex-log error {q.rms_log_error:.3g}, largest {q.max_abs_log_error:.3g}; "
+        f"RMS complex-log error {q.rms_log_error:.3g}{noise_text(q)}, "
+        f"largest {q.max_abs_log_error:.3g}; "
         f"{used} of {total} points used"
     )
     other = total - used - outside

@@ -195,11 +195,14 @@ def _model_text(result: Any) -> str:
 
 
 def _summary_text(outcome: _Outcome) -> str:
+    from bench.core.fit_result import noise_text
+
     result = outcome.result
     q = result.quality
     lines = [
         f"{outcome.path}: {_model_text(result)}, RMS complex-log error "
-        f"{q.rms_log_error:.3g}, largest {q.max_abs_log_error:.3g}; {q.points_used} points used, "
+        f"{q.rms_log_error:.3g}{noise_text(q)}, largest {q.max_abs_log_error:.3g}; "
+        f"{q.points_used} points used, "
         f"{q.points_outside_window} outside the window"
     ]
     marks = ", ".join(

@@ -153,3 +153,10 @@ class FitResult:
             "dropped": list(self.dropped),
             "warnings": list(self.warnings),
         }
+
+
+def noise_text(quality: FitQuality) -> str:
+    """`` (0.84 × the noise)``: the fit error against what the points' uncertainty
+    predicts, for the text beside ``rms_log_error``; empty where it is unknown."""
+    ratio = quality.noise_ratio
+    return "" if not math.isfinite(ratio) else f" ({ratio:.2g} × the noise)"

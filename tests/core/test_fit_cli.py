@@ -140,6 +140,8 @@ def test_readable_summary_without_json(capsys):
     # Elements the data cannot pin (one sigma beyond 100 %) say so instead of a number.
     assert not re.search(r"±\d[\d.]*e\+", out)
     assert "bead (inductor)" in out  # the kind is named when the family does not say it
+    # The error against what the points' uncertainty predicts, beside the RMS error.
+    assert re.search(r"RMS complex-log error [\d.e-]+ \([\d.e+-]+ × the noise\)", out)
     with pytest.raises(json.JSONDecodeError):
         json.loads(out)
 

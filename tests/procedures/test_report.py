@@ -170,6 +170,8 @@ def test_fit_quality_counts_points_used_and_why_others_were_not(summary, written
         outside = int((~sample.data.inside_window).sum())
         line = report_sample.quality_text(sample)
         assert f"{sample.fit.quality.points_used} of {total} points used" in line
+        # The error against what the points' uncertainty predicts, beside the RMS error.
+        assert f"({sample.fit.quality.noise_ratio:.2g} × the noise)" in line
         assert (f"{outside} outside the measurable window" in line) == (outside > 0)
         assert f"Fit quality: {report.esc(line)}." in text
 
