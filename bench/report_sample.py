@@ -197,6 +197,8 @@ def _landmark_table(sample: SampleResult, kind: str) -> str:
 
 
 def _element_unit(name: str) -> str:
+    if name.lstrip("_").startswith("fc"):  # a skin corner: a frequency
+        return "Hz"
     head = name.lstrip("_")[:1].upper()
     return {"R": "Ω", "L": "H", "C": "F"}.get(head, "")
 

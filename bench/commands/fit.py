@@ -184,6 +184,8 @@ def _meets_quality(result: Any) -> bool:
 
 
 def _element_unit(name: str) -> str:
+    if name.startswith("fc"):  # a skin corner: a frequency
+        return "Hz"
     return {"R": "Ω", "L": "H", "C": "F"}.get(name[:1].upper(), "")
 
 

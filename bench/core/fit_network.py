@@ -26,6 +26,7 @@ from bench.core.models.network import (
     Node,
     Parallel,
     Series,
+    _conductor_shape,
     _constant_phase_parts,
     _element_impedance,
     element_names,
@@ -79,14 +80,15 @@ class CompiledNetwork:
 
     Elements of a value and a shape (:data:`_POWER`) take one product for all; a ``Q``
     element (a capacitance and its loss tangent: two values, one impedance) evaluates its
-    ladder from the branch shapes kept for the grid."""
+    ladder from the branch shapes kept for the grid, a ``K`` element (a resistance and
+    its skin corner) its sections at the corner."""
 
     def __init__(self, node: Node, f: NDArray[np.float64]):
         self.node = node
         self.f = np.asarray(f, dtype=float)
         self.names: tuple[str, ...] = element_names(node)
         elements = _elements(node)
-        self.general = any(e.kind not in _POWER and e.kind != "Q" for e in elements)
+        self.general = any(e.kind not in _POWER and e.kind not in "QK" for e in elements)
         jw = 2j * np.pi * self.f
         self._key = b""
         if self.general:
@@ -95,7 +97,7 @@ class CompiledNetwork:
         rows, row = [], 0
         for e in elements:
             rows.append(row)
-            row += 2 if e.kind == "Q" else 1
+            row += 2 if e.kind in "QK" else 1
         self._power = np.array([i for i, e in enumerate(elements) if e.kind in _POWER], int)
         self._power_rows = np.array([rows[i] for i in self._power], int)
         self._sign = np.array([_POWER[elements[i].kind] for i in self._power])
@@ -106,6 +108,7 @@ class CompiledNetwork:
                 u = _constant_phase_parts(0.1, e.band)[0]  # the corners depend on the band only
                 branch = jw[None, :] / (1 + jw[None, :] / u[:, None])
                 self._q_slots.append((i, rows[i], e.band, branch, jw))
+        self._k_slots = [(i, rows[i], e.band, jw) for i, e in enumerate(elements) if e.kind == "K"]
         self._n_elements = len(elements)
         self._root = None if isinstance(node, Element) else _group(node, 0)
 
@@ -121,7 +124,7 @@ class CompiledNetwork:
             self._z, self._jac = impedance_and_jacobian(self.node, self.f, self._values(q))
         else:
             q = np.asarray(q, dtype=float)
-            if not self._q_slots:
+            if not self._q_slots and not self._k_slots:
                 ze = np.exp(self._sign * q[self._power_rows])[:, None] * self._basis
             else:
                 ze = np.empty((self._n_elements, self.f.size), dtype=complex)
@@ -136,6 +139,10 @@ class CompiledNetwork:
                     )
                     ze[i] = 1.0 / (math.exp(q[row]) * y)
                     self._q_slope[i] = dy / y
+                for i, row, band, jw in self._k_slots:
+                    shape, dshape = _conductor_shape(jw, math.exp(q[row + 1]), band)
+                    ze[i] = math.exp(q[row]) * shape
+                    self._q_slope[i] = dshape / shape
             self._ze = ze
             self._inv: dict[int, NDArray[np.complex128]] = {}
             self._zg: dict[int, NDArray[np.complex128]] = {}
@@ -149,7 +156,7 @@ class CompiledNetwork:
         self.impedance(q)
         if self._jac is not None:
             return self._jac
-        if not self._q_slots:
+        if not self._q_slots and not self._k_slots:
             jac = self._sign[:, None] * self._ze
             if self._root is not None:
                 self._apply_factors(self._root, jac)
@@ -163,6 +170,9 @@ class CompiledNetwork:
             for i, row, *_ in self._q_slots:
                 jac[row] = -dz[i]
                 jac[row + 1] = -dz[i] * self._q_slope[i]
+            for i, row, *_ in self._k_slots:
+                jac[row] = dz[i]
+                jac[row + 1] = dz[i] * self._q_slope[i]
         self._jac = jac
         return jac
 

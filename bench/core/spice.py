@@ -40,7 +40,7 @@ _LANDMARK_UNITS = {
     "z_at_srf": "Ohm",
     "c_par": "F",
 }
-_ELEMENT_UNITS = {"R": "Ohm", "L": "H", "C": "F", "D": "F", "S": "Ohm at 1 MHz"}
+_ELEMENT_UNITS = {"R": "Ohm", "L": "H", "C": "F", "D": "F", "S": "Ohm at 1 MHz", "K": "Ohm"}
 
 
 def spice_name(name: str) -> str:
@@ -166,7 +166,8 @@ def _subckt(result: FitResult, sub: str, provenance, mount: tuple[float, float] 
     elements = []
     for key, value in result.elements.items():
         sigma = result.uncertainties.get(key)
-        unit = _ELEMENT_UNITS.get(key[0], "")
+        # A skin corner (fc<name>) is a frequency.
+        unit = "Hz" if key.startswith("fc") else _ELEMENT_UNITS.get(key[0], "")
         # A loss tangent (tan<name>) is a plain number, not a quantity with a prefix.
         text = f"{value:.4g}" if key.startswith("tan") else format_si(value, unit)
         if sigma is not None and value > 0:

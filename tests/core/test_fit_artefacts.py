@@ -220,20 +220,19 @@ def test_a_quiet_measurement_is_weighed_by_its_own_noise():
     # At 0.2 % noise a model without the √f loss leaves about 0.45 % error, which the
     # 2 % model-error floor would hide (it keeps lossy-rlc order 0, 2.25 times the noise):
     # the floor adapts to the error the fit leaves beyond the noise, so the model holding
-    # the conductor loss (order 1, element S) is chosen.
+    # the conductor loss (order 1: R·√(1 + jf/fcR), the part's own conductor form,
+    # docs/references.md §17) is chosen, with its corner near the part's 15 MHz.
     f = np.logspace(2, 8, 241)
     z_true = quiet_mlcc(f)
     z, u = noisy(z_true, u=0.002, seed=11)
     result = fit_impedance(f, z, rel_uncertainty=u)
     assert result.model == "lossy-rlc" and result.order >= 1
-    assert "S" in result.elements
+    assert "fcR" in result.elements
+    assert result.elements["fcR"] == pytest.approx(15e6, rel=0.2)
+    assert result.elements["R"] == pytest.approx(2.5e-3, rel=0.05)
     plain = fit_impedance(f, z, rel_uncertainty=u, model="lossy-rlc", order=0)
     assert result.quality.noise_ratio < 0.8 * plain.quality.noise_ratio
-    # Left above 1.5 times the noise (1.66) with reason: S is R-L ladder √(jω) loss
-    # added to a constant R, while the part's conductors lose as R·√(1 + jf/fc); the two
-    # part near the corner fc, and on the noise-free points the order-1 model already
-    # leaves 1.4 times this noise. Held to 1.7 here, so a change that loses the gain shows.
-    assert result.quality.noise_ratio <= 1.7, result.quality
+    assert result.quality.noise_ratio <= NOISE_RATIO, result.quality
     assert_landmarks(result, landmarks_for("capacitor", f, z_true))
     # Not the quiet points at the expense of the resonance: ESR at SRF within 10 %.
     srf = landmarks_for("capacitor", f, z_true)["srf"]

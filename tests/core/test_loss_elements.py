@@ -8,7 +8,8 @@ resonance, check 10 µF with tanδ = 0.05 → 0.796 Ω at 1 kHz and 79.6 mΩ at 
 the skin-effect R-L ladder (Kim and Neikirk, 1996, from memory); conductor loss √f with
 Im Z = Re Z above the skin corner [derived, the surface impedance (1 + j)·Rs]; the
 constant-phase capacitance and its power-law ladder (docs/references.md §16: Jonscher
-1977, from memory; check values derived there).
+1977, from memory; check values derived there); the conductor with a skin corner
+``R·√(1 + jω/ωc)`` and its R‖L ladder (docs/references.md §17, limits derived there).
 """
 
 from __future__ import annotations
@@ -20,17 +21,23 @@ import subprocess
 import numpy as np
 import pytest
 
+from bench.core.fit_network import compiled, values_to_q
 from bench.core.fitting import fit_impedance
+from bench.core.models import lossy_rlc
 from bench.core.models.network import (
     C,
     D,
+    K,
     Q,
     R,
     S,
+    conductor_continuum,
+    conductor_ladder,
     constant_phase_continuum,
     constant_phase_ladder,
     dielectric_continuum,
     dielectric_ladder,
+    impedance_and_jacobian,
     network_impedance,
     parallel,
     series,
@@ -163,9 +170,64 @@ def test_constant_phase_ladder_follows_its_limit_inside_the_band(tan_delta):
     assert c_par > 0 and all(r > 0 and c > 0 for r, c in branches)
 
 
+@pytest.mark.parametrize("corner", [10.0, 15e6, 1e9])
+def test_conductor_ladder_follows_its_limit_inside_the_band(corner):
+    # The ladder against R·√(1 + jω/ωc) (docs/references.md §17) over the band two
+    # decades inside the element's (as the fitter places it): 0.4 % in Z, whatever the
+    # corner inside the element's band.
+    band = (1.0, 2e10)
+    f = np.logspace(2, np.log10(2e8), 241)
+    values = {"R": 2.5e-3, "fcR": corner}
+    z = network_impedance(K("R", band), f, values)
+    exact = 2.5e-3 * conductor_continuum(2j * np.pi * f, corner)
+    np.testing.assert_allclose(z, exact, rtol=4e-3)
+    r0, sections, l_tail = conductor_ladder(2.5e-3, corner, band)
+    assert r0 == 2.5e-3 and l_tail > 0 and all(r > 0 and ind > 0 for r, ind in sections)
+    # The sections' corners R/L are the same multiples of ωc whatever the corner.
+    base = [r / ind for r, ind in conductor_ladder(1.0, 1.0, band)[1]]
+    ratios = [r / ind / (2 * np.pi * corner) for r, ind in sections]
+    np.testing.assert_allclose(ratios, np.array(base) / (2 * np.pi), rtol=1e-9)
+
+
+def test_conductor_limits_at_dc_and_well_above_the_corner():
+    # Check values (docs/references.md §17, [derived]): R at DC; well above the corner
+    # (1 + j)·R·√(f/(2fc)): 2.5 mΩ with fc = 1 MHz at 100 MHz → (1 + j)·17.68 mΩ; the
+    # low-frequency inductance R/(2ωc) = 0.1989 nH, exact in the ladder.
+    band = (1.0, 1e10)
+    values = {"R": 2.5e-3, "fcR": 1e6}
+    z_dc, z_top = network_impedance(K("R", band), np.array([1e-3, 100e6]), values)
+    assert z_dc.real == pytest.approx(2.5e-3, rel=1e-9)
+    assert z_dc.imag / (2 * np.pi * 1e-3) == pytest.approx(0.19894e-9, rel=1e-4)
+    # The continuous form differs from its asymptote by about 1/(2·f/fc) = 0.5 % here.
+    assert z_top.real == pytest.approx(17.68e-3, rel=0.01)
+    assert z_top.imag == pytest.approx(17.68e-3, rel=0.01)
+
+
+@pytest.mark.parametrize("order", [1, 2])
+def test_compiled_conductor_and_its_jacobian_match_the_tree_walk(order):
+    # The fitter's compiled evaluation of lossy-rlc against the general tree walk, and
+    # its Jacobian against central differences.
+    f = np.logspace(2, np.log10(2e8), 121)
+    node = lossy_rlc.network(order, (f[0], f[-1]))
+    values = {"R": 4e-3, "fcR": 5e6, "S": 1e-3, "L": 0.4e-9, "C": 10e-6, "tanC": 0.05}
+    values.update({"R2": 0.06, "L2": 2e-9, "C2": 30e-9})
+    net = compiled(node, f)
+    assert not net.general
+    q = values_to_q(net.names, values)
+    z, jac = net.impedance(q), net.jacobian(q)
+    z_tree, jac_tree = impedance_and_jacobian(node, f, {n: values[n] for n in net.names})
+    np.testing.assert_allclose(z, z_tree, rtol=1e-12)
+    np.testing.assert_allclose(jac, jac_tree, rtol=1e-9, atol=1e-12 * np.abs(z).max())
+    for i in range(len(q)):
+        step = np.zeros_like(q)
+        step[i] = 1e-5
+        numeric = (net.impedance(q + step) - net.impedance(q - step)) / 2e-5
+        np.testing.assert_allclose(numeric, jac[i], rtol=1e-4, atol=1e-8 * np.abs(z).max())
+
+
 @needs_ngspice
 @pytest.mark.ngspice
-@pytest.mark.parametrize("element", ["D", "S", "Q"])
+@pytest.mark.parametrize("element", ["D", "S", "Q", "K"])
 def test_each_ladder_element_in_ngspice_matches_its_impedance(tmp_path, element):
     if element == "D":
         node, values = lossy_capacitor(10e-6, 1e3, 0.05, band=(10.0, 1e8))
@@ -174,6 +236,9 @@ def test_each_ladder_element_in_ngspice_matches_its_impedance(tmp_path, element)
     elif element == "Q":
         node = series(R("R"), Ind("L"), Q("C", (10.0, 1e9)))
         values = {"R": 2e-3, "L": 0.5e-9, "C": 10e-6, "tanC": 0.05}
+    elif element == "K":
+        node = series(K("R", (10.0, 1e9)), Ind("L"))
+        values = {"R": 2e-3, "fcR": 5e6, "L": 1e-9}
     else:
         node = series(R("R"), S("S", (10.0, 1e9)), Ind("L"))
         values = {"R": 2e-3, "S": 5e-3, "L": 1e-9}

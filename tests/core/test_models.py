@@ -140,6 +140,7 @@ RANDOM_DECADES = {
     "D": (-14, -5),
     "S": (-4, 0),
     "t": (-4, -0.2),  # a Q element's loss tangent
+    "f": (2, 8),  # a K element's skin corner (Hz)
 }
 
 
@@ -164,9 +165,10 @@ def test_element_names_are_spice_ready_and_unique(name):
     for order in family.orders:
         names = family.element_names(order)
         assert len(set(n.lower() for n in names)) == len(names)
-        # R, L, C are SPICE elements; D, S and Q become ladders of them (tan<name> is the
-        # loss tangent of a Q element, one of its values, not an element).
-        assert all(n[0] in "RLCDSQ" or n.startswith("tan") for n in names)
+        # R, L, C are SPICE elements; D, S, Q and K become ladders of them (tan<name> is
+        # the loss tangent of a Q element, fc<name> the corner of a K element: values,
+        # not elements).
+        assert all(n[0] in "RLCDSQK" or n.startswith(("tan", "fc")) for n in names)
         assert family.order_of(dict.fromkeys(names, 1.0)) == order
         lines = family.spice_lines(dict.fromkeys(names, 1e-6))
         tokens = [line.split()[0] for line in lines]

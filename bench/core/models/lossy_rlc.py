@@ -1,4 +1,4 @@
-"""``lossy-rlc``: a capacitor whose loss follows the band: ``R + S + jωL + Z_Q(C, tanC)``.
+"""``lossy-rlc``: a capacitor whose loss follows the band: ``Z_K(R, fcR) + jωL + Z_Q(C, tanC)``.
 
 Loss across the band, docs/references.md §9 and §16.
 
@@ -10,13 +10,17 @@ Jonscher's "universal" dielectric response, from memory): its capacitance falls 
 is a Debye ladder whose weights follow that power law (after the wideband Debye model of
 Djordjevic, Biljić, Likar-Smiljanić and Sarkar, IEEE Trans. EMC 43(4), 2001, cited from
 memory, whose equal weights give a constant loss instead of a constant loss tangent).
-``S`` (order ≥ 1) is the conductor loss rising as √f (an R-L ladder in the SPICE export,
-after Kim and Neikirk, 1996, from memory). Order 2 adds a weak second series R-L-C
-branch in parallel, for a stack's higher mode. Both loss elements span the measured
-band with a margin, so they are passive and become ladders of ideal R, L, C in SPICE
-(see ``bench.core.models.network``).
+At order 1 the resistor ``R`` is a conductor with a skin corner (element kind ``K``):
+``R·√(1 + j f/fcR)``, R at DC rising as √f above the fitted corner ``fcR`` (an R‖L
+ladder, after Kim and Neikirk, 1996, from memory; docs/references.md §17). Order 2 has
+``R + S`` instead, ``S`` the conductor loss rising as √f (an R-L ladder), whose two free
+values also take up a residual delay's bend of Re Z at the top of the band, and adds a
+weak second series R-L-C branch in parallel, for a stack's higher mode. The loss
+elements span the measured band with a margin, so they are passive and become ladders of
+ideal R, L, C in SPICE (see ``bench.core.models.network``).
 
-Orders: 0 = R, L, C, tanC; 1 = + S; 2 = + S and R2, L2, C2.
+Orders: 0 = R, L, C, tanC; 1 = R with its corner fcR, L, C, tanC; 2 = R, S, L, C, tanC
+and R2, L2, C2.
 """
 
 from __future__ import annotations
@@ -28,15 +32,19 @@ import numpy as np
 
 from bench.core.models import two_branch
 from bench.core.models.network import (
+    SKIN_REFERENCE_HZ,
     C,
+    K,
     L,
     ModelFamily,
     Q,
     R,
     S,
+    corner_name,
     landmark,
     parallel,
     series,
+    wide_bounds,
 )
 
 # The loss elements reach this far beyond the measured band (factors on f_lo and f_hi):
@@ -57,8 +65,10 @@ def _bands(band):
 
 def network(order: int, band: tuple[float, float] = DEFAULT_BAND):
     dband, sband = _bands(band)
+    if order == 1:
+        return series(K("R", sband), L("L"), Q("C", dband))
     main = [R("R")]
-    if order >= 1:
+    if order >= 2:
         main.append(S("S", sband))
     main += [L("L"), Q("C", dband)]
     if order < 2:
@@ -68,6 +78,30 @@ def network(order: int, band: tuple[float, float] = DEFAULT_BAND):
 
 def circuit(order: int = 0):
     return network(order)
+
+
+def bounds(order: int, f, landmarks: Mapping[str, Any]) -> dict[str, tuple[float, float]]:
+    """Wide bounds, the skin corner inside the conductor element's band."""
+    out = wide_bounds(FAMILY.element_names(order))
+    if order >= 1:
+        f = np.asarray(f, dtype=float)
+        out[corner_name("R")] = _bands((float(np.min(f)), float(np.max(f))))[1]
+    return out
+
+
+def _corner_from(r: float, s: float) -> float:
+    """The corner where ``R·√(f/2fc)`` equals ``S·√(f/1 MHz)`` [derived]."""
+    return float(r * r * SKIN_REFERENCE_HZ / (2 * max(s, 1e-12) ** 2))
+
+
+def reduce(order: int, values: Mapping[str, float], weakness: Mapping[str, float]):
+    """Start values of the next lower order: the mode dropped and R + S read as a corner
+    (order 2), or the corner dropped (order 1)."""
+    del weakness
+    out = {k: float(values[k]) for k in ("R", "L", "C", "tanC")}
+    if order == 2:
+        out["fcR"] = _corner_from(values["R"], values["S"])
+    return out
 
 
 def _loss_estimates(f, z, c: float, esr: float, srf: float) -> tuple[float, float]:
@@ -106,12 +140,20 @@ def starts(order, f, z, landmarks: Mapping[str, Any], previous=None) -> list[dic
     out: list[dict[str, float]] = []
     if order == 0:
         return [base, {**base, "tanC": tan_delta * 0.2, "R": esr * 0.8}]
+    # The corner where R·√(f/2fc) (the conductor well above its corner) gives the rise
+    # read as s·√(f/1 MHz) [derived], and one at the resonance.
+    fc = float(np.clip(_corner_from(esr, s), f[0], f[-1]))
     if order == 1:
         if previous is not None:
-            out.append({**previous, "S": s, "R": previous["R"] * 0.7})
-        out.append({**base, "S": s, "R": esr * 0.5})
+            out.append({**previous, "fcR": fc, "R": previous["R"] * 0.9})
+        out.append({**base, "fcR": fc, "R": esr * 0.8})
+        out.append({**base, "fcR": srf, "R": esr * 0.8})
         return out
-    seed = dict(previous) if previous is not None else {**base, "S": s, "R": esr * 0.5}
+    seed = {**base, "S": s, "R": esr * 0.5}
+    if previous is not None:
+        # The conductor of order 1 as R + S: its rise R·√(f/2fc) read at 1 MHz [derived].
+        seed = {k: v for k, v in previous.items() if k != "fcR"}
+        seed["S"] = previous["R"] * np.sqrt(SKIN_REFERENCE_HZ / (2 * previous["fcR"]))
     for feature in (
         two_branch._mode_start(f, z, srf, c, esr),
         two_branch._step_start(f, z, srf, c, esr),
@@ -138,9 +180,11 @@ FAMILY = ModelFamily(
     name="lossy-rlc",
     kind="capacitor",
     orders=(0, 1, 2),
-    description="series R, L, C with dielectric loss (constant tan d), conductor loss (sqrt f) "
-    "and a second mode",
+    description="series R, L, C with dielectric loss (constant tan d), conductor "
+    "loss (sqrt f above a corner) and a second mode",
     circuit=circuit,
     starts=starts,
+    bounds=bounds,
+    reduce=reduce,
     network=network,
 )

@@ -59,6 +59,13 @@ class Element:
       (:func:`constant_phase_ladder`) is a Debye ladder whose weights follow the power
       law ``u^(−n)`` (:func:`constant_phase_continuum` its limit, within 0.3 % in ESR
       inside the band).
+    - ``K`` (value in Ω, with a second fitted value, its skin corner ``fc<name>`` in Hz):
+      a conductor whose resistance is ``R`` at DC and rises as √f above the corner,
+      ``Z = R·√(1 + jω/ωc)`` (docs/references.md §9, §17), realised exactly as a series
+      resistor ``R`` and R‖L sections whose corners are spaced in fixed ratios from ωc
+      upwards (:func:`conductor_ladder`): the section weights do not depend on the
+      corner, so the model moves smoothly with it; within 0.4 % of the continuous form
+      (:func:`conductor_continuum`) up to the band's top.
     """
 
     kind: str
@@ -118,6 +125,79 @@ def loss_tangent_name(name: str) -> str:
 def S(name: str, band: tuple[float, float]) -> Element:
     """Conductor loss (√f resistance) over ``band`` (Hz); value in Ω at 1 MHz."""
     return Element("S", name, (float(band[0]), float(band[1])))
+
+
+def K(name: str, band: tuple[float, float]) -> Element:
+    """Conductor with a skin corner: ``R·√(1 + jω/ωc)``, values ``name`` (Ω, DC) and
+    ``fc<name>`` (Hz, the corner, inside ``band``); its ladder reaches ``band``'s top
+    whatever the corner."""
+    return Element("K", name, (float(band[0]), float(band[1])))
+
+
+def corner_name(name: str) -> str:
+    """The name of the skin-corner value (Hz) of the ``K`` element ``name``."""
+    return f"fc{name}"
+
+
+# R‖L sections per decade of the conductor ladder: four keep it within 0.4 % of
+# R·√(1 + jω/ωc) [derived numerically, see the tests].
+CONDUCTOR_PER_DECADE = 4.0
+
+
+def _conductor_parts(band: tuple[float, float]) -> tuple[NDArray[np.float64], ...]:
+    """``(g, rho, tail)``: per ohm of DC resistance, the sections' resistances ``g``, their
+    corners ``rho`` as multiples of ωc, and the inductance ``tail`` (times 1/ωc) standing
+    for the sections above the ladder's top.
+
+    ``√(1 + x) = 1 + ∫₁^∞ (√(λ − 1)/(π·λ))·x/(λ + x) dλ`` (a Stieltjes form; the density
+    is ``Im √(1 − λ)/π`` on the branch cut) [derived]: a resistor and a continuum of R‖L
+    sections ``r·s/(λ·ωc + s)``, ``r = R·√(λ − 1)/(π·λ)·dλ``. Cells of equal width in
+    ln λ from 1 to ``band[1]/band[0]``; each cell's section matches the cell's resistance
+    ``∫√(λ−1)/(πλ) dλ = [2t − 2·atan t]/π`` and its inductance
+    ``∫√(λ−1)/(πλ²) dλ = [atan t − t/(1 + t²)]/π`` (t = √(λ − 1)), its corner their
+    ratio; the tail above the top is its inductance alone, so the low-frequency
+    inductance is exactly ``R/(2ωc)`` [derived].
+    """
+    top = band[1] / band[0]
+    n = max(2, int(np.ceil(CONDUCTOR_PER_DECADE * np.log10(top))))
+    t = np.sqrt(np.exp(np.linspace(0.0, np.log(top), n + 1)) - 1.0)
+    g = np.diff(2 * t - 2 * np.arctan(t)) / np.pi
+    h = np.diff(np.arctan(t) - t / (1 + t * t)) / np.pi
+    tail = (np.pi / 2 - np.arctan(t[-1]) + t[-1] / (1 + t[-1] ** 2)) / np.pi
+    return g, g / h, np.array(tail)
+
+
+def _conductor_shape(
+    jw: ComplexArray, corner: float, band: tuple[float, float]
+) -> tuple[ComplexArray, ComplexArray]:
+    """Impedance per ohm of a ``K`` element with corner ``corner`` (Hz), its ladder
+    itself, and its derivative with respect to ``ln ωc``."""
+    g, rho, tail = _conductor_parts(band)
+    wc = 2 * np.pi * corner
+    u = rho[:, None] * wc
+    section = jw[None, :] / (u + jw[None, :])
+    z = 1.0 + g @ section + tail * jw / wc
+    dz = -(g @ (section * u / (u + jw[None, :]))) - tail * jw / wc
+    return z, dz
+
+
+def conductor_continuum(jw: ComplexArray, corner: float) -> ComplexArray:
+    """``√(1 + jω/ωc)``: impedance per ohm of the continuous conductor form (skin effect
+    above the corner ``corner`` Hz; docs/references.md §9, from memory)."""
+    return np.sqrt(1 + jw / (2 * np.pi * corner))
+
+
+def conductor_ladder(
+    value: float, corner: float, band: tuple[float, float]
+) -> tuple[float, list[tuple[float, float]], float]:
+    """``(R, [(R, L), ...], L)``: the series resistor, the R‖L sections and the tail
+    inductor that stand for a ``K`` element of ``value`` Ω and corner ``corner`` Hz."""
+    g, rho, tail = _conductor_parts(band)
+    wc = 2 * np.pi * corner
+    sections = [
+        (float(value * gk), float(value * gk / (rk * wc))) for gk, rk in zip(g, rho, strict=True)
+    ]
+    return float(value), sections, float(value * tail / wc)
 
 
 # Reference frequency of the skin element's value: Re Z = S at 1 MHz.
@@ -294,7 +374,11 @@ def skin_ladder(value: float, band: tuple[float, float]) -> list[tuple[float, fl
 def element_names(node: Node) -> tuple[str, ...]:
     """Element names in the order they appear in the tree."""
     if isinstance(node, Element):
-        return (node.name, loss_tangent_name(node.name)) if node.kind == "Q" else (node.name,)
+        if node.kind == "Q":
+            return (node.name, loss_tangent_name(node.name))
+        if node.kind == "K":
+            return (node.name, corner_name(node.name))
+        return (node.name,)
     out: tuple[str, ...] = ()
     for part in node.parts:
         out += element_names(part)
@@ -310,6 +394,11 @@ def _evaluate(
         y, dy = _constant_phase_shape(jw, values[tan], node.band)
         z = 1.0 / (values[node.name] * y)
         return z, {node.name: -z, tan: -z * dy / y}
+    if isinstance(node, Element) and node.kind == "K":
+        fc = corner_name(node.name)
+        shape, dshape = _conductor_shape(jw, values[fc], node.band)
+        value = values[node.name]
+        return value * shape, {node.name: value * shape, fc: value * dshape}
     if isinstance(node, Element):
         z = _element_impedance(node, jw, values[node.name])
         return z, {node.name: -z if node.kind in "CD" else z}
@@ -359,6 +448,9 @@ def _impedance(node: Node, jw: ComplexArray, values: Mapping[str, float]) -> Com
     if isinstance(node, Element) and node.kind == "Q":
         y, _ = _constant_phase_shape(jw, values[loss_tangent_name(node.name)], node.band)
         return 1.0 / (values[node.name] * y)
+    if isinstance(node, Element) and node.kind == "K":
+        shape, _ = _conductor_shape(jw, values[corner_name(node.name)], node.band)
+        return values[node.name] * shape
     if isinstance(node, Element):
         return _element_impedance(node, jw, values[node.name])
     zs = [_impedance(part, jw, values) for part in node.parts]
@@ -367,8 +459,8 @@ def _impedance(node: Node, jw: ComplexArray, values: Mapping[str, float]) -> Com
     return 1.0 / sum(1.0 / z for z in zs)
 
 
-_SHORT = {"R": "low", "L": "low", "C": "high", "D": "high", "S": "low", "Q": "high"}
-_OPEN = {"R": "high", "L": "high", "C": "low", "D": "low", "S": "high", "Q": "low"}
+_SHORT = {"R": "low", "L": "low", "C": "high", "D": "high", "S": "low", "Q": "high", "K": "low"}
+_OPEN = {"R": "high", "L": "high", "C": "low", "D": "low", "S": "high", "Q": "low", "K": "high"}
 
 
 def vanishing_sides(node: Node, context: tuple[str, ...] = ("pins",)) -> dict[str, set[str]]:
@@ -393,6 +485,9 @@ def vanishing_sides(node: Node, context: tuple[str, ...] = ("pins",)) -> dict[st
         if node.kind == "Q":
             # A vanishing loss tangent leaves a lossless capacitance: the loss drops out.
             return {node.name: sides, loss_tangent_name(node.name): {"low"}}
+        if node.kind == "K":
+            # A corner above the band leaves a plain resistor: the skin loss drops out.
+            return {node.name: sides, corner_name(node.name): {"high"}}
         return {node.name: sides}
     where = "series" if isinstance(node, Series) else "parallel"
     out: dict[str, set[str]] = {}
@@ -440,6 +535,17 @@ def spice_lines(node: Node, values: Mapping[str, float], a: str = "1", b: str = 
                 mid = new_node()
                 lines.append(f"R{n.name}{k} {x} {mid} {r:.9g}")
                 lines.append(f"C{n.name}{k} {mid} {y} {c:.9g}")
+        elif isinstance(n, Element) and n.kind == "K":
+            # The resistor, the R‖L sections and the tail inductor in series from x to y.
+            r0, sections, l_tail = conductor_ladder(
+                values[n.name], values[corner_name(n.name)], n.band
+            )
+            nodes = [x] + [new_node() for _ in range(len(sections) + 1)] + [y]
+            lines.append(f"R{n.name}0 {nodes[0]} {nodes[1]} {r0:.9g}")
+            for k, (r, ind) in enumerate(sections, start=1):
+                lines.append(f"R{n.name}{k} {nodes[k]} {nodes[k + 1]} {r:.9g}")
+                lines.append(f"L{n.name}{k} {nodes[k]} {nodes[k + 1]} {ind:.9g}")
+            lines.append(f"L{n.name}T {nodes[-2]} {nodes[-1]} {l_tail:.9g}")
         elif isinstance(n, Element) and n.kind == "S":
             # R‖L sections in series from x to y.
             sections = skin_ladder(values[n.name], n.band)
@@ -632,6 +738,9 @@ WIDE_BOUNDS = {
     "Q": (1e-16, 10.0),
     # A loss tangent (the second value of a Q element, named ``tan<name>``).
     "t": (1e-5, 1.0),
+    "K": (1e-7, 1e7),
+    # A skin corner in Hz (the second value of a K element, named ``fc<name>``).
+    "f": (1e-3, 1e12),
 }
 
 
