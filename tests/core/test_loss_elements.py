@@ -14,10 +14,6 @@ constant-phase capacitance and its power-law ladder (docs/references.md §16: Jo
 
 from __future__ import annotations
 
-import re
-import shutil
-import subprocess
-
 import numpy as np
 import pytest
 
@@ -47,38 +43,7 @@ from bench.core.models.network import (
 )
 from bench.core.models.network import L as Ind
 from bench.core.spice import library_text, on_mount_subckt_text, spice_name, subckt_text
-
-NGSPICE = shutil.which("ngspice")
-needs_ngspice = pytest.mark.skipif(
-    NGSPICE is None,
-    reason="ngspice is not installed (Debian package 'ngspice'; .ci/run installs it)",
-)
-
-
-def run_ngspice(tmp_path, library: str, name: str, f_lo: float, f_hi: float) -> np.ndarray:
-    """Z of subcircuit ``name`` from an AC analysis: 1 A into pin 1, pin 2 grounded."""
-    (tmp_path / "models.lib").write_text(library)
-    deck = f"""* impedance of {name}
-.include models.lib
-I1 0 1 DC 0 AC 1
-X1 1 0 {name}
-.ac dec 20 {f_lo:g} {f_hi:g}
-.control
-run
-wrdata z.txt v(1)
-quit
-.endc
-.end
-"""
-    (tmp_path / "deck.cir").write_text(deck)
-    proc = subprocess.run(
-        [NGSPICE, "-b", "deck.cir"], cwd=tmp_path, capture_output=True, text=True, timeout=60
-    )
-    log = proc.stdout + proc.stderr
-    assert proc.returncode == 0, log
-    assert not re.search(r"singular matrix|error", log, flags=re.IGNORECASE), log
-    data = np.loadtxt(tmp_path / "z.txt")
-    return data[:, 0], data[:, 1] + 1j * data[:, 2]
+from tests.core.ngspice import needs_ngspice, run_ngspice
 
 
 def lossy_capacitor(c_at, f_at, tan_delta, band=(1.0, 1e9)):

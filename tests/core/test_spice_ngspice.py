@@ -8,10 +8,6 @@ with no DC path and no bleed) would fail the run.
 
 from __future__ import annotations
 
-import re
-import shutil
-import subprocess
-
 import numpy as np
 import pytest
 
@@ -19,12 +15,7 @@ from bench.core.fitting import FitQuality, FitResult, fit_impedance
 from bench.core.models import FAMILIES
 from bench.core.spice import library_text, spice_name, subckt_text
 from simulated_instruments.parts import BulkCapacitor, FerriteBead, Mlcc, PowerInductor
-
-NGSPICE = shutil.which("ngspice")
-needs_ngspice = pytest.mark.skipif(
-    NGSPICE is None,
-    reason="ngspice is not installed (Debian package 'ngspice'; .ci/run installs it)",
-)
+from tests.core.ngspice import needs_ngspice, run_ngspice
 
 F = np.logspace(3, np.log10(200e6), 201)
 PARTS = {
@@ -36,30 +27,6 @@ PARTS = {
 }
 
 
-def run_ngspice(tmp_path, library: str, name: str) -> np.ndarray:
-    (tmp_path / "models.lib").write_text(library)
-    deck = f"""* impedance of {name} by a 1 A AC current source into pin 1
-.include models.lib
-I1 0 1 DC 0 AC 1
-X1 1 0 {name}
-.ac dec 20 1k 200meg
-.control
-run
-wrdata z.txt v(1)
-quit
-.endc
-.end
-"""
-    (tmp_path / "deck.cir").write_text(deck)
-    proc = subprocess.run(
-        [NGSPICE, "-b", "deck.cir"], cwd=tmp_path, capture_output=True, text=True, timeout=60
-    )
-    log = proc.stdout + proc.stderr
-    assert proc.returncode == 0, log
-    assert not re.search(r"singular matrix|error", log, flags=re.IGNORECASE), log
-    return np.loadtxt(tmp_path / "z.txt")
-
-
 @needs_ngspice
 @pytest.mark.ngspice
 @pytest.mark.parametrize("model", sorted(PARTS))
@@ -68,8 +35,7 @@ def test_exported_subcircuit_matches_model_in_ngspice(tmp_path, model):
     result = fit_impedance(F, part.impedance(F), model=model)
     name = f"{part.name}-s1"
     text = subckt_text(result, name, provenance={"source": "invented part, simulated"})
-    data = run_ngspice(tmp_path, library_text([text], title="zbench test"), spice_name(name))
-    f, z_spice = data[:, 0], data[:, 1] + 1j * data[:, 2]
+    f, z_spice = run_ngspice(tmp_path, library_text([text], title="zbench test"), spice_name(name))
     z_model = result.impedance(f)
     assert f.size > 100
     np.testing.assert_allclose(np.abs(z_spice), np.abs(z_model), rtol=1e-3)
@@ -85,8 +51,8 @@ def test_library_of_several_parts_runs(tmp_path):
         result = fit_impedance(F, part.impedance(F), model=model)
         texts.append(subckt_text(result, part.name, provenance={"sample": "s1"}))
     library = library_text(texts, title="two parts")
-    data = run_ngspice(tmp_path, library, "FB600")
-    assert np.all(np.isfinite(data))
+    f, z = run_ngspice(tmp_path, library, "FB600")
+    assert np.all(np.isfinite(f)) and np.all(np.isfinite(z))
 
 
 def test_subckt_text_carries_landmarks_quality_and_provenance():
@@ -170,6 +136,5 @@ def test_highest_orders_simulate_in_ngspice(tmp_path, model, values):
         f_range=(1e3, 200e6),
     )
     text = subckt_text(result, f"{model}_max", provenance={})
-    data = run_ngspice(tmp_path, library_text([text], title="orders"), f"{model}_max")
-    f, z_spice = data[:, 0], data[:, 1] + 1j * data[:, 2]
+    f, z_spice = run_ngspice(tmp_path, library_text([text], title="orders"), f"{model}_max")
     np.testing.assert_allclose(z_spice, FAMILIES[model].impedance(f, values), rtol=1e-3)
