@@ -21,6 +21,9 @@ from bench.units import format_si
 
 # The element holding an inductor's or bead's parallel (winding) capacitance, by family.
 PARALLEL_CAPACITANCE = ("Cp", "C")
+# Change of Re Z across the lowest third of a decade beyond which ``r_dc`` is no DC
+# value (common practice, no source).
+RDC_FLATNESS = 0.1
 # Decades beyond the measured band over which the model's landmarks are still looked
 # for when the data cannot give them.
 LANDMARK_REACH = 2.0
@@ -137,6 +140,21 @@ def low_frequency_warnings(
                 f"({format_si(standard_error, 'Ω', 2)})"
             )
         ]
+    # A resistance that still changes across the band is not yet the DC value: core or
+    # skin loss adds to it there (a bead swept from 1 MHz, say).
+    idx = np.flatnonzero(seen)
+    half = idx.size // 2
+    if half >= 3:
+        lower = float(np.median(z.real[idx[:half]]))
+        upper = float(np.median(z.real[idx[-half:]]))
+        change = upper / lower - 1 if lower > 0 else math.inf
+        if abs(change) > RDC_FLATNESS and abs(upper - lower) > 3.0 * math.sqrt(2) * standard_error:
+            return [
+                f"r_dc ({format_si(r_dc, 'Ω', 3)}) is the resistance at the bottom of the "
+                f"sweep ({format_si(f[0], 'Hz')}), not the DC value: it still changes by "
+                f"{100 * change:+.0f} % up to {format_si(f[idx[-1]], 'Hz')} (core or skin "
+                "loss); sweep lower or measure it with a DC ohmmeter"
+            ]
     return []
 
 
