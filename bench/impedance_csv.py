@@ -63,6 +63,7 @@ _UNITS_OF = {
 _PAIRS = (("mag", "phase"), ("r", "x"), ("re", "im"))
 _EXAMPLE = "Frequency [Hz],|Z| [Ohm],Phase [deg]"
 _BRACKETED = re.compile(r"^(.*?)\s*[\[(]\s*([^\])]*?)\s*[\])]\s*$")
+_UNIT_AFTER = re.compile(r"[\s_]+(?=[^\s_]+$)")
 
 
 def _role(name: str) -> str | None:
@@ -88,7 +89,8 @@ def _column(where: str, text: str) -> tuple[str, float]:
     if match:
         name, unit = match.group(1), match.group(2)
     else:
-        parts = field.rsplit(None, 1)
+        # "Frequency Hz" or "freq_MHz": the unit after the last space or underscore.
+        parts = _UNIT_AFTER.split(field, maxsplit=1)
         name, unit = (parts[0], parts[1]) if len(parts) == 2 else (field, "")
         if _role(field) is not None and (len(parts) < 2 or _role(name) is None):
             name, unit = field, ""

@@ -53,6 +53,12 @@ FORMS = [
         lambda f, z: (f, z.real * 1e3, z.imag * 1e3),
         False,
     ),
+    (
+        "freq_MHz\t|Z|_ohm\tphase_deg",
+        "\t",
+        lambda f, z: (f / 1e6, abs(z), np.degrees(np.angle(z))),
+        False,
+    ),
 ]
 
 
