@@ -2,7 +2,7 @@
 
 The fitter evaluates one circuit on one grid hundreds of times. Every element kind whose
 impedance is its value (or its inverse) times a fixed shape of frequency (R: 1, L: jω,
-C: 1/jω, the loss ladders D and S: their ladder shapes) is ``Ze = exp(σ·q)·B(ω)`` with
+C: 1/jω, the loss ladder S: its ladder shape) is ``Ze = exp(σ·q)·B(ω)`` with
 ``q`` the log value and ``σ = ±1``; so one broadcast product gives every element's
 impedance, and ``σ·Ze`` its derivative in ``q``. The elements of any subtree are
 consecutive in :func:`~bench.core.models.network.element_names` order, so series sums run
@@ -34,7 +34,7 @@ from bench.core.models.network import (
 )
 
 # σ of each kind whose impedance is value**σ times a shape of frequency.
-_POWER = {"R": 1.0, "L": 1.0, "S": 1.0, "C": -1.0, "D": -1.0}
+_POWER = {"R": 1.0, "L": 1.0, "S": 1.0, "C": -1.0}
 
 
 @dataclass

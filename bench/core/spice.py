@@ -40,7 +40,7 @@ _LANDMARK_UNITS = {
     "z_at_srf": "Ohm",
     "c_par": "F",
 }
-_ELEMENT_UNITS = {"R": "Ohm", "L": "H", "C": "F", "D": "F", "S": "Ohm at 1 MHz", "K": "Ohm"}
+_ELEMENT_UNITS = {"R": "Ohm", "L": "H", "C": "F", "S": "Ohm at 1 MHz", "K": "Ohm"}
 
 
 def spice_name(name: str) -> str:

@@ -1,11 +1,10 @@
-"""Loss across the band: the D and Q (dielectric) and S (conductor) elements, their
+"""Loss across the band: the Q (dielectric), S and K (conductor) elements, their
 published check values, their SPICE ladders in ngspice, and the two exports of a part.
 
 Sources (docs/references.md §9): constant loss tangent ``ESR ≈ tanδ/(ωC)`` below
-resonance, check 10 µF with tanδ = 0.05 → 0.796 Ω at 1 kHz and 79.6 mΩ at 10 kHz
-[derived, published check values of the references]; the wideband Debye form
-(Djordjevic, Biljić, Likar-Smiljanić, Sarkar, IEEE Trans. EMC 43(4), 2001, from memory);
-the skin-effect R-L ladder (Kim and Neikirk, 1996, from memory); conductor loss √f with
+resonance [derived]; the wideband Debye ladder behind Q's (Djordjevic, Biljić,
+Likar-Smiljanić, Sarkar, IEEE Trans. EMC 43(4), 2001, from memory); the skin-effect
+R-L ladder (Kim and Neikirk, 1996, from memory); conductor loss √f with
 Im Z = Re Z above the skin corner [derived, the surface impedance (1 + j)·Rs]; the
 constant-phase capacitance and its power-law ladder (docs/references.md §16: Jonscher
 1977, from memory; check values derived there); the conductor with a skin corner
@@ -21,8 +20,6 @@ from bench.core.fit_network import compiled, values_to_q
 from bench.core.fitting import fit_impedance
 from bench.core.models import lossy_rlc
 from bench.core.models.network import (
-    C,
-    D,
     K,
     Q,
     R,
@@ -31,11 +28,8 @@ from bench.core.models.network import (
     conductor_ladder,
     constant_phase_continuum,
     constant_phase_ladder,
-    dielectric_continuum,
-    dielectric_ladder,
     impedance_and_jacobian,
     network_impedance,
-    parallel,
     series,
     skin_continuum,
     skin_ladder,
@@ -46,40 +40,7 @@ from bench.core.spice import library_text, on_mount_subckt_text, spice_name, sub
 from tests.core.ngspice import needs_ngspice, run_ngspice
 
 
-def lossy_capacitor(c_at, f_at, tan_delta, band=(1.0, 1e9)):
-    """C ‖ D with D = tanδ·C_eff, C∞ chosen so that the capacitance at ``f_at`` is ``c_at``."""
-    node = parallel(C("C"), D("D", band))
-    d = tan_delta * c_at
-    y_unit = network_impedance(parallel(D("D", band)), np.array([f_at]), {"D": 1.0})
-    c_from_d = float((1 / y_unit[0]).imag / (2 * np.pi * f_at)) * d
-    return node, {"C": c_at - c_from_d, "D": d}
-
-
-@pytest.mark.parametrize(("f", "esr"), [(1e3, 0.796), (10e3, 79.6e-3)])
-def test_constant_loss_tangent_check_values(f, esr):
-    # docs/references.md §9 [derived]: 10 µF, tanδ = 0.05 → ESR = tanδ/(ωC).
-    node, values = lossy_capacitor(10e-6, f, 0.05)
-    z = network_impedance(node, np.array([f]), values)[0]
-    # ESR = tanδ/(ωC)/(1 + tan²δ) exactly; the check value leaves out the 0.25 %.
-    assert z.real == pytest.approx(esr, rel=0.01)
-    assert -1 / (2 * np.pi * f * z.imag) * (1 + (z.real / z.imag) ** 2) == pytest.approx(
-        10e-6, rel=0.01
-    )
-
-
-def test_loss_tangent_is_flat_across_the_band_and_the_ladder_follows_its_limit():
-    band = (10.0, 1e9)
-    f = np.logspace(2, 8, 121)
-    jw = 2j * np.pi * f
-    ladder = network_impedance(D("D", band), f, {"D": 1.0})
-    y = 1 / ladder
-    # The ladder's loss angle per farad is flat (tanδ = D/C for C ≫ D) [derived]: within
-    # 7 % from a decade inside the band's edges, where the continuous form's arctan tails
-    # start to fall (the fitted D element reaches a decade beyond the measured band).
-    g_over_wd = y.real / (2 * np.pi * f)
-    assert np.ptp(g_over_wd) / np.mean(g_over_wd) < 0.07
-    assert np.mean(g_over_wd) == pytest.approx(1.0, rel=0.02)
-    np.testing.assert_allclose(y, dielectric_continuum(jw, band), rtol=0.01)
+def test_skin_ladder_follows_its_limit():
     # √f conductor loss: Re Z = S·√(f / 1 MHz), Im Z ≈ Re Z inside the band [derived],
     # three decades inside the band's edges (the sections below a frequency add up as √f,
     # those above it as 1/√f, so a band cut short lowers Re Z by about √(f_lo/f) and
@@ -93,14 +54,12 @@ def test_loss_tangent_is_flat_across_the_band_and_the_ladder_follows_its_limit()
 
 
 def test_ladders_are_passive_and_sized_from_the_element():
-    rc = dielectric_ladder(1e-6, (1e2, 1e8))
     rl = skin_ladder(0.01, (1e2, 1e8))
-    assert len(rc) == len(rl) == 12  # two sections per decade over six decades
-    assert all(r > 0 and c > 0 for r, c in rc)
+    assert len(rl) == 12  # two sections per decade over six decades
     assert all(r > 0 and ind > 0 for r, ind in rl)
-    # Time constants of the branches are log-spaced, one per half decade [derived].
-    taus = np.array([r * c for r, c in rc])
-    np.testing.assert_allclose(np.diff(np.log10(taus)), -0.5, rtol=1e-9)
+    # Corners R/L of the sections are log-spaced, one per half decade [derived].
+    corners = np.array([r / ind for r, ind in rl])
+    np.testing.assert_allclose(np.diff(np.log10(corners)), 0.5, rtol=1e-9)
 
 
 # A Q element whose band is centred on 1 kHz, so that its C is the capacitance at 1 kHz.
@@ -192,13 +151,9 @@ def test_compiled_conductor_and_its_jacobian_match_the_tree_walk(order):
 
 @needs_ngspice
 @pytest.mark.ngspice
-@pytest.mark.parametrize("element", ["D", "S", "Q", "K"])
+@pytest.mark.parametrize("element", ["S", "Q", "K"])
 def test_each_ladder_element_in_ngspice_matches_its_impedance(tmp_path, element):
-    if element == "D":
-        node, values = lossy_capacitor(10e-6, 1e3, 0.05, band=(10.0, 1e8))
-        node = series(R("R"), node)
-        values["R"] = 1e-3
-    elif element == "Q":
+    if element == "Q":
         node = series(R("R"), Ind("L"), Q("C", (10.0, 1e9)))
         values = {"R": 2e-3, "L": 0.5e-9, "C": 10e-6, "tanC": 0.05}
     elif element == "K":

@@ -132,12 +132,11 @@ def test_analytic_jacobian_matches_finite_differences(name, values, formula):
         assert np.max(np.abs(jac[i] - numeric) / np.abs(z)) < 1e-7, key
 
 
-# Decades of random element values by kind letter (D in F, S in Ω at 1 MHz).
+# Decades of random element values by kind letter (S in Ω at 1 MHz).
 RANDOM_DECADES = {
     "R": (-4, 3),
     "L": (-10, -5),
     "C": (-12, -3),
-    "D": (-14, -5),
     "S": (-4, 0),
     "t": (-4, -0.2),  # a Q element's loss tangent
     "f": (2, 8),  # a K element's skin corner (Hz)
@@ -165,7 +164,7 @@ def test_element_names_are_spice_ready_and_unique(name):
     for order in family.orders:
         names = family.element_names(order)
         assert len(set(n.lower() for n in names)) == len(names)
-        # R, L, C are SPICE elements; D, S, Q and K become ladders of them (tan<name> is
+        # R, L, C are SPICE elements; S, Q and K become ladders of them (tan<name> is
         # the loss tangent of a Q element, fc<name> the corner of a K element: values,
         # not elements).
         assert all(n[0] in "RLCDSQK" or n.startswith(("tan", "fc")) for n in names)

@@ -31,19 +31,14 @@ BLEED_RESISTANCE = 1e12
 class Element:
     """One element; ``name`` starts with its kind letter (``R1``, ``Lk1``, ``Cp``).
 
-    Kinds ``R``, ``L``, ``C`` are the ideal parts. Two kinds (docs/references.md §9)
+    Kinds ``R``, ``L``, ``C`` are the ideal parts. The others (docs/references.md §9)
     describe a loss spread
     over a band ``band = (f_lo, f_hi)`` (Hz). Each is a ladder of ideal parts with
-    :data:`LADDER_PER_DECADE` sections per decade (:func:`dielectric_ladder`,
-    :func:`skin_ladder`): the model is that ladder, the SPICE export writes it out, and
-    the continuous forms below are its limit (:func:`dielectric_continuum`,
-    :func:`skin_continuum`), within about 1 % inside the band:
+    :data:`LADDER_PER_DECADE` sections per decade (:func:`skin_ladder`,
+    :func:`constant_phase_ladder`): the model is that ladder, the SPICE export writes it out, and
+    the continuous forms below are its limit (:func:`skin_continuum`,
+    :func:`constant_phase_continuum`), within about 1 % inside the band:
 
-    - ``D`` (value in F): dielectric loss with a constant loss tangent, the wideband
-      Debye model of Djordjevic, Biljić, Likar-Smiljanić and Sarkar (IEEE Trans. EMC
-      43(4), 2001; cited from memory): ``Y = jω·D·(2/π)·ln((ω2 + jω)/(ω1 + jω))``, the
-      limit of series R-C branches with log-spaced time constants between ``1/ω2`` and
-      ``1/ω1``. Placed across a capacitor C, its loss tangent is about ``D/C`` in the band.
     - ``S`` (value in Ω): conductor (skin) loss, resistance rising as √f, the limit of
       series R‖L sections with log-spaced corners (the R-L ladder of Kim and Neikirk,
       1996, cited from memory): ``Z = 2A·√(jω)·[atan(√(ωb/jω)) − atan(√(ωa/jω))]``
@@ -55,7 +50,8 @@ class Element:
       "universal" dielectric response, from memory; docs/references.md §16), with C the
       real part of its capacitance at the band's geometric centre ``ωc``. Its
       capacitance falls as ``ω^(−n)``, its loss with it, so the loss tangent stays put,
-      where ``C ‖ D`` keeps the loss (not the tangent) constant. The ladder
+      where a plain wideband Debye ladder across C would keep the loss (not the
+      tangent) constant. The ladder
       (:func:`constant_phase_ladder`) is a Debye ladder whose weights follow the power
       law ``u^(−n)`` (:func:`constant_phase_continuum` its limit, within 0.3 % in ESR
       inside the band).
@@ -104,11 +100,6 @@ def L(name: str) -> Element:
 
 def C(name: str) -> Element:
     return Element("C", name)
-
-
-def D(name: str, band: tuple[float, float]) -> Element:
-    """Dielectric loss (constant loss tangent) over ``band`` (Hz); value in F."""
-    return Element("D", name, (float(band[0]), float(band[1])))
 
 
 def Q(name: str, band: tuple[float, float]) -> Element:
@@ -204,13 +195,6 @@ def conductor_ladder(
 SKIN_REFERENCE_HZ = 1e6
 
 
-def dielectric_continuum(jw: ComplexArray, band: tuple[float, float]) -> ComplexArray:
-    """``jω·(2/π)·ln((ω2 + jω)/(ω1 + jω))``: admittance per farad of the continuous
-    wideband Debye form (Djordjevic et al. 2001, from memory)."""
-    w1, w2 = 2 * np.pi * band[0], 2 * np.pi * band[1]
-    return jw * (2 / np.pi) * np.log((w2 + jw) / (w1 + jw))
-
-
 def skin_continuum(jw: ComplexArray, band: tuple[float, float]) -> ComplexArray:
     """Impedance per ohm of the continuous √f form (see :class:`Element`)."""
     wa, wb = 2 * np.pi * band[0], 2 * np.pi * band[1]
@@ -287,14 +271,6 @@ def constant_phase_ladder(
     ]
 
 
-def _dielectric_shape(jw: ComplexArray, band: tuple[float, float]) -> ComplexArray:
-    """Admittance per farad of a ``D`` element: the ladder of :func:`dielectric_ladder`
-    itself, so that the model and its SPICE export are one circuit."""
-    centres, width = _log_cells(band)
-    g = (2 / np.pi) * width
-    return np.sum(g * jw[None, :] / (1 + jw[None, :] / centres[:, None]), axis=0)
-
-
 def _skin_shape(jw: ComplexArray, band: tuple[float, float]) -> ComplexArray:
     """Impedance per ohm of an ``S`` element: the ladder of :func:`skin_ladder` itself."""
     centres, width = _log_cells(band)
@@ -307,14 +283,14 @@ _SHAPES: dict[tuple[str, tuple[float, float] | None, int, int], ComplexArray] = 
 
 
 def _shape(node: Element, jw: ComplexArray) -> ComplexArray:
-    """The frequency shape of a ``D`` or ``S`` element, kept for the grids in use (a fit
+    """The frequency shape of an ``S`` element, kept for the grids in use (a fit
     evaluates one grid hundreds of times and the shape does not depend on the value)."""
     key = (node.kind, node.band, jw.size, hash(jw.tobytes()))
     out = _SHAPES.get(key)
     if out is None:
         if len(_SHAPES) > 64:
             _SHAPES.clear()
-        out = (_dielectric_shape if node.kind == "D" else _skin_shape)(jw, node.band)
+        out = _skin_shape(jw, node.band)
         out.flags.writeable = False
         _SHAPES[key] = out
     return out
@@ -327,14 +303,12 @@ def _element_impedance(node: Element, jw: ComplexArray, value: float) -> Complex
         return jw * value
     if node.kind == "C":
         return 1.0 / (jw * value)
-    if node.kind == "D":
-        return 1.0 / (value * _shape(node, jw))
     if node.kind == "S":
         return value * _shape(node, jw)
     raise ValueError(f"unknown element kind {node.kind!r}")
 
 
-# Sections per decade of the SPICE ladders that stand for D and S elements: two keep the
+# Sections per decade of the SPICE ladders of the loss elements (S, and Q's cells): two keep the
 # ladder within about 1 % of its continuous limit [derived numerically, see the tests].
 LADDER_PER_DECADE = 2.0
 
@@ -345,18 +319,6 @@ def _log_cells(band: tuple[float, float]) -> tuple[NDArray[np.float64], float]:
     n = max(2, int(np.ceil(LADDER_PER_DECADE * (hi - lo) / np.log(10))))
     width = (hi - lo) / n
     return np.exp(lo + width * (np.arange(n) + 0.5)), float(width)
-
-
-def dielectric_ladder(value: float, band: tuple[float, float]) -> list[tuple[float, float]]:
-    """``(R, C)`` of the series R-C branches that stand for a ``D`` element of ``value`` F.
-
-    The continuous form integrates ``g·jω/(1 + jω/u)`` over ``d ln u`` with
-    ``g = (2/π)·D``; the ladder is its midpoint rule on cells of equal width in ln u:
-    ``ΔC = g·Δ``, ``R = 1/(u·ΔC)`` (Djordjevic et al. 2001, from memory; [derived]).
-    """
-    centres, width = _log_cells(band)
-    dc = (2 / np.pi) * value * width
-    return [(float(1.0 / (u * dc)), float(dc)) for u in centres]
 
 
 def skin_ladder(value: float, band: tuple[float, float]) -> list[tuple[float, float]]:
@@ -459,8 +421,8 @@ def _impedance(node: Node, jw: ComplexArray, values: Mapping[str, float]) -> Com
     return 1.0 / sum(1.0 / z for z in zs)
 
 
-_SHORT = {"R": "low", "L": "low", "C": "high", "D": "high", "S": "low", "Q": "high", "K": "low"}
-_OPEN = {"R": "high", "L": "high", "C": "low", "D": "low", "S": "high", "Q": "low", "K": "high"}
+_SHORT = {"R": "low", "L": "low", "C": "high", "S": "low", "Q": "high", "K": "low"}
+_OPEN = {"R": "high", "L": "high", "C": "low", "S": "high", "Q": "low", "K": "high"}
 
 
 def vanishing_sides(node: Node, context: tuple[str, ...] = ("pins",)) -> dict[str, set[str]]:
@@ -519,13 +481,7 @@ def spice_lines(node: Node, values: Mapping[str, float], a: str = "1", b: str = 
         return f"n{counter[0]}"
 
     def emit(n: Node, x: str, y: str) -> None:
-        if isinstance(n, Element) and n.kind == "D":
-            # One series R-C branch per cell, all between x and y.
-            for k, (r, c) in enumerate(dielectric_ladder(values[n.name], n.band), start=1):
-                mid = new_node()
-                lines.append(f"R{n.name}{k} {x} {mid} {r:.9g}")
-                lines.append(f"C{n.name}{k} {mid} {y} {c:.9g}")
-        elif isinstance(n, Element) and n.kind == "Q":
+        if isinstance(n, Element) and n.kind == "Q":
             # A plain capacitor and one series R-C branch per cell, all between x and y.
             c_par, branches = constant_phase_ladder(
                 values[n.name], values[loss_tangent_name(n.name)], n.band
@@ -591,7 +547,7 @@ class ModelFamily:
     without it every element gets the :data:`WIDE_BOUNDS` of its kind.
     ``order_of(names)`` recovers the order from a set of element names.
     ``network(order, band)``, when given, builds the circuit for a measured band (Hz)
-    (families with ``D`` or ``S`` elements); ``circuit(order)`` is then the circuit of a
+    (families with ``Q``, ``S`` or ``K`` elements); ``circuit(order)`` is then the circuit of a
     default band, good for names and orders only.
     ``optional`` names elements that may drop out without the order losing the data's
     support (a part of the circuit the measured band may not show, such as a bead's
@@ -616,7 +572,7 @@ class ModelFamily:
 
     def circuit_for(self, order: int, f: NDArray[np.float64]) -> Node:
         """The circuit of ``order`` fitted on the frequencies ``f`` (Hz): families with
-        loss spread over a band (``D``, ``S`` elements) place it over ``f``'s span."""
+        loss spread over a band (``Q``, ``S``, ``K`` elements) place it over ``f``'s span."""
         if self.network is None:
             return self.circuit(order)
         return self.network(order, (float(np.min(f)), float(np.max(f))))
@@ -733,7 +689,6 @@ WIDE_BOUNDS = {
     "R": (1e-7, 1e7),
     "L": (1e-15, 1.0),
     "C": (1e-16, 10.0),
-    "D": (1e-18, 10.0),
     "S": (1e-9, 1e4),
     "Q": (1e-16, 10.0),
     # A loss tangent (the second value of a Q element, named ``tan<name>``).
