@@ -29,6 +29,7 @@ from bench.core.models.network import (
     _conductor_shape,
     _constant_phase_parts,
     _element_impedance,
+    constant_phase_branches,
     element_names,
     impedance_and_jacobian,
 )
@@ -106,7 +107,7 @@ class CompiledNetwork:
         for i, e in enumerate(elements):
             if e.kind == "Q":
                 u = _constant_phase_parts(0.1, e.band)[0]  # the corners depend on the band only
-                branch = jw[None, :] / (1 + jw[None, :] / u[:, None])
+                branch = constant_phase_branches(jw, u)
                 self._q_slots.append((i, rows[i], e.band, branch, jw))
         self._k_slots = [(i, rows[i], e.band, jw) for i, e in enumerate(elements) if e.kind == "K"]
         self._n_elements = len(elements)
