@@ -14,7 +14,7 @@ import math
 import numpy as np
 from numpy.typing import NDArray
 
-from bench.core.fit_network import CompiledNetwork
+from bench.core.fit_network import compiled
 from bench.core.fit_select import Trial
 from bench.core.landmark_slopes import landmark_slopes
 from bench.core.landmarks import Landmarks, landmarks_for
@@ -41,7 +41,7 @@ def landmark_uncertainties(
     another way, by reading it again at each value moved a little
     (:func:`landmark_gradients_by_steps`)."""
     names = trial.family.element_names(trial.order)
-    net = CompiledNetwork(trial.node, np.asarray(f, dtype=float))
+    net = compiled(trial.node, f)
     with np.errstate(all="ignore"):
         z = net.impedance(trial.q)
         slopes = landmark_slopes(kind, f, z, net.jacobian(trial.q))
