@@ -42,6 +42,7 @@ from bench.core.fit_landmarks import (
     landmark_uncertainties,
     low_frequency_warnings,
     merge_landmarks,
+    model_impedance,
     model_landmarks,
     resonance_warnings,
 )
@@ -59,7 +60,6 @@ from bench.core.model_registry import MODEL_NAMES, auto_candidates
 from bench.core.models import FAMILIES, ModelFamily
 from bench.core.models.network import (
     clip_to_bounds,
-    network_impedance,
     vanishing_sides,
 )
 from bench.errors import FitError, InputError
@@ -625,7 +625,7 @@ def fit_impedance(
             f"({format_si(e.f_lo, 'Hz')} to {format_si(e.f_hi, 'Hz')})"
         )
 
-    zm = network_impedance(best.node, fu, best.values)
+    zm = model_impedance(best, fu)
     err = np.abs(log_ratio(zm, zu))
     u = u_all[used]
     k = best.size
@@ -714,7 +714,7 @@ def adapted_floor(best: Trial, f, z, u) -> float:
     ``z`` with relative uncertainties ``u``: the RMS error it leaves beyond what the
     noise predicts, ``sqrt(mean|e|² − mean u²)``, within ``MIN_FLOOR_FRACTION`` ·
     MODEL_ERROR_FLOOR and MODEL_ERROR_FLOOR."""
-    err = np.abs(log_ratio(network_impedance(best.node, f, best.values), z))
+    err = np.abs(log_ratio(model_impedance(best, f), z))
     excess = math.sqrt(max(float(np.mean(err**2) - np.mean(u**2)), 0.0))
     return min(max(excess, MIN_FLOOR_FRACTION * MODEL_ERROR_FLOOR), MODEL_ERROR_FLOOR)
 
@@ -724,7 +724,7 @@ def _screen(f, z, candidates, negative, weight, best: Trial):
     the ``candidates`` points (negative-resistance points count as infinitely far off)."""
     idx = np.flatnonzero(candidates)
     with np.errstate(all="ignore"):
-        zm = network_impedance(best.node, f[idx], best.values)
+        zm = model_impedance(best, f[idx])
         residual = np.abs(log_ratio(zm, z[idx])) * weight[idx]
     neg = negative[idx]
     glitch = np.zeros(f.size, bool)
