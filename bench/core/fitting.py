@@ -167,9 +167,13 @@ def _fit_order(
     scouts: list[tuple[float, NDArray[np.float64]]] = []
     if starts is None:
         starts = family.starts(order, f, z, landmarks, previous)
+    tried: list[NDArray[np.float64]] = []
     for start in starts:
         clipped = clip_to_bounds(start, limits)
         q0 = np.log([clipped[n] for n in names])
+        if any(np.array_equal(q0, q) for q in tried):
+            continue  # the same start again (an order without sections): the same scout
+        tried.append(q0)
         with np.errstate(all="ignore"):
             r0 = coarse.residuals(q0)
         if not np.all(np.isfinite(r0)):
