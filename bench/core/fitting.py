@@ -358,6 +358,19 @@ class _Climb:
     lower: Trial | None
 
 
+# A restart within this distance (natural log, every element) of the fit it would
+# restart is that fit: it starts in its minimum and cannot leave it.
+SAME_POINT_LOG = 1e-3
+
+
+def _at(trial: Trial, values: Mapping[str, float]) -> bool:
+    """True when ``values`` are ``trial``'s own fitted values within :data:`SAME_POINT_LOG`."""
+    names = trial.family.element_names(trial.order)
+    with np.errstate(all="ignore"):
+        q = np.log([float(values[n]) for n in names])
+    return bool(np.all(np.abs(q - trial.q) < SAME_POINT_LOG))
+
+
 def _fit_family(
     family: ModelFamily,
     orders: tuple[int, ...],
@@ -398,7 +411,7 @@ def _fit_family(
         if not trial.supported and len(out) > 1:
             start = family.reduced_start(o, trial.values, trial.weakness)
             lower = out[-2]
-            if start is not None:
+            if start is not None and not _at(lower, start):
                 again = _fit_order(
                     family, lower.order, f, z, weight, data_marks, None, starts=[start]
                 )
