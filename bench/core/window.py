@@ -46,6 +46,7 @@ multiplicative error (ε = 1.16 %) and a 10 % target give ``z_max ≈ 25·(0.1/0
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 
@@ -189,6 +190,9 @@ def check_method(method: str) -> str:
     return name
 
 
+# A batch of files from one set-up asks for the same window for every file: the search
+# below is about a hundred scalar evaluations, so its (frozen) result is kept.
+@functools.lru_cache(maxsize=64)
 def measurable_window(
     *,
     z0: float = 50.0,
