@@ -24,8 +24,6 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-import numpy as np
-
 from bench.errors import FitError, InputError, ZbenchError
 from bench.files import atomic_write_text
 from bench.parallel import ordered_map
@@ -221,6 +219,8 @@ def unnormalised_hint(f: Any, s: Any) -> str | None:
     is given when the high-impedance points at the lowest frequencies read k < 0.93
     (common practice, no source).
     """
+    import numpy as np
+
     f = np.asarray(f, dtype=float)
     s21 = np.asarray(s, dtype=complex)[:, 1, 0]
     order = np.argsort(f)

@@ -17,6 +17,8 @@ import pytest
 
 EXAMPLE = Path(__file__).resolve().parents[2] / "examples" / "mlcc_22u.s2p"
 HEAVY = (
+    "numpy",
+    "bench.core",
     "matplotlib",
     "skrf",
     "scipy",
@@ -55,7 +57,8 @@ def test_importing_the_command_line_loads_nothing_heavy():
 
 def test_fit_help_loads_no_plotting_and_no_scikit_rf():
     heavy = loaded_after(["fit", "--help"])
-    assert not {m for m in heavy if m.split(".")[0] in ("matplotlib", "skrf")}
+    assert not {m for m in heavy if m.split(".")[0] in ("matplotlib", "skrf", "numpy")}
+    assert not {m for m in heavy if m.startswith("bench.core")}
     assert not {m for m in heavy if m.startswith(("bench.report", "bench.plots"))}
 
 
