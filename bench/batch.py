@@ -13,6 +13,10 @@ fit's numbers only (no arrays of the measurement)::
 
     for outcome in fit_files(["a.s2p", "b.s2p"], FitOptions(model="auto"), jobs=None):
         print(outcome.path, outcome.error or outcome.result.model)
+
+A program calling it should ask for one BLAS thread before numpy loads
+(``OPENBLAS_NUM_THREADS=1``, as :mod:`bench.cli` does): the workers use the cores, and
+BLAS threads would only spin on a fit's small matrices.
 """
 
 from __future__ import annotations
