@@ -8,14 +8,12 @@ from __future__ import annotations
 
 import numpy as np
 from numpy.typing import NDArray
-from scipy.optimize import leastsq
-
-try:  # MINPACK's driver as scipy's leastsq calls it (see levenberg_marquardt)
-    from scipy.optimize._minpack import _lmder
-except ImportError:  # pragma: no cover - a scipy without it uses leastsq
-    _lmder = None
 
 from bench.core.fit_network import compiled
+
+# MINPACK's driver as scipy's leastsq calls it (see levenberg_marquardt), loaded without
+# the rest of scipy.optimize (start-up); None on a scipy without it (leastsq then).
+from bench.core.minpack import lmder as _lmder
 
 
 def log_ratio(zm: NDArray[np.complex128], z: NDArray[np.complex128]) -> NDArray[np.complex128]:
@@ -90,6 +88,8 @@ def levenberg_marquardt(fun, jac, x0, max_nfev: int, tolerance: float) -> NDArra
             )[0]
         except TypeError:
             pass
+    from scipy.optimize import leastsq
+
     return leastsq(
         fun,
         x0,
