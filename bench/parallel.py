@@ -10,6 +10,10 @@ Workers are forked from this process when it runs one thread (they then start wi
 everything already imported); a process with other threads (the simulated bench of a
 ``run --sim``) forks them from a clean server process instead, which imports the fitting
 core once, since forking a threaded process can deadlock.
+
+``shared`` (optional) is handed to every call as ``fn(item, shared)``: options common to
+all items (a loaded mount short, say) reach each worker once, when it starts (inherited
+as it is with ``fork``), rather than pickled with every item.
 """
 
 from __future__ import annotations
@@ -17,13 +21,26 @@ from __future__ import annotations
 import os
 import threading
 from collections.abc import Callable, Iterable, Iterator
-from typing import TypeVar
+from typing import Any, TypeVar
 
 T = TypeVar("T")
 R = TypeVar("R")
 
 #: Modules a worker process needs before its first task (forkserver preload).
 PRELOAD = ["bench.core.fitting"]
+
+_NOTHING = object()
+#: The ``shared`` value of the map this worker process serves (set when it starts).
+_shared: Any = _NOTHING
+
+
+def _set_shared(value: Any) -> None:
+    global _shared
+    _shared = value
+
+
+def _call(fn: Callable[..., R], item: Any) -> R:
+    return fn(item) if _shared is _NOTHING else fn(item, _shared)
 
 
 def available_cores() -> int:
@@ -64,22 +81,26 @@ def ordered_map(
     jobs: int | None = None,
     *,
     preload: tuple[str, ...] = (),
+    shared: Any = _NOTHING,
 ) -> Iterator[R]:
     """``fn`` over ``items`` on up to ``jobs`` processes (all cores when None), in order.
 
     ``preload`` names modules the workers need besides :data:`PRELOAD` (imported before
-    the first task where the start method allows)."""
+    the first task where the start method allows). With ``shared``, each call is
+    ``fn(item, shared)``, and ``shared`` goes to each worker once."""
     todo = list(items)
     workers = worker_count(jobs, len(todo))
     if workers == 1:
         for item in todo:
-            yield fn(item)
+            yield fn(item) if shared is _NOTHING else fn(item, shared)
         return
     from concurrent.futures import ProcessPoolExecutor
 
-    pool = ProcessPoolExecutor(max_workers=workers, mp_context=_context(preload))
+    # The sentinel does not survive pickling, so a map without ``shared`` sets nothing.
+    setup = {} if shared is _NOTHING else {"initializer": _set_shared, "initargs": (shared,)}
+    pool = ProcessPoolExecutor(max_workers=workers, mp_context=_context(preload), **setup)
     try:
-        futures = [pool.submit(fn, item) for item in todo]
+        futures = [pool.submit(_call, fn, item) for item in todo]
         for future in futures:
             yield future.result()
     finally:

@@ -29,20 +29,26 @@ fix); 1 internal error. When several apply, 1 wins over 2, and 2 over 3.
 
 from __future__ import annotations
 
-import functools
 import json
 import math
 import re
-from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 import click
-import numpy as np
 
+from bench.batch import (  # noqa: F401  (series_r_from_comments: this module's public name)
+    FileOutcome,
+    FitOptions,
+    fit_files,
+    impedance_of,
+    meets_quality,
+    series_r_contradiction,
+    series_r_from_comments,
+    unnormalised_hint,
+    write_output,
+)
 from bench.errors import FitError, InputError, ZbenchError
-from bench.files import atomic_write_text
-from bench.parallel import ordered_map
 from bench.units import LANDMARK_UNITS, format_si
 
 
@@ -50,62 +56,6 @@ class InternalError(ZbenchError):
     """An unexpected failure while fitting one of several files (exit 1)."""
 
     exit_code = 1
-
-
-@dataclass
-class _Outcome:
-    path: str
-    result: Any = None
-    spice_text: str | None = None
-    spice_path: Path | None = None
-    error: str | None = None
-    exit_code: int = 0
-    note: str | None = None
-    notes: list[str] = field(default_factory=list)
-    extra: dict[str, Any] = field(default_factory=dict)
-
-
-_METHOD_NOTES = {
-    "default": "shunt-through (a two-port S file; give --method series-through if the part "
-    "sat in series)",
-    "comments": "{method}, as its comments state (give --method to override)",
-    "file": "reflection (a one-port S file)",
-}
-
-
-def _method_note(name: str, measurement: Any) -> str | None:
-    """What the reader decided about the method, for a person; None when told."""
-    source = measurement.method_source
-    if measurement.kind == "impedance":
-        if measurement.method is None:
-            return (
-                f"{name}: impedance taken as given: no window cut, each point weighted by "
-                "the file's own scatter (give --method to judge it against a set-up's window)"
-            )
-        return None
-    if source in _METHOD_NOTES:
-        return f"{name}: " + _METHOD_NOTES[source].format(method=measurement.method)
-    return None
-
-
-#: How a Touchstone comment states the port series resistors: zbench's corrected files
-#: ("port series resistors: 499 ohm each") and the examples' wording.
-_SERIES_R_COMMENTS = (
-    re.compile(r"port series resistors?\s*[:=]\s*([0-9.]+(?:[eE][+-]?\d+)?)\s*(?:ohms?|Ω)", re.I),
-    re.compile(r"([0-9.]+(?:[eE][+-]?\d+)?)\s*(?:ohms?|Ω)\s+in series at each port", re.I),
-)
-
-
-def series_r_from_comments(comments: str) -> float | None:
-    """The port series resistance (Ω) a file's comments state, or None."""
-    for pattern in _SERIES_R_COMMENTS:
-        match = pattern.search(comments or "")
-        if match:
-            try:
-                return float(match.group(1))
-            except ValueError:
-                return None
-    return None
 
 
 _UNIT_WORD = re.compile(r"^[kMGTmunpµ]?(?:Hz|ohms?|Ω|F|H|V|dB|dBm|%)$")
@@ -122,50 +72,6 @@ def check_stray_units(files: tuple[str, ...]) -> None:
             )
 
 
-_NO_RESISTORS = re.compile(r"\bno (?:port )?(?:series )?resistors?\b", re.I)
-
-
-def series_r_contradiction(comments: str, series_r: float) -> str | None:
-    """Why ``--series-r`` disagrees with the resistors a file's comments state, or None."""
-    stated = series_r_from_comments(comments)
-    if stated is None and _NO_RESISTORS.search(comments or ""):
-        stated = 0.0
-    if stated is None or math.isclose(stated, series_r, rel_tol=1e-6, abs_tol=1e-9):
-        return None
-    return (
-        f"--series-r {series_r:g} ohm contradicts the file's comments, which state "
-        f"{stated:g} ohm at each port; the impedance scales with Z0 + Rs, so check which "
-        "is right"
-    )
-
-
-def unnormalised_hint(f: Any, s: Any) -> str | None:
-    """A hint when a two-port file looks never normalised to the through.
-
-    Normalised shunt-through data obey 1/S21 = 1 + Z0/(2Z), so Re(1/S21) = 1 + Z0·R/(2|Z|²),
-    which is 1 wherever the part's impedance is high and mostly reactive (a capacitor at
-    the low end; derived from the shunt-through relation, docs/references.md §1). Data
-    scaled by k (cable loss, an uncorrected analyser) read Re(1/S21) = 1/k there. The hint
-    is given when the high-impedance points at the lowest frequencies read k < 0.93
-    (common practice, no source).
-    """
-    f = np.asarray(f, dtype=float)
-    s21 = np.asarray(s, dtype=complex)[:, 1, 0]
-    order = np.argsort(f)
-    low = s21[order[: max(5, f.size // 20)]]
-    low = low[np.isfinite(low) & (np.abs(low) > 0.3)]
-    if low.size < 3:
-        return None
-    k = 1.0 / float(np.median((1.0 / low).real))
-    if 0.3 < k < 0.93:
-        return (
-            f"|S21| reads about {k:.2f} of what a shunt-through of a high impedance gives at "
-            "the lowest frequencies: was the file normalised to the through (or "
-            "calibrated)? Un-normalised data read the capacitance high"
-        )
-    return None
-
-
 def _jsonable(value: Any) -> Any:
     """Plain JSON values: non-finite numbers become null (JSON has no NaN)."""
     if isinstance(value, dict):
@@ -179,10 +85,6 @@ def _jsonable(value: Any) -> Any:
     return value
 
 
-def _meets_quality(result: Any) -> bool:
-    return bool(getattr(result, "meets_quality", True))
-
-
 def _element_unit(name: str) -> str:
     if name.startswith("fc"):  # a skin corner: a frequency
         return "Hz"
@@ -194,7 +96,7 @@ def _model_text(result: Any) -> str:
     return result.model if result.model == result.kind else f"{result.model} ({result.kind})"
 
 
-def _summary_text(outcome: _Outcome) -> str:
+def _summary_text(outcome: FileOutcome) -> str:
     from bench.core.fit_result import noise_text
 
     result = outcome.result
@@ -227,7 +129,7 @@ def _summary_text(outcome: _Outcome) -> str:
     lines.append(f"  elements: {', '.join(elements)}")
     for warning in result.warnings:
         lines.append(f"  warning: {warning}")
-    if not _meets_quality(result):
+    if not meets_quality(result):
         lines.append("  warning: the fit does not meet its quality bound")
     if outcome.spice_path is not None:
         lines.append(f"  SPICE: {outcome.spice_path}")
@@ -288,106 +190,6 @@ def subcircuit_names(files: tuple[str, ...]) -> dict[str, str]:
     return out
 
 
-def _write_output(path: Path, text: str, option: str = "--spice") -> Path:
-    """Write ``text`` atomically; a full disk or a read-only folder is bad input, not a crash."""
-    try:
-        return atomic_write_text(path, text)
-    except OSError as exc:
-        raise InputError(
-            f"cannot write {path}: {exc.strerror or exc}",
-            hint=f"free some space or choose a writable place for {option}",
-        ) from exc
-
-
-def _fit_one(
-    name: str,
-    *,
-    model: str,
-    series_r: float | None,
-    mount: Any,
-    fmin: float | None,
-    fmax: float | None,
-    spice_path: Path | None,
-    want_spice: bool,
-    method: str | None = None,
-    subckt: str | None = None,
-    outcome: _Outcome | None = None,
-) -> _Outcome:
-    from bench import api  # loads the numeric core: not needed for --help
-
-    outcome = outcome or _Outcome(path=name)
-    data, stated = _impedance_of(
-        name, outcome, series_r=series_r, mount=mount, fmin=fmin, fmax=fmax, method=method
-    )
-    result = api.fit(data, model=model)
-    outcome.result = result
-    if want_spice:
-        from bench.core.spice import subckt_text
-        from bench.exports import spice_name
-
-        provenance = api.default_provenance(
-            name,
-            method=data.window.method,
-            series_r=f"{stated or 0:g} ohm",
-            # The mount arrives loaded; its file name is the provenance, not its data.
-            mount=str(getattr(mount, "path", mount)) if mount is not None else "none",
-            model=result.model,
-        )
-        outcome.spice_text = subckt_text(
-            result, subckt or spice_name(Path(name).stem), provenance=provenance
-        )
-        if spice_path is not None:
-            outcome.spice_path = _write_output(spice_path, outcome.spice_text)
-    if not _meets_quality(result):
-        outcome.exit_code = 3
-    return outcome
-
-
-def _impedance_of(
-    name: str,
-    outcome: _Outcome,
-    *,
-    series_r: float | None,
-    mount: Any,
-    fmin: float | None,
-    fmax: float | None,
-    method: str | None,
-) -> tuple[Any, float | None]:
-    """One file's impedance data (notes added to ``outcome``), and the series R used."""
-    from bench import api
-
-    measurement = api.load(name, series_r=series_r or 0.0, method=method)
-    outcome.notes.extend(f"{name}: warning: {text}" for text in measurement.warnings)
-    note = _method_note(name, measurement)
-    if note:
-        outcome.notes.append(note)
-    if series_r is None and measurement.kind == "s2p":
-        # Without --series-r, the set-up a file states in its comments (zbench writes it
-        # into every corrected file); fitting a 499 Ω measurement as a plain 50 Ω one
-        # would scale every impedance by about 11.
-        stated = series_r_from_comments(measurement.comments)
-        if stated is not None:
-            series_r = stated
-            outcome.notes.append(
-                f"{name}: port series resistors {format_si(stated, 'Ω')} each, as its "
-                "comments state (give --series-r to override)"
-            )
-    elif series_r is not None and measurement.kind == "s2p":
-        contradiction = series_r_contradiction(measurement.comments, series_r)
-        if contradiction:
-            outcome.notes.append(f"{name}: warning: {contradiction}")
-    if measurement.kind == "s2p" and measurement.s is not None:
-        hint = unnormalised_hint(measurement.f, measurement.s)
-        if hint:
-            outcome.notes.append(f"{name}: hint: {hint}")
-    if series_r and measurement.kind == "impedance" and measurement.method is None:
-        outcome.notes.append(
-            f"{name}: --series-r sets a window only with --method; this impedance is taken as given"
-        )
-    data = api.impedance(measurement, series_r=series_r, mount=mount, fmin=fmin, fmax=fmax)
-    return data, series_r
-
-
 def _fit_joined(
     files: tuple[str, ...],
     *,
@@ -398,16 +200,16 @@ def _fit_joined(
     fmax: float | None,
     method: str | None,
     spice_out: str | None,
-) -> _Outcome:
+) -> FileOutcome:
     """All ``files`` as set-ups of one part: stitched, then fitted once."""
     from bench import api
     from bench.core.stitch import stitch
 
     label = "+".join(files)
-    outcome = _Outcome(path=label)
+    outcome = FileOutcome(path=label)
     segments = []
     for name in files:
-        data, _ = _impedance_of(
+        data, _ = impedance_of(
             name, outcome, series_r=series_r, mount=mount, fmin=fmin, fmax=fmax, method=method
         )
         segments.append(data)
@@ -446,42 +248,10 @@ def _fit_joined(
         )
         name = subcircuit_names((files[0],))[files[0]]
         outcome.spice_text = subckt_text(result, name, provenance=provenance)
-        outcome.spice_path = _write_output(path, outcome.spice_text)
-    if not _meets_quality(result):
+        outcome.spice_path = write_output(path, outcome.spice_text)
+    if not meets_quality(result):
         outcome.exit_code = 3
     return outcome
-
-
-def _fit_guarded(
-    name: str, *, spice_paths: dict[str, Path], subckt_names: dict[str, str], **options: Any
-) -> _Outcome:
-    """:func:`_fit_one` with every error turned into the file's outcome (a worker's task).
-
-    Notes made before a failure (a file read with default units) still reach the user.
-    """
-    started = _Outcome(path=name)
-    try:
-        return _fit_one(
-            name,
-            outcome=started,
-            spice_path=spice_paths.get(name),
-            subckt=subckt_names.get(name),
-            **options,
-        )
-    except ZbenchError as exc:
-        text = str(exc)
-        if isinstance(exc, FitError):
-            text = f"{name}: no fit: {text}"
-        elif name not in text:
-            text = f"{name}: {text}"
-        return _Outcome(path=name, error=text, exit_code=exc.exit_code, notes=started.notes)
-    except Exception as exc:  # one bad file must not stop an archive re-fit
-        return _Outcome(
-            path=name,
-            error=f"{name}: internal error ({type(exc).__name__}: {exc})",
-            exit_code=1,
-            notes=started.notes,
-        )
 
 
 @click.command("fit")
@@ -583,22 +353,20 @@ def command(
         _finish([outcome], None)
         return
     per_file, library = _spice_targets(files, spice_out)
-    names = subcircuit_names(files)
-    outcomes: list[_Outcome] = []
-    task = functools.partial(
-        _fit_guarded,
+    options = FitOptions(
         model=model,
         series_r=r,
         mount=mount_data,
         fmin=lo,
         fmax=hi,
-        spice_paths=per_file,
-        subckt_names=names,
-        want_spice=spice_out is not None,
         method=method,
+        want_spice=spice_out is not None,
+        spice_paths=per_file,
+        subckt_names=subcircuit_names(files) if spice_out is not None else {},
     )
+    outcomes: list[FileOutcome] = []
     # Files are fitted on up to --jobs processes; results come back in input order.
-    for outcome in ordered_map(task, files, jobs):
+    for outcome in fit_files(files, options, jobs):
         if library is not None and outcome.spice_text:
             outcome.spice_path = library  # written once every file is fitted
         outcomes.append(outcome)
@@ -608,13 +376,13 @@ def command(
         if texts:
             from bench.core.spice import library_text
 
-            _write_output(library, library_text(texts, title=f"zbench fit of {len(texts)} files"))
+            write_output(library, library_text(texts, title=f"zbench fit of {len(texts)} files"))
             if not as_json:
                 click.echo(f"SPICE library: {library}")
     _finish(outcomes, library)
 
 
-def _emit(outcome: _Outcome, *, as_json: bool) -> None:
+def _emit(outcome: FileOutcome, *, as_json: bool) -> None:
     for note in outcome.notes:
         click.echo(f"zbench: {note}", err=True)
     if outcome.error is not None:
@@ -630,7 +398,7 @@ def _emit(outcome: _Outcome, *, as_json: bool) -> None:
         click.echo(_summary_text(outcome))
 
 
-def _finish(outcomes: list[_Outcome], library: Path | None) -> None:
+def _finish(outcomes: list[FileOutcome], library: Path | None) -> None:
     codes = [o.exit_code for o in outcomes]
     failed = [o for o in outcomes if o.exit_code in (1, 2)]
     if 1 in codes:

@@ -14,7 +14,9 @@ import math
 import numpy as np
 from numpy.typing import NDArray
 
+from bench.core.fit_network import compiled
 from bench.core.fit_select import Trial
+from bench.core.landmark_slopes import landmark_slopes
 from bench.core.landmarks import Landmarks, landmarks_for
 from bench.core.models.network import network_impedance
 from bench.units import format_si
@@ -33,16 +35,17 @@ def landmark_uncertainties(
     trial: Trial, cov: NDArray[np.float64], kind: str, f, marks: Landmarks
 ) -> dict[str, float | None]:
     """One-sigma uncertainty of each model landmark, propagated from the element
-    covariance through the landmark's derivatives (finite differences in log values)."""
+    covariance through the landmark's derivatives in the log element values: from the
+    compiled network's Jacobian followed through each landmark's reading
+    (:func:`bench.core.landmark_slopes.landmark_slopes`), or where a landmark is read
+    another way, by reading it again at each value moved a little
+    (:func:`landmark_gradients_by_steps`)."""
     names = trial.family.element_names(trial.order)
-    node = trial.node
-    step = 1e-4
-    grads = []
-    for name in names:
-        values = dict(trial.values)
-        values[name] *= math.exp(step)
-        moved = landmarks_for(kind, f, network_impedance(node, f, values))
-        grads.append(moved)
+    net = compiled(trial.node, f)
+    with np.errstate(all="ignore"):
+        z = net.impedance(trial.q)
+        slopes = landmark_slopes(kind, f, z, net.jacobian(trial.q))
+    by_steps = None
     out: dict[str, float | None] = {}
     for key, value in marks.items():
         if key == "c_par" and value is not None and kind == "inductor":
@@ -51,11 +54,39 @@ def landmark_uncertainties(
             i = names.index(cp) if cp is not None else None
             out[key] = None if i is None else float(value * np.sqrt(max(cov[i, i], 0.0)))
             continue
-        if value is None or any(g.get(key) is None for g in grads):
+        g = slopes.get(key)
+        if value is None:
             out[key] = None
             continue
-        g = np.array([(moved[key] - value) / step for moved in grads])
+        if g is None:
+            if by_steps is None:
+                by_steps = landmark_gradients_by_steps(trial, kind, f, marks)
+            g = by_steps.get(key)
+            if g is None:
+                out[key] = None
+                continue
         out[key] = float(np.sqrt(max(float(g @ cov @ g), 0.0)))
+    return out
+
+
+def landmark_gradients_by_steps(
+    trial: Trial, kind: str, f, marks: Landmarks, step: float = 1e-4
+) -> dict[str, NDArray[np.float64] | None]:
+    """Each landmark's derivative in the log element values by finite differences: the
+    landmarks read again with each value moved by ``step`` (in ln); None where a moved
+    reading gives none."""
+    names = trial.family.element_names(trial.order)
+    moved = []
+    for name in names:
+        values = dict(trial.values)
+        values[name] *= math.exp(step)
+        moved.append(landmarks_for(kind, f, network_impedance(trial.node, f, values)))
+    out: dict[str, NDArray[np.float64] | None] = {}
+    for key, value in marks.items():
+        if value is None or any(m.get(key) is None for m in moved):
+            out[key] = None
+        else:
+            out[key] = np.array([(m[key] - value) / step for m in moved])
     return out
 
 

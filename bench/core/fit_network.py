@@ -15,6 +15,7 @@ evaluated by the general tree walk (``impedance_and_jacobian``). No I/O.
 from __future__ import annotations
 
 import math
+import threading
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
@@ -26,9 +27,11 @@ from bench.core.models.network import (
     Node,
     Parallel,
     Series,
-    _conductor_shape,
     _constant_phase_parts,
     _element_impedance,
+    conductor_slope,
+    conductor_terms,
+    constant_phase_branches,
     element_names,
     impedance_and_jacobian,
 )
@@ -106,7 +109,7 @@ class CompiledNetwork:
         for i, e in enumerate(elements):
             if e.kind == "Q":
                 u = _constant_phase_parts(0.1, e.band)[0]  # the corners depend on the band only
-                branch = jw[None, :] / (1 + jw[None, :] / u[:, None])
+                branch = constant_phase_branches(jw, u)
                 self._q_slots.append((i, rows[i], e.band, branch, jw))
         self._k_slots = [(i, rows[i], e.band, jw) for i, e in enumerate(elements) if e.kind == "K"]
         self._n_elements = len(elements)
@@ -129,20 +132,19 @@ class CompiledNetwork:
             else:
                 ze = np.empty((self._n_elements, self.f.size), dtype=complex)
                 ze[self._power] = np.exp(self._sign * q[self._power_rows])[:, None] * self._basis
-                self._q_slope = {}
+                # What each Q and K element's slope in its second value is made of: taken
+                # only when a Jacobian is asked for (most steps of a solve ask for none).
+                self._slope_terms = {}
                 for i, row, band, branch, jw in self._q_slots:
                     tan = math.exp(q[row + 1])
                     _, dc, dlog, c_par, dlog_c_par = _constant_phase_parts(tan, band)
                     y = c_par * jw + dc @ branch
-                    dy = (c_par * dlog_c_par * jw + (dc * dlog) @ branch) * (
-                        (2 / np.pi) * tan / (1 + tan * tan)
-                    )
                     ze[i] = 1.0 / (math.exp(q[row]) * y)
-                    self._q_slope[i] = dy / y
+                    self._slope_terms[i] = (tan, dc, dlog, c_par, dlog_c_par, branch, jw, y)
                 for i, row, band, jw in self._k_slots:
-                    shape, dshape = _conductor_shape(jw, math.exp(q[row + 1]), band)
+                    shape, terms = conductor_terms(jw, math.exp(q[row + 1]), band)
                     ze[i] = math.exp(q[row]) * shape
-                    self._q_slope[i] = dshape / shape
+                    self._slope_terms[i] = (shape, terms)
             self._ze = ze
             self._inv: dict[int, NDArray[np.complex128]] = {}
             self._zg: dict[int, NDArray[np.complex128]] = {}
@@ -168,11 +170,16 @@ class CompiledNetwork:
             jac = np.empty((len(self.names), self.f.size), dtype=complex)
             jac[self._power_rows] = self._sign[:, None] * dz[self._power]
             for i, row, *_ in self._q_slots:
+                tan, dc, dlog, c_par, dlog_c_par, branch, jw, y = self._slope_terms[i]
+                dy = (c_par * dlog_c_par * jw + (dc * dlog) @ branch) * (
+                    (2 / np.pi) * tan / (1 + tan * tan)
+                )
                 jac[row] = -dz[i]
-                jac[row + 1] = -dz[i] * self._q_slope[i]
+                jac[row + 1] = -dz[i] * (dy / y)
             for i, row, *_ in self._k_slots:
+                shape, terms = self._slope_terms[i]
                 jac[row] = dz[i]
-                jac[row + 1] = dz[i] * self._q_slope[i]
+                jac[row + 1] = dz[i] * (conductor_slope(terms) / shape)
         self._jac = jac
         return jac
 
@@ -214,9 +221,27 @@ class CompiledNetwork:
             self._apply_factors(child, jac)
 
 
+# Networks compiled in this thread, by circuit and grid: a fit compiles the same circuit
+# on the same grid for its scouts, its refinement, its robust solve, its covariance and
+# its landmarks (a network keeps its last evaluation, so each thread has its own).
+_COMPILED = threading.local()
+COMPILED_KEPT = 32
+
+
 def compiled(node: Node, f: Sequence[float] | NDArray[np.float64]) -> CompiledNetwork:
-    """``node`` compiled for the grid ``f`` (Hz)."""
-    return CompiledNetwork(node, np.asarray(f, dtype=float))
+    """``node`` compiled for the grid ``f`` (Hz), the same object again for the same
+    circuit and grid in this thread."""
+    f = np.asarray(f, dtype=float)
+    kept = getattr(_COMPILED, "nets", None)
+    if kept is None:
+        kept = _COMPILED.nets = {}
+    key = (node, f.size, hash(f.tobytes()))
+    net = kept.get(key)
+    if net is None or not np.array_equal(net.f, f):
+        if len(kept) >= COMPILED_KEPT:
+            kept.clear()
+        net = kept[key] = CompiledNetwork(node, f)
+    return net
 
 
 def values_to_q(names: Sequence[str], values: Mapping[str, float]) -> NDArray[np.float64]:

@@ -15,7 +15,7 @@ try:  # MINPACK's driver as scipy's leastsq calls it (see levenberg_marquardt)
 except ImportError:  # pragma: no cover - a scipy without it uses leastsq
     _lmder = None
 
-from bench.core.fit_network import CompiledNetwork
+from bench.core.fit_network import compiled
 
 
 def log_ratio(zm: NDArray[np.complex128], z: NDArray[np.complex128]) -> NDArray[np.complex128]:
@@ -36,7 +36,7 @@ class Objective:
     """
 
     def __init__(self, node, f, z, weight):
-        self.net = CompiledNetwork(node, f)
+        self.net = compiled(node, f)
         self.inv_z = 1.0 / z
         self.weight = weight
         self.n = f.size

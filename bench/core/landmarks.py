@@ -106,7 +106,8 @@ def _points_per_decade(f: NDArray[np.float64]) -> float:
 
 def _crossings(f: NDArray[np.float64], y: NDArray[np.float64], rising: bool):
     """Every frequency where ``y`` changes sign (− to + when ``rising``), refined, in
-    order of frequency, with the index of the first point after it.
+    order of frequency, with the index of the first point after it and the points of
+    the refining line (None when the estimate is the interpolated one).
 
     The sign change is looked for in a running median (about 1/20 decade wide, at least
     3 points) so that noise near the zero does not make false crossings; a crossing must
@@ -135,15 +136,15 @@ def _crossings(f: NDArray[np.float64], y: NDArray[np.float64], rising: bool):
         y0, y1 = s[idx - 1], s[idx]
         guess = float(np.exp(x0 - y0 * (x1 - x0) / (y1 - y0)))
         near = (f > guess / 1.15) & (f < guess * 1.15)
-        estimate = guess
+        estimate, line = guess, None
         if np.count_nonzero(near) >= 3:
             w = 2 * np.pi * f[near]
             a, b = np.polyfit(w**2, w * y[near], 1)
             if a != 0 and -b / a > 0:
                 refined = float(np.sqrt(-b / a) / (2 * np.pi))
                 if guess / 1.15 < refined < guess * 1.15:
-                    estimate = refined
-        yield estimate, idx
+                    estimate, line = refined, near
+        yield estimate, idx, line
 
 
 def first_crossing(f: NDArray[np.float64], y: NDArray[np.float64], rising: bool) -> float | None:
@@ -151,9 +152,14 @@ def first_crossing(f: NDArray[np.float64], y: NDArray[np.float64], rising: bool)
 
     See :func:`_crossings` for how noise and gaps are kept from making false crossings.
     """
-    for estimate, _ in _crossings(f, y, rising):
-        return estimate
-    return None
+    return _first_crossing(f, y, rising)[0]
+
+
+def _first_crossing(f, y, rising: bool) -> tuple[float | None, NDArray[np.bool_] | None]:
+    """:func:`first_crossing` and the points of its refining line (or None)."""
+    for estimate, _, line in _crossings(f, y, rising):
+        return estimate, line
+    return None, None
 
 
 # A parallel resonance must lift |Z| at least this far above its lowest value below the
@@ -164,6 +170,16 @@ PEAK_RISE = 2.0
 
 def _parallel_resonance(f: NDArray[np.float64], z: NDArray[np.complex128]) -> float | None:
     """The first parallel resonance with a real peak of |Z| (Hz), or None.
+    (:func:`_parallel_resonance_line`, which also gives its refining line's points.)
+    """
+    return _parallel_resonance_line(f, z)[0]
+
+
+def _parallel_resonance_line(
+    f: NDArray[np.float64], z: NDArray[np.complex128]
+) -> tuple[float | None, NDArray[np.bool_] | None]:
+    """The first parallel resonance with a real peak of |Z| (Hz), or None, and the points
+    of its refining line (None when it is the interpolated estimate).
 
     A candidate is where the susceptance rises through zero (− to +); for L‖R‖C,
     ``ω·Im Y = ω²C − 1/L`` is a straight line in ω², which the refinement uses. It counts
@@ -172,11 +188,11 @@ def _parallel_resonance(f: NDArray[np.float64], z: NDArray[np.complex128]) -> fl
     |Z| below it (the smoothed traces, so one noisy point decides nothing).
     """
     if f.size < 4:
-        return None
+        return None, None
     width = max(3, round(_points_per_decade(f) / 20) | 1)
     magnitude = _smooth(np.abs(z), width)
     reactance = _smooth(z.imag, width)
-    for estimate, idx in _crossings(f, (1.0 / z).imag, rising=True):
+    for estimate, idx, line in _crossings(f, (1.0 / z).imag, rising=True):
         below = np.arange(f.size) < idx
         if np.count_nonzero(below) < 3:
             continue  # no rise seen: the sweep starts at (or above) the resonance
@@ -189,25 +205,32 @@ def _parallel_resonance(f: NDArray[np.float64], z: NDArray[np.complex128]) -> fl
         peak = float(np.max(magnitude[near])) if np.any(near) else float(magnitude[idx])
         if peak < PEAK_RISE * float(np.min(magnitude[below])):
             continue
-        return estimate
-    return None
+        return estimate, line
+    return None, None
 
 
 def _value_at(f: NDArray[np.float64], y: NDArray[np.float64], f0: float) -> float | None:
-    """``y`` at ``f0`` from a quadratic in log f through the neighbouring points."""
+    """``y`` at ``f0`` from a quadratic in log f through the neighbouring points
+    (:func:`_value_window`)."""
     if f.size == 0:
         return None
-    near = (f > f0 / 1.12) & (f < f0 * 1.12)
-    if np.count_nonzero(near) < 5:
-        # Sparse grid: the five nearest points.
-        order = np.argsort(np.abs(np.log(f / f0)))[:5]
-        near = np.zeros(f.size, dtype=bool)
-        near[order] = True
+    near = _value_window(f, f0)
     x = np.log(f[near] / f0)
     if np.count_nonzero(near) >= 3 and np.ptp(x) > 0:
         coeff = np.polyfit(x, y[near], 2)
         return float(np.polyval(coeff, 0.0))
     return float(np.mean(y[near]))
+
+
+def _value_window(f: NDArray[np.float64], f0: float) -> NDArray[np.bool_]:
+    """The points :func:`_value_at` reads ``f0``'s value from: within ±12 % of it, or
+    the five nearest on a sparse grid."""
+    near = (f > f0 / 1.12) & (f < f0 * 1.12)
+    if np.count_nonzero(near) < 5:
+        order = np.argsort(np.abs(np.log(f / f0)))[:5]
+        near = np.zeros(f.size, dtype=bool)
+        near[order] = True
+    return near
 
 
 def classify(f: Any, z: Any, valid: Any = None) -> str:
@@ -238,13 +261,21 @@ def capacitor_landmarks(f: Any, z: Any, valid: Any = None) -> Landmarks:
     ``f`` in Hz (any positive range), ``z`` complex Ω, ``valid`` an optional bool mask of
     points inside the measurable window.
     """
-    f, z = _prepare(f, z, valid)
+    return _capacitor_reading(*_prepare(f, z, valid))[0]
+
+
+def _capacitor_reading(
+    f: NDArray[np.float64], z: NDArray[np.complex128]
+) -> tuple[Landmarks, dict[str, Any]]:
+    """:func:`capacitor_landmarks` on prepared points, and the points each landmark was
+    read from (``bench.core.landmark_slopes`` follows them through a small change of z)."""
     out: Landmarks = {"c_low": None, "esl": None, "srf": None, "esr_at_srf": None}
+    how: dict[str, Any] = {}
     if f.size < 4:
-        return out
+        return out, how
     w = 2 * np.pi * f
     x = z.imag
-    srf = first_crossing(f, x, rising=True)
+    srf, how["srf"] = _first_crossing(f, x, rising=True)
     out["srf"] = srf
     # ESL: least squares of X/ω over the top decade above 2·SRF (capacitance corrected).
     esl = None
@@ -253,24 +284,26 @@ def capacitor_landmarks(f: Any, z: Any, valid: Any = None) -> Landmarks:
         high &= f >= f[-1] / 10 if np.any(high & (f >= f[-1] / 10)) else high
         if np.count_nonzero(high) >= 3:
             esl = float(np.mean(x[high] / w[high]))
+            how["high"] = high
     # Capacitance: elastance -ωX over the lowest decade well below the resonance.
     cap = (x < 0) & (f < srf / 2.5) if srf is not None else x < 0
     band = _low_decade(f, cap)
     if np.count_nonzero(band) < 3:
         band = _low_decade(f, x < 0)
+    how["esl_in_c_low"] = esl is not None
     if np.count_nonzero(band) >= 3:
         elastance = np.mean(w[band] ** 2 * (esl or 0.0) - w[band] * x[band])
         c_low = float(1.0 / elastance) if elastance > 0 else None
         out["c_low"] = c_low
+        how["band"] = band
         if esl is not None and c_low is not None and srf is not None:
             # Refine ESL with the low-frequency capacitance taken out.
-            high = (f > 2 * srf) & (x > 0)
-            high &= f >= f[-1] / 10 if np.any(high & (f >= f[-1] / 10)) else high
             esl = float(np.mean((x[high] + 1.0 / (w[high] * c_low)) / w[high]))
+            how["esl_refined"] = True
     out["esl"] = esl
     if srf is not None:
         out["esr_at_srf"] = _value_at(f, z.real, srf)
-    return out
+    return out, how
 
 
 def inductor_landmarks(f: Any, z: Any, valid: Any = None) -> Landmarks:
@@ -282,13 +315,21 @@ def inductor_landmarks(f: Any, z: Any, valid: Any = None) -> Landmarks:
     ``f`` in Hz, ``z`` complex Ω, ``valid`` an optional bool mask of points inside the
     measurable window.
     """
-    f, z = _prepare(f, z, valid)
+    return _inductor_reading(*_prepare(f, z, valid))[0]
+
+
+def _inductor_reading(
+    f: NDArray[np.float64], z: NDArray[np.complex128]
+) -> tuple[Landmarks, dict[str, Any]]:
+    """:func:`inductor_landmarks` on prepared points, and the points each landmark was
+    read from (as :func:`_capacitor_reading`)."""
     out: Landmarks = {"l_low": None, "r_dc": None, "srf": None, "z_at_srf": None, "c_par": None}
+    how: dict[str, Any] = {}
     if f.size < 4:
-        return out
+        return out, how
     w = 2 * np.pi * f
     x = z.imag
-    srf = _parallel_resonance(f, z)
+    srf, how["srf"] = _parallel_resonance_line(f, z)
     out["srf"] = srf
     # DC resistance: median of Re Z over the lowest third of a decade.
     lowest = f <= f[0] * 10 ** (1 / 3)
@@ -296,6 +337,7 @@ def inductor_landmarks(f: Any, z: Any, valid: Any = None) -> Landmarks:
         lowest = np.arange(f.size) < 3
     r_dc = float(np.median(z.real[lowest]))
     out["r_dc"] = r_dc if r_dc > 0 else None
+    how["lowest"] = lowest
     # Inductance over the lowest decade where the reactance dominates and well below SRF.
     inductive = (x > np.abs(z.real)) & (x > 0)
     if srf is not None:
@@ -306,11 +348,14 @@ def inductor_landmarks(f: Any, z: Any, valid: Any = None) -> Landmarks:
     l_low = None
     c_par = 0.0
     if np.count_nonzero(band) >= 3:
+        how["band"] = band
+        how["rounds"] = 0
         y = 1.0 / z[band]
         for _ in range(3):
             # Take the parallel capacitance out of the admittance, then read L from the rest.
             zs = 1.0 / (y - 1j * w[band] * c_par)
             l_low = float(np.mean(zs.imag / w[band]))
+            how["rounds"] += 1
             if srf is None or l_low <= 0:
                 break
             c_par = 1.0 / ((2 * np.pi * srf) ** 2 * l_low)
@@ -321,7 +366,7 @@ def inductor_landmarks(f: Any, z: Any, valid: Any = None) -> Landmarks:
         conductance = _value_at(f, (1.0 / z).real, srf)
         out["z_at_srf"] = float(1.0 / conductance) if conductance and conductance > 0 else None
         out["c_par"] = _capacitive_slope(w, z, srf, out["l_low"])
-    return out
+    return out, how
 
 
 # The parallel capacitance is read where the points lie at least this factor above the

@@ -273,12 +273,12 @@ def test_clashing_subcircuit_names_are_made_unique(capsys, tmp_path: Path) -> No
 def test_unwritable_output_is_bad_input_not_a_traceback(
     monkeypatch, capsys, tmp_path: Path, code_: int
 ) -> None:
-    import bench.commands.fit as fit_command
+    import bench.batch as batch
 
     def refuse(path, text):
         raise OSError(code_, os.strerror(code_), str(path))
 
-    monkeypatch.setattr(fit_command, "atomic_write_text", refuse)
+    monkeypatch.setattr(batch, "atomic_write_text", refuse)
     path = _two_port(
         tmp_path / "p.s2p", series_through_s21(_inductor(F)), [method_comment("series-through")]
     )

@@ -12,6 +12,7 @@ and ``-Ze`` for C. In series the derivatives add; in a parallel group
 
 from __future__ import annotations
 
+import functools
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any, Union
@@ -135,6 +136,7 @@ def corner_name(name: str) -> str:
 CONDUCTOR_PER_DECADE = 4.0
 
 
+@functools.lru_cache(maxsize=64)
 def _conductor_parts(band: tuple[float, float]) -> tuple[NDArray[np.float64], ...]:
     """``(g, rho, tail)``: per ohm of DC resistance, the sections' resistances ``g``, their
     corners ``rho`` as multiples of ωc, and the inductance ``tail`` (times 1/ωc) standing
@@ -155,21 +157,49 @@ def _conductor_parts(band: tuple[float, float]) -> tuple[NDArray[np.float64], ..
     g = np.diff(2 * t - 2 * np.arctan(t)) / np.pi
     h = np.diff(np.arctan(t) - t / (1 + t * t)) / np.pi
     tail = (np.pi / 2 - np.arctan(t[-1]) + t[-1] / (1 + t[-1] ** 2)) / np.pi
-    return g, g / h, np.array(tail)
+    out = (g, g / h, np.array(tail))
+    for a in out:
+        a.flags.writeable = False  # kept per band (a fit asks for them at every step)
+    return out
 
 
 def _conductor_shape(
     jw: ComplexArray, corner: float, band: tuple[float, float]
 ) -> tuple[ComplexArray, ComplexArray]:
     """Impedance per ohm of a ``K`` element with corner ``corner`` (Hz), its ladder
-    itself, and its derivative with respect to ``ln ωc``."""
+    itself, and its derivative with respect to ``ln ωc``.
+
+    ``jw`` is imaginary (``jω``), so each section ``jx/(1 + jx)`` (``x = ω/u``, ``u`` its
+    corner) is taken in real arithmetic: with ``a = 1/(1 + x²)`` it is ``x²a + j·x·a``,
+    and its derivative with respect to ``ln ωc`` (``dx = −x``), ``−jx/(1 + jx)²``, is
+    ``−2x²a² − j·x·a·(a − x²a)`` [derived]; the same ladder, about ten times faster
+    than complex division per section.
+    """
+    z, terms = conductor_terms(jw, corner, band)
+    return z, conductor_slope(terms)
+
+
+def conductor_terms(
+    jw: ComplexArray, corner: float, band: tuple[float, float]
+) -> tuple[ComplexArray, tuple]:
+    """The impedance per ohm of :func:`_conductor_shape` and the terms its derivative is
+    made of (:func:`conductor_slope`), which a fitter's step without a Jacobian skips."""
     g, rho, tail = _conductor_parts(band)
     wc = 2 * np.pi * corner
-    u = rho[:, None] * wc
-    section = jw[None, :] / (u + jw[None, :])
-    z = 1.0 + g @ section + tail * jw / wc
-    dz = -(g @ (section * u / (u + jw[None, :]))) - tail * jw / wc
-    return z, dz
+    w = jw.imag
+    x = (1.0 / (rho * wc))[:, None] * w[None, :]
+    a = 1.0 / (1.0 + x * x)
+    xa = x * a
+    x2a = x * xa  # 1 − a, without the cancellation
+    w_tail = (tail / wc) * w
+    z = (1.0 + g @ x2a) + 1j * (g @ xa + w_tail)
+    return z, (g, a, xa, x2a, w_tail)
+
+
+def conductor_slope(terms: tuple) -> ComplexArray:
+    """The derivative of a ``K`` element's shape in ``ln ωc`` from :func:`conductor_terms`."""
+    g, a, xa, x2a, w_tail = terms
+    return -2.0 * (g @ (x2a * a)) - 1j * (g @ (xa * (a - x2a)) + w_tail)
 
 
 def conductor_continuum(jw: ComplexArray, corner: float) -> ComplexArray:
@@ -245,13 +275,23 @@ def _constant_phase_parts(tan_delta: float, band: tuple[float, float]):
     return u, dc, dlog, c_par, dlog_c_par
 
 
+def constant_phase_branches(jw: ComplexArray, u: NDArray[np.float64]) -> ComplexArray:
+    """``jω/(1 + jω/u)`` per branch corner ``u`` (rows) and frequency: with ``jw``
+    imaginary and ``x = ω/u``, ``ω·x/(1 + x²) + jω/(1 + x²)`` in real arithmetic
+    [derived], several times faster than a complex division per branch."""
+    w = jw.imag[None, :]
+    x = w / u[:, None]
+    wa = w / (1.0 + x * x)
+    return (x * wa) + 1j * wa
+
+
 def _constant_phase_shape(
     jw: ComplexArray, tan_delta: float, band: tuple[float, float]
 ) -> tuple[ComplexArray, ComplexArray]:
     """Admittance per farad of a ``Q`` element (its ladder itself) and its derivative with
     respect to ``ln tan δ``."""
     u, dc, dlog, c_par, dlog_c_par = _constant_phase_parts(tan_delta, band)
-    branch = jw[None, :] / (1 + jw[None, :] / u[:, None])
+    branch = constant_phase_branches(jw, u)
     y = c_par * jw + dc @ branch
     dy_dn = c_par * dlog_c_par * jw + (dc * dlog) @ branch
     # n = (2/π)·atan(t): dn/d ln t = (2/π)·t/(1 + t²).
@@ -408,10 +448,11 @@ def network_impedance(node: Node, f: Any, values: Mapping[str, float]) -> Comple
 
 def _impedance(node: Node, jw: ComplexArray, values: Mapping[str, float]) -> ComplexArray:
     if isinstance(node, Element) and node.kind == "Q":
-        y, _ = _constant_phase_shape(jw, values[loss_tangent_name(node.name)], node.band)
+        u, dc, _, c_par, _ = _constant_phase_parts(values[loss_tangent_name(node.name)], node.band)
+        y = c_par * jw + dc @ constant_phase_branches(jw, u)
         return 1.0 / (values[node.name] * y)
     if isinstance(node, Element) and node.kind == "K":
-        shape, _ = _conductor_shape(jw, values[corner_name(node.name)], node.band)
+        shape, _ = conductor_terms(jw, values[corner_name(node.name)], node.band)
         return values[node.name] * shape
     if isinstance(node, Element):
         return _element_impedance(node, jw, values[node.name])
