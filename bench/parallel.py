@@ -75,6 +75,24 @@ def _context(preload: tuple[str, ...] = ()):
     return multiprocessing.get_context("spawn")
 
 
+def start_server(preload: tuple[str, ...] = ()) -> bool:
+    """Start the workers' server now, importing :data:`PRELOAD` and ``preload``, when
+    workers will be forked from one (this process runs threads); returns whether it runs.
+
+    The server imports beside whatever this process does next (a run's sweeps), so the
+    first pool finds it ready, and every worker then starts with those modules. Without
+    threads the workers are forked from this process and nothing is started."""
+    import multiprocessing
+
+    if threading.active_count() == 1 or "forkserver" not in multiprocessing.get_all_start_methods():
+        return False
+    from multiprocessing import forkserver
+
+    _context(preload)  # the server's preload (it takes effect as the server starts)
+    forkserver.ensure_running()
+    return True
+
+
 def ordered_map(
     fn: Callable[[T], R],
     items: Iterable[T],
