@@ -181,7 +181,8 @@ def _log_axes(ax: Axes, *, x_unit: str = "Hz", y_unit: str | None = "Ω") -> Non
     that is most of a figure's drawing time. :func:`_minor_grid` draws the same light
     grid as one line collection instead, once the limits are settled.
     """
-    ax.set_xscale("log")
+    if ax.get_xscale() != "log":  # panels sharing the axis are set with the first one
+        ax.set_xscale("log")
     ax.xaxis.set_major_formatter(EngFormatter(unit=x_unit, sep=" "))
     ax.xaxis.set_minor_formatter(NullFormatter())
     ax.xaxis.set_minor_locator(NullLocator())
