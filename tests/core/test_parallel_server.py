@@ -25,3 +25,22 @@ def test_server_started_early_serves_the_pools_after_it():
         stop.set()
         thread.join()
     assert out == [0, -1, -2, -3, -4]
+
+
+def test_a_started_map_gives_its_results_in_order_later():
+    from bench.parallel import start_map
+
+    started = start_map(negate, range(6), jobs=2)
+    assert list(started.results()) == [0, -1, -2, -3, -4, -5]
+    serial = start_map(negate, [3], jobs=2)  # one item: run by results(), here
+    assert list(serial.results()) == [-3]
+
+
+def test_a_started_map_can_be_cancelled_unread():
+    from bench.parallel import start_map
+
+    started = start_map(negate, range(40), jobs=2)
+    started.cancel()  # the workers stop; nothing is left running
+    assert started.done()
+    started.cancel()  # twice is harmless
+    assert started.done()
