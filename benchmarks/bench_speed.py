@@ -99,16 +99,19 @@ def startup(repeats: int) -> None:
     # One run first writes the bytecode caches (see ENV).
     env = ENV
     run_timed([ZBENCH, "fit", str(EXAMPLE)], env=env)
-    imports, fitted, helped = [], [], []
+    imports, numpy_only, fitted, helped = [], [], [], []
     for _ in range(repeats):
         imports.append(run_timed([PYTHON, "-c", "import numpy, scipy.optimize"], env=env)[0])
         dt, done = run_timed([ZBENCH, "fit", str(EXAMPLE)], env=env)
         assert done.returncode in (0, 3), done.stderr
         fitted.append(dt)
         helped.append(run_timed([ZBENCH, "--help"], env=env)[0])
+        numpy_only.append(run_timed([PYTHON, "-c", "import numpy"], env=env)[0])
     base = statistics.median(imports)
     fit = statistics.median(fitted)
+    print(f"load average {os.getloadavg()[0]:.1f}")
     print(f"python -c 'import numpy, scipy.optimize': {base:.3f} s")
+    print(f"python -c 'import numpy':                 {statistics.median(numpy_only):.3f} s")
     print(f"zbench fit {EXAMPLE.name}:                {fit:.3f} s  ({fit / base:.2f} x the import)")
     print(f"zbench --help:                         {statistics.median(helped):.3f} s")
 
@@ -181,6 +184,43 @@ def write_batch_files(folder: Path) -> list[str]:
     return files
 
 
+def _no_op(item: str, options: object) -> str:
+    return item
+
+
+def batch_parts(files: list[str], rounds: int) -> dict[str, float]:
+    """Where zbench's batch spends its CPU: per file reading, impedance and the fit,
+    and the pool's start, hand-over and stop with tasks that do nothing."""
+    from bench.api import fit, load
+    from bench.batch import FileOutcome, FitOptions, impedance_of
+    from bench.parallel import ordered_map
+
+    def per_file(fn) -> float:
+        samples = []
+        for _ in range(rounds):
+            c = time.process_time()
+            for name in files:
+                fn(name)
+            samples.append((time.process_time() - c) / len(files))
+        return statistics.median(samples)
+
+    def made(name: str):
+        # As the batch makes it: the port resistors from the file's comments.
+        no = {"series_r": None, "mount": None, "fmin": None, "fmax": None, "method": None}
+        return impedance_of(name, FileOutcome(name), **no)[0]
+
+    data = {name: made(name) for name in files}
+    pool = []
+    for _ in range(rounds):
+        pool.append(timed(lambda: list(ordered_map(_no_op, files, None, shared=FitOptions())))[1])
+    return {
+        "reading (Touchstone scan and matrices)": per_file(load),
+        "reading, notes and the impedance with its window": per_file(made),
+        "fit (auto) of the impedance": per_file(lambda name: fit(data[name])),
+        "pool: start, 20 no-op tasks, stop (whole batch)": statistics.median(pool),
+    }
+
+
 def cpu_now() -> float:
     """CPU time of this process and of its children that have ended (their rusage)."""
     import resource
@@ -241,6 +281,7 @@ def batch(folder: Path, rounds: int) -> None:
             assert done.returncode in (0, 3), done.stderr[-2000:]
             rows.setdefault(key, []).append((dt, cpu_now() - c))
     load_after = os.getloadavg()[0]
+    parts = batch_parts(files, rounds)
 
     def med(key):
         pairs = rows[key]
@@ -281,6 +322,9 @@ def batch(folder: Path, rounds: int) -> None:
         f"(b) end to end, start-up included both sides: {b_vf / b_zb:.1f} x "
         f"({b_vf / med('b zbench 1')[0]:.1f} x with --jobs 1)"
     )
+    print("zbench's batch, CPU per file and the pool's own cost (median of rounds, one process):")
+    for label, value in parts.items():
+        print(f"    {label:<54}{value * 1e3:>8.1f} ms")
 
 
 CORE = textwrap.dedent(
