@@ -75,6 +75,24 @@ def _context(preload: tuple[str, ...] = ()):
     return multiprocessing.get_context("spawn")
 
 
+def start_server(preload: tuple[str, ...] = ()) -> bool:
+    """Start the workers' server now, importing :data:`PRELOAD` and ``preload``, when
+    workers will be forked from one (this process runs threads); returns whether it runs.
+
+    The server imports beside whatever this process does next (a run's sweeps), so the
+    first pool finds it ready, and every worker then starts with those modules. Without
+    threads the workers are forked from this process and nothing is started."""
+    import multiprocessing
+
+    if threading.active_count() == 1 or "forkserver" not in multiprocessing.get_all_start_methods():
+        return False
+    from multiprocessing import forkserver
+
+    _context(preload)  # the server's preload (it takes effect as the server starts)
+    forkserver.ensure_running()
+    return True
+
+
 def ordered_map(
     fn: Callable[[T], R],
     items: Iterable[T],
@@ -106,3 +124,63 @@ def ordered_map(
     finally:
         # On an error or Ctrl-C nothing further is started and the workers are stopped.
         pool.shutdown(wait=True, cancel_futures=True)
+
+
+class StartedMap:
+    """``fn`` over ``items`` handed to the workers at once (:func:`start_map`); the
+    results are read later, in input order, with :meth:`results`.
+
+    For work that can run while this process does something else (a report's figures
+    drawn while the exports are written). One item or one job is run by :meth:`results`
+    in this process, as :func:`ordered_map` would."""
+
+    def __init__(
+        self,
+        fn: Callable[[T], R],
+        items: Iterable[T],
+        jobs: int | None = None,
+        *,
+        preload: tuple[str, ...] = (),
+    ) -> None:
+        self._fn = fn
+        self._todo = list(items)
+        self._pool: Any = None
+        self._futures: list[Any] = []
+        if worker_count(jobs, len(self._todo)) > 1:
+            from concurrent.futures import ProcessPoolExecutor
+
+            workers = worker_count(jobs, len(self._todo))
+            self._pool = ProcessPoolExecutor(max_workers=workers, mp_context=_context(preload))
+            self._futures = [self._pool.submit(fn, item) for item in self._todo]
+
+    def results(self) -> Iterator[R]:
+        """The results in input order (waiting for each); the workers stop after the last."""
+        if self._pool is None:
+            for item in self._todo:
+                yield self._fn(item)
+            return
+        try:
+            for future in self._futures:
+                yield future.result()
+        finally:
+            self.cancel()
+
+    def done(self) -> bool:
+        """Whether no item is waiting or running in a worker (finished or cancelled)."""
+        return all(future.done() for future in self._futures)
+
+    def cancel(self) -> None:
+        """Start nothing further and stop the workers (the results are then not read)."""
+        if self._pool is not None:
+            self._pool.shutdown(wait=True, cancel_futures=True)
+
+
+def start_map(
+    fn: Callable[[T], R],
+    items: Iterable[T],
+    jobs: int | None = None,
+    *,
+    preload: tuple[str, ...] = (),
+) -> StartedMap:
+    """:func:`ordered_map`'s work handed to the workers now, its results read later."""
+    return StartedMap(fn, items, jobs, preload=preload)

@@ -16,10 +16,11 @@ with ``z_min``/``z_max`` in Ω) and ``fit`` a ``FitResult`` (``model``, ``landma
 
 from __future__ import annotations
 
+import contextlib
 import io
 import math
 import os
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Iterable, Iterator, Mapping, Sequence
 from typing import Any
 
 import matplotlib
@@ -83,6 +84,52 @@ def series_style(index: int) -> dict[str, Any]:
     }
 
 
+#: Figures kept for reuse (kind and layout -> Figure), and whether reuse is on: see
+#: :func:`reusing_figures`.
+_KEPT: dict[tuple[Any, ...], Figure] = {}
+_REUSING = False
+
+
+@contextlib.contextmanager
+def reusing_figures() -> Iterator[None]:
+    """Within this block the sample and lot figures reuse one :class:`Figure` per layout.
+
+    For a caller that renders each figure and lets it go (the report draws dozens in each
+    worker process): the axes, their tick objects and the canvas are made once per
+    process and only the plotted artists, limits and labels change between figures. The
+    pixels are those of a fresh figure. A figure returned inside the block is valid until
+    the next figure of its kind is made."""
+    global _REUSING
+    previous, _REUSING = _REUSING, True
+    try:
+        yield
+    finally:
+        _REUSING = previous
+
+
+def _reset(fig: Figure) -> None:
+    """Put a reused figure back to the state :func:`_new_figure` left it in: no plotted
+    artists, legends or titles, linear scales, limits free to follow the data."""
+    for legend in list(fig.legends):
+        legend.remove()
+    if fig._suptitle is not None:
+        fig._suptitle.remove()
+        fig._suptitle = None
+    for ax in fig.axes:
+        for artist in [*ax.lines, *ax.collections, *ax.patches, *ax.texts, *ax.images]:
+            artist.remove()
+        if ax.legend_ is not None:
+            ax.legend_.remove()
+        for title in (ax.title, ax._left_title, ax._right_title):
+            title.set_text("")
+        ax.set_xlabel("")
+        ax.set_ylabel("")
+    for ax in fig.axes:
+        ax.relim()
+        ax.set_autoscale_on(True)
+        ax._request_autoscale_view()
+
+
 def _new_figure(
     rows: int,
     *,
@@ -91,10 +138,18 @@ def _new_figure(
     height_ratios: Sequence[float] | None = None,
     gap: float = 0.35,
     top: float = 0.32,
+    reuse_as: str | None = None,
 ) -> tuple[Figure, list[Axes]]:
     # Fixed margins (in inches, so they hold for any figure size) rather than a layout
     # engine: a report draws dozens of figures and constrained layout doubles their cost.
     # ``gap`` is the space between panels and ``top`` the margin above them, in inches.
+    # ``reuse_as``: the figure's kind, for :func:`reusing_figures`.
+    key = (reuse_as, rows, height, width, tuple(height_ratios or ()), gap, top)
+    if reuse_as is not None and _REUSING and key in _KEPT:
+        fig = _KEPT[key]
+        with matplotlib.rc_context(STYLE):
+            _reset(fig)
+        return fig, list(fig.axes)
     with matplotlib.rc_context(STYLE):
         fig = Figure(figsize=(width, height))
         axes = fig.subplots(
@@ -113,6 +168,8 @@ def _new_figure(
             top=top,
             hspace=gap / panel,
         )
+    if reuse_as is not None and _REUSING:
+        _KEPT[key] = fig
     return fig, list(axes)
 
 
@@ -124,7 +181,8 @@ def _log_axes(ax: Axes, *, x_unit: str = "Hz", y_unit: str | None = "Ω") -> Non
     that is most of a figure's drawing time. :func:`_minor_grid` draws the same light
     grid as one line collection instead, once the limits are settled.
     """
-    ax.set_xscale("log")
+    if ax.get_xscale() != "log":  # panels sharing the axis are set with the first one
+        ax.set_xscale("log")
     ax.xaxis.set_major_formatter(EngFormatter(unit=x_unit, sep=" "))
     ax.xaxis.set_minor_formatter(NullFormatter())
     ax.xaxis.set_minor_locator(NullLocator())
@@ -161,25 +219,33 @@ def _minor_grid(fig: Figure) -> None:
     """Draw the light minor grid of every log axis of ``fig`` as line collections.
 
     Call once all data is plotted: the current limits are frozen so the grid and the
-    data agree. Axes that show labelled minor ticks (a short log range) keep those.
+    data agree. Axes that show labelled minor ticks (a short log range) keep those. The
+    lines are placed in axes coordinates (their log positions worked out here), so
+    drawing them needs no per-line log transform.
     """
     for ax in fig.axes:
         if ax.get_xscale() == "log" and isinstance(ax.xaxis.get_minor_locator(), NullLocator):
             lo, hi = ax.get_xlim()
             ax.set_xlim(lo, hi)
-            segments = [((x, 0.0), (x, 1.0)) for x in _log_minor_positions(lo, hi)]
+            segments = [((u, 0.0), (u, 1.0)) for u in _axes_fractions(lo, hi)]
             ax.add_collection(
-                LineCollection(segments, transform=ax.get_xaxis_transform(), **MINOR_GRID),
-                autolim=False,
+                LineCollection(segments, transform=ax.transAxes, **MINOR_GRID), autolim=False
             )
         if ax.get_yscale() == "log" and isinstance(ax.yaxis.get_minor_locator(), NullLocator):
             lo, hi = ax.get_ylim()
             ax.set_ylim(lo, hi)
-            segments = [((0.0, y), (1.0, y)) for y in _log_minor_positions(lo, hi)]
+            segments = [((0.0, v), (1.0, v)) for v in _axes_fractions(lo, hi)]
             ax.add_collection(
-                LineCollection(segments, transform=ax.get_yaxis_transform(), **MINOR_GRID),
-                autolim=False,
+                LineCollection(segments, transform=ax.transAxes, **MINOR_GRID), autolim=False
             )
+
+
+def _axes_fractions(lo: float, hi: float) -> np.ndarray:
+    """The minor grid's positions inside the log range (lo, hi) as fractions of it."""
+    values = _log_minor_positions(lo, hi)
+    if values.size == 0:
+        return values
+    return (np.log10(values) - math.log10(lo)) / (math.log10(hi) - math.log10(lo))
 
 
 def _label_short_log_range(ax: Axes, unit: str) -> None:
@@ -465,11 +531,16 @@ def sample_figure(
     hatched. Without a fit only the two impedance panels are drawn.
     """
     if fit is None:
-        fig, (ax_mag, ax_esr) = _new_figure(2, height=5.5, top=0.95)
+        fig, (ax_mag, ax_esr) = _new_figure(2, height=5.5, top=0.95, reuse_as="sample")
         axes = [ax_mag, ax_esr]
     else:
         fig, axes = _new_figure(
-            4, height=8.2, height_ratios=(3.0, 2.2, 1.3, 1.3), gap=0.3, top=0.95
+            4,
+            height=8.2,
+            height_ratios=(3.0, 2.2, 1.3, 1.3),
+            gap=0.3,
+            top=0.95,
+            reuse_as="sample",
         )
         ax_mag, ax_esr = axes[:2]
     with matplotlib.rc_context(STYLE):
@@ -606,7 +677,7 @@ def lot_figure(
     """
     samples = list(samples)
     one_sample = len({s.sample for s in samples}) == 1 and len(samples) > 1
-    fig, (ax_mag, ax_esr) = _new_figure(2, height=5.6)
+    fig, (ax_mag, ax_esr) = _new_figure(2, height=5.6, reuse_as="lot")
     with matplotlib.rc_context(STYLE):
         for index, sample in enumerate(samples):
             f = np.asarray(sample.data.f, dtype=float)
@@ -664,7 +735,8 @@ def png_bytes(
     if colours is None:
         fig.savefig(buffer, format="png", dpi=dpi, facecolor="white")
         return buffer.getvalue()
-    canvas = FigureCanvasAgg(fig)
+    # A reused figure keeps its canvas (and the renderer's text metrics with it).
+    canvas = fig.canvas if isinstance(fig.canvas, FigureCanvasAgg) else FigureCanvasAgg(fig)
     fig.set_dpi(dpi)
     fig.patch.set_facecolor("white")
     canvas.draw()

@@ -70,17 +70,37 @@ def kind_of(spec: PartSpec) -> str:
     return "capacitor" if spec.kind in CAPACITOR_KINDS else "inductor"
 
 
+#: Landmarks already read from data in this process, by a digest of the curve: the
+#: console, summary.csv, the fit JSON, the report's tables and figures all ask for the
+#: same sample's. Bounded: the oldest entries go first.
+_READ: dict[bytes, dict[str, float | None]] = {}
+_READ_KEPT = 512
+
+
 def data_landmarks(sample: SampleResult, kind: str) -> dict[str, float | None]:
     """Landmarks read straight from the points inside the window ({} if none can be)."""
+    import hashlib
+
     from bench.core.landmarks import landmarks_for
 
     inside = np.asarray(sample.data.inside_window, dtype=bool)
     if inside.sum() < 3:
         return {}
-    try:
-        return dict(landmarks_for(kind, sample.data.f, sample.data.z, inside))
-    except (ValueError, FloatingPointError):
-        return {}
+    f = np.ascontiguousarray(sample.data.f, dtype=float)
+    z = np.ascontiguousarray(sample.data.z, dtype=complex)
+    digest = hashlib.blake2b(kind.encode(), digest_size=16)
+    for array in (f, z, inside):
+        digest.update(array.tobytes())
+    key = digest.digest()
+    if key not in _READ:
+        try:
+            read = dict(landmarks_for(kind, f, z, inside))
+        except (ValueError, FloatingPointError):
+            read = {}
+        while len(_READ) >= _READ_KEPT:
+            del _READ[next(iter(_READ))]
+        _READ[key] = read
+    return dict(_READ[key])
 
 
 def shown(

@@ -36,15 +36,19 @@ class Objective:
     def __init__(self, node, f, z, weight):
         self.net = compiled(node, f)
         self.inv_z = 1.0 / z
-        self.weight = weight
+        self.weight = np.ascontiguousarray(weight, dtype=float)
         self.n = f.size
 
     def residuals(self, q: NDArray[np.float64]) -> NDArray[np.float64]:
+        # ln|ρ| from |ρ| (numpy's hypot), the phase from atan2: a few array operations
+        # fewer than the squares, each a noticeable share of a step on a thinned grid.
         rho = self.net.impedance(q) * self.inv_z
-        re, im = rho.real, rho.imag
         out = np.empty(2 * self.n)
-        np.multiply(np.log(re * re + im * im), 0.5 * self.weight, out=out[: self.n])
-        np.multiply(np.arctan2(im, re), self.weight, out=out[self.n :])
+        head, tail = out[: self.n], out[self.n :]
+        np.log(np.abs(rho), out=head)
+        head *= self.weight
+        np.arctan2(rho.imag, rho.real, out=tail)
+        tail *= self.weight
         return out
 
     def jacobian_rows(self, q: NDArray[np.float64]) -> NDArray[np.float64]:

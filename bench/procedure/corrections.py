@@ -317,17 +317,37 @@ def fixture_removal_text(shorts: bool, opens: bool) -> str:
     return "none"
 
 
+#: Ground-loop checks already made in this process, by a digest of their input (the
+#: mount-short step checks each short as it is captured, and the summary of the same run
+#: checks the same curves again). Bounded: the oldest entries go first.
+_LOOPS: dict[tuple[int, bytes], GroundLoopResult] = {}
+_LOOPS_KEPT = 64
+
+
 def ground_loop(f: np.ndarray, z_short: np.ndarray, position: int) -> GroundLoopResult:
-    """The core's ground-loop check on one mount short."""
+    """The core's ground-loop check on one mount short (a curve checked before in this
+    process is not checked again: the result is a function of ``f`` and ``z_short``)."""
+    import hashlib
+
     from bench.core.ground_loop import check_ground_loop
 
+    f = np.ascontiguousarray(f, dtype=float)
+    z_short = np.ascontiguousarray(z_short, dtype=complex)
+    digest = hashlib.blake2b(f.tobytes() + z_short.tobytes(), digest_size=16).digest()
+    key = (position, digest)
+    if key in _LOOPS:
+        return _LOOPS[key]
     check = check_ground_loop(f, z_short)
-    return GroundLoopResult(
+    result = GroundLoopResult(
         position=position,
         detected=bool(check.detected),
         valid_above_hz=float(check.valid_above_hz or 0.0),
         message=str(check.message),
     )
+    while len(_LOOPS) >= _LOOPS_KEPT:
+        del _LOOPS[next(iter(_LOOPS))]
+    _LOOPS[key] = result
+    return result
 
 
 def ground_loop_note(loop: GroundLoopResult, analysis: Analysis) -> str:

@@ -92,6 +92,8 @@ class Runner:
         self.time_scale = time_scale
         #: The estimate of this session's pending steps (set once the instruments answer).
         self.estimate: Estimate | None = None
+        #: Whether the workers' server was started at the session's start.
+        self._workers_ready = False
 
     @property
     def summary(self) -> RunSummary | None:
@@ -124,6 +126,7 @@ class Runner:
             store.log(f"session start, plan {plan.name}, first step {store.first_incomplete()}")
             if plan.biased and any(s.bias_v for s in pending):
                 bias.caution(ctx)
+            self._workers_ready = self._start_workers(pending)
             self._prepare_instruments()
             maybe_reuse(ctx)
             # Counted after a reused calibration, whose standards are not swept again.
@@ -181,6 +184,22 @@ class Runner:
                 # Its own exit status (4): the part may still be charged.
                 raise BiasNotConfirmedOffError(self._resume_text(unconfirmed))
 
+    @staticmethod
+    def _start_workers(pending: list[Step]) -> bool:
+        """Start the worker processes' server now when the fit or report steps will use
+        one (``bench.parallel.start_server``), with what their tasks import, so that it
+        imports beside the sweeps instead of before the first fit. Returns whether it
+        runs (only where workers are forked from a server: this process runs threads)."""
+        from bench.parallel import available_cores, start_server
+
+        kinds = {s.kind for s in pending}
+        if not kinds & {"fit", "report"} or available_cores() < 2:
+            return False
+        modules = ("bench.procedure.processing",)
+        if "report" in kinds:
+            modules += ("bench.report_sample",)  # the figures' task, with matplotlib
+        return start_server(modules)
+
     def _estimate(self, started: float) -> Estimate:
         """The pending steps' duration, with the analysers' own sweep times (as read at
         the start, in the manifest's ``instruments``) where they report them, and
@@ -197,6 +216,7 @@ class Runner:
             sweeps=bool(kinds & set(SWEEP_STEPS)),
             fits=bool(kinds & {"fit", "export", "report"}),
             figures="report" in kinds,
+            workers_ready=self._workers_ready,
         )
         reported = store.manifest.get("instruments") or {}
 
