@@ -13,6 +13,10 @@ fit's numbers only (no arrays of the measurement)::
 
     for outcome in fit_files(["a.s2p", "b.s2p"], FitOptions(model="auto"), jobs=None):
         print(outcome.path, outcome.error or outcome.result.model)
+
+A program calling it should ask for one BLAS thread before numpy loads
+(``OPENBLAS_NUM_THREADS=1``, as :mod:`bench.cli` does): the workers use the cores, and
+BLAS threads would only spin on a fit's small matrices.
 """
 
 from __future__ import annotations
@@ -23,8 +27,6 @@ from collections.abc import Iterable, Iterator, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
-
-import numpy as np
 
 from bench.errors import FitError, InputError, ZbenchError
 from bench.files import atomic_write_text
@@ -221,6 +223,8 @@ def unnormalised_hint(f: Any, s: Any) -> str | None:
     is given when the high-impedance points at the lowest frequencies read k < 0.93
     (common practice, no source).
     """
+    import numpy as np
+
     f = np.asarray(f, dtype=float)
     s21 = np.asarray(s, dtype=complex)[:, 1, 0]
     order = np.argsort(f)

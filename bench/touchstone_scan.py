@@ -189,7 +189,9 @@ def scan_touchstone(path: Path) -> Scan:
     order: str | None = None
     references: list[float] = []
     in_reference = False
-    for number, raw in enumerate(text.splitlines(), start=1):
+    values: NDArray[np.float64] | None = None
+    lines = text.splitlines()
+    for number, raw in enumerate(lines, start=1):
         line, bang, comment = raw.partition("!")
         line = line.strip()
         if bang:
@@ -275,6 +277,10 @@ def scan_touchstone(path: Path) -> Scan:
         if width == 0:
             n = ports
             width = 1 + (n * (n + 1) if matrix in ("lower", "upper") else 2 * n * n)
+            if ports <= 2 and not in_reference:
+                values = _plain_rows(lines[number - 1 :], width)
+                if values is not None:
+                    break
         if ports <= 2 and len(tokens) != width:
             raise _bad(
                 name,
@@ -287,10 +293,11 @@ def scan_touchstone(path: Path) -> Scan:
         # Larger networks wrap rows; their numbers are only counted (refused later).
         lines_at.append((number, len(tokens)))
         numbers.extend(tokens)
-    try:
-        values = np.array(numbers, dtype=float)
-    except ValueError:
-        _raise_not_a_number(name, numbers, lines_at)
+    if values is None:
+        try:
+            values = np.array(numbers, dtype=float)
+        except ValueError:
+            _raise_not_a_number(name, numbers, lines_at)
     if width == 0 or values.size == 0:
         raise _bad(
             name,
@@ -364,6 +371,25 @@ def scan_touchstone(path: Path) -> Scan:
         references=tuple(references),
         comments="\n".join(c for c in comments if c),
     )
+
+
+def _plain_rows(lines: list[str], width: int) -> NDArray[np.float64] | None:
+    """The numbers of ``lines`` in one C-level pass, or None to read them row by row.
+
+    Taken only when the rest of the file is plain rows (no comment, option line or
+    keyword after the first data row) of ``width`` numbers each; anything else (a
+    comment at a row's end, a version-1 noise block, text, a short row) returns None and
+    the row-by-row reading gives the same values or names the line at fault."""
+    rest = "\n".join(lines)
+    if "!" in rest or "#" in rest or "[" in rest:
+        return None
+    try:
+        rows = np.loadtxt(lines, dtype=float, ndmin=2)
+    except ValueError:
+        return None
+    if rows.shape[1] != width:
+        return None
+    return rows.ravel()
 
 
 def _raise_not_a_number(name: str, numbers: list[str], lines_at: list[tuple[int, int]]) -> NoReturn:

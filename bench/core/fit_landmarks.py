@@ -31,6 +31,13 @@ RDC_FLATNESS = 0.1
 LANDMARK_REACH = 2.0
 
 
+def model_impedance(trial: Trial, f: NDArray[np.float64]) -> NDArray[np.complex128]:
+    """The impedance of the fitted ``trial`` at ``f`` (Hz), from its network compiled for
+    ``f`` (the fit's own grid is compiled already, and its last evaluation kept): read
+    only, the array may be the network's own."""
+    return compiled(trial.node, f).impedance(trial.q)
+
+
 def landmark_uncertainties(
     trial: Trial, cov: NDArray[np.float64], kind: str, f, marks: Landmarks
 ) -> dict[str, float | None]:
@@ -195,7 +202,7 @@ def model_landmarks(kind: str, f: NDArray[np.float64], trial: Trial) -> Landmark
     or inductance still missing is the model's low-frequency value (the slope of its
     reactance far below the band). An inductor's ``c_par`` is its fitted parallel
     capacitance element (None when that element dropped out: the data do not see it)."""
-    marks = landmarks_for(kind, f, network_impedance(trial.node, f, trial.values))
+    marks = landmarks_for(kind, f, model_impedance(trial, f))
     if kind == "inductor":
         cp = next((n for n in PARALLEL_CAPACITANCE if n in trial.values), None)
         marks["c_par"] = None if cp is None or cp in trial.dropped else trial.values[cp]
@@ -203,7 +210,7 @@ def model_landmarks(kind: str, f: NDArray[np.float64], trial: Trial) -> Landmark
         return marks
     reach = 10**LANDMARK_REACH
     wide = np.geomspace(f[0] / reach, f[-1] * reach, 60 * int(2 * LANDMARK_REACH + 1) + f.size)
-    more = landmarks_for(kind, wide, network_impedance(trial.node, wide, trial.values))
+    more = landmarks_for(kind, wide, model_impedance(trial, wide))
     out = {
         key: (value if value is not None or key == "c_par" else more.get(key))
         for key, value in marks.items()

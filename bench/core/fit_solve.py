@@ -8,14 +8,12 @@ from __future__ import annotations
 
 import numpy as np
 from numpy.typing import NDArray
-from scipy.optimize import leastsq
-
-try:  # MINPACK's driver as scipy's leastsq calls it (see levenberg_marquardt)
-    from scipy.optimize._minpack import _lmder
-except ImportError:  # pragma: no cover - a scipy without it uses leastsq
-    _lmder = None
 
 from bench.core.fit_network import compiled
+
+# MINPACK's driver as scipy's leastsq calls it (see levenberg_marquardt), loaded without
+# the rest of scipy.optimize (start-up); None on a scipy without it (leastsq then).
+from bench.core.minpack import lmder as _lmder
 
 
 def log_ratio(zm: NDArray[np.complex128], z: NDArray[np.complex128]) -> NDArray[np.complex128]:
@@ -38,15 +36,19 @@ class Objective:
     def __init__(self, node, f, z, weight):
         self.net = compiled(node, f)
         self.inv_z = 1.0 / z
-        self.weight = weight
+        self.weight = np.ascontiguousarray(weight, dtype=float)
         self.n = f.size
 
     def residuals(self, q: NDArray[np.float64]) -> NDArray[np.float64]:
+        # ln|ρ| from |ρ| (numpy's hypot), the phase from atan2: a few array operations
+        # fewer than the squares, each a noticeable share of a step on a thinned grid.
         rho = self.net.impedance(q) * self.inv_z
-        re, im = rho.real, rho.imag
         out = np.empty(2 * self.n)
-        np.multiply(np.log(re * re + im * im), 0.5 * self.weight, out=out[: self.n])
-        np.multiply(np.arctan2(im, re), self.weight, out=out[self.n :])
+        head, tail = out[: self.n], out[self.n :]
+        np.log(np.abs(rho), out=head)
+        head *= self.weight
+        np.arctan2(rho.imag, rho.real, out=tail)
+        tail *= self.weight
         return out
 
     def jacobian_rows(self, q: NDArray[np.float64]) -> NDArray[np.float64]:
@@ -86,6 +88,8 @@ def levenberg_marquardt(fun, jac, x0, max_nfev: int, tolerance: float) -> NDArra
             )[0]
         except TypeError:
             pass
+    from scipy.optimize import leastsq
+
     return leastsq(
         fun,
         x0,

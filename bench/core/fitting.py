@@ -42,6 +42,7 @@ from bench.core.fit_landmarks import (
     landmark_uncertainties,
     low_frequency_warnings,
     merge_landmarks,
+    model_impedance,
     model_landmarks,
     resonance_warnings,
 )
@@ -59,7 +60,6 @@ from bench.core.model_registry import MODEL_NAMES, auto_candidates
 from bench.core.models import FAMILIES, ModelFamily
 from bench.core.models.network import (
     clip_to_bounds,
-    network_impedance,
     vanishing_sides,
 )
 from bench.errors import FitError, InputError
@@ -167,9 +167,13 @@ def _fit_order(
     scouts: list[tuple[float, NDArray[np.float64]]] = []
     if starts is None:
         starts = family.starts(order, f, z, landmarks, previous)
+    tried: list[NDArray[np.float64]] = []
     for start in starts:
         clipped = clip_to_bounds(start, limits)
         q0 = np.log([clipped[n] for n in names])
+        if any(np.array_equal(q0, q) for q in tried):
+            continue  # the same start again (an order without sections): the same scout
+        tried.append(q0)
         with np.errstate(all="ignore"):
             r0 = coarse.residuals(q0)
         if not np.all(np.isfinite(r0)):
@@ -354,6 +358,19 @@ class _Climb:
     lower: Trial | None
 
 
+# A restart within this distance (natural log, every element) of the fit it would
+# restart is that fit: it starts in its minimum and cannot leave it.
+SAME_POINT_LOG = 1e-3
+
+
+def _at(trial: Trial, values: Mapping[str, float]) -> bool:
+    """True when ``values`` are ``trial``'s own fitted values within :data:`SAME_POINT_LOG`."""
+    names = trial.family.element_names(trial.order)
+    with np.errstate(all="ignore"):
+        q = np.log([float(values[n]) for n in names])
+    return bool(np.all(np.abs(q - trial.q) < SAME_POINT_LOG))
+
+
 def _fit_family(
     family: ModelFamily,
     orders: tuple[int, ...],
@@ -394,7 +411,7 @@ def _fit_family(
         if not trial.supported and len(out) > 1:
             start = family.reduced_start(o, trial.values, trial.weakness)
             lower = out[-2]
-            if start is not None:
+            if start is not None and not _at(lower, start):
                 again = _fit_order(
                     family, lower.order, f, z, weight, data_marks, None, starts=[start]
                 )
@@ -625,7 +642,7 @@ def fit_impedance(
             f"({format_si(e.f_lo, 'Hz')} to {format_si(e.f_hi, 'Hz')})"
         )
 
-    zm = network_impedance(best.node, fu, best.values)
+    zm = model_impedance(best, fu)
     err = np.abs(log_ratio(zm, zu))
     u = u_all[used]
     k = best.size
@@ -714,7 +731,7 @@ def adapted_floor(best: Trial, f, z, u) -> float:
     ``z`` with relative uncertainties ``u``: the RMS error it leaves beyond what the
     noise predicts, ``sqrt(mean|e|² − mean u²)``, within ``MIN_FLOOR_FRACTION`` ·
     MODEL_ERROR_FLOOR and MODEL_ERROR_FLOOR."""
-    err = np.abs(log_ratio(network_impedance(best.node, f, best.values), z))
+    err = np.abs(log_ratio(model_impedance(best, f), z))
     excess = math.sqrt(max(float(np.mean(err**2) - np.mean(u**2)), 0.0))
     return min(max(excess, MIN_FLOOR_FRACTION * MODEL_ERROR_FLOOR), MODEL_ERROR_FLOOR)
 
@@ -724,7 +741,7 @@ def _screen(f, z, candidates, negative, weight, best: Trial):
     the ``candidates`` points (negative-resistance points count as infinitely far off)."""
     idx = np.flatnonzero(candidates)
     with np.errstate(all="ignore"):
-        zm = network_impedance(best.node, f[idx], best.values)
+        zm = model_impedance(best, f[idx])
         residual = np.abs(log_ratio(zm, z[idx])) * weight[idx]
     neg = negative[idx]
     glitch = np.zeros(f.size, bool)

@@ -18,7 +18,6 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
-from scipy.optimize import least_squares
 
 TWO_PI = 2.0 * math.pi
 
@@ -69,6 +68,7 @@ def fit_mount(f: ArrayLike, z_short: ArrayLike, valid: ArrayLike | None = None) 
         )
     ff, zz = ff[use], zz[use]
     omega = TWO_PI * ff
+    from scipy.optimize import least_squares  # here: a plain fit never loads scipy.optimize
 
     def robust_location(values: NDArray[np.float64], weights: NDArray[np.float64]) -> float:
         # Minimise sum rho(w·(v − x)/s) for x >= 0, starting from the weighted median.
@@ -193,6 +193,8 @@ def _robust_linear(
     norm = float(np.dot(a, a))
     start = max(float(np.dot(a, b)) / norm, 0.0)
     sigma_p = 1.0 / math.sqrt(norm)
+    from scipy.optimize import least_squares  # here: a plain fit never loads scipy.optimize
+
     result = least_squares(
         lambda p: a * p[0] - b,
         x0=[start],

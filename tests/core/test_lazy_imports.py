@@ -17,6 +17,8 @@ import pytest
 
 EXAMPLE = Path(__file__).resolve().parents[2] / "examples" / "mlcc_22u.s2p"
 HEAVY = (
+    "numpy",
+    "bench.core",
     "matplotlib",
     "skrf",
     "scipy",
@@ -55,7 +57,8 @@ def test_importing_the_command_line_loads_nothing_heavy():
 
 def test_fit_help_loads_no_plotting_and_no_scikit_rf():
     heavy = loaded_after(["fit", "--help"])
-    assert not {m for m in heavy if m.split(".")[0] in ("matplotlib", "skrf")}
+    assert not {m for m in heavy if m.split(".")[0] in ("matplotlib", "skrf", "numpy")}
+    assert not {m for m in heavy if m.startswith("bench.core")}
     assert not {m for m in heavy if m.startswith(("bench.report", "bench.plots"))}
 
 
@@ -65,8 +68,25 @@ def test_fitting_a_file_loads_no_plotting_report_or_procedure():
     roots = {m.split(".")[0] for m in heavy}
     assert "matplotlib" not in roots
     assert "jinja2" not in roots and "pyvisa" not in roots
-    # Reading and fitting an S-parameter file need no scikit-rf (writing files does).
+    # Reading and fitting an S-parameter file need no scikit-rf (writing files does), and
+    # of scipy.optimize only its MINPACK extension (the package is half the start-up).
     assert "skrf" not in roots
+    assert "scipy.optimize" not in heavy and "scipy.optimize._minpack" in heavy
     assert not {
         m for m in heavy if m.startswith(("bench.report", "bench.plots", "bench.procedure"))
     }
+
+
+def test_minpack_falls_back_to_the_usual_import(monkeypatch):
+    # Where scipy's files cannot be found, the driver comes from scipy.optimize itself.
+    import importlib.util
+
+    import bench.core.minpack as minpack
+
+    def not_found(name, *args):
+        raise ImportError(name)
+
+    monkeypatch.delitem(sys.modules, "scipy.optimize._minpack", raising=False)
+    monkeypatch.setattr(importlib.util, "find_spec", not_found)
+    module = minpack._extension()
+    assert module is not None and callable(module._lmder)

@@ -88,3 +88,47 @@ def test_fit_refuses_zero_jobs(capsys):
     code = main(["fit", str(EXAMPLES / "mlcc_22u.s2p"), "--jobs", "0"])
     assert code == 2
     assert "--jobs" in capsys.readouterr().err
+
+
+def scaled_sum(x: int, shared: np.ndarray) -> float:
+    return float(x * shared.sum())
+
+
+@pytest.mark.parametrize("threads", [False, True], ids=["forked", "from a server"])
+def test_shared_reaches_every_call_on_every_start_method(threads):
+    shared = np.arange(1000.0)
+    stop = threading.Event()
+    thread = threading.Thread(target=stop.wait, daemon=True)
+    if threads:
+        thread.start()
+    try:
+        out = list(ordered_map(scaled_sum, range(6), jobs=2, shared=shared))
+    finally:
+        stop.set()
+        if threads:
+            thread.join()
+    serial = list(ordered_map(scaled_sum, range(6), jobs=1, shared=shared))
+    assert out == serial == [x * shared.sum() for x in range(6)]
+
+
+@pytest.mark.skipif(not EXAMPLES.is_dir(), reason="the example measurements are not in this tree")
+def test_a_corrupt_file_among_good_ones_with_a_mount_loses_nothing(capsys, tmp_path):
+    # The mount short is loaded once and shared by the workers; a file with text where a
+    # number belongs is named with its line, and every other file is still fitted, in order.
+    bad = tmp_path / "corrupt.s2p"
+    lines = (EXAMPLES / "mlcc_22u.s2p").read_text().splitlines()
+    row = next(i for i, line in enumerate(lines) if line.strip()[:1].isdigit()) + 3
+    lines[row] = lines[row].replace(lines[row].split()[2], "n/a", 1)
+    bad.write_text("\n".join(lines) + "\n")
+    good = [EXAMPLES / "mlcc_22u.s2p", EXAMPLES / "bulk_330u.s2p"]
+    names = [str(good[0]), str(bad), str(good[1])]
+    mount = ["--mount", str(EXAMPLES / "mount_short.s2p")]
+    serial = main(["fit", *names, *mount, "--json", "--jobs", "1"])
+    serial_out, serial_err = capsys.readouterr()
+    parallel = main(["fit", *names, *mount, "--json", "--jobs", "2"])
+    out, err = capsys.readouterr()
+    assert serial == parallel == 2
+    assert out == serial_out and err == serial_err
+    assert [json.loads(line)["file"] for line in out.splitlines()] == [names[0], names[2]]
+    assert f"{bad}:{row + 1}" in err and "'n/a' is not a number" in err
+    assert "1 of 3 files could not be fitted" in err

@@ -201,3 +201,42 @@ def test_version_2_data_order_and_version_1_noise_rows(tmp_path: Path) -> None:
         assert (m.s[0, 1, 0], m.s[0, 0, 1]) == (pytest.approx(s21), pytest.approx(s12))
     with pytest.raises(InputError, match="Two-Port Data Order"):
         load_measurement(_write(tmp_path, "v2bad.s2p", header + v2))
+
+
+EXAMPLES = Path(__file__).resolve().parents[2] / "examples"
+
+
+@pytest.mark.skipif(not EXAMPLES.is_dir(), reason="the example measurements are not in this tree")
+def test_plain_rows_read_in_one_pass_as_row_by_row(tmp_path: Path, monkeypatch) -> None:
+    # Plain data rows are converted in one pass; the row-by-row reading (taken for
+    # anything else) must give the very same numbers, comments and shape.
+    import bench.touchstone_scan as scan_module
+
+    plain = sorted(EXAMPLES.glob("*.s?p"))
+    written = write_touchstone_s(tmp_path / "w.s2p", F, _shunt_s(Z), comments=["written here"])
+    files = [*plain, written]
+    fast = {path: scan_module.scan_touchstone(Path(path)) for path in files}
+    taken = []
+    original = scan_module._plain_rows
+
+    def watched(lines, width):
+        rows = original(lines, width)
+        taken.append(rows is not None)
+        return rows
+
+    monkeypatch.setattr(scan_module, "_plain_rows", watched)
+    for path in files:
+        scan_module.scan_touchstone(Path(path))
+    assert all(taken) and len(taken) == len(files)
+    monkeypatch.setattr(scan_module, "_plain_rows", lambda lines, width: None)
+    for path in files:
+        slow = scan_module.scan_touchstone(Path(path))
+        assert np.array_equal(fast[path].data, slow.data)
+        assert fast[path].comments == slow.comments and fast[path].rows == slow.rows
+
+
+def test_a_comment_after_a_row_is_kept_and_the_row_read(tmp_path: Path) -> None:
+    rows = "".join(f"{x:g} 0.5 0.1\n" for x in F[:-1]) + f"{F[-1]:g} 0.5 0.1 ! last point\n"
+    m = load_measurement(_write(tmp_path, "c.s1p", "# Hz S RI R 50\n" + rows))
+    assert m.f.size == F.size and m.s[-1, 0, 0] == pytest.approx(0.5 + 0.1j)
+    assert "last point" in m.comments

@@ -119,3 +119,35 @@ def test_bad_settings_are_refused_by_name(kwargs: dict, key: str) -> None:
 def test_impossible_tolerance_says_what_to_do() -> None:
     with pytest.raises(InputError, match="no impedance can be measured"):
         measurable_window(tolerance=0.005)
+
+
+@pytest.mark.parametrize("method", ["shunt-through", "series-through", "reflection"])
+@pytest.mark.parametrize(("floor", "noise", "tolerance"), [(-80, 0.01, 0.1), (-130, 0.1, 0.02)])
+def test_window_edges_are_scipys_roots(method, floor, noise, tolerance) -> None:
+    # The window's own search is numpy only (start-up); scipy's bounded minimiser and
+    # Brent's root finder on the same uncertainty are the outside reference.
+    import math
+
+    from scipy.optimize import brentq, minimize_scalar
+
+    from bench.core.window import _uncertainty
+
+    w = measurable_window(
+        method=method, noise_floor_db=floor, trace_noise_db=noise, tolerance=tolerance
+    )
+
+    def rel(log_z: float) -> float:
+        z = np.array([10.0**log_z + 0j])
+        return float(
+            _uncertainty(
+                z, w.ze, w.noise_floor, w.multiplicative_error, method, w.reflection_uncertainty
+            )[0]
+        )
+
+    lo, hi = math.log10(w.ze) - 16, math.log10(w.ze) + 16
+    best = minimize_scalar(rel, bounds=(lo, hi), method="bounded", options={"xatol": 1e-10})
+    low = brentq(lambda x: rel(x) - tolerance, lo, best.x, xtol=1e-12)
+    high = brentq(lambda x: rel(x) - tolerance, best.x, hi, xtol=1e-12)
+    assert math.log10(w.z_min) == pytest.approx(low, abs=1e-10)
+    assert math.log10(w.z_max) == pytest.approx(high, abs=1e-10)
+    assert w.best_uncertainty == pytest.approx(best.fun, rel=1e-8)

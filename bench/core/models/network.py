@@ -13,6 +13,7 @@ and ``-Ze`` for C. In series the derivatives add; in a parallel group
 from __future__ import annotations
 
 import functools
+import math
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any, Union
@@ -259,20 +260,35 @@ def _constant_phase_parts(tan_delta: float, band: tuple[float, float]):
     at ω1 of ``A·ω1^(−n)/(1 − n)`` (the tail's conductance) [derived]. As n → 0 every
     branch vanishes and the capacitor tends to 1 F: a lossless capacitance.
     """
-    n = (2 / np.pi) * np.arctan(tan_delta)
-    w1, w2 = 2 * np.pi * band[0], 2 * np.pi * band[1]
-    wc = np.sqrt(w1 * w2)
-    a = (2 / np.pi) * wc**n * np.sin(n * np.pi / 2)
-    da = np.log(wc) + (np.pi / 2) / np.tan(n * np.pi / 2)  # d ln A / dn
+    n = (2 / math.pi) * math.atan(tan_delta)
+    u, log_u, weight, log_wc = _constant_phase_band(band)
+    a = (2 / math.pi) * math.exp(n * log_wc) * math.sin(n * math.pi / 2)
+    da = log_wc + (math.pi / 2) / math.tan(n * math.pi / 2)  # d ln A / dn
+    # a·u^(−n) times the cell width, and for the two tails (u = ω2, ω1) 1/(n + 1), 1/(1 − n).
+    dc = (a * np.exp(-n * log_u)) * weight
+    dc[-2] /= n + 1
+    dc[-1] /= 1 - n
+    dlog = da - log_u
+    dlog[-2] -= 1 / (n + 1)
+    dlog[-1] += 1 / (1 - n)
+    c_par = a * math.exp(-n * log_u[-2]) / (n * (n + 1))
+    dlog_c_par = da - log_u[-2] - 1 / n - 1 / (n + 1)
+    return u, dc, dlog, c_par, dlog_c_par
+
+
+@functools.lru_cache(maxsize=64)
+def _constant_phase_band(band: tuple[float, float]):
+    """What :func:`_constant_phase_parts` takes from the band alone, kept per band (a fit
+    asks at every step): the branch corners ``u`` (the cells' centres, then ω2 and ω1),
+    their logarithms, the cells' width (1 for the two tails) and ``ln ωc``."""
+    w1, w2 = 2 * math.pi * band[0], 2 * math.pi * band[1]
     centres, width = _log_cells(band)
     u = np.concatenate([centres, [w2, w1]])
-    dc = np.concatenate([a * centres**-n * width, [a * w2**-n / (n + 1), a * w1**-n / (1 - n)]])
-    dlog = np.concatenate(
-        [da - np.log(centres), [da - np.log(w2) - 1 / (n + 1), da - np.log(w1) + 1 / (1 - n)]]
-    )
-    c_par = a * w2**-n / (n * (n + 1))
-    dlog_c_par = da - np.log(w2) - 1 / n - 1 / (n + 1)
-    return u, dc, dlog, c_par, dlog_c_par
+    weight = np.concatenate([np.full(centres.size, width), [1.0, 1.0]])
+    out = (u, np.log(u), weight)
+    for x in out:
+        x.flags.writeable = False
+    return (*out, 0.5 * (math.log(w1) + math.log(w2)))
 
 
 def constant_phase_branches(jw: ComplexArray, u: NDArray[np.float64]) -> ComplexArray:
