@@ -14,6 +14,7 @@ Every piece of text that comes from a procedure, a file or an instrument is esca
 from __future__ import annotations
 
 from collections.abc import Iterable
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -39,7 +40,7 @@ from bench.report_sample import Figures, Plot, landmark_label, points_text, samp
 from bench.results import PartSpec, RunSummary, SampleResult
 from bench.units import format_si
 
-__all__ = ["CSS", "esc", "report_html", "write_report"]
+__all__ = ["CSS", "ReportDraft", "esc", "report_html", "start_report", "write_report"]
 
 
 def _outside_ranges(f: np.ndarray, outside: np.ndarray) -> list[tuple[float, float, int]]:
@@ -349,8 +350,8 @@ def _calibration_facts(summary: RunSummary) -> dict[str, Any]:
     return facts
 
 
-def report_html(summary: RunSummary, run_dir: Path) -> tuple[str, list[Path]]:
-    """HTML text of the report and the PNG files saved under ``run_dir/plots``."""
+def _report_text(summary: RunSummary, run_dir: Path) -> tuple[str, Figures]:
+    """The report's HTML with a placeholder per figure, and its figures queued."""
     figs = Figures(Path(run_dir))
     date = exports.run_date(summary)
     moment = parse_time(date)
@@ -389,11 +390,45 @@ def report_html(summary: RunSummary, run_dir: Path) -> tuple[str, list[Path]]:
         + "\n".join(part for part in body if part)
         + "\n</body></html>\n"
     )
+    return text, figs
+
+
+def report_html(summary: RunSummary, run_dir: Path) -> tuple[str, list[Path]]:
+    """HTML text of the report and the PNG files saved under ``run_dir/plots``."""
+    text, figs = _report_text(summary, Path(run_dir))
     return figs.render(text), figs.paths
 
 
-def write_report(run_dir: Path, summary: RunSummary) -> Path:
-    """Write ``report.html`` (and its figures under ``plots/``) into ``run_dir``."""
+@dataclass
+class ReportDraft:
+    """A report whose text is made and whose figures are being drawn by the workers
+    (:func:`start_report`); :func:`write_report` finishes it."""
+
+    summary: RunSummary
+    text: str
+    figs: Figures
+
+    def cancel(self) -> None:
+        """Stop drawing (the report will not be written from this draft)."""
+        self.figs.cancel()
+
+
+def start_report(run_dir: Path, summary: RunSummary) -> ReportDraft:
+    """Make the report's text and hand its figures to the worker processes now, so they
+    are drawn while the caller goes on (a run writes its exports meanwhile)."""
+    text, figs = _report_text(summary, Path(run_dir))
+    figs.start()
+    return ReportDraft(summary, text, figs)
+
+
+def write_report(run_dir: Path, summary: RunSummary, draft: ReportDraft | None = None) -> Path:
+    """Write ``report.html`` (and its figures under ``plots/``) into ``run_dir``;
+    ``draft``: the same summary's report started by :func:`start_report`."""
     run_dir = Path(run_dir)
-    text, _ = report_html(summary, run_dir)
+    if draft is not None and draft.summary is summary:
+        text = draft.figs.render(draft.text)
+    else:
+        if draft is not None:
+            draft.cancel()
+        text, _ = report_html(summary, run_dir)
     return atomic_write_text(run_dir / "report.html", text)

@@ -56,6 +56,8 @@ class Figures:
     :meth:`embed` returns a placeholder; :meth:`render` draws every figure, on up to
     ``jobs`` processes (all cores when None; drawing 1600 px figures is most of a
     report's time), writes the PNGs and puts each figure in place of its placeholder.
+    :meth:`start` hands the drawing to the workers early, so that it runs while the
+    caller does other work before :meth:`render`.
     """
 
     def __init__(self, run_dir: Path, jobs: int | None = None):
@@ -63,6 +65,7 @@ class Figures:
         self.paths: list[Path] = []
         self.jobs = jobs
         self._pending: list[tuple[str, Plot | Any, Path, str]] = []
+        self._started: Any = None
 
     def embed(self, fig: Plot | Any, name: str, caption: str) -> str:
         """Queue ``fig`` (a :class:`Plot`, or a figure already built) for the report."""
@@ -77,13 +80,27 @@ class Figures:
         """The figures queued so far (:class:`Plot` recipes or figures), in order."""
         return [fig for _, fig, _, _ in self._pending]
 
+    def start(self) -> None:
+        """Hand the figures queued so far to the worker processes now; :meth:`render`
+        collects them (the caller may do other work meanwhile)."""
+        from bench.parallel import start_map
+
+        plans = [fig for _, fig, _, _ in self._pending if isinstance(fig, Plot)]
+        self._started = start_map(_png, plans, self.jobs, preload=("bench.plots",))
+
+    def cancel(self) -> None:
+        """Stop drawing the figures handed out by :meth:`start` (they are not needed)."""
+        if self._started is not None:
+            self._started.cancel()
+            self._started = None
+
     def render(self, text: str) -> str:
         """``text`` with every queued figure drawn, saved and put in place."""
         from bench.files import atomic_write_bytes
-        from bench.parallel import ordered_map
 
-        plans = [fig for _, fig, _, _ in self._pending if isinstance(fig, Plot)]
-        drawn = iter(ordered_map(_png, plans, self.jobs, preload=("bench.plots",)))
+        if self._started is None:
+            self.start()
+        drawn = iter(self._started.results())
         for token, fig, path, caption in self._pending:
             data = next(drawn) if isinstance(fig, Plot) else plots.png_bytes(fig)
             atomic_write_bytes(path, data)
@@ -95,6 +112,7 @@ class Figures:
                 1,
             )
         self._pending.clear()
+        self._started = None
         return text
 
 

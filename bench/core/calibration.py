@@ -277,6 +277,13 @@ def _standard_models(
     return model
 
 
+#: SOLT calibrations already solved, by a digest of their inputs: a run corrects every
+#: sweep with the same standards. Bounded; the oldest goes first. Solved calibrations
+#: are only read (``coefs``, ``apply_cal``), never changed.
+_SOLVED: dict[bytes, tuple[NDArray[np.float64], SOLT]] = {}
+_SOLVED_KEPT = 8
+
+
 def _solt_calibration(
     f: ArrayLike,
     standards: RawStandards,
@@ -285,7 +292,35 @@ def _solt_calibration(
     z0: float,
     isolation: bool,
 ) -> tuple[NDArray[np.float64], SOLT]:
+    import hashlib
+
     ff = np.asarray(f, dtype=float)
+    digest = hashlib.blake2b(repr((float(z0), bool(isolation))).encode(), digest_size=16)
+    digest.update(np.ascontiguousarray(ff).tobytes())
+    for name in STANDARD_NAMES:
+        value = getattr(standards, name)
+        digest.update(name.encode() + (b"-" if value is None else b"+"))
+        if value is not None:
+            digest.update(np.ascontiguousarray(value, dtype=complex).tobytes())
+    for name, value in sorted((ideals or {}).items()):
+        digest.update(name.encode())
+        digest.update(np.ascontiguousarray(value, dtype=complex).tobytes())
+    key = digest.digest()
+    if key not in _SOLVED:
+        while len(_SOLVED) >= _SOLVED_KEPT:
+            del _SOLVED[next(iter(_SOLVED))]
+        _SOLVED[key] = _solve_solt(ff, standards, ideals=ideals, z0=z0, isolation=isolation)
+    return _SOLVED[key]
+
+
+def _solve_solt(
+    ff: NDArray[np.float64],
+    standards: RawStandards,
+    *,
+    ideals: Mapping[str, ArrayLike] | None,
+    z0: float,
+    isolation: bool,
+) -> tuple[NDArray[np.float64], SOLT]:
     missing = standards.missing("solt")
     if missing:
         raise ValueError(f"SOLT needs the raw {', '.join(missing)} standard(s); measure them")

@@ -19,7 +19,8 @@ runner times a small representative piece of the real work before the first step
   work itself. Their worker processes start afresh (:mod:`bench.parallel`) and import
   the fitter, and the report's the plotting library too: the estimate counts those
   imports once more per step (``fitter_import_s``, ``plots_import_s``; 0 when this
-  process had them already, as a test's does).
+  process had them already, as a test's does, or when the runner started the workers'
+  server at the session's start with them: it imports beside the sweeps).
 
 What it took is in the estimate's record (``costs``), so a slow estimate can be told
 from a slow machine. No instrument is touched.

@@ -178,6 +178,9 @@ class Runner:
             raise
         finally:
             unconfirmed = bias.bias_off(ctx)
+            if ctx.report_draft is not None:  # stopped before the report step
+                ctx.report_draft.cancel()
+                ctx.report_draft = None
             self._took(time.perf_counter() - started)
             self.display.stop()
             if unconfirmed is not None:

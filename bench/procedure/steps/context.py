@@ -69,6 +69,9 @@ class RunContext:
     sweeps_done: int = 0
     #: Time spent with the operator (every physical action, answer and caution), s.
     operator_seconds: float = 0.0
+    #: The report started at the end of the fit step (``bench.report.ReportDraft``): its
+    #: figures are drawn while the exports are written; the report step finishes it.
+    report_draft: Any = None
     _pausing: bool = False
 
     @contextlib.contextmanager

@@ -62,6 +62,24 @@ def fit(ctx: RunContext, step: Step) -> None:
     drives = {s.label: sample_drive(summary, s) for s in summary.samples}
     ctx.store.update("drive_v_rms_max", {k: v for k, v in drives.items() if v is not None})
     ctx.summary = summary
+    _start_report(ctx)
+
+
+def _start_report(ctx: RunContext) -> None:
+    """When this session writes the report, start drawing its figures now on the worker
+    processes: they draw while the exports are written (the report step finishes it)."""
+    pending = [
+        s
+        for s in ctx.plan.steps
+        if s.kind == "report" and ctx.store.step_state(s.id) not in (DONE, SKIPPED)
+    ]
+    if not pending or ctx.summary is None:
+        return
+    try:
+        from bench.report import start_report
+    except ImportError:
+        return  # the report step says so
+    ctx.report_draft = start_report(ctx.store.root, ctx.summary)
 
 
 def export(ctx: RunContext, step: Step) -> None:
@@ -84,7 +102,8 @@ def report(ctx: RunContext, step: Step) -> None:
     except ImportError:
         ctx.store.mark(step.id, SKIPPED, message="the report is not available in this build")
         return
-    path = write_report(ctx.store.root, ctx.need_summary())
+    draft, ctx.report_draft = ctx.report_draft, None
+    path = write_report(ctx.store.root, ctx.need_summary(), draft=draft)
     relative = str(Path(path).relative_to(ctx.store.root))
     ctx.store.mark(step.id, DONE, files=[relative])
     ctx.store.update("report", relative)
