@@ -105,32 +105,34 @@ def covariance(
     free) does not spread its freedom into theirs; a dropped element keeps its own
     variance, that of its own column with the others held (huge: the data leave it
     free)."""
-    m = jm.shape[0]
+    m, k = jm.shape
     keep = [i for i, n in enumerate(names) if n not in dropped]
     scale = chi2 / max(m - len(keep), 1)
-    out = np.zeros((len(names), len(names)))
+    with np.errstate(all="ignore"):
+        normal = jm.T @ jm
+    if len(keep) == k:
+        return _pseudo_inverse(normal) * scale
+    out = np.zeros((k, k))
     if keep:
-        out[np.ix_(keep, keep)] = _pseudo_inverse(jm[:, keep]) * scale
-    if len(keep) < len(names):
-        seen = np.sum(jm**2, axis=0)
-        for i, n in enumerate(names):
-            if n in dropped:
-                out[i, i] = scale / max(float(seen[i]), 1e-300)
+        rows = np.ix_(keep, keep)
+        out[rows] = _pseudo_inverse(normal[rows]) * scale
+    for i, n in enumerate(names):
+        if n in dropped:
+            out[i, i] = scale / max(float(normal[i, i]), 1e-300)
     return out
 
 
-def _pseudo_inverse(jm: NDArray[np.float64]) -> NDArray[np.float64]:
-    """Pseudo-inverse of the normal matrix ``jmᵀ·jm``: symmetric, so from its
+def _pseudo_inverse(normal: NDArray[np.float64]) -> NDArray[np.float64]:
+    """Pseudo-inverse of the symmetric normal matrix ``jmᵀ·jm``, from its
     eigen-decomposition (as ``numpy.linalg.pinv`` would give, cheaper)."""
-    k = jm.shape[1]
-    with np.errstate(all="ignore"):
-        normal = jm.T @ jm
-        if not np.all(np.isfinite(normal)):
-            return np.full((k, k), np.inf)
-        w, v = np.linalg.eigh(normal)
-        keep = np.abs(w) > 1e-15 * np.max(np.abs(w))
-        inv = np.where(keep, 1.0 / np.where(keep, w, 1.0), 0.0)
-        return (v * inv) @ v.T
+    if not np.isfinite(normal).all():
+        return np.full(normal.shape, np.inf)
+    w, v = np.linalg.eigh(normal)
+    cut = 1e-15 * np.abs(w).max()
+    inv = np.zeros_like(w)
+    keep = np.abs(w) > cut
+    inv[keep] = 1.0 / w[keep]
+    return (v * inv) @ v.T
 
 
 def lowest_bic(trials: list[Trial]) -> Trial:
