@@ -14,10 +14,10 @@ import math
 import numpy as np
 from numpy.typing import NDArray
 
-from bench.core.fit_network import compiled
+from bench.core.fit_network import KEEP_POINTS, compiled
 from bench.core.fit_select import Trial
 from bench.core.landmark_slopes import landmark_slopes
-from bench.core.landmarks import Landmarks, landmarks_for
+from bench.core.landmarks import MAX_POINTS, Landmarks, landmarks_for
 from bench.core.models.network import network_impedance
 from bench.units import format_si
 
@@ -34,7 +34,11 @@ LANDMARK_REACH = 2.0
 def model_impedance(trial: Trial, f: NDArray[np.float64]) -> NDArray[np.complex128]:
     """The impedance of the fitted ``trial`` at ``f`` (Hz), from its network compiled for
     ``f`` (the fit's own grid is compiled already, and its last evaluation kept): read
-    only, the array may be the network's own."""
+    only, the array may be the network's own. A grid of more than
+    :data:`~bench.core.fit_network.KEEP_POINTS` points takes the tree walk."""
+    if np.size(f) > KEEP_POINTS:
+        # A whole long sweep: the tree walk, whose arrays do not outlive the call.
+        return network_impedance(trial.node, f, trial.values)
     return compiled(trial.node, f).impedance(trial.q)
 
 
@@ -48,10 +52,12 @@ def landmark_uncertainties(
     another way, by reading it again at each value moved a little
     (:func:`landmark_gradients_by_steps`)."""
     names = trial.family.element_names(trial.order)
-    net = compiled(trial.node, f)
-    with np.errstate(all="ignore"):
-        z = net.impedance(trial.q)
-        slopes = landmark_slopes(kind, f, z, net.jacobian(trial.q))
+    slopes: dict = {}
+    if np.size(f) <= MAX_POINTS:  # longer sweeps are binned: read again at moved values
+        net = compiled(trial.node, f)
+        with np.errstate(all="ignore"):
+            z = net.impedance(trial.q)
+            slopes = landmark_slopes(kind, f, z, net.jacobian(trial.q))
     by_steps = None
     out: dict[str, float | None] = {}
     for key, value in marks.items():

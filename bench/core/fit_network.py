@@ -226,12 +226,16 @@ class CompiledNetwork:
 # its landmarks (a network keeps its last evaluation, so each thread has its own).
 _COMPILED = threading.local()
 COMPILED_KEPT = 32
+# Grids longer than this (a whole long sweep, not a fit's grid) are compiled afresh.
+KEEP_POINTS = 8192
 
 
 def compiled(node: Node, f: Sequence[float] | NDArray[np.float64]) -> CompiledNetwork:
     """``node`` compiled for the grid ``f`` (Hz), the same object again for the same
-    circuit and grid in this thread."""
+    circuit and grid in this thread (grids up to :data:`KEEP_POINTS` points)."""
     f = np.asarray(f, dtype=float)
+    if f.size > KEEP_POINTS:
+        return CompiledNetwork(node, f)  # a long grid's arrays are not kept
     kept = getattr(_COMPILED, "nets", None)
     if kept is None:
         kept = _COMPILED.nets = {}

@@ -367,7 +367,7 @@ def _at(trial: Trial, values: Mapping[str, float]) -> bool:
     """True when ``values`` are ``trial``'s own fitted values within :data:`SAME_POINT_LOG`."""
     names = trial.family.element_names(trial.order)
     with np.errstate(all="ignore"):
-        q = np.log([float(values[n]) for n in names])
+        q = np.log([float(values.get(n, np.nan)) for n in names])
     return bool(np.all(np.abs(q - trial.q) < SAME_POINT_LOG))
 
 

@@ -38,8 +38,8 @@ def _extension() -> ModuleType | None:
                     module = importlib.util.module_from_spec(found)
                     loader.exec_module(module)
                     return module
-    except (ImportError, OSError):
-        pass
+    except Exception:  # any trouble loading it so: the usual import below
+        sys.modules.pop(_NAME, None)
     try:
         from scipy.optimize import _minpack
     except ImportError:  # pragma: no cover - a scipy without it

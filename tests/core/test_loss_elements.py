@@ -149,6 +149,22 @@ def test_compiled_conductor_and_its_jacobian_match_the_tree_walk(order):
         np.testing.assert_allclose(numeric, jac[i], rtol=1e-4, atol=1e-8 * np.abs(z).max())
 
 
+def test_long_grid_in_pieces_gives_each_point_its_own_value(monkeypatch):
+    # A long grid is evaluated in pieces (memory); every point must come out as it does
+    # on a grid of its own: the same ladders, pieces joined in order.
+    from bench.core.models import network
+
+    f = np.geomspace(1e2, 2e8, 1000)
+    node = lossy_rlc.network(1, (f[0], f[-1]))
+    values = {"R": 4e-3, "fcR": 5e6, "L": 0.4e-9, "C": 10e-6, "tanC": 0.05}
+    monkeypatch.setattr(network, "CHUNK_POINTS", 64)
+    pieces = network.network_impedance(node, f, values)
+    alone = np.array(
+        [network.network_impedance(node, f[i : i + 1], values)[0] for i in range(0, f.size, 37)]
+    )
+    np.testing.assert_allclose(pieces[::37], alone, rtol=1e-13)
+
+
 @needs_ngspice
 @pytest.mark.ngspice
 @pytest.mark.parametrize("element", ["S", "Q", "K"])

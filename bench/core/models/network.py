@@ -457,9 +457,21 @@ def impedance_and_jacobian(
 
 
 def network_impedance(node: Node, f: Any, values: Mapping[str, float]) -> ComplexArray:
-    """Impedance (Ω) of ``node`` at ``f`` (Hz) for element ``values`` (SI units)."""
+    """Impedance (Ω) of ``node`` at ``f`` (Hz) for element ``values`` (SI units); a long
+    grid in pieces of :data:`CHUNK_POINTS` (a loss element's ladder holds a few dozen
+    arrays of the grid's length)."""
     jw = 2j * np.pi * np.asarray(f, dtype=float)
+    if jw.ndim == 1 and jw.size > CHUNK_POINTS:
+        return np.concatenate(
+            [
+                _impedance(node, jw[i : i + CHUNK_POINTS], values)
+                for i in range(0, jw.size, CHUNK_POINTS)
+            ]
+        )
     return _impedance(node, jw, values)
+
+
+CHUNK_POINTS = 65536
 
 
 def _impedance(node: Node, jw: ComplexArray, values: Mapping[str, float]) -> ComplexArray:
