@@ -132,7 +132,7 @@ class StartedMap:
 
     For work that can run while this process does something else (a report's figures
     drawn while the exports are written). One item or one job is run by :meth:`results`
-    in this process, as :func:`ordered_map` would, unless ``in_workers``."""
+    in this process, as :func:`ordered_map` would."""
 
     def __init__(
         self,
@@ -141,13 +141,12 @@ class StartedMap:
         jobs: int | None = None,
         *,
         preload: tuple[str, ...] = (),
-        in_workers: bool = False,
     ) -> None:
         self._fn = fn
         self._todo = list(items)
         self._pool: Any = None
         self._futures: list[Any] = []
-        if self._todo and (in_workers or worker_count(jobs, len(self._todo)) > 1):
+        if worker_count(jobs, len(self._todo)) > 1:
             from concurrent.futures import ProcessPoolExecutor
 
             workers = worker_count(jobs, len(self._todo))
@@ -182,9 +181,6 @@ def start_map(
     jobs: int | None = None,
     *,
     preload: tuple[str, ...] = (),
-    in_workers: bool = False,
 ) -> StartedMap:
-    """:func:`ordered_map`'s work handed to the workers now, its results read later;
-    ``in_workers``: in worker processes even for one item or one job (the work runs
-    beside this process instead of when its results are read)."""
-    return StartedMap(fn, items, jobs, preload=preload, in_workers=in_workers)
+    """:func:`ordered_map`'s work handed to the workers now, its results read later."""
+    return StartedMap(fn, items, jobs, preload=preload)

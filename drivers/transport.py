@@ -21,7 +21,7 @@ import contextlib
 import logging
 import select
 import socket
-from collections.abc import Iterator
+from collections.abc import Iterator, Sequence
 from typing import Any, Protocol
 
 import numpy as np
@@ -221,37 +221,7 @@ class VisaTransport:
         ``MAX_CLEAR_BYTES``, and a peer that has closed the connection is reported as
         :class:`ConnectionLost` (pyvisa-py's own clear would spin on a closed socket).
         """
-        sock = self._socket()
-        if sock is None:
-            with self._mapped("clear"):
-                self._resource.clear()
-            return
-        with contextlib.suppress(Exception):
-            self._resource.visalib.sessions[self._resource.session]._pending_buffer.clear()
-        drained = 0
-        try:
-            while drained < MAX_CLEAR_BYTES:
-                readable, _, _ = select.select([sock], [], [], 0.1)
-                if not readable:
-                    return
-                chunk = sock.recv(65536)
-                if not chunk:
-                    break
-                drained += len(chunk)
-        except ConnectionRefusedError as exc:
-            raise ConnectionFailed(
-                self.resource_name, "open", exc.strerror or "connection refused"
-            ) from exc
-        except OSError as exc:
-            raise ConnectionLost(self.resource_name, "clear", exc.strerror or str(exc)) from exc
-        if drained >= MAX_CLEAR_BYTES:
-            raise TransportError(
-                self.resource_name,
-                "clear",
-                f"the instrument keeps sending (more than {MAX_CLEAR_BYTES} bytes unread)",
-                hint="stop what the instrument is streaming, or power-cycle it",
-            )
-        raise ConnectionLost(self.resource_name, "clear", "the instrument closed the connection")
+        clear_all([self])
 
     def write(self, command: str) -> None:
         """Send one program message (the write termination is added)."""
@@ -404,3 +374,53 @@ class VisaTransport:
             return sock.recv(1, socket.MSG_PEEK) == b""
         except (OSError, ValueError):
             return True
+
+
+def clear_all(transports: Sequence[VisaTransport]) -> None:
+    """:meth:`VisaTransport.clear` on several transports at once: their sockets are
+    drained together until none has sent anything for 0.1 s, so opening a bench of
+    instruments waits one quiet window rather than one per instrument."""
+    sockets: dict[socket.socket, VisaTransport] = {}
+    for transport in transports:
+        sock = transport._socket()
+        if sock is None:
+            with transport._mapped("clear"):
+                transport._resource.clear()
+            continue
+        with contextlib.suppress(Exception):
+            session = transport._resource.visalib.sessions[transport._resource.session]
+            session._pending_buffer.clear()
+        sockets[sock] = transport
+    drained = dict.fromkeys(sockets, 0)
+    while sockets:
+        try:
+            readable, _, _ = select.select(list(sockets), [], [], 0.1)
+        except OSError as exc:  # a socket closed under us
+            first = next(iter(sockets.values()))
+            raise ConnectionLost(first.resource_name, "clear", exc.strerror or str(exc)) from exc
+        if not readable:
+            return
+        for sock in readable:
+            transport = sockets[sock]
+            try:
+                chunk = sock.recv(65536)
+            except ConnectionRefusedError as exc:
+                raise ConnectionFailed(
+                    transport.resource_name, "open", exc.strerror or "connection refused"
+                ) from exc
+            except OSError as exc:
+                raise ConnectionLost(
+                    transport.resource_name, "clear", exc.strerror or str(exc)
+                ) from exc
+            if not chunk:
+                raise ConnectionLost(
+                    transport.resource_name, "clear", "the instrument closed the connection"
+                )
+            drained[sock] += len(chunk)
+            if drained[sock] >= MAX_CLEAR_BYTES:
+                raise TransportError(
+                    transport.resource_name,
+                    "clear",
+                    f"the instrument keeps sending (more than {MAX_CLEAR_BYTES} bytes unread)",
+                    hint="stop what the instrument is streaming, or power-cycle it",
+                )

@@ -67,7 +67,7 @@ def open_instruments(plan: Plan, *, scripted: bool) -> Iterator[BenchInstruments
     from drivers.gain_phase import GainPhaseAnalyzer
     from drivers.instrument_maps import load_instrument_map
     from drivers.switch import FixtureSwitch
-    from drivers.transport import VisaTransport
+    from drivers.transport import VisaTransport, clear_all
 
     roles = needed_roles(plan, scripted=scripted)
     for role in roles:
@@ -80,12 +80,17 @@ def open_instruments(plan: Plan, *, scripted: bool) -> Iterator[BenchInstruments
             )
     transports: list[Any] = []
     try:
+        # Every link opened first and cleared together (one quiet window for the bench,
+        # not one per instrument), before any driver speaks to its instrument.
+        links = {}
+        for role in roles:
+            inst = plan.instruments[role]
+            links[role] = VisaTransport.open(inst.resource, timeout_s=inst.timeout_s, clear=False)
+            transports.append(links[role])
+        clear_all(transports)
 
         def link(role: str) -> Any:
-            inst = plan.instruments[role]
-            transport = VisaTransport.open(inst.resource, timeout_s=inst.timeout_s)
-            transports.append(transport)
-            return transport
+            return links[role]
 
         analyzer = NetworkAnalyzer(link("analyzer"), plan.instruments["analyzer"].command_map)
         switch = None

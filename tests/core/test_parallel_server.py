@@ -44,21 +44,3 @@ def test_a_started_map_can_be_cancelled_unread():
     assert started.done()
     started.cancel()  # twice is harmless
     assert started.done()
-
-
-def test_a_started_map_in_workers_runs_one_item_in_another_process():
-    import os
-
-    from bench.parallel import start_map
-
-    started = start_map(_pid, [], jobs=1, in_workers=True)
-    assert list(started.results()) == []  # nothing to do: no pool at all
-    started = start_map(_pid, [0], jobs=1, in_workers=True)
-    (pid,) = started.results()
-    assert pid != os.getpid()
-
-
-def _pid(_: int) -> int:
-    import os
-
-    return os.getpid()
