@@ -29,6 +29,7 @@ Points outside the measurable window (``valid`` False) are dropped and counted. 
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass
@@ -211,7 +212,7 @@ def _make_trial(family, order, node, q, lo, hi, obj: Objective) -> Trial:
         r = obj.residuals(q)
         chi2 = float(r @ r)
         err = np.hypot(r[: obj.n], r[obj.n :]) / obj.weight
-    vanish = vanishing_sides(node)
+    vanish = _vanishing_sides(node)
     at_bound = tuple(
         n
         for n, qi, a, b in zip(names, q, lo, hi, strict=True)
@@ -249,6 +250,12 @@ def _make_trial(family, order, node, q, lo, hi, obj: Objective) -> Trial:
         rel_sigma=rel,
         dropped=dropped,
     )
+
+
+@functools.lru_cache(maxsize=64)
+def _vanishing_sides(node) -> dict[str, set[str]]:
+    """:func:`~bench.core.models.network.vanishing_sides` of ``node``, once per circuit."""
+    return vanishing_sides(node)
 
 
 def _robust_refine(trial: Trial, f, z, weight, landmarks: Landmarks) -> Trial:

@@ -671,7 +671,7 @@ class ModelFamily:
         return {name: float(values[name]) for name in self.element_names(lower)}
 
     def element_names(self, order: int | None = None) -> tuple[str, ...]:
-        return element_names(self.circuit(self.orders[0] if order is None else order))
+        return _circuit_names(self.circuit, self.orders[0] if order is None else order)
 
     def order_of(self, values: Mapping[str, float]) -> int:
         """The order whose element names are exactly the keys of ``values``."""
@@ -727,6 +727,13 @@ def drop_section(
     return out
 
 
+@functools.lru_cache(maxsize=256)
+def _circuit_names(circuit: Callable[[int], Node], order: int) -> tuple[str, ...]:
+    """The element names of ``circuit(order)``, built once per circuit and order (a fit
+    asks for them many times)."""
+    return element_names(circuit(order))
+
+
 def clip_to_bounds(
     values: Mapping[str, float], bounds: Mapping[str, tuple[float, float]]
 ) -> dict[str, float]:
@@ -734,8 +741,10 @@ def clip_to_bounds(
     out = {}
     for name, value in values.items():
         lo, hi = bounds[name]
-        v = float(value) if np.isfinite(value) and value > 0 else float(np.sqrt(lo * hi))
-        out[name] = float(np.clip(v, lo * (1 + 1e-6), hi * (1 - 1e-6)))
+        v = float(value)
+        if not (math.isfinite(v) and v > 0):
+            v = math.sqrt(lo * hi)
+        out[name] = min(max(v, lo * (1 + 1e-6)), hi * (1 - 1e-6))
     return out
 
 
