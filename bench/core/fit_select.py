@@ -45,6 +45,9 @@ class Trial:
     pinned: tuple[str, ...] = ()
     rel_sigma: dict[str, float] = field(default_factory=dict)
     dropped: tuple[str, ...] = ()
+    # The valleys its scouts refined, ``(grid key, cost, log values)`` on the thinned grid
+    # (``fitting._fit_order``): a restart of this order that reaches one ends there.
+    valleys: tuple = ()
 
     @property
     def size(self) -> int:

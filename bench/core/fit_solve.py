@@ -106,7 +106,7 @@ def levenberg_marquardt(fun, jac, x0, max_nfev: int, tolerance: float) -> NDArra
 
 
 def solve(
-    obj: Objective, q0, lo, hi, max_nfev: int, tolerance: float = 1e-7
+    obj: Objective, q0, lo, hi, max_nfev: int, tolerance: float = 1e-7, watch=None
 ) -> tuple[float, NDArray[np.float64]]:
     """Levenberg-Marquardt (MINPACK) in log parameters, kept inside the bounds.
 
@@ -114,10 +114,16 @@ def solve(
     trust-region method for these small problems (about twice as fast here). The bounds
     hold by evaluating the model at the clipped parameters: outside them the residuals
     stop changing, so the step is pushed back, and the result is clipped at the end.
+    ``watch(q, r)``, when given, sees every point evaluated and its residuals, and may
+    end the solve by raising.
     """
 
     def fun(q):
-        return obj.residuals(np.minimum(np.maximum(q, lo), hi))
+        q = np.minimum(np.maximum(q, lo), hi)
+        r = obj.residuals(q)
+        if watch is not None:
+            watch(q, r)
+        return r
 
     def jac(q):
         out = obj.jacobian_rows(np.minimum(np.maximum(q, lo), hi))

@@ -151,7 +151,12 @@ def _fit_order(
     landmarks: Landmarks,
     previous: Mapping[str, float] | None,
     starts: list[dict[str, float]] | None = None,
-) -> Trial:
+    known: tuple = (),
+) -> Trial | None:
+    """The fit of ``family``/``order``: every start scouted on the thinned grid, the best
+    valleys refined on all points. ``known`` are valleys of an earlier fit of this order
+    (:attr:`Trial.valleys`): a scout that reaches one is dropped (that fit has it
+    already), and when every scout is, there is nothing new and the result is None."""
     node = family.circuit_for(order, f)
     names = family.element_names(order)
     limits = family.element_bounds(order, f, landmarks)
@@ -166,6 +171,8 @@ def _fit_order(
     coarse = Objective(node, f[::step], z[::step], weight[::step])
     fine = coarse if step == 1 else Objective(node, f, z, weight)
     scouts: list[tuple[float, NDArray[np.float64]]] = []
+    grid = hash((coarse.inv_z.tobytes(), coarse.weight.tobytes(), node))
+    seen = [(cost, q) for key, cost, q in known if key == grid]
     if starts is None:
         starts = family.starts(order, f, z, landmarks, previous)
     tried: list[NDArray[np.float64]] = []
@@ -179,18 +186,29 @@ def _fit_order(
             r0 = coarse.residuals(q0)
         if not np.all(np.isfinite(r0)):
             continue
-        result = solve(coarse, q0, lo, hi, 20 * (k + 1), SCOUT_TOLERANCE)
+        try:
+            result = solve(
+                coarse, q0, lo, hi, 20 * (k + 1), SCOUT_TOLERANCE, _watch([*seen, *scouts])
+            )
+        except _SameValleyError as same:
+            if any(same.end is end for end in seen):
+                continue  # a valley the earlier fit refined
+            result = same.end
         if not np.isfinite(result[0]):
             continue
         scouts.append(result)
+    if not scouts and seen:
+        return None
     if not scouts:
         raise FitError(f"model {family.name} (order {order}): no start value gave a finite model")
     scouts.sort(key=lambda t: t[0])
+    # The runner-up too, unless it sits in the same valley (costs within 1 %).
+    chosen = scouts[:1] + [t for t in scouts[1:2] if t[0] > 1.01 * scouts[0][0]]
+    valleys = tuple((grid, cost, q) for cost, q in chosen)
     if step == 1:
         best = scouts[0]  # the scouts ran on the full grid already
+        valleys = valleys[:1]
     else:
-        # The runner-up too, unless it sits in the same valley (costs within 1 %).
-        chosen = scouts[:1] + [t for t in scouts[1:2] if t[0] > 1.01 * scouts[0][0]]
         refined = [
             solve(fine, q_scout, lo, hi, 20 * (k + 1), REFINE_TOLERANCE) for _, q_scout in chosen
         ]
@@ -198,10 +216,36 @@ def _fit_order(
         if not refined:
             raise FitError(f"model {family.name} (order {order}): the fit did not converge")
         best = min(refined, key=lambda r: r[0])
-    return _make_trial(family, order, node, best[1], lo, hi, fine)
+    return _make_trial(family, order, node, best[1], lo, hi, fine, valleys)
 
 
-def _make_trial(family, order, node, q, lo, hi, obj: Objective) -> Trial:
+# A scout that comes within this distance (natural log, every element) of where an
+# earlier scout of the same candidate ended, at a cost within 1 % of that scout's, is in
+# its valley and would end there too: it stops and counts as that scout.
+SAME_VALLEY_LOG = 0.03
+
+
+class _SameValleyError(Exception):
+    def __init__(self, end: tuple[float, NDArray[np.float64]]):
+        super().__init__()
+        self.end = end
+
+
+def _watch(ends: list[tuple[float, NDArray[np.float64]]]):
+    """A ``watch`` for :func:`solve` that stops a scout at the end of an earlier one."""
+    if not ends:
+        return None
+
+    def watch(q, r):
+        cost = float(r @ r)
+        for end in ends:
+            if abs(cost - end[0]) <= 0.01 * end[0] and np.max(np.abs(q - end[1])) < SAME_VALLEY_LOG:
+                raise _SameValleyError(end)
+
+    return watch
+
+
+def _make_trial(family, order, node, q, lo, hi, obj: Objective, valleys=()) -> Trial:
     """The trial of ``family``/``order`` at log values ``q`` (fitted with the objective
     ``obj``), with its criterion, the elements at a bound, those the data do not see
     (:func:`fit_select.dropped_elements`) and the relative uncertainty of every element."""
@@ -249,6 +293,7 @@ def _make_trial(family, order, node, q, lo, hi, obj: Objective) -> Trial:
         pinned,
         rel_sigma=rel,
         dropped=dropped,
+        valleys=valleys,
     )
 
 
@@ -420,9 +465,17 @@ def _fit_family(
             lower = out[-2]
             if start is not None and not _at(lower, start):
                 again = _fit_order(
-                    family, lower.order, f, z, weight, data_marks, None, starts=[start]
+                    family,
+                    lower.order,
+                    f,
+                    z,
+                    weight,
+                    data_marks,
+                    None,
+                    starts=[start],
+                    known=lower.valleys,
                 )
-                if again.chi2 < lower.chi2:
+                if again is not None and again.chi2 < lower.chi2:
                     out[-2] = again
             break
         if trial.bic > best_bic:
