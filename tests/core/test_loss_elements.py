@@ -113,6 +113,31 @@ def test_conductor_ladder_follows_its_limit_inside_the_band(corner):
     np.testing.assert_allclose(ratios, np.array(base) / (2 * np.pi), rtol=1e-9)
 
 
+@pytest.mark.parametrize("corner", [10.0, 2e4, 15e6, 1e9, 2e10])
+def test_conductor_sections_far_above_a_long_grid_summed_in_series_as_section_by_section(
+    corner,
+):
+    # On a long grid the sections whose corners lie far above it are summed as their
+    # power series [derived, see bench.core.models.conductor]: the shape and its slope
+    # in ln ωc agree with the plain sum over the R‖L sections (each jx/(1 + jx)) to
+    # rounding.
+    from bench.core.models.conductor import _conductor_parts, conductor_slope, conductor_terms
+
+    band = (10.0, 2e10)
+    f = np.geomspace(1e3, 2e8, 1601)
+    w = 2 * np.pi * f
+    g, rho, tail = _conductor_parts(band)
+    wc = 2 * np.pi * corner
+    jx = 1j * w[None, :] / (rho[:, None] * wc)
+    exact = 1.0 + g @ (jx / (1.0 + jx)) + 1j * tail * w / wc
+    slope = -(g @ (jx / (1.0 + jx) ** 2)) - 1j * tail * w / wc
+    shape, terms = conductor_terms(1j * w, corner, band)
+    # In use where enough sections lie 1000 times above the grid's top.
+    assert (terms[-1] is not None) == (corner >= 2e4)
+    np.testing.assert_allclose(shape, exact, rtol=1e-13)
+    np.testing.assert_allclose(conductor_slope(terms), slope, rtol=1e-12, atol=1e-13)
+
+
 def test_conductor_limits_at_dc_and_well_above_the_corner():
     # Check values (docs/references.md §17, [derived]): R at DC; well above the corner
     # (1 + j)·R·√(f/(2fc)): 2.5 mΩ with fc = 1 MHz at 100 MHz → (1 + j)·17.68 mΩ; the

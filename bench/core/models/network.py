@@ -21,6 +21,16 @@ from typing import Any, Union
 import numpy as np
 from numpy.typing import NDArray
 
+from bench.core.models.conductor import (  # noqa: F401 - the conductor's names, re-exported
+    CONDUCTOR_PER_DECADE,
+    _conductor_parts,
+    _conductor_shape,
+    conductor_continuum,
+    conductor_ladder,
+    conductor_slope,
+    conductor_terms,
+)
+
 ComplexArray = NDArray[np.complex128]
 
 # A bleed resistor across a network with no DC path (every branch holds a capacitor), so
@@ -130,96 +140,6 @@ def K(name: str, band: tuple[float, float]) -> Element:
 def corner_name(name: str) -> str:
     """The name of the skin-corner value (Hz) of the ``K`` element ``name``."""
     return f"fc{name}"
-
-
-# R‖L sections per decade of the conductor ladder: four keep it within 0.4 % of
-# R·√(1 + jω/ωc) [derived numerically, see the tests].
-CONDUCTOR_PER_DECADE = 4.0
-
-
-@functools.lru_cache(maxsize=64)
-def _conductor_parts(band: tuple[float, float]) -> tuple[NDArray[np.float64], ...]:
-    """``(g, rho, tail)``: per ohm of DC resistance, the sections' resistances ``g``, their
-    corners ``rho`` as multiples of ωc, and the inductance ``tail`` (times 1/ωc) standing
-    for the sections above the ladder's top.
-
-    ``√(1 + x) = 1 + ∫₁^∞ (√(λ − 1)/(π·λ))·x/(λ + x) dλ`` (a Stieltjes form; the density
-    is ``Im √(1 − λ)/π`` on the branch cut) [derived]: a resistor and a continuum of R‖L
-    sections ``r·s/(λ·ωc + s)``, ``r = R·√(λ − 1)/(π·λ)·dλ``. Cells of equal width in
-    ln λ from 1 to ``band[1]/band[0]``; each cell's section matches the cell's resistance
-    ``∫√(λ−1)/(πλ) dλ = [2t − 2·atan t]/π`` and its inductance
-    ``∫√(λ−1)/(πλ²) dλ = [atan t − t/(1 + t²)]/π`` (t = √(λ − 1)), its corner their
-    ratio; the tail above the top is its inductance alone, so the low-frequency
-    inductance is exactly ``R/(2ωc)`` [derived].
-    """
-    top = band[1] / band[0]
-    n = max(2, int(np.ceil(CONDUCTOR_PER_DECADE * np.log10(top))))
-    t = np.sqrt(np.exp(np.linspace(0.0, np.log(top), n + 1)) - 1.0)
-    g = np.diff(2 * t - 2 * np.arctan(t)) / np.pi
-    h = np.diff(np.arctan(t) - t / (1 + t * t)) / np.pi
-    tail = (np.pi / 2 - np.arctan(t[-1]) + t[-1] / (1 + t[-1] ** 2)) / np.pi
-    out = (g, g / h, np.array(tail))
-    for a in out:
-        a.flags.writeable = False  # kept per band (a fit asks for them at every step)
-    return out
-
-
-def _conductor_shape(
-    jw: ComplexArray, corner: float, band: tuple[float, float]
-) -> tuple[ComplexArray, ComplexArray]:
-    """Impedance per ohm of a ``K`` element with corner ``corner`` (Hz), its ladder
-    itself, and its derivative with respect to ``ln ωc``.
-
-    ``jw`` is imaginary (``jω``), so each section ``jx/(1 + jx)`` (``x = ω/u``, ``u`` its
-    corner) is taken in real arithmetic: with ``a = 1/(1 + x²)`` it is ``x²a + j·x·a``,
-    and its derivative with respect to ``ln ωc`` (``dx = −x``), ``−jx/(1 + jx)²``, is
-    ``−2x²a² − j·x·a·(a − x²a)`` [derived]; the same ladder, about ten times faster
-    than complex division per section.
-    """
-    z, terms = conductor_terms(jw, corner, band)
-    return z, conductor_slope(terms)
-
-
-def conductor_terms(
-    jw: ComplexArray, corner: float, band: tuple[float, float]
-) -> tuple[ComplexArray, tuple]:
-    """The impedance per ohm of :func:`_conductor_shape` and the terms its derivative is
-    made of (:func:`conductor_slope`), which a fitter's step without a Jacobian skips."""
-    g, rho, tail = _conductor_parts(band)
-    wc = 2 * np.pi * corner
-    w = jw.imag
-    x = (1.0 / (rho * wc))[:, None] * w[None, :]
-    a = 1.0 / (1.0 + x * x)
-    xa = x * a
-    x2a = x * xa  # 1 − a, without the cancellation
-    w_tail = (tail / wc) * w
-    z = (1.0 + g @ x2a) + 1j * (g @ xa + w_tail)
-    return z, (g, a, xa, x2a, w_tail)
-
-
-def conductor_slope(terms: tuple) -> ComplexArray:
-    """The derivative of a ``K`` element's shape in ``ln ωc`` from :func:`conductor_terms`."""
-    g, a, xa, x2a, w_tail = terms
-    return -2.0 * (g @ (x2a * a)) - 1j * (g @ (xa * (a - x2a)) + w_tail)
-
-
-def conductor_continuum(jw: ComplexArray, corner: float) -> ComplexArray:
-    """``√(1 + jω/ωc)``: impedance per ohm of the continuous conductor form (skin effect
-    above the corner ``corner`` Hz; docs/references.md §9, from memory)."""
-    return np.sqrt(1 + jw / (2 * np.pi * corner))
-
-
-def conductor_ladder(
-    value: float, corner: float, band: tuple[float, float]
-) -> tuple[float, list[tuple[float, float]], float]:
-    """``(R, [(R, L), ...], L)``: the series resistor, the R‖L sections and the tail
-    inductor that stand for a ``K`` element of ``value`` Ω and corner ``corner`` Hz."""
-    g, rho, tail = _conductor_parts(band)
-    wc = 2 * np.pi * corner
-    sections = [
-        (float(value * gk), float(value * gk / (rk * wc))) for gk, rk in zip(g, rho, strict=True)
-    ]
-    return float(value), sections, float(value * tail / wc)
 
 
 # Reference frequency of the skin element's value: Re Z = S at 1 MHz.
