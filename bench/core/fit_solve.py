@@ -37,6 +37,7 @@ class Objective:
         self.net = compiled(node, f)
         self.inv_z = 1.0 / z
         self.weight = np.ascontiguousarray(weight, dtype=float)
+        self._weight2 = np.concatenate([self.weight, self.weight])
         self.n = f.size
         self._key = b""
         self._r = np.empty(0)
@@ -53,9 +54,8 @@ class Objective:
         out = np.empty(2 * self.n)
         head, tail = out[: self.n], out[self.n :]
         np.log(np.abs(rho), out=head)
-        head *= self.weight
         np.arctan2(rho.imag, rho.real, out=tail)
-        tail *= self.weight
+        out *= self._weight2
         self._key, self._r = key, out
         return out
 
