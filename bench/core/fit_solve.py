@@ -136,7 +136,7 @@ def solve(
     def jac(q):
         out = obj.jacobian_rows(np.minimum(np.maximum(q, lo), hi))
         outside = (q <= lo) | (q >= hi)
-        if outside.any():
+        if np.count_nonzero(outside):  # cheaper than .any() on a few values
             out[outside] = 0.0
         return out
 

@@ -237,7 +237,7 @@ def _watch(ends: list[tuple[float, NDArray[np.float64]]]):
         return None
 
     def watch(q, r):
-        cost = float(r @ r)
+        cost = float(np.dot(r, r))
         for end in ends:
             if abs(cost - end[0]) <= 0.01 * end[0] and np.max(np.abs(q - end[1])) < SAME_VALLEY_LOG:
                 raise _SameValleyError(end)
