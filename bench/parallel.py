@@ -26,8 +26,9 @@ from typing import Any, TypeVar
 T = TypeVar("T")
 R = TypeVar("R")
 
-#: Modules a worker process needs before its first task (forkserver preload).
-PRELOAD = ["bench.core.fitting"]
+#: Modules a worker process needs before its first task (forkserver preload); numpy.ma
+#: is what numpy's median imports at its first call.
+PRELOAD = ["bench.core.fitting", "numpy.ma"]
 
 _NOTHING = object()
 #: The ``shared`` value of the map this worker process serves (set when it starts).
