@@ -76,6 +76,21 @@ def _context(preload: tuple[str, ...] = ()):
     return multiprocessing.get_context("spawn")
 
 
+def pool(workers: int, *, preload: tuple[str, ...] = (), shared: Any = _NOTHING) -> Any:
+    """A process pool of ``workers`` made as :func:`ordered_map` makes its own (the start
+    method, :data:`PRELOAD` and ``preload``, ``shared`` set in each worker), for work
+    handed out one item at a time: ``pool.submit(call, fn, item)``; the caller shuts it
+    down."""
+    from concurrent.futures import ProcessPoolExecutor
+
+    setup = {} if shared is _NOTHING else {"initializer": _set_shared, "initargs": (shared,)}
+    return ProcessPoolExecutor(max_workers=workers, mp_context=_context(preload), **setup)
+
+
+#: ``fn(item)``, or ``fn(item, shared)`` in a worker of a pool given ``shared``.
+call = _call
+
+
 def start_server(preload: tuple[str, ...] = ()) -> bool:
     """Start the workers' server now, importing :data:`PRELOAD` and ``preload``, when
     workers will be forked from one (this process runs threads); returns whether it runs.
