@@ -26,8 +26,9 @@ from typing import Any, TypeVar
 T = TypeVar("T")
 R = TypeVar("R")
 
-#: Modules a worker process needs before its first task (forkserver preload).
-PRELOAD = ["bench.core.fitting"]
+#: Modules a worker process needs before its first task (forkserver preload); numpy.ma
+#: is what numpy's median imports at its first call.
+PRELOAD = ["bench.core.fitting", "numpy.ma"]
 
 _NOTHING = object()
 #: The ``shared`` value of the map this worker process serves (set when it starts).
@@ -73,6 +74,21 @@ def _context(preload: tuple[str, ...] = ()):
         context.set_forkserver_preload(modules)
         return context
     return multiprocessing.get_context("spawn")
+
+
+def pool(workers: int, *, preload: tuple[str, ...] = (), shared: Any = _NOTHING) -> Any:
+    """A process pool of ``workers`` made as :func:`ordered_map` makes its own (the start
+    method, :data:`PRELOAD` and ``preload``, ``shared`` set in each worker), for work
+    handed out one item at a time: ``pool.submit(call, fn, item)``; the caller shuts it
+    down."""
+    from concurrent.futures import ProcessPoolExecutor
+
+    setup = {} if shared is _NOTHING else {"initializer": _set_shared, "initargs": (shared,)}
+    return ProcessPoolExecutor(max_workers=workers, mp_context=_context(preload), **setup)
+
+
+#: ``fn(item)``, or ``fn(item, shared)`` in a worker of a pool given ``shared``.
+call = _call
 
 
 def start_server(preload: tuple[str, ...] = ()) -> bool:

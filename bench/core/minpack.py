@@ -11,6 +11,7 @@ beyond the import.
 
 from __future__ import annotations
 
+import contextlib
 import importlib.machinery
 import importlib.util
 import sys
@@ -48,5 +49,10 @@ def _extension() -> ModuleType | None:
 
 
 _module = _extension()
+# The driver imports scipy's callback layer at its first call: loaded now, once, so that
+# worker processes forked after this import do not each load it again (another scipy's
+# first call imports whatever it needs).
+with contextlib.suppress(ImportError):
+    import scipy._lib._ccallback  # noqa: F401
 #: scipy's compiled ``lmder`` driver (the one ``scipy.optimize.leastsq`` calls), or None.
 lmder: Any = getattr(_module, "_lmder", None)

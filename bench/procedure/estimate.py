@@ -11,7 +11,7 @@ The estimate adds up what each pending step costs:
   answered. The simulated bench's scripted hands take no time;
 - **processing**: the fits, the exports and the report. Their cost on this machine now
   is timed at the session's start (:mod:`bench.procedure.cost`: one fit of an invented
-  part of the plan's point count, one report figure rendered) and scaled by the plan's
+  part of the plan's point count; a report figure counted in such fits) and scaled by the plan's
   counts (samples × bias points, figures) over the worker processes they share (the
   available cores, as :mod:`bench.parallel` uses them). Without that timing (an estimate
   of a plan alone) fixed allowances stand in.
@@ -147,7 +147,7 @@ class Estimate:
         how = ""
         if self.costs is not None:
             how = (
-                f" (timed here: a fit {duration(self.costs.fit_s)}, a figure "
+                f" (timed here: a fit {duration(self.costs.fit_s)}, a figure counted as "
                 f"{duration(self.costs.figure_s)}; {self.workers} worker"
                 f"{'' if self.workers == 1 else 's'})"
             )
