@@ -22,7 +22,8 @@ def fit(ctx: RunContext, step: Step) -> None:
     from bench.procedure.lot_family import family_record
     from bench.verdicts import fit_record, kind_of, shown_landmarks
 
-    summary = build_summary(ctx.store, ctx.plan)
+    early, ctx.early_fits = ctx.early_fits, None
+    summary = build_summary(ctx.store, ctx.plan, early=early)
     references = zero_bias_values(summary)
     models = ctx.store.root / "models"
     for sample in summary.samples:
