@@ -10,7 +10,8 @@ re-exported here).
 
 from __future__ import annotations
 
-from dataclasses import replace
+from collections.abc import Collection
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -97,68 +98,20 @@ def build_summary(
     model_override: str | None = None,
     fit: bool = True,
     jobs: int | None = None,
+    early: Any = None,
 ) -> RunSummary:
     """Recompute every sample of a run from its raw sweeps into a :class:`RunSummary`.
 
     ``analysis`` and ``model_override`` replace the procedure's settings (reprocess);
     measure steps that were skipped or never ran are left out, and said so in warnings.
-    The samples are fitted on up to ``jobs`` processes (all cores when None).
+    The samples are fitted on up to ``jobs`` processes (all cores when None); ``early``
+    (:class:`bench.procedure.early_fit.EarlyFits`) holds fits made during the sweeps,
+    used where their input is the very task built here.
     """
     analysis = analysis or plan.analysis
-    corrector = Corrector.from_store(store, plan)
-    warnings: list[str] = list(corrector.warnings)
-    shorts: dict[int, np.ndarray] = {}
-    loops: dict[int, GroundLoopResult] = {}
-    from bench.procedure import methods as single_methods
-
-    gain_phase_shorts: dict[int, np.ndarray | None] = {}
-    for step in plan.steps:
-        if step.kind != "mount_short" or step.position is None:
-            continue
-        if step.method == GAIN_PHASE:
-            z_gp = single_methods.gain_phase_short(plan, store, step.position)
-            gain_phase_shorts[step.position] = z_gp
-            if z_gp is None:
-                warnings.append(
-                    f"no gain-phase capture of the mount short at position {step.position}; "
-                    "not removed from the gain-phase sweeps"
-                )
-            continue
-        if store.step_state(step.id) != DONE:
-            warnings.append(f"no mount short for position {step.position}; not removed")
-            continue
-        f, z_short = mount_short_impedance(plan, corrector, store, step.position)
-        shorts[step.position] = z_short
-        loops[step.position] = ground_loop(f, z_short, step.position)
-    opens: dict[int, OpenResult] = {}
-    for step in plan.steps:
-        if step.kind != "mount_open" or step.position is None:
-            continue
-        if store.step_state(step.id) != DONE:
-            warnings.append(
-                f"no open capture for position {step.position}; pads' capacitance not removed"
-            )
-            continue
-        result = open_fit(
-            plan, analysis, corrector, store, step.position, shorts.get(step.position)
-        )
-        opens[step.position] = result
-        if result.mount_open is None:
-            warnings.append(result.message)
-    pads = {pos: r.mount_open for pos, r in opens.items() if r.mount_open is not None}
-    from bench.procedure import methods as single
-
-    mounts = {
-        m: single.captures(plan, corrector, store, m)
-        for m in SINGLE_MOUNT_METHODS
-        if any(s.method == m for s in plan.steps)
-    }
-    for m, captured in mounts.items():
-        for kind, value in (("mount_open", captured.open), ("mount_short", captured.short)):
-            if value is None:
-                warnings.append(
-                    f"no {single.CAPTURE_WORDS[(m, kind)]} capture of the {m} mount; not removed"
-                )
+    fixture = prepare_fixture(store, plan, analysis)
+    warnings = fixture.warnings
+    shorts, loops, opens, mounts = fixture.shorts, fixture.loops, fixture.opens, fixture.mounts
     groups: dict[tuple[str, str, float], list[Step]] = {}
     for step in plan.steps:
         if step.kind != "measure":
@@ -170,25 +123,20 @@ def build_summary(
         assert step.placement is not None
         key = (step.placement.part, step.placement.sample, step.bias_v)
         groups.setdefault(key, []).append(step)
-    unfitted: list[tuple[SampleResult, tuple[str, ImpedanceData, float]]] = []
-    shunt = {"shorts": shorts, "pads": pads, "loops": loops, "gain_phase": gain_phase_shorts}
-    for steps in groups.values():
-        if len(steps) == 1 and steps[0].method == SHUNT:
-            unfitted.append(
-                _sample(
-                    store, plan, analysis, corrector, steps[0], shorts, pads, loops, model_override
-                )
-            )
-        else:
-            unfitted.append(
-                _setups_sample(
-                    store, plan, analysis, corrector, steps, shunt, mounts, model_override
-                )
-            )
+    unfitted = [
+        sample_and_task(store, plan, analysis, fixture, steps, model_override)
+        for steps in groups.values()
+    ]
     samples = [sample for sample, _ in unfitted]
     if fit:
-        # The fits run on up to `jobs` processes (all cores by default), in sample order.
-        fits = ordered_map(_fit_task, [task for _, task in unfitted], jobs)
+        # The fits run on up to `jobs` processes (all cores by default), in sample order;
+        # those fitted already during the sweeps (``early``) are taken as they came.
+        tasks = [task for _, task in unfitted]
+        if early is not None:
+            keys = [tuple(step.id for step in steps) for steps in groups.values()]
+            fits = early.fits(keys, tasks, jobs)
+        else:
+            fits = ordered_map(_fit_task, tasks, jobs)
         samples = [
             replace(
                 sample,
@@ -241,7 +189,7 @@ def build_summary(
                 "tolerance": analysis.tolerance,
                 "mount": analysis.mount,
             },
-            "fixture_removal": fixture_removal_text(bool(shorts), bool(pads)),
+            "fixture_removal": fixture_removal_text(bool(shorts), bool(fixture.pads)),
             **(
                 {"single_mounts": {m: c.removal_text() for m, c in mounts.items()}}
                 if mounts
@@ -255,6 +203,111 @@ def build_summary(
         ground_loop=loop_info,
         warnings=tuple(dict.fromkeys([*_stored_warnings(manifest, opens, loops), *warnings])),
         software_version=__version__,
+    )
+
+
+@dataclass
+class Fixture:
+    """What the samples' corrections share: the calibration, each position's mount short
+    (with its ground-loop check) and pads, the gain-phase straps, the single mounts'
+    captures, and the warnings about what is missing."""
+
+    corrector: Corrector
+    warnings: list[str]
+    shorts: dict[int, np.ndarray]
+    loops: dict[int, GroundLoopResult]
+    opens: dict[int, OpenResult]
+    pads: dict[int, MountOpen]
+    gain_phase: dict[int, np.ndarray | None]
+    mounts: dict[str, Any]
+
+
+def prepare_fixture(
+    store: RunStore,
+    plan: Plan,
+    analysis: Analysis,
+    positions: Collection[int] | None = None,
+    methods: Collection[str] | None = None,
+) -> Fixture:
+    """The :class:`Fixture` of a run from its stored captures: every position and single
+    mount, or only ``positions`` and ``methods`` (one sample's, fitted early)."""
+    corrector = Corrector.from_store(store, plan)
+    warnings: list[str] = list(corrector.warnings)
+    shorts: dict[int, np.ndarray] = {}
+    loops: dict[int, GroundLoopResult] = {}
+    from bench.procedure import methods as single
+
+    def wanted(step: Step) -> bool:
+        return step.position is not None and (positions is None or step.position in positions)
+
+    gain_phase_shorts: dict[int, np.ndarray | None] = {}
+    for step in plan.steps:
+        if step.kind != "mount_short" or not wanted(step):
+            continue
+        assert step.position is not None
+        if step.method == GAIN_PHASE:
+            z_gp = single.gain_phase_short(plan, store, step.position)
+            gain_phase_shorts[step.position] = z_gp
+            if z_gp is None:
+                warnings.append(
+                    f"no gain-phase capture of the mount short at position {step.position}; "
+                    "not removed from the gain-phase sweeps"
+                )
+            continue
+        if store.step_state(step.id) != DONE:
+            warnings.append(f"no mount short for position {step.position}; not removed")
+            continue
+        f, z_short = mount_short_impedance(plan, corrector, store, step.position)
+        shorts[step.position] = z_short
+        loops[step.position] = ground_loop(f, z_short, step.position)
+    opens: dict[int, OpenResult] = {}
+    for step in plan.steps:
+        if step.kind != "mount_open" or not wanted(step):
+            continue
+        assert step.position is not None
+        if store.step_state(step.id) != DONE:
+            warnings.append(
+                f"no open capture for position {step.position}; pads' capacitance not removed"
+            )
+            continue
+        result = open_fit(
+            plan, analysis, corrector, store, step.position, shorts.get(step.position)
+        )
+        opens[step.position] = result
+        if result.mount_open is None:
+            warnings.append(result.message)
+    pads = {pos: r.mount_open for pos, r in opens.items() if r.mount_open is not None}
+    mounts = {
+        m: single.captures(plan, corrector, store, m)
+        for m in SINGLE_MOUNT_METHODS
+        if any(s.method == m for s in plan.steps) and (methods is None or m in methods)
+    }
+    for m, captured in mounts.items():
+        for kind, value in (("mount_open", captured.open), ("mount_short", captured.short)):
+            if value is None:
+                warnings.append(
+                    f"no {single.CAPTURE_WORDS[(m, kind)]} capture of the {m} mount; not removed"
+                )
+    return Fixture(corrector, warnings, shorts, loops, opens, pads, gain_phase_shorts, mounts)
+
+
+def sample_and_task(
+    store: RunStore,
+    plan: Plan,
+    analysis: Analysis,
+    fixture: Fixture,
+    steps: list[Step],
+    model_override: str | None,
+) -> tuple[SampleResult, tuple[str, ImpedanceData, float]]:
+    """One sample and bias point (its measure steps) before its fit, and the fit's task."""
+    f = fixture
+    if len(steps) == 1 and steps[0].method == SHUNT:
+        return _sample(
+            store, plan, analysis, f.corrector, steps[0], f.shorts, f.pads, f.loops, model_override
+        )
+    shunt = {"shorts": f.shorts, "pads": f.pads, "loops": f.loops, "gain_phase": f.gain_phase}
+    return _setups_sample(
+        store, plan, analysis, f.corrector, steps, shunt, f.mounts, model_override
     )
 
 
@@ -406,6 +459,7 @@ def _setups_sample(
 
 __all__ = [
     "Corrector",
+    "Fixture",
     "GroundLoopResult",
     "OpenResult",
     "averaged",
@@ -419,6 +473,8 @@ __all__ = [
     "mount_open_impedance",
     "mount_short_impedance",
     "open_fit",
+    "prepare_fixture",
+    "sample_and_task",
     "sample_impedance",
     "with_analysis",
     "z_at_nominal",

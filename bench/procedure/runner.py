@@ -25,6 +25,7 @@ from typing import Any
 
 from bench.errors import BiasNotConfirmedOffError, RunError, RunFolderError, SafetyError
 from bench.procedure.display import PlainDisplay
+from bench.procedure.early_fit import EarlyFits, group_of
 from bench.procedure.estimate import BENCH_KINDS, Estimate, duration, estimate
 from bench.procedure.operators import Operator, OperatorStop
 from bench.procedure.plan import SWEEP_STEPS, Plan, Step
@@ -127,6 +128,7 @@ class Runner:
             if plan.biased and any(s.bias_v for s in pending):
                 bias.caution(ctx)
             self._workers_ready = self._start_workers(pending)
+            ctx.early_fits = self._early_fits(pending)
             self._prepare_instruments()
             maybe_reuse(ctx)
             # Counted after a reused calibration, whose standards are not swept again.
@@ -181,6 +183,9 @@ class Runner:
             if ctx.report_draft is not None:  # stopped before the report step
                 ctx.report_draft.cancel()
                 ctx.report_draft = None
+            if ctx.early_fits is not None:  # stopped before the fit step
+                ctx.early_fits.cancel()
+                ctx.early_fits = None
             self._took(time.perf_counter() - started)
             self.display.stop()
             if unconfirmed is not None:
@@ -198,10 +203,22 @@ class Runner:
         kinds = {s.kind for s in pending}
         if not kinds & {"fit", "report"} or available_cores() < 2:
             return False
-        modules = ("bench.procedure.processing",)
+        # The fit step's tasks and the early fits' (the ground-loop check imports
+        # scipy.optimize: half a second a worker would pay at its first sample).
+        modules = ("bench.procedure.processing", "bench.core.ground_loop")
         if "report" in kinds:
             modules += ("bench.report_sample",)  # the figures' task, with matplotlib
         return start_server(modules)
+
+    def _early_fits(self, pending: list[Step]) -> EarlyFits | None:
+        """Samples fitted during the sweeps (:mod:`bench.procedure.early_fit`) when this
+        session fits, on every core (the fit step then only collects them)."""
+        from bench.parallel import available_cores
+
+        cores = available_cores()
+        if cores < 2 or not any(s.kind == "fit" for s in pending):
+            return None
+        return EarlyFits(self.store.root, self.plan, cores)
 
     def _estimate(self, started: float) -> Estimate:
         """The pending steps' duration, with the analysers' own sweep times (as read at
@@ -368,3 +385,7 @@ class Runner:
         store.log(f"step {step.id} {store.step_state(step.id)}")
         if step.kind == "calibrate":
             point_last_calibration(self.ctx)
+        if step.kind == "measure" and self.ctx.early_fits is not None:
+            group = group_of(self.plan, step)
+            if all(store.step_state(s.id) == DONE for s in group):
+                self.ctx.early_fits.submit(group)

@@ -72,6 +72,9 @@ class RunContext:
     #: The report started at the end of the fit step (``bench.report.ReportDraft``): its
     #: figures are drawn while the exports are written; the report step finishes it.
     report_draft: Any = None
+    #: Samples fitted in worker processes during the sweeps
+    #: (``bench.procedure.early_fit.EarlyFits``), read by the fit step.
+    early_fits: Any = None
     _pausing: bool = False
 
     @contextlib.contextmanager

@@ -22,7 +22,11 @@ def fit(ctx: RunContext, step: Step) -> None:
     from bench.procedure.lot_family import family_record
     from bench.verdicts import fit_record, kind_of, shown_landmarks
 
-    summary = build_summary(ctx.store, ctx.plan)
+    early, ctx.early_fits = ctx.early_fits, None
+    summary = build_summary(ctx.store, ctx.plan, early=early)
+    ctx.summary = summary
+    # The report's figures start now, drawn while the models and exports are written.
+    _start_report(ctx)
     references = zero_bias_values(summary)
     models = ctx.store.root / "models"
     for sample in summary.samples:
@@ -61,13 +65,12 @@ def fit(ctx: RunContext, step: Step) -> None:
 
     drives = {s.label: sample_drive(summary, s) for s in summary.samples}
     ctx.store.update("drive_v_rms_max", {k: v for k, v in drives.items() if v is not None})
-    ctx.summary = summary
-    _start_report(ctx)
 
 
 def _start_report(ctx: RunContext) -> None:
     """When this session writes the report, start drawing its figures now on the worker
-    processes: they draw while the exports are written (the report step finishes it)."""
+    processes: they draw while the fits' records and the exports are written (the report
+    step finishes it; a run stopped before then cancels it)."""
     pending = [
         s
         for s in ctx.plan.steps
