@@ -178,3 +178,32 @@ class SoftL1:
     def jacobian_rows(self, q):
         _, _, slope = self._parts(q)
         return self.obj.jacobian_rows(q) * slope
+
+
+# A scout that comes within this distance (natural log, every element) of where an
+# earlier scout of the same candidate ended, at a cost within 1 % of that scout's, is in
+# its valley and would end there too: it stops and counts as that scout.
+SAME_VALLEY_LOG = 0.03
+
+
+class SameValleyError(Exception):
+    """Raised by :func:`same_valley_watch`: the scout reached ``end`` (cost, log values),
+    where an earlier scout ended."""
+
+    def __init__(self, end: tuple[float, NDArray[np.float64]]):
+        super().__init__()
+        self.end = end
+
+
+def same_valley_watch(ends: list[tuple[float, NDArray[np.float64]]]):
+    """A ``watch`` for :func:`solve` that stops a scout at the end of an earlier one."""
+    if not ends:
+        return None
+
+    def watch(q, r):
+        cost = float(np.dot(r, r))
+        for end in ends:
+            if abs(cost - end[0]) <= 0.01 * end[0] and np.max(np.abs(q - end[1])) < SAME_VALLEY_LOG:
+                raise SameValleyError(end)
+
+    return watch

@@ -55,7 +55,14 @@ from bench.core.fit_result import (
     ModelMismatchError,
 )
 from bench.core.fit_select import Trial, covariance, dropped_elements, lowest_bic, select
-from bench.core.fit_solve import Objective, SoftL1, log_ratio, solve
+from bench.core.fit_solve import (
+    Objective,
+    SameValleyError,
+    SoftL1,
+    log_ratio,
+    same_valley_watch,
+    solve,
+)
 from bench.core.landmarks import Landmarks, classify, landmarks_for
 from bench.core.model_registry import MODEL_NAMES, auto_candidates
 from bench.core.models import FAMILIES, ModelFamily
@@ -188,9 +195,15 @@ def _fit_order(
             continue
         try:
             result = solve(
-                coarse, q0, lo, hi, 20 * (k + 1), SCOUT_TOLERANCE, _watch([*seen, *scouts])
+                coarse,
+                q0,
+                lo,
+                hi,
+                20 * (k + 1),
+                SCOUT_TOLERANCE,
+                same_valley_watch([*seen, *scouts]),
             )
-        except _SameValleyError as same:
+        except SameValleyError as same:
             if any(same.end is end for end in seen):
                 continue  # a valley the earlier fit refined
             result = same.end
@@ -217,32 +230,6 @@ def _fit_order(
             raise FitError(f"model {family.name} (order {order}): the fit did not converge")
         best = min(refined, key=lambda r: r[0])
     return _make_trial(family, order, node, best[1], lo, hi, fine, valleys)
-
-
-# A scout that comes within this distance (natural log, every element) of where an
-# earlier scout of the same candidate ended, at a cost within 1 % of that scout's, is in
-# its valley and would end there too: it stops and counts as that scout.
-SAME_VALLEY_LOG = 0.03
-
-
-class _SameValleyError(Exception):
-    def __init__(self, end: tuple[float, NDArray[np.float64]]):
-        super().__init__()
-        self.end = end
-
-
-def _watch(ends: list[tuple[float, NDArray[np.float64]]]):
-    """A ``watch`` for :func:`solve` that stops a scout at the end of an earlier one."""
-    if not ends:
-        return None
-
-    def watch(q, r):
-        cost = float(np.dot(r, r))
-        for end in ends:
-            if abs(cost - end[0]) <= 0.01 * end[0] and np.max(np.abs(q - end[1])) < SAME_VALLEY_LOG:
-                raise _SameValleyError(end)
-
-    return watch
 
 
 def _make_trial(family, order, node, q, lo, hi, obj: Objective, valleys=()) -> Trial:
