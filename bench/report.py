@@ -343,7 +343,9 @@ def _calibration_facts(summary: RunSummary) -> dict[str, Any]:
     made = parse_time(facts.get("time") or facts.get("created"))
     started = parse_time(summary.setup.get("started") or summary.setup.get("created"))
     if made is not None and started is not None and "age_s" not in facts:
-        age = (started - made).total_seconds()
+        # The calibration's time is kept to the second: one made in the run's first
+        # second reads as before its start unless the start is taken to the second too.
+        age = (started.replace(microsecond=0) - made).total_seconds()
         facts["age"] = (
             f"{duration(age)} at the start of the run" if age > 0 else "made during this run"
         )

@@ -182,3 +182,18 @@ def test_a_bead_is_reported_on_its_impedance_at_the_stated_frequency(summary, wr
     label = f"|Z| at {report.format_si(bead.nominal_at_hz, 'Hz', 4)}"
     glance = text.split("<h2>Results at a glance</h2>", 1)[1].split("</table>", 1)[0]
     assert report.esc(label) in glance and "z_at_nominal_hz" not in glance
+
+
+def test_a_calibration_made_in_the_runs_first_second_is_made_during_the_run(summary):
+    """The calibration's time is stored to the second, the run's start to the
+    millisecond: a calibration in the same second is not 0 s old at the start."""
+    from dataclasses import replace
+
+    calibration = {"method": "through", "time": "2026-01-02T03:04:05+00:00"}
+    start = "2026-01-02T03:04:05.678+00:00"
+    setup = {**summary.setup, "started": start, "created": start}
+    same = replace(summary, calibration=calibration, setup=setup)
+    assert report._calibration_facts(same)["age"] == "made during this run"
+    earlier = replace(same, calibration={**calibration, "time": "2026-01-02T02:04:05+00:00"})
+    assert report._calibration_facts(earlier)["age"].endswith("at the start of the run")
+    assert report._calibration_facts(earlier)["age"] != "0 s at the start of the run"
