@@ -173,3 +173,23 @@ def loopback_server() -> Iterator[Callable[[Callable[[bytes], bytes | None]], Lo
     yield start
     for server in servers:
         server.stop()
+
+
+@pytest.fixture
+def closing_peer() -> Iterator[str]:
+    """VISA resource of a listener that accepts one connection and closes it at once."""
+    listener = socket.socket()
+    listener.bind(("127.0.0.1", 0))
+    listener.listen(1)
+    port = listener.getsockname()[1]
+
+    def accept_and_close() -> None:
+        with contextlib.suppress(OSError):
+            conn, _ = listener.accept()
+            conn.close()
+
+    thread = threading.Thread(target=accept_and_close, daemon=True)
+    thread.start()
+    yield f"TCPIP0::127.0.0.1::{port}::SOCKET"
+    listener.close()
+    thread.join(timeout=2)

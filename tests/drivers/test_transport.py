@@ -177,25 +177,7 @@ def test_bad_timeout_is_refused(loopback_server):
         VisaTransport.open(server.resource, timeout_s=0)
 
 
-def test_open_on_a_peer_that_closes_at_once_is_connection_lost(loopback_server):
+def test_open_on_a_peer_that_closes_at_once_is_connection_lost(closing_peer):
     """A listener that accepts and closes at once: the clear on open must not spin."""
-    import socket as _socket
-    import threading
-
-    listener = _socket.socket()
-    listener.bind(("127.0.0.1", 0))
-    listener.listen(1)
-    port = listener.getsockname()[1]
-
-    def accept_and_close():
-        conn, _ = listener.accept()
-        conn.close()
-
-    thread = threading.Thread(target=accept_and_close, daemon=True)
-    thread.start()
-    try:
-        with pytest.raises(ConnectionLost, match="closed the connection"):
-            VisaTransport.open(f"TCPIP0::127.0.0.1::{port}::SOCKET", timeout_s=1.0)
-    finally:
-        thread.join(timeout=2)
-        listener.close()
+    with pytest.raises(ConnectionLost, match="closed the connection"):
+        VisaTransport.open(closing_peer, timeout_s=1.0)

@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import socket
-import threading
 import time
 
 import pytest
@@ -31,27 +29,13 @@ def test_unread_answers_of_every_link_are_dropped(loopback_server):
             link.close()
 
 
-def test_a_peer_that_closed_is_named(loopback_server):
-    listener = socket.socket()
-    listener.bind(("127.0.0.1", 0))
-    listener.listen(1)
-    port = listener.getsockname()[1]
-
-    def accept_and_close():
-        conn, _ = listener.accept()
-        conn.close()
-
-    thread = threading.Thread(target=accept_and_close, daemon=True)
-    thread.start()
+def test_a_peer_that_closed_is_named(loopback_server, closing_peer):
     good = VisaTransport.open(_echo(loopback_server).resource, timeout_s=1.0, clear=False)
-    closing = f"TCPIP0::127.0.0.1::{port}::SOCKET"
-    bad = VisaTransport.open(closing, timeout_s=1.0, clear=False)
+    bad = VisaTransport.open(closing_peer, timeout_s=1.0, clear=False)
     try:
         with pytest.raises(ConnectionLost, match="closed the connection") as info:
             clear_all([good, bad])
-        assert closing in str(info.value)
+        assert closing_peer in str(info.value)
     finally:
         good.close()
         bad.close()
-        thread.join(timeout=2)
-        listener.close()
