@@ -129,6 +129,17 @@ def family_fits(repeats, clock=time.process_time):
                 yield family, n, model, dt, res
 
 
+#: VectorFitting's configuration in every benchmark that compares with it.
+VF_OPTIONS = {
+    "n_poles_real": 3,
+    "n_poles_cmplx": 3,
+    "init_pole_spacing": "log",
+    "parameter_type": "z",
+    "fit_constant": True,
+    "fit_proportional": True,
+}
+
+
 def vf_fit(f, z):
     """VectorFitting on the one-port Z; returns (model Z on f, model Z on a dense grid, poles).
 
@@ -144,14 +155,7 @@ def vf_fit(f, z):
     vf = VectorFitting(net)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        vf.vector_fit(
-            n_poles_real=3,
-            n_poles_cmplx=3,
-            init_pole_spacing="log",
-            parameter_type="z",
-            fit_constant=True,
-            fit_proportional=True,
-        )
+        vf.vector_fit(**VF_OPTIONS)
         zf = vf.get_model_response(0, 0, f)
         zd = vf.get_model_response(0, 0, dense_grid(f))
     return zf, zd, vf.poles

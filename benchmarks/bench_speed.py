@@ -59,7 +59,7 @@ REPO = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(REPO))
 sys.path.insert(0, str(REPO / "benchmarks"))
 
-from bench_fit import F_START, F_STOP, PARTS, family_fits, measure  # noqa: E402
+from bench_fit import F_START, F_STOP, PARTS, VF_OPTIONS, family_fits, measure  # noqa: E402
 
 from bench.touchstone import write_touchstone_s  # noqa: E402
 
@@ -122,7 +122,7 @@ def startup(repeats: int) -> None:
 #: (3 real and 3 complex pole pairs, log-spaced start, constant and proportional terms)
 #: on every point of the file. Executed in this process for part (a) and as a script of
 #: its own, with its imports, for part (b).
-VF_BATCH = textwrap.dedent(
+VF_BATCH = f"VF_OPTIONS = {VF_OPTIONS!r}\n" + textwrap.dedent(
     """
     import re, sys, warnings
     import numpy as np
@@ -141,14 +141,7 @@ VF_BATCH = textwrap.dedent(
             vf = VectorFitting(rf.Network(frequency=net.frequency, s=s11, z0=50.0))
             with warnings.catch_warnings():
                 warnings.simplefilter("ignore")
-                vf.vector_fit(
-                    n_poles_real=3,
-                    n_poles_cmplx=3,
-                    init_pole_spacing="log",
-                    parameter_type="z",
-                    fit_constant=True,
-                    fit_proportional=True,
-                )
+                vf.vector_fit(**VF_OPTIONS)
             poles.append(vf.poles)
         return poles
 
