@@ -74,9 +74,9 @@ def _early_task(step_ids: tuple[str, ...], shared: tuple[str, Plan]) -> tuple[by
 
 def _own_task(task: Task, shared: Any) -> tuple[bytes, Any]:
     """A worker's job for a sample the fit step hands out itself: its task's fit."""
-    from bench.procedure.processing import fit_sample
+    from bench.procedure.processing import fit_task
 
-    return task_digest(task), fit_sample(*task)
+    return task_digest(task), fit_task(task)
 
 
 def _outcome(future: Any) -> tuple[bytes, Any] | None:
@@ -126,16 +126,14 @@ class EarlyFits:
         this very task; a sample not handed out early is handed to the same workers now.
         Any other (an early fit of other input, a failed worker) is fitted again on up
         to ``jobs`` processes. The workers stop afterwards."""
-        from bench.parallel import ordered_map
-        from bench.procedure.processing import _fit_task
+        from bench import parallel
+        from bench.procedure.processing import fit_task
 
         if not self._futures:
-            return list(ordered_map(_fit_task, tasks, jobs))
+            return list(parallel.ordered_map(fit_task, tasks, jobs))
         results: list[Any] = [None] * len(tasks)
         again: list[int] = []
         try:
-            from bench import parallel
-
             futures = []
             key_early = []
             for key, task in zip(keys, tasks, strict=True):
@@ -156,7 +154,7 @@ class EarlyFits:
                     again.append(i)
         finally:
             self.cancel()
-        redone = ordered_map(_fit_task, [tasks[i] for i in again], jobs)
+        redone = parallel.ordered_map(fit_task, [tasks[i] for i in again], jobs)
         for i, result in zip(again, redone, strict=True):
             results[i] = result
         return results

@@ -136,7 +136,7 @@ def build_summary(
             keys = [tuple(step.id for step in steps) for steps in groups.values()]
             fits = early.fits(keys, tasks, jobs)
         else:
-            fits = ordered_map(_fit_task, tasks, jobs)
+            fits = ordered_map(fit_task, tasks, jobs)
         samples = [
             replace(
                 sample,
@@ -152,7 +152,7 @@ def build_summary(
         samples = one_family_per_lot(
             samples,
             [task for _, task in unfitted],
-            lambda tasks: ordered_map(_fit_task, tasks, jobs),
+            lambda tasks: ordered_map(fit_task, tasks, jobs),
         )
     loop_info = {
         str(pos): {
@@ -376,7 +376,7 @@ def _sample(
     return sample, (model, data, valid_above)
 
 
-def _fit_task(task: tuple[str, ImpedanceData, float]) -> tuple[Any, str | None]:
+def fit_task(task: tuple[str, ImpedanceData, float]) -> tuple[Any, str | None]:
     """:func:`fit_sample` of one (model, data, valid above) task: a worker's job."""
     return fit_sample(*task)
 

@@ -9,7 +9,7 @@ import numpy as np
 from bench import exports
 from bench.core.impedance import impedance_as_given
 from bench.procedure.lot_family import family_record, one_family_per_lot
-from bench.procedure.processing import _fit_task
+from bench.procedure.processing import fit_task
 from bench.results import PartSpec, RunSummary, SampleResult
 from bench.verdicts import landmark_sources, shown_landmarks
 
@@ -42,7 +42,7 @@ def _lot():
         noisy = z * (1 + 0.003 * (rng.standard_normal(F.size) + 1j * rng.standard_normal(F.size)))
         data = impedance_as_given(F, noisy, rel_uncertainty=np.full(F.size, 0.003))
         task = ("auto", data, 0.0)
-        fit, error = _fit_task(task)
+        fit, error = fit_task(task)
         assert error is None
         samples.append(SampleResult(part=SPEC.name, sample=name, data=data, fit=fit))
         tasks.append(task)
@@ -53,7 +53,7 @@ def test_a_mixed_lot_is_refitted_to_its_majority_family():
     samples, tasks = _lot()
     own = [s.fit.model for s in samples]
     assert own == ["two-branch", "two-branch", "series-rlc"], own  # the mixed lot
-    out = one_family_per_lot(samples, tasks, lambda jobs: map(_fit_task, jobs))
+    out = one_family_per_lot(samples, tasks, lambda jobs: map(fit_task, jobs))
     assert [s.fit.model for s in out] == ["two-branch"] * 3
     # The majority's own fits are kept as they were; the other is refitted.
     assert out[0] is samples[0] and out[1] is samples[1]
@@ -84,7 +84,7 @@ def test_a_tie_goes_to_the_lower_summed_criterion():
     # One two-branch and one series-rlc sample: each is refitted with the other's family;
     # series-rlc cannot follow the second branch, so its summed criterion is far higher.
     pair, pair_tasks = [samples[0], samples[2]], [tasks[0], tasks[2]]
-    out = one_family_per_lot(pair, pair_tasks, lambda jobs: map(_fit_task, jobs))
+    out = one_family_per_lot(pair, pair_tasks, lambda jobs: map(fit_task, jobs))
     assert [s.fit.model for s in out] == ["two-branch", "two-branch"]
     assert out[0] is pair[0] and out[1].own_family == "series-rlc"
     assert any("a tie (" in w and "summed criterion" in w for w in out[1].warnings)
