@@ -105,9 +105,13 @@ steps: [calibrate, mount_short, measure, fit, export, report]
 #: How far the total estimate may lie from the measured total of the demo-like run. The
 #: estimate times zbench's own work at the run's start; the machine's load can change
 #: during the run, and a run this short is mostly fixed costs (worker processes started,
-#: libraries imported) that vary with it. Measured on a busy two-core machine (load
-#: about 7): 12 % to 20 % under. The bound is set wider so the test holds under load.
-DEMO_LIKE_BOUND = 0.35
+#: libraries imported) that vary with it. Since the workers' server starts at the
+#: session's start and imports beside the sweeps, the estimate counts none of its start;
+#: in a run this short the fit step still waits for it and for each worker's first
+#: figure. Measured on a quiet two-core machine: 28 % to 33 % under (1.6-1.9 s against
+#: 2.3-2.6 s), and 44 % under with light other load. The bound holds the estimate to the
+#: right size, not to the second: a demo-length run is within 10 % (8.4 s against 8.2 s).
+DEMO_LIKE_BOUND = 0.5
 
 
 def test_the_estimate_of_a_demo_like_run_holds_its_processing(tmp_path):
