@@ -54,7 +54,14 @@ from bench.core.fit_result import (
     FitResult,
     ModelMismatchError,
 )
-from bench.core.fit_select import Trial, covariance, dropped_elements, lowest_bic, select
+from bench.core.fit_select import (
+    BIC_MARGIN,
+    Trial,
+    covariance,
+    dropped_elements,
+    lowest_bic,
+    select,
+)
 from bench.core.fit_solve import (
     Objective,
     SameValleyError,
@@ -369,9 +376,11 @@ def cannot_win(
     ``k·ln m`` (χ² ≥ 0). When the choice among ``trials`` so far
     (:func:`~bench.core.fit_select.lowest_bic` of the eligible) is supported, meets the
     quality bound, sees no more than ``k`` elements and has a criterion at or below
-    ``k·ln m``, the candidate can never replace it: ``lowest_bic`` takes a later trial
-    only with a lower criterion, an unsupported one is not eligible, and the fall-backs
-    for unsupported or poor choices are not reached.
+    ``k·ln m`` (``k·ln m`` + :data:`~bench.core.fit_select.BIC_MARGIN` when it sees fewer
+    than ``k``), the candidate can never replace it: ``lowest_bic`` takes a later trial
+    only with a lower criterion, lower by the margin when it has more elements (and any
+    trial that replaced the choice in between is lower still), an unsupported one is not
+    eligible, and the fall-backs for unsupported or poor choices are not reached.
     """
     names = family.element_names(order)
     if fewest is None or not trials or len(names) <= fewest:
@@ -379,12 +388,9 @@ def cannot_win(
     smallest = min(t.q.size for t in trials)
     best = lowest_bic([t for t in trials if t.supported or t.q.size == smallest])
     k = len(names) - len(set(names) & set(family.optional))
-    return (
-        best.supported
-        and best.rms <= quality_bound
-        and best.size <= k
-        and best.bic <= k * math.log(m)
-    )
+    # More elements than the choice must also clear lowest_bic's margin.
+    reach = k * math.log(m) + (BIC_MARGIN if best.size < k else 0.0)
+    return best.supported and best.rms <= quality_bound and best.size <= k and best.bic <= reach
 
 
 @dataclass
@@ -465,7 +471,7 @@ def _fit_family(
                 if again is not None and again.chi2 < lower.chi2:
                     out[-2] = again
             break
-        if trial.bic > best_bic:
+        if trial.bic > best_bic - BIC_MARGIN:
             break  # the criterion has turned; higher orders will not pay
         best_bic = min(best_bic, trial.bic)
         # Compared with fits of no more elements: a higher order of another family may
