@@ -184,26 +184,39 @@ class SoftL1:
 # earlier scout of the same candidate ended, at a cost within 1 % of that scout's, is in
 # its valley and would end there too: it stops and counts as that scout.
 SAME_VALLEY_LOG = 0.03
+# So is a scout whose model comes within this fraction of each point's uncertainty (a
+# residual) of that end's model at every point of the grid, at a cost within 1 %: the
+# data cannot tell the two apart. It is the same circuit with its like sections in
+# another order, or with an element the data do not see elsewhere.
+SAME_VALLEY_RESIDUAL = 0.1
 
 
 class SameValleyError(Exception):
-    """Raised by :func:`same_valley_watch`: the scout reached ``end`` (cost, log values),
-    where an earlier scout ended."""
+    """Raised by :func:`same_valley_watch`: the scout reached ``end`` (one of the ends
+    it was given), where an earlier scout ended."""
 
-    def __init__(self, end: tuple[float, NDArray[np.float64]]):
+    def __init__(self, end: tuple):
         super().__init__()
         self.end = end
 
 
-def same_valley_watch(ends: list[tuple[float, NDArray[np.float64]]]):
-    """A ``watch`` for :func:`solve` that stops a scout at the end of an earlier one."""
+def same_valley_watch(ends: list[tuple]):
+    """A ``watch`` for :func:`solve` that stops a scout at the end of an earlier one.
+
+    ``ends`` are ``(cost, log values)`` or ``(cost, log values, residuals)``: with the
+    residuals at that end, a scout whose own differ from them by less than
+    :data:`SAME_VALLEY_RESIDUAL` everywhere is there too, whatever its values."""
     if not ends:
         return None
 
     def watch(q, r):
         cost = float(np.dot(r, r))
         for end in ends:
-            if abs(cost - end[0]) <= 0.01 * end[0] and np.max(np.abs(q - end[1])) < SAME_VALLEY_LOG:
+            if abs(cost - end[0]) > 0.01 * end[0]:
+                continue
+            if np.max(np.abs(q - end[1])) < SAME_VALLEY_LOG or (
+                len(end) > 2 and np.max(np.abs(r - end[2])) < SAME_VALLEY_RESIDUAL
+            ):
                 raise SameValleyError(end)
 
     return watch

@@ -187,6 +187,11 @@ def _fit_order(
     scouts: list[tuple[float, NDArray[np.float64]]] = []
     grid = hash((coarse.inv_z.tobytes(), coarse.weight.tobytes(), node))
     seen = [(cost, q) for key, cost, q in known if key == grid]
+    # Where the scouts so far ended (the same-valley watch's view): an earlier fit's
+    # valleys by their values alone (a restart is made to find a better valley beside
+    # one, which a model as close to it as the data tell may still be heading for), this
+    # fit's scouts with their residuals too.
+    ends: list[tuple] = list(seen)
     if starts is None:
         starts = family.starts(order, f, z, landmarks, previous)
     tried: list[NDArray[np.float64]] = []
@@ -208,15 +213,19 @@ def _fit_order(
                 hi,
                 20 * (k + 1),
                 SCOUT_TOLERANCE,
-                same_valley_watch([*seen, *scouts]),
+                same_valley_watch(ends),
             )
         except SameValleyError as same:
             if any(same.end is end for end in seen):
                 continue  # a valley the earlier fit refined
-            result = same.end
+            scouts.append(same.end[:2])
+            continue
         if not np.isfinite(result[0]):
             continue
         scouts.append(result)
+        with np.errstate(all="ignore"):
+            # The residuals of the solve's last evaluation (the objective keeps them).
+            ends.append((*result, coarse.residuals(result[1]).copy()))
     if not scouts and seen:
         return None
     if not scouts:
