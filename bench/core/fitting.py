@@ -110,6 +110,11 @@ SCOUT_TOLERANCE = 1e-5
 REFINE_TOLERANCE = 1e-6
 # A family whose fit leaves this many times the best χ² so far gets no higher orders.
 HOPELESS_FACTOR = 10.0
+# A family's climb ends at an order that lowers its criterion by no more than this: the
+# margin the selection asks of a larger candidate (fit_select.lowest_bic): the order could
+# not be chosen over the one below, and higher orders are taken not to pay either, as
+# after an order whose criterion rises (tests/core/test_fit_shortcuts.py checks the choice).
+CLIMB_MARGIN = BIC_MARGIN
 # An element within this distance (natural log) of a bound is pinned at it.
 PINNED_LOG = 1e-3
 
@@ -480,7 +485,7 @@ def _fit_family(
                 if again is not None and again.chi2 < lower.chi2:
                     out[-2] = again
             break
-        if trial.bic > best_bic - BIC_MARGIN:
+        if trial.bic > best_bic - CLIMB_MARGIN:
             break  # the criterion has turned; higher orders will not pay
         best_bic = min(best_bic, trial.bic)
         # Compared with fits of no more elements: a higher order of another family may

@@ -1,0 +1,133 @@
+"""Work the fit leaves out, and that it must never change what is chosen.
+
+Two shortcuts of ``bench.core.fitting`` are checked here against the fit without them,
+on the invented parts of ``test_fit_pruning`` (shunt-through with seeded noise), plus an
+inductor with core loss and a winding capacitance, whose R-L sections stop paying
+gradually:
+
+- the order climb ends at an order that lowers the criterion by less than the
+  selection's margin (``CLIMB_MARGIN``, the margin ``lowest_bic`` asks of a larger
+  candidate);
+- a scout stops where its model comes within a tenth of each point's uncertainty of an
+  earlier scout's end at the same cost (``fit_solve.SAME_VALLEY_RESIDUAL``): the same
+  circuit with its like sections in another order, or with an element the data do not
+  see elsewhere.
+
+Each shortcut must be seen to act (something left out), or the check would hold
+trivially.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from bench.core import fit_solve, fitting
+from bench.core.fit_solve import SameValleyError, same_valley_watch
+from simulated_instruments.parts import PowerInductor
+from tests.core.test_fit_pruning import PARTS, fitted
+
+CASES = {
+    **PARTS,
+    "lossy inductor": (
+        PowerInductor(
+            name="PL1U",
+            inductance=1e-6,
+            r_dc=8e-3,
+            core_loss_resistance=150.0,
+            winding_capacitance=10e-12,
+        ),
+        450.0,
+    ),
+}
+
+
+def same_choice(a, b) -> None:
+    assert (a.model, a.order) == (b.model, b.order)
+    assert a.quality.rms_log_error == pytest.approx(b.quality.rms_log_error, rel=1e-3)
+    for key, value in b.landmarks.items():
+        if value is not None:
+            assert a.landmarks[key] == pytest.approx(value, rel=0.01), key
+
+
+@pytest.mark.parametrize("name", sorted(CASES))
+def test_climb_margin_never_changes_the_choice(name, monkeypatch):
+    part, series_r = CASES[name]
+    shortened = fitted(part, series_r, 1)
+    monkeypatch.setattr(fitting, "CLIMB_MARGIN", -np.inf)  # every order while it pays
+    full = fitted(part, series_r, 1)
+    same_choice(shortened, full)
+    assert {(c.model, c.order) for c in shortened.candidates} <= {
+        (c.model, c.order) for c in full.candidates
+    }
+
+
+def test_climb_margin_leaves_an_order_out(monkeypatch):
+    part, series_r = CASES["lossy inductor"]
+    shortened = fitted(part, series_r, 1)
+    monkeypatch.setattr(fitting, "CLIMB_MARGIN", -np.inf)
+    full = fitted(part, series_r, 1)
+    assert len(full.candidates) > len(shortened.candidates)
+
+
+class CountingWatch:
+    """``same_valley_watch`` counting the scouts it stops."""
+
+    def __init__(self) -> None:
+        self.stopped = 0
+
+    def __call__(self, ends):
+        watch = same_valley_watch(ends)
+        if watch is None:
+            return None
+
+        def counted(q, r):
+            try:
+                watch(q, r)
+            except SameValleyError:
+                self.stopped += 1
+                raise
+
+        return counted
+
+
+@pytest.mark.parametrize("name", sorted(CASES))
+def test_same_valley_by_residuals_never_changes_the_choice(name, monkeypatch):
+    part, series_r = CASES[name]
+    by_model = fitted(part, series_r, 2)
+    monkeypatch.setattr(fit_solve, "SAME_VALLEY_RESIDUAL", 0.0)  # by the values alone
+    by_values = fitted(part, series_r, 2)
+    same_choice(by_model, by_values)
+
+
+def test_same_valley_by_residuals_stops_more_scouts(monkeypatch):
+    counts = []
+    for residual in (fit_solve.SAME_VALLEY_RESIDUAL, 0.0):
+        watch = CountingWatch()
+        with monkeypatch.context() as m:
+            m.setattr(fit_solve, "SAME_VALLEY_RESIDUAL", residual)
+            m.setattr(fitting, "same_valley_watch", watch)
+            for part, series_r in CASES.values():
+                fitted(part, series_r, 2)
+        counts.append(watch.stopped)
+    assert counts[0] > counts[1]
+
+
+def test_watch_takes_like_sections_in_another_order_as_the_same_valley():
+    # Two end points of one circuit with its two sections swapped: far apart in values,
+    # identical in the model, so their residuals are too.
+    r_end = np.array([0.3, -0.2, 0.1, 0.05])
+    end = (float(r_end @ r_end), np.log([1.0, 2.0, 3.0, 4.0]), r_end)
+    watch = same_valley_watch([end])
+    swapped = np.log([3.0, 4.0, 1.0, 2.0])
+    with pytest.raises(SameValleyError) as stop:
+        watch(swapped, r_end * 1.004)  # cost 0.8 % up, every residual within 0.002
+    assert stop.value.end is end
+    # The same cost with one residual 0.2 away (over a tenth of an uncertainty): another
+    # model, the scout goes on.
+    watch(swapped, r_end * np.array([1.0, 1.0, -1.0, 1.0]))
+    # Values alone: an end given without residuals is only met at its values.
+    by_values = same_valley_watch([end[:2]])
+    by_values(swapped, r_end)
+    with pytest.raises(SameValleyError):
+        by_values(end[1] + 0.01, r_end)
