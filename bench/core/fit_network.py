@@ -14,10 +14,12 @@ evaluated by the general tree walk (``impedance_and_jacobian``). No I/O.
 
 from __future__ import annotations
 
+import functools
 import math
 import threading
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -76,6 +78,95 @@ def _group(node: Series | Parallel, start: int) -> _Group:
     return _Group(isinstance(node, Parallel), start, row, runs, groups)
 
 
+def _walk_source(root: _Group) -> str:
+    """Python source of the two walks of the tree ``root`` for :func:`_walkers`, one
+    statement per group (children in the order the tree gives them).
+
+    ``impedance(ze, inv, zg)`` fills ``zg[i]`` with the impedance of group ``i`` (groups
+    numbered in pre-order, the root 0) from the element impedances ``ze`` (rows), and
+    ``inv[k]`` with the inverses of the ``k``-th run of elements directly in a parallel
+    group, and returns the root's. ``factors(jac, inv, zg)`` multiplies the rows of each
+    element, in place, by ``(Z_P/Z_c)²`` for every parallel group ``P`` above it (``c``
+    its child holding the element)."""
+    number: dict[int, int] = {}
+
+    def visit(g: _Group) -> None:
+        number[id(g)] = len(number)
+        for child in g.groups:
+            visit(child)
+
+    visit(root)
+    z_lines: list[str] = []
+    f_lines: list[str] = []
+    runs: dict[tuple[int, int], int] = {}  # parallel runs of elements, numbered
+
+    def emit(g: _Group) -> None:
+        i = number[id(g)]
+        for child in g.groups:
+            emit(child)
+        kids = [f"zg[{number[id(c)]}]" for c in g.groups]
+        if g.parallel:
+            terms = []
+            for s, e in g.runs:
+                k = runs[s, e] = len(runs)
+                z_lines.append(f"    inv[{k}] = 1.0 / ze[{s}:{e}]")
+                terms += [f"inv[{k}][{r}]" for r in range(e - s)]
+            terms += [f"1.0 / {kid}" for kid in kids]
+            z_lines.append(f"    zg[{i}] = 1.0 / ({' + '.join(terms)})")
+        else:
+            terms = [f"ze[{r}]" for s, e in g.runs for r in range(s, e)] + kids
+            z_lines.append(f"    zg[{i}] = {' + '.join(terms)}")
+
+    def factor(g: _Group) -> None:
+        i = number[id(g)]
+        if g.parallel:
+            for s, e in g.runs:
+                f_lines.append(f"    r = zg[{i}] * inv[{runs[s, e]}]")
+                f_lines.append(f"    jac[{s}:{e}] *= r * r")
+            for child in g.groups:
+                f_lines.append(f"    r = zg[{i}] / zg[{number[id(child)]}]")
+                f_lines.append(f"    jac[{child.start}:{child.stop}] *= r * r")
+        for child in g.groups:
+            factor(child)
+
+    emit(root)
+    factor(root)
+    return "\n".join(
+        [
+            "def impedance(ze, inv, zg):",
+            *z_lines,
+            "    return zg[0]",
+            "",
+            "def factors(jac, inv, zg):",
+            *(f_lines or ["    pass"]),
+        ]
+    )
+
+
+@functools.lru_cache(maxsize=128)
+def _walkers(
+    node: Series | Parallel,
+) -> tuple[Callable[..., Any], Callable[..., Any], int, int]:
+    """``(impedance, factors, groups, runs)`` of :func:`_walk_source` for ``node``'s tree
+    (``groups`` and ``runs`` the sizes of its ``zg`` and ``inv``), made
+    once per circuit: straight-line statements, without the loops, recursion and lookups
+    a walk of the tree pays at every step (about half a small circuit's evaluation)."""
+    root = _group(node, 0)
+    namespace: dict[str, Any] = {}
+    exec(compile(_walk_source(root), f"<walk of {type(node).__name__}>", "exec"), namespace)
+    count = [0, 0]
+
+    def visit(g: _Group) -> None:
+        count[0] += 1
+        if g.parallel:
+            count[1] += len(g.runs)
+        for child in g.groups:
+            visit(child)
+
+    visit(root)
+    return namespace["impedance"], namespace["factors"], count[0], count[1]
+
+
 class CompiledNetwork:
     """``node`` on the grid ``f`` (Hz): ``impedance(q)`` and ``jacobian(q)`` for the log
     element values ``q`` in :attr:`names` order; ``jacobian`` gives ``dZ/dq`` of shape
@@ -113,7 +204,7 @@ class CompiledNetwork:
                 self._q_slots.append((i, rows[i], e.band, branch, jw))
         self._k_slots = [(i, rows[i], e.band, jw) for i, e in enumerate(elements) if e.kind == "K"]
         self._n_elements = len(elements)
-        self._root = None if isinstance(node, Element) else _group(node, 0)
+        self._walk = None if isinstance(node, Element) else _walkers(node)
 
     def _values(self, q: NDArray[np.float64]) -> dict[str, float]:
         return dict(zip(self.names, np.exp(q), strict=True))
@@ -146,9 +237,12 @@ class CompiledNetwork:
                     ze[i] = math.exp(q[row]) * shape
                     self._slope_terms[i] = (shape, terms)
             self._ze = ze
-            self._inv: dict[int, NDArray[np.complex128]] = {}
-            self._zg: dict[int, NDArray[np.complex128]] = {}
-            self._z = ze[0] if self._root is None else self._group_z(self._root)
+            if self._walk is None:
+                self._z = ze[0]
+            else:
+                self._inv: list[Any] = [None] * self._walk[3]
+                self._zg: list[Any] = [None] * self._walk[2]
+                self._z = self._walk[0](ze, self._inv, self._zg)
             self._jac = None
         self._key = key
         return self._z
@@ -160,12 +254,12 @@ class CompiledNetwork:
             return self._jac
         if not self._q_slots and not self._k_slots:
             jac = self._sign[:, None] * self._ze
-            if self._root is not None:
-                self._apply_factors(self._root, jac)
+            if self._walk is not None:
+                self._walk[1](jac, self._inv, self._zg)
         else:
             factor = np.ones((self._n_elements, self.f.size), dtype=complex)
-            if self._root is not None:
-                self._apply_factors(self._root, factor)
+            if self._walk is not None:
+                self._walk[1](factor, self._inv, self._zg)
             dz = self._ze * factor  # dZ/d ln(element impedance), per element
             jac = np.empty((len(self.names), self.f.size), dtype=complex)
             jac[self._power_rows] = self._sign[:, None] * dz[self._power]
@@ -182,43 +276,6 @@ class CompiledNetwork:
                 jac[row + 1] = dz[i] * (conductor_slope(terms) / shape)
         self._jac = jac
         return jac
-
-    def _group_z(self, g: _Group) -> NDArray[np.complex128]:
-        ze = self._ze
-        if not g.parallel:
-            total = None
-            for s, e in g.runs:
-                part = ze[s] if e - s == 1 else ze[s:e].sum(axis=0)
-                total = part if total is None else total + part
-            for child in g.groups:
-                zc = self._group_z(child)
-                total = zc if total is None else total + zc
-            z = total
-        else:
-            y = None
-            for s, e in g.runs:
-                inv = 1.0 / ze[s:e]
-                self._inv[s] = inv
-                part = inv[0] if e - s == 1 else inv.sum(axis=0)
-                y = part if y is None else y + part
-            for child in g.groups:
-                part = 1.0 / self._group_z(child)
-                y = part if y is None else y + part
-            z = 1.0 / y
-        self._zg[id(g)] = z
-        return z
-
-    def _apply_factors(self, g: _Group, jac: NDArray[np.complex128]) -> None:
-        if g.parallel:
-            z = self._zg[id(g)]
-            for s, e in g.runs:
-                ratio = z * self._inv[s]
-                jac[s:e] *= ratio * ratio
-            for child in g.groups:
-                ratio = z / self._zg[id(child)]
-                jac[child.start : child.stop] *= ratio * ratio
-        for child in g.groups:
-            self._apply_factors(child, jac)
 
 
 # Networks compiled in this thread, by circuit and grid: a fit compiles the same circuit
