@@ -8,12 +8,19 @@ test). Both give a :class:`simulated_instruments.server.RunningBench`: use its
 
 from __future__ import annotations
 
+import os
 from collections.abc import Callable, Iterator
 from typing import Any
 
 import pytest
 
-from simulated_instruments.server import RunningBench, start_bench
+# One BLAS thread in the tests and the commands they start, as the command line sets
+# for itself (bench/cli.py): before numpy loads, which the import below does. A fit's
+# matrices are small; a second BLAS thread only spins on a core the suite could use.
+for _name in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
+    os.environ.setdefault(_name, "1")
+
+from simulated_instruments.server import RunningBench, start_bench  # noqa: E402
 
 SIM_TIME_SCALE = 0.001
 SIM_SEED = 1
