@@ -78,16 +78,46 @@ def _group(node: Series | Parallel, start: int) -> _Group:
     return _Group(isinstance(node, Parallel), start, row, runs, groups)
 
 
-def _walk_source(root: _Group) -> str:
+def _is_pair(g: _Group) -> bool:
+    """A parallel group of two elements and nothing else (an R‖L or R‖C section)."""
+    return g.parallel and not g.groups and g.runs == [(g.start, g.start + 2)]
+
+
+def _blocks(g: _Group) -> list[list[_Group]]:
+    """The children of the series group ``g`` in order, consecutive pairs
+    (:func:`_is_pair`) in one block, every other child alone."""
+    out: list[list[_Group]] = []
+    for child in g.groups:
+        if (
+            not g.parallel
+            and _is_pair(child)
+            and out
+            and _is_pair(out[-1][-1])
+            and out[-1][-1].stop == child.start
+        ):
+            out[-1].append(child)
+        else:
+            out.append([child])
+    return out
+
+
+def _walk_source(root: _Group) -> tuple[str, int, int]:
     """Python source of the two walks of the tree ``root`` for :func:`_walkers`, one
-    statement per group (children in the order the tree gives them).
+    statement per group (children in the order the tree gives them), with the sizes of
+    the lists ``zg`` and ``inv`` they fill.
 
     ``impedance(ze, inv, zg)`` fills ``zg[i]`` with the impedance of group ``i`` (groups
     numbered in pre-order, the root 0) from the element impedances ``ze`` (rows), and
-    ``inv[k]`` with the inverses of the ``k``-th run of elements directly in a parallel
-    group, and returns the root's. ``factors(jac, inv, zg)`` multiplies the rows of each
-    element, in place, by ``(Z_P/Z_c)²`` for every parallel group ``P`` above it (``c``
-    its child holding the element)."""
+    ``inv`` with the inverses of the runs of elements directly in a parallel group, and
+    returns the root's. ``factors(jac, inv, zg)`` multiplies the rows of each element,
+    in place, by ``(Z_P/Z_c)²`` for every parallel group ``P`` above it (``c`` its child
+    holding the element).
+
+    Consecutive two-element sections of a series group (a ladder's, an inductor's or a
+    bead's R‖L and R‖C sections, :func:`_blocks`) are walked together: one inverse of all
+    their rows, one sum of each section's two rows and one inverse of the sums, their
+    factors in one product; the same operations on every point in the same order, so the
+    same values, at a few array operations per block instead of per section."""
     number: dict[int, int] = {}
 
     def visit(g: _Group) -> None:
@@ -98,17 +128,31 @@ def _walk_source(root: _Group) -> str:
     visit(root)
     z_lines: list[str] = []
     f_lines: list[str] = []
-    runs: dict[tuple[int, int], int] = {}  # parallel runs of elements, numbered
+    slots: dict[tuple[int, int], int] = {}  # inverses kept for the factors, by rows
+    sections: dict[int, tuple[int, int, int, int, int]] = {}  # a block's, by its first
+
+    def slot(key: tuple[int, int]) -> int:
+        slots[key] = len(slots)
+        return slots[key]
 
     def emit(g: _Group) -> None:
         i = number[id(g)]
-        for child in g.groups:
-            emit(child)
+        for block in _blocks(g):
+            if len(block) == 1:
+                emit(block[0])
+                continue
+            s, e = block[0].start, block[-1].stop
+            rows, sums = slot((s, e)), slot((e, s))
+            sections[id(block[0])] = (s, e, len(block), rows, sums)
+            z_lines.append(f"    inv[{rows}] = 1.0 / ze[{s}:{e}]")
+            z_lines.append(f"    inv[{sums}] = 1.0 / (inv[{rows}][0::2] + inv[{rows}][1::2])")
+            kids = ", ".join(f"zg[{number[id(c)]}]" for c in block)
+            z_lines.append(f"    {kids} = inv[{sums}]")
         kids = [f"zg[{number[id(c)]}]" for c in g.groups]
         if g.parallel:
             terms = []
             for s, e in g.runs:
-                k = runs[s, e] = len(runs)
+                k = slot((s, e))
                 z_lines.append(f"    inv[{k}] = 1.0 / ze[{s}:{e}]")
                 terms += [f"inv[{k}][{r}]" for r in range(e - s)]
             terms += [f"1.0 / {kid}" for kid in kids]
@@ -121,17 +165,22 @@ def _walk_source(root: _Group) -> str:
         i = number[id(g)]
         if g.parallel:
             for s, e in g.runs:
-                f_lines.append(f"    r = zg[{i}] * inv[{runs[s, e]}]")
+                f_lines.append(f"    r = zg[{i}] * inv[{slots[s, e]}]")
                 f_lines.append(f"    jac[{s}:{e}] *= r * r")
             for child in g.groups:
                 f_lines.append(f"    r = zg[{i}] / zg[{number[id(child)]}]")
                 f_lines.append(f"    jac[{child.start}:{child.stop}] *= r * r")
-        for child in g.groups:
-            factor(child)
+        for block in _blocks(g):
+            if len(block) == 1:
+                factor(block[0])
+                continue
+            s, e, k, rows, sums = sections[id(block[0])]
+            f_lines.append(f"    r = inv[{sums}][:, None] * inv[{rows}].reshape({k}, 2, -1)")
+            f_lines.append(f"    jac[{s}:{e}].reshape({k}, 2, -1)[...] *= r * r")
 
     emit(root)
     factor(root)
-    return "\n".join(
+    source = "\n".join(
         [
             "def impedance(ze, inv, zg):",
             *z_lines,
@@ -141,30 +190,21 @@ def _walk_source(root: _Group) -> str:
             *(f_lines or ["    pass"]),
         ]
     )
+    return source, len(number), len(slots)
 
 
 @functools.lru_cache(maxsize=128)
 def _walkers(
     node: Series | Parallel,
 ) -> tuple[Callable[..., Any], Callable[..., Any], int, int]:
-    """``(impedance, factors, groups, runs)`` of :func:`_walk_source` for ``node``'s tree
-    (``groups`` and ``runs`` the sizes of its ``zg`` and ``inv``), made
-    once per circuit: straight-line statements, without the loops, recursion and lookups
-    a walk of the tree pays at every step (about half a small circuit's evaluation)."""
-    root = _group(node, 0)
+    """``(impedance, factors, groups, slots)`` of :func:`_walk_source` for ``node``'s tree
+    (``groups`` and ``slots`` the sizes of its ``zg`` and ``inv``), made once per
+    circuit: straight-line statements, without the loops, recursion and lookups a walk
+    of the tree pays at every step (about half a small circuit's evaluation)."""
+    source, groups, slots = _walk_source(_group(node, 0))
     namespace: dict[str, Any] = {}
-    exec(compile(_walk_source(root), f"<walk of {type(node).__name__}>", "exec"), namespace)
-    count = [0, 0]
-
-    def visit(g: _Group) -> None:
-        count[0] += 1
-        if g.parallel:
-            count[1] += len(g.runs)
-        for child in g.groups:
-            visit(child)
-
-    visit(root)
-    return namespace["impedance"], namespace["factors"], count[0], count[1]
+    exec(compile(source, f"<walk of {type(node).__name__}>", "exec"), namespace)
+    return namespace["impedance"], namespace["factors"], groups, slots
 
 
 class CompiledNetwork:

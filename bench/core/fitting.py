@@ -772,7 +772,7 @@ def fit_impedance(
             Candidate(t.family.name, t.order, float(t.bic), t.rms, t.supported) for t in trials
         ),
         excluded=excluded,
-        point_status=tuple(str(x) for x in status),
+        point_status=tuple(status.tolist()),  # already str (an object array of them)
         circuit=best.node,
         dropped=best.dropped,
     )
