@@ -220,3 +220,32 @@ def same_valley_watch(ends: list[tuple]):
                 raise SameValleyError(end)
 
     return watch
+
+
+class _Line:
+    """Residuals ``a·x − b`` of one value ``x = |u|·size`` (never negative, yet free to
+    leave 0) and their Jacobian row in ``u``, as :func:`solve` takes them."""
+
+    def __init__(self, a, b, size: float):
+        self.a, self.b, self.size = a, b, size
+        self.n = a.size
+
+    def residuals(self, u):
+        return self.a * (abs(float(u[0])) * self.size) - self.b
+
+    def jacobian_rows(self, u):
+        sign = -1.0 if u[0] < 0 else 1.0
+        return (self.a * (sign * self.size))[None, :]
+
+
+def soft_l1_nonnegative(a, b, start: float, size: float) -> float:
+    """The ``x ≥ 0`` that minimises ``Σ ρ((a·x − b)²)`` with the soft-L1 loss
+    ``ρ(z) = 2(√(1 + z) − 1)`` (unit scale: ``a`` and ``b`` in units of the noise), by
+    MINPACK from ``start``, with steps in units of ``size`` (> 0). The cost is convex in
+    ``x``, so the start only sets how many steps it takes."""
+    a = np.asarray(a, dtype=float)
+    b = np.asarray(b, dtype=float)
+    line = _Line(a, b, size)
+    inf = np.array([np.inf])
+    _, u = solve(SoftL1(line, 1.0), np.array([start / size]), -inf, inf, 200, 1e-12)
+    return abs(float(u[0])) * size

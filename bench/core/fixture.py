@@ -19,6 +19,8 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from bench.core.fit_solve import soft_l1_nonnegative
+
 TWO_PI = 2.0 * math.pi
 
 
@@ -68,19 +70,13 @@ def fit_mount(f: ArrayLike, z_short: ArrayLike, valid: ArrayLike | None = None) 
         )
     ff, zz = ff[use], zz[use]
     omega = TWO_PI * ff
-    from scipy.optimize import least_squares  # here: a plain fit never loads scipy.optimize
 
     def robust_location(values: NDArray[np.float64], weights: NDArray[np.float64]) -> float:
         # Minimise sum rho(w·(v − x)/s) for x >= 0, starting from the weighted median.
         start = max(float(np.median(values)), 0.0)
         scale = _robust_scale(weights * (values - start))
-        result = least_squares(
-            lambda x: weights * (values - x[0]) / scale,
-            x0=[start],
-            bounds=([0.0], [np.inf]),
-            loss="soft_l1",
-        )
-        return max(float(result.x[0]), 0.0)
+        size = max(start, float(np.median(np.abs(values))), 1e-300)
+        return soft_l1_nonnegative(weights / scale, weights * values / scale, start, size)
 
     r = robust_location(zz.real, np.ones_like(ff))
     # Im Z / ω with weight ω: the same as fitting Im Z = ω·L in ohms.
@@ -193,16 +189,7 @@ def _robust_linear(
     norm = float(np.dot(a, a))
     start = max(float(np.dot(a, b)) / norm, 0.0)
     sigma_p = 1.0 / math.sqrt(norm)
-    from scipy.optimize import least_squares  # here: a plain fit never loads scipy.optimize
-
-    result = least_squares(
-        lambda p: a * p[0] - b,
-        x0=[start],
-        bounds=([0.0], [np.inf]),
-        loss="soft_l1",
-        x_scale=[max(abs(start), sigma_p)],
-    )
-    p = max(float(result.x[0]), 0.0)
+    p = soft_l1_nonnegative(a, b, start, max(abs(start), sigma_p))
     residual = a * p - b
     dof = max(residual.size - 1, 1)
     spread = math.sqrt(float(np.dot(residual, residual)) / dof)

@@ -20,8 +20,8 @@ from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
-from scipy.optimize import least_squares
 
+from bench.core.fit_solve import SoftL1, solve
 from bench.units import format_si
 
 TWO_PI = 2.0 * math.pi
@@ -96,6 +96,44 @@ def _model(p: NDArray[np.float64], f: NDArray[np.float64]) -> NDArray[np.complex
     return rm + 1j * TWO_PI * f * lm + r0 / (1.0 + 1j * f / 10.0**log_fc)
 
 
+class _LoopResiduals:
+    """Residuals (real and imaginary parts over the noise ``scale``) of the mount and
+    loop model, and their Jacobian rows, as :func:`bench.core.fit_solve.solve` takes them.
+
+    The parameters are divided by ``size`` (alike steps in every direction), and the
+    three that cannot be negative (``Rm``, ``Lm``, ``R0``) are taken as their absolute
+    values: a term may reach 0 and leave it again, where a bound would hold it there."""
+
+    def __init__(self, f, z, scale: float, size: NDArray[np.float64]):
+        self.f, self.z, self.scale, self.size = f, z, scale, size
+        self.n = f.size
+        self._jw = 1j * TWO_PI * f
+
+    def values(self, x: NDArray[np.float64]) -> NDArray[np.float64]:
+        """``(Rm, Lm, R0, log10 fc)`` at ``x``."""
+        return np.concatenate([np.abs(x[:3]), x[3:]]) * self.size
+
+    def residuals(self, x: NDArray[np.float64]) -> NDArray[np.float64]:
+        d = _model(self.values(x), self.f) - self.z
+        return np.concatenate([d.real, d.imag]) / self.scale
+
+    def jacobian_rows(self, x: NDArray[np.float64]) -> NDArray[np.float64]:
+        # Analytic derivatives of the model (a fifth of the cost of finite differences).
+        _, _, r0, log_fc = self.values(x)
+        g = 1.0 + 1j * self.f / 10.0**log_fc
+        rows = np.stack(
+            (
+                np.ones_like(self._jw),
+                self._jw,
+                1.0 / g,
+                r0 * 1j * self.f * math.log(10.0) / 10.0**log_fc / g**2,
+            )
+        )
+        sign = np.where(x[:3] < 0, -1.0, 1.0)
+        rows *= (np.concatenate([sign, [1.0]]) * self.size)[:, None]
+        return np.concatenate([rows.real, rows.imag], axis=1) / self.scale
+
+
 def check_ground_loop(
     f: ArrayLike,
     z_short: ArrayLike,
@@ -144,48 +182,46 @@ def check_ground_loop(
     r00 = max(float(np.median(zu.real[:3])) - rm0, 0.0)
     lo_fc, hi_fc = math.log10(fu[0]) - 1.5, math.log10(fu[-1])
 
-    def residual(p: NDArray[np.float64]) -> NDArray[np.float64]:
-        d = _model(p, fu) - zu
-        return np.concatenate([d.real, d.imag]) / scale
-
-    def jacobian(p: NDArray[np.float64]) -> NDArray[np.float64]:
-        # Analytic derivatives of the model (a fifth of the cost of finite differences).
-        r0, log_fc = p[2], p[3]
-        g = 1.0 + 1j * fu / 10.0**log_fc
-        cols = (
-            np.ones_like(fu, dtype=complex),
-            1j * TWO_PI * fu,
-            1.0 / g,
-            r0 * 1j * fu * math.log(10.0) / 10.0**log_fc / g**2,
-        )
-        jac = np.stack(cols, axis=1)
-        return np.concatenate([jac.real, jac.imag]) / scale
-
-    best = None
+    # Solved in parameters divided by their sizes (the scale of the mount and loop terms,
+    # a decade for the corner), with the soft-L1 loss of unit scale on residuals in units
+    # of the noise: the points a glitch or a resonance of the mount moves weigh less.
+    size = np.array([max(rm0, scale), max(lm0, 1e-15), max(r00, scale), 1.0])
+    loop = _LoopResiduals(fu, zu, scale, size)
+    robust = SoftL1(loop, 1.0)
+    lo = np.array([-np.inf, -np.inf, -np.inf, lo_fc])
+    hi = np.array([np.inf, np.inf, np.inf, hi_fc])
+    best: tuple[float, NDArray[np.float64]] | None = None
     for log_fc0 in np.linspace(lo_fc + 0.25, hi_fc - 0.25, 6):
-        result = least_squares(
-            residual,
-            x0=[rm0, lm0, r00, log_fc0],
-            jac=jacobian,
-            bounds=([0.0, 0.0, 0.0, lo_fc], [np.inf, np.inf, np.inf, hi_fc]),
-            x_scale=[max(rm0, scale), max(lm0, 1e-15), max(r00, scale), 1.0],
-            loss="soft_l1",
+        x0 = np.array([rm0, lm0, r00, log_fc0]) / size
+        cost, x = solve(robust, x0, lo, hi, 1000)
+        if np.isfinite(cost) and (best is None or cost < best[0]):
+            best = (cost, x)
+    if best is None:
+        return GroundLoopCheck(
+            detected=False,
+            excess_r_dc=0.0,
+            corner_hz=float("nan"),
+            valid_above_hz=f_low,
+            checked=False,
+            message="ground loop not checked: the mount short's points gave no finite fit",
         )
-        if best is None or result.cost < best.cost:
-            best = result
-    assert best is not None
-    rm, lm, r0, log_fc = (float(v) for v in best.x)
+    rm, lm, r0, log_fc = (float(v) for v in loop.values(best[1]))
     fc = 10.0**log_fc
+    # The residuals at the solution, and the Jacobian in the physical parameters with
+    # each point weighed as the soft-L1 loss's Gauss-Newton Hessian weighs it,
+    # √(ρ' + 2ρ''·r²) = (1 + r²)^(−3/4) for ρ(z) = 2(√(1 + z) − 1), z = r² [derived].
+    fun = loop.residuals(best[1])
+    jac = (loop.jacobian_rows(best[1]) * (1.0 + fun**2) ** -0.75).T / size
     # Standard error of R0 from the Jacobian, with the residual scale of the fit itself.
     dof = max(2 * fu.size - 4, 1)
-    s2 = float(np.sum(best.fun**2)) / dof
+    s2 = float(np.sum(fun**2)) / dof
     try:
-        cov = np.linalg.pinv(best.jac.T @ best.jac) * s2
+        cov = np.linalg.pinv(jac.T @ jac) * s2
         sigma_r0 = math.sqrt(max(float(cov[2, 2]), 0.0))
     except np.linalg.LinAlgError:
         sigma_r0 = float("inf")
-    # The robust loss reshapes the Jacobian scipy returns, and with the mount terms at
-    # their bound of 0 its covariance can claim a precision the data do not have (a
+    # The robust loss reshapes the Jacobian, and with the mount terms at
+    # 0 its covariance can claim a precision the data do not have (a
     # short buried 20 dB under the noise behind series resistors read as a "loop" of a
     # few mΩ at 5000 σ). The loop term alone, fitted linearly to points of noise
     # ``scale`` per component, cannot be known better than scale/sqrt(Σ|g|²) with

@@ -91,3 +91,55 @@ def test_sweep_starting_too_high_is_not_checked() -> None:
     assert not result.detected
     assert not result.checked
     assert "not checked" in result.message
+
+
+@pytest.mark.parametrize(("rsh", "fc", "seed"), [(13e-3, 2e3, 1), (1e-3, 10e3, 2), (0.0, 1e3, 3)])
+def test_fit_reaches_the_soft_l1_minimum_scipy_finds(rsh: float, fc: float, seed: int) -> None:
+    # Reference: scipy's least_squares (trust-region reflective, loss="soft_l1", the same
+    # model, bounds and start values) on the same points; the check's own solver must
+    # end at a soft-L1 cost no higher, with the same loop where there is one.
+    from scipy.optimize import least_squares
+
+    from bench.core.ground_loop import _model, _noise_scale
+
+    loop = ground_loop_error(F, rsh, fc) if rsh else 0.0
+    z = _measured(MOUNT.impedance(F) + loop, -110.0, seed)
+    result = check_ground_loop(F, z)
+    use = F <= 2e6
+    fu, zu = F[use], z[use]
+    scale = max(_noise_scale(zu.real), _noise_scale(zu.imag), 1e-9)
+
+    def residual(p):
+        d = _model(p, fu) - zu
+        return np.concatenate([d.real, d.imag]) / scale
+
+    def cost(p):
+        r = residual(np.asarray(p, dtype=float))
+        return float(np.sum(2 * (np.sqrt(1 + r * r) - 1)))
+
+    top = fu >= np.quantile(fu, 0.6)
+    rm0 = max(float(np.median(zu.real[top])), 0.0)
+    lm0 = max(float(np.median(zu.imag[top] / (2 * np.pi * fu[top]))), 0.0)
+    r00 = max(float(np.median(zu.real[:3])) - rm0, 0.0)
+    lo, hi = np.log10(fu[0]) - 1.5, np.log10(fu[-1])
+    best = min(
+        (
+            least_squares(
+                residual,
+                x0=[rm0, lm0, r00, start],
+                bounds=([0.0, 0.0, 0.0, lo], [np.inf, np.inf, np.inf, hi]),
+                x_scale=[max(rm0, scale), max(lm0, 1e-15), max(r00, scale), 1.0],
+                loss="soft_l1",
+            )
+            for start in np.linspace(lo + 0.25, hi - 0.25, 6)
+        ),
+        key=lambda r: r.cost,
+    )
+    if result.detected:
+        ours = [result.r_mount, result.l_mount, result.excess_r_dc, np.log10(result.corner_hz)]
+        assert cost(ours) <= cost(best.x) * (1 + 1e-6)
+        assert result.excess_r_dc == pytest.approx(best.x[2], rel=1e-3)
+        assert result.corner_hz == pytest.approx(10 ** best.x[3], rel=1e-3)
+    else:
+        assert rsh == 0.0
+        assert best.x[2] < 50e-6  # scipy sees no loop above the check's floor either

@@ -90,3 +90,28 @@ def test_minpack_falls_back_to_the_usual_import(monkeypatch):
     monkeypatch.setattr(importlib.util, "find_spec", not_found)
     module = minpack._extension()
     assert module is not None and callable(module._lmder)
+
+
+def test_mount_and_ground_loop_checks_load_no_scipy_optimize():
+    # A run's mount-short steps fit the mount, its pads and the ground loop in the main
+    # process, beside the sweeps: MINPACK's extension serves them as it serves the fit.
+    script = textwrap.dedent(
+        """
+        import json, sys
+        import numpy as np
+        from bench.core.fixture import fit_mount, fit_open
+        from bench.core.ground_loop import check_ground_loop
+        f = np.logspace(2, 8, 301)
+        z = 2e-4 + 2j * np.pi * f * 150e-12 + 3e-3 / (1 + 1j * f / 2e3)
+        check_ground_loop(f, z)
+        fit_mount(f, z)
+        fit_open(f, 1 / (2j * np.pi * f * 0.3e-12))
+        print(json.dumps(sorted(sys.modules)))
+        """
+    )
+    done = subprocess.run(
+        [sys.executable, "-c", script], capture_output=True, text=True, timeout=120
+    )
+    assert done.returncode == 0, done.stderr
+    modules = set(json.loads(done.stdout.strip().splitlines()[-1]))
+    assert "scipy.optimize" not in modules
