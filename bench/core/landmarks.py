@@ -326,6 +326,17 @@ def _capacitor_reading(
     return out, how
 
 
+def dc_band(f: NDArray[np.float64]) -> NDArray[np.bool_]:
+    """The points ``r_dc`` is read from (the median of their Re Z): those within a third
+    of a decade of the lowest frequency, or the lowest three where fewer lie there.
+    ``f`` in Hz, increasing."""
+    f = np.asarray(f, dtype=float)
+    lowest = f <= f[0] * 10 ** (1 / 3)
+    if np.count_nonzero(lowest) < 3:
+        lowest = np.arange(f.size) < 3
+    return lowest
+
+
 def inductor_landmarks(f: Any, z: Any, valid: Any = None) -> Landmarks:
     """Landmarks of an inductor or bead: ``l_low`` (H), ``r_dc`` (Ω), ``srf`` (Hz, parallel
     resonance), ``z_at_srf`` (Ω, magnitude) and ``c_par`` (F, from the capacitive slope of
@@ -353,9 +364,7 @@ def _inductor_reading(
     srf, how["srf"] = _parallel_resonance_line(f, z)
     out["srf"] = srf
     # DC resistance: median of Re Z over the lowest third of a decade.
-    lowest = f <= f[0] * 10 ** (1 / 3)
-    if np.count_nonzero(lowest) < 3:
-        lowest = np.arange(f.size) < 3
+    lowest = dc_band(f)
     r_dc = float(np.median(z.real[lowest]))
     out["r_dc"] = r_dc if r_dc > 0 else None
     how["lowest"] = lowest
