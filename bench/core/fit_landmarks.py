@@ -17,7 +17,7 @@ from numpy.typing import NDArray
 from bench.core.fit_network import KEEP_POINTS, compiled
 from bench.core.fit_select import Trial
 from bench.core.landmark_slopes import landmark_slopes
-from bench.core.landmarks import MAX_POINTS, Landmarks, landmarks_for
+from bench.core.landmarks import MAX_POINTS, Landmarks, dc_band, landmarks_for
 from bench.core.models.network import network_impedance
 from bench.units import format_si
 
@@ -26,6 +26,15 @@ PARALLEL_CAPACITANCE = ("Cp", "C")
 # Change of Re Z across the lowest third of a decade beyond which ``r_dc`` is no DC
 # value (common practice, no source).
 RDC_FLATNESS = 0.1
+# Standard error of the median of n normal values with standard deviation σ:
+# √(π/2)·σ/√n ≈ 1.2533·σ/√n for large n (docs/references.md §11).
+MEDIAN_STANDARD_ERROR = math.sqrt(math.pi / 2)
+# Standard deviation of normal values from their median absolute deviation
+# (docs/references.md §11).
+MAD_TO_SIGMA = 1.4826
+# A change of resistance across the band is resolved above the points' noise when it
+# exceeds this many standard errors of the difference (common practice, no source).
+RESOLVED = 3.0
 # Decades beyond the measured band over which the model's landmarks are still looked
 # for when the data cannot give them.
 LANDMARK_REACH = 2.0
@@ -141,21 +150,25 @@ def low_frequency_warnings(
     used: NDArray[np.bool_],
     model_marks: Landmarks,
     some_excluded: bool = False,
+    *,
+    z_model: NDArray[np.complex128],
 ) -> list[str]:
     """Say so when the DC resistance of an inductor or bead was not measured.
 
-    ``r_dc`` is read over the lowest third of a decade of the sweep (see
-    :func:`bench.core.landmarks.inductor_landmarks`). When most of those points lie
-    outside the measurable window, or the resistance is lost in the uncertainty of the
-    (reactive) impedance there, the value is the model's extrapolation, not a
-    measurement: a 1.5 mΩ winding behind 499 Ω port resistors, for example.
+    ``r_dc`` is read over the lowest third of a decade of the sweep
+    (:func:`bench.core.landmarks.dc_band`). When most of those points lie outside the
+    measurable window, or the resistance is lost in the uncertainty of the (reactive)
+    impedance there, the value is the model's extrapolation, not a measurement: a 1.5 mΩ
+    winding behind 499 Ω port resistors, for example. When the resistance still changes
+    across that band (core or skin loss), it is no DC value: the change is judged on the
+    measured points against their own scatter about the fitted model ``z_model`` (Ω at
+    ``f``), and on the model's own Re Z across the band, so that a trend either shows
+    is reported and the noise of a few points is not.
     """
     r_dc = model_marks.get("r_dc")
     if kind != "inductor" or r_dc is None or f.size < 2:
         return []
-    band = f <= f[0] * 10 ** (1 / 3)
-    if np.count_nonzero(band) < 3:
-        band = np.arange(f.size) < 3
+    band = dc_band(f)
     seen = band & used
     note = (
         f"r_dc ({format_si(r_dc, 'Ω', 3)}) comes from the model, not from measured points: "
@@ -173,10 +186,7 @@ def low_frequency_warnings(
                 )
             )
         ]
-    # Standard error of the band's median of Re Z: about 1.25·σ/√n, with σ the RMS of
-    # one component of the complex error, |Z|·u/√2.
-    spread = np.abs(z[seen]) * sigma[seen] / np.sqrt(2.0)
-    standard_error = 1.25 * float(np.median(spread)) / np.sqrt(np.count_nonzero(seen))
+    standard_error = _median_error(z[seen], sigma[seen])
     if r_dc < 3.0 * standard_error:
         return [
             note.format(
@@ -184,22 +194,96 @@ def low_frequency_warnings(
                 f"({format_si(standard_error, 'Ω', 2)})"
             )
         ]
-    # A resistance that still changes across the band is not yet the DC value: core or
-    # skin loss adds to it there (a bead swept from 1 MHz, say).
-    idx = np.flatnonzero(seen)
-    half = idx.size // 2
-    if half >= 3:
-        lower = float(np.median(z.real[idx[:half]]))
-        upper = float(np.median(z.real[idx[-half:]]))
-        change = upper / lower - 1 if lower > 0 else math.inf
-        if abs(change) > RDC_FLATNESS and abs(upper - lower) > 3.0 * math.sqrt(2) * standard_error:
-            return [
-                f"r_dc ({format_si(r_dc, 'Ω', 3)}) is the resistance at the bottom of the "
-                f"sweep ({format_si(f[0], 'Hz')}), not the DC value: it still changes by "
-                f"{100 * change:+.0f} % up to {format_si(f[idx[-1]], 'Hz')} (core or skin "
-                "loss); sweep lower or measure it with a DC ohmmeter"
-            ]
+    change = resistance_trend(f, z, used, z_model)
+    if change is not None:
+        # A resistance that still changes across the band is not yet the DC value: core
+        # or skin loss adds to it there (a bead swept from 1 MHz, say).
+        top = f[np.flatnonzero(seen)[-1]]
+        return [
+            f"r_dc ({format_si(r_dc, 'Ω', 3)}) is the resistance at the bottom of the "
+            f"sweep ({format_si(f[0], 'Hz')}), not the DC value: it still changes by "
+            f"{100 * change:+.0f} % up to {format_si(top, 'Hz')} (core or skin "
+            "loss); sweep lower or measure it with a DC ohmmeter"
+        ]
     return []
+
+
+def _median_error(z: NDArray[np.complex128], sigma: NDArray[np.float64]) -> float:
+    """Standard error of the median of Re ``z`` from the points' relative uncertainty
+    ``sigma``: σ of one component of the complex error is |Z|·u/√2."""
+    spread = np.abs(z) * sigma / np.sqrt(2.0)
+    return MEDIAN_STANDARD_ERROR * float(np.median(spread)) / math.sqrt(z.size)
+
+
+def _relative_change(lower: float, upper: float) -> float:
+    return upper / lower - 1 if lower > 0 else math.inf
+
+
+def resistance_trend(
+    f: NDArray[np.float64],
+    z: NDArray[np.complex128],
+    used: NDArray[np.bool_],
+    z_model: NDArray[np.complex128],
+) -> float | None:
+    """The relative change of Re Z across the band ``r_dc`` is read from, where it is
+    real; None where the resistance there is flat or its change is noise.
+
+    The used points of the band are split into a lower and an upper half and the
+    medians of Re Z compared. The points' change counts when it exceeds
+    :data:`RDC_FLATNESS` and :data:`RESOLVED` times its standard error, from their own
+    scatter about ``z_model`` (median absolute deviation); the model's change (from the
+    band's first point to its last) counts when it exceeds :data:`RDC_FLATNESS` and the
+    points do not contradict it (the change of their halves within that many standard
+    errors of the same halves of the model).
+    The points' change is given where it counts, else the model's.
+    """
+    idx = np.flatnonzero(dc_band(f) & used)
+    half = idx.size // 2
+    if half < 3:
+        return None
+    lo, hi = idx[:half], idx[-half:]
+    lower, upper = float(np.median(z.real[lo])), float(np.median(z.real[hi]))
+    m_lower, m_upper = float(np.median(z_model.real[lo])), float(np.median(z_model.real[hi]))
+    residual = (z.real - z_model.real)[idx]
+    scatter = MAD_TO_SIGMA * float(np.median(np.abs(residual - np.median(residual))))
+    error = math.sqrt(2.0) * MEDIAN_STANDARD_ERROR * scatter / math.sqrt(half)
+    change = _relative_change(lower, upper)
+    if abs(change) > RDC_FLATNESS and abs(upper - lower) > RESOLVED * error:
+        return change
+    model_change = _model_change(z_model, idx)
+    contradicted = abs((upper - lower) - (m_upper - m_lower)) > RESOLVED * error
+    if abs(model_change) > RDC_FLATNESS and not contradicted:
+        return model_change
+    return None
+
+
+def r_dc_reading_error(
+    f: NDArray[np.float64],
+    z: NDArray[np.complex128],
+    sigma: NDArray[np.float64],
+    used: NDArray[np.bool_],
+    z_model: NDArray[np.complex128],
+) -> float | None:
+    """One-sigma standard error of the measured ``r_dc`` (Ω): the median of Re Z over
+    :func:`~bench.core.landmarks.dc_band` of the ``used`` points, from their relative
+    uncertainty ``sigma``; within :data:`READING_AGREEMENT` times it the model's value
+    stands for the reading (:func:`merge_landmarks`). None where the model's Re Z
+    (``z_model``, Ω at ``f``) is not flat over that band (changes by more than
+    :data:`RDC_FLATNESS` from its first point to its last): the band is then no DC
+    value, whichever reads it, and :func:`low_frequency_warnings` says so."""
+    idx = np.flatnonzero(used)
+    if idx.size < 4:
+        return None
+    idx = idx[dc_band(f[idx])]
+    if abs(_model_change(z_model, idx)) > RDC_FLATNESS:
+        return None
+    return _median_error(z[idx], sigma[idx])
+
+
+def _model_change(z_model: NDArray[np.complex128], idx: NDArray[np.intp]) -> float:
+    """The relative change of the model's Re Z from the first to the last point of
+    ``idx`` (the model has no noise: its end points say it)."""
+    return _relative_change(float(z_model.real[idx[0]]), float(z_model.real[idx[-1]]))
 
 
 def model_landmarks(kind: str, f: NDArray[np.float64], trial: Trial) -> Landmarks:
@@ -240,6 +324,12 @@ MODEL_AGREEMENT = 0.05
 # Values at resonance are read from a few points of a small real part: noisier, so a
 # model within this much of them agrees with them.
 MODEL_AGREEMENT_AT_RESONANCE = {"esr_at_srf": 0.15, "z_at_srf": 0.15}
+# The model's ``r_dc`` stands for the measured reading when the two differ by at most
+# this many of the reading's standard errors (and the model's Re Z is flat over the
+# reading's band, :func:`r_dc_reading_error`): a reading from a few noisy points
+# scatters that far by chance, and the model follows the whole band (common practice,
+# no source).
+READING_AGREEMENT = 2.0
 # Landmarks read from the measured points over a whole low decade, with noise well
 # averaged: the measured value is always given where there is one.
 DATA_FIRST = ("c_low", "l_low")
@@ -250,13 +340,19 @@ TOP_LANDMARKS = ("esl",)
 
 
 def merge_landmarks(
-    data: Landmarks, model: Landmarks, cut: tuple[bool, bool] = (False, False)
+    data: Landmarks,
+    model: Landmarks,
+    cut: tuple[bool, bool] = (False, False),
+    reading_error: dict[str, float | None] | None = None,
 ) -> tuple[Landmarks, dict[str, str | None]]:
     """Each landmark with its source (``"data"``, ``"model"``, or None where neither gives
     one): the model's where the measured points give none, or where it agrees with theirs
-    within :data:`MODEL_AGREEMENT`; else the measured points'. ``cut`` says whether the
-    bottom and the top of the band were left out as band edges (the points then no longer
-    hold the landmarks read there)."""
+    within :data:`MODEL_AGREEMENT`, or within :data:`READING_AGREEMENT` times the
+    reading's standard error given in ``reading_error`` (by landmark, in its unit:
+    ``r_dc`` from :func:`r_dc_reading_error`); else the measured points'. ``cut`` says
+    whether the bottom and the top of the band were left out as band edges (the points
+    then no longer hold the landmarks read there)."""
+    errors = reading_error or {}
     order = list(model) + [k for k in data if k not in model]
     lost = (BOTTOM_LANDMARKS if cut[0] else ()) + (TOP_LANDMARKS if cut[1] else ())
     marks: Landmarks = {}
@@ -267,7 +363,10 @@ def merge_landmarks(
             key not in DATA_FIRST
             and m is not None
             and d is not None
-            and abs(m / d - 1) <= MODEL_AGREEMENT_AT_RESONANCE.get(key, MODEL_AGREEMENT)
+            and (
+                abs(m / d - 1) <= MODEL_AGREEMENT_AT_RESONANCE.get(key, MODEL_AGREEMENT)
+                or abs(m - d) <= READING_AGREEMENT * (errors.get(key) or 0.0)
+            )
         )
         if d is not None and not (key in lost and m is not None) and not agrees:
             marks[key], sources[key] = data[key], "data"

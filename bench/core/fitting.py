@@ -45,6 +45,7 @@ from bench.core.fit_landmarks import (
     merge_landmarks,
     model_impedance,
     model_landmarks,
+    r_dc_reading_error,
     resonance_warnings,
 )
 from bench.core.fit_result import (
@@ -724,9 +725,16 @@ def fit_impedance(
     )
     model_marks = model_landmarks(kind, f, best)
     cut = (bool(np.any(edge & (f < fu[0]))), bool(np.any(edge & (f > fu[-1]))))
-    marks, sources = merge_landmarks(data_marks, model_marks, cut)
+    z_model = model_impedance(best, f) if kind == "inductor" else None
+    reading_error = (
+        {"r_dc": r_dc_reading_error(f, z, sigma, used, z_model)} if z_model is not None else None
+    )
+    marks, sources = merge_landmarks(data_marks, model_marks, cut, reading_error)
     warnings += resonance_warnings(kind, f, used, model_marks, data_marks)
-    warnings += low_frequency_warnings(kind, f, z, sigma, used, marks, left_out.any())
+    if z_model is not None:
+        warnings += low_frequency_warnings(
+            kind, f, z, sigma, used, marks, left_out.any(), z_model=z_model
+        )
     if best.at_bound:
         warnings.append(
             f"elements {', '.join(best.at_bound)} ended at the edge of their allowed range; "
