@@ -175,7 +175,7 @@ def low_frequency_warnings(
         f"{{why}}; measure it with a set-up whose window reaches it (no series "
         f"resistors, a narrower IF bandwidth) or with a DC ohmmeter"
     )
-    if np.count_nonzero(seen) < max(3, np.count_nonzero(band) // 2):
+    if not r_dc_measured(f, used):
         return [
             note.format(
                 why=f"the points below {format_si(f[band][-1], 'Hz')} "
@@ -206,6 +206,16 @@ def low_frequency_warnings(
             "loss); sweep lower or measure it with a DC ohmmeter"
         ]
     return []
+
+
+def r_dc_measured(f: NDArray[np.float64], used: NDArray[np.bool_]) -> bool:
+    """Whether the ``used`` points hold ``r_dc``: at least three of them, and half of
+    the points of :func:`~bench.core.landmarks.dc_band` of the sweep ``f``. Where they
+    do not, a reading from the used points starts higher up the band (where the few
+    points inside the window are those the noise lifted, say), and ``r_dc`` is the
+    model's (:func:`merge_landmarks`, ``lost``)."""
+    band = dc_band(f)
+    return np.count_nonzero(band & used) >= max(3, np.count_nonzero(band) // 2)
 
 
 def _median_error(z: NDArray[np.complex128], sigma: NDArray[np.float64]) -> float:
@@ -344,6 +354,7 @@ def merge_landmarks(
     model: Landmarks,
     cut: tuple[bool, bool] = (False, False),
     reading_error: dict[str, float | None] | None = None,
+    lost: tuple[str, ...] = (),
 ) -> tuple[Landmarks, dict[str, str | None]]:
     """Each landmark with its source (``"data"``, ``"model"``, or None where neither gives
     one): the model's where the measured points give none, or where it agrees with theirs
@@ -351,10 +362,11 @@ def merge_landmarks(
     reading's standard error given in ``reading_error`` (by landmark, in its unit:
     ``r_dc`` from :func:`r_dc_reading_error`); else the measured points'. ``cut`` says
     whether the bottom and the top of the band were left out as band edges (the points
-    then no longer hold the landmarks read there)."""
+    then no longer hold the landmarks read there); ``lost`` names other landmarks the
+    points do not hold (``r_dc`` where :func:`r_dc_measured` says so)."""
     errors = reading_error or {}
     order = list(model) + [k for k in data if k not in model]
-    lost = (BOTTOM_LANDMARKS if cut[0] else ()) + (TOP_LANDMARKS if cut[1] else ())
+    lost = (BOTTOM_LANDMARKS if cut[0] else ()) + (TOP_LANDMARKS if cut[1] else ()) + tuple(lost)
     marks: Landmarks = {}
     sources: dict[str, str | None] = {}
     for key in order:

@@ -45,6 +45,7 @@ from bench.core.fit_landmarks import (
     merge_landmarks,
     model_impedance,
     model_landmarks,
+    r_dc_measured,
     r_dc_reading_error,
     resonance_warnings,
 )
@@ -729,7 +730,8 @@ def fit_impedance(
     reading_error = (
         {"r_dc": r_dc_reading_error(f, z, sigma, used, z_model)} if z_model is not None else None
     )
-    marks, sources = merge_landmarks(data_marks, model_marks, cut, reading_error)
+    lost = ("r_dc",) if z_model is not None and not r_dc_measured(f, used) else ()
+    marks, sources = merge_landmarks(data_marks, model_marks, cut, reading_error, lost)
     warnings += resonance_warnings(kind, f, used, model_marks, data_marks)
     if z_model is not None:
         warnings += low_frequency_warnings(
