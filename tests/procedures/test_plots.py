@@ -129,3 +129,43 @@ def test_srf_label_near_the_right_edge_stays_inside_the_figure(summary):
     for text in labels:
         box = text.get_window_extent(renderer)
         assert box.x0 >= 0 and box.x1 <= width
+
+
+def test_axis_labels_clear_the_tick_labels_and_stay_inside(summary):
+    # The labels sit at fixed distances from their panels (plots.YLABEL_OFFSET_IN): the
+    # widest tick labels must still clear them. A |Z| of 120…870 mΩ without a model gives
+    # labelled 200 mΩ and 500 mΩ positions besides the decade's (the short-range labels).
+    fitted, _ = _samples(summary)
+    f = fitted.data.f
+    z = (0.12 + 0.75 * np.linspace(0, 1, f.size)) * np.exp(0.3j)
+    data = dataclasses.replace(fitted.data, z=z)
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    short = dataclasses.replace(fitted, data=data)
+    figures = [
+        plots.sample_figure(fitted.data, fitted.fit),
+        plots.sample_figure(data, None),
+        plots.lot_figure("A", [short]),
+    ]
+    for fig in figures:
+        canvas = FigureCanvasAgg(fig)
+        fig.set_dpi(plots.slide_dpi(fig))
+        canvas.draw()
+        renderer = canvas.get_renderer()
+        for ax in fig.axes:
+            label = ax.yaxis.label.get_window_extent(renderer)
+            ticks = [
+                t.get_window_extent(renderer)
+                for t in [*ax.get_yticklabels(), *ax.get_yticklabels(minor=True)]
+                if t.get_visible() and t.get_text()
+            ]
+            assert ticks
+            assert label.x1 < min(box.x0 for box in ticks)
+            assert label.x0 >= 0
+            if ax.get_xlabel():
+                xlabel = ax.xaxis.label.get_window_extent(renderer)
+                xticks = [
+                    t.get_window_extent(renderer) for t in ax.get_xticklabels() if t.get_text()
+                ]
+                assert xlabel.y1 < min(box.y0 for box in xticks)
+                assert xlabel.y0 >= 0
