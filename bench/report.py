@@ -20,7 +20,7 @@ from typing import Any
 
 import numpy as np
 
-from bench import exports, plots, verdicts
+from bench import exports, verdicts
 from bench.files import atomic_write_text
 from bench.report_html import (
     CSS,
@@ -223,7 +223,7 @@ def _lot_html(summary: RunSummary, spec: PartSpec, figs: Figures) -> str:
     if len(overlay) > 1:
         out.append(
             figs.embed(
-                Plot(plots.lot_figure, (spec.name, overlay)),
+                Plot("lot_figure", (spec.name, overlay)),
                 f"{spec.name}_lot",
                 f"{spec.name}: every sample at {lowest:g} V overlaid.",
             )
@@ -237,7 +237,7 @@ def _lot_html(summary: RunSummary, spec: PartSpec, figs: Figures) -> str:
             out.append(
                 figs.embed(
                     Plot(
-                        plots.lot_figure,
+                        "lot_figure",
                         (spec.name, curves),
                         {"title": f"{spec.name} / {name}: |Z| and ESR at each DC bias"},
                     ),
@@ -282,7 +282,7 @@ def _lot_html(summary: RunSummary, spec: PartSpec, figs: Figures) -> str:
         out.append("<h4>Capacitance versus DC bias</h4>")
         out.append(
             figs.embed(
-                Plot(plots.bias_figure, (spec.name, curves), {"nominal": spec.nominal}),
+                Plot("bias_figure", (spec.name, curves), {"nominal": spec.nominal}),
                 f"{spec.name}_bias",
                 f"{spec.name}: c_low versus DC bias, and its change from {reference}"
                 + ("; dotted: the nominal value (stated at 0 V)." if spec.nominal else "."),

@@ -9,14 +9,13 @@ from __future__ import annotations
 
 import base64
 import math
-from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
-from bench import exports, plots, verdicts
+from bench import exports, verdicts
 from bench.report_html import (
     esc,
     kv_table,
@@ -32,22 +31,33 @@ from bench.units import format_si
 
 @dataclass(frozen=True)
 class Plot:
-    """A figure to draw: ``build(*args, **kwargs)``, a function of :mod:`bench.plots`.
+    """A figure to draw: the :mod:`bench.plots` function named ``build``, called with
+    ``args`` and ``kwargs``.
 
     Kept as a recipe so that :class:`Figures` can draw the report's figures in worker
-    processes (the arguments are the run's picklable results)."""
+    processes (the arguments are the run's picklable results), and named rather than
+    held, so that making the report's text imports no plotting library: only the
+    processes that draw do (half a second or more of a run's own process otherwise)."""
 
-    build: Callable[..., Any]
+    build: str
     args: tuple[Any, ...] = ()
     kwargs: dict[str, Any] = field(default_factory=dict)
+
+    def figure(self) -> Any:
+        """The figure, built in this process."""
+        from bench import plots
+
+        return getattr(plots, self.build)(*self.args, **self.kwargs)
 
 
 def _png(plot: Plot) -> bytes:
     """PNG bytes of one :class:`Plot` (a worker's task). Figures of one layout reuse one
     figure in each process (:func:`bench.plots.reusing_figures`): the same pixels, a
     fifth less work."""
+    from bench import plots
+
     with plots.reusing_figures():
-        return plots.png_bytes(plot.build(*plot.args, **plot.kwargs))
+        return plots.png_bytes(plot.figure())
 
 
 class Figures:
@@ -98,11 +108,16 @@ class Figures:
         """``text`` with every queued figure drawn, saved and put in place."""
         from bench.files import atomic_write_bytes
 
+        def png(fig: Any) -> bytes:
+            from bench import plots
+
+            return plots.png_bytes(fig)
+
         if self._started is None:
             self.start()
         drawn = iter(self._started.results())
         for token, fig, path, caption in self._pending:
-            data = next(drawn) if isinstance(fig, Plot) else plots.png_bytes(fig)
+            data = next(drawn) if isinstance(fig, Plot) else png(fig)
             atomic_write_bytes(path, data)
             encoded = base64.b64encode(data).decode("ascii")
             text = text.replace(
@@ -327,7 +342,7 @@ def sample_section(summary: RunSummary, spec: PartSpec, sample: SampleResult, fi
     parts.append(
         figs.embed(
             Plot(
-                plots.sample_figure,
+                "sample_figure",
                 # The SRF line and label: the run's shown landmarks (bench.verdicts).
                 (sample.data, verdicts.shown_fit(sample, verdicts.kind_of(spec))),
                 {"title": heading, "setups": sample.setups},

@@ -19,12 +19,15 @@ runner times a small representative piece of the real work before the first step
   fit, rendered by ``plots.png_bytes``) to its fit, both CPU work that the machine's
   speed and load scale alike;
 - **once**: importing what the fit, export and report steps import in this process
-  (the fitter, scikit-rf, matplotlib) where it has not yet: they then pay only the
-  work itself. Their worker processes start afresh (:mod:`bench.parallel`) and import
-  the fitter, and the report's the plotting library too: the estimate counts those
-  imports once more per step (``fitter_import_s``, ``plots_import_s``; 0 when this
-  process had them already, as a test's does, or when the runner started the workers'
-  server at the session's start with them: it imports beside the sweeps).
+  (the fitter, scikit-rf) where it has not yet: they then pay only the work itself.
+  Their worker processes start afresh (:mod:`bench.parallel`) and import the fitter,
+  and the report's the plotting library too: the estimate counts those imports once
+  more per step (``fitter_import_s``, ``plots_import_s``; 0 when this process had them
+  already, as a test's does, or when the runner started the workers' server at the
+  session's start with them: it imports beside the sweeps). The plotting library is
+  imported here (to time it) only where the workers will not have it from that server:
+  the report's text needs none of it, and workers forked from this process import it
+  here anyway just before (``bench.parallel``).
 
 What it took is in the estimate's record (``costs``), so a slow estimate can be told
 from a slow machine. No instrument is touched.
@@ -144,7 +147,15 @@ def measure(
             plots_import_s=0.0,
             server_s=0.0,
         )
-    costs = _measure(plan, folder, manifest, sweeps=sweeps, fits=fits, figures=figures)
+    costs = _measure(
+        plan,
+        folder,
+        manifest,
+        sweeps=sweeps,
+        fits=fits,
+        figures=figures,
+        plots=figures and not workers_ready,
+    )
     if workers_ready:
         costs = dataclasses.replace(costs, fitter_import_s=0.0, plots_import_s=0.0)
     _timed_here[key] = (now, costs)
@@ -159,7 +170,10 @@ def _measure(
     sweeps: bool,
     fits: bool,
     figures: bool,
+    plots: bool,
 ) -> Costs:
+    """The timings :func:`measure` asks for; ``plots``: time importing the plotting
+    library in this process too (the workers of the report step import it once)."""
     started = time.perf_counter()
     kinds = {p.spec.kind for p in plan.parts}
     kind = "capacitor" if kinds & {"mlcc", "bulk"} or not kinds else "inductor"
@@ -171,8 +185,9 @@ def _measure(
         sweep_s = _sweep_work(folder, f, z, kind, manifest or {})
     if fits or figures:
         # What the fit, export and report steps import in this process (the fitter,
-        # the corrections with scikit-rf, the report with matplotlib): timed here once.
-        modules = ["bench.core.fitting", "bench.plots"] if figures else ["bench.core.fitting"]
+        # the corrections with scikit-rf, the report's text), and the plotting library
+        # where the report's workers take it from this process: timed here once.
+        modules = ["bench.core.fitting", "bench.plots"] if plots else ["bench.core.fitting"]
         modules += ["bench.procedure.processing", "bench.exports"]
         modules += ["bench.report"] if figures else []
         for name in modules:
@@ -197,7 +212,7 @@ def _measure(
         took,
         import_s,
         each.get("bench.core.fitting", 0.0) if fits or figures else 0.0,
-        each.get("bench.plots", 0.0) if figures else 0.0,
+        each.get("bench.plots", 0.0) if plots else 0.0,
         server_s,
     )
 

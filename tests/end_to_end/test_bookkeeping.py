@@ -108,7 +108,7 @@ def test_console_summary_and_report_give_the_same_landmarks(tmp_path, sim, kit):
         assert f'<td>srf</td><td class="num">{srf}</td>' in section.replace("\n", "")
         plot = figs.queued[0]
         assert isinstance(plot, Plot)
-        figure = plot.build(*plot.args, **plot.kwargs)
+        figure = plot.figure()
         labels = {t.get_text() for ax in figure.axes for t in ax.texts if "SRF" in t.get_text()}
         assert labels == {f"SRF {srf}"}, labels
         # The SPICE comment and the fit JSON.

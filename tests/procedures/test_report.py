@@ -197,3 +197,39 @@ def test_a_calibration_made_in_the_runs_first_second_is_made_during_the_run(summ
     earlier = replace(same, calibration={**calibration, "time": "2026-01-02T02:04:05+00:00"})
     assert report._calibration_facts(earlier)["age"].endswith("at the start of the run")
     assert report._calibration_facts(earlier)["age"] != "0 s at the start of the run"
+
+
+def test_the_reports_text_and_recipes_load_no_plotting_library(tmp_path):
+    # The run's own process makes the report's text and hands the figures out as named
+    # recipes; only the processes that draw them load matplotlib (in a fresh interpreter:
+    # this one has it from other tests).
+    import json
+    import subprocess
+    import sys
+    import textwrap
+    from pathlib import Path
+
+    here = Path(__file__).resolve().parent
+    script = textwrap.dedent(
+        f"""
+        import json, sys
+        from pathlib import Path
+        sys.path.insert(0, {str(here)!r})
+        import run_summary_data
+        from bench.report import _report_text
+        text, figs = _report_text(run_summary_data.build(), Path({str(tmp_path)!r}))
+        names = sorted({{plot.build for plot in figs.queued}})
+        print(json.dumps([names, "matplotlib" in sys.modules]))
+        """
+    )
+    done = subprocess.run(
+        [sys.executable, "-c", script], capture_output=True, text=True, timeout=300
+    )
+    assert done.returncode == 0, done.stderr
+    names, loaded = json.loads(done.stdout.strip().splitlines()[-1])
+    assert names == ["bias_figure", "lot_figure", "sample_figure"]
+    assert loaded is False
+    # Each recipe still draws its figure.
+    from bench import plots
+
+    assert all(callable(getattr(plots, name)) for name in names)
