@@ -397,6 +397,34 @@ def demo(folder: Path) -> None:
     print(f"zbench demo: {dt:.1f} s (exit {done.returncode})")
 
 
+def processor_name() -> str:
+    """The processor's model name where the system tells it (Linux), else the platform's."""
+    import platform
+
+    try:
+        for line in Path("/proc/cpuinfo").read_text().splitlines():
+            if line.lower().startswith("model name"):
+                return line.split(":", 1)[1].strip()
+    except OSError:
+        pass
+    return platform.processor() or platform.machine()
+
+
+def machine() -> None:
+    """A yardstick for comparing runs on different machines: the processor, and the time
+    of one numpy operation on a fit's thinned grid (160 complex points), the per-call
+    cost that most of a fit's time is made of."""
+    import timeit
+
+    a = np.exp(1j * np.linspace(0, 3, 160))
+    b = np.linspace(1, 2, 160)
+    best = min(timeit.repeat(lambda: np.abs(a * b), number=20000, repeat=5)) / 20000 / 2
+    print(
+        f"processor: {processor_name()}; one numpy operation on 160 complex points: "
+        f"{best * 1e6:.2f} µs"
+    )
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="fewer repeats, no demo")
@@ -406,6 +434,7 @@ def main() -> None:
     if args.quick:
         parts.discard("demo")
     print(f"{os.cpu_count()} cores; load average {os.getloadavg()[0]:.1f}")
+    machine()
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
         if "fits" in parts:
