@@ -207,7 +207,9 @@ class Runner:
         # scipy.optimize: half a second a worker would pay at its first sample).
         modules = ("bench.procedure.processing", "bench.core.ground_loop")
         if "report" in kinds:
-            modules += ("bench.report_sample",)  # the figures' task, with matplotlib
+            # The figures' task and the plotting library it draws with (the report's
+            # text, made in this process, imports none of it).
+            modules += ("bench.report_sample", "bench.plots")
         return start_server(modules)
 
     def _early_fits(self, pending: list[Step]) -> EarlyFits | None:

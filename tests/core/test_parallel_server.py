@@ -44,3 +44,20 @@ def test_a_started_map_can_be_cancelled_unread():
     assert started.done()
     started.cancel()  # twice is harmless
     assert started.done()
+
+
+def test_a_runs_workers_server_imports_what_the_figures_draw_with(monkeypatch):
+    # The report's text is made without matplotlib (bench.report_sample names its
+    # figures); the server the figure workers are forked from must import it, or each
+    # worker would at its first figure.
+    import bench.parallel as parallel
+    from bench.procedure.plan_types import Step
+    from bench.procedure.runner import Runner
+
+    asked: list[tuple[str, ...]] = []
+    monkeypatch.setattr(parallel, "available_cores", lambda: 2)
+    monkeypatch.setattr(parallel, "start_server", lambda modules=(): asked.append(modules) or True)
+    assert Runner._start_workers([Step(id="fit", kind="fit"), Step(id="report", kind="report")])
+    assert {"bench.plots", "bench.report_sample"} <= set(asked[-1])
+    assert Runner._start_workers([Step(id="fit", kind="fit")])
+    assert "bench.plots" not in asked[-1]
