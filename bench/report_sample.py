@@ -28,6 +28,10 @@ from bench.report_html import (
 from bench.results import PartSpec, RunSummary, SampleResult
 from bench.units import format_si
 
+#: What a worker drawing the figures imports: this module (its task) and the plotting
+#: library (a run's workers' server imports them beside the sweeps).
+WORKER_MODULES = ("bench.report_sample", "bench.plots")
+
 
 @dataclass(frozen=True)
 class Plot:
@@ -96,7 +100,7 @@ class Figures:
         from bench.parallel import start_map
 
         plans = [fig for _, fig, _, _ in self._pending if isinstance(fig, Plot)]
-        self._started = start_map(_png, plans, self.jobs, preload=("bench.plots",))
+        self._started = start_map(_png, plans, self.jobs, preload=WORKER_MODULES)
 
     def cancel(self) -> None:
         """Stop drawing the figures handed out by :meth:`start` (they are not needed)."""
@@ -108,16 +112,16 @@ class Figures:
         """``text`` with every queued figure drawn, saved and put in place."""
         from bench.files import atomic_write_bytes
 
-        def png(fig: Any) -> bytes:
-            from bench import plots
-
-            return plots.png_bytes(fig)
-
         if self._started is None:
             self.start()
         drawn = iter(self._started.results())
         for token, fig, path, caption in self._pending:
-            data = next(drawn) if isinstance(fig, Plot) else png(fig)
+            if isinstance(fig, Plot):
+                data = next(drawn)
+            else:  # a figure the caller built: matplotlib is loaded already
+                from bench import plots
+
+                data = plots.png_bytes(fig)
             atomic_write_bytes(path, data)
             encoded = base64.b64encode(data).decode("ascii")
             text = text.replace(

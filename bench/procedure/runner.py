@@ -207,9 +207,11 @@ class Runner:
         # scipy.optimize: half a second a worker would pay at its first sample).
         modules = ("bench.procedure.processing", "bench.core.ground_loop")
         if "report" in kinds:
-            # The figures' task and the plotting library it draws with (the report's
-            # text, made in this process, imports none of it).
-            modules += ("bench.report_sample", "bench.plots")
+            from bench.report_sample import WORKER_MODULES
+
+            # The figures' task and its plotting library (the report's text, made in
+            # this process, imports none of it).
+            modules += WORKER_MODULES
         return start_server(modules)
 
     def _early_fits(self, pending: list[Step]) -> EarlyFits | None:
