@@ -80,18 +80,27 @@ def run_timed(args, **kwargs) -> tuple[float, subprocess.CompletedProcess]:
     return time.perf_counter() - t, done
 
 
-def fits(repeats: int) -> None:
-    print(f"\n1. One fit per family (median CPU time of {repeats}; one thread, so on an idle")
-    print("   machine the wall time; CPU time is less disturbed by other load)")
-    print(f"{'family':<12}{'points':>7}{'model':>12}{'ms':>9}{'chosen':>16}")
-    autos = {}
-    for family, n, model, dt, res in family_fits(repeats, clock=time.process_time):
+def fits(repeats: int, op_time: float) -> None:
+    print(f"\n1. One fit per family (median and shortest CPU time of {repeats}; one thread, so")
+    print("   on an idle machine the wall time; CPU time is less disturbed by other load, the")
+    print("   shortest least of all; 'ops': the shortest in numpy operations of the yardstick)")
+    print(f"{'family':<12}{'points':>7}{'model':>12}{'ms':>9}{'best':>8}{'ops':>8}{'chosen':>16}")
+    autos: dict[int, list[tuple[float, float]]] = {}
+    for family, n, model, dt, best, res in family_fits(repeats, clock=time.process_time):
         if model == "auto":
-            autos.setdefault(n, []).append(dt)
+            autos.setdefault(n, []).append((dt, best))
         chosen = f"{res.model}/{res.order}"
-        print(f"{family:<12}{n:>7}{model:>12}{dt * 1e3:>9.1f}{chosen:>16}")
+        print(
+            f"{family:<12}{n:>7}{model:>12}{dt * 1e3:>9.1f}{best * 1e3:>8.1f}"
+            f"{best / op_time:>8.0f}{chosen:>16}"
+        )
     for n, times in autos.items():
-        print(f"median auto fit at {n} points: {statistics.median(times) * 1e3:.1f} ms")
+        median = statistics.median(t[0] for t in times)
+        shortest = statistics.median(t[1] for t in times)
+        print(
+            f"median auto fit at {n} points: {median * 1e3:.1f} ms (of the shortest times: "
+            f"{shortest * 1e3:.1f} ms, {shortest / op_time:.0f} numpy operations)"
+        )
 
 
 def startup(repeats: int) -> None:
@@ -410,7 +419,7 @@ def processor_name() -> str:
     return platform.processor() or platform.machine()
 
 
-def machine() -> None:
+def machine() -> float:
     """A yardstick for comparing runs on different machines: the processor, and the time
     of one numpy operation on a fit's thinned grid (160 complex points), the per-call
     cost that most of a fit's time is made of."""
@@ -423,6 +432,7 @@ def machine() -> None:
         f"processor: {processor_name()}; one numpy operation on 160 complex points: "
         f"{best * 1e6:.2f} µs"
     )
+    return best
 
 
 def main() -> None:
@@ -434,11 +444,11 @@ def main() -> None:
     if args.quick:
         parts.discard("demo")
     print(f"{os.cpu_count()} cores; load average {os.getloadavg()[0]:.1f}")
-    machine()
+    op_time = machine()
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
         if "fits" in parts:
-            fits(3 if args.quick else 7)
+            fits(3 if args.quick else 7, op_time)
         if "startup" in parts:
             startup(3 if args.quick else 7)
         if "batch" in parts:
