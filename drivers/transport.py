@@ -89,6 +89,9 @@ class VisaTransport:
         self.resource_name = resource_name
         self._closed = False
         self._open_options = open_options
+        # An exchange cut short by Ctrl-C or a stop signal: its answer may still be on its
+        # way, so the next operation clears the link first (_mapped).
+        self._interrupted = False
 
     # -- opening and closing -------------------------------------------------------
 
@@ -304,8 +307,19 @@ class VisaTransport:
         """Turn pyvisa and socket failures into :mod:`drivers.errors` types."""
         if self._closed:
             raise ConnectionLost(self.resource_name, operation, "the transport is closed")
+        if self._interrupted:
+            # Without this, the answer of the exchange cut short would be read as the
+            # answer to this one (a ramp-down after Ctrl-C reading "0,No error" as the
+            # set-point, say). An answer slower than the clear's quiet window can still
+            # come after it; the stop's own fall-backs (the output switched off on a new
+            # connection) cover that. A link that fails here fails the operation.
+            self._interrupted = False
+            clear_all([self])
         try:
             yield
+        except KeyboardInterrupt:  # Ctrl-C, or a stop signal (bench.stop_signals)
+            self._interrupted = True
+            raise
         except VisaIOError as exc:
             if exc.error_code == constants.StatusCode.error_timeout:
                 # pyvisa-py reports a socket closed by the peer as a timeout on read;

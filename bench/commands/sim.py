@@ -27,7 +27,9 @@ import click
 )
 def command(scenario: str, port: int, seed: int | None, time_scale: float) -> None:
     """Serve the simulated instruments of SCENARIO (a name or a YAML path) on 127.0.0.1
-    and print their VISA resource strings; Ctrl-C stops them."""
+    and print their VISA resource strings; Ctrl-C (or a termination request, or closing
+    the terminal) stops them."""
+    from bench.stop_signals import stop_on_signals
     from simulated_instruments.server import start_bench
 
     try:
@@ -39,19 +41,21 @@ def command(scenario: str, port: int, seed: int | None, time_scale: float) -> No
             "choose another --port, or 0 for OS-chosen ports"
         ) from exc
     stop = threading.Event()
-    try:
-        click.echo(f"simulated bench '{bench.scenario.name}' on 127.0.0.1 (Ctrl-C to stop)")
-        for name, resource in bench.resources.items():
-            identity = bench.instruments[name].identity()
-            click.echo(f"  {name:<10} {resource}  {identity}")
-        click.echo(
-            "Talk to them with any VISA client (pyvisa with pyvisa-py: ResourceManager('@py'));\n"
-            "the bench port is the scripted operator's hands. 'zbench run PROCEDURE --sim'\n"
-            "starts a simulated bench of its own."
-        )
-        while not stop.wait(0.5):
-            pass
-    except KeyboardInterrupt:
-        click.echo("stopping simulated bench", err=True)
-    finally:
-        bench.stop()
+    with stop_on_signals("the simulated bench is stopping"):
+        try:
+            click.echo(f"simulated bench '{bench.scenario.name}' on 127.0.0.1 (Ctrl-C to stop)")
+            for name, resource in bench.resources.items():
+                identity = bench.instruments[name].identity()
+                click.echo(f"  {name:<10} {resource}  {identity}")
+            click.echo(
+                "Talk to them with any VISA client (pyvisa with pyvisa-py: "
+                "ResourceManager('@py'));\n"
+                "the bench port is the scripted operator's hands. 'zbench run PROCEDURE --sim'\n"
+                "starts a simulated bench of its own."
+            )
+            while not stop.wait(0.5):
+                pass
+        except KeyboardInterrupt:  # Ctrl-C, SIGTERM or SIGHUP (bench.stop_signals)
+            click.echo("stopping simulated bench", err=True)
+        finally:
+            bench.stop()

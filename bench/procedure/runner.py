@@ -23,6 +23,7 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
+from bench import stop_signals
 from bench.errors import BiasNotConfirmedOffError, RunError, RunFolderError, SafetyError
 from bench.procedure.display import PlainDisplay
 from bench.procedure.early_fit import EarlyFits, group_of
@@ -117,7 +118,15 @@ class Runner:
     # -- top level --------------------------------------------------------------------
 
     def run(self) -> RunSummary | None:
-        """Execute every step not yet done; returns the summary when a fit step ran."""
+        """Execute every step not yet done; returns the summary when a fit step ran.
+
+        Ctrl-C, a termination request (SIGTERM) and a closed terminal (SIGHUP) stop the
+        run alike, the DC bias ramped down and switched off, and later signals do not cut
+        that short (:mod:`bench.stop_signals`)."""
+        with stop_signals.stop_on_signals():
+            return self._run()
+
+    def _run(self) -> RunSummary | None:
         store, plan, ctx = self.store, self.plan, self.ctx
         pending = [s for s in plan.steps if store.step_state(s.id) not in (DONE, SKIPPED)]
         current: Step | None = None
@@ -153,9 +162,9 @@ class Runner:
         except OperatorStop as exc:
             self._stopped(current, f"stopped by the operator: {exc}", STOPPED)
             raise RunError(self._resume_text(f"stopped: {exc}")) from None
-        except KeyboardInterrupt:
-            self._stopped(current, "interrupted (Ctrl-C)", STOPPED)
-            raise RunError(self._resume_text("interrupted")) from None
+        except KeyboardInterrupt as exc:  # Ctrl-C, or SIGTERM or SIGHUP (stop_signals)
+            self._stopped(current, stop_signals.reason(exc), STOPPED)
+            raise RunError(self._resume_text(stop_signals.reason(exc))) from None
         except RunError as exc:
             self._stopped(current, str(exc))
             raise RunError(self._resume_text(str(exc))) from None

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import logging
+import signal
 import socket
 import struct
 import time
@@ -131,6 +132,34 @@ def test_reopen_after_timeout_discards_the_late_answer(loopback_server):
         link.reopen()
         assert link.query("*IDN?").startswith("Invented Instruments")
         assert link.timeout_s == pytest.approx(2.0)
+
+
+def test_an_exchange_cut_short_by_ctrl_c_is_cleared_before_the_next(loopback_server):
+    # Ctrl-C (or a stop signal) while a query waits for its answer: the answer still
+    # arrives, and without a clear the next query (a stop's ramp-down asking for the
+    # set-point, say) would read it as its own.
+    def late(line: bytes):
+        if line == b"SLOW?":
+            time.sleep(0.3)
+            return b"late answer\n"
+        return None
+
+    def interrupt(signum, frame):
+        raise KeyboardInterrupt
+
+    server = echo_server(loopback_server, late)
+    previous = signal.signal(signal.SIGALRM, interrupt)
+    try:
+        with VisaTransport.open(server.resource, timeout_s=2.0) as link:
+            signal.setitimer(signal.ITIMER_REAL, 0.1)
+            with pytest.raises(KeyboardInterrupt):
+                link.query("SLOW?")
+            time.sleep(0.4)  # the late answer is in the link now
+            assert link.query("*IDN?").startswith("Invented Instruments")
+            assert link.query("*IDN?").startswith("Invented Instruments")
+    finally:
+        signal.setitimer(signal.ITIMER_REAL, 0)
+        signal.signal(signal.SIGALRM, previous)
 
 
 def test_connection_closed_by_instrument_is_connection_lost(loopback_server):

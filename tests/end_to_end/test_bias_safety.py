@@ -1,8 +1,12 @@
 """DC-bias safety with no hole: a bounded current limit, the source's own maximum checked,
 a source left on found and switched off, its own protection used, a cut link leaving
-0 V and the output off, and an unconfirmed "off" that says so on stderr with exit 4."""
+0 V and the output off, an unconfirmed "off" that says so on stderr with exit 4, and a
+termination request or a closed terminal stopping a biased run as Ctrl-C does."""
 
 from __future__ import annotations
+
+import os
+import signal
 
 import pytest
 
@@ -78,6 +82,53 @@ def test_cut_link_while_biased_sets_zero_and_off_on_a_new_connection(tmp_path, s
     assert sim.state.bias.setpoint == 0.0
     log = (store.root / "log").read_text(encoding="utf-8")
     assert "switched off and set to 0 V on a new connection" in log
+
+
+@pytest.mark.parametrize("first", [signal.SIGTERM, signal.SIGHUP], ids=["SIGTERM", "SIGHUP"])
+def test_a_termination_request_while_biased_ramps_down_and_switches_off(
+    tmp_path, sim, kit, monkeypatch, capfd, first
+):
+    # Before: SIGTERM (kill, a service manager stopping the job) or SIGHUP (the terminal
+    # closed) ended the process at once, the output left on at the bias voltage and the
+    # part charged. Now the run stops as on Ctrl-C, and a Ctrl-C pressed during the
+    # ramp-down that follows does not cut it short.
+    plan, store = kit.start_run(tmp_path, _biased(kit))
+    source = sim.instruments["dc_source"]
+    original = source.execute
+    sent: list[int] = []
+    after: list[tuple[float, bool]] = []  # (set-point, output on) after the request
+
+    def execute(session, text):
+        out = original(session, text)
+        bias = sim.state.bias
+        if sent:
+            after.append((bias.setpoint, bias.output))
+        if not sent and bias.output and bias.setpoint >= 3.0:
+            sent.append(first)  # the bias is up: the request arrives
+            os.kill(os.getpid(), first)
+        elif len(sent) == 1 and bias.output and 0.0 < bias.setpoint < 3.0:
+            sent.append(signal.SIGINT)  # ramping down: someone presses Ctrl-C as well
+            os.kill(os.getpid(), signal.SIGINT)
+        return out
+
+    monkeypatch.setattr(source, "execute", execute)
+    name = signal.Signals(first).name
+    with pytest.raises(RunError, match=f"stopped by {name}"):
+        kit.run_on(sim, plan, store)
+    assert sent == [first, signal.SIGINT]
+    # Ramped down with the output on, then switched off (the exchange the signal cut
+    # short was cleared from the link, not read as the answer to the ramp's first query).
+    assert any(0.0 < volts < 3.0 and on for volts, on in after), after
+    assert after[-1] == (0.0, False), after
+    assert sim.state.bias.output is False
+    assert sim.state.bias.setpoint == 0.0
+    log = (store.root / "log").read_text(encoding="utf-8")
+    assert f"stopped by {name}" in log
+    assert "DC bias output is OFF" in log
+    assert "SIGINT ignored: the run is stopping" in capfd.readouterr().err
+    _, again = kit.reopen(store)
+    assert again.manifest["state"] == "stopped"
+    assert signal.getsignal(first) is signal.SIG_DFL
 
 
 def test_an_unconfirmed_output_off_goes_to_stderr_with_its_own_status(

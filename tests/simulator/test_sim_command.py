@@ -1,4 +1,5 @@
-"""``zbench sim``: serves the scenario, prints the resources, stops cleanly on Ctrl-C."""
+"""``zbench sim``: serves the scenario, prints the resources, stops cleanly on Ctrl-C and
+on a termination request."""
 
 from __future__ import annotations
 
@@ -8,12 +9,20 @@ import signal
 import subprocess
 import sys
 
+import pytest
 import pyvisa
 
 from bench.cli import main
 
 
-def test_sim_serves_and_stops_on_interrupt():
+def _default_ctrl_c() -> None:
+    # A test run started in the background by a script inherits SIGINT ignored, and
+    # Python then keeps it so: the child must see Ctrl-C as a terminal would send it.
+    signal.signal(signal.SIGINT, signal.SIG_DFL)
+
+
+@pytest.mark.parametrize("signum", [signal.SIGINT, signal.SIGTERM], ids=["ctrl-c", "SIGTERM"])
+def test_sim_serves_and_stops_on_interrupt(signum):
     env = dict(os.environ, PYTHONUNBUFFERED="1")
     proc = subprocess.Popen(
         [sys.executable, "-m", "bench.cli", "sim", "demo", "--port", "0", "--time-scale", "0.001"],
@@ -21,6 +30,7 @@ def test_sim_serves_and_stops_on_interrupt():
         stderr=subprocess.PIPE,
         text=True,
         env=env,
+        preexec_fn=_default_ctrl_c,
     )
     try:
         resources = {}
@@ -38,7 +48,7 @@ def test_sim_serves_and_stops_on_interrupt():
         assert vna.query("*IDN?").startswith("zbench,")
         vna.close()
         rm.close()
-        proc.send_signal(signal.SIGINT)
+        proc.send_signal(signum)
         _, err = proc.communicate(timeout=20)
         assert proc.returncode == 0, err
         assert "stopping" in err
