@@ -3,12 +3,14 @@
 ``sim_bench`` is a running demo bench (seed 1, ``time_scale`` 0.001) stopped after the
 test; ``sim_bench_factory(scenario=..., **kwargs)`` starts others (each stopped after the
 test). Both give a :class:`simulated_instruments.server.RunningBench`: use its
-``resources`` (VISA strings per instrument) with pyvisa-py.
+``resources`` (VISA strings per instrument) with pyvisa-py. ``default_signals`` gives a
+test Ctrl-C, SIGTERM and SIGHUP as a terminal session has them.
 """
 
 from __future__ import annotations
 
 import os
+import signal
 from collections.abc import Callable, Iterator
 from typing import Any
 
@@ -24,6 +26,25 @@ from simulated_instruments.server import RunningBench, start_bench  # noqa: E402
 
 SIM_TIME_SCALE = 0.001
 SIM_SEED = 1
+
+
+@pytest.fixture
+def default_signals() -> Iterator[None]:
+    """SIGINT, SIGTERM and SIGHUP at their defaults for the test (Python's Ctrl-C handler,
+    the system's default for the others), the previous handlers restored afterwards. A
+    test run started in the background by a script, or under nohup, inherits some of them
+    ignored, which a run then keeps ignored (bench.stop_signals)."""
+    defaults = {
+        signal.SIGINT: signal.default_int_handler,
+        signal.SIGTERM: signal.SIG_DFL,
+        signal.SIGHUP: signal.SIG_DFL,
+    }
+    previous = {signum: signal.signal(signum, handler) for signum, handler in defaults.items()}
+    try:
+        yield
+    finally:
+        for signum, handler in previous.items():
+            signal.signal(signum, handler if handler is not None else signal.SIG_DFL)
 
 
 @pytest.fixture

@@ -84,6 +84,7 @@ def test_cut_link_while_biased_sets_zero_and_off_on_a_new_connection(tmp_path, s
     assert "switched off and set to 0 V on a new connection" in log
 
 
+@pytest.mark.usefixtures("default_signals")
 @pytest.mark.parametrize("first", [signal.SIGTERM, signal.SIGHUP], ids=["SIGTERM", "SIGHUP"])
 def test_a_termination_request_while_biased_ramps_down_and_switches_off(
     tmp_path, sim, kit, monkeypatch, capfd, first

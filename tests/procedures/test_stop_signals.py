@@ -13,6 +13,10 @@ import pytest
 
 from bench.stop_signals import Stopped, reason, stop_on_signals
 
+# Each test starts from a terminal session's handlers (tests/conftest.py), whatever the
+# test run inherited.
+pytestmark = pytest.mark.usefixtures("default_signals")
+
 
 def _deliver(signum: int) -> None:
     """Send ``signum`` to this process and give the main thread time to handle it."""
@@ -23,13 +27,12 @@ def _deliver(signum: int) -> None:
 
 @pytest.mark.parametrize("signum", [signal.SIGTERM, signal.SIGHUP], ids=["SIGTERM", "SIGHUP"])
 def test_termination_and_hang_up_stop_as_ctrl_c_does(signum):
-    before = signal.getsignal(signum)
     with pytest.raises(KeyboardInterrupt) as info, stop_on_signals():
         _deliver(signum)
     assert isinstance(info.value, Stopped)
     assert info.value.signum == signum
     assert reason(info.value).startswith(f"stopped by {signal.Signals(signum).name} (")
-    assert signal.getsignal(signum) is before
+    assert signal.getsignal(signum) is signal.SIG_DFL
 
 
 def test_ctrl_c_is_a_plain_keyboard_interrupt():
