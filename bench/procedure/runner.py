@@ -163,8 +163,9 @@ class Runner:
             self._stopped(current, f"stopped by the operator: {exc}", STOPPED)
             raise RunError(self._resume_text(f"stopped: {exc}")) from None
         except KeyboardInterrupt as exc:  # Ctrl-C, or SIGTERM or SIGHUP (stop_signals)
-            self._stopped(current, stop_signals.reason(exc), STOPPED)
-            raise RunError(self._resume_text(stop_signals.reason(exc))) from None
+            why = stop_signals.reason(exc)
+            self._stopped(current, why, STOPPED)
+            raise RunError(self._resume_text(why)) from None
         except RunError as exc:
             self._stopped(current, str(exc))
             raise RunError(self._resume_text(str(exc))) from None

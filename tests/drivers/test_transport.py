@@ -117,14 +117,20 @@ def test_timeout_names_resource_and_operation_and_is_restored(loopback_server):
         assert link.query("*IDN?").startswith("Invented Instruments")
 
 
-def test_reopen_after_timeout_discards_the_late_answer(loopback_server):
-    def late(line: bytes):
+def late_answer(delay_s: float):
+    """A responder that answers ``SLOW?`` with ``late answer`` after ``delay_s``."""
+
+    def respond(line: bytes):
         if line == b"SLOW?":
-            time.sleep(0.4)
+            time.sleep(delay_s)
             return b"late answer\n"
         return None
 
-    server = echo_server(loopback_server, late)
+    return respond
+
+
+def test_reopen_after_timeout_discards_the_late_answer(loopback_server):
+    server = echo_server(loopback_server, late_answer(0.4))
     with VisaTransport.open(server.resource, timeout_s=2.0) as link:
         with link.timeout(0.1), pytest.raises(InstrumentTimeout):
             link.query("SLOW?")
@@ -138,16 +144,10 @@ def test_an_exchange_cut_short_by_ctrl_c_is_cleared_before_the_next(loopback_ser
     # Ctrl-C (or a stop signal) while a query waits for its answer: the answer still
     # arrives, and without a clear the next query (a stop's ramp-down asking for the
     # set-point, say) would read it as its own.
-    def late(line: bytes):
-        if line == b"SLOW?":
-            time.sleep(0.3)
-            return b"late answer\n"
-        return None
-
     def interrupt(signum, frame):
         raise KeyboardInterrupt
 
-    server = echo_server(loopback_server, late)
+    server = echo_server(loopback_server, late_answer(0.3))
     previous = signal.signal(signal.SIGALRM, interrupt)
     try:
         with VisaTransport.open(server.resource, timeout_s=2.0) as link:
