@@ -135,9 +135,14 @@ def resonance_warnings(
         return out
     nearest = int(np.argmin(np.abs(np.log(f / srf))))
     if not inside[nearest] or data_marks.get("srf") is None:
+        # What the points above the resonance give (a capacitor's ESL, an inductor's
+        # winding capacitance) is the model's extrapolation too when none is used there.
+        above = "esl" if kind == "capacitor" else "c_par"
+        beyond = "" if np.any(inside & (f > srf)) else f" and {above}"
         out.append(
             f"the {what} near {format_si(srf, 'Hz')} lies outside the measurable window; "
-            "srf and the value at resonance come from the model, not from measured points"
+            f"srf, the value at resonance{beyond} come from the model, not from measured "
+            "points"
         )
     return out
 

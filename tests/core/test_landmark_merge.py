@@ -234,3 +234,21 @@ def test_r_dc_the_points_do_not_hold_is_the_models_as_the_fit_says(seed):
     measured = landmarks_for("inductor", data.f, data.z, data.inside_window)["r_dc"]
     assert measured > 1.3 * RDC
     assert abs(result.landmarks["r_dc"] - RDC) < 0.5 * abs(measured - RDC)
+
+
+def test_esl_from_the_model_alone_is_said_when_no_point_above_resonance_is_used():
+    # A capacitor measured only below its series resonance (reflection on a low-ESR part,
+    # say): the ESL, like the SRF, is the model's extrapolation and the warning says so.
+    import numpy as np
+
+    from bench.core.fitting import fit_impedance
+
+    f = np.geomspace(1e3, 100e6, 301)
+    w = 2 * np.pi * f
+    z = 5e-3 + 1j * w * 0.5e-9 + 1 / (1j * w * 1e-6)  # SRF 7.1 MHz
+    below = f < 7.1e6 / 5
+    fit = fit_impedance(f, z, model="series-rlc", valid=below)
+    said = [w for w in fit.warnings if "lies outside the measurable window" in w]
+    assert said and "and esl come from the model" in said[0], fit.warnings
+    whole = fit_impedance(f, z, model="series-rlc")
+    assert not any("esl come from the model" in w for w in whole.warnings)
