@@ -88,7 +88,8 @@ class FitResult:
     points used; ``candidates`` every family and order tried, with its criterion;
     ``excluded`` the points the screening left out (reason, count, band) and
     ``point_status`` the fate of every input point (``used``, ``outside-window``,
-    ``left-out``, ``unusable``, ``negative-resistance``, ``glitch``, ``band-edge``).
+    ``left-out``, ``unusable``, ``negative-resistance``, ``isolated``, ``glitch``,
+    ``band-edge``).
     ``meets_quality`` is ``rms_log_error <= quality_bound``. ``dropped`` names the
     elements that dropped out of the fit (not seen by the data; their values are
     placeholders and their uncertainties unbounded).

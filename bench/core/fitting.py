@@ -605,6 +605,11 @@ def fit_impedance(
         np.where(finite, z, 0), np.where(finite, sigma, 0)
     )
     used = candidates_ok & ~negative
+    lone = robust.isolated(f, z, sigma, used, finite)
+    if np.count_nonzero(used & ~lone) >= MIN_POINTS:
+        used &= ~lone
+    else:
+        lone[:] = False
     warnings: list[str] = []
     n_unusable = int(np.count_nonzero(~finite))
     if n_unusable:
@@ -657,7 +662,7 @@ def fit_impedance(
         return trials, climbs, marks, select(trials, quality_bound)
 
     trials, climbs, data_marks, (best, unsupported) = choose(used)
-    glitch, edge = _screen(f, z, candidates_ok, negative, all_weight, best)
+    glitch, edge = _screen(f, z, candidates_ok & ~lone, negative, all_weight, best)
     screened = used & ~glitch & ~edge
     if np.count_nonzero(screened) < n_used and np.count_nonzero(screened) >= MIN_POINTS:
         # The candidates again on the screened points, from where they ended: one start.
@@ -695,13 +700,14 @@ def fit_impedance(
     status[finite & ~inside] = "outside-window"
     status[finite & inside & left_out] = "left-out"
     status[negative] = "negative-resistance"
+    status[lone] = "isolated"
     status[glitch] = "glitch"
     status[edge] = "band-edge"
     excluded = tuple(
         e
         for e in (
             robust.exclusion(reason, f, status == reason)
-            for reason in ("negative-resistance", "glitch", "band-edge")
+            for reason in ("negative-resistance", "isolated", "glitch", "band-edge")
         )
         if e is not None
     )

@@ -1,10 +1,19 @@
 """Finding the points a passive model must not follow: the fitter's screening.
 
-Three kinds of point are left out of a fit and reported (reason, count, band):
+Four kinds of point are left out of a fit and reported (reason, count, band):
 
 - ``negative-resistance``: Re Z below zero by more than :data:`NEGATIVE_SIGMAS` times
   its uncertainty. No passive part gives it; a calibration residue (a through with a
   little delay left in it, a drifted load) does. Found before the fit.
+- ``isolated``: one or two points inside the window standing alone, more than
+  :data:`GLITCH_NEIGHBOURS` sweep points from any other point the fit uses, that jump
+  away from the measured points on either side of them (outside the window, so known
+  less well, but measured) and back: a glitch that happened to land inside the window.
+  A fit bends to a lone point at no cost to the rest, so its residual cannot show the
+  glitch: a phase slip on a milliohm part measured by reflection gives ten ohms inside
+  the window a decade above every other usable point, and the model's resonance follows
+  it. Found before the fit, from the sweep alone (:func:`isolated`). A lone point in line
+  with its neighbours (a resonance peak that just reaches into the window) stays.
 - ``glitch``: an isolated point (one or two in a row) far off a fit that follows its
   neighbours: a trigger slip, a relay bounce, a spur. Found on the residuals.
 - ``band-edge``: a run of points at the bottom or top of the band that the fit cannot
@@ -32,6 +41,12 @@ GLITCH_LEVEL = 4.0
 # A glitch stands this many times above the median residual of its neighbours.
 GLITCH_CONTRAST = 4.0
 GLITCH_NEIGHBOURS = 3
+# A lone point is out of line when its distance from the line through the points beside
+# it exceeds SPIKE_CONTRAST times the distance between those points (a spike out and
+# back, not a step or a resonance swinging the phase through the point) and
+# GLITCH_LEVEL times their joint uncertainty.
+ISLAND_POINTS = 2
+SPIKE_CONTRAST = 2.0
 EDGE_LEVEL = 3.0
 EDGE_SHARE = 0.2
 
@@ -73,6 +88,84 @@ def negative_resistance(
     its two components)."""
     sigma = np.abs(z) * np.abs(rel_uncertainty) / np.sqrt(2.0)
     return z.real < -NEGATIVE_SIGMAS * sigma
+
+
+def _wrapped(d: NDArray[np.complex128]) -> NDArray[np.complex128]:
+    """A difference of complex logarithms with its phase taken into (−π, π]."""
+    return d.real + 1j * np.angle(np.exp(1j * d.imag))
+
+
+def isolated(
+    f: NDArray[np.float64],
+    z: NDArray[np.complex128],
+    rel_uncertainty: NDArray[np.float64],
+    used: NDArray[np.bool_],
+    measured: NDArray[np.bool_],
+) -> NDArray[np.bool_]:
+    """Lone used points out of line with the sweep beside them (``isolated`` above).
+
+    A run of at most :data:`ISLAND_POINTS` points of ``used`` with more than
+    :data:`GLITCH_NEIGHBOURS` sweep points to the next used point on each side (or the
+    end of the sweep) is checked against the nearest ``measured`` points (finite, with a
+    finite uncertainty) outside the run: ln Z of each of its points against the line in
+    (ln f, ln Z) through the neighbours before and after it (through the last two
+    on one side at an end of the sweep). It is out of line when its distance from that
+    line exceeds :data:`SPIKE_CONTRAST` times the distance between the two neighbours
+    and :data:`GLITCH_LEVEL` times the joint uncertainty (each point's relative
+    uncertainty ``u`` taken as ``ln(1 + u)`` in ln Z, so that the wide uncertainty of
+    points far outside the window stays finite). A run with no such neighbours cannot be
+    checked and is kept."""
+    n = f.size
+    out = np.zeros(n, bool)
+    idx = np.flatnonzero(used)
+    if idx.size == 0:
+        return out
+    # Runs of used points: their first and last sweep index, and the gaps between them.
+    breaks = np.flatnonzero(np.diff(idx) > 1)
+    starts = idx[np.r_[0, breaks + 1]]
+    ends = idx[np.r_[breaks, idx.size - 1]]
+    gap_before = np.r_[n, starts[1:] - ends[:-1] - 1]
+    gap_after = np.r_[starts[1:] - ends[:-1] - 1, n]
+    lone = (ends - starts < ISLAND_POINTS) & (np.minimum(gap_before, gap_after) > GLITCH_NEIGHBOURS)
+    if not np.any(lone):
+        return out
+    # Each lone point, with the first and last index of its run.
+    first, last = starts[lone], ends[lone]
+    size = last - first + 1
+    p = np.repeat(first, size) + np.arange(size.sum()) - np.repeat(np.cumsum(size) - size, size)
+    first, last = np.repeat(first, size), np.repeat(last, size)
+    # Its neighbours: the nearest measured points before and after the run, or the two
+    # nearest on one side at an end of the sweep.
+    known = np.flatnonzero(measured)
+    before = np.searchsorted(known, first) - 1
+    after = np.searchsorted(known, last, side="right")
+    both = (before >= 0) & (after < known.size)
+    only_before = ~both & (before >= 1)
+    only_after = ~both & ~only_before & (after + 1 < known.size)
+    judged = both | only_before | only_after
+    if not np.any(judged):
+        return out
+    last_known = max(known.size - 1, 0)
+    a = np.where(both, before, np.where(only_before, before - 1, after + 1))
+    b = np.where(both, after, np.where(only_before, before, after))
+    p, a, b = (
+        p[judged],
+        known[np.clip(a[judged], 0, last_known)],
+        known[np.clip(b[judged], 0, last_known)],
+    )
+    x = np.log(f)
+    with np.errstate(all="ignore"):
+        log_z = np.log(z[p]), np.log(z[a]), np.log(z[b])
+    s = np.log1p(np.abs(rel_uncertainty))
+    t = (x[p] - x[a]) / (x[b] - x[a])
+    step = _wrapped(log_z[2] - log_z[1])
+    off = np.abs(_wrapped(log_z[0] - (log_z[1] + t * step)))
+    sigma = np.sqrt(s[p] ** 2 + ((1 - t) * s[a]) ** 2 + (t * s[b]) ** 2)
+    # Beyond the neighbours (an end of the sweep) the line's change grows with the
+    # distance from them.
+    reach = np.maximum(1.0, np.maximum(np.abs(t), np.abs(1 - t)))
+    out[p] = (off > SPIKE_CONTRAST * reach * np.abs(step)) & (off > GLITCH_LEVEL * sigma)
+    return out
 
 
 def glitches(residual: NDArray[np.float64]) -> NDArray[np.bool_]:
