@@ -121,6 +121,9 @@ def resonance_warnings(
 ) -> list[str]:
     srf = model_marks.get("srf")
     what = "series resonance" if kind == "capacitor" else "parallel resonance"
+    # What the points above the resonance give (a capacitor's ESL, an inductor's winding
+    # capacitance) is the model's extrapolation too when none is used there.
+    above = "esl" if kind == "capacitor" else "c_par"
     out = []
     if srf is None or not f[0] <= srf <= f[-1]:
         out.append(
@@ -129,15 +132,14 @@ def resonance_warnings(
             + (
                 "srf is not given"
                 if srf is None
-                else f"srf ({format_si(srf, 'Hz')}) is the model's extrapolation"
+                else f"srf ({format_si(srf, 'Hz')}) "
+                + (f"and {above} are" if srf > f[-1] else "is")
+                + " the model's extrapolation"
             )
         )
         return out
     nearest = int(np.argmin(np.abs(np.log(f / srf))))
     if not inside[nearest] or data_marks.get("srf") is None:
-        # What the points above the resonance give (a capacitor's ESL, an inductor's
-        # winding capacitance) is the model's extrapolation too when none is used there.
-        above = "esl" if kind == "capacitor" else "c_par"
         beyond = "" if np.any(inside & (f > srf)) else f" and {above}"
         out.append(
             f"the {what} near {format_si(srf, 'Hz')} lies outside the measurable window; "

@@ -358,3 +358,5 @@ def test_resonance_beyond_the_sweep_still_fits_and_says_so():
         landmarks_for("capacitor", f, part.impedance(f))["c_low"], rel=TOLERANCE["c_low"]
     )
     assert any("outside the sweep" in w for w in result.warnings)
+    # The ESL is read above the resonance: beyond the sweep too, and said so.
+    assert any("and esl are the model's extrapolation" in w for w in result.warnings)
