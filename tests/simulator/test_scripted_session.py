@@ -110,10 +110,14 @@ def test_calibrate_and_measure_every_position(sim_bench, bench_client):
         z = (549 / 2) * s21n / (1 - s21n)
         z_true = sc.parts[name].impedance(f)
         # The floor relative to the normalised trace is raised by the through's 0.0911.
-        inside = noise_limited(s21n, floor * 549 / 50) < 0.01
+        noise = noise_limited(s21n, floor * 549 / 50)
+        inside = noise < 0.01
         assert inside.sum() > 100, name
         error = np.abs(z / z_true - 1)[inside]
-        # Left: mount (0.3 mΩ), resistor board parasitics and uncorrected mismatch.
-        assert np.max(error) < 0.1, (name, np.max(error))
+        # Left: mount (0.3 mΩ), resistor board parasitics and uncorrected mismatch, which
+        # grow to about 9 % at 100 MHz, where the inductor nears 500 Ω; and each
+        # point's own noise, up to 1 % (one sigma) at the window's edge: three sigmas.
+        excess = error - (0.1 + 3 * noise[inside])
+        assert np.max(excess) < 0, (name, np.max(error), f[inside][np.argmax(excess)])
         checked += 1
     assert checked == sc.positions
