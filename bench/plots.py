@@ -31,6 +31,7 @@ from matplotlib.figure import Figure
 from matplotlib.ticker import EngFormatter, LogLocator, NullFormatter, NullLocator
 from matplotlib.transforms import ScaledTranslation
 
+from bench.core.robust import IN_BAND
 from bench.files import atomic_write_bytes
 from bench.units import format_si
 
@@ -311,6 +312,54 @@ def _outside_mask(data: Any) -> np.ndarray:
     return ~np.asarray(inside, dtype=bool)
 
 
+#: The fates of points inside the fitted band that the fit's screening left out
+#: (``FitResult.point_status``), marked point by point; a screened band edge is hatched
+#: with the other ends of the sweep the fit did not use.
+SCREENED = IN_BAND
+SCREENED_COLOUR = "#a0522d"
+_SCREENED_MARKER = {
+    "linestyle": "none",
+    "marker": "o",
+    "markersize": 4.5,
+    "markerfacecolor": "none",
+    "markeredgecolor": SCREENED_COLOUR,
+    "markeredgewidth": 1.0,
+}
+
+
+def _point_status(fit: Any, f: np.ndarray) -> np.ndarray | None:
+    """The fit's ``point_status`` of the points ``f``; None when it does not say (no
+    fit, or a fit made on other points)."""
+    status = getattr(fit, "point_status", None)
+    if status is None or len(status) != f.size:
+        return None
+    return np.asarray(status, dtype=object)
+
+
+def _screened_mask(fit: Any, f: np.ndarray) -> np.ndarray:
+    """The points of ``f`` that the fit's screening left out (:data:`SCREENED`)."""
+    status = _point_status(fit, f)
+    if status is None:
+        return np.zeros(f.shape, dtype=bool)
+    return np.isin(status, SCREENED)
+
+
+def _mark_screened_residuals(ax: Axes, f: np.ndarray, values: np.ndarray) -> None:
+    """Screened points on a residual panel whose scale is set: those beyond it drawn
+    at its edge as a triangle pointing their way, so a glitch is seen, not clipped."""
+    lo, hi = ax.get_ylim()
+    ax.set_autoscaley_on(False)
+    clamped = np.clip(values, lo, hi)
+    for where, marker in ((values > hi, "^"), (values < lo, "v")):
+        if np.any(where):
+            ax.plot(
+                f[where], clamped[where], clip_on=False, **{**_SCREENED_MARKER, "marker": marker}
+            )
+    within = ~((values > hi) | (values < lo))
+    if np.any(within):
+        ax.plot(f[within], values[within], **_SCREENED_MARKER)
+
+
 def _landmark_lines(ax: Axes, fit: Any, f: np.ndarray | None = None) -> None:
     """A thin vertical line at the resonance, the landmark an engineer looks for first."""
     srf = (getattr(fit, "landmarks", None) or {}).get("srf")
@@ -429,6 +478,16 @@ def _draw_impedance(
             **marker,
         )
         ax_esr.plot(f[outside], _positive(z.real[outside]), **marker)
+    screened = _screened_mask(fit, f)
+    if screened.any():
+        count = int(screened.sum())
+        ax_mag.plot(
+            f[screened],
+            _positive(np.abs(z[screened])),
+            label=f"screened out of the fit ({count})",
+            **_SCREENED_MARKER,
+        )
+        ax_esr.plot(f[screened], _positive(z.real[screened]), **_SCREENED_MARKER)
     _log_axes(ax_mag)
     _log_axes(ax_esr)
     _label_short_log_range(ax_mag, "Ω")
@@ -467,7 +526,12 @@ def _draw_residuals(
         ax_mag.fill_between(f, -band, band, label="±1σ measurement", **sigma)
         band_deg = np.degrees(np.clip(np.asarray(rel, dtype=float), 0, math.pi))
         ax_ph.fill_between(f, -band_deg, band_deg, **sigma)
-    inside = ~outside
+    screened = _screened_mask(fit, f)
+    inside = ~outside & ~screened
+    # The scale follows the points the fit used, where it says which: a glitch or a band
+    # edge far off would otherwise set it and flatten the rest.
+    status = _point_status(fit, f)
+    counted = inside if status is None else status == "used"
     ax_mag.plot(
         f, np.where(inside, mag_pct, np.nan), color=MEASURED_COLOUR, label="model − measured"
     )
@@ -489,10 +553,13 @@ def _draw_residuals(
     # Keep the scale on the points that count (outside points may be far off), wide
     # enough that the typical uncertainty band shows its edges.
     typical = None
-    if rel is not None and np.any(inside):
-        typical = float(np.nanmedian(np.asarray(rel, dtype=float)[inside]))
-    _limit_to(ax_mag, mag_pct[inside], None if typical is None else 100.0 * typical)
-    _limit_to(ax_ph, phase_deg[inside], None if typical is None else math.degrees(typical))
+    if rel is not None and np.any(counted):
+        typical = float(np.nanmedian(np.asarray(rel, dtype=float)[counted]))
+    _limit_to(ax_mag, mag_pct[counted], None if typical is None else 100.0 * typical)
+    _limit_to(ax_ph, phase_deg[counted], None if typical is None else math.degrees(typical))
+    if screened.any():
+        _mark_screened_residuals(ax_mag, f[screened], mag_pct[screened])
+        _mark_screened_residuals(ax_ph, f[screened], phase_deg[screened])
     ax_mag.set_ylabel("magnitude error (%)")
     ax_ph.set_ylabel("phase error (°)")
     if legends:
@@ -547,8 +614,12 @@ def sample_figure(
     Four panels on one frequency axis (Hz, log): |Z| with the measurable window shaded
     (Ω, ``data.window.z_min`` … ``z_max``), ESR = Re Z (Ω), the model's magnitude error
     (%) and its phase error (°) against the measurement, with the ±1σ measurement band.
-    Points outside the window are crosses; ends of the sweep the fit left out are
-    hatched. Without a fit only the two impedance panels are drawn.
+    Points outside the window are crosses; points the fit's screening left out inside
+    its band (a glitch, a lone point, negative resistance: ``fit.point_status``) are
+    open circles, drawn at the edge of a residual panel (a triangle) when beyond its
+    scale, which is set by the points the fit used; ends of the sweep the fit left out
+    (a screened band edge among them) are hatched. Without a fit only the two impedance
+    panels are drawn.
     """
     if fit is None:
         fig, (ax_mag, ax_esr) = _new_figure(2, height=5.5, top=0.95, reuse_as="sample")

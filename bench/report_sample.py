@@ -16,6 +16,7 @@ from typing import Any
 import numpy as np
 
 from bench import exports, verdicts
+from bench.core.robust import IN_BAND
 from bench.report_html import (
     esc,
     kv_table,
@@ -334,6 +335,12 @@ def sample_section(summary: RunSummary, spec: PartSpec, sample: SampleResult, fi
         caption += (
             "; lower panels: model minus measurement (complex log, magnitude in % and "
             "phase in degrees) with the ±1σ measurement band"
+        )
+    if sample.fit is not None and set(sample.fit.point_status) & set(IN_BAND):
+        caption += (
+            "; open circles: points the fit screened out (glitches, lone points out of "
+            "line with the sweep, negative resistance), at a residual panel's edge when "
+            "beyond its scale"
         )
     if _fit_range_is_narrower(sample):
         caption += "; hatched: ends of the sweep the fit left out"

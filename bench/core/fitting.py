@@ -705,10 +705,7 @@ def fit_impedance(
     status[edge] = "band-edge"
     excluded = tuple(
         e
-        for e in (
-            robust.exclusion(reason, f, status == reason)
-            for reason in ("negative-resistance", "isolated", "glitch", "band-edge")
-        )
+        for e in (robust.exclusion(reason, f, status == reason) for reason in robust.REASONS)
         if e is not None
     )
     for e in excluded:

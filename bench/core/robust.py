@@ -50,6 +50,11 @@ SPIKE_CONTRAST = 2.0
 EDGE_LEVEL = 3.0
 EDGE_SHARE = 0.2
 
+#: The reasons above, each a point's fate in ``FitResult.point_status``; the first
+#: three leave out points inside the band the fit covers (a band edge shortens it).
+REASONS = ("negative-resistance", "isolated", "glitch", "band-edge")
+IN_BAND = REASONS[:3]
+
 
 @dataclass(frozen=True)
 class Exclusion:

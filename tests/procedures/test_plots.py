@@ -169,3 +169,64 @@ def test_axis_labels_clear_the_tick_labels_and_stay_inside(summary):
                 ]
                 assert xlabel.y1 < min(box.y0 for box in xticks)
                 assert xlabel.y0 >= 0
+
+
+def _mlcc(glitches=True):
+    """An invented 10 µF MLCC (series R-L-C, 20 mΩ, 0.6 nH) with 0.5 % noise and, with
+    ``glitches``, two glitches inside the window: one far out (×3), one in phase (0.3
+    rad). Returns the data, its fit and the glitches' indices."""
+    from bench.core.fitting import fit_impedance
+
+    f = np.geomspace(1e3, 1e8, 401)
+    w = 2 * np.pi * f
+    z = 20e-3 + 1j * w * 0.6e-9 + 1 / (1j * w * 10e-6)
+    rng = np.random.default_rng(4)
+    z = z * (1 + 0.005 * (rng.standard_normal(f.size) + 1j * rng.standard_normal(f.size)))
+    where = [120, 260] if glitches else []
+    if glitches:
+        z[120] *= 3.0
+        z[260] *= np.exp(0.3j)
+    data = type("Data", (), {"f": f, "z": z, "rel_uncertainty": np.full(f.size, 0.005)})()
+    return data, fit_impedance(f, z, rel_uncertainty=data.rel_uncertainty), where
+
+
+def _circles(ax):
+    """The lines of ``ax`` drawn as open circles alone (the screened points)."""
+    lines = ax.lines
+    return [line for line in lines if line.get_marker() == "o" and line.get_linestyle() == "None"]
+
+
+def test_points_the_fit_screened_out_are_marked_and_do_not_set_the_residual_scale():
+    data, fit, glitches = _mlcc()
+    status = np.asarray(fit.point_status)
+    assert list(np.flatnonzero(status != "used")) == glitches
+    assert set(status[glitches]) == {"glitch"}
+    fig = plots.sample_figure(data, fit)
+    labels = [text.get_text() for text in fig.legends[0].get_texts()]
+    assert "screened out of the fit (2)" in labels
+    ax_mag, ax_esr, ax_res, ax_ph = fig.axes
+    for ax in (ax_mag, ax_esr):
+        (marked,) = _circles(ax)
+        assert np.allclose(marked.get_xdata(), data.f[glitches])
+    # The residual scale follows the used points (0.5 % noise: a few per cent), not the
+    # ×3 glitch (model − measured: ln(1/3), −110 %), which is drawn at the bottom edge.
+    lo, hi = ax_res.get_ylim()
+    assert lo > -10.0 and hi < 10.0
+    (edge,) = [line for line in ax_res.lines if line.get_marker() == "v"]
+    assert edge.get_xdata()[0] == pytest.approx(data.f[120])
+    assert edge.get_ydata()[0] == pytest.approx(lo)
+    # The phase glitch (−0.3 rad, −17°) lies beyond the phase panel's scale: at its edge.
+    lo, hi = ax_ph.get_ylim()
+    assert lo > -17.0 and hi < 17.0
+    (edge,) = [line for line in ax_ph.lines if line.get_marker() == "v"]
+    assert edge.get_xdata()[0] == pytest.approx(data.f[260])
+    assert edge.get_ydata()[0] == pytest.approx(lo)
+
+
+def test_a_fit_that_screened_nothing_marks_nothing():
+    data, fit, _ = _mlcc(glitches=False)
+    assert set(fit.point_status) == {"used"}
+    fig = plots.sample_figure(data, fit)
+    labels = [text.get_text() for text in fig.legends[0].get_texts()]
+    assert not any(label.startswith("screened out") for label in labels)
+    assert not any(_circles(ax) for ax in fig.axes)
