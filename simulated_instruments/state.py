@@ -387,7 +387,11 @@ class BenchState:
             plan.if_bandwidth,
             plan.corrected,
         )
-        key = zlib.crc32(repr(setup).encode() + np.ascontiguousarray(plan.f).tobytes())
+        # The grid in single precision: a frequency computed on another processor may
+        # differ in its last bits (numpy's vectorised log and power differ between
+        # instruction sets), and the same sweep must draw the same noise on every machine.
+        grid = np.ascontiguousarray(plan.f, dtype=np.float32).tobytes()
+        key = zlib.crc32(repr(setup).encode() + grid)
         count = self._sweep_counts.get(key, 0)
         self._sweep_counts[key] = count + 1
         return np.random.default_rng([self.scenario.seed, 1, key, count])

@@ -95,6 +95,23 @@ def test_same_seed_same_bench(sim_bench_factory, bench_client):
     np.testing.assert_array_equal(results[0], results[1])
 
 
+def test_a_sweep_draws_its_noise_whatever_the_last_bits_of_its_grid():
+    """numpy's vectorised log and power differ in the last bit between instruction sets,
+    so one sweep's grid computed on two machines may differ there: the noise must not."""
+    from simulated_instruments.state import BenchState, SweepPlan
+
+    f = np.geomspace(1e3, 1e8, 101)
+    nudged = f.copy()
+    nudged[::7] = np.nextafter(nudged[::7], np.inf)
+    assert not np.array_equal(f, nudged)
+    draws = []
+    for grid in (f, nudged):
+        state = BenchState(load_scenario("demo"), time_scale=1.0)
+        plan = SweepPlan(f=grid, power_dbm=0.0, if_bandwidth=1e3, corrected=False)
+        draws.append(state.sweep_rng(plan).standard_normal(8))
+    np.testing.assert_array_equal(draws[0], draws[1])
+
+
 def test_correction_on_returns_data_at_the_cable_ends(sim_bench, bench_client):
     client = bench_client(sim_bench)
     client.configure(1e3, 1e8, 101, ifbw=10)
