@@ -361,3 +361,18 @@ def add_noise(
         return sigma * (rng.standard_normal(s.shape) + 1j * rng.standard_normal(s.shape))
 
     return s * (1 + complex_gaussian(trace_rms)) + complex_gaussian(floor)
+
+
+def add_glitches(s: np.ndarray, rng: np.random.Generator, rate: float, size: float) -> np.ndarray:
+    """``s`` (n, 2, 2) with each point, by chance ``rate``, a glitch: its whole S-matrix
+    times ``exp(size·e^jθ)`` with θ uniform (magnitude, phase or both off by ``size`` in
+    natural-log units: 0.3 is 35 % or 17°). Draws nothing when ``rate`` is 0."""
+    if rate <= 0:
+        return s
+    hit = rng.random(s.shape[0]) < rate
+    if not np.any(hit):
+        return s
+    theta = rng.uniform(0.0, 2 * np.pi, int(np.count_nonzero(hit)))
+    out = s.copy()
+    out[hit] *= np.exp(size * np.exp(1j * theta))[:, None, None]
+    return out

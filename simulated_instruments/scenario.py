@@ -84,6 +84,12 @@ SCHEMA: dict[str, Any] = _obj(
                 "if_bandwidth": _range(),
                 "noise_floor_db": {"type": "number"},
                 "trace_noise_db": {"type": "number", "minimum": 0},
+                "glitches": _obj(
+                    {
+                        "rate": {"type": "number", "minimum": 0, "maximum": 0.05},
+                        "size": {"type": "number", "exclusiveMinimum": 0, "maximum": 3},
+                    }
+                ),
                 "sweep_time": _obj({"overhead": _Q, "per_point": _Q, "settle_cycles": _Q}),
                 "error_boxes": _obj(
                     {
@@ -204,6 +210,11 @@ class AnalyzerSpec:
     ifbw_max: float = 100e3
     noise_floor_db: float = -100.0
     trace_noise_db: float = 0.01
+    #: The chance that a point of a sweep is a glitch (a trigger slip, a relay bounce,
+    #: a spur), and its size: the whole S-matrix of the point times ``exp(size·e^jθ)``,
+    #: θ drawn at random (so a change of magnitude, of phase, or both).
+    glitch_rate: float = 0.0
+    glitch_size: float = 0.3
     sweep_overhead: float = 5e-3
     sweep_per_point: float = 25e-6
     settle_cycles: float = 1.2
@@ -394,6 +405,8 @@ def load_scenario(
         ifbw_max=bw_max,
         noise_floor_db=float(a.get("noise_floor_db", d.noise_floor_db)),
         trace_noise_db=float(a.get("trace_noise_db", d.trace_noise_db)),
+        glitch_rate=float(a.get("glitches", {}).get("rate", d.glitch_rate)),
+        glitch_size=float(a.get("glitches", {}).get("size", d.glitch_size)),
         sweep_overhead=_q(st, "overhead", "s", d.sweep_overhead, "analyzer.sweep_time"),
         sweep_per_point=_q(st, "per_point", "s", d.sweep_per_point, "analyzer.sweep_time"),
         settle_cycles=_q(st, "settle_cycles", None, d.settle_cycles, "analyzer.sweep_time"),

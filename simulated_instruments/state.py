@@ -363,7 +363,9 @@ class BenchState:
                 # The floor is specified relative to the raw through level.
                 s1, s2, _, _ = self.error_boxes(plan.f)
                 floor = floor * np.abs(s1[:, 1, 0] * s2[:, 0, 1])
-            return physics.add_noise(s, self.sweep_rng(plan), floor, trace)
+            rng = self.sweep_rng(plan)
+            s = physics.add_noise(s, rng, floor, trace)
+            return physics.add_glitches(s, rng, spec.glitch_rate, spec.glitch_size)
 
     def sweep_rng(self, plan: SweepPlan) -> np.random.Generator:
         """The noise of one sweep, drawn from the seed, what is measured and how often.

@@ -66,6 +66,8 @@ def test_samples_are_seeded_and_spread_realistically():
         (lambda d: d["parts"]["FB137"]["circuit"].update(type="resistor"), ["FB137", "type"]),
         (lambda d: d["parts"]["FB137"]["circuit"].update(inductance="fast"), ["FB137"]),
         (lambda d: d["initial"].update(placements={"3": "NOPE/s1"}), ["NOPE/s1"]),
+        (lambda d: d["analyzer"].update(glitches={"rate": 0.5}), ["glitches", "rate"]),
+        (lambda d: d["analyzer"].update(glitches={"size": 0}), ["glitches", "size"]),
     ],
 )
 def test_bad_scenarios_are_clear_input_errors(change, words):
@@ -132,3 +134,23 @@ def test_a_folder_named_like_a_scenario_does_not_hide_it(tmp_path, monkeypatch):
     (tmp_path / "demo").mkdir()
     by_name = load_scenario("demo")
     assert by_name.parts == load_scenario(SCENARIO_DIR / "demo.yaml").parts
+
+
+def test_glitches_are_rare_points_off_by_their_size_and_cost_no_draws_when_off():
+    from simulated_instruments import physics
+
+    s = np.ones((200_000, 2, 2), dtype=complex)
+    rng = np.random.default_rng(5)
+    state = rng.bit_generator.state
+    assert physics.add_glitches(s, rng, 0.0, 0.3) is s
+    assert rng.bit_generator.state == state  # the sweep's noise stream is untouched
+    out = physics.add_glitches(s, rng, 0.004, 0.3)
+    hit = np.any(out != 1, axis=(1, 2))
+    # Binomial count: 800 expected, one sigma about 28 (four sigmas allowed).
+    assert abs(int(hit.sum()) - 800) < 4 * 28
+    # Every element of a glitched point's S-matrix moves alike, by |ln factor| = size.
+    factor = out[hit, 0, 0]
+    assert np.allclose(out[hit], factor[:, None, None])
+    assert np.allclose(np.abs(np.log(factor)), 0.3)
+    assert load_scenario("demo_glitches").analyzer.glitch_rate == 0.004
+    assert load_scenario("demo").analyzer.glitch_rate == 0.0
