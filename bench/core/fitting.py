@@ -626,7 +626,11 @@ def fit_impedance(
             f"finite, no negative resistance); a fit needs at least {MIN_POINTS}. Widen the "
             "sweep, raise the signal, or fit series resistors to move the window onto the part"
         )
-    kind = classify(f[used], z[used])
+    # The kind is read from the runs of the band, not from a point or two standing apart
+    # (a glitch far below the rest, inside the window only by its own error, would
+    # otherwise decide it), unless nothing else is left.
+    in_runs = used & ~robust.apart(used)
+    kind = classify(*((f[in_runs], z[in_runs]) if np.any(in_runs) else (f[used], z[used])))
     if model != "auto" and FAMILIES[model].kind != kind:
         fits = [name for name, fam in FAMILIES.items() if fam.kind == kind]
         raise ModelMismatchError(
@@ -661,9 +665,34 @@ def fit_impedance(
             raise FitError(f"too few points ({n}) for any order of model {model!r}")
         return trials, climbs, marks, select(trials, quality_bound)
 
-    trials, climbs, data_marks, (best, unsupported) = choose(used)
+    # Lone points whose neighbours are noise cannot be judged on the sweep: each is
+    # judged against the model of the rest of the band, and left out as isolated when
+    # it lies more than GLITCH_LEVEL of its uncertainties off it (a fit made with it
+    # could bend to it unseen). Those in line with that model are used after all.
+    doubtful = robust.unvouched(sigma, used, finite)
+    probe = used & ~doubtful
+    if np.any(doubtful) and np.count_nonzero(probe) >= MIN_POINTS:
+        trials, climbs, data_marks, (best, unsupported) = choose(probe)
+        idx = np.flatnonzero(doubtful)
+        with np.errstate(all="ignore"):
+            off = np.abs(log_ratio(model_impedance(best, f[idx]), z[idx])) * all_weight[idx]
+        out_of_line = np.zeros(f.size, bool)
+        out_of_line[idx] = ~(off <= robust.GLITCH_LEVEL)
+        lone |= out_of_line
+        used &= ~out_of_line
+        n_used = int(np.count_nonzero(used))
+        if n_used > np.count_nonzero(probe):  # some fit the band's model: fitted with it
+            trials, climbs, data_marks, (best, unsupported) = choose(used)
+    else:
+        trials, climbs, data_marks, (best, unsupported) = choose(used)
     glitch, edge = _screen(f, z, candidates_ok & ~lone, negative, all_weight, best)
     screened = used & ~glitch & ~edge
+    if np.count_nonzero(screened) < n_used:
+        # A glitch left out may leave a point beside it standing alone: judged as such.
+        newly = robust.isolated(f, z, sigma, screened, finite)
+        if np.count_nonzero(screened & ~newly) >= MIN_POINTS:
+            lone |= newly
+            screened &= ~newly
     if np.count_nonzero(screened) < n_used and np.count_nonzero(screened) >= MIN_POINTS:
         # The candidates again on the screened points, from where they ended: one start.
         used = screened

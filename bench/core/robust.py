@@ -47,6 +47,9 @@ GLITCH_NEIGHBOURS = 3
 # GLITCH_LEVEL times their joint uncertainty.
 ISLAND_POINTS = 2
 SPIKE_CONTRAST = 2.0
+# A reading whose relative uncertainty is this or more is noise (within its own noise of
+# zero): it neither vouches for a lone point beside it nor shows it out of line.
+VAGUE = 1.0
 EDGE_LEVEL = 3.0
 EDGE_SHARE = 0.2
 
@@ -100,6 +103,38 @@ def _wrapped(d: NDArray[np.complex128]) -> NDArray[np.complex128]:
     return d.real + 1j * np.angle(np.exp(1j * d.imag))
 
 
+def _lone_runs(used: NDArray[np.bool_]) -> tuple[NDArray[np.intp], NDArray[np.intp]]:
+    """The first and last sweep index of each run of at most :data:`ISLAND_POINTS`
+    points of ``used`` with more than :data:`GLITCH_NEIGHBOURS` sweep points to the next
+    used point on each side (or the end of the sweep)."""
+    n = used.size
+    idx = np.flatnonzero(used)
+    if idx.size == 0:
+        return idx, idx
+    # Runs of used points: their first and last sweep index, and the gaps between them.
+    breaks = np.flatnonzero(np.diff(idx) > 1)
+    starts = idx[np.r_[0, breaks + 1]]
+    ends = idx[np.r_[breaks, idx.size - 1]]
+    gap_before = np.r_[n, starts[1:] - ends[:-1] - 1]
+    gap_after = np.r_[starts[1:] - ends[:-1] - 1, n]
+    lone = (ends - starts < ISLAND_POINTS) & (np.minimum(gap_before, gap_after) > GLITCH_NEIGHBOURS)
+    return starts[lone], ends[lone]
+
+
+def _run_points(first: NDArray[np.intp], last: NDArray[np.intp]) -> NDArray[np.intp]:
+    """Every index of the runs ``first[i]`` to ``last[i]`` (inclusive), in order."""
+    size = last - first + 1
+    return np.repeat(first, size) + np.arange(size.sum()) - np.repeat(np.cumsum(size) - size, size)
+
+
+def apart(used: NDArray[np.bool_]) -> NDArray[np.bool_]:
+    """The points of ``used`` in lone runs (see :func:`isolated`), in line with their
+    neighbours or not: one or two points standing apart from the rest of the band."""
+    out = np.zeros(used.size, bool)
+    out[_run_points(*_lone_runs(used))] = True
+    return out
+
+
 def isolated(
     f: NDArray[np.float64],
     z: NDArray[np.complex128],
@@ -122,22 +157,12 @@ def isolated(
     checked and is kept."""
     n = f.size
     out = np.zeros(n, bool)
-    idx = np.flatnonzero(used)
-    if idx.size == 0:
-        return out
-    # Runs of used points: their first and last sweep index, and the gaps between them.
-    breaks = np.flatnonzero(np.diff(idx) > 1)
-    starts = idx[np.r_[0, breaks + 1]]
-    ends = idx[np.r_[breaks, idx.size - 1]]
-    gap_before = np.r_[n, starts[1:] - ends[:-1] - 1]
-    gap_after = np.r_[starts[1:] - ends[:-1] - 1, n]
-    lone = (ends - starts < ISLAND_POINTS) & (np.minimum(gap_before, gap_after) > GLITCH_NEIGHBOURS)
-    if not np.any(lone):
+    first, last = _lone_runs(used)
+    if first.size == 0:
         return out
     # Each lone point, with the first and last index of its run.
-    first, last = starts[lone], ends[lone]
     size = last - first + 1
-    p = np.repeat(first, size) + np.arange(size.sum()) - np.repeat(np.cumsum(size) - size, size)
+    p = _run_points(first, last)
     first, last = np.repeat(first, size), np.repeat(last, size)
     # Its neighbours: the nearest measured points before and after the run, or the two
     # nearest on one side at an end of the sweep.
@@ -169,7 +194,47 @@ def isolated(
     # Beyond the neighbours (an end of the sweep) the line's change grows with the
     # distance from them.
     reach = np.maximum(1.0, np.maximum(np.abs(t), np.abs(1 - t)))
-    out[p] = (off > SPIKE_CONTRAST * reach * np.abs(step)) & (off > GLITCH_LEVEL * sigma)
+    in_log = (off > SPIKE_CONTRAST * reach * np.abs(step)) & (off > GLITCH_LEVEL * sigma)
+    # The same in Z itself, against each point's absolute uncertainty u·|Z|: below the
+    # window's floor a reading is the floor's noise, which adds to Z rather than scaling
+    # it, and there ln(1 + u) makes neighbours of any reading look too vague to judge.
+    # Only where the neighbours are near (a straight line in Z holds over a step or two).
+    z_p, z_a, z_b = z[p], z[a], z[b]
+    a_abs = np.abs(rel_uncertainty) * np.abs(z)
+    off_z = np.abs(z_p - (z_a + t * (z_b - z_a)))
+    sigma_z = np.sqrt(a_abs[p] ** 2 + ((1 - t) * a_abs[a]) ** 2 + (t * a_abs[b]) ** 2)
+    in_z = (
+        (reach <= 2.0)
+        & (off_z > SPIKE_CONTRAST * reach * np.abs(z_b - z_a))
+        & (off_z > GLITCH_LEVEL * sigma_z)
+    )
+    out[p] = in_log | in_z
+    return out
+
+
+def unvouched(
+    rel_uncertainty: NDArray[np.float64],
+    used: NDArray[np.bool_],
+    measured: NDArray[np.bool_],
+) -> NDArray[np.bool_]:
+    """Points of lone runs of ``used`` (:func:`apart`) whose nearest ``measured``
+    neighbours outside the run, on each side that has one, are all noise: relative
+    uncertainty :data:`VAGUE` or more, a reading within its own noise of zero (or that
+    have no measured neighbour at all). Such neighbours cannot vouch for the run, nor
+    show it out of line (:func:`isolated`): the fitter judges it against the model of
+    the rest of the band instead."""
+    out = np.zeros(used.size, bool)
+    first, last = _lone_runs(used)
+    if first.size == 0:
+        return out
+    known = np.flatnonzero(measured)
+    u = np.abs(np.asarray(rel_uncertainty, dtype=float))
+    # The measured points' uncertainty, with an end of the sweep as noise.
+    u_known = np.r_[np.inf, u[known], np.inf]
+    before = np.searchsorted(known, first)  # in u_known: the neighbour before the run
+    after = np.searchsorted(known, last, side="right") + 1
+    vague = (u_known[before] >= VAGUE) & (u_known[after] >= VAGUE)
+    out[_run_points(first[vague], last[vague])] = True
     return out
 
 

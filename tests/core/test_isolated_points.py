@@ -160,7 +160,36 @@ def test_only_lone_points_are_judged_and_only_against_measured_neighbours():
     unmeasured = np.ones(f.size, bool)
     unmeasured[41:300] = unmeasured[301:] = False  # nothing to judge it against
     assert not robust.isolated(f, z, u, alone, unmeasured)[300]
-    # Far outside the window its neighbours are known to a factor of ten at most: a
-    # thirtyfold spike is then within their uncertainty and stays.
-    vague = np.where(used, u, 9.0)
+    # Far outside the window a reading is the floor's noise, nine times the reading (one
+    # sigma) here: a tenfold spike is within it and stays; a thirtyfold one lies 4.5
+    # sigmas off the line between them and goes, as a glitch landing in the window below
+    # the floor would.
+    vague = np.where(alone, u, 9.0)
+    assert robust.isolated(f, z, vague, alone, np.ones(f.size, bool))[300]
+    z[300] /= 3
     assert not robust.isolated(f, z, vague, alone, np.ones(f.size, bool))[300]
+
+
+def test_the_kind_is_read_from_the_band_not_from_a_lone_glitch_below_it():
+    """An invented 1 µH power inductor (10 mΩ winding, 3 pF) swept from 100 Hz, where
+    everything below 50 kHz lies under the window's floor and is known to a factor of
+    ten at best, as glitches of their own leave it. One glitch at 300 Hz reads 0.1 − 0.2j
+    Ω: capacitive, inside the window, and within the noise of neighbours too vague to
+    show it out of line.
+    It is the only point in the lowest quarter of the used band; the kind must come from
+    the band above it."""
+    f = np.geomspace(100.0, 2e8, 201)
+    w = 2 * np.pi * f
+    z = 1 / (1 / (10e-3 + 1j * w * 1e-6) + 1j * w * 3e-12)
+    rng = np.random.default_rng(2)
+    z = z * (1 + 0.005 * (rng.standard_normal(f.size) + 1j * rng.standard_normal(f.size)))
+    lone = int(np.argmin(np.abs(f - 300.0)))
+    z[lone] = 0.1 - 0.2j
+    inside = (f > 5e4) | (np.arange(f.size) == lone)
+    u = np.where(inside, 0.005, 9.0)
+    assert not robust.isolated(f, z, u, inside, np.ones(f.size, bool)).any()  # the trap
+    result = fit_impedance(f, z, rel_uncertainty=u, valid=inside)
+    assert result.kind == "inductor"
+    assert result.point_status[lone] != "used"
+    # An inductor's low-frequency inductance is Im Z / ω (handbook definition).
+    assert result.landmarks["l_low"] == pytest.approx(1e-6, rel=0.03)
