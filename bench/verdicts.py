@@ -78,12 +78,17 @@ _READ_KEPT = 512
 
 
 def data_landmarks(sample: SampleResult, kind: str) -> dict[str, float | None]:
-    """Landmarks read straight from the points inside the window ({} if none can be)."""
+    """Landmarks read straight from the points inside the window ({} if none can be),
+    but for those the sample's fit screened out (a glitch is no reading of the part)."""
     import hashlib
 
     from bench.core.landmarks import landmarks_for
+    from bench.core.robust import REASONS
 
     inside = np.asarray(sample.data.inside_window, dtype=bool)
+    status = getattr(sample.fit, "point_status", None) or ()
+    if len(status) == inside.size:
+        inside = inside & ~np.isin(np.asarray(status, dtype=object), REASONS)
     if inside.sum() < 3:
         return {}
     f = np.ascontiguousarray(sample.data.f, dtype=float)
