@@ -738,10 +738,13 @@ def fit_impedance(
         if e is not None
     )
     for e in excluded:
-        warnings.append(
-            f"{e.count} points left out as {e.reason} "
-            f"({format_si(e.f_lo, 'Hz')} to {format_si(e.f_hi, 'Hz')})"
+        where = (
+            f"at {format_si(e.f_lo, 'Hz')}"
+            if e.f_lo == e.f_hi
+            else f"{format_si(e.f_lo, 'Hz')} to {format_si(e.f_hi, 'Hz')}"
         )
+        points = "1 point" if e.count == 1 else f"{e.count} points"
+        warnings.append(f"{points} left out as {e.reason} ({where})")
 
     zm = model_impedance(best, fu)
     err = np.abs(log_ratio(zm, zu))

@@ -26,6 +26,7 @@ from bench.core import robust
 from bench.core.conversions import reflection_s11
 from bench.core.fitting import fit_impedance
 from bench.core.impedance import impedance_from_reflection
+from bench.units import format_si
 
 F = np.geomspace(1e4, 2e7, 331)
 SLIP = int(np.argmin(np.abs(F - 8.6e6)))
@@ -78,6 +79,7 @@ def test_a_phase_slip_landing_in_the_window_is_left_out_and_changes_nothing(mlcc
         "f_hi": F[SLIP],
         "frequencies": [F[SLIP]],
     } in result.to_json()["excluded"]
+    assert f"1 point left out as isolated (at {format_si(F[SLIP], 'Hz')})" in result.warnings
     assert result.f_range[1] < F[SLIP] / 50
     # The fit is the one made without the glitch: same points, same model, same values.
     assert result.quality.points_used == reference.quality.points_used
