@@ -31,6 +31,8 @@ from typing import Any
 
 import numpy as np
 
+from bench.units import format_si
+
 THROUGH_DB = 6.0
 REFLECTION_DISTANCE = 0.4
 MOUNT_SHORT_MAX_OHM = 0.5
@@ -143,3 +145,45 @@ def check_part(inside_window: Any, label: str) -> str | None:
             "this set-up?"
         )
     return None
+
+
+# A frequency screened out of this share of a run's fitted samples (and of at least
+# SHARED_MIN of them) is the set-up's, not the parts'.
+SHARED_SHARE = 0.5
+SHARED_MIN = 3
+
+
+def shared_screening(samples: Any) -> str | None:
+    """A note when the fits of many samples left out a point at the same frequency.
+
+    ``samples`` have ``label``, ``data.f`` and ``fit`` (its ``point_status``, or None).
+    A glitch, a lone point out of line or a negative resistance (``bench.core.robust``)
+    at one frequency in at least :data:`SHARED_SHARE` of the fitted samples, and in at
+    least :data:`SHARED_MIN`, came with a capture they share (a calibration standard, the
+    through, a mount short), not with the parts: worth repeating that capture. None when
+    no frequency is shared so."""
+    from bench.core.robust import IN_BAND
+
+    counts: dict[float, int] = {}
+    fitted = 0
+    for sample in samples:
+        status = getattr(sample.fit, "point_status", None) or ()
+        f = np.asarray(sample.data.f, dtype=float)
+        if len(status) != f.size:
+            continue
+        fitted += 1
+        screened = np.isin(np.asarray(status, dtype=object), IN_BAND)
+        for value in np.unique(np.float32(f[screened])):  # grids agree to 7 digits
+            counts[float(value)] = counts.get(float(value), 0) + 1
+    need = max(SHARED_MIN, math.ceil(SHARED_SHARE * fitted))
+    shared = sorted(f for f, n in counts.items() if n >= need)
+    if not shared:
+        return None
+    listed = ", ".join(f"{format_si(f, 'Hz')} ({counts[f]} of {fitted})" for f in shared[:6])
+    more = f" and {len(shared) - 6} more" if len(shared) > 6 else ""
+    return (
+        f"the fits of many samples left out a point at the same frequency: {listed}{more}; "
+        "shared by so many parts, it came with a capture they share (a calibration "
+        "standard, the through or a mount short), not with the parts; repeat that capture "
+        "if the points matter"
+    )

@@ -21,6 +21,7 @@ from bench.core.fixture import MountOpen
 from bench.core.impedance import ImpedanceData
 from bench.errors import FitError
 from bench.parallel import ordered_map
+from bench.plausibility import shared_screening
 from bench.procedure.corrections import (
     Corrector,
     GroundLoopResult,
@@ -154,6 +155,9 @@ def build_summary(
             [task for _, task in unfitted],
             lambda tasks: ordered_map(fit_task, tasks, jobs),
         )
+        shared = shared_screening(samples)
+        if shared is not None:
+            warnings.append(shared)
     loop_info = {
         str(pos): {
             "detected": r.detected,

@@ -12,6 +12,7 @@ from bench.errors import RunError
 from bench.procedure.operators import ScriptedOperator
 from bench.procedure.processing import build_summary
 from bench.runstore import DONE
+from bench.units import format_si
 
 ONE_PART = """\
 name: one-part
@@ -121,3 +122,32 @@ def test_checks_on_invented_captures():
     assert plausibility.check_mount_short(f, np.full(f.size, 1e4 + 0j), 1) is not None
     assert plausibility.check_part(np.zeros(10, bool), "A/s1") is not None
     assert plausibility.check_part(np.ones(10, bool), "A/s1") is None
+
+
+def _screened(label, f, left_out):
+    from types import SimpleNamespace
+
+    status = np.full(f.size, "used", dtype=object)
+    status[list(left_out)] = "glitch"
+    return SimpleNamespace(
+        label=label, data=SimpleNamespace(f=f), fit=SimpleNamespace(point_status=tuple(status))
+    )
+
+
+def test_a_point_screened_out_of_most_samples_is_blamed_on_a_shared_capture():
+    f = np.geomspace(100.0, 2e8, 201)
+    # A glitch in the calibration's through at point 120 shows in four of five samples;
+    # each sample also has a glitch of its own.
+    samples = [_screened(f"s{k}", f, [120, 10 + k]) for k in range(4)]
+    samples.append(_screened("s4", f, [40]))
+    note = plausibility.shared_screening(samples)
+    assert note is not None
+    assert f"at the same frequency: {format_si(f[120], 'Hz')} (4 of 5)" in note
+    assert "calibration standard" in note
+    # Two of five is no pattern; nor is one sample alone; nor samples without a fit.
+    assert plausibility.shared_screening(samples[3:]) is None
+    assert plausibility.shared_screening(samples[:1]) is None
+    unfitted = [_screened(f"u{k}", f, [120]) for k in range(3)]
+    for sample in unfitted:
+        sample.fit = None
+    assert plausibility.shared_screening(unfitted) is None
