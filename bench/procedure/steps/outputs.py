@@ -60,6 +60,11 @@ def fit(ctx: RunContext, step: Step) -> None:
             )
         else:
             ctx.display.result(f"fit {sample.label}: no model ({sample.fit_error})")
+    from bench.plausibility import shared_screening
+
+    shared = shared_screening(summary.samples)
+    if shared is not None:  # also among the run's warnings in the report
+        ctx.display.result("note: " + shared)
     # The AC drive across each part (class II ceramics depend on it), for the record.
     from bench.verdicts import sample_drive
 
