@@ -167,14 +167,16 @@ def main_landmark(spec: PartSpec, sample: SampleResult) -> tuple[str, float | No
     measurement when the frequency is inside the sweep, else from the model; for a
     bead without it, ``z_at_srf``. The value is None when it cannot be had (no fit).
     """
-    from bench.verdicts import kind_of, shown_landmarks
+    from bench.verdicts import kind_of, screened_out, shown_landmarks
 
     landmarks = shown_landmarks(sample, kind_of(spec)) if sample.fit is not None else {}
     if spec.kind in CAPACITOR_KINDS:
         return "c_low", _finite(landmarks.get("c_low"))
     if spec.kind == "bead":
         if spec.nominal_at_hz:
-            value = _magnitude_at(sample.data.f, sample.data.z, spec.nominal_at_hz)
+            keep = ~screened_out(sample)  # a glitch there is no reading of the part
+            f, z = np.asarray(sample.data.f)[keep], np.asarray(sample.data.z)[keep]
+            value = _magnitude_at(f, z, spec.nominal_at_hz)
             if value is None and sample.fit is not None:
                 zm = sample.fit.impedance(np.array([spec.nominal_at_hz], dtype=float))
                 value = float(np.abs(zm[0]))

@@ -77,18 +77,32 @@ _READ: dict[bytes, dict[str, float | None]] = {}
 _READ_KEPT = 512
 
 
+def screened_out(sample: SampleResult) -> np.ndarray:
+    """The points of the sample that its fit's screening left out (a glitch, a lone
+    point out of line, negative resistance, a band edge): no reading of the part, so
+    nothing read from the data uses them. None marked when the fit does not say."""
+    from bench.core.robust import REASONS
+
+    n = np.size(sample.data.f)
+    status = getattr(sample.fit, "point_status", None) or ()
+    if len(status) != n:
+        return np.zeros(n, dtype=bool)
+    return np.isin(np.asarray(status, dtype=object), REASONS)
+
+
+def readable(sample: SampleResult) -> np.ndarray:
+    """The points values are read from: inside the window, not screened out."""
+    return np.asarray(sample.data.inside_window, dtype=bool) & ~screened_out(sample)
+
+
 def data_landmarks(sample: SampleResult, kind: str) -> dict[str, float | None]:
     """Landmarks read straight from the points inside the window ({} if none can be),
     but for those the sample's fit screened out (a glitch is no reading of the part)."""
     import hashlib
 
     from bench.core.landmarks import landmarks_for
-    from bench.core.robust import REASONS
 
-    inside = np.asarray(sample.data.inside_window, dtype=bool)
-    status = getattr(sample.fit, "point_status", None) or ()
-    if len(status) == inside.size:
-        inside = inside & ~np.isin(np.asarray(status, dtype=object), REASONS)
+    inside = readable(sample)
     if inside.sum() < 3:
         return {}
     f = np.ascontiguousarray(sample.data.f, dtype=float)
@@ -189,7 +203,7 @@ def dissipation_factor(sample: SampleResult, spec: PartSpec) -> tuple[float | No
         return None, None
     f = np.asarray(sample.data.f, dtype=float)
     z = np.asarray(sample.data.z, dtype=complex)
-    inside = np.asarray(sample.data.inside_window, dtype=bool) & np.isfinite(z)
+    inside = readable(sample) & np.isfinite(z)
     if inside.sum() < 2:
         return None, None
     fi, zi = f[inside], z[inside]
@@ -211,7 +225,7 @@ def z_at_frequencies(sample: SampleResult, spec: PartSpec) -> dict[float, float 
         freqs.append(spec.nominal_at_hz)
     out = {}
     for at in sorted(freqs):
-        value = magnitude_at(sample.data.f, sample.data.z, at, sample.data.inside_window)
+        value = magnitude_at(sample.data.f, sample.data.z, at, readable(sample))
         if value is not None:
             out[at] = value
     return out

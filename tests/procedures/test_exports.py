@@ -291,3 +291,29 @@ def test_corrected_files_state_the_port_series_resistors(summary, tmp_path):
         # zbench fit reads this back, so a re-fit of the S file uses the same set-up.
         assert "port series resistors: 499 ohm each" in path.read_text()
         assert series_r_from_comments(load_measurement(path).comments) == 499.0
+
+
+def test_values_read_from_the_data_skip_the_points_the_fit_screened_out(summary):
+    import dataclasses
+
+    from bench.verdicts import z_at_frequencies
+
+    bead = next(s for s in summary.samples if s.part == "ZBEX-F600")
+    spec = summary.part("ZBEX-F600")
+    f = bead.data.f
+    i = int(np.searchsorted(f, 100e6))  # the point just above the stated frequency
+    z = np.array(bead.data.z, dtype=complex)
+    z[i] *= 3.0  # a glitch there, which the fit screened out
+    status = np.full(f.size, "used", dtype=object)
+    status[i] = "glitch"
+    glitched = dataclasses.replace(
+        bead,
+        data=dataclasses.replace(bead.data, z=z),
+        fit=dataclasses.replace(bead.fit, point_status=tuple(status)),
+    )
+    # Read past the glitch: between the points on either side of it, not through it.
+    t = np.log(100e6 / f[i - 1]) / np.log(f[i + 1] / f[i - 1])
+    mag = np.abs(bead.data.z)
+    expected = np.exp(np.log(mag[i - 1]) + t * np.log(mag[i + 1] / mag[i - 1]))
+    assert exports.main_landmark(spec, glitched)[1] == pytest.approx(expected, rel=1e-9)
+    assert z_at_frequencies(glitched, spec)[100e6] == pytest.approx(expected, rel=1e-9)
