@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import io
 
+import numpy as np
+import pytest
 from rich.console import Console
 
 from bench.procedure.display import RichDisplay, fit_width, label_bias, result_line
@@ -109,3 +111,28 @@ def test_a_bead_is_judged_on_its_impedance_at_the_stated_frequency():
     # Without |Z| at the frequency, no verdict is made up from the other landmarks.
     plain = result_line("FB137/s1", "bead", {"l_low": 248e-9}, nominal=120.0, tolerance=0.25)
     assert "nominal" not in plain
+
+
+def test_the_live_line_reads_past_a_lone_glitch_with_only_noise_beside_it():
+    """An invented 1 µH inductor (10 mΩ winding) swept from 100 Hz by a set-up whose
+    window starts near 50 kHz; below it the readings are noise (u = 9), and a glitch at
+    300 Hz reads 0.07 + 0.22j Ω inside the window (inductive, as one did on the
+    glitching demo bench). The live line, made before any fit, must read neither the
+    winding's resistance nor the inductance from it."""
+    from types import SimpleNamespace
+
+    from bench.procedure.steps.live import part_landmarks
+
+    f = np.geomspace(100.0, 2e8, 201)
+    w = 2 * np.pi * f
+    z = 1 / (1 / (10e-3 + 1j * w * 1e-6) + 1j * w * 3e-12)
+    lone = int(np.argmin(np.abs(f - 300.0)))
+    z[lone] = 0.07 + 0.22j
+    inside = (f > 5e4) | (np.arange(f.size) == lone)
+    data = SimpleNamespace(z=z, inside_window=inside, rel_uncertainty=np.where(inside, 0.005, 9.0))
+    part = SimpleNamespace(spec=SimpleNamespace(kind="inductor"))
+    marks = part_landmarks(part, f, data)
+    # Noise-free above 50 kHz, the winding's 10 mΩ shows in Re Z there; not the glitch's.
+    assert marks["r_dc"] == pytest.approx(10e-3, rel=0.05)
+    # An inductor's low-frequency inductance is Im Z / ω (handbook definition).
+    assert marks["l_low"] == pytest.approx(1e-6, rel=0.03)

@@ -12,11 +12,21 @@ from bench.procedure.display import result_line
 
 def part_landmarks(part: Any, f: np.ndarray, data: Any, valid: Any = None) -> dict[str, Any]:
     """Landmarks of ``part``'s impedance ``data`` from the points of ``valid`` (default:
-    those inside the measurable window)."""
+    those inside the measurable window), less the lone points the sweep alone shows to
+    be no reading of the part (``bench.core.robust``: out of line with the points beside
+    them, or standing alone with only noise beside them): the fit, which judges them
+    properly, comes later."""
+    from bench.core import robust
     from bench.core.landmarks import landmarks_for
 
     kind = "capacitor" if part.spec.kind in ("mlcc", "bulk") else "inductor"
-    inside = np.asarray(data.inside_window) if valid is None else valid
+    inside = np.asarray(data.inside_window if valid is None else valid, dtype=bool)
+    z = np.asarray(data.z, dtype=complex)
+    u = np.asarray(data.rel_uncertainty, dtype=float)
+    measured = np.isfinite(z) & np.isfinite(u)
+    doubtful = robust.isolated(f, z, u, inside, measured) | robust.unvouched(u, inside, measured)
+    if np.count_nonzero(inside & ~doubtful) >= 3:
+        inside = inside & ~doubtful
     return dict(landmarks_for(kind, f, data.z, inside))
 
 
