@@ -148,16 +148,6 @@ def part_kind(spec: PartSpec) -> str:
     return "capacitor" if spec.kind in CAPACITOR_KINDS else "inductor"
 
 
-def _magnitude_at(f: np.ndarray, z: np.ndarray, at_hz: float) -> float | None:
-    """|Z| at ``at_hz`` by log-log interpolation; None outside the sweep."""
-    f = np.asarray(f, dtype=float)
-    mag = np.abs(np.asarray(z, dtype=complex))
-    good = (f > 0) & (mag > 0) & np.isfinite(mag)
-    if good.sum() < 2 or not (f[good][0] <= at_hz <= f[good][-1]):
-        return None
-    return float(np.exp(np.interp(math.log(at_hz), np.log(f[good]), np.log(mag[good]))))
-
-
 def main_landmark(spec: PartSpec, sample: SampleResult) -> tuple[str, float | None]:
     """Name and value (SI) of the landmark the part's tolerance is stated on.
 
@@ -167,16 +157,17 @@ def main_landmark(spec: PartSpec, sample: SampleResult) -> tuple[str, float | No
     measurement when the frequency is inside the sweep, else from the model; for a
     bead without it, ``z_at_srf``. The value is None when it cannot be had (no fit).
     """
-    from bench.verdicts import kind_of, screened_out, shown_landmarks
+    from bench.verdicts import kind_of, magnitude_at, screened_out, shown_landmarks
 
     landmarks = shown_landmarks(sample, kind_of(spec)) if sample.fit is not None else {}
     if spec.kind in CAPACITOR_KINDS:
         return "c_low", _finite(landmarks.get("c_low"))
     if spec.kind == "bead":
         if spec.nominal_at_hz:
-            keep = ~screened_out(sample)  # a glitch there is no reading of the part
-            f, z = np.asarray(sample.data.f)[keep], np.asarray(sample.data.z)[keep]
-            value = _magnitude_at(f, z, spec.nominal_at_hz)
+            # From every measured point but those screened out (a glitch is no reading).
+            value = magnitude_at(
+                sample.data.f, sample.data.z, spec.nominal_at_hz, ~screened_out(sample)
+            )
             if value is None and sample.fit is not None:
                 zm = sample.fit.impedance(np.array([spec.nominal_at_hz], dtype=float))
                 value = float(np.abs(zm[0]))

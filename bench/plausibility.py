@@ -162,7 +162,7 @@ def shared_screening(samples: Any) -> str | None:
     least :data:`SHARED_MIN`, came with a capture they share (a calibration standard, the
     through, a mount short), not with the parts: worth repeating that capture. None when
     no frequency is shared so."""
-    from bench.core.robust import IN_BAND
+    from bench.core.robust import IN_BAND, screened
 
     counts: dict[float, int] = {}
     fitted = 0
@@ -172,8 +172,9 @@ def shared_screening(samples: Any) -> str | None:
         if len(status) != f.size:
             continue
         fitted += 1
-        screened = np.isin(np.asarray(status, dtype=object), IN_BAND)
-        for value in np.unique(np.float32(f[screened])):  # grids agree to 7 digits
+        for value in np.unique(
+            np.float32(f[screened(status, f.size, IN_BAND)])
+        ):  # grids agree to 7 digits
             counts[float(value)] = counts.get(float(value), 0) + 1
     need = max(SHARED_MIN, math.ceil(SHARED_SHARE * fitted))
     shared = sorted(f for f, n in counts.items() if n >= need)

@@ -31,7 +31,7 @@ from matplotlib.figure import Figure
 from matplotlib.ticker import EngFormatter, LogLocator, NullFormatter, NullLocator
 from matplotlib.transforms import ScaledTranslation
 
-from bench.core.robust import IN_BAND
+from bench.core.robust import IN_BAND, screened
 from bench.files import atomic_write_bytes
 from bench.units import format_si
 
@@ -338,10 +338,7 @@ def _point_status(fit: Any, f: np.ndarray) -> np.ndarray | None:
 
 def _screened_mask(fit: Any, f: np.ndarray) -> np.ndarray:
     """The points of ``f`` that the fit's screening left out (:data:`SCREENED`)."""
-    status = _point_status(fit, f)
-    if status is None:
-        return np.zeros(f.shape, dtype=bool)
-    return np.isin(status, SCREENED)
+    return screened(getattr(fit, "point_status", None), f.size, SCREENED)
 
 
 def _mark_screened_residuals(ax: Axes, f: np.ndarray, values: np.ndarray) -> None:
@@ -462,32 +459,25 @@ def _draw_impedance(
         _landmark_lines(ax_esr, fit, f)
         _unused_spans(ax_mag, f, fit, label=True)
         _unused_spans(ax_esr, f, fit, label=False)
-    if outside.any():
-        marker = {
-            "linestyle": "none",
-            "marker": "x",
-            "markersize": 4,
-            "color": OUTSIDE_COLOUR,
-            "markeredgewidth": 0.9,
-        }
-        count = int(outside.sum())
-        ax_mag.plot(
-            f[outside],
-            _positive(np.abs(z[outside])),
-            label=f"outside window ({count})",
-            **marker,
-        )
-        ax_esr.plot(f[outside], _positive(z.real[outside]), **marker)
-    screened = _screened_mask(fit, f)
-    if screened.any():
-        count = int(screened.sum())
-        ax_mag.plot(
-            f[screened],
-            _positive(np.abs(z[screened])),
-            label=f"screened out of the fit ({count})",
-            **_SCREENED_MARKER,
-        )
-        ax_esr.plot(f[screened], _positive(z.real[screened]), **_SCREENED_MARKER)
+    outside_marker = {
+        "linestyle": "none",
+        "marker": "x",
+        "markersize": 4,
+        "color": OUTSIDE_COLOUR,
+        "markeredgewidth": 0.9,
+    }
+    for mask, label, marker in (
+        (outside, "outside window", outside_marker),
+        (_screened_mask(fit, f), "screened out of the fit", _SCREENED_MARKER),
+    ):
+        if mask.any():
+            ax_mag.plot(
+                f[mask],
+                _positive(np.abs(z[mask])),
+                label=f"{label} ({int(mask.sum())})",
+                **marker,
+            )
+            ax_esr.plot(f[mask], _positive(z.real[mask]), **marker)
     _log_axes(ax_mag)
     _log_axes(ax_esr)
     _label_short_log_range(ax_mag, "Ω")

@@ -81,13 +81,9 @@ def screened_out(sample: SampleResult) -> np.ndarray:
     """The points of the sample that its fit's screening left out (a glitch, a lone
     point out of line, negative resistance, a band edge): no reading of the part, so
     nothing read from the data uses them. None marked when the fit does not say."""
-    from bench.core.robust import REASONS
+    from bench.core.robust import screened
 
-    n = np.size(sample.data.f)
-    status = getattr(sample.fit, "point_status", None) or ()
-    if len(status) != n:
-        return np.zeros(n, dtype=bool)
-    return np.isin(np.asarray(status, dtype=object), REASONS)
+    return screened(getattr(sample.fit, "point_status", None), np.size(sample.data.f))
 
 
 def readable(sample: SampleResult) -> np.ndarray:
@@ -224,8 +220,9 @@ def z_at_frequencies(sample: SampleResult, spec: PartSpec) -> dict[float, float 
     if spec.nominal_at_hz and spec.nominal_at_hz not in freqs:
         freqs.append(spec.nominal_at_hz)
     out = {}
+    valid = readable(sample)
     for at in sorted(freqs):
-        value = magnitude_at(sample.data.f, sample.data.z, at, readable(sample))
+        value = magnitude_at(sample.data.f, sample.data.z, at, valid)
         if value is not None:
             out[at] = value
     return out

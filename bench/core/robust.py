@@ -32,6 +32,7 @@ No I/O.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -57,6 +58,15 @@ EDGE_SHARE = 0.2
 #: three leave out points inside the band the fit covers (a band edge shortens it).
 REASONS = ("negative-resistance", "isolated", "glitch", "band-edge")
 IN_BAND = REASONS[:3]
+
+
+def screened(point_status: Any, size: int, reasons: tuple[str, ...] = REASONS) -> NDArray[np.bool_]:
+    """The points a fit's ``point_status`` marks with one of ``reasons``: none when the
+    status does not cover ``size`` points (no fit, or a fit made on other points)."""
+    status = point_status or ()
+    if len(status) != size:
+        return np.zeros(size, dtype=bool)
+    return np.isin(np.asarray(status, dtype=object), reasons)
 
 
 @dataclass(frozen=True)
