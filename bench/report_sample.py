@@ -210,7 +210,11 @@ def _landmark_table(sample: SampleResult, kind: str) -> str:
         )
         row = [esc(key), si(value, unit), esc(sources.get(key) or "—"), si(own, unit)]
         if with_sigma:
-            row.append(si(sigma_marks.get(key), unit, 3))
+            spread = sigma_marks.get(key)
+            # Beyond ±100 % (or resting on an element the data do not see) the model's
+            # value is not determined by the data: the number says nothing more.
+            undetermined = spread is not None and own and not spread <= abs(own)
+            row.append("not determined" if undetermined else si(spread, unit, 3))
         rows.append([*row, difference])
     headers = ["landmark", "value", "from", "model", *(["model ±1σ"] if with_sigma else [])]
     numeric = set(range(1, len(headers) + 1)) - {2}

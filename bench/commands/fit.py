@@ -91,6 +91,16 @@ def _element_unit(name: str) -> str:
     return {"R": "Ω", "L": "H", "C": "F"}.get(name[:1].upper(), "")
 
 
+def _spread_text(value: float, error: float | None) -> str:
+    """`` ±x %`` of a value's one-sigma ``error``; `` (not determined)`` beyond ±100 %
+    (an element the fit does not need, pinned at a bound, or a landmark resting on one:
+    the number itself says nothing more); nothing when the error is not known."""
+    if error is None or not value or math.isnan(error):
+        return ""
+    relative = abs(error / value)
+    return " (not determined)" if relative > 1 else f" ±{100 * relative:.2g} %"
+
+
 def _model_text(result: Any) -> str:
     """``two-branch (capacitor)``, or just ``inductor`` when the family names the kind."""
     return result.model if result.model == result.kind else f"{result.model} ({result.kind})"
@@ -107,8 +117,12 @@ def _summary_text(outcome: FileOutcome) -> str:
         f"{q.points_used} points used, "
         f"{q.points_outside_window} outside the window"
     ]
+    sources = dict(getattr(result, "landmark_sources", {}) or {})
+    mark_sigma = dict(getattr(result, "landmark_uncertainties", {}) or {})
     marks = ", ".join(
         f"{key} {format_si(float(value), LANDMARK_UNITS.get(key, ''))}"
+        # A landmark the model gives (the data do not) carries the model's uncertainty.
+        + (_spread_text(value, mark_sigma.get(key)) if sources.get(key) == "model" else "")
         for key, value in result.landmarks.items()
         if value is not None and math.isfinite(float(value))
     )
@@ -118,14 +132,7 @@ def _summary_text(outcome: FileOutcome) -> str:
     for key, value in result.elements.items():
         # A loss tangent (tan<name>) is a plain number, not a quantity with a prefix.
         shown = f"{value:.4g}" if key.startswith("tan") else format_si(value, _element_unit(key))
-        text = f"{key} {shown}"
-        error = sigma.get(key)
-        if error is not None and value and math.isfinite(error):
-            relative = error / value
-            # Beyond ±100 % the element is not determined by the data (a branch the
-            # fit does not need, pinned at a bound); the number itself says nothing more.
-            text += " (not determined)" if relative > 1 else f" ±{100 * relative:.2g} %"
-        elements.append(text)
+        elements.append(f"{key} {shown}{_spread_text(value, sigma.get(key))}")
     lines.append(f"  elements: {', '.join(elements)}")
     for warning in result.warnings:
         lines.append(f"  warning: {warning}")

@@ -9,6 +9,7 @@ extrapolation rather than a measurement. No I/O.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 
 import numpy as np
@@ -38,6 +39,10 @@ RESOLVED = 3.0
 # Decades beyond the measured band over which the model's landmarks are still looked
 # for when the data cannot give them.
 LANDMARK_REACH = 2.0
+# A landmark that changes by less than this fraction of itself per unit change of the
+# logarithm of an element that dropped out of the fit does not rest on that element
+# (:func:`landmark_uncertainties` holds it).
+DROPPED_NEGLIGIBLE = 1e-3
 
 
 def model_impedance(trial: Trial, f: NDArray[np.float64]) -> NDArray[np.complex128]:
@@ -59,7 +64,8 @@ def landmark_uncertainties(
     compiled network's Jacobian followed through each landmark's reading
     (:func:`bench.core.landmark_slopes.landmark_slopes`), or where a landmark is read
     another way, by reading it again at each value moved a little
-    (:func:`landmark_gradients_by_steps`)."""
+    (:func:`landmark_gradients_by_steps`). An element that dropped out of the fit is
+    held at its value for a landmark it barely moves (:data:`DROPPED_NEGLIGIBLE`)."""
     names = trial.family.element_names(trial.order)
     slopes: dict = {}
     if np.size(f) <= MAX_POINTS:  # longer sweeps are binned: read again at moved values
@@ -68,6 +74,11 @@ def landmark_uncertainties(
             z = net.impedance(trial.q)
             slopes = landmark_slopes(kind, f, z, net.jacobian(trial.q))
     by_steps = None
+    # An element that dropped out (not seen by the data) may keep a huge variance of its
+    # own (fit_select.covariance): a landmark it barely moves (by a finite-difference
+    # step's rounding) is read with the element held, so as not to take that variance
+    # on; one it does move takes it, and is then as undetermined as the element.
+    dropped = [names.index(n) for n in trial.dropped if n in names]
     out: dict[str, float | None] = {}
     for key, value in marks.items():
         if key == "c_par" and value is not None and kind == "inductor":
@@ -87,6 +98,10 @@ def landmark_uncertainties(
             if g is None:
                 out[key] = None
                 continue
+        held = [i for i in dropped if abs(g[i]) <= DROPPED_NEGLIGIBLE * abs(value)]
+        if held:
+            g = np.array(g, dtype=float)
+            g[held] = 0.0
         out[key] = float(np.sqrt(max(float(g @ cov @ g), 0.0)))
     return out
 
@@ -99,10 +114,15 @@ def landmark_gradients_by_steps(
     reading gives none."""
     names = trial.family.element_names(trial.order)
     moved = []
-    for name in names:
+    for i, name in enumerate(names):
         values = dict(trial.values)
         values[name] *= math.exp(step)
-        moved.append(landmarks_for(kind, f, network_impedance(trial.node, f, values)))
+        q = trial.q.copy()
+        q[i] += step
+        # Read as the model's landmarks were (model_landmarks): a resonance or a
+        # low-frequency value the sweep does not reach is read beyond it again, so an
+        # extrapolated landmark carries the uncertainty of the elements it rests on.
+        moved.append(model_landmarks(kind, f, dataclasses.replace(trial, values=values, q=q)))
     out: dict[str, NDArray[np.float64] | None] = {}
     for key, value in marks.items():
         if value is None or any(m.get(key) is None for m in moved):

@@ -16,6 +16,7 @@ here.
 
 from __future__ import annotations
 
+import math
 import re
 import unicodedata
 from collections.abc import Mapping, Sequence
@@ -160,6 +161,12 @@ def _subckt(result: FitResult, sub: str, provenance, mount: tuple[float, float] 
     for key, value in result.landmarks.items():
         text = "n/a" if value is None else format_si(value, _LANDMARK_UNITS.get(key, ""))
         source = result.landmark_sources.get(key)
+        sigma = (getattr(result, "landmark_uncertainties", None) or {}).get(key)
+        if source == "model" and value and sigma is not None and not math.isnan(sigma):
+            # The model's value carries the model's uncertainty; beyond ±100 % (or
+            # resting on an element the data do not see) it is not determined.
+            relative = abs(sigma / value)
+            source += ", not determined" if relative > 1 else f", +/- {100 * relative:.2g} %"
         marks.append(f"{key} = {text}" + (f" ({source})" if source else ""))
     if marks:
         lines.append(_comment("landmarks: " + ", ".join(marks)))
