@@ -321,6 +321,35 @@ def doubts(
     return reasons
 
 
+#: A tolerance is judged on a value the model gives (none of the data) only when this
+#: many of its standard uncertainties fit inside the tolerance: the expanded uncertainty
+#: with coverage factor 2 (about 95 %, JCGM 100:2008 §6, docs/references.md §11).
+GUARD_FACTOR = 2.0
+
+
+def model_spread(spec: PartSpec, sample: SampleResult) -> tuple[str, float] | None:
+    """(name, relative one-sigma uncertainty) of the landmark a part's tolerance is stated
+    on, when the shown value is the fitted model's (the data do not give it) and the fit
+    states its uncertainty; None otherwise. A bead's |Z| at a stated frequency is a
+    reading of the data wherever it can be, and is not covered."""
+    fit = sample.fit
+    if fit is None:
+        return None
+    kind = kind_of(spec)
+    if spec.kind == "bead":
+        if spec.nominal_at_hz:
+            return None
+        name = "z_at_srf"
+    else:
+        name = "c_low" if kind == "capacitor" else "l_low"
+    values, sources = shown(sample, kind)
+    value = values.get(name)
+    sigma = _finite((getattr(fit, "landmark_uncertainties", None) or {}).get(name))
+    if sources.get(name) != "model" or not value or sigma is None:
+        return None
+    return name, abs(sigma / value)
+
+
 def judge(
     spec: PartSpec,
     sample: SampleResult,
@@ -342,6 +371,15 @@ def judge(
                 f"{'inside' if inside else 'outside'} ±{100 * spec.tolerance:g} %"
             )
     reasons = doubts(sample, run_warnings, plausibility)
+    if tolerance_text:
+        spread = model_spread(spec, sample)
+        if spread is not None and GUARD_FACTOR * spread[1] > spec.tolerance:
+            name, relative = spread
+            reasons.append(
+                f"{name} is the model's value, not a reading of the data, known to "
+                f"±{100 * relative:.2g} % (one sigma): too loosely for a ±"
+                f"{100 * spec.tolerance:g} % tolerance; sweep where the data give it"
+            )
     if reasons:
         text = "; ".join(reasons)
         if tolerance_text:
