@@ -101,6 +101,16 @@ def _spread_text(value: float, error: float | None) -> str:
     return " (not determined)" if relative > 1 else f" ±{100 * relative:.2g} %"
 
 
+def _model_mark_text(value: float, error: float | None) -> str:
+    """`` (model ±x %)``: a landmark given by the fitted model, with its one-sigma spread
+    within the model (the model's own shortfall, an extrapolation's above all, is not in
+    it); `` (model, not determined)`` beyond ±100 %."""
+    spread = _spread_text(value, error).strip()
+    if not spread:
+        return " (model)"
+    return f" (model, {spread[1:-1]})" if spread.startswith("(") else f" (model {spread})"
+
+
 def _model_text(result: Any) -> str:
     """``two-branch (capacitor)``, or just ``inductor`` when the family names the kind."""
     return result.model if result.model == result.kind else f"{result.model} ({result.kind})"
@@ -121,8 +131,7 @@ def _summary_text(outcome: FileOutcome) -> str:
     mark_sigma = dict(getattr(result, "landmark_uncertainties", {}) or {})
     marks = ", ".join(
         f"{key} {format_si(float(value), LANDMARK_UNITS.get(key, ''))}"
-        # A landmark the model gives (the data do not) carries the model's uncertainty.
-        + (_spread_text(value, mark_sigma.get(key)) if sources.get(key) == "model" else "")
+        + (_model_mark_text(value, mark_sigma.get(key)) if sources.get(key) == "model" else "")
         for key, value in result.landmarks.items()
         if value is not None and math.isfinite(float(value))
     )

@@ -112,11 +112,11 @@ def test_the_summary_and_the_subcircuit_say_how_well_a_model_landmark_is_known()
     outcome = FileOutcome("part.s1p")
     outcome.result = result
     line = next(x for x in _summary_text(outcome).splitlines() if "landmarks:" in x)
-    assert re.search(r"srf [0-9.]+ MHz ±[0-9.]+ %", line), line
+    assert re.search(r"srf [0-9.]+ MHz \(model ±[0-9.]+ %\)", line), line
     # The barely seen capacitance's own landmark, beyond ±100 %: not a number to use.
     cp = _capacitance(result)
     assert result.uncertainties[cp] > result.elements[cp]
-    assert re.search(r"c_par [0-9.]+ pF \(not determined\)", line), line
+    assert re.search(r"c_par [0-9.]+ pF \(model, not determined\)", line), line
     spice = subckt_text(result, "BEAD1", provenance={})
     assert re.search(r"srf = [0-9.]+ MHz \(model, \+/- [0-9.]+ %\)", spice), spice
     assert re.search(r"c_par = [0-9.]+ pF \(model, not determined\)", spice), spice
