@@ -169,6 +169,46 @@ def resonance_warnings(
     return out
 
 
+# A resonance of the model other than its main one, within this factor of the top of the
+# fitted band, is reported: a fixture mode at the band edge looks the same (common
+# practice, no source).
+EDGE_RESONANCE_FACTOR = 2.0
+# Points per decade of the grid the model's resonances are looked for on.
+EDGE_RESONANCE_DENSITY = 200
+
+
+def edge_resonance_warnings(
+    f_fitted: NDArray[np.float64], trial: Trial, srf: float | None
+) -> list[str]:
+    """A warning when the model resonates (a local extremum of |Z|) within
+    :data:`EDGE_RESONANCE_FACTOR` of the top of the fitted band ``f_fitted`` besides its
+    main resonance (the extremum nearest ``srf``): a passive fixture mode (a ground
+    return, a launch) near the top of a sweep is taken into the model as another branch
+    of the part, and only a mount short or a narrower fit tells the two apart."""
+    lo, hi = float(f_fitted[0]), float(f_fitted[-1])
+    if not hi > lo > 0:
+        return []
+    n = min(int(EDGE_RESONANCE_DENSITY * math.log10(hi / lo)) + 2, 4000)
+    grid = np.geomspace(lo, hi, n)
+    with np.errstate(all="ignore"):
+        slope = np.diff(np.log(np.abs(network_impedance(trial.node, grid, trial.values))))
+    if not np.all(np.isfinite(slope)):
+        return []
+    turns = grid[np.flatnonzero(np.sign(slope[1:]) * np.sign(slope[:-1]) < 0) + 1]
+    if srf is not None and turns.size:
+        turns = np.delete(turns, np.argmin(np.abs(np.log(turns / srf))))
+    near = turns[turns >= hi / EDGE_RESONANCE_FACTOR]
+    if not near.size:
+        return []
+    return [
+        f"the model resonates again near {format_si(float(near[0]), 'Hz')}, within a factor "
+        f"{EDGE_RESONANCE_FACTOR:g} of the top of the fitted band ({format_si(hi, 'Hz')}): "
+        "a fixture mode near the band edge looks the same; subtract the mount short, or "
+        f"fit below {format_si(float(near[0]) / EDGE_RESONANCE_FACTOR, 'Hz')}, to tell "
+        "whether it belongs to the part"
+    ]
+
+
 def low_frequency_warnings(
     kind: str,
     f: NDArray[np.float64],

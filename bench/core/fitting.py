@@ -40,6 +40,7 @@ from numpy.typing import NDArray
 
 from bench.core import robust
 from bench.core.fit_landmarks import (
+    edge_resonance_warnings,
     landmark_uncertainties,
     low_frequency_warnings,
     merge_landmarks,
@@ -768,6 +769,7 @@ def fit_impedance(
     lost = ("r_dc",) if z_model is not None and not r_dc_measured(f, used) else ()
     marks, sources = merge_landmarks(data_marks, model_marks, cut, reading_error, lost)
     warnings += resonance_warnings(kind, f, used, model_marks, data_marks)
+    warnings += edge_resonance_warnings(fu, best, model_marks.get("srf"))
     if z_model is not None:
         warnings += low_frequency_warnings(
             kind, f, z, sigma, used, marks, left_out.any(), z_model=z_model
