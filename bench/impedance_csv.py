@@ -140,7 +140,7 @@ def load_impedance_csv(path: str | Path, *, method: str | None = None):
     ``method`` is kept as the measurement's method (it only sets the window the points
     are judged against); without it the impedance is taken as given.
     """
-    from bench.touchstone import MAX_ABS_Z, Measurement, _check_grid
+    from bench.touchstone import MAX_ABS_Z, Measurement, _check_grid, merge_repeats
 
     p = Path(path)
     name = str(p)
@@ -223,6 +223,7 @@ def load_impedance_csv(path: str | Path, *, method: str | None = None):
     first = data[:, columns[a]] * scales[a]
     second = data[:, columns[b]] * scales[b]
     z = first * np.exp(1j * second) if a == "mag" else first + 1j * second
+    f, z, merged = merge_repeats(f, z)
     _check_grid(name, f)
     if not (np.all(np.isfinite(z)) and np.all(np.isfinite(f))):
         raise InputError(
@@ -252,6 +253,7 @@ def load_impedance_csv(path: str | Path, *, method: str | None = None):
         comments="\n".join(comments),
         method=method,
         method_source="option" if method else "file",
+        warnings=(merged,) if merged else (),
     )
 
 

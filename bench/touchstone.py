@@ -35,7 +35,7 @@ import warnings
 from collections.abc import Iterable
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import TYPE_CHECKING, Literal
+from typing import TYPE_CHECKING, Any, Literal
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
@@ -134,6 +134,38 @@ def method_from_comments(comments: str) -> str | None:
     return match.group(1).lower() if match else None
 
 
+# Frequencies within this fraction of each other are one frequency written twice (the
+# shared end of two segments of a segmented sweep, with rounding in the export).
+REPEAT_TOLERANCE = 1e-12
+
+
+def merge_repeats(
+    f: NDArray[np.float64], values: NDArray[Any]
+) -> tuple[NDArray[np.float64], NDArray[Any], str | None]:
+    """``(f, values, note)`` with each frequency that comes twice or more in a row (a
+    segmented sweep repeats the frequency where one segment ends and the next begins)
+    read once, as the mean of its readings (``values`` has one row per frequency);
+    ``note`` says so, None when nothing was repeated. Frequencies out of order are left
+    for :func:`_check_grid` to refuse."""
+    f = np.asarray(f, dtype=float)
+    if f.size < 2:
+        return f, values, None
+    repeat = np.abs(np.diff(f)) <= REPEAT_TOLERANCE * np.abs(f[1:])
+    if not np.any(repeat):
+        return f, values, None
+    starts = np.flatnonzero(np.concatenate([[True], ~repeat]))
+    counts = np.diff(np.append(starts, f.size))
+    summed = np.add.reduceat(np.asarray(values), starts, axis=0)
+    shape = (-1,) + (1,) * (summed.ndim - 1)
+    merged = summed / counts.reshape(shape)
+    n = int(np.count_nonzero(repeat))
+    note = (
+        f"{n} repeated frequenc{'y' if n == 1 else 'ies'} (a segmented sweep's shared "
+        "segment ends, say) read once, as the mean of the readings there"
+    )
+    return f[starts], merged, note
+
+
 def _check_grid(name: str, f: NDArray[np.float64]) -> None:
     if f.size < MIN_POINTS:
         raise InputError(
@@ -229,9 +261,11 @@ def load_measurement(
             hint="check the export: the data format on the option line (RI, MA, DB) and "
             "the column order",
         )
-    f = scan.frequencies
-    _check_grid(name, f)
     matrix, z0 = network_matrix(scan)
+    f, matrix, merged = merge_repeats(scan.frequencies, matrix)
+    if merged:
+        notes.append(merged)
+    _check_grid(name, f)
     if not np.all(np.isfinite(matrix)):
         rows = np.unique(np.nonzero(~np.isfinite(matrix.reshape(f.size, -1)))[0])
         listed = ", ".join(f"{f[i]:g} Hz" for i in rows[:3])

@@ -164,3 +164,15 @@ def test_an_all_zero_csv_is_refused_truthfully(tmp_path: Path) -> None:
     )
     with pytest.raises(InputError, match="nothing was fitted or written"):
         load_measurement(path)
+
+
+def test_a_repeated_row_is_read_once_as_the_mean(tmp_path: Path) -> None:
+    f = np.concatenate([F[:11], F[10:]])
+    z = Z[np.r_[0:11, 10 : F.size]].copy()
+    z[11] *= 1.002
+    path = tmp_path / "segments.csv"
+    path.write_text(_table("f (Hz),R (Ohm),X (Ohm)", ",", (f, z.real, z.imag)))
+    m = load_measurement(path)
+    np.testing.assert_allclose(m.f, F, rtol=1e-14)
+    np.testing.assert_allclose(m.z[10], 0.5 * (z[10] + z[11]), rtol=1e-12)
+    assert any("1 repeated frequency" in w for w in m.warnings)

@@ -240,3 +240,26 @@ def test_a_comment_after_a_row_is_kept_and_the_row_read(tmp_path: Path) -> None:
     m = load_measurement(_write(tmp_path, "c.s1p", "# Hz S RI R 50\n" + rows))
     assert m.f.size == F.size and m.s[-1, 0, 0] == pytest.approx(0.5 + 0.1j)
     assert "last point" in m.comments
+
+
+def test_a_segmented_sweeps_repeated_frequency_is_read_once_as_the_mean(tmp_path: Path) -> None:
+    # Two segments sharing the frequency where one ends and the next begins, each with
+    # its own reading there (the second segment a little off: another IF bandwidth).
+    f = np.concatenate([F[:21], F[20:]])
+    s = _shunt_s(Z[np.r_[0:21, 20 : F.size]])
+    s[21] *= 1.001
+    lines = ["# Hz S RI R 50"] + [
+        f"{fi:.15g} " + " ".join(f"{v.real:.15g} {v.imag:.15g}" for v in row.T.ravel())
+        for fi, row in zip(f, s, strict=True)
+    ]
+    path = _write(tmp_path, "segments.s2p", "\n".join(lines) + "\n")
+    m = load_measurement(path)
+    np.testing.assert_allclose(m.f, F, rtol=1e-14)
+    np.testing.assert_allclose(m.s[20], 0.5 * (s[20] + s[21]), rtol=1e-12)
+    np.testing.assert_allclose(m.s[21:], s[22:], rtol=1e-12)
+    assert any("1 repeated frequency" in w and "mean" in w for w in m.warnings)
+
+
+def test_a_file_without_repeats_has_no_such_note(tmp_path: Path) -> None:
+    m = load_measurement(write_touchstone_s(tmp_path / "plain.s2p", F, _shunt_s(Z)))
+    assert not any("repeated" in w for w in m.warnings)
