@@ -247,7 +247,13 @@ def _fit_joined(
             for name, seg in zip(files, segments, strict=True)
         ],
         "disagreements": [
-            {"f_lo": d.f_lo, "f_hi": d.f_hi, "size": d.size, "labels": list(d.labels)}
+            {
+                "f_lo": d.f_lo,
+                "f_hi": d.f_hi,
+                "size": d.size,
+                "labels": list(d.labels),
+                "systematic": d.systematic,
+            }
             for d in joined.disagreements
         ],
     }

@@ -13,6 +13,15 @@ Where two set-ups overlap they must agree within their uncertainties: a run of a
 ``|ln Za − ln Zb|`` exceeds ``threshold`` times ``√(ua² + ub²)`` is reported as a
 :class:`Disagreement` naming its band, its size (the median ``|Za/Zb − 1|`` there)
 and the two set-ups. Values are still merged there: the report says which to trust.
+
+A constant offset between two set-ups over their whole overlap (one analyser's gain or a
+fixture differing by a few per cent) can stay inside every point's uncertainty and still
+be plain: the weighted mean of ``ln Za − ln Zb`` over the overlap is known to its standard
+error, ``1/√Σ(1/(ua² + ub²))``. A mean beyond :data:`OFFSET_SIGMAS` standard errors (taken
+√2 larger, since the points of two interleaved grids are interpolated and not all
+independent) and beyond :data:`OFFSET_FLOOR` of the points' own median uncertainty (a
+systematic part of that uncertainty does not average away) is reported as a
+:class:`Disagreement` over the whole overlap with ``systematic`` set.
 """
 
 from __future__ import annotations
@@ -31,6 +40,11 @@ from bench.core.window import Window
 DEFAULT_THRESHOLD = 2.0
 #: Fewest consecutive disagreeing points reported as a band (single points are noise).
 DEFAULT_MIN_POINTS = 3
+#: A constant offset over an overlap is reported beyond this many standard errors of its
+#: mean (a difference beyond chance, common practice, no source) ...
+OFFSET_SIGMAS = 5.0
+#: ... and beyond this fraction of the points' median combined uncertainty.
+OFFSET_FLOOR = 0.5
 
 
 @dataclass(frozen=True)
@@ -46,9 +60,21 @@ class Disagreement:
     size: float
     labels: tuple[str, str]
     points: int
+    #: A constant offset over the whole overlap (``size`` its magnitude, ``sigmas`` how
+    #: many standard errors of its mean), rather than a band beyond the points' own.
+    systematic: bool = False
+    sigmas: float = 0.0
 
     def describe(self) -> str:
         """One line for a person: band, size and the set-ups."""
+        if self.systematic:
+            return (
+                f"{self.labels[0]} and {self.labels[1]} differ by {100 * self.size:.3g} % "
+                f"throughout their overlap, {self.f_lo:.4g} Hz to {self.f_hi:.4g} Hz "
+                f"({self.points} points, {self.sigmas:.3g} standard errors): a constant "
+                "offset, within each point's uncertainty but not by chance; check the "
+                "calibration, the fixture or the gain of one of them"
+            )
         return (
             f"{self.labels[0]} and {self.labels[1]} differ by {100 * self.size:.3g} % "
             f"from {self.f_lo:.4g} Hz to {self.f_hi:.4g} Hz ({self.points} points), "
@@ -179,6 +205,10 @@ def stitch(
                         points=int(np.count_nonzero(band)),
                     )
                 )
+            # Also where bands were found: chance breaks an offset into bands of noise.
+            offset = _offset(grid, lz[i] - lz[j], sigma, both, (names[i], names[j]))
+            if offset is not None:
+                found.append(offset)
     z = np.exp(merged_lz)
     data = ImpedanceData(
         f=grid,
@@ -189,6 +219,39 @@ def stitch(
         z_measured=z,
     )
     return Stitched(data=data, disagreements=tuple(found), segments=segs, labels=names)
+
+
+def _offset(
+    grid: NDArray[np.float64],
+    difference: NDArray[np.complex128],
+    sigma: NDArray[np.float64],
+    both: NDArray[np.bool_],
+    labels: tuple[str, str],
+) -> Disagreement | None:
+    """The constant offset of two set-ups over their overlap ``both`` (module doc), or
+    None when their mean difference is within chance or within the points' own floor.
+    ``difference`` is ``ln Za − ln Zb``, ``sigma`` its one-sigma per point (of Re and Im
+    alike)."""
+    n = int(np.count_nonzero(both))
+    if n < DEFAULT_MIN_POINTS:
+        return None
+    d, s = difference[both], sigma[both]
+    w = 1.0 / s**2
+    mean = complex(np.sum(w * d) / np.sum(w))
+    error = math.sqrt(2.0) / math.sqrt(float(np.sum(w)))
+    sigmas = abs(mean) / error
+    if sigmas <= OFFSET_SIGMAS or abs(mean) <= OFFSET_FLOOR * float(np.median(s)):
+        return None
+    idx = np.flatnonzero(both)
+    return Disagreement(
+        f_lo=float(grid[idx[0]]),
+        f_hi=float(grid[idx[-1]]),
+        size=abs(complex(np.exp(mean)) - 1.0),
+        labels=labels,
+        points=n,
+        systematic=True,
+        sigmas=sigmas,
+    )
 
 
 def _union_window(segs: tuple[ImpedanceData, ...]) -> Window:

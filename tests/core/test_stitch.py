@@ -105,3 +105,40 @@ def test_labels_must_match_and_something_must_be_given() -> None:
         stitch([a, a], ["only one"])
     with pytest.raises(ValueError, match="at least one"):
         stitch([], [])
+
+
+def _as_given(f, z, u, rng):
+    scatter = (rng.normal(size=f.size) + 1j * rng.normal(size=f.size)) / np.sqrt(2)
+    return impedance_as_given(f, z * np.exp(u * scatter), rel_uncertainty=u)
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+def test_a_constant_offset_inside_every_points_uncertainty_is_still_reported(seed) -> None:
+    # A low-frequency analyser reading 3 % high against the VNA over a decade of overlap,
+    # each point of the VNA uncertain by 2.5 %: no point is off by twice the combined
+    # uncertainty, but the mean of 100 points is known to about 0.3 %.
+    rng = np.random.default_rng(seed)
+    f_low, f_high = np.geomspace(10, 1e6, 201), np.geomspace(1e5, 1e9, 401)
+    z = lambda f: 0.01 + 1 / (2j * np.pi * f * 330e-6)  # noqa: E731
+    low = _as_given(f_low, 1.03 * z(f_low), 0.003, rng)
+    high = _as_given(f_high, z(f_high), 0.025, rng)
+    joined = stitch([low, high], ["analyser", "vna"])
+    # Noise may push a few points beyond twice their uncertainty too (a band); the
+    # offset is one report over the whole overlap.
+    (offset,) = [d for d in joined.disagreements if d.systematic]
+    assert offset.systematic and offset.labels == ("analyser", "vna")
+    assert offset.size == pytest.approx(0.03, abs=0.006)
+    assert offset.f_lo == pytest.approx(1e5) and offset.f_hi == pytest.approx(1e6)
+    assert offset.sigmas > 5
+    assert any("throughout their overlap" in w for w in joined.warnings)
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+def test_set_ups_that_agree_or_differ_below_their_own_floor_are_not_reported(seed) -> None:
+    rng = np.random.default_rng(seed)
+    f_low, f_high = np.geomspace(10, 1e6, 201), np.geomspace(1e5, 1e9, 401)
+    z = lambda f: 0.01 + 1 / (2j * np.pi * f * 330e-6)  # noqa: E731
+    for scale in (1.0, 1.005):  # no offset; one below half the points' uncertainty
+        low = _as_given(f_low, scale * z(f_low), 0.003, rng)
+        high = _as_given(f_high, z(f_high), 0.025, rng)
+        assert stitch([low, high], ["analyser", "vna"]).disagreements == ()
