@@ -140,7 +140,13 @@ def load_impedance_csv(path: str | Path, *, method: str | None = None):
     ``method`` is kept as the measurement's method (it only sets the window the points
     are judged against); without it the impedance is taken as given.
     """
-    from bench.touchstone import MAX_ABS_Z, Measurement, _check_grid, merge_repeats
+    from bench.touchstone import (
+        MAX_ABS_Z,
+        Measurement,
+        _check_grid,
+        low_sweep_note,
+        merge_repeats,
+    )
 
     p = Path(path)
     name = str(p)
@@ -253,7 +259,7 @@ def load_impedance_csv(path: str | Path, *, method: str | None = None):
         comments="\n".join(comments),
         method=method,
         method_source="option" if method else "file",
-        warnings=(merged,) if merged else (),
+        warnings=tuple(w for w in (merged, low_sweep_note(f)) if w),
     )
 
 

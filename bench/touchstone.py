@@ -84,6 +84,12 @@ MIN_POINTS = 10
 MAX_ABS_S = 100.0
 #: Largest |Z| (Ω) accepted in an impedance file.
 MAX_ABS_Z = 1e12
+#: Highest frequency (Hz) accepted: no network analyser measures near it, so a file that
+#: reaches it has the wrong unit (values in Hz under an option line saying GHz, say).
+MAX_FREQUENCY = 1e13
+#: A sweep that ends below this (Hz) is noted: it is likely a unit slip the other way
+#: (values in GHz or MHz read as Hz); a power-delivery part is swept well above it.
+LOWEST_SWEEP_TOP = 100.0
 #: The measuring methods a 2-port S file may hold.
 TWO_PORT_METHODS = ("shunt-through", "series-through")
 _METHOD_COMMENT = re.compile(
@@ -173,6 +179,15 @@ def _check_grid(name: str, f: NDArray[np.float64]) -> None:
             path=name,
             hint="measure or export more points (a log sweep of 201 points or more is usual)",
         )
+    top = float(np.max(f)) if f.size else 0.0
+    if not top <= MAX_FREQUENCY:
+        raise InputError(
+            f"has frequencies up to {top:.3g} Hz, far beyond any network analyser: the "
+            "frequency unit does not match the values",
+            path=name,
+            hint="state the unit the values are in (Touchstone: '# Hz', '# kHz', '# MHz' or "
+            "'# GHz' on the option line; CSV: the unit in the frequency column's header)",
+        )
     steps = np.diff(f)
     if not np.all(steps > 0):
         bad = int(np.argmax(steps <= 0)) + 1
@@ -182,6 +197,18 @@ def _check_grid(name: str, f: NDArray[np.float64]) -> None:
             path=name,
             hint="sort the data by frequency and remove repeated frequencies",
         )
+
+
+def low_sweep_note(f: NDArray[np.float64]) -> str | None:
+    """A note when the whole sweep lies below :data:`LOWEST_SWEEP_TOP` (a unit slip is
+    likely), None otherwise."""
+    if f.size and float(f[-1]) < LOWEST_SWEEP_TOP:
+        return (
+            f"the sweep ends at {float(f[-1]):.3g} Hz; if the values are in kHz, MHz or GHz, "
+            "state that unit (Touchstone option line, CSV header): read as Hz they are "
+            "another measurement"
+        )
+    return None
 
 
 def check_method_for_ports(name: str, ports: int, method: str | None) -> None:
@@ -266,6 +293,9 @@ def load_measurement(
     if merged:
         notes.append(merged)
     _check_grid(name, f)
+    low = low_sweep_note(f)
+    if low:
+        notes.append(low)
     if not np.all(np.isfinite(matrix)):
         rows = np.unique(np.nonzero(~np.isfinite(matrix.reshape(f.size, -1)))[0])
         listed = ", ".join(f"{f[i]:g} Hz" for i in rows[:3])

@@ -176,3 +176,12 @@ def test_a_repeated_row_is_read_once_as_the_mean(tmp_path: Path) -> None:
     np.testing.assert_allclose(m.f, F, rtol=1e-14)
     np.testing.assert_allclose(m.z[10], 0.5 * (z[10] + z[11]), rtol=1e-12)
     assert any("1 repeated frequency" in w for w in m.warnings)
+
+
+def test_a_frequency_unit_that_does_not_match_the_values_is_refused(tmp_path: Path) -> None:
+    path = tmp_path / "ghz.csv"
+    # Hz values under a header saying GHz.
+    path.write_text(_table("f (GHz),R (Ohm),X (Ohm)", ",", (F, Z.real, Z.imag)))
+    with pytest.raises(InputError, match="far beyond any network analyser") as info:
+        load_measurement(path)
+    assert str(path) in str(info.value) and "header" in str(info.value)

@@ -98,6 +98,13 @@ BAD_CASES = [
         "sort",
     ),
     (
+        # Values in Hz under an option line saying GHz: up to 1.2e16 Hz.
+        "unit.s2p",
+        "# GHz S RI R 50\n" + "\n".join(_rows(12, 8, start=1e6)) + "\n",
+        "far beyond any network analyser",
+        "option line",
+    ),
+    (
         "nan.s2p",
         "# Hz S RI R 50\n" + "\n".join([*_rows(11, 8), "1e6 nan 0 0.1 0 0.1 0 0 0"]) + "\n",
         "NaN",
@@ -263,3 +270,16 @@ def test_a_segmented_sweeps_repeated_frequency_is_read_once_as_the_mean(tmp_path
 def test_a_file_without_repeats_has_no_such_note(tmp_path: Path) -> None:
     m = load_measurement(write_touchstone_s(tmp_path / "plain.s2p", F, _shunt_s(Z)))
     assert not any("repeated" in w for w in m.warnings)
+
+
+def test_a_sweep_that_ends_below_100_hz_is_noted_as_a_likely_unit_slip(tmp_path: Path) -> None:
+    # Values in GHz under an option line saying Hz: 0.001 to 0.012 "Hz".
+    path = _write(tmp_path, "slip.s2p", "# Hz S RI R 50\n" + "\n".join(_rows(12, 8, 1e-3)) + "\n")
+    m = load_measurement(path)
+    assert any("state that unit" in w for w in m.warnings)
+    assert not any(
+        "state that unit" in w
+        for w in load_measurement(
+            write_touchstone_s(tmp_path / "plain.s2p", F, _shunt_s(Z))
+        ).warnings
+    )
