@@ -107,10 +107,13 @@ MAX_FIT_POINTS = 4000
 # Points of the thinned grid on which every start is first run to convergence.
 SCOUT_POINTS = 160
 # Relative tolerances (sum of squares, parameters) of the scouts on the thinned grid and
-# of the refinement on every point: a scout need only find its valley, and the chosen
-# fit is solved once more to the end (:func:`_robust_refine`).
+# of the refinement on every point: a scout need only find its valley, a refinement
+# give each candidate's criterion to far better than the selection's margin, and the
+# chosen fit is solved once more to the end (:func:`_robust_refine`). (A refinement to
+# 1e-6 chose the same model, order and landmarks to 0.1 % on 52 measurements, at 6 %
+# more of a fit's time.)
 SCOUT_TOLERANCE = 1e-5
-REFINE_TOLERANCE = 1e-6
+REFINE_TOLERANCE = 1e-5
 # A family whose fit leaves this many times the best χ² so far gets no higher orders.
 HOPELESS_FACTOR = 10.0
 # A family's climb ends at an order that lowers its criterion by no more than this: the
