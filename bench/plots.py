@@ -269,17 +269,18 @@ def _axes_fractions(lo: float, hi: float) -> np.ndarray:
     return (np.log10(values) - math.log10(lo)) / (math.log10(hi) - math.log10(lo))
 
 
-def _label_short_log_range(ax: Axes, unit: str) -> None:
-    """Label 2 and 5 between decades when the y range spans less than two decades.
+def _label_short_log_range(ax: Axes, unit: str, axis: str = "y") -> None:
+    """Label 2 and 5 between decades when the ``axis`` range spans less than two decades.
 
-    With only decade labels a narrow range (an ESR that barely changes) would show no
-    number at all.
+    With only decade labels a narrow range (an ESR that barely changes, a sweep of one
+    decade) would show one number or none.
     """
-    lo, hi = ax.get_ylim()
+    lo, hi = ax.get_ylim() if axis == "y" else ax.get_xlim()
     if lo <= 0 or hi <= 0 or math.log10(hi / lo) >= 2.0:
         return
-    ax.yaxis.set_minor_locator(LogLocator(base=10.0, subs=(2.0, 5.0)))
-    ax.yaxis.set_minor_formatter(EngFormatter(unit=unit, sep=" "))
+    scale = ax.yaxis if axis == "y" else ax.xaxis
+    scale.set_minor_locator(LogLocator(base=10.0, subs=(2.0, 5.0)))
+    scale.set_minor_formatter(EngFormatter(unit=unit, sep=" "))
 
 
 def _positive(values: np.ndarray) -> np.ndarray:
@@ -358,9 +359,13 @@ def _mark_screened_residuals(ax: Axes, f: np.ndarray, values: np.ndarray) -> Non
 
 
 def _landmark_lines(ax: Axes, fit: Any, f: np.ndarray | None = None) -> None:
-    """A thin vertical line at the resonance, the landmark an engineer looks for first."""
+    """A thin vertical line at the resonance, the landmark an engineer looks for first;
+    none for a resonance beyond the measured sweep ``f`` (the model's extrapolation, which
+    the fit's warning states: a line there would stretch the axis over decades of no data)."""
     srf = (getattr(fit, "landmarks", None) or {}).get("srf")
     if srf is None or not math.isfinite(srf) or srf <= 0:
+        return
+    if f is not None and np.size(f) >= 1 and not float(np.min(f)) <= srf <= float(np.max(f)):
         return
     ax.axvline(srf, color="#666666", linewidth=0.8, linestyle=(0, (2, 2)), zorder=1)
     # Near the right edge the label goes to the left of the line, so it is never clipped.
@@ -482,6 +487,7 @@ def _draw_impedance(
     _log_axes(ax_esr)
     _label_short_log_range(ax_mag, "Ω")
     _label_short_log_range(ax_esr, "Ω")
+    _label_short_log_range(ax_esr, "Hz", axis="x")
     _mark_non_positive(ax_esr, f, z.real)
     ax_mag.set_ylabel("|Z| (Ω)")
     ax_esr.set_ylabel(_re_label(getattr(fit, "kind", None)) + " (Ω)")

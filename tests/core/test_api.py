@@ -155,3 +155,24 @@ def test_plot_returns_figures_in_either_order():
         api.plot(data, residuals=True)
     with pytest.raises(InputError):
         api.plot(result)
+
+
+def test_a_resonance_beyond_the_sweep_does_not_stretch_the_plot(tmp_path):
+    from bench.core.conversions import shunt_through_s21
+
+    # An invented 1 µF capacitor with 0.5 nH and 5 mΩ swept to 1 MHz: its series
+    # resonance (7.1 MHz) is the model's extrapolation, stated in a warning, not drawn.
+    f = np.geomspace(1e5, 1e6, 101)
+    data = api.impedance(shunt_s2p(tmp_path / "c.s2p", f, shunt_through_s21(rlc(f, c=1e-6))))
+    result = api.fit(data)
+    assert result.landmarks["srf"] > 5e6
+    fig = api.plot(data, result)
+    for ax in fig.axes:
+        lo, hi = ax.get_xlim()
+        assert hi < 2e6 and lo > 5e4
+        assert not [t for t in ax.texts if t.get_text().startswith("SRF")]
+    # One decade is labelled between its ends too (at 2 and 5), not at its ends alone.
+    fig.canvas.draw()
+    bottom = fig.axes[-1]
+    minor = [t.get_text() for t in bottom.xaxis.get_minorticklabels() if t.get_text()]
+    assert any("200" in t for t in minor)
