@@ -126,6 +126,7 @@ def shown(
     sample's own fit (a typical model refitted with the lot's family, say)."""
     fit = sample.fit if fit is None else fit
     model = dict(fit.landmarks) if fit is not None else {}
+    spread = dict(getattr(fit, "landmark_uncertainties", None) or {}) if fit is not None else {}
     data = data_landmarks(sample, kind)
     values: dict[str, float | None] = {}
     sources: dict[str, str | None] = {}
@@ -135,7 +136,20 @@ def shown(
         sources[key] = "data" if measured is not None else "model"
         if values[key] is None:
             sources[key] = None  # neither gives it (the fitter's convention)
+        elif measured is None and _undetermined(values[key], spread.get(key)):
+            # The model's value, known to worse than ±100 % (a resonance resting on an
+            # element the data barely see): no number to print, judge or average.
+            values[key], sources[key] = None, NOT_DETERMINED
     return values, sources
+
+
+#: The source of a shown landmark the model gives to worse than ±100 % (no value shown).
+NOT_DETERMINED = "not determined"
+
+
+def _undetermined(value: float, sigma: Any) -> bool:
+    sigma = _finite(sigma)
+    return sigma is not None and not abs(sigma) <= abs(value)
 
 
 def shown_landmarks(sample: SampleResult, kind: str, fit: Any = None) -> dict[str, float | None]:
@@ -371,6 +385,13 @@ def judge(
                 f"{'inside' if inside else 'outside'} ±{100 * spec.tolerance:g} %"
             )
     reasons = doubts(sample, run_warnings, plausibility)
+    unjudged = value is None and spec.nominal and spec.tolerance is not None
+    if unjudged and not sample.bias_v and sample.fit is not None:
+        reasons.append(
+            "no value to judge: neither the data nor the model give the value the "
+            "tolerance is stated on (a resonance beyond the sweep, or a model value "
+            "known to worse than ±100 %); sweep where it is"
+        )
     if tolerance_text:
         spread = model_spread(spec, sample)
         if spread is not None and GUARD_FACTOR * spread[1] > spec.tolerance:

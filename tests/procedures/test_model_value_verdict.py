@@ -76,3 +76,24 @@ def test_a_value_read_from_the_data_is_judged_on_the_data():
     assert verdicts.model_spread(spec, s) is None
     _, verdict = verdicts.judge(spec, s, verdicts.shown_landmarks(s, "inductor")["l_low"])
     assert verdict.result == "PASS"
+
+
+def test_a_model_landmark_known_to_worse_than_100_percent_is_not_shown():
+    # At 2 % noise the winding capacitance drops out of the fit: the model's resonance
+    # rests on its placeholder value and is known to worse than ±100 %.
+    s = sample(2e-2)
+    sigma = s.fit.landmark_uncertainties["srf"]
+    assert s.fit.landmarks["srf"] is not None and sigma > s.fit.landmarks["srf"]
+    values, sources = verdicts.shown(s, "inductor")
+    assert values["srf"] is None and sources["srf"] == verdicts.NOT_DETERMINED
+    # What the data give is shown as ever.
+    assert sources["l_low"] == "data" and values["l_low"] == pytest.approx(L, rel=0.02)
+
+
+def test_a_part_with_a_tolerance_and_no_value_to_judge_is_checked():
+    s = sample(1e-3)
+    _, verdict = verdicts.judge(BEAD, s, None)
+    assert verdict.result == "CHECK" and "no value to judge" in verdict.reason
+    # At a DC-bias point nothing is judged against the nominal value anyway.
+    biased = dataclasses.replace(s, bias_v=2.0)
+    assert verdicts.judge(BEAD, biased, None)[1].result == ""
