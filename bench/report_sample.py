@@ -191,6 +191,8 @@ def _landmark_table(sample: SampleResult, kind: str) -> str:
     """Each landmark as the run shows it (from the data where they give it, else the
     model: :func:`bench.verdicts.shown`), the model's own value with its ±1σ, and how
     far the model lies from the data."""
+    from bench.core.fit_select import relative_spread, undetermined
+
     fit = sample.fit
     sigma = dict(getattr(fit, "uncertainties", {}) or {})
     sigma_marks = {**sigma, **dict(getattr(fit, "landmark_uncertainties", {}) or {})}
@@ -213,8 +215,8 @@ def _landmark_table(sample: SampleResult, kind: str) -> str:
             spread = sigma_marks.get(key)
             # Beyond ±100 % (or resting on an element the data do not see) the model's
             # value is not determined by the data: the number says nothing more.
-            undetermined = spread is not None and own and not spread <= abs(own)
-            row.append("not determined" if undetermined else si(spread, unit, 3))
+            loose = undetermined(relative_spread(own, spread))
+            row.append("not determined" if loose else si(spread, unit, 3))
         rows.append([*row, difference])
     headers = ["landmark", "value", "from", "model", *(["model ±1σ"] if with_sigma else [])]
     numeric = set(range(1, len(headers) + 1)) - {2}

@@ -179,7 +179,7 @@ def _check_grid(name: str, f: NDArray[np.float64]) -> None:
             path=name,
             hint="measure or export more points (a log sweep of 201 points or more is usual)",
         )
-    top = float(np.max(f)) if f.size else 0.0
+    top = float(np.max(f))
     if not top <= MAX_FREQUENCY:
         raise InputError(
             f"has frequencies up to {top:.3g} Hz, far beyond any network analyser: the "

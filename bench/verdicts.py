@@ -148,8 +148,9 @@ NOT_DETERMINED = "not determined"
 
 
 def _undetermined(value: float, sigma: Any) -> bool:
-    sigma = _finite(sigma)
-    return sigma is not None and not abs(sigma) <= abs(value)
+    from bench.core.fit_select import relative_spread, undetermined
+
+    return undetermined(relative_spread(value, sigma))
 
 
 def shown_landmarks(sample: SampleResult, kind: str, fit: Any = None) -> dict[str, float | None]:
@@ -346,22 +347,18 @@ def model_spread(spec: PartSpec, sample: SampleResult) -> tuple[str, float] | No
     on, when the shown value is the fitted model's (the data do not give it) and the fit
     states its uncertainty; None otherwise. A bead's |Z| at a stated frequency is a
     reading of the data wherever it can be, and is not covered."""
+    from bench.core.fit_select import relative_spread
+    from bench.exports import main_landmark
+
     fit = sample.fit
     if fit is None:
         return None
-    kind = kind_of(spec)
-    if spec.kind == "bead":
-        if spec.nominal_at_hz:
-            return None
-        name = "z_at_srf"
-    else:
-        name = "c_low" if kind == "capacitor" else "l_low"
-    values, sources = shown(sample, kind)
-    value = values.get(name)
-    sigma = _finite((getattr(fit, "landmark_uncertainties", None) or {}).get(name))
-    if sources.get(name) != "model" or not value or sigma is None:
-        return None
-    return name, abs(sigma / value)
+    name, value = main_landmark(spec, sample)
+    if landmark_sources(sample, kind_of(spec)).get(name) != "model":
+        return None  # read from the data, or a bead's |Z| at its frequency
+    sigma = (getattr(fit, "landmark_uncertainties", None) or {}).get(name)
+    relative = relative_spread(value, _finite(sigma))
+    return None if relative is None else (name, relative)
 
 
 def judge(

@@ -95,10 +95,12 @@ def _spread_text(value: float, error: float | None) -> str:
     """`` ±x %`` of a value's one-sigma ``error``; `` (not determined)`` beyond ±100 %
     (an element the fit does not need, pinned at a bound, or a landmark resting on one:
     the number itself says nothing more); nothing when the error is not known."""
-    if error is None or not value or math.isnan(error):
+    from bench.core.fit_select import relative_spread, undetermined
+
+    relative = relative_spread(value, error)
+    if relative is None:
         return ""
-    relative = abs(error / value)
-    return " (not determined)" if relative > 1 else f" ±{100 * relative:.2g} %"
+    return " (not determined)" if undetermined(relative) else f" ±{100 * relative:.2g} %"
 
 
 def _model_mark_text(value: float, error: float | None) -> str:

@@ -27,6 +27,20 @@ BIC_MARGIN = 6.0
 UNDETERMINED = 1.0
 
 
+def relative_spread(value: float | None, sigma: float | None) -> float | None:
+    """``|sigma/value|``, a value's one-sigma uncertainty as a fraction of it; None when
+    either is unknown (None, NaN) or the value is zero."""
+    if value is None or sigma is None or not value or math.isnan(sigma) or math.isnan(value):
+        return None
+    return abs(sigma / value)
+
+
+def undetermined(relative: float | None) -> bool:
+    """Whether a relative one-sigma uncertainty says the data do not determine the value
+    (beyond :data:`UNDETERMINED`); False when it is unknown."""
+    return relative is not None and not relative <= UNDETERMINED
+
+
 @dataclass(frozen=True)
 class Trial:
     """One family and order fitted: its elements (``values``, log values ``q``), χ², criterion,

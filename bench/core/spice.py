@@ -16,13 +16,13 @@ here.
 
 from __future__ import annotations
 
-import math
 import re
 import unicodedata
 from collections.abc import Mapping, Sequence
 
 import numpy as np
 
+from bench.core.fit_select import relative_spread, undetermined
 from bench.core.fitting import FitResult
 from bench.core.models.network import L as Ind
 from bench.core.models.network import Node, R, series, spice_lines
@@ -158,15 +158,17 @@ def _subckt(result: FitResult, sub: str, provenance, mount: tuple[float, float] 
             )
         )
     marks = []
+    sigmas = getattr(result, "landmark_uncertainties", None) or {}
     for key, value in result.landmarks.items():
         text = "n/a" if value is None else format_si(value, _LANDMARK_UNITS.get(key, ""))
         source = result.landmark_sources.get(key)
-        sigma = (getattr(result, "landmark_uncertainties", None) or {}).get(key)
-        if source == "model" and value and sigma is not None and not math.isnan(sigma):
+        relative = relative_spread(value, sigmas.get(key))
+        if source == "model" and relative is not None:
             # The model's value carries the model's uncertainty; beyond ±100 % (or
             # resting on an element the data do not see) it is not determined.
-            relative = abs(sigma / value)
-            source += ", not determined" if relative > 1 else f", +/- {100 * relative:.2g} %"
+            source += (
+                ", not determined" if undetermined(relative) else f", +/- {100 * relative:.2g} %"
+            )
         marks.append(f"{key} = {text}" + (f" ({source})" if source else ""))
     if marks:
         lines.append(_comment("landmarks: " + ", ".join(marks)))

@@ -206,7 +206,7 @@ def stitch(
                     )
                 )
             # Also where bands were found: chance breaks an offset into bands of noise.
-            offset = _offset(grid, lz[i] - lz[j], sigma, both, (names[i], names[j]))
+            offset = _offset(grid, lz[i] - lz[j], sigma, both, (names[i], names[j]), min_points)
             if offset is not None:
                 found.append(offset)
     z = np.exp(merged_lz)
@@ -227,13 +227,14 @@ def _offset(
     sigma: NDArray[np.float64],
     both: NDArray[np.bool_],
     labels: tuple[str, str],
+    min_points: int = DEFAULT_MIN_POINTS,
 ) -> Disagreement | None:
     """The constant offset of two set-ups over their overlap ``both`` (module doc), or
     None when their mean difference is within chance or within the points' own floor.
     ``difference`` is ``ln Za − ln Zb``, ``sigma`` its one-sigma per point (of Re and Im
     alike)."""
     n = int(np.count_nonzero(both))
-    if n < DEFAULT_MIN_POINTS:
+    if n < min_points:
         return None
     d, s = difference[both], sigma[both]
     w = 1.0 / s**2
