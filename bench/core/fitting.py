@@ -114,7 +114,10 @@ SCOUT_POINTS = 160
 # more of a fit's time.)
 SCOUT_TOLERANCE = 1e-5
 REFINE_TOLERANCE = 1e-5
-# A family whose fit leaves this many times the best χ² so far gets no higher orders.
+# A family whose fit leaves this many times the χ² another fit reaches with no more
+# elements than this family's next order gets no higher orders: that order would have to
+# cut χ² more than tenfold in one step only to draw level at its size (a heuristic,
+# common practice, no source; tests/core/test_fit_shortcuts.py checks the choice).
 HOPELESS_FACTOR = 10.0
 # A family's climb ends at an order that lowers its criterion by no more than this: the
 # margin the selection asks of a larger candidate (fit_select.lowest_bic): the order could
@@ -494,9 +497,11 @@ def _fit_family(
         if trial.bic > best_bic - CLIMB_MARGIN:
             break  # the criterion has turned; higher orders will not pay
         best_bic = min(best_bic, trial.bic)
-        # Compared with fits of no more elements: a higher order of another family may
-        # fit far better now, and this family's next order catch up.
-        overall = min(t.chi2 for t in [*others, *out] if t.q.size <= trial.q.size)
+        # Compared with fits of no more elements than this family's next order: one of
+        # another family may fit far better, and that order could catch up only by a
+        # tenfold step (a higher order of another family is no bar).
+        reach = len(family.element_names(orders[i + 1])) if i + 1 < len(orders) else k
+        overall = min(t.chi2 for t in [*others, *out] if t.q.size <= reach)
         if trial.chi2 > HOPELESS_FACTOR * overall:
             break  # another family fits far better; more orders of this one will not catch up
     return out, None

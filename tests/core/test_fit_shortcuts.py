@@ -1,6 +1,6 @@
 """Work the fit leaves out, and that it must never change what is chosen.
 
-Two shortcuts of ``bench.core.fitting`` are checked here against the fit without them,
+Three shortcuts of ``bench.core.fitting`` are checked here against the fit without them,
 on the invented parts of ``test_fit_pruning`` (shunt-through with seeded noise), plus an
 inductor with core loss and a winding capacitance, whose R-L sections stop paying
 gradually:
@@ -8,6 +8,8 @@ gradually:
 - the order climb ends at an order that lowers the criterion by less than the
   selection's margin (``CLIMB_MARGIN``, the margin ``lowest_bic`` asks of a larger
   candidate);
+- a family's climb ends when its fit leaves ``HOPELESS_FACTOR`` times the χ² another
+  fit reaches with no more elements than the family's next order;
 - a scout stops where its model comes within a tenth of each point's uncertainty of an
   earlier scout's end at the same cost (``fit_solve.SAME_VALLEY_RESIDUAL``): the same
   circuit with its like sections in another order, or with an element the data do not
@@ -68,6 +70,32 @@ def test_climb_margin_leaves_an_order_out(monkeypatch):
     monkeypatch.setattr(fitting, "CLIMB_MARGIN", -np.inf)
     full = fitted(part, series_r, 1)
     assert len(full.candidates) > len(shortened.candidates)
+
+
+@pytest.mark.parametrize("name", sorted(CASES))
+def test_hopeless_family_never_changes_the_choice(name, monkeypatch):
+    part, series_r = CASES[name]
+    shortened = fitted(part, series_r, 1)
+    monkeypatch.setattr(fitting, "HOPELESS_FACTOR", np.inf)  # every family climbs on
+    full = fitted(part, series_r, 1)
+    same_choice(shortened, full)
+    assert {(c.model, c.order) for c in shortened.candidates} <= {
+        (c.model, c.order) for c in full.candidates
+    }
+
+
+def test_hopeless_family_leaves_orders_out(monkeypatch):
+    # The bead family on a wound inductor with skin-effect sections: its second order
+    # leaves far more than the inductor's fit with as many elements as its third would
+    # have, so the third is not fitted.
+    part, series_r = CASES["lossy inductor"]
+    shortened = fitted(part, series_r, 1)
+    monkeypatch.setattr(fitting, "HOPELESS_FACTOR", np.inf)
+    full = fitted(part, series_r, 1)
+    left_out = {(c.model, c.order) for c in full.candidates} - {
+        (c.model, c.order) for c in shortened.candidates
+    }
+    assert left_out and {model for model, _ in left_out} == {"bead"}
 
 
 class CountingWatch:
