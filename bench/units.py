@@ -132,11 +132,13 @@ def format_si(value: float, unit: str = "", digits: int = 4) -> str:
     if value == 0 or not math.isfinite(value):
         return f"{value:g} {unit}".strip()
     magnitude = abs(value)
-    for scale, prefix in _FORMAT_PREFIXES:
-        if magnitude >= scale * 0.9999999:
-            return f"{value / scale:.{digits}g} {prefix}{unit}".strip()
-    scale, prefix = _FORMAT_PREFIXES[-1]
-    return f"{value / scale:.{digits}g} {prefix}{unit}".strip()
+    scale, prefix = next(
+        (p for p in _FORMAT_PREFIXES if magnitude >= p[0] * 0.9999999), _FORMAT_PREFIXES[-1]
+    )
+    text = f"{value / scale:.{digits}g}"
+    if "e+" in text:  # more integer digits than asked for (151 at 2 digits): all of them
+        text = f"{value / scale:.0f}"
+    return f"{text} {prefix}{unit}".strip()
 
 
 #: Unit of each landmark a fit reports (SI).

@@ -18,7 +18,13 @@ from numpy.typing import NDArray
 from bench.core.fit_network import KEEP_POINTS, compiled
 from bench.core.fit_select import Trial
 from bench.core.landmark_slopes import landmark_slopes
-from bench.core.landmarks import MAX_POINTS, Landmarks, dc_band, landmarks_for
+from bench.core.landmarks import (
+    MAX_POINTS,
+    Landmarks,
+    dc_band,
+    landmarks_for,
+    series_capacitance_below,
+)
 from bench.core.models.network import network_impedance
 from bench.units import format_si
 
@@ -207,6 +213,23 @@ def edge_resonance_warnings(
         f"fit below {format_si(float(near[0]) / EDGE_RESONANCE_FACTOR, 'Hz')}, to tell "
         "whether it belongs to the part"
     ]
+
+
+def series_capacitance_note(f, z, sigma) -> str | None:
+    """What inductive data's bottom says when it holds a series capacitance
+    (:func:`bench.core.landmarks.series_capacitance_below`): a capacitor swept above its
+    series resonance reads as an inductor. None when it holds none."""
+    found = series_capacitance_below(f, z, sigma)
+    if found is None:
+        return None
+    c, f_res = found
+    return (
+        f"its reactance at the bottom of the sweep falls short of an inductance's as a "
+        f"capacitance of about {format_si(c, 'F', 2)} in series would make it: a capacitor "
+        f"swept above its series resonance (about {format_si(f_res, 'Hz', 2)}) reads as an "
+        f"inductor; if this part is a capacitor, sweep from below "
+        f"{format_si(f_res / 10, 'Hz', 2)} to measure its capacitance"
+    )
 
 
 def low_frequency_warnings(

@@ -248,6 +248,55 @@ def classify(f: Any, z: Any, valid: Any = None) -> str:
     return "capacitor" if score < 0 else "inductor"
 
 
+# A series capacitance below the sweep (:func:`series_capacitance_below`) is reported when
+# its elastance lies this many standard errors above zero (common practice, no source),
+# read from at least this many points.
+SERIES_C_SIGMAS = 5.0
+SERIES_C_MIN_POINTS = 8
+
+
+def series_capacitance_below(f: Any, z: Any, rel_uncertainty: Any) -> tuple[float, float] | None:
+    """``(C, f_res)`` when inductive data's reactance at the bottom of the sweep falls
+    short of an inductance's as a capacitance ``C`` in series would make it: a capacitor
+    swept above its series resonance ``f_res`` (Hz, below the sweep) reads as an inductor.
+    None when the data show no such capacitance.
+
+    Over the lowest quarter (in log f) of the points, ``ω·X`` is fitted by weighted least
+    squares as ``−1/C + L·ω² + P·ω⁴``: a series R-L-C gives ``ω·X = L·ω² − 1/C`` exactly
+    (docs/references.md §3), and the ``ω⁴`` term takes up the rise of an inductor's
+    reactance toward a parallel resonance, so that its curvature is not read as a
+    capacitance. ``1/C`` must lie :data:`SERIES_C_SIGMAS` standard errors above zero
+    (the errors from ``rel_uncertainty``, the relative uncertainty of each point, scaled
+    up by the fit's own scatter when that is larger) and ``f_res`` below the sweep.
+    """
+    f = np.asarray(f, dtype=float)
+    z = np.asarray(z, dtype=complex)
+    u = np.asarray(rel_uncertainty, dtype=float)
+    ok = np.isfinite(f) & np.isfinite(z) & np.isfinite(u) & (f > 0) & (u > 0) & (z != 0)
+    f, z, u = f[ok], z[ok], u[ok]
+    if f.size < SERIES_C_MIN_POINTS:
+        return None
+    low = f <= f[0] * (f[-1] / f[0]) ** 0.25
+    if np.count_nonzero(low) < SERIES_C_MIN_POINTS:
+        return None
+    w = 2 * np.pi * f[low]
+    x = (w / w[0]) ** 2  # ω² in units of the lowest point's, for a well-scaled solve
+    sigma = w * u[low] * np.abs(z[low])
+    a = np.stack([-np.ones_like(x), x, x * x], axis=1) / sigma[:, None]
+    y = w * z[low].imag / sigma
+    coef, *_ = np.linalg.lstsq(a, y, rcond=None)
+    r = y - a @ coef
+    scatter = float(r @ r) / max(1, y.size - 3)
+    with np.errstate(all="ignore"):
+        cov = np.linalg.pinv(a.T @ a) * max(1.0, scatter)
+    elastance, inductance = float(coef[0]), float(coef[1]) / float(w[0] ** 2)
+    if not (elastance > SERIES_C_SIGMAS * np.sqrt(max(cov[0, 0], 0.0)) and inductance > 0):
+        return None
+    c = 1.0 / elastance
+    f_res = 1.0 / (2 * np.pi * np.sqrt(inductance * c))
+    return (c, f_res) if f_res < f[0] else None
+
+
 def _low_decade(f: NDArray[np.float64], mask: NDArray[np.bool_]) -> NDArray[np.bool_]:
     """The points of ``mask`` within a decade of the lowest one."""
     if not np.any(mask):

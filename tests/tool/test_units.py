@@ -78,6 +78,19 @@ def test_format_si(value, unit, text):
     assert format_si(value, unit) == text
 
 
+@pytest.mark.parametrize(
+    ("value", "digits", "text"),
+    [
+        (151e3, 2, "151 kHz"),  # more integer digits than asked for: all, no exponent
+        (-151.0, 2, "-151 Hz"),
+        (1.5e6, 2, "1.5 MHz"),
+        (999.7e3, 3, "1000 kHz"),
+    ],
+)
+def test_format_si_never_writes_an_exponent(value, digits, text):
+    assert format_si(value, "Hz", digits) == text
+
+
 def test_format_then_parse_round_trip():
     for value in (3.3e-12, 4.7e-9, 0.1e-6, 22e-6, 1.5e3, 2.5e9):
         assert math.isclose(parse_quantity(format_si(value, "F", digits=12), "F"), value)
