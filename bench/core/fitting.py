@@ -616,8 +616,12 @@ def fit_impedance(
         )
     finite = np.isfinite(z) & (z != 0) & np.isfinite(sigma)
     candidates_ok = finite & inside & ~left_out
-    negative = candidates_ok & robust.negative_resistance(
-        np.where(finite, z, 0), np.where(finite, sigma, 0)
+    # Left out: below zero beyond the threshold for as many points judged together.
+    # Evidence for a band edge (_screen): any point 3 sigma below zero.
+    z_ok, sigma_ok = np.where(finite, z, 0), np.where(finite, sigma, 0)
+    below = candidates_ok & robust.negative_resistance(z_ok, sigma_ok)
+    negative = below & robust.negative_resistance(
+        z_ok, sigma_ok, robust.negative_threshold(int(np.count_nonzero(candidates_ok)))
     )
     used = candidates_ok & ~negative
     lone = robust.isolated(f, z, sigma, used, finite)
@@ -705,7 +709,7 @@ def fit_impedance(
             trials, climbs, data_marks, (best, unsupported) = choose(used)
     else:
         trials, climbs, data_marks, (best, unsupported) = choose(used)
-    glitch, edge = _screen(f, z, candidates_ok & ~lone, negative, all_weight, best)
+    glitch, edge = _screen(f, z, candidates_ok & ~lone, negative, below, all_weight, best)
     screened = used & ~glitch & ~edge
     if np.count_nonzero(screened) < n_used:
         # A glitch left out may leave a point beside it standing alone: judged as such.
@@ -873,9 +877,10 @@ def adapted_floor(best: Trial, f, z, u) -> float:
     return min(max(excess, MIN_FLOOR_FRACTION * MODEL_ERROR_FLOOR), MODEL_ERROR_FLOOR)
 
 
-def _screen(f, z, candidates, negative, weight, best: Trial):
+def _screen(f, z, candidates, negative, below, weight, best: Trial):
     """Glitches and band edges (``bench.core.robust``) on the residuals of ``best`` over
-    the ``candidates`` points (negative-resistance points count as infinitely far off)."""
+    the ``candidates`` points (negative-resistance points count as infinitely far off;
+    a run at an edge holding a point of ``below``, 3 sigma below zero, is no part)."""
     idx = np.flatnonzero(candidates)
     with np.errstate(all="ignore"):
         zm = model_impedance(best, f[idx])
@@ -883,6 +888,6 @@ def _screen(f, z, candidates, negative, weight, best: Trial):
     neg = negative[idx]
     glitch = np.zeros(f.size, bool)
     edge = np.zeros(f.size, bool)
-    edge[idx] = robust.band_edges(np.where(neg, np.inf, residual), neg)
+    edge[idx] = robust.band_edges(np.where(neg, np.inf, residual), below[idx])
     glitch[idx] = robust.glitches(np.where(neg, 0.0, residual)) & ~neg
     return glitch & ~edge, edge

@@ -2,9 +2,10 @@
 
 Four kinds of point are left out of a fit and reported (reason, count, band):
 
-- ``negative-resistance``: Re Z below zero by more than :data:`NEGATIVE_SIGMAS` times
-  its uncertainty. No passive part gives it; a calibration residue (a through with a
-  little delay left in it, a drifted load) does. Found before the fit.
+- ``negative-resistance``: Re Z below zero by more than :func:`negative_threshold`
+  times its uncertainty (about 4 sigma for a sweep of hundreds of points). No passive
+  part gives it; a calibration residue (a through with a little delay left in it, a
+  drifted load) does. Found before the fit.
 - ``isolated``: one or two points inside the window standing alone, more than
   :data:`GLITCH_NEIGHBOURS` sweep points from any other point the fit uses, that jump
   away from the measured points on either side of them (outside the window, so known
@@ -31,13 +32,25 @@ No I/O.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
+from statistics import NormalDist
 from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
 
 NEGATIVE_SIGMAS = 3.0
+# The chance that a clean sweep loses any point as negative resistance by its noise
+# alone. Judged at NEGATIVE_SIGMAS each, one point in 740 would be (one-sided normal
+# tail): on a low-loss inductor, where Re Z lies near zero against |Z| over most of the
+# band, about a third of clean 801-point sweeps lost a point. Each point is judged
+# instead at the Šidák threshold for the points judged together, 1 − (1 − α)^(1/n) per
+# point (Šidák 1967, JASA 62, from memory; docs/references.md §11), never below
+# NEGATIVE_SIGMAS: 4.2 sigma for 801 points. A calibration residue lies many sigma
+# below zero and is still found; the band-edge test still takes any point 3 sigma below
+# zero as evidence that the part is not what a run at the edge shows.
+NEGATIVE_FALSE_ALARM = 0.01
 GLITCH_LEVEL = 4.0
 # A glitch stands this many times above the median residual of its neighbours.
 GLITCH_CONTRAST = 4.0
@@ -98,14 +111,26 @@ def exclusion(reason: str, f: NDArray[np.float64], mask: NDArray[np.bool_]) -> E
     return Exclusion(reason, int(fs.size), float(fs[0]), float(fs[-1]), tuple(map(float, fs[:20])))
 
 
+def negative_threshold(points: int) -> float:
+    """The sigmas below zero at which one of ``points`` points judged together is left
+    out as negative resistance: the Šidák threshold for :data:`NEGATIVE_FALSE_ALARM`,
+    at least :data:`NEGATIVE_SIGMAS`."""
+    if points <= 1:
+        return NEGATIVE_SIGMAS
+    per_point = -math.expm1(math.log1p(-NEGATIVE_FALSE_ALARM) / points)
+    return max(NEGATIVE_SIGMAS, NormalDist().inv_cdf(1.0 - per_point))
+
+
 def negative_resistance(
-    z: NDArray[np.complex128], rel_uncertainty: NDArray[np.float64]
+    z: NDArray[np.complex128],
+    rel_uncertainty: NDArray[np.float64],
+    sigmas: float = NEGATIVE_SIGMAS,
 ) -> NDArray[np.bool_]:
-    """Points whose Re Z lies below zero by more than :data:`NEGATIVE_SIGMAS` times its
-    one-sigma uncertainty ``|Z|·u/√2`` (``u`` the relative uncertainty of Z, shared by
-    its two components)."""
+    """Points whose Re Z lies below zero by more than ``sigmas`` times its one-sigma
+    uncertainty ``|Z|·u/√2`` (``u`` the relative uncertainty of Z, shared by its two
+    components)."""
     sigma = np.abs(z) * np.abs(rel_uncertainty) / np.sqrt(2.0)
-    return z.real < -NEGATIVE_SIGMAS * sigma
+    return z.real < -sigmas * sigma
 
 
 def _wrapped(d: NDArray[np.complex128]) -> NDArray[np.complex128]:

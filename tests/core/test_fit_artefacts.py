@@ -23,6 +23,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+from bench.core import robust
 from bench.core.conversions import shunt_through_s21
 from bench.core.fit_landmarks import MODEL_AGREEMENT, MODEL_AGREEMENT_AT_RESONANCE
 from bench.core.fitting import fit_impedance
@@ -178,6 +179,59 @@ def test_a_negative_resistance_beyond_the_uncertainty_is_left_out():
     result = fit_impedance(F_IND, z, rel_uncertainty=u)
     assert result.point_status[40] == "negative-resistance"
     assert {e.reason for e in result.excluded} == {"negative-resistance"}
+
+
+def test_negative_threshold_is_the_sidak_quantile():
+    from scipy.stats import norm
+
+    for n in (10, 201, 801, 10_000):
+        # Šidák (docs/references.md §11): each of n points at 1 − (1 − α)^(1/n), α = 0.01;
+        # the normal quantile from scipy.stats, a reference outside the project.
+        expected = float(norm.isf(1 - (1 - robust.NEGATIVE_FALSE_ALARM) ** (1 / n)))
+        assert robust.negative_threshold(n) == pytest.approx(max(3.0, expected), rel=1e-9)
+    assert robust.negative_threshold(801) == pytest.approx(4.21, abs=0.01)
+    assert robust.negative_threshold(1) == robust.NEGATIVE_SIGMAS
+
+
+def low_loss_inductor(f):
+    """An invented 1 µH inductor with a Q of about 1000 over most of the band: Re Z lies
+    near zero against |Z|, where noise alone dips it below zero."""
+    w = 2 * np.pi * f
+    winding = 8e-3 + 1j * w * 1e-6
+    return 1 / (1 / winding + 1j * w * 8e-12)
+
+
+def test_clean_low_loss_sweeps_rarely_lose_a_point():
+    f = np.geomspace(1e3, 1e9, 801)
+    z_true = low_loss_inductor(f)
+    u = np.full(f.size, 1e-3)
+    rng = np.random.default_rng(11)
+    lost_now, lost_at_3_sigma = 0, 0
+    for _ in range(200):
+        # Noise as declared: each component |Z|·u/√2.
+        noise = rng.normal(size=f.size) + 1j * rng.normal(size=f.size)
+        z = z_true + np.abs(z_true) * u / np.sqrt(2) * noise
+        threshold = robust.negative_threshold(f.size)
+        lost_now += bool(np.any(robust.negative_resistance(z, u, threshold)))
+        lost_at_3_sigma += bool(np.any(robust.negative_resistance(z, u)))
+    # At most α = 1 % of clean sweeps (2 of 200) with room for chance; at 3 sigma each
+    # about a quarter lost a point (the reason for the threshold).
+    assert lost_now <= 5
+    assert lost_at_3_sigma >= 30
+
+
+def test_a_clean_low_loss_fit_keeps_its_points():
+    f = np.geomspace(1e3, 1e9, 801)
+    z_true = low_loss_inductor(f)
+    u = np.full(f.size, 1e-3)
+    rng = np.random.default_rng(5)
+    kept = 0
+    for _ in range(5):
+        noise = rng.normal(size=f.size) + 1j * rng.normal(size=f.size)
+        z = z_true + np.abs(z_true) * u / np.sqrt(2) * noise
+        result = fit_impedance(f, z, rel_uncertainty=u)
+        kept += "negative-resistance" not in result.point_status
+    assert kept == 5
 
 
 def dispersive_bead(f, alpha=0.6):
