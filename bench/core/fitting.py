@@ -658,7 +658,7 @@ def fit_impedance(
         raise ModelMismatchError(
             f"model {model!r} describes {FAMILIES[model].kind}s, but the data is "
             f"{'capacitive' if kind == 'capacitor' else 'inductive'} at its lowest "
-            f"frequencies, so it is a {kind}"
+            f"frequencies, so it is {'an' if kind == 'inductor' else 'a'} {kind}"
             + (f" ({note})" if note else "")
             + f"; use --model auto or one of {', '.join(fits)}"
         )
