@@ -55,16 +55,23 @@ def same_choice(a, b) -> None:
             assert a.landmarks[key] == pytest.approx(value, rel=0.01), key
 
 
-@pytest.mark.parametrize("name", sorted(CASES))
-def test_climb_margin_never_changes_the_choice(name, monkeypatch):
+def with_and_without(name, monkeypatch, setting: str, off: float):
+    """The fit of ``CASES[name]`` with the shortcut ``fitting.<setting>``, and without it
+    (``setting`` at ``off``); the candidates of the first are among the second's."""
     part, series_r = CASES[name]
     shortened = fitted(part, series_r, 1)
-    monkeypatch.setattr(fitting, "CLIMB_MARGIN", -np.inf)  # every order while it pays
+    monkeypatch.setattr(fitting, setting, off)
     full = fitted(part, series_r, 1)
-    same_choice(shortened, full)
     assert {(c.model, c.order) for c in shortened.candidates} <= {
         (c.model, c.order) for c in full.candidates
     }
+    return shortened, full
+
+
+@pytest.mark.parametrize("name", sorted(CASES))
+def test_climb_margin_never_changes_the_choice(name, monkeypatch):
+    # Without the margin: every order while it pays.
+    same_choice(*with_and_without(name, monkeypatch, "CLIMB_MARGIN", -np.inf))
 
 
 def test_climb_margin_leaves_an_order_out(monkeypatch):
@@ -77,24 +84,15 @@ def test_climb_margin_leaves_an_order_out(monkeypatch):
 
 @pytest.mark.parametrize("name", sorted(CASES))
 def test_hopeless_family_never_changes_the_choice(name, monkeypatch):
-    part, series_r = CASES[name]
-    shortened = fitted(part, series_r, 1)
-    monkeypatch.setattr(fitting, "HOPELESS_FACTOR", np.inf)  # every family climbs on
-    full = fitted(part, series_r, 1)
-    same_choice(shortened, full)
-    assert {(c.model, c.order) for c in shortened.candidates} <= {
-        (c.model, c.order) for c in full.candidates
-    }
+    # Without the factor: every family climbs on.
+    same_choice(*with_and_without(name, monkeypatch, "HOPELESS_FACTOR", np.inf))
 
 
 def test_hopeless_family_leaves_orders_out(monkeypatch):
-    # The bead family on a wound inductor with skin-effect sections: its second order
-    # leaves far more than the inductor's fit with as many elements as its third would
-    # have, so the third is not fitted.
-    part, series_r = CASES["lossy inductor"]
-    shortened = fitted(part, series_r, 1)
-    monkeypatch.setattr(fitting, "HOPELESS_FACTOR", np.inf)
-    full = fitted(part, series_r, 1)
+    # The bead family on a wound inductor with skin-effect sections: its first order
+    # leaves far more than the inductor's fit with as many elements as its second would
+    # have, so the higher orders are not fitted.
+    shortened, full = with_and_without("lossy inductor", monkeypatch, "HOPELESS_FACTOR", np.inf)
     left_out = {(c.model, c.order) for c in full.candidates} - {
         (c.model, c.order) for c in shortened.candidates
     }
