@@ -4,9 +4,11 @@ The form read: optional comment lines (starting with ``#``, ``!`` or ``%``), the
 header row naming the columns, then one row of numbers per frequency. Names are
 case-insensitive; each carries its unit in brackets (``Frequency [Hz]``, ``|Z| (Ohm)``)
 or after a space (``Phase deg``). Columns: a frequency (Hz, kHz, MHz, GHz), then one
-pair among |Z| (Ω, kΩ, mΩ) with phase (deg or rad), R with X (Ω), or real with
-imaginary part (Ω). Comma, semicolon or tab delimited; with semicolons a decimal comma
-is read as a point. ``Frequency [Hz],|Z| [Ohm],Phase [deg]`` is the plainest form.
+pair among |Z| (Ω, kΩ, mΩ) with phase (deg or rad), R with X (Ω), real with imaginary
+part (Ω), or an analyser's equivalent circuit: Cs (F, µF, nF, pF) or Ls (H, µH, nH) with
+Rs (Ω), D or Q, or Cp or Lp with Rp, D or Q (D and Q without a unit). Comma, semicolon
+or tab delimited; with semicolons a decimal comma is read as a point.
+``Frequency [Hz],|Z| [Ohm],Phase [deg]`` is the plainest form.
 
 Every malformed file (no header, an unknown column, a missing unit, text where a number
 belongs) raises :class:`bench.errors.InputError` naming the file, the line and the fix.
@@ -32,6 +34,10 @@ _OHM_UNITS = {
     "kohm": 1e3,
     "kΩ": 1e3,
 }
+_FARAD_UNITS = {"f": 1.0, "mf": 1e-3, "µf": 1e-6, "uf": 1e-6, "nf": 1e-9, "pf": 1e-12}
+_HENRY_UNITS = {"h": 1.0, "mh": 1e-3, "µh": 1e-6, "uh": 1e-6, "nh": 1e-9, "ph": 1e-12}
+# D and Q have no unit: none, or one of these.
+_NUMBER_UNITS = {"": 1.0, "1": 1.0, "-": 1.0}
 _ANGLE_UNITS = {
     "deg": math.pi / 180,
     "degree": math.pi / 180,
@@ -50,6 +56,15 @@ _NAMES = {
     "x": ("x", "xs", "reactance"),
     "re": ("real", "re", "re(z)", "real(z)", "real part", "z'"),
     "im": ("imag", "imaginary", "im", "im(z)", "imag(z)", "imaginary part", "z''"),
+    # An analyser's equivalent-circuit readings: series or parallel C or L with the
+    # series or parallel resistance, the dissipation factor D or the quality factor Q.
+    "cs": ("cs", "c series", "series capacitance"),
+    "cp": ("cp", "c parallel", "parallel capacitance"),
+    "ls": ("ls", "l series", "series inductance"),
+    "lp": ("lp", "l parallel", "parallel inductance"),
+    "rp": ("rp", "parallel resistance"),
+    "d": ("d", "df", "dissipation", "dissipation factor", "tan delta", "tanδ"),
+    "q": ("q", "quality factor"),
 }
 _UNITS_OF = {
     "f": _FREQ_UNITS,
@@ -59,8 +74,32 @@ _UNITS_OF = {
     "x": _OHM_UNITS,
     "re": _OHM_UNITS,
     "im": _OHM_UNITS,
+    "cs": _FARAD_UNITS,
+    "cp": _FARAD_UNITS,
+    "ls": _HENRY_UNITS,
+    "lp": _HENRY_UNITS,
+    "rp": _OHM_UNITS,
+    "d": _NUMBER_UNITS,
+    "q": _NUMBER_UNITS,
 }
-_PAIRS = (("mag", "phase"), ("r", "x"), ("re", "im"))
+_PAIRS = (
+    ("mag", "phase"),
+    ("r", "x"),
+    ("re", "im"),
+    ("cs", "r"),
+    ("cs", "d"),
+    ("cs", "q"),
+    ("cp", "rp"),
+    ("cp", "d"),
+    ("cp", "q"),
+    ("ls", "r"),
+    ("ls", "q"),
+    ("ls", "d"),
+    ("lp", "rp"),
+    ("lp", "q"),
+    ("lp", "d"),
+)
+_DIMENSIONLESS = ("d", "q")
 _EXAMPLE = "Frequency [Hz],|Z| [Ohm],Phase [deg]"
 _BRACKETED = re.compile(r"^(.*?)\s*[\[(]\s*([^\])]*?)\s*[\])]\s*$")
 _UNIT_AFTER = re.compile(r"[\s_]+(?=[^\s_]+$)")
@@ -102,7 +141,7 @@ def _column(where: str, text: str) -> tuple[str, float]:
             hint="name the columns Frequency, then |Z| and Phase, or R and X, or Real and "
             f"Imag, each with its unit, e.g. '{_EXAMPLE}'",
         )
-    if not unit:
+    if not unit and role not in _DIMENSIONLESS:
         raise InputError(
             f"column {field!r} has no unit",
             path=where,
@@ -110,7 +149,7 @@ def _column(where: str, text: str) -> tuple[str, float]:
         )
     scale = _unit_of(role, unit)
     if scale is None:
-        known = ", ".join(k for k in _UNITS_OF[role] if k.isascii())
+        known = ", ".join(k for k in _UNITS_OF[role] if k.isascii() and k) or "no unit"
         raise InputError(
             f"column {field!r}: unit {unit!r} is not one zbench reads for it",
             path=where,
@@ -195,7 +234,8 @@ def load_impedance_csv(path: str | Path, *, method: str | None = None):
     if "f" not in seen or len(pair) != 1 or len(seen) != 3:
         raise InputError(
             f"has the columns {', '.join(names)}; zbench needs a frequency and one pair: "
-            "|Z| with phase, R with X, or real with imaginary part",
+            "|Z| with phase, R with X, real with imaginary part, or an analyser's "
+            "equivalent circuit (Cs or Ls with Rs, D or Q; Cp or Lp with Rp, D or Q)",
             path=where,
             hint=f"export three columns, e.g. '{_EXAMPLE}'",
         )
@@ -228,7 +268,7 @@ def load_impedance_csv(path: str | Path, *, method: str | None = None):
     a, b = pair[0]
     first = data[:, columns[a]] * scales[a]
     second = data[:, columns[b]] * scales[b]
-    z = first * np.exp(1j * second) if a == "mag" else first + 1j * second
+    z = _impedance_of(a, b, 2 * np.pi * f, first, second)
     f, z, merged = merge_repeats(f, z)
     _check_grid(name, f)
     if not (np.all(np.isfinite(z)) and np.all(np.isfinite(f))):
@@ -261,6 +301,36 @@ def load_impedance_csv(path: str | Path, *, method: str | None = None):
         method_source="option" if method else "file",
         warnings=tuple(w for w in (merged, low_sweep_note(f)) if w),
     )
+
+
+def _impedance_of(a: str, b: str, w, first, second):
+    """The impedance (Ω) from the pair of columns ``a``, ``b`` (SI values) at ``w``
+    (rad/s). An analyser's equivalent circuits (docs/references.md §3), with the signed
+    definitions it reports above a resonance too (a negative Cs is inductive):
+    series ``Z = Rs + 1/(jωCs)`` or ``Rs + jωLs`` with ``D = ωCs·Rs`` and
+    ``Q = ωLs/Rs``; parallel ``Y = 1/Rp + jωCp`` or ``1/Rp + 1/(jωLp)`` with
+    ``D = 1/(ωCp·Rp)`` and ``Q = Rp/(ωLp)``; ``Q = 1/D`` throughout."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        if a == "mag":
+            return first * np.exp(1j * second)
+        if a in ("r", "re"):
+            return first + 1j * second
+        if a in ("cs", "ls"):
+            x = -1.0 / (w * first) if a == "cs" else w * first
+            if b == "r":
+                rs = second
+            else:
+                d = second if b == "d" else 1.0 / second
+                # D = Rs/|Xs| for a capacitance, 1/Q = Rs/Xs for an inductance.
+                rs = d * (1.0 / (w * first) if a == "cs" else w * first)
+            return rs + 1j * x
+        b_par = w * first if a == "cp" else -1.0 / (w * first)
+        if b == "rp":
+            g = 1.0 / second
+        else:
+            d = second if b == "d" else 1.0 / second
+            g = d * (w * first if a == "cp" else 1.0 / (w * first))
+        return 1.0 / (g + 1j * b_par)
 
 
 def _is_number(text: str) -> bool:

@@ -62,6 +62,67 @@ FORMS = [
 ]
 
 
+def _w(f):
+    return 2 * np.pi * f
+
+
+def _y(z):
+    return 1 / z
+
+
+# An analyser's equivalent-circuit readings of the same impedance, signed as analysers
+# report them above a resonance (a negative Cs, a negative Ls below it).
+EQUIVALENT_FORMS = [
+    ("Frequency [Hz],Cs [uF],Rs [Ohm]", lambda f, z: (f, -1e6 / (_w(f) * z.imag), z.real)),
+    ("Frequency [Hz],Cs [F],D", lambda f, z: (f, -1 / (_w(f) * z.imag), -z.real / z.imag)),
+    ("Frequency [Hz],Cs [nF],Q [1]", lambda f, z: (f, -1e9 / (_w(f) * z.imag), -z.imag / z.real)),
+    (
+        "Frequency [Hz],Cp [pF],Rp [kOhm]",
+        lambda f, z: (f, 1e12 * _y(z).imag / _w(f), 1e-3 / _y(z).real),
+    ),
+    ("Frequency [Hz],Cp [F],D", lambda f, z: (f, _y(z).imag / _w(f), _y(z).real / _y(z).imag)),
+    ("Frequency [Hz],Cp [F],Q", lambda f, z: (f, _y(z).imag / _w(f), _y(z).imag / _y(z).real)),
+    ("Frequency [Hz],Ls [nH],Rs [mOhm]", lambda f, z: (f, 1e9 * z.imag / _w(f), 1e3 * z.real)),
+    ("Frequency [Hz],Ls [H],Q", lambda f, z: (f, z.imag / _w(f), z.imag / z.real)),
+    ("Frequency [Hz],Ls [H],D", lambda f, z: (f, z.imag / _w(f), z.real / z.imag)),
+    (
+        "Frequency [Hz],Lp [uH],Rp [Ohm]",
+        lambda f, z: (f, -1e6 / (_w(f) * _y(z).imag), 1 / _y(z).real),
+    ),
+    (
+        "Frequency [Hz],Lp [H],Q",
+        lambda f, z: (f, -1 / (_w(f) * _y(z).imag), -_y(z).imag / _y(z).real),
+    ),
+    (
+        "Frequency [Hz],Lp [H],tan delta",
+        lambda f, z: (f, -1 / (_w(f) * _y(z).imag), -_y(z).real / _y(z).imag),
+    ),
+]
+
+
+@pytest.mark.parametrize(
+    ("header", "columns"), EQUIVALENT_FORMS, ids=[f[0] for f in EQUIVALENT_FORMS]
+)
+def test_equivalent_circuit_columns_read_the_same_impedance(
+    tmp_path: Path, header: str, columns
+) -> None:
+    path = tmp_path / "part.csv"
+    path.write_text(_table(header, ",", columns(F, Z)))
+    m = load_measurement(path)
+    np.testing.assert_allclose(m.z, Z, rtol=1e-9)
+
+
+def test_a_capacitance_with_its_dissipation_factor_by_hand(tmp_path: Path) -> None:
+    # 10 nF with D = 0.01 at 1 kHz: Rs = D/(ωC) = 0.01/(2π·1e3·1e-8) = 159.155 Ω and
+    # Xs = −1/(ωC) = −15 915.5 Ω (the definition D = ωCs·Rs, worked by hand).
+    path = tmp_path / "c.csv"
+    rows = "".join(f"{k},10,0.01\n" for k in range(1, 13))
+    path.write_text("Frequency [kHz],Cs [nF],D\n" + rows)
+    m = load_measurement(path)
+    assert m.z[0].real == pytest.approx(159.155, rel=1e-5)
+    assert m.z[0].imag == pytest.approx(-15915.49, rel=1e-6)
+
+
 @pytest.mark.parametrize(
     ("header", "delimiter", "columns", "comma"), FORMS, ids=[f[0] for f in FORMS]
 )
@@ -89,8 +150,8 @@ MALFORMED = [
     ("no header", _good_rows(), "no header row", 1, "Frequency [Hz],|Z| [Ohm],Phase [deg]"),
     (
         "unknown column",
-        "Frequency [Hz],|Z| [Ohm],Q [1]\n" + _good_rows(),
-        "unknown column 'Q [1]'",
+        "Frequency [Hz],|Z| [Ohm],Temperature [C]\n" + _good_rows(),
+        "unknown column 'Temperature [C]'",
         1,
         "name the columns",
     ),
