@@ -186,6 +186,7 @@ def load_impedance_csv(path: str | Path, *, method: str | None = None):
         low_sweep_note,
         merge_repeats,
     )
+    from bench.touchstone_scan import scpi_no_number
 
     p = Path(path)
     name = str(p)
@@ -264,6 +265,7 @@ def load_impedance_csv(path: str | Path, *, method: str | None = None):
             "has a header but no data rows", path=name, hint="export the measurement's data too"
         )
     data = np.asarray(rows, dtype=float)
+    data[scpi_no_number(data)] = np.nan  # a point the analyser did not measure
     f = data[:, columns["f"]] * scales["f"]
     a, b = pair[0]
     first = data[:, columns[a]] * scales[a]
@@ -273,7 +275,10 @@ def load_impedance_csv(path: str | Path, *, method: str | None = None):
     _check_grid(name, f)
     if not (np.all(np.isfinite(z)) and np.all(np.isfinite(f))):
         raise InputError(
-            "holds NaN or infinite values", path=name, hint="remove or re-export those rows"
+            "holds no number (NaN, infinity, or SCPI's 9.91E37 that an analyser writes for a "
+            "point it could not measure)",
+            path=name,
+            hint="measure again, or remove those rows",
         )
     if not np.any(z):
         raise InputError(

@@ -300,10 +300,12 @@ def load_measurement(
         rows = np.unique(np.nonzero(~np.isfinite(matrix.reshape(f.size, -1)))[0])
         listed = ", ".join(f"{f[i]:g} Hz" for i in rows[:3])
         raise InputError(
-            f"has NaN or infinite values at {rows.size} frequencies ({listed}"
+            f"has no number (NaN, infinity, or SCPI's 9.91E37 that an analyser writes for a "
+            f"point it could not measure) at {rows.size} frequencies ({listed}"
             f"{', ...' if rows.size > 3 else ''})",
             path=name,
-            hint="re-export the measurement, or drop the bad points",
+            hint="measure again (an overloaded receiver is the usual cause: lower the "
+            "source power), or drop those points from the file",
         )
     comments = scan.comments
     common = {"path": p, "f": f, "z0": z0, "comments": comments, "warnings": tuple(notes)}

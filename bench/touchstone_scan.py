@@ -164,6 +164,14 @@ def _option_line(name: str, number: int, text: str) -> tuple[str, str, str, floa
     return unit, parameter, data_format, reference
 
 
+def scpi_no_number(values: NDArray[np.float64]) -> NDArray[np.bool_]:
+    """Where ``values`` hold SCPI's codes for no number: 9.91E37 (not-a-number) and
+    ±9.9E37 (infinity), which an analyser writes for a point it could not measure
+    (SCPI-99 vol. 1; from memory). Read as numbers they would pass for 10³⁷."""
+    size = np.abs(values)
+    return np.isclose(size, 9.9e37, rtol=1e-4) | np.isclose(size, 9.91e37, rtol=1e-4)
+
+
 def scan_touchstone(path: Path) -> Scan:
     """Read a Touchstone file's structure once, refusing what would be misread.
 
@@ -314,6 +322,10 @@ def scan_touchstone(path: Path) -> Scan:
             "check the port count and re-export the file",
         )
     rows = values.reshape(-1, width)
+    codes = scpi_no_number(rows[:, 1:])
+    if np.any(codes):
+        rows = rows.copy()
+        rows[:, 1:][codes] = np.nan
     freqs = rows[:, 0]
     all_zero = not np.any(rows[:, 1:])
     if version.startswith("2") and declared is not None and declared != len(freqs):

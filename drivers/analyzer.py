@@ -30,8 +30,9 @@ from drivers.errors import (
     InstrumentTimeout,
     PlanError,
     TransportError,
+    UnmeasuredPoints,
 )
-from drivers.scpi import ScpiInstrument
+from drivers.scpi import ScpiInstrument, scpi_non_numbers
 from drivers.transport import Transport
 
 S_PARAMETERS = ("S11", "S21", "S12", "S22")
@@ -276,7 +277,16 @@ class NetworkAnalyzer(ScpiInstrument):
                     "not the instrument's (data.format, data.byte_order): repeat the sweep, "
                     "then check the map with zbench probe",
                 )
-            traces[name] = values[0::2] + 1j * values[1::2]
+            trace = values[0::2] + 1j * values[1::2]
+            unmeasured = ~np.isfinite(trace)
+            if np.any(unmeasured):
+                raise UnmeasuredPoints(
+                    self.resource_name,
+                    name,
+                    tuple(float(x) for x in f[unmeasured][:3]),
+                    int(np.count_nonzero(unmeasured)),
+                )
+            traces[name] = trace
         return SweepData(f=f, traces=traces, plan=self._plan)
 
     def wait_for_sweep(self, wait_s: float) -> None:
@@ -364,11 +374,15 @@ class NetworkAnalyzer(ScpiInstrument):
         }
 
     def _read_values(self, command: str) -> np.ndarray:
+        """The numbers a query answers, SCPI's codes for no number as NaN and ±inf
+        (:func:`~drivers.scpi.scpi_non_numbers`)."""
         if self.map.encoding == "binary":
-            return self.transport.query_binary(
+            values = self.transport.query_binary(
                 command,
                 datatype=self.map.datatype,
                 big_endian=self.map.big_endian,
                 terminated=self.map.block_terminated,
             )
-        return self.transport.query_ascii_values(command)
+        else:
+            values = self.transport.query_ascii_values(command)
+        return scpi_non_numbers(values)

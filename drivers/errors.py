@@ -55,6 +55,28 @@ class ConnectionFailed(TransportError):  # noqa: N818 (named like its siblings)
     hint = "check the instrument is on and listening at that address and port"
 
 
+class UnmeasuredPoints(DriverError):  # noqa: N818 (named for what the analyser sent)
+    """The analyser sent SCPI's not-a-number or infinity (9.91E37, ±9.9E37) for points of
+    a sweep: it could not measure them (a receiver overload, say). No sweep with such
+    points is taken as a measurement: a calibration or a correction would carry them
+    into every frequency they touch."""
+
+    def __init__(self, resource: str, trace: str, frequencies: tuple[float, ...], count: int):
+        self.resource = resource
+        self.trace = trace
+        self.frequencies = frequencies
+        self.count = count
+        listed = ", ".join(f"{f:g} Hz" for f in frequencies[:3])
+        more = ", ..." if count > 3 else ""
+        super().__init__(
+            f"{resource}: the analyser sent no number (SCPI's 9.91E37 or 9.9E37) for {count} "
+            f"point{'' if count == 1 else 's'} of {trace} ({listed}{more}): it could not "
+            "measure them\n  fix: an overloaded receiver is the usual cause: lower the "
+            "source power, check the connections and the analyser's own messages, then "
+            "resume the run to sweep again"
+        )
+
+
 class InstrumentError(DriverError):
     """An entry of the instrument's error queue (``SYSTem:ERRor?``).
 

@@ -9,6 +9,8 @@ from __future__ import annotations
 
 import re
 
+import numpy as np
+
 from drivers.errors import DriverError, InstrumentError
 from drivers.transport import Transport
 
@@ -16,6 +18,26 @@ from drivers.transport import Transport
 _ERROR_RE = re.compile(r'^\s*([+-]?\d+)\s*,\s*"?(.*?)"?\s*$', re.DOTALL)
 
 DEFAULT_ERROR_QUERY = "SYSTem:ERRor:NEXT?"
+
+# SCPI's numbers that stand for no number: 9.91E37 for not-a-number and ±9.9E37 for
+# ±infinity (SCPI-99 vol. 1, the NaN and INFinity values; from memory). An analyser
+# sends them for points it could not measure (an overload, say).
+SCPI_NAN = 9.91e37
+SCPI_INFINITY = 9.9e37
+
+
+def scpi_non_numbers(values: np.ndarray) -> np.ndarray:
+    """``values`` with SCPI's not-a-number and infinity codes as NaN and ±inf: read as
+    numbers, they are 10³⁷ and would pass for a measurement."""
+    values = np.asarray(values, dtype=float)
+    size = np.abs(values)
+    if not np.any(size >= 0.999 * SCPI_INFINITY):
+        return values
+    # Within 1e-4 of the code: a binary block's 32-bit floats carry it to 1e-7.
+    infinite = np.isclose(size, SCPI_INFINITY, rtol=1e-4)
+    out = np.where(infinite, np.copysign(np.inf, values), values)
+    out[np.isclose(size, SCPI_NAN, rtol=1e-4)] = np.nan
+    return out
 
 
 def parse_error_entry(answer: str) -> tuple[int, str]:

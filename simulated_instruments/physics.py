@@ -363,6 +363,20 @@ def add_noise(
     return s * (1 + complex_gaussian(trace_rms)) + complex_gaussian(floor)
 
 
+def add_unmeasured(s: np.ndarray, rng: np.random.Generator, rate: float) -> np.ndarray:
+    """``s`` (n, 2, 2) with each point, by chance ``rate``, not measured (an overload of
+    the receiver, say): NaN, which the analyser sends as SCPI's not-a-number. Draws
+    nothing when ``rate`` is 0."""
+    if rate <= 0:
+        return s
+    hit = rng.random(s.shape[0]) < rate
+    if not np.any(hit):
+        return s
+    out = s.copy()
+    out[hit] = np.nan
+    return out
+
+
 def add_glitches(s: np.ndarray, rng: np.random.Generator, rate: float, size: float) -> np.ndarray:
     """``s`` (n, 2, 2) with each point, by chance ``rate``, a glitch: its whole S-matrix
     times ``exp(size·e^jθ)`` with θ uniform (magnitude, phase or both off by ``size`` in

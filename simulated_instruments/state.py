@@ -365,7 +365,8 @@ class BenchState:
                 floor = floor * np.abs(s1[:, 1, 0] * s2[:, 0, 1])
             rng = self.sweep_rng(plan)
             s = physics.add_noise(s, rng, floor, trace)
-            return physics.add_glitches(s, rng, spec.glitch_rate, spec.glitch_size)
+            s = physics.add_glitches(s, rng, spec.glitch_rate, spec.glitch_size)
+            return physics.add_unmeasured(s, rng, spec.unmeasured_rate)
 
     def sweep_rng(self, plan: SweepPlan) -> np.random.Generator:
         """The noise of one sweep, drawn from the seed, what is measured and how often.

@@ -632,7 +632,10 @@ def fit_impedance(
     warnings: list[str] = []
     n_unusable = int(np.count_nonzero(~finite))
     if n_unusable:
-        warnings.append(f"{n_unusable} points with missing, zero or infinite values were not used")
+        warnings.append(
+            f"{n_unusable} point{'' if n_unusable == 1 else 's'} with missing, zero or "
+            f"infinite values {'was' if n_unusable == 1 else 'were'} not used"
+        )
     n_outside = int(np.count_nonzero(finite & ~inside))
     if n_outside:
         warnings.append(

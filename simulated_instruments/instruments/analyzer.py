@@ -61,8 +61,17 @@ class Sweep:
         return cached
 
 
+# SCPI's number for not-a-number (SCPI-99 vol. 1; from memory): what an analyser sends
+# for a point it could not measure.
+SCPI_NAN = 9.91e37
+
+
 def encode_values(values: np.ndarray, data_format: str, byte_order: str) -> bytes | str:
-    """Values as ASCII (full precision, comma-separated), a REAL,64 or a REAL,32 block."""
+    """Values as ASCII (full precision, comma-separated), a REAL,64 or a REAL,32 block;
+    a point not measured (NaN) as SCPI's not-a-number, 9.91E37."""
+    values = np.asarray(values, dtype=float)
+    if not np.all(np.isfinite(values)):
+        values = np.where(np.isfinite(values), values, SCPI_NAN)
     if data_format in ("REAL", "REAL32"):
         size = "f8" if data_format == "REAL" else "f4"
         dtype = (">" if byte_order == "NORMAL" else "<") + size

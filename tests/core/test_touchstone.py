@@ -108,7 +108,7 @@ BAD_CASES = [
         "nan.s2p",
         "# Hz S RI R 50\n" + "\n".join([*_rows(11, 8), "1e6 nan 0 0.1 0 0.1 0 0 0"]) + "\n",
         "NaN",
-        "re-export",
+        "measure again",
     ),
 ]
 
