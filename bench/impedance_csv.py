@@ -99,7 +99,6 @@ _PAIRS = (
     ("lp", "q"),
     ("lp", "d"),
 )
-_DIMENSIONLESS = ("d", "q")
 _EXAMPLE = "Frequency [Hz],|Z| [Ohm],Phase [deg]"
 _BRACKETED = re.compile(r"^(.*?)\s*[\[(]\s*([^\])]*?)\s*[\])]\s*$")
 _UNIT_AFTER = re.compile(r"[\s_]+(?=[^\s_]+$)")
@@ -141,7 +140,7 @@ def _column(where: str, text: str) -> tuple[str, float]:
             hint="name the columns Frequency, then |Z| and Phase, or R and X, or Real and "
             f"Imag, each with its unit, e.g. '{_EXAMPLE}'",
         )
-    if not unit and role not in _DIMENSIONLESS:
+    if not unit and "" not in _UNITS_OF[role]:  # D and Q need none
         raise InputError(
             f"column {field!r} has no unit",
             path=where,

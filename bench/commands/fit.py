@@ -107,10 +107,16 @@ def _model_mark_text(value: float, error: float | None) -> str:
     """`` (model ±x %)``: a landmark given by the fitted model, with its one-sigma spread
     within the model (the model's own shortfall, an extrapolation's above all, is not in
     it); `` (model, not determined)`` beyond ±100 %."""
-    spread = _spread_text(value, error).strip()
-    if not spread:
+    from bench.core.fit_select import relative_spread, undetermined
+
+    relative = relative_spread(value, error)
+    if relative is None:
         return " (model)"
-    return f" (model, {spread[1:-1]})" if spread.startswith("(") else f" (model {spread})"
+    return (
+        " (model, not determined)"
+        if undetermined(relative)
+        else f" (model ±{100 * relative:.2g} %)"
+    )
 
 
 def _model_text(result: Any) -> str:

@@ -215,11 +215,12 @@ def edge_resonance_warnings(
     ]
 
 
-def series_capacitance_note(f, z, sigma) -> str | None:
+def series_capacitance_note(kind: str, f, z, sigma) -> str | None:
     """What inductive data's bottom says when it holds a series capacitance
     (:func:`bench.core.landmarks.series_capacitance_below`): a capacitor swept above its
-    series resonance reads as an inductor. None when it holds none."""
-    found = series_capacitance_below(f, z, sigma)
+    series resonance reads as an inductor. None when it holds none, and for data of
+    ``kind`` capacitor."""
+    found = series_capacitance_below(f, z, sigma) if kind == "inductor" else None
     if found is None:
         return None
     c, f_res = found

@@ -653,11 +653,11 @@ def fit_impedance(
     # otherwise decide it), unless nothing else is left.
     in_runs = used & ~robust.apart(used)
     kind = classify(*((f[in_runs], z[in_runs]) if np.any(in_runs) else (f[used], z[used])))
+    u_all = np.clip(np.where(finite, sigma, 1.0), 1e-6, None)
     if model != "auto" and FAMILIES[model].kind != kind:
         fits = [name for name, fam in FAMILIES.items() if fam.kind == kind]
-        note = None
-        if kind == "inductor":
-            note = series_capacitance_note(f[used], z[used], np.where(finite, sigma, 0)[used])
+        # A capacitor swept above its resonance reads as an inductor: say so.
+        note = series_capacitance_note(kind, f[used], z[used], u_all[used])
         raise ModelMismatchError(
             f"model {model!r} describes {FAMILIES[model].kind}s, but the data is "
             f"{'capacitive' if kind == 'capacitor' else 'inductive'} at its lowest "
@@ -665,7 +665,6 @@ def fit_impedance(
             + (f" ({note})" if note else "")
             + f"; use --model auto or one of {', '.join(fits)}"
         )
-    u_all = np.clip(np.where(finite, sigma, 1.0), 1e-6, None)
     all_weight = 1.0 / np.hypot(u_all, MODEL_ERROR_FLOOR)
 
     def choose(mask):
@@ -796,10 +795,9 @@ def fit_impedance(
     marks, sources = merge_landmarks(data_marks, model_marks, cut, reading_error, lost)
     warnings += resonance_warnings(kind, f, used, model_marks, data_marks)
     warnings += edge_resonance_warnings(fu, best, model_marks.get("srf"))
-    if kind == "inductor":
-        note = series_capacitance_note(f[used], z[used], u_all[used])
-        if note is not None:
-            warnings.append(f"the part may be a capacitor: {note}")
+    note = series_capacitance_note(kind, f[used], z[used], u_all[used])
+    if note is not None:
+        warnings.append(f"the part may be a capacitor: {note}")
     if z_model is not None:
         warnings += low_frequency_warnings(
             kind, f, z, sigma, used, marks, left_out.any(), z_model=z_model
