@@ -213,23 +213,32 @@ def result_line(
 #: Where a result line may be folded: two or more spaces before a field that does not
 #: start with a digit or a dash (those are right-aligned values such as "C   4.5 µF").
 _FIELD_BOUNDARY = re.compile(r" {2,}(?=[^\s\d—])")
+#: Where a line without fields (a sentence) may be folded: a space after a word, never
+#: the one between a number and its unit ("0.05 s", "4.57 µF") or before a number.
+_WORD_BOUNDARY = re.compile(r"(?<![\d.±+−-]) +(?=[^\s\d])")
 FOLD_INDENT = 4
 
 
 def fit_width(text: str, width: int) -> str:
     """Fold each line of ``text`` longer than ``width`` between its fields.
 
-    Fields are separated by two or more spaces (:data:`_FIELD_BOUNDARY`); continuation
-    lines are indented by :data:`FOLD_INDENT` spaces. A line with no field boundary to
-    fold at is left as it is (the console wraps it as it would any text).
+    Fields are separated by two or more spaces (:data:`_FIELD_BOUNDARY`); a line with
+    none to fold at is folded between its words (:data:`_WORD_BOUNDARY`), which keeps a
+    number with its unit. Continuation lines are indented by :data:`FOLD_INDENT`
+    spaces. A line with neither (one long word) is left as it is.
     """
     out = []
     for line in text.split("\n"):
         while len(line) > width:
-            cuts = [m for m in _FIELD_BOUNDARY.finditer(line) if FOLD_INDENT < m.start() <= width]
+            cuts = _cuts(_FIELD_BOUNDARY, line, width) or _cuts(_WORD_BOUNDARY, line, width)
             if not cuts:
                 break
             out.append(line[: cuts[-1].start()])
             line = " " * FOLD_INDENT + line[cuts[-1].end() :]
         out.append(line)
     return "\n".join(out)
+
+
+def _cuts(boundary: re.Pattern[str], line: str, width: int) -> list[re.Match[str]]:
+    """The matches of ``boundary`` in ``line`` where it may be folded to fit ``width``."""
+    return [m for m in boundary.finditer(line) if FOLD_INDENT < m.start() <= width]

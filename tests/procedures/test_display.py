@@ -71,8 +71,18 @@ def test_long_lines_fold_between_fields_within_80_columns():
     for width in range(30, 80):
         for row in fit_width(padded, width).split("\n"):
             assert not row.strip()[:1].isdigit() and not row.strip().startswith("—")
-    # Prose without field boundaries is left to the console.
-    assert fit_width("a b c " * 30, 40) == "a b c " * 30
+    # A sentence without fields folds between words, a number never parted from its unit.
+    took = (
+        "took 5.7 s (estimated 7.4 s): instruments 1.4 s (estimated 3.5 s), operator "
+        "0.05 s (estimated 0.00 s), fit and report 4.1 s"
+    )
+    for width in range(30, 80):
+        rows = fit_width(took, width).split("\n")
+        assert " ".join(row.strip() for row in rows) == took
+        assert all(len(row) <= width for row in rows)
+        assert not any(row.strip()[:1] in "s)" or row.rstrip()[-1].isdigit() for row in rows)
+    # One long word has nowhere to fold: left to the console.
+    assert fit_width("x" * 50, 40) == "x" * 50
 
 
 def test_rich_display_prints_folded_lines_at_the_console_width():
