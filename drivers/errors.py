@@ -61,17 +61,27 @@ class UnmeasuredPoints(DriverError):  # noqa: N818 (named for what the analyser 
     points is taken as a measurement: a calibration or a correction would carry them
     into every frequency they touch."""
 
-    def __init__(self, resource: str, trace: str, frequencies: tuple[float, ...], count: int):
+    def __init__(
+        self,
+        resource: str,
+        trace: str,
+        frequencies: tuple[float, ...],
+        count: int,
+        *,
+        sweeps: int = 1,
+    ):
         self.resource = resource
         self.trace = trace
         self.frequencies = frequencies
         self.count = count
+        self.sweeps = sweeps
         listed = ", ".join(f"{f:g} Hz" for f in frequencies[:3])
         more = ", ..." if count > 3 else ""
+        again = f" (each of {sweeps} sweeps in a row had such points)" if sweeps > 1 else ""
         super().__init__(
             f"{resource}: the analyser sent no number (SCPI's 9.91E37 or 9.9E37) for {count} "
             f"point{'' if count == 1 else 's'} of {trace} ({listed}{more}): it could not "
-            "measure them\n  fix: an overloaded receiver is the usual cause: lower the "
+            f"measure them{again}\n  fix: an overloaded receiver is the usual cause: lower the "
             "source power, check the connections and the analyser's own messages, then "
             "resume the run to sweep again"
         )

@@ -363,11 +363,16 @@ def add_noise(
     return s * (1 + complex_gaussian(trace_rms)) + complex_gaussian(floor)
 
 
-def add_unmeasured(s: np.ndarray, rng: np.random.Generator, rate: float) -> np.ndarray:
+def add_unmeasured(
+    s: np.ndarray, rng: np.random.Generator, rate: float, sweep_rate: float = 1.0
+) -> np.ndarray:
     """``s`` (n, 2, 2) with each point, by chance ``rate``, not measured (an overload of
-    the receiver, say): NaN, which the analyser sends as SCPI's not-a-number. Draws
+    the receiver, say): NaN, which the analyser sends as SCPI's not-a-number. Only a sweep
+    drawn by chance ``sweep_rate`` has such points (below 1: a passing overload). Draws
     nothing when ``rate`` is 0."""
     if rate <= 0:
+        return s
+    if sweep_rate < 1.0 and rng.random() >= sweep_rate:
         return s
     hit = rng.random(s.shape[0]) < rate
     if not np.any(hit):

@@ -90,7 +90,12 @@ SCHEMA: dict[str, Any] = _obj(
                         "size": {"type": "number", "exclusiveMinimum": 0, "maximum": 3},
                     }
                 ),
-                "unmeasured": _obj({"rate": {"type": "number", "minimum": 0, "maximum": 0.05}}),
+                "unmeasured": _obj(
+                    {
+                        "rate": {"type": "number", "minimum": 0, "maximum": 0.05},
+                        "sweep_rate": {"type": "number", "minimum": 0, "maximum": 1},
+                    }
+                ),
                 "sweep_time": _obj({"overhead": _Q, "per_point": _Q, "settle_cycles": _Q}),
                 "error_boxes": _obj(
                     {
@@ -216,8 +221,11 @@ class AnalyzerSpec:
     #: θ drawn at random (so a change of magnitude, of phase, or both).
     glitch_rate: float = 0.0
     glitch_size: float = 0.3
-    #: The chance that a point of a sweep is not measured (sent as SCPI's not-a-number).
+    #: The chance that a point of a sweep is not measured (sent as SCPI's not-a-number),
+    #: in a sweep that has such points at all (chance ``unmeasured_sweep_rate``: below 1,
+    #: an overload that comes and goes).
     unmeasured_rate: float = 0.0
+    unmeasured_sweep_rate: float = 1.0
     sweep_overhead: float = 5e-3
     sweep_per_point: float = 25e-6
     settle_cycles: float = 1.2
@@ -411,6 +419,9 @@ def load_scenario(
         glitch_rate=float(a.get("glitches", {}).get("rate", d.glitch_rate)),
         glitch_size=float(a.get("glitches", {}).get("size", d.glitch_size)),
         unmeasured_rate=float(a.get("unmeasured", {}).get("rate", d.unmeasured_rate)),
+        unmeasured_sweep_rate=float(
+            a.get("unmeasured", {}).get("sweep_rate", d.unmeasured_sweep_rate)
+        ),
         sweep_overhead=_q(st, "overhead", "s", d.sweep_overhead, "analyzer.sweep_time"),
         sweep_per_point=_q(st, "per_point", "s", d.sweep_per_point, "analyzer.sweep_time"),
         settle_cycles=_q(st, "settle_cycles", None, d.settle_cycles, "analyzer.sweep_time"),

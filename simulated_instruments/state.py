@@ -366,7 +366,7 @@ class BenchState:
             rng = self.sweep_rng(plan)
             s = physics.add_noise(s, rng, floor, trace)
             s = physics.add_glitches(s, rng, spec.glitch_rate, spec.glitch_size)
-            return physics.add_unmeasured(s, rng, spec.unmeasured_rate)
+            return physics.add_unmeasured(s, rng, spec.unmeasured_rate, spec.unmeasured_sweep_rate)
 
     def sweep_rng(self, plan: SweepPlan) -> np.random.Generator:
         """The noise of one sweep, drawn from the seed, what is measured and how often.

@@ -4,8 +4,9 @@ operator's choice after a sweep."""
 from __future__ import annotations
 
 import time
+from collections.abc import Callable
 from pathlib import Path
-from typing import NamedTuple
+from typing import NamedTuple, TypeVar
 
 import numpy as np
 
@@ -17,6 +18,8 @@ from bench.runstore import SKIPPED, file_stem
 #: All four: SOLT corrects with all of them, the through response uses S21 and S12, and a
 #: reprocess with another method needs them stored.
 PARAMETERS = ("S11", "S21", "S12", "S22")
+
+T = TypeVar("T")
 
 
 def setup(ctx: RunContext) -> None:
@@ -99,7 +102,7 @@ def sweeps(ctx: RunContext, step: Step, label: str) -> None:
         t0 = time.perf_counter()
         comment = f"raw, analyser correction off, sweep {k} of {n}"
         if step.method == GAIN_PHASE:
-            f_gp, ratio = ctx.inst.gain_phase.ratio()
+            f_gp, ratio = _measured(ctx, step, ctx.inst.gain_phase.ratio)
             s_gp = np.zeros((len(f_gp), 2, 2), dtype=complex)
             s_gp[:, 1, 0] = s_gp[:, 0, 1] = ratio
             data = _Sweep(np.asarray(f_gp, dtype=float), s_gp)
@@ -108,7 +111,7 @@ def sweeps(ctx: RunContext, step: Step, label: str) -> None:
                 f"S-parameter), sweep {k} of {n}"
             )
         else:
-            data = ctx.inst.analyzer.sweep(PARAMETERS)
+            data = _measured(ctx, step, lambda: ctx.inst.analyzer.sweep(PARAMETERS))
         spent = time.perf_counter() - t0
         ctx.sweep_seconds += spent
         ctx.step_sweep_seconds[step.id] = ctx.step_sweep_seconds.get(step.id, 0.0) + spent
@@ -128,6 +131,37 @@ def sweeps(ctx: RunContext, step: Step, label: str) -> None:
     ctx.counted.add(step.id)
     f = taken[0][0]
     ctx.last = (f, sum(s for _, s in taken) / len(taken))
+
+
+#: A sweep with points the analyser could not measure (SCPI's 9.91E37) is taken again,
+#: up to this many sweeps in all, before the run stops: an overload that passes (a
+#: transient on the bias line, a switch settling) costs a sweep, not the run (common
+#: practice, no source).
+UNMEASURED_SWEEPS = 3
+
+
+def _measured(ctx: RunContext, step: Step, take: Callable[[], T]) -> T:
+    """``take()``, one sweep, taken again while the analyser sends points it could not
+    measure, at most :data:`UNMEASURED_SWEEPS` times; each repeat is logged and shown.
+    The last failure stops the run (the driver's error, naming the sweeps taken)."""
+    from drivers.errors import UnmeasuredPoints
+
+    for attempt in range(1, UNMEASURED_SWEEPS + 1):
+        try:
+            return take()
+        except UnmeasuredPoints as exc:
+            if attempt == UNMEASURED_SWEEPS:
+                raise UnmeasuredPoints(
+                    exc.resource, exc.trace, exc.frequencies, exc.count, sweeps=attempt
+                ) from None
+            text = (
+                f"{step.id}: the analyser could not measure {exc.count} "
+                f"point{'' if exc.count == 1 else 's'} of {exc.trace} (sent 9.91E37); "
+                f"sweep taken again ({attempt} of {UNMEASURED_SWEEPS - 1} repeats)"
+            )
+            ctx.store.log(text)
+            ctx.display.message(text)
+    raise AssertionError("unreachable")  # the loop returns or raises
 
 
 class _Sweep(NamedTuple):
