@@ -301,7 +301,8 @@ def load_measurement(
         listed = ", ".join(f"{f[i]:g} Hz" for i in rows[:3])
         raise InputError(
             f"has no number (NaN, infinity, or SCPI's 9.91E37 that an analyser writes for a "
-            f"point it could not measure) at {rows.size} frequencies ({listed}"
+            f"point it could not measure) at {rows.size} "
+            f"frequenc{'y' if rows.size == 1 else 'ies'} ({listed}"
             f"{', ...' if rows.size > 3 else ''})",
             path=name,
             hint="measure again (an overloaded receiver is the usual cause: lower the "

@@ -463,8 +463,9 @@ def network_matrix(scan: Scan) -> tuple[NDArray[np.complex128], float]:
             m11, m12, m21, m22 = v.T
         m = np.stack([np.stack([m11, m12], -1), np.stack([m21, m22], -1)], -2)
     z0 = scan.references[0] if scan.references else scan.reference
-    if scan.version.startswith("1") and scan.parameter == "z":
-        m = m * scan.reference
-    elif scan.version.startswith("1") and scan.parameter == "y":
-        m = m / scan.reference
+    with np.errstate(over="ignore", invalid="ignore"):  # an infinite value stays one
+        if scan.version.startswith("1") and scan.parameter == "z":
+            m = m * scan.reference
+        elif scan.version.startswith("1") and scan.parameter == "y":
+            m = m / scan.reference
     return np.asarray(m, dtype=complex), float(z0)

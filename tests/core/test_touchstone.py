@@ -283,3 +283,17 @@ def test_a_sweep_that_ends_below_100_hz_is_noted_as_a_likely_unit_slip(tmp_path:
             write_touchstone_s(tmp_path / "plain.s2p", F, _shunt_s(Z))
         ).warnings
     )
+
+
+def test_an_infinite_value_in_a_version_1_z_file_is_refused_without_a_warning(
+    tmp_path: Path,
+) -> None:
+    # Version 1 Z data are normalised to R; taking them back to ohms must not warn on a
+    # row holding "inf" (the suite turns warnings into errors): the file is refused for
+    # that row, named, as for any point without a number.
+    rows = [f"{f:g} {z.real / 50:.6g} {z.imag / 50:.6g}" for f, z in zip(F, Z, strict=True)]
+    rows[5] = f"{F[5]:g} inf 0"
+    path = tmp_path / "inf.s1p"
+    path.write_text("# Hz Z RI R 50\n" + "\n".join(rows) + "\n", encoding="utf-8")
+    with pytest.raises(InputError, match=rf"has no number .* at 1 frequency \({F[5]:g} Hz\)"):
+        load_measurement(path)

@@ -102,7 +102,7 @@ def test_a_file_with_scpi_codes_is_refused_for_them(tmp_path: Path):
     with pytest.raises(InputError) as info:
         load_measurement(path)
     text = str(info.value)
-    assert "9.91E37" in text and "1 frequencies" in text and "holds values up to" not in text
+    assert "9.91E37" in text and "at 1 frequency (" in text and "holds values up to" not in text
     csv = tmp_path / "overload.csv"
     csv.write_text(
         "Frequency [Hz],|Z| [Ohm],Phase [deg]\n"
