@@ -40,6 +40,8 @@ UNITS: dict[str, tuple[str, ...]] = {
     "dBm": ("dbm",),
 }
 
+# Digits of a number's exponent read: more cannot give a finite float (the limit is 308).
+MAX_EXPONENT_DIGITS = 4
 _NUMBER = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
 _PATTERN = re.compile(rf"^\s*(?P<num>{_NUMBER})\s*(?P<rest>[^\s\d.+-].*?)?\s*$")
 
@@ -98,9 +100,12 @@ def parse_quantity(value: object, unit: str | None = None, *, name: str = "value
                 f"{name}: unit {unit_text!r} in {value!r} is not {unit or 'a known unit'}; "
                 f"write the value in {unit or 'plain numbers'}"
             )
-        # Scale through the decimal exponent so "4.7n" is exactly 4.7e-9.
+        # Scale through the decimal exponent so "4.7n" is exactly 4.7e-9 (and "1e3 m" 1.0:
+        # the number's own exponent and the prefix's add up).
         exponent = round(math.log10(multiplier))
-        digits = match.group("num")
+        digits, _, own = match.group("num").lower().partition("e")
+        if own:
+            exponent += int(own[: MAX_EXPONENT_DIGITS + 1])  # 2e999… is infinite anyway
         number = float(f"{digits}e{exponent}") if exponent else float(digits)
     else:
         raise QuantityError(f"{name}: expected a number{_unit_hint(unit)}, got {value!r}")

@@ -28,6 +28,9 @@ from bench.units import QuantityError, format_si, parse_quantity
         ("2.2 uF", "F", 2.2e-6),
         ("2.2 µF", "F", 2.2e-6),
         ("1e-3", None, 1e-3),
+        ("1e12 ms", "s", 1e9),  # the number's exponent and the prefix's add up
+        ("2.5E-3 kHz", "Hz", 2.5),
+        ("1e+3m", None, 1.0),
         (0.47, "H", 0.47),
         (12, "V", 12.0),
     ],
@@ -52,6 +55,8 @@ def test_decimal_prefix_scaling_is_exact():
         (True, None, "expected a number"),
         (None, "F", "expected a number in F"),
         (float("inf"), None, "not a finite number"),
+        ("1e400 mV", "V", "not a finite number"),
+        ("1e" + "9" * 5000 + " s", "s", "not a finite number"),  # no int of 5000 digits
     ],
 )
 def test_bad_quantities_name_the_problem(text, unit, message):
