@@ -10,7 +10,10 @@ that no fit family holds exactly:
   a weak third mode (a small series R-L-C across it);
 - an inductor with √f winding loss;
 - a ferrite bead whose permeability relaxes in the Cole-Cole form
-  ``μ0/(1 + (j f/fr)^(1−α))`` (Cole and Cole 1941, from memory).
+  ``μ0/(1 + (j f/fr)^(1−α))`` (Cole and Cole 1941, from memory);
+- a capacitor whose dielectric relaxes in the same form, its capacitance falling by
+  half over a few decades (a polymer or a high-permittivity ceramic's slow
+  polarisation).
 
 Bench artefacts added: a residual through delay that drives Re Z below zero at the top
 of the band, three glitched points, noise. Tolerances (issue targets, common practice,
@@ -162,6 +165,27 @@ def test_cole_cole_bead():
     assert_landmarks(result, landmarks_for("inductor", F_IND, z_true))
     assert result.quality.noise_ratio <= NOISE_RATIO
     assert np.sqrt(np.mean(np.abs(np.log(result.impedance(F_IND) / z_true)) ** 2)) < 0.02
+
+
+def relaxing_capacitor(f, alpha, f_relax):
+    """10 µF at DC relaxing to 4.7 µF above ``f_relax`` in the Cole-Cole form, 3 mΩ and
+    0.5 nH in series."""
+    w = 2 * np.pi * f
+    c = 4.7e-6 + 5.3e-6 / (1 + (1j * f / f_relax) ** (1 - alpha))
+    return 1 / (1j * w * c) + 3e-3 + 1j * w * 0.5e-9
+
+
+@pytest.mark.parametrize(("alpha", "f_relax"), [(0.0, 2e4), (0.1, 2e4), (0.2, 2e4), (0.2, 2e5)])
+def test_a_relaxing_dielectric_is_followed_to_the_noise(alpha, f_relax):
+    # A relaxation is a distributed RC impedance, which the ladder's sections (Foster
+    # form) follow; a spread one (α > 0) needs three or four of them.
+    z_true = relaxing_capacitor(F_CAP, alpha, f_relax)
+    z, u = noisy(z_true)
+    result = fit_impedance(F_CAP, z, rel_uncertainty=u)
+    assert result.model == "ladder"
+    assert_landmarks(result, landmarks_for("capacitor", F_CAP, z_true))
+    assert result.quality.noise_ratio <= NOISE_RATIO
+    assert result.landmarks["esl"] == pytest.approx(0.5e-9, rel=TOLERANCE["esl"])
 
 
 def test_clean_data_loses_no_points():

@@ -78,8 +78,12 @@ def starts(order, f, z, landmarks: Mapping[str, Any], previous=None) -> list[dic
         values[f"C{order}"] = c_last / 8
         out.append(values)
     norm = sum(1.0 / k**2 for k in range(1, order + 1))
-    # From scratch: three spreads of the time constants, or one when a lower order exists.
-    for shift in (1.0,) if out else (1.0, 0.25, 4.0):
+    # From scratch: three spreads of the time constants, also when a lower order exists:
+    # a lower order whose extra section collapsed (shorted, unseen by the data) seeds the
+    # next one in the same trap, where a spread over the band finds every section (a
+    # dielectric relaxing over two decades needs three or four; tests/core/
+    # test_fit_artefacts.py).
+    for shift in (1.0, 0.25, 4.0):
         tau1 = shift / (2 * np.pi * f_half)
         values = {"R": r_high, "L": esl, "C": c}
         for k in range(1, order + 1):
