@@ -23,6 +23,7 @@ from bench.core.landmarks import (
     Landmarks,
     dc_band,
     landmarks_for,
+    negative_inductance_above,
     series_capacitance_below,
 )
 from bench.core.models.network import network_impedance
@@ -230,6 +231,23 @@ def series_capacitance_note(kind: str, f, z, sigma) -> str | None:
         f"swept above its series resonance (about {format_si(f_res, 'Hz', 2)}) reads as an "
         f"inductor; if this part is a capacitor, sweep from below "
         f"{format_si(f_res / 10, 'Hz', 2)} to measure its capacitance"
+    )
+
+
+def negative_inductance_note(kind: str, f, z, sigma) -> str | None:
+    """What capacitive data's top says when it shows a negative inductance
+    (:func:`bench.core.landmarks.negative_inductance_above`): no part has one, so the
+    fixture's inductance was removed more than the part's own. None when it shows none,
+    and for data of ``kind`` inductor."""
+    found = negative_inductance_above(f, z, sigma) if kind == "capacitor" else None
+    if found is None:
+        return None
+    return (
+        f"the reactance at the top of the sweep falls faster than a capacitance's, as an "
+        f"inductance of about {format_si(found, 'H', 2)} in series would make it; no part "
+        f"has a negative inductance: more inductance was removed than the fixture adds "
+        f"(a mount short of another mount, a strap longer than the part, or the fixture "
+        f"removed twice); check the mount short and the de-embedding, then fit again"
     )
 
 

@@ -46,6 +46,7 @@ from bench.core.fit_landmarks import (
     merge_landmarks,
     model_impedance,
     model_landmarks,
+    negative_inductance_note,
     r_dc_measured,
     r_dc_reading_error,
     resonance_warnings,
@@ -798,6 +799,9 @@ def fit_impedance(
     note = series_capacitance_note(kind, f[used], z[used], u_all[used])
     if note is not None:
         warnings.append(f"the part may be a capacitor: {note}")
+    note = negative_inductance_note(kind, f[used], z[used], u_all[used])
+    if note is not None:
+        warnings.append(f"fixture over-removed: {note}")
     if z_model is not None:
         warnings += low_frequency_warnings(
             kind, f, z, sigma, used, marks, left_out.any(), z_model=z_model

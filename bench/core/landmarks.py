@@ -297,6 +297,54 @@ def series_capacitance_below(f: Any, z: Any, rel_uncertainty: Any) -> tuple[floa
     return (c, f_res) if f_res < f[0] else None
 
 
+# A negative inductance at the top of a capacitive sweep (:func:`negative_inductance_above`)
+# is reported at this many standard errors below zero and at least this size: no smaller
+# one changes a model a design uses (common practice, no source).
+NEGATIVE_L_SIGMAS = 5.0
+NEGATIVE_L_MIN = 5e-12
+
+
+def negative_inductance_above(f: Any, z: Any, rel_uncertainty: Any) -> float | None:
+    """The inductance (H, negative) that capacitive data's reactance at the top of the
+    sweep shows, when it falls faster than a capacitance's as only a negative inductance
+    in series would make it (a part whose fixture's inductance was removed more than it
+    has). None when the top is not capacitive, or shows no such inductance.
+
+    Over the top quarter (in log f) of the points, all capacitive in the main, ``ω·X`` is
+    fitted by weighted least squares as ``−1/C + L·ω² + D·ln ω``: a series R-L-C gives
+    ``ω·X = L·ω² − 1/C`` exactly (docs/references.md §3), and the ``ln ω`` term takes up a
+    capacitance falling slowly with frequency (a dielectric's dispersion, docs/references.md
+    §16), so that it is not read as an inductance. ``L`` must lie
+    :data:`NEGATIVE_L_SIGMAS` standard errors below zero (errors as in
+    :func:`series_capacitance_below`) and be at least :data:`NEGATIVE_L_MIN` in size.
+    """
+    f = np.asarray(f, dtype=float)
+    z = np.asarray(z, dtype=complex)
+    u = np.asarray(rel_uncertainty, dtype=float)
+    ok = np.isfinite(f) & np.isfinite(z) & np.isfinite(u) & (f > 0) & (u > 0) & (z != 0)
+    f, z, u = f[ok], z[ok], u[ok]
+    if f.size < SERIES_C_MIN_POINTS:
+        return None
+    top = f >= f[-1] * (f[0] / f[-1]) ** 0.25
+    if np.count_nonzero(top) < SERIES_C_MIN_POINTS or np.median(z[top].imag) >= 0:
+        return None
+    w = 2 * np.pi * f[top]
+    x = (w / w[-1]) ** 2  # ω² in units of the highest point's, for a well-scaled solve
+    sigma = w * u[top] * np.abs(z[top])
+    a = np.stack([-np.ones_like(x), x, np.log(w / w[-1])], axis=1) / sigma[:, None]
+    y = w * z[top].imag / sigma
+    coef, *_ = np.linalg.lstsq(a, y, rcond=None)
+    r = y - a @ coef
+    scatter = float(r @ r) / max(1, y.size - 3)
+    with np.errstate(all="ignore"):
+        cov = np.linalg.pinv(a.T @ a) * max(1.0, scatter)
+    inductance = float(coef[1]) / float(w[-1] ** 2)
+    error = float(np.sqrt(max(cov[1, 1], 0.0))) / float(w[-1] ** 2)
+    if inductance < -NEGATIVE_L_SIGMAS * error and inductance < -NEGATIVE_L_MIN:
+        return inductance
+    return None
+
+
 def _low_decade(f: NDArray[np.float64], mask: NDArray[np.bool_]) -> NDArray[np.bool_]:
     """The points of ``mask`` within a decade of the lowest one."""
     if not np.any(mask):
