@@ -151,14 +151,21 @@ def merge_repeats(
     """``(f, values, note)`` with each frequency that comes twice or more in a row (a
     segmented sweep repeats the frequency where one segment ends and the next begins)
     read once, as the mean of its readings (``values`` has one row per frequency);
-    ``note`` says so, None when nothing was repeated. Frequencies out of order are left
+    ``note`` says so, None when nothing was repeated. A sweep that runs downward
+    throughout (from its top frequency, as an analyser may sweep and export) is turned
+    round first, and the note says that too; frequencies otherwise out of order are left
     for :func:`_check_grid` to refuse."""
     f = np.asarray(f, dtype=float)
     if f.size < 2:
         return f, values, None
+    turned = None
+    steps = np.diff(f)
+    if np.all(steps <= REPEAT_TOLERANCE * np.abs(f[1:])) and np.any(steps < 0):
+        f, values = f[::-1].copy(), np.asarray(values)[::-1].copy()
+        turned = "the sweep runs from its top frequency down: read in increasing order"
     repeat = np.abs(np.diff(f)) <= REPEAT_TOLERANCE * np.abs(f[1:])
     if not np.any(repeat):
-        return f, values, None
+        return f, values, turned
     starts = np.flatnonzero(np.concatenate([[True], ~repeat]))
     counts = np.diff(np.append(starts, f.size))
     summed = np.add.reduceat(np.asarray(values), starts, axis=0)
@@ -169,7 +176,7 @@ def merge_repeats(
         f"{n} repeated frequenc{'y' if n == 1 else 'ies'} (a segmented sweep's shared "
         "segment ends, say) read once, as the mean of the readings there"
     )
-    return f[starts], merged, note
+    return f[starts], merged, note if turned is None else f"{turned}; {note}"
 
 
 def _check_grid(name: str, f: NDArray[np.float64]) -> None:

@@ -246,3 +246,12 @@ def test_a_frequency_unit_that_does_not_match_the_values_is_refused(tmp_path: Pa
     with pytest.raises(InputError, match="far beyond any network analyser") as info:
         load_measurement(path)
     assert str(path) in str(info.value) and "header" in str(info.value)
+
+
+def test_a_table_from_the_top_frequency_down_is_read_in_increasing_order(tmp_path: Path) -> None:
+    path = tmp_path / "down.csv"
+    path.write_text(_table("f (Hz),R (Ohm),X (Ohm)", ",", (F[::-1], Z.real[::-1], Z.imag[::-1])))
+    m = load_measurement(path)
+    np.testing.assert_array_equal(m.f, F)
+    np.testing.assert_allclose(m.z, Z, rtol=1e-14)
+    assert any("from its top frequency down" in w for w in m.warnings)

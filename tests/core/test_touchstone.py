@@ -93,7 +93,10 @@ BAD_CASES = [
     ("few.s2p", "# Hz S RI R 50\n" + "\n".join(_rows(5, 8)) + "\n", "5 frequency points", "more"),
     (
         "order.s2p",
-        "# Hz S RI R 50\n" + "\n".join(_rows(12, 8)[::-1]) + "\n",
+        # Two rows swapped (a sweep run downward throughout is turned round instead).
+        "# Hz S RI R 50\n"
+        + "\n".join(_rows(12, 8)[:5] + _rows(12, 8)[6:4:-1] + _rows(12, 8)[7:])
+        + "\n",
         "not strictly increasing",
         "sort",
     ),
@@ -297,3 +300,36 @@ def test_an_infinite_value_in_a_version_1_z_file_is_refused_without_a_warning(
     path.write_text("# Hz Z RI R 50\n" + "\n".join(rows) + "\n", encoding="utf-8")
     with pytest.raises(InputError, match=rf"has no number .* at 1 frequency \({F[5]:g} Hz\)"):
         load_measurement(path)
+
+
+def test_a_sweep_run_from_the_top_down_is_read_in_increasing_order(tmp_path: Path) -> None:
+    s = _shunt_s(Z)
+    rows = lambda order: [  # noqa: E731
+        f"{F[i]:.15g} " + " ".join(f"{v.real:.15g} {v.imag:.15g}" for v in s[i].T.ravel())
+        for i in order
+    ]
+    up = load_measurement(
+        _write(tmp_path, "up.s2p", "\n".join(["# Hz S RI R 50", *rows(range(F.size))]) + "\n")
+    )
+    down_order = list(range(F.size))[::-1]
+    down = load_measurement(
+        _write(tmp_path, "down.s2p", "\n".join(["# Hz S RI R 50", *rows(down_order)]) + "\n")
+    )
+    np.testing.assert_array_equal(down.f, up.f)
+    np.testing.assert_array_equal(down.s, up.s)
+    assert any("from its top frequency down" in w for w in down.warnings)
+    assert not any("top frequency down" in w for w in up.warnings)
+    # Down with a segment's shared end repeated: turned round, then read once.
+    repeated = down_order[:10] + down_order[9:]
+    both = load_measurement(
+        _write(tmp_path, "both.s2p", "\n".join(["# Hz S RI R 50", *rows(repeated)]) + "\n")
+    )
+    np.testing.assert_array_equal(both.f, up.f)
+    assert any("top frequency down" in w and "1 repeated frequency" in w for w in both.warnings)
+    # Out of order otherwise (one row swapped): still refused, naming the point.
+    swapped = list(range(F.size))
+    swapped[5], swapped[6] = 6, 5
+    with pytest.raises(InputError, match="not strictly increasing"):
+        load_measurement(
+            _write(tmp_path, "swap.s2p", "\n".join(["# Hz S RI R 50", *rows(swapped)]) + "\n")
+        )
