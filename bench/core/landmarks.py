@@ -255,6 +255,39 @@ SERIES_C_SIGMAS = 5.0
 SERIES_C_MIN_POINTS = 8
 
 
+def _quarter(f: Any, z: Any, rel_uncertainty: Any, *, top: bool):
+    """``(f, ω, z, u)`` of the lowest (or the top) quarter in log f of the usable points
+    (finite, positive frequency and uncertainty, non-zero impedance): ``f`` all of them,
+    the others that quarter's. None with fewer than :data:`SERIES_C_MIN_POINTS` there."""
+    f = np.asarray(f, dtype=float)
+    z = np.asarray(z, dtype=complex)
+    u = np.asarray(rel_uncertainty, dtype=float)
+    ok = np.isfinite(f) & np.isfinite(z) & np.isfinite(u) & (f > 0) & (u > 0) & (z != 0)
+    f, z, u = f[ok], z[ok], u[ok]
+    if f.size < SERIES_C_MIN_POINTS:
+        return None
+    edge = f[0] * (f[-1] / f[0]) ** (0.75 if top else 0.25)
+    part = f >= edge if top else f <= edge
+    if np.count_nonzero(part) < SERIES_C_MIN_POINTS:
+        return None
+    return f, 2 * np.pi * f[part], z[part], u[part]
+
+
+def _reactance_fit(w, z, u, columns) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Coefficients of ``ω·X`` in the basis ``columns`` by least squares weighted by the
+    points' errors ``ω·u·|Z|``, and their covariance, scaled up by the fit's own scatter
+    when that is larger than the errors say."""
+    sigma = w * u * np.abs(z)
+    a = np.stack(columns, axis=1) / sigma[:, None]
+    y = w * z.imag / sigma
+    coef, *_ = np.linalg.lstsq(a, y, rcond=None)
+    r = y - a @ coef
+    scatter = float(r @ r) / max(1, y.size - len(columns))
+    with np.errstate(all="ignore"):
+        cov = np.linalg.pinv(a.T @ a) * max(1.0, scatter)
+    return coef, cov
+
+
 def series_capacitance_below(f: Any, z: Any, rel_uncertainty: Any) -> tuple[float, float] | None:
     """``(C, f_res)`` when inductive data's reactance at the bottom of the sweep falls
     short of an inductance's as a capacitance ``C`` in series would make it: a capacitor
@@ -269,26 +302,12 @@ def series_capacitance_below(f: Any, z: Any, rel_uncertainty: Any) -> tuple[floa
     (the errors from ``rel_uncertainty``, the relative uncertainty of each point, scaled
     up by the fit's own scatter when that is larger) and ``f_res`` below the sweep.
     """
-    f = np.asarray(f, dtype=float)
-    z = np.asarray(z, dtype=complex)
-    u = np.asarray(rel_uncertainty, dtype=float)
-    ok = np.isfinite(f) & np.isfinite(z) & np.isfinite(u) & (f > 0) & (u > 0) & (z != 0)
-    f, z, u = f[ok], z[ok], u[ok]
-    if f.size < SERIES_C_MIN_POINTS:
+    quarter = _quarter(f, z, rel_uncertainty, top=False)
+    if quarter is None:
         return None
-    low = f <= f[0] * (f[-1] / f[0]) ** 0.25
-    if np.count_nonzero(low) < SERIES_C_MIN_POINTS:
-        return None
-    w = 2 * np.pi * f[low]
+    f, w, z_q, u_q = quarter
     x = (w / w[0]) ** 2  # ω² in units of the lowest point's, for a well-scaled solve
-    sigma = w * u[low] * np.abs(z[low])
-    a = np.stack([-np.ones_like(x), x, x * x], axis=1) / sigma[:, None]
-    y = w * z[low].imag / sigma
-    coef, *_ = np.linalg.lstsq(a, y, rcond=None)
-    r = y - a @ coef
-    scatter = float(r @ r) / max(1, y.size - 3)
-    with np.errstate(all="ignore"):
-        cov = np.linalg.pinv(a.T @ a) * max(1.0, scatter)
+    coef, cov = _reactance_fit(w, z_q, u_q, [-np.ones_like(x), x, x * x])
     elastance, inductance = float(coef[0]), float(coef[1]) / float(w[0] ** 2)
     if not (elastance > SERIES_C_SIGMAS * np.sqrt(max(cov[0, 0], 0.0)) and inductance > 0):
         return None
@@ -318,26 +337,12 @@ def negative_inductance_above(f: Any, z: Any, rel_uncertainty: Any) -> float | N
     :data:`NEGATIVE_L_SIGMAS` standard errors below zero (errors as in
     :func:`series_capacitance_below`) and be at least :data:`NEGATIVE_L_MIN` in size.
     """
-    f = np.asarray(f, dtype=float)
-    z = np.asarray(z, dtype=complex)
-    u = np.asarray(rel_uncertainty, dtype=float)
-    ok = np.isfinite(f) & np.isfinite(z) & np.isfinite(u) & (f > 0) & (u > 0) & (z != 0)
-    f, z, u = f[ok], z[ok], u[ok]
-    if f.size < SERIES_C_MIN_POINTS:
+    quarter = _quarter(f, z, rel_uncertainty, top=True)
+    if quarter is None or np.median(quarter[2].imag) >= 0:
         return None
-    top = f >= f[-1] * (f[0] / f[-1]) ** 0.25
-    if np.count_nonzero(top) < SERIES_C_MIN_POINTS or np.median(z[top].imag) >= 0:
-        return None
-    w = 2 * np.pi * f[top]
+    _, w, z_q, u_q = quarter
     x = (w / w[-1]) ** 2  # ω² in units of the highest point's, for a well-scaled solve
-    sigma = w * u[top] * np.abs(z[top])
-    a = np.stack([-np.ones_like(x), x, np.log(w / w[-1])], axis=1) / sigma[:, None]
-    y = w * z[top].imag / sigma
-    coef, *_ = np.linalg.lstsq(a, y, rcond=None)
-    r = y - a @ coef
-    scatter = float(r @ r) / max(1, y.size - 3)
-    with np.errstate(all="ignore"):
-        cov = np.linalg.pinv(a.T @ a) * max(1.0, scatter)
+    coef, cov = _reactance_fit(w, z_q, u_q, [-np.ones_like(x), x, np.log(w / w[-1])])
     inductance = float(coef[1]) / float(w[-1] ** 2)
     error = float(np.sqrt(max(cov[1, 1], 0.0))) / float(w[-1] ** 2)
     if inductance < -NEGATIVE_L_SIGMAS * error and inductance < -NEGATIVE_L_MIN:
