@@ -183,7 +183,7 @@ def load_impedance_csv(path: str | Path, *, method: str | None = None):
         Measurement,
         _check_grid,
         low_sweep_note,
-        merge_repeats,
+        sweep_in_order,
     )
     from bench.touchstone_scan import scpi_no_number
 
@@ -270,7 +270,7 @@ def load_impedance_csv(path: str | Path, *, method: str | None = None):
     first = data[:, columns[a]] * scales[a]
     second = data[:, columns[b]] * scales[b]
     z = _impedance_of(a, b, 2 * np.pi * f, first, second)
-    f, z, merged = merge_repeats(f, z)
+    f, z, ordered = sweep_in_order(f, z)
     _check_grid(name, f)
     if not (np.all(np.isfinite(z)) and np.all(np.isfinite(f))):
         raise InputError(
@@ -303,7 +303,7 @@ def load_impedance_csv(path: str | Path, *, method: str | None = None):
         comments="\n".join(comments),
         method=method,
         method_source="option" if method else "file",
-        warnings=tuple(w for w in (merged, low_sweep_note(f)) if w),
+        warnings=tuple(w for w in (ordered, low_sweep_note(f)) if w),
     )
 
 

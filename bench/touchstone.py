@@ -145,7 +145,7 @@ def method_from_comments(comments: str) -> str | None:
 REPEAT_TOLERANCE = 1e-12
 
 
-def merge_repeats(
+def sweep_in_order(
     f: NDArray[np.float64], values: NDArray[Any]
 ) -> tuple[NDArray[np.float64], NDArray[Any], str | None]:
     """``(f, values, note)`` with each frequency that comes twice or more in a row (a
@@ -160,10 +160,11 @@ def merge_repeats(
         return f, values, None
     turned = None
     steps = np.diff(f)
-    if np.all(steps <= REPEAT_TOLERANCE * np.abs(f[1:])) and np.any(steps < 0):
+    repeat = np.abs(steps) <= REPEAT_TOLERANCE * np.abs(f[1:])
+    if np.all(repeat | (steps < 0)) and not np.all(repeat):
         f, values = f[::-1].copy(), np.asarray(values)[::-1].copy()
+        repeat = repeat[::-1]
         turned = "the sweep runs from its top frequency down: read in increasing order"
-    repeat = np.abs(np.diff(f)) <= REPEAT_TOLERANCE * np.abs(f[1:])
     if not np.any(repeat):
         return f, values, turned
     starts = np.flatnonzero(np.concatenate([[True], ~repeat]))
@@ -296,9 +297,9 @@ def load_measurement(
             "the column order",
         )
     matrix, z0 = network_matrix(scan)
-    f, matrix, merged = merge_repeats(scan.frequencies, matrix)
-    if merged:
-        notes.append(merged)
+    f, matrix, ordered = sweep_in_order(scan.frequencies, matrix)
+    if ordered:
+        notes.append(ordered)
     _check_grid(name, f)
     low = low_sweep_note(f)
     if low:

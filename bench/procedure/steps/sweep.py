@@ -146,22 +146,23 @@ def _measured(ctx: RunContext, step: Step, take: Callable[[], T]) -> T:
     The last failure stops the run (the driver's error, naming the sweeps taken)."""
     from drivers.errors import UnmeasuredPoints
 
-    for attempt in range(1, UNMEASURED_SWEEPS + 1):
+    for repeat in range(1, UNMEASURED_SWEEPS):
         try:
             return take()
         except UnmeasuredPoints as exc:
-            if attempt == UNMEASURED_SWEEPS:
-                raise UnmeasuredPoints(
-                    exc.resource, exc.trace, exc.frequencies, exc.count, sweeps=attempt
-                ) from None
             text = (
                 f"{step.id}: the analyser could not measure {exc.count} "
                 f"point{'' if exc.count == 1 else 's'} of {exc.trace} (sent 9.91E37); "
-                f"sweep taken again ({attempt} of {UNMEASURED_SWEEPS - 1} repeats)"
+                f"sweep taken again ({repeat} of {UNMEASURED_SWEEPS - 1} repeats)"
             )
             ctx.store.log(text)
             ctx.display.message(text)
-    raise AssertionError("unreachable")  # the loop returns or raises
+    try:
+        return take()
+    except UnmeasuredPoints as exc:
+        raise UnmeasuredPoints(
+            exc.resource, exc.trace, exc.frequencies, exc.count, sweeps=UNMEASURED_SWEEPS
+        ) from None
 
 
 class _Sweep(NamedTuple):
