@@ -199,14 +199,16 @@ def impedance_from_reflection(
     return _finish(ff, reflection_z(g, z0), window, mount_short, open_admittance)
 
 
-def estimate_scatter(z: ArrayLike, *, width: int = 11) -> NDArray[np.float64]:
+def estimate_scatter(z: ArrayLike, *, width: int = 21) -> NDArray[np.float64]:
     """Relative one-sigma scatter of each point of a smooth impedance curve, a fraction.
 
     From the second difference of ln Z along the points: for white noise of sigma s on
     each point it has sigma ``s·√6``, while a curve sampled densely adds little. A running
     median of its magnitude over ``width`` points (``median |N(0, 1)| = 0.6745``) makes
-    it robust to a few glitches and to the sharp bend of a resonance. Floored at
-    :data:`SCATTER_FLOOR`.
+    it robust to a few glitches and to the sharp bend of a resonance: each bad point
+    spoils three second differences, so three of them clustered at a resonance (where
+    calibration residue turns Re Z negative) still leave the median of 21 clean (of 11
+    they would not). Floored at :data:`SCATTER_FLOOR`.
     """
     lz = np.log(np.asarray(z, dtype=complex))
     n = lz.size

@@ -255,3 +255,29 @@ def test_a_table_from_the_top_frequency_down_is_read_in_increasing_order(tmp_pat
     np.testing.assert_array_equal(m.f, F)
     np.testing.assert_allclose(m.z, Z, rtol=1e-14)
     assert any("from its top frequency down" in w for w in m.warnings)
+
+
+def test_non_passive_points_clustered_at_resonance_are_left_out(tmp_path: Path) -> None:
+    # An analyser's table (no set-up known: weighted by its own scatter) of an invented
+    # 2.2 µF MLCC, 4 mΩ, 0.6 nH (series resonance 4.38 MHz, X = ωL − 1/(ωC), docs/
+    # references.md §3), 0.3 % noise, with three points near resonance whose Re Z came
+    # out negative (calibration residue): each is left out, and the fit holds the noise.
+    from bench.api import fit, load
+
+    rng = np.random.default_rng(3)
+    f = np.geomspace(100, 1e8, 401)
+    w = 2 * np.pi * f
+    z = (4e-3 + 1j * w * 0.6e-9 + 1 / (1j * w * 2.2e-6)) * (
+        1 + 0.003 * (rng.normal(size=f.size) + 1j * rng.normal(size=f.size)) / np.sqrt(2)
+    )
+    at = int(np.argmin(np.abs(z)))
+    bad = [at - 3, at + 2, at + 5]
+    z[bad] = -1.5 * np.abs(z[bad].real) + 1j * z[bad].imag
+    path = tmp_path / "residue.csv"
+    path.write_text(_table("f (Hz),R (Ohm),X (Ohm)", ",", (f, z.real, z.imag)))
+    result = fit(load(path))
+    left = [e for e in result.excluded if e.reason == "negative-resistance"]
+    assert len(left) == 1 and left[0].count == 3
+    assert left[0].f_lo == pytest.approx(f[bad[0]]) and left[0].f_hi == pytest.approx(f[bad[-1]])
+    assert result.meets_quality and result.quality.noise_ratio < 1.5
+    assert result.landmarks["esr_at_srf"] == pytest.approx(4e-3, rel=0.1)
